@@ -1,0 +1,34 @@
+"""rateabs: kinetic numbers from absorbance-vs-time data.
+
+Initial rates, enzyme activity, Michaelis–Menten and inhibition constants, integrated rate laws,
+completion times and Arrhenius/Eyring parameters, each with an honest uncertainty.
+
+Results are for research and teaching. They are not for clinical diagnosis, and a predicted
+completion time is no substitute for a process-safety assessment.
+
+The public API is imported lazily so that ``rateabs --help`` stays fast:
+
+>>> import rateabs
+>>> ts = rateabs.read_traces(rateabs.sample_path("plate_kbdh_340nm.csv"))  # doctest: +SKIP
+"""
+
+__version__ = "0.1.0"
+
+_API = {
+    "read_traces": "rateabs.io",
+    "read_table": "rateabs.io",
+    "sample_path": "rateabs.io",
+    "TraceSet": "rateabs.traces",
+    "chromophore": "rateabs.photometry",
+    "pathlength_from_volume": "rateabs.photometry",
+}
+
+__all__ = ["__version__", *_API]
+
+
+def __getattr__(name):
+    if name in _API:
+        import importlib
+
+        return getattr(importlib.import_module(_API[name]), name)
+    raise AttributeError(f"module 'rateabs' has no attribute {name!r}")

@@ -1,0 +1,142 @@
+"""Command-line interface (thin: parse options, call the analyses, print or write results).
+
+Heavy libraries (numpy, pandas, scipy, lmfit, matplotlib) are imported inside the commands so
+that ``rateabs --help`` stays fast.
+"""
+
+from __future__ import annotations
+
+import functools
+import sys
+
+import click
+
+from . import __version__
+from .errors import RateabsError
+
+FORMATS = click.Choice(["table", "csv", "json"])
+CAUTION = ("Results are for research and teaching, not for clinical diagnosis; follow local "
+           "rules and licensed practice for hazardous work.")
+
+
+def _guarded(fn):
+    """Turn every rateabs error into one line on stderr and its exit code (no traceback)."""
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        ctx = click.get_current_context()
+        debug = ctx.find_root().params.get("debug", False)
+        try:
+            return fn(*args, **kwargs)
+        except RateabsError as exc:
+            if debug:
+                raise
+            click.echo(f"rateabs: {exc.one_line()}", err=True)
+            sys.exit(exc.exit_code)
+        except KeyboardInterrupt:
+            click.echo("rateabs: interrupted", err=True)
+            sys.exit(130)
+        except (click.exceptions.Exit, click.ClickException, SystemExit):
+            raise
+        except Exception as exc:  # a bug: say so in one line, keep the traceback for --debug
+            if debug:
+                raise
+            click.echo(f"rateabs: internal error ({type(exc).__name__}: {exc}); "
+                       "rerun with --debug and report it", err=True)
+            sys.exit(1)
+
+    return wrapper
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="rateabs")
+@click.option("--debug", is_flag=True, help="Show Python tracebacks for errors.")
+def main(debug: bool) -> None:
+    """rateabs: kinetic numbers from absorbance-vs-time data.
+
+    Reads plate-reader and spectrophotometer exports and reports initial rates, activity,
+    Michaelis-Menten and inhibition constants, rate laws, completion times and Arrhenius/Eyring
+    parameters, each with its uncertainty. Not for clinical diagnosis.
+    """
+
+
+def _reader_options(fn):
+    fn = click.option("--sheet", default=None, help="Sheet of an .xlsx workbook.")(fn)
+    fn = click.option("--i0", type=float, default=None,
+                      help="Reference intensity I0 for raw intensities.")(fn)
+    fn = click.option("--signal", type=click.Choice(["absorbance", "transmittance", "percent",
+                                                     "intensity"]), default=None,
+                      help="What the readings are (detected from the header when not given).")(fn)
+    fn = click.option("--time-unit", type=click.Choice(["s", "min", "h"]), default=None,
+                      help="Unit of a numeric time column (detected from the header).")(fn)
+    return fn
+
+
+def _emit(fmt: str, doc: dict, table: str, csv_text: str, out, name: str) -> None:
+    from .output import to_json, write_text
+
+    if fmt == "json":
+        click.echo(to_json(doc), nl=False)
+    elif fmt == "csv":
+        click.echo(csv_text, nl=False)
+    else:
+        click.echo(table, nl=False)
+        for w in doc.get("warnings", []):
+            click.echo(f"warning: {w}", err=True)
+    if out:
+        write_text(out, f"{name}.json", to_json(doc))
+        write_text(out, f"{name}.csv", csv_text)
+
+
+@main.command()
+@click.argument("file", type=click.Path(dir_okay=True))
+@_reader_options
+@click.option("--linear-limit", type=float, default=None,
+              help="Absorbance above which readings are flagged (default 2.0).")
+@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--out", type=click.Path(file_okay=False), default=None,
+              help="Folder for inspect.json and inspect.csv.")
+@_guarded
+def inspect(file, time_unit, signal, i0, sheet, linear_limit, fmt, out):
+    """Show what the reader found in FILE: traces, time unit, signal kind, flags."""
+    from .inspecting import inspect_file
+    from .output import document, render_table, rows_to_csv
+
+    summary = inspect_file(file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet,
+                           linear_limit=linear_limit)
+    doc = document("inspect", [file], summary.settings, summary.results, summary.warnings)
+    cols = [("trace", "trace"), ("n_points", "n"), ("t_start_s", "t start (s)"),
+            ("t_end_s", "t end (s)"), ("A_first", "A first (AU)"), ("A_last", "A last (AU)"),
+            ("flags", "flags")]
+    s = summary.settings
+    head = [f"file       {file}",
+            f"format     {s['format']} (delimiter {s['delimiter']!r}, decimal {s['decimal']!r}, "
+            f"encoding {s['encoding']})",
+            f"layout     {s['layout']}, header on line {s['header_row']}",
+            f"time       {s['time_unit']} ({s['time_unit_source']})",
+            f"signal     {s['signal_kind']} ({s['signal_source']}), shown as absorbance",
+            f"limit      readings above A = {s['linear_limit']:g} flagged past-linear"]
+    for k, v in s["metadata"].items():
+        head.append(f"meta       {k}: {v}")
+    for k, v in s["extra_columns"].items():
+        head.append(f"column     {k}: kept as metadata ({v})")
+    table = "\n".join(head) + "\n\n" + render_table(summary.results, cols)
+    csv_text = rows_to_csv(summary.results, [c for c, _ in cols])
+    _emit(fmt, doc, table, csv_text, out, "inspect")
+
+
+@main.command()
+@click.option("--out", type=click.Path(file_okay=False), default="rateabs-demo",
+              show_default=True, help="Folder for the demo's results, plots and summary.")
+@_guarded
+def demo(out):
+    """Run the whole job on the embedded sample runs and write results, plots and a summary."""
+    from .demo import run_demo
+
+    summary = run_demo(out, echo=click.echo)
+    click.echo(summary)
+    click.echo(CAUTION)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

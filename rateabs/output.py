@@ -1,0 +1,162 @@
+"""Output: the JSON document, tidy CSV, aligned tables for a person, atomic file writes.
+
+The JSON document has the fixed shape ``{"rateabs_version", "command", "inputs", "settings",
+"results", "warnings"}``; a fitted parameter is ``{"value", "se", "ci_low", "ci_high",
+"ci_method", "unit"}``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Sequence
+from pathlib import Path
+
+from . import __version__
+from .io import write_atomic
+
+
+def param(value, se=None, ci_low=None, ci_high=None, ci_method=None, unit="") -> dict:
+    """A fitted parameter as the JSON object of design.md §5."""
+    return {"value": _num(value), "se": _num(se), "ci_low": _num(ci_low),
+            "ci_high": _num(ci_high), "ci_method": ci_method, "unit": unit}
+
+
+def _num(x):
+    if x is None:
+        return None
+    try:
+        x = float(x)
+    except (TypeError, ValueError):
+        return None
+    return x if math.isfinite(x) else None
+
+
+def _clean(obj):
+    """JSON-safe copy: NaN/inf become null, numpy scalars become Python numbers."""
+    if isinstance(obj, dict):
+        return {str(k): _clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_clean(v) for v in obj]
+    if hasattr(obj, "item") and not isinstance(obj, (str, bytes)):
+        try:
+            obj = obj.item()
+        except (ValueError, AttributeError):
+            return str(obj)
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    if isinstance(obj, (str, int, bool)) or obj is None:
+        return obj
+    return str(obj)
+
+
+def document(command: str, inputs, settings: dict, results: list, warnings: list) -> dict:
+    """The JSON document every analysis command prints with ``--format json``."""
+    return _clean({"rateabs_version": __version__, "command": command,
+                   "inputs": list(inputs) if isinstance(inputs, (list, tuple)) else [inputs],
+                   "settings": settings, "results": results, "warnings": list(warnings)})
+
+
+def to_json(doc: dict) -> str:
+    """The document as indented JSON text."""
+    return json.dumps(doc, indent=2, ensure_ascii=False) + "\n"
+
+
+def fmt_num(x, digits: int = 4) -> str:
+    """A number for a table: significant digits, no trailing noise; '-' for missing."""
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "-"
+    if isinstance(x, bool):
+        return "yes" if x else "no"
+    if isinstance(x, int):
+        return str(x)
+    if isinstance(x, float):
+        if x == 0:
+            return "0"
+        if abs(x) >= 1e6 or abs(x) < 1e-3:
+            return f"{x:.{digits - 1}e}"
+        return f"{x:.{digits}g}" if abs(x) >= 1 else f"{x:.{digits}g}"
+    if isinstance(x, (list, tuple)):
+        return ",".join(str(v) for v in x) or "-"
+    return str(x)
+
+
+def render_table(rows: Sequence[dict], columns: Sequence[tuple[str, str]],
+                 title: str | None = None) -> str:
+    """Aligned text table; ``columns`` is a list of (key, header-with-unit)."""
+    cells = [[fmt_num(r.get(k)) for k, _ in columns] for r in rows]
+    heads = [h for _, h in columns]
+    widths = [max([len(h)] + [len(c[i]) for c in cells]) for i, h in enumerate(heads)]
+    numeric = [all(_numeric_cell(c[i]) for c in cells) for i in range(len(heads))]
+
+    def line(vals):
+        out = []
+        for v, w, num in zip(vals, widths, numeric, strict=True):
+            out.append(v.rjust(w) if num else v.ljust(w))
+        return "  ".join(out).rstrip()
+
+    text = []
+    if title:
+        text.append(title)
+    text.append(line(heads))
+    text.append("  ".join("-" * w for w in widths))
+    text.extend(line(c) for c in cells)
+    return "\n".join(text) + "\n"
+
+
+def _numeric_cell(s: str) -> bool:
+    if s == "-":
+        return True
+    try:
+        float(s)
+        return True
+    except ValueError:
+        return False
+
+
+def rows_to_csv(rows: Sequence[dict], columns: Sequence[str]) -> str:
+    """Tidy CSV text; lists are joined with ';'."""
+    import csv
+    import io
+
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(columns)
+    for r in rows:
+        out = []
+        for c in columns:
+            v = r.get(c)
+            if isinstance(v, (list, tuple)):
+                v = ";".join(str(x) for x in v)
+            elif isinstance(v, float):
+                v = "" if not math.isfinite(v) else repr(v)
+            elif v is None:
+                v = ""
+            out.append(v)
+        w.writerow(out)
+    return buf.getvalue()
+
+
+def write_text(out_dir: str | Path, name: str, text: str | bytes) -> Path:
+    """Write one output file atomically into ``out_dir``; returns its path."""
+    path = Path(out_dir) / name
+    write_atomic(path, text)
+    return path
+
+
+def flatten_params(result: dict, prefix: str = "") -> dict:
+    """Flatten parameter objects into ``NAME``, ``NAME_se``, ``NAME_ci_low``... columns."""
+    flat = {}
+    for k, v in result.items():
+        if isinstance(v, dict) and "value" in v and "se" in v:
+            unit = v.get("unit") or ""
+            flat[f"{prefix}{k}"] = v["value"]
+            flat[f"{prefix}{k}_se"] = v["se"]
+            flat[f"{prefix}{k}_ci_low"] = v["ci_low"]
+            flat[f"{prefix}{k}_ci_high"] = v["ci_high"]
+            flat[f"{prefix}{k}_unit"] = unit
+        elif isinstance(v, dict) and k == "params":
+            flat.update(flatten_params(v, prefix))
+        else:
+            flat[f"{prefix}{k}"] = v
+    return flat

@@ -1,0 +1,169 @@
+"""Photometry: transmittance to absorbance, Beer–Lambert, chromophores and microplate pathlength.
+
+Definitions (IUPAC Compendium of Chemical Terminology, "absorbance" and "molar absorption
+coefficient"): decadic absorbance A = -log10(T) = log10(I0/I), and A = epsilon * b * c with
+epsilon in L mol^-1 cm^-1, b in cm and c in mol/L.
+
+Beer–Lambert holds for monochromatic light in a dilute, non-scattering sample. Real instruments
+have a finite bandwidth and some stray light, which bend the response at high absorbance; readings
+above :data:`DEFAULT_LINEAR_LIMIT` are therefore flagged and kept out of fits.
+
+>>> round(absorbance_from_percent_t(50.0), 5)
+0.30103
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import UsageError
+from .units import parse_epsilon, parse_pathlength, parse_volume
+
+#: Absorbance above which readings are flagged as past the linear range (common practice:
+#: most instruments are trusted to about 1.5-2; the instrument's own specification overrides it).
+DEFAULT_LINEAR_LIMIT = 2.0
+
+#: Water's absorbance difference A(977 nm) - A(900 nm) per cm of pathlength at room temperature
+#: (common practice, from memory), used to measure the liquid height in a microplate well.
+WATER_PEAK_PER_CM = 0.18
+
+LN10 = float(np.log(10.0))  # 2.302585...: ln x = LN10 * log10 x
+
+
+def absorbance_from_transmittance(t):
+    """A = -log10(T) for T as a fraction (0 < T <= 1). Non-positive T gives NaN."""
+    t = np.asarray(t, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(t > 0, -np.log10(np.where(t > 0, t, 1.0)), np.nan)
+
+
+def absorbance_from_percent_t(pct):
+    """A = 2 - log10(%T), i.e. -log10(%T / 100)."""
+    return absorbance_from_transmittance(np.asarray(pct, dtype=float) / 100.0)
+
+
+def absorbance_from_intensity(i, i0):
+    """A = log10(I0 / I) from a sample intensity I and a reference intensity I0."""
+    i = np.asarray(i, dtype=float)
+    return absorbance_from_transmittance(i / np.asarray(i0, dtype=float))
+
+
+def transmittance_from_absorbance(a):
+    """T = 10^-A, as a fraction."""
+    return 10.0 ** (-np.asarray(a, dtype=float))
+
+
+def concentration(absorbance, epsilon: float, pathlength_cm: float):
+    """Beer–Lambert solved for c (mol/L): c = A / (epsilon * b)."""
+    return np.asarray(absorbance, dtype=float) / (epsilon * pathlength_cm)
+
+
+def absorbance(conc_molar, epsilon: float, pathlength_cm: float):
+    """Beer–Lambert: A = epsilon * b * c."""
+    return np.asarray(conc_molar, dtype=float) * epsilon * pathlength_cm
+
+
+@dataclass(frozen=True)
+class Chromophore:
+    """A light-absorbing species with its molar absorptivity at one wavelength."""
+
+    name: str
+    wavelength_nm: float
+    epsilon: float          # L mol^-1 cm^-1
+    note: str
+    source: str
+
+
+#: Chromophores people follow in kinetic assays. Values from the literature as cited; check them
+#: against your own buffer, pH and instrument before relying on an absolute rate.
+CHROMOPHORES: dict[str, Chromophore] = {
+    c.name: c for c in (
+        Chromophore("NADH", 340, 6220, "reduced nicotinamide; the oxidised form does not absorb "
+                    "at 340 nm", "Horecker & Kornberg (1948) J. Biol. Chem. 175:385"),
+        Chromophore("NADPH", 340, 6220, "as NADH", "Horecker & Kornberg (1948) J. Biol. Chem. "
+                    "175:385"),
+        Chromophore("TNB", 412, 14150, "2-nitro-5-thiobenzoate dianion from DTNB (thiol assays), "
+                    "pH 7.3-8", "Riddles, Blakeley & Zerner (1979) Anal. Biochem. 94:75"),
+        Chromophore("p-nitrophenolate", 405, 18000, "fully ionised only in alkaline buffer "
+                    "(pH > 9); lower at neutral pH: measure it in your buffer",
+                    "common practice (18000-18500 reported)"),
+    )
+}
+_ALIASES = {"pnp": "p-nitrophenolate", "p-nitrophenol": "p-nitrophenolate",
+            "4-nitrophenolate": "p-nitrophenolate", "dtnb": "TNB", "tnb2-": "TNB"}
+
+
+def chromophore(name: str) -> Chromophore:
+    """Look up a chromophore by name (case-insensitive, common aliases allowed)."""
+    key = name.strip().lower()
+    key = _ALIASES.get(key, key)
+    for c in CHROMOPHORES.values():
+        if c.name.lower() == key.lower():
+            return c
+    raise UsageError(f"unknown chromophore {name!r}",
+                     f"use one of {', '.join(CHROMOPHORES)} or give --epsilon")
+
+
+@dataclass(frozen=True)
+class PlateGeometry:
+    """Well geometry of a flat-bottomed microplate, used to turn a volume into a liquid height."""
+
+    wells: int
+    bottom_area_cm2: float
+    source: str
+
+
+#: Typical flat-bottomed polystyrene plates (from memory: a 96-well well is about 6.4 mm across at
+#: the bottom, area 0.32 cm2; a 384-well well about 3.2 mm square, 0.10 cm2). Well walls taper,
+#: so this is an estimate: measure your plate (water peak) where the absolute rate matters.
+PLATES = {
+    96: PlateGeometry(96, 0.32, "typical 96-well flat-bottom well, 6.4 mm diameter (from memory)"),
+    384: PlateGeometry(384, 0.10, "typical 384-well flat-bottom well, 3.2 mm square (from memory)"),
+}
+
+
+def pathlength_from_volume(volume: str | float, wells: int = 96,
+                           bottom_area_cm2: float | None = None) -> float:
+    """Liquid height (cm) of ``volume`` in a flat-bottomed well: b = V / area.
+
+    ``volume`` in L or as a string ("200 uL"); the area defaults to :data:`PLATES`.
+
+    >>> round(pathlength_from_volume("200 uL", 96), 4)
+    0.625
+    """
+    v_l = parse_volume(volume) if isinstance(volume, str) else float(volume)
+    if bottom_area_cm2 is None:
+        if wells not in PLATES:
+            raise UsageError(f"no well geometry for a {wells}-well plate",
+                             "use 96 or 384, or give the well bottom area")
+        bottom_area_cm2 = PLATES[wells].bottom_area_cm2
+    if v_l <= 0 or bottom_area_cm2 <= 0:
+        raise UsageError("well volume and area must be positive", "check the volume you gave")
+    return v_l * 1000.0 / bottom_area_cm2   # L -> cm3 (mL), / cm2 -> cm
+
+
+def pathlength_from_water_peak(a977, a900, per_cm: float = WATER_PEAK_PER_CM):
+    """Pathlength (cm) from the water absorbance pair: b = (A977 - A900) / 0.18."""
+    b = (np.asarray(a977, dtype=float) - np.asarray(a900, dtype=float)) / per_cm
+    if np.any(b <= 0):
+        raise UsageError("A977 - A900 is not positive",
+                         "read the water peak on wells that hold aqueous liquid")
+    return b
+
+
+def resolve_epsilon(epsilon: str | float | None, chromophore_name: str | None) -> float | None:
+    """epsilon from ``--epsilon`` or ``--chromophore`` (exactly one may be given)."""
+    if epsilon is not None and chromophore_name is not None:
+        raise UsageError("both --epsilon and --chromophore given", "give only one of them")
+    if chromophore_name is not None:
+        return chromophore(chromophore_name).epsilon
+    if epsilon is not None:
+        return parse_epsilon(epsilon)
+    return None
+
+
+def resolve_pathlength(pathlength: str | float | None) -> float:
+    """Pathlength in cm from an option; 1 cm (a standard cuvette) when not given."""
+    return 1.0 if pathlength is None else parse_pathlength(pathlength)

@@ -1,0 +1,166 @@
+"""Generate the sample runs (invented scenario, simulated from known parameters).
+
+Scenario: the Enzymology Core of the (invented) Kestrel Bay Institute studies KbDH1, a
+NADH-dependent dehydrogenase from the (invented) marine bacterium *Kestrelia borealis*, and an
+inhibitor candidate called KB-17. Everything here is simulated; the true parameters are written
+beside each generator so that tests and the demo can check what the tool recovers.
+
+Run ``python sample_runs/generate.py``: it rewrites the files in ``sample_runs/`` and the
+identical copies shipped in ``rateabs/data/samples/``. Seed: 20261202.
+"""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import numpy as np
+
+SEED = 20261202
+HERE = Path(__file__).resolve().parent
+PACKAGE = HERE.parent / "rateabs" / "data" / "samples"
+
+# True parameters of the simulated plate (written here so a reader can check the tool)
+KBDH1 = {"Vmax_uM_per_min": 9.0, "Km_uM": 120.0, "Ki_uM": 4.0, "mode": "competitive",
+         "K_NADH_uM": 8.0}
+EPS_NADH = 6220.0
+PATH_96_200UL = 0.625   # cm, 200 uL in a typical 96-well well (0.32 cm2)
+
+
+def _simulate_nadh_well(t_s, s0_uM, i_uM, vmax, nadh0_uM=200.0, lag_s=0.0, decay_per_s=0.0):
+    """Euler-integrate substrate and NADH use for one well; returns NADH (uM) at t_s."""
+    dt = 0.5
+    grid = np.arange(0.0, t_s[-1] + dt, dt)
+    s, n = s0_uM, nadh0_uM
+    out = np.empty_like(grid)
+    for i, t in enumerate(grid):
+        out[i] = n
+        act = np.exp(-decay_per_s * t) * (1 - np.exp(-t / lag_s) if lag_s > 0 else 1.0)
+        km_app = KBDH1["Km_uM"] * (1 + i_uM / KBDH1["Ki_uM"])
+        v = vmax / 60.0 * act * s / (km_app + s) * n / (KBDH1["K_NADH_uM"] + n)
+        step = min(v * dt, s, n)
+        s -= step
+        n -= step
+    return np.interp(t_s, grid, out)
+
+
+def plate(rng) -> None:
+    """96-well kinetic read at 340 nm: substrate x inhibitor grid, controls, lysate samples."""
+    t = np.arange(0, 601, 20.0)                       # 31 reads, 20 s apart, 10 min
+    subs = [15, 30, 60, 120, 240, 480, 960, 1920]      # uM, columns 1-8
+    inhib = {"A": 0, "B": 0, "C": 2, "D": 2, "E": 5, "F": 5, "G": 10, "H": 10}
+    wells, traces, mapping = [], [], []
+    background = 0.045
+    for row in "ABCDEFGH":
+        for col in range(1, 13):
+            well = f"{row}{col}"
+            s0, i0, vmax, role, sample, dil = 0.0, 0.0, KBDH1["Vmax_uM_per_min"], "", "", 1
+            enzyme = "1 nM"
+            if col <= 8:
+                s0, i0, role, sample = subs[col - 1], inhib[row], "sample", "KbDH1"
+            elif col == 9:
+                s0, vmax, role, sample, enzyme = 1920, 0.0, "blank", "no enzyme", ""
+            elif col == 10:
+                s0, role, sample = 1920, "positive", "KbDH1 full"
+            elif col == 11:
+                s0, i0, role, sample = 1920, 500.0, "negative", "KbDH1 + 500 uM KB-17"
+            else:
+                s0, role = 1920, "sample"
+                lys = {"A": ("lysate L1", 10), "B": ("lysate L1", 10), "C": ("lysate L2", 20),
+                       "D": ("lysate L2", 20), "E": ("lysate L3", 50), "F": ("lysate L3", 50),
+                       "G": ("lysate L4", 5), "H": ("lysate L4", 5)}[row]
+                sample, dil = lys
+                vmax = {"lysate L1": 6.0, "lysate L2": 3.1, "lysate L3": 1.2,
+                        "lysate L4": 7.4}[sample]
+                enzyme = ""
+            nadh = _simulate_nadh_well(t, s0, i0, vmax)
+            a = EPS_NADH * PATH_96_200UL * nadh * 1e-6 + background
+            a = a - 1.5e-6 * t                          # slow drift of the whole plate
+            a = a + rng.normal(0, 0.0025, t.size)
+            cells = [f"{x:.4f}" for x in a]
+            if well == "H12":
+                # a well with a bubble/debris that saturates the detector
+                cells = ["OVER"] * 4 + [f"{3.2 + 0.01 * k:.4f}" for k in range(len(t) - 4)]
+            wells.append(well)
+            traces.append(cells)
+            mapping.append((well, role, sample, s0 if s0 else "", i0 if col <= 8 or col == 11 else 0,
+                            enzyme, dil, f"{sample}|S{s0:g}|I{i0:g}" if role == "sample" else role))
+    temp = 30.0 + rng.normal(0, 0.05, t.size)
+    lines = [
+        "Kestrel Bay Institute - Enzymology Core",
+        "Assay: KbDH1 substrate x KB-17 grid, NADH consumption",
+        "Operator: R. Okonkwo-Lind",
+        "Wavelength: 340 nm",
+        "Read interval: 20 s",
+        "Plate: 96 flat, 200 uL per well",
+        "",
+        "Time," + "Temp (C)," + ",".join(wells),
+    ]
+    for k, ts in enumerate(t):
+        h, rem = divmod(int(ts), 3600)
+        m, s = divmod(rem, 60)
+        lines.append(f"{h}:{m:02d}:{s:02d},{temp[k]:.1f}," + ",".join(tr[k] for tr in traces))
+    _write("plate_kbdh_340nm.csv", "\n".join(lines) + "\n")
+    maplines = ["well,role,sample,substrate_uM,inhibitor_uM,enzyme,dilution,group"]
+    for w, role, sample, s0, i0, enz, dil, grp in mapping:
+        maplines.append(f"{w},{role},{sample},{s0},{i0},{enz},{dil},{grp}")
+    _write("plate_kbdh_map.csv", "\n".join(maplines) + "\n")
+
+
+def messy(rng) -> None:
+    """A semicolon, decimal-comma cuvette export with mm:ss times and an overflow marker.
+
+    KbAP (an invented phosphatase) on p-nitrophenyl phosphate at 405 nm, six cuvettes,
+    increasing absorbance; cuvette 6 runs over the detector range near the end.
+    """
+    t = np.arange(0, 301, 15.0)
+    rates = [0.010, 0.021, 0.039, 0.060, 0.082, 0.31]   # A/min
+    lines = ["\ufeffKestrel Bay Institute; teaching annex", "Instrument mode; Absorbance",
+             "Wavelength; 405 nm", "Temperature; 25,0 °C", "", "Zeit;T [°C];K1;K2;K3;K4;K5;K6"]
+    for ts in t:
+        m, s = divmod(int(ts), 60)
+        vals = []
+        for j, r in enumerate(rates):
+            a = 0.062 + r * ts / 60 * (1 - 0.02 * ts / 60) + rng.normal(0, 0.002)
+            if j == 5 and a > 1.1:
+                vals.append(">3,5" if a > 1.3 else f"{a:.4f}".replace(".", ","))
+            else:
+                vals.append(f"{a:.4f}".replace(".", ","))
+        temp = f"{25.0 + rng.normal(0, 0.05):.2f}".replace(".", ",")
+        lines.append(f"{m:02d}:{s:02d};{temp};" + ";".join(vals))
+    _write("cuvettes_kbap_405nm_messy.csv", "\r\n".join(lines) + "\r\n")
+
+
+def transposed(rng) -> None:
+    """A tab-separated transposed export of raw intensities with a reference row (TNB, 412 nm)."""
+    t = np.arange(0, 241, 30.0)
+    i0 = 52000.0
+    lines = ["Thiol release by KbDH1 cysteine labelling (DTNB), 412 nm", "Detector: raw counts",
+             "", "Time [min]\t" + "\t".join(f"{x / 60:g}" for x in t)]
+    lines.append("I0\t" + "\t".join(f"{i0 * (1 + rng.normal(0, 0.001)):.0f}" for _ in t))
+    for name, rate in (("tube 1", 0.05), ("tube 2", 0.10), ("tube 3", 0.15)):
+        a = 0.08 + rate * t / 60
+        counts = i0 * 10 ** (-a) * (1 + rng.normal(0, 0.002, t.size))
+        lines.append(f"{name}\t" + "\t".join(f"{c:.0f}" for c in counts))
+    _write("tubes_tnb_412nm_counts.tsv", "\n".join(lines) + "\n")
+
+
+def _write(name: str, text: str) -> None:
+    for folder in (HERE, PACKAGE):
+        folder.mkdir(parents=True, exist_ok=True)
+        (folder / name).write_bytes(text.encode("utf-8"))
+
+
+def main() -> None:
+    rng = np.random.default_rng(SEED)
+    plate(rng)
+    messy(rng)
+    transposed(rng)
+    for extra in ("README.md",):
+        src = HERE / extra
+        if src.exists():
+            shutil.copy(src, PACKAGE / extra)
+
+
+if __name__ == "__main__":
+    main()

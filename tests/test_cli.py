@@ -1,0 +1,66 @@
+"""The command line end to end with click's test runner."""
+
+import json
+from pathlib import Path
+
+from click.testing import CliRunner
+
+from rateabs.cli import main
+
+SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
+
+
+def test_inspect_json_fields():
+    r = CliRunner().invoke(main, ["inspect", str(SAMPLES / "plate_kbdh_340nm.csv"),
+                                  "--format", "json"])
+    assert r.exit_code == 0, r.output
+    doc = json.loads(r.stdout)
+    assert set(doc) == {"rateabs_version", "command", "inputs", "settings", "results", "warnings"}
+    assert doc["command"] == "inspect"
+    s = doc["settings"]
+    assert (s["delimiter"], s["decimal"], s["layout"], s["time_unit"], s["signal_kind"]) == (
+        ",", ".", "wide", "clock", "absorbance")
+    assert s["metadata"]["Wavelength"] == "340 nm"
+    res = {x["trace"]: x for x in doc["results"]}
+    assert len(res) == 96
+    a1 = res["A1"]
+    assert set(a1) >= {"trace", "n_points", "t_start_s", "t_end_s", "signal", "A_first", "A_last",
+                       "flags"}
+    assert a1["n_points"] == 31 and a1["t_end_s"] == 600 and a1["signal"] == "absorbance"
+    assert "overflow" in res["H12"]["flags"] and "past-linear" in res["H12"]["flags"]
+    assert "Temp (C)" not in res
+
+
+def test_inspect_table_and_csv_and_out(tmp_path):
+    path = SAMPLES / "cuvettes_kbap_405nm_messy.csv"
+    r = CliRunner().invoke(main, ["inspect", str(path), "--out", str(tmp_path)])
+    assert r.exit_code == 0
+    assert "t start (s)" in r.stdout and "K6" in r.stdout and "semicolon" in r.stdout
+    assert (tmp_path / "inspect.json").exists() and (tmp_path / "inspect.csv").exists()
+    r = CliRunner().invoke(main, ["inspect", str(path), "--format", "csv"])
+    assert r.stdout.splitlines()[0] == "trace,n_points,t_start_s,t_end_s,A_first,A_last,flags"
+
+
+def test_linear_limit_option():
+    path = SAMPLES / "cuvettes_kbap_405nm_messy.csv"
+    r = CliRunner().invoke(main, ["inspect", str(path), "--format", "json", "--linear-limit",
+                                  "1.0"])
+    res = {x["trace"]: x for x in json.loads(r.stdout)["results"]}
+    assert "past-linear" in res["K6"]["flags"]
+    assert "past-linear" not in res["K1"]["flags"]
+
+
+def test_demo_writes_results(tmp_path):
+    r = CliRunner().invoke(main, ["demo", "--out", str(tmp_path / "d")])
+    assert r.exit_code == 0, r.output
+    assert (tmp_path / "d" / "plate_kbdh_340nm.png").stat().st_size > 10_000
+    assert "not for clinical diagnosis" in r.stdout
+
+
+def test_help_is_fast_and_lazy():
+    import subprocess
+    import sys
+    out = subprocess.run([sys.executable, "-c", "import sys, rateabs.cli; "
+                          "print(sorted(m for m in ('pandas','scipy','lmfit','matplotlib') "
+                          "if m in sys.modules))"], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"          # no heavy import at start-up

@@ -1,0 +1,117 @@
+"""Photometry and units against published definitions (see shared references)."""
+
+import math
+
+import numpy as np
+import pytest
+
+from rateabs import photometry as ph
+from rateabs import units
+from rateabs.errors import UnitError, UsageError
+
+
+# published: IUPAC Compendium of Chemical Terminology, "absorbance": A = -log10(T)
+def test_iupac_absorbance_from_transmittance():
+    assert ph.absorbance_from_transmittance(0.10) == pytest.approx(1.000, abs=1e-12)
+    assert ph.absorbance_from_percent_t(50.0) == pytest.approx(0.30103, abs=5e-6)
+    assert ph.absorbance_from_intensity(25.0, 100.0) == pytest.approx(math.log10(4))
+
+
+def test_nonpositive_transmittance_is_nan_not_a_number():
+    assert np.isnan(ph.absorbance_from_transmittance(0.0))
+    assert np.isnan(ph.absorbance_from_transmittance(-0.1))
+
+
+# mathematical identity: ln x = 2.302585 * log10 x
+def test_ln10_factor():
+    assert ph.LN10 == pytest.approx(2.302585, abs=1e-6)
+
+
+# published: IUPAC Compendium, "molar absorption coefficient": A = eps * b * c
+def test_beer_lambert_both_ways():
+    c = ph.concentration(0.622, 6220, 1.0)
+    assert c == pytest.approx(1e-4)
+    assert ph.absorbance(c, 6220, 1.0) == pytest.approx(0.622)
+    assert ph.transmittance_from_absorbance(1.0) == pytest.approx(0.1)
+
+
+# published: Horecker & Kornberg (1948) NADH 6220 at 340 nm; Riddles, Blakeley & Zerner (1979)
+# TNB 14150 at 412 nm (both from memory, as in the shared references)
+def test_chromophore_table():
+    assert ph.chromophore("NADH").epsilon == 6220
+    assert ph.chromophore("nadph").wavelength_nm == 340
+    assert ph.chromophore("TNB").epsilon == 14150
+    assert 18000 <= ph.chromophore("pnp").epsilon <= 18500   # common practice, from memory
+    for c in ph.CHROMOPHORES.values():
+        assert c.source and c.note
+    with pytest.raises(UsageError):
+        ph.chromophore("unobtainium")
+
+
+@pytest.mark.parametrize("text,expected", [
+    ("6220", 6220.0), ("6220 M^-1 cm^-1", 6220.0), ("6.22 mM^-1 cm^-1", 6220.0),
+    ("6,22 mM^-1 cm^-1", 6220.0), ("6220 L/(mol*cm)", 6220.0), ("6.22 /mM/cm", 6220.0),
+])
+def test_epsilon_units(text, expected):
+    assert units.parse_epsilon(text) == pytest.approx(expected)
+
+
+@pytest.mark.parametrize("text,expected", [("1", 1.0), ("1 cm", 1.0), ("10 mm", 1.0),
+                                           ("0.5cm", 0.5)])
+def test_pathlength_units(text, expected):
+    assert units.parse_pathlength(text) == pytest.approx(expected)
+
+
+def test_other_units():
+    assert units.parse_time("2 min") == 120.0
+    assert units.parse_time("1.5 h") == 5400.0
+    assert units.parse_time("30") == 30.0
+    assert units.parse_volume("200 uL") == pytest.approx(200e-6)
+    assert units.parse_volume("1 mL") == pytest.approx(1e-3)
+    assert units.parse_volume("50 µl") == pytest.approx(50e-6)
+    assert units.parse_concentration("50 uM") == pytest.approx(50e-6)
+    assert units.parse_concentration("1 mM") == pytest.approx(1e-3)
+    assert units.parse_concentration("2 mmol/L") == pytest.approx(2e-3)
+    assert units.parse_temperature("25 C") == pytest.approx(298.15)
+    assert units.parse_temperature("25 °C") == pytest.approx(298.15)
+    assert units.parse_temperature("310 K") == 310
+    assert units.parse_mass_concentration("0.5 mg/mL") == pytest.approx(0.5)
+    assert units.parse_mass_concentration("200 ug/mL") == pytest.approx(0.2)
+    assert units.parse_mass_concentration("1 g/L") == pytest.approx(1.0)
+
+
+@pytest.mark.parametrize("fn,text", [
+    (units.parse_epsilon, "6220 furlongs"), (units.parse_time, "3 fortnights"),
+    (units.parse_volume, "abc"), (units.parse_temperature, "-300 C"),
+    (units.parse_pathlength, "0 cm"), (units.parse_epsilon, "-5"),
+])
+def test_bad_quantities_say_what_to_write(fn, text):
+    with pytest.raises(UnitError) as e:
+        fn(text)
+    assert "e.g." in str(e.value)
+
+
+# hand geometry: 200 uL in a cylinder of 0.32 cm2 bottom area stands 0.2 cm3/0.32 cm2 = 0.625 cm
+def test_pathlength_from_volume_by_hand_geometry():
+    assert ph.pathlength_from_volume("200 uL", 96) == pytest.approx(0.2 / 0.32)
+    assert ph.pathlength_from_volume(50e-6, 384) == pytest.approx(0.05 / 0.10)
+    r = 0.35  # cm, a well 7 mm across
+    assert ph.pathlength_from_volume("100 uL", bottom_area_cm2=math.pi * r**2) == pytest.approx(
+        0.1 / (math.pi * r**2))
+    with pytest.raises(UsageError):
+        ph.pathlength_from_volume("100 uL", 1536)
+
+
+# common practice (from memory): water A977 - A900 is about 0.18 per cm
+def test_pathlength_from_water_peak():
+    assert ph.pathlength_from_water_peak(0.14, 0.05) == pytest.approx(0.5)
+    with pytest.raises(UsageError):
+        ph.pathlength_from_water_peak(0.05, 0.06)
+
+
+def test_resolve_epsilon():
+    assert ph.resolve_epsilon(None, "NADH") == 6220
+    assert ph.resolve_epsilon("14.15 mM^-1 cm^-1", None) == pytest.approx(14150)
+    assert ph.resolve_epsilon(None, None) is None
+    with pytest.raises(UsageError):
+        ph.resolve_epsilon("6220", "NADH")
