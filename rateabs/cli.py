@@ -125,6 +125,111 @@ def inspect(file, time_unit, signal, i0, sheet, linear_limit, fmt, out):
     _emit(fmt, doc, table, csv_text, out, "inspect")
 
 
+def _parse_fix(items) -> dict:
+    from .errors import UsageError
+
+    out = {}
+    for item in items:
+        name, sep, val = item.partition("=")
+        try:
+            if not sep:
+                raise ValueError
+            out[name.strip()] = float(val)
+        except ValueError:
+            raise UsageError(f"--fix {item!r} is not NAME=VALUE", "e.g. --fix Km=120") from None
+    return out
+
+
+@main.command()
+@click.argument("file", type=click.Path())
+@click.option("--conc", default=None, help="Substrate concentration column (detected if not given).")
+@click.option("--rate", default=None, help="Rate column (detected if not given).")
+@click.option("--inhibitor", default=None, help="Inhibitor concentration column.")
+@click.option("--sd", "sd_col", default=None, help="Column of rate SDs (for --weighting sd).")
+@click.option("--model", type=click.Choice(["mm", "hill", "substrate-inhibition", "competitive",
+                                            "uncompetitive", "noncompetitive", "mixed", "ic50",
+                                            "auto"]), default="auto", show_default=True)
+@click.option("--ci", type=click.Choice(["asymptotic", "profile", "bootstrap"]),
+              default="asymptotic", show_default=True, help="How intervals are computed.")
+@click.option("--level", type=float, default=0.95, show_default=True, help="Confidence level.")
+@click.option("--weighting", type=click.Choice(["none", "relative", "sd"]), default="none",
+              show_default=True)
+@click.option("--fix", multiple=True, help="Hold a parameter at a value: NAME=VALUE (repeatable).")
+@click.option("--enzyme", default=None, help="Enzyme concentration for kcat, e.g. '1 nM'.")
+@click.option("--conc-unit", default=None, help="Unit of the concentrations (else from header).")
+@click.option("--rate-unit", default=None, help="Unit of the rates, e.g. uM/min (else header).")
+@click.option("--inhibitor-unit", default=None, help="Unit of the inhibitor concentrations.")
+@click.option("--mode", type=click.Choice(["competitive", "uncompetitive", "noncompetitive"]),
+              default=None, help="Inhibition mode for the Cheng–Prusoff Ki from an IC50.")
+@click.option("--substrate", type=float, default=None,
+              help="[S] of the IC50 assay (in the Km unit), for Cheng–Prusoff.")
+@click.option("--km", type=float, default=None, help="Km for Cheng–Prusoff (same unit as --substrate).")
+@click.option("--resamples", type=int, default=2000, show_default=True, help="Bootstrap resamples.")
+@click.option("--resample", type=click.Choice(["residual", "case"]), default="residual",
+              show_default=True, help="Bootstrap scheme.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Bootstrap seed.")
+@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--out", type=click.Path(file_okay=False), default=None,
+              help="Folder for saturation.json/.csv and plots.")
+@_guarded
+def saturation(file, conc, rate, inhibitor, sd_col, model, ci, level, weighting, fix, enzyme,
+               conc_unit, rate_unit, inhibitor_unit, mode, substrate, km, resamples, resample,
+               seed, fmt, out):
+    """Michaelis-Menten family and inhibition fits of rate vs concentration in FILE."""
+    from pathlib import Path
+
+    from .io import read_table
+    from .output import document, flatten_params, render_table, rows_to_csv
+    from .saturation import analyse, results_json, table_data
+    from .units import parse_concentration
+
+    df = read_table(file)
+    if "role" in df.columns:
+        df = df[df["role"].astype(str).str.strip().str.lower().isin(["sample", ""])]
+        df.attrs["source"] = file
+    data = table_data(df, conc=conc, rate=rate, inhibitor=inhibitor, sd=sd_col,
+                      conc_unit=conc_unit, rate_unit=rate_unit, inhib_unit=inhibitor_unit,
+                      need_inhibitor=model == "ic50")
+    enzyme_m = parse_concentration(enzyme, default="nM") if enzyme else None
+    a = analyse(data, model=model, ci=ci, level=level, weighting=weighting, fix=_parse_fix(fix),
+                enzyme_M=enzyme_m, n_boot=resamples, resample=resample, seed=seed, mode=mode,
+                substrate=substrate, km=km)
+    results = results_json(a)
+    settings = {"model": model, "ci": ci, "level": level, "weighting": weighting,
+                "fixed": _parse_fix(fix), "columns": data.columns, "conc_unit": data.conc_unit,
+                "rate_unit": data.rate_unit, "inhibitor_unit": data.inhib_unit,
+                "enzyme_M": enzyme_m, "n_points": int(data.v.size)}
+    if ci == "bootstrap":
+        settings.update(resamples=resamples, resample=resample, seed=seed)
+    doc = document("saturation", [file], settings, results, a.warnings)
+    chosen = next(r for r in results if r.get("chosen"))
+    prow = [{"param": k, **v} for k, v in chosen["params"].items()]
+    table = render_table(prow, [("param", "parameter"), ("value", "value"), ("se", "SE"),
+                                ("ci_low", f"{100 * level:g}% low"),
+                                ("ci_high", f"{100 * level:g}% high"), ("unit", "unit"),
+                                ("ci_method", "interval")],
+                         title=f"chosen model: {a.chosen}   ({chosen['equation']})")
+    table += (f"n = {data.v.size} points, residual SE = {a.best.sigma:.4g} {data.rate_unit}, "
+              f"runs test p = {a.best.runs_p:.3g}\n")
+    if a.comparison is not None:
+        table += "\nevidence\n" + a.comparison.report() + "\n"
+    if a.cross_check:
+        cc = a.cross_check
+        table += (f"\ncross-check, {cc['method']}: Vmax = {cc['Vmax']:.4g} {data.rate_unit}, "
+                  f"Km = {cc['Km']:.4g} {data.conc_unit}\n")
+    flat = [flatten_params({"model": r["model"], "chosen": r["chosen"], "aicc": r.get("aicc"),
+                            "status": r.get("status"), "params": r["params"]}) for r in results]
+    cols = list(dict.fromkeys(k for f in flat for k in f))
+    if out:
+        from .plots import linearised, saturation_fit
+
+        Path(out).mkdir(parents=True, exist_ok=True)
+        saturation_fit(a, Path(out) / "saturation_fit.png", title=Path(file).stem)
+        if model != "ic50" and a.chosen != "ic50":
+            linearised(a, Path(out) / "saturation_linearised.png")
+    _emit(fmt, doc, table, rows_to_csv(flat, cols), out, "saturation")
+
+
 @main.command()
 @click.option("--out", type=click.Path(file_okay=False), default="rateabs-demo",
               show_default=True, help="Folder for the demo's results, plots and summary.")

@@ -809,11 +809,15 @@ def read_table(path: str | Path) -> pd.DataFrame:
         cells = load_cells(path)
     except InputError as exc:
         raise exc.located(path) from None
-    rows = [r for r in cells.rows]
-    lines = cells.lines
+    keep = [k for k, r in enumerate(cells.rows) if not (r and r[0].lstrip().startswith("#"))]
+    rows = [cells.rows[k] for k in keep]
+    lines = [cells.lines[k] for k in keep]
     widths = [_width(r) for r in rows]
+    if not any(widths):
+        raise InputError("the table is empty", "add a header and rows", file=path)
     mode = Counter(w for w in widths if w >= 1).most_common(1)[0][0]
-    start = next(i for i, w in enumerate(widths) if w >= mode)
+    start = next((i for i, w in enumerate(widths[:-1]) if w >= mode and widths[i + 1] >= mode),
+                 next(i for i, w in enumerate(widths) if w >= mode))
     header = [c.strip() for c in rows[start][:widths[start]]]
     body = []
     decimal = _detect_decimal(rows, cells.delimiter)

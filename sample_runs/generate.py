@@ -145,6 +145,19 @@ def transposed(rng) -> None:
     _write("tubes_tnb_412nm_counts.tsv", "\n".join(lines) + "\n")
 
 
+def inhibitor_series(rng) -> None:
+    """Initial rates of KbDH1 on a substrate x KB-17 grid, triplicates (a plain rates table)."""
+    lines = ["# KbDH1 initial rates, 30 C, 1 nM enzyme; KB-17 series (simulated)",
+             "substrate_uM,inhibitor_uM,rate_uM_per_min"]
+    for i in (0, 2, 5, 10, 20):
+        for s in (15, 30, 60, 120, 240, 480, 960, 1920):
+            km_app = KBDH1["Km_uM"] * (1 + i / KBDH1["Ki_uM"])
+            v = KBDH1["Vmax_uM_per_min"] * s / (km_app + s)
+            for _ in range(3):
+                lines.append(f"{s},{i},{v * (1 + rng.normal(0, 0.04)) + rng.normal(0, 0.05):.4f}")
+    _write("inhibition_kbdh_rates.csv", "\n".join(lines) + "\n")
+
+
 def _write(name: str, text: str) -> None:
     for folder in (HERE, PACKAGE):
         folder.mkdir(parents=True, exist_ok=True)
@@ -156,6 +169,7 @@ def main() -> None:
     plate(rng)
     messy(rng)
     transposed(rng)
+    inhibitor_series(rng)
     for extra in ("README.md",):
         src = HERE / extra
         if src.exists():

@@ -1,0 +1,240 @@
+"""Pure model functions, each with an automatic starting guess (lmfit's convention: a model is a
+function plus a guess, kept apart from the machinery that fits it).
+
+A model function takes ``(x, *params)`` and broadcasts: parameters may be scalars or arrays of
+shape ``(B, 1)`` for ``B`` datasets fitted at once. Models of two variables take ``x`` stacked
+on the first axis, ``x[0]`` the substrate and ``x[1]`` the inhibitor concentration.
+
+Units of parameters are given as kinds: ``"y"`` (the unit of the fitted values), ``"x"`` (the
+unit of the first variable), ``"i"`` (the inhibitor's unit), ``"1"`` (dimensionless), ``"1/t"``
+(per second) and so on; :func:`unit_of` turns a kind into a unit string.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Model:
+    """A model: pure function, parameter names, starting guess, bounds and parameter units."""
+
+    name: str
+    func: Callable
+    params: tuple[str, ...]
+    guess: Callable                     # guess(x, y) -> dict name -> start value
+    lower: dict = field(default_factory=dict)
+    upper: dict = field(default_factory=dict)
+    units: dict = field(default_factory=dict)   # name -> unit kind
+    equation: str = ""
+    source: str = ""
+
+    def __call__(self, x, *params):
+        return self.func(x, *params)
+
+
+def unit_of(kind: str, units: dict[str, str]) -> str:
+    """Unit string of a parameter kind given the data's units (keys ``x``, ``y``, ``i``, ``t``)."""
+    if kind in units:
+        return units[kind]
+    if kind in ("1", "x", "y", "i", "t"):
+        return ""
+    if "/" in kind:
+        num, den = kind.split("/", 1)
+        n = units.get(num, "" if num == "1" else num)
+        d = units.get(den, den)
+        return f"1/{d}" if num == "1" else f"{n}/{d}"
+    return kind
+
+
+# --------------------------------------------------------------------------- helpers
+
+
+def direct_linear_plot(s, v) -> tuple[float, float]:
+    """Vmax and Km as medians of the pairwise intersections of the direct linear plot.
+
+    Eisenthal & Cornish-Bowden (1974), Biochem. J. 139:715: each observation (s_i, v_i) is a line
+    V = v_i + (v_i / s_i) Km in the (Km, V) plane; the medians of the intersections estimate
+    Km and Vmax robustly, with no assumption about the error distribution.
+    """
+    s = np.asarray(s, dtype=float)
+    v = np.asarray(v, dtype=float)
+    ok = (s > 0) & np.isfinite(v)
+    s, v = s[ok], v[ok]
+    i, j = np.triu_indices(s.size, 1)
+    slope_i, slope_j = v[i] / s[i], v[j] / s[j]
+    den = slope_i - slope_j
+    with np.errstate(divide="ignore", invalid="ignore"):
+        km = (v[j] - v[i]) / den
+        vm = v[i] + slope_i * km
+    good = np.isfinite(km) & np.isfinite(vm) & (np.abs(den) > 1e-300) & (s[i] != s[j])
+    if not good.any():
+        return float(np.nanmax(v)) if v.size else 1.0, float(np.median(s)) if s.size else 1.0
+    return float(np.median(vm[good])), float(np.median(km[good]))
+
+
+def _positive(x, fallback):
+    return float(x) if np.isfinite(x) and x > 0 else float(fallback)
+
+
+def _mm_start(s, v):
+    vmax, km = direct_linear_plot(s, v)
+    top = float(np.nanmax(v)) if np.size(v) else 1.0
+    s_pos = s[s > 0] if np.any(s > 0) else np.array([1.0])
+    vmax = _positive(vmax, top * 1.2)
+    km = _positive(km, np.median(s_pos))
+    # keep starts in a sane range even for odd data
+    vmax = min(max(vmax, 0.5 * top), 20 * abs(top) + 1e-300)
+    km = min(max(km, s_pos.min() * 0.01), s_pos.max() * 100)
+    return vmax, km
+
+
+# --------------------------------------------------------------------------- saturation
+
+
+def mm(s, Vmax, Km):
+    """Michaelis–Menten: v = Vmax S / (Km + S)."""
+    return Vmax * s / (Km + s)
+
+
+def hill(s, Vmax, K_half, n):
+    """Hill: v = Vmax S^n / (K_half^n + S^n)."""
+    sn = np.power(np.maximum(s, 0.0), n)
+    return Vmax * sn / (np.power(K_half, n) + sn)
+
+
+def substrate_inhibition(s, Vmax, Km, Ksi):
+    """Substrate inhibition: v = Vmax S / (Km + S (1 + S / Ksi))."""
+    return Vmax * s / (Km + s * (1 + s / Ksi))
+
+
+def competitive(x, Vmax, Km, Ki):
+    """Competitive inhibition: v = Vmax S / (Km (1 + I/Ki) + S)."""
+    s, i = x[0], x[1]
+    return Vmax * s / (Km * (1 + i / Ki) + s)
+
+
+def uncompetitive(x, Vmax, Km, Ki):
+    """Uncompetitive inhibition: v = Vmax S / (Km + S (1 + I/Ki))."""
+    s, i = x[0], x[1]
+    return Vmax * s / (Km + s * (1 + i / Ki))
+
+
+def noncompetitive(x, Vmax, Km, Ki):
+    """Noncompetitive (pure) inhibition: v = Vmax S / ((Km + S)(1 + I/Ki))."""
+    s, i = x[0], x[1]
+    return Vmax * s / ((Km + s) * (1 + i / Ki))
+
+
+def mixed(x, Vmax, Km, Ki, Kiu):
+    """Mixed inhibition: v = Vmax S / (Km (1 + I/Ki) + S (1 + I/Kiu)); alpha = Kiu / Ki."""
+    s, i = x[0], x[1]
+    return Vmax * s / (Km * (1 + i / Ki) + s * (1 + i / Kiu))
+
+
+def logistic4(i, top, bottom, IC50, n):
+    """Four-parameter logistic dose response: v = bottom + (top - bottom) / (1 + (I/IC50)^n)."""
+    r = np.power(np.maximum(i, 0.0) / IC50, n)
+    return bottom + (top - bottom) / (1 + r)
+
+
+def _guess_mm(x, y):
+    vmax, km = _mm_start(np.asarray(x, float), np.asarray(y, float))
+    return {"Vmax": vmax, "Km": km}
+
+
+def _guess_hill(x, y):
+    vmax, km = _mm_start(np.asarray(x, float), np.asarray(y, float))
+    return {"Vmax": vmax, "K_half": km, "n": 1.0}
+
+
+def _guess_si(x, y):
+    s, v = np.asarray(x, float), np.asarray(y, float)
+    k = int(np.nanargmax(v))
+    low = s <= s[k]
+    vmax, km = _mm_start(s[low], v[low]) if low.sum() >= 3 else _mm_start(s, v)
+    s_opt = max(s[k], 1e-300)
+    return {"Vmax": vmax * 1.5, "Km": km, "Ksi": max(s_opt**2 / km, s_opt)}
+
+
+def _inhibitor_levels(i):
+    lv = np.unique(i[np.isfinite(i)])
+    return lv[lv > 0]
+
+
+def _guess_inhib(x, y, extra=False):
+    s, i = np.asarray(x[0], float), np.asarray(x[1], float)
+    v = np.asarray(y, float)
+    base = i == np.nanmin(i)
+    vmax, km = _mm_start(s[base], v[base]) if base.sum() >= 2 else _mm_start(s, v)
+    lv = _inhibitor_levels(i)
+    ki = float(np.median(lv)) if lv.size else 1.0
+    out = {"Vmax": vmax, "Km": km, "Ki": ki}
+    if extra:
+        out["Kiu"] = ki
+    return out
+
+
+def _guess_ic50(x, y):
+    i, v = np.asarray(x, float), np.asarray(y, float)
+    zero = i == np.nanmin(i)
+    top = float(np.nanmean(v[zero]))
+    hi = i == np.nanmax(i)
+    bottom = float(np.nanmean(v[hi]))
+    half = (top + bottom) / 2
+    pos = i > 0
+    order = np.argsort(i[pos])
+    ip, vp = i[pos][order], v[pos][order]
+    ic50 = float(np.exp(np.median(np.log(ip)))) if ip.size else 1.0
+    for k in range(len(vp) - 1):
+        if (vp[k] - half) * (vp[k + 1] - half) <= 0 and vp[k] != vp[k + 1]:
+            f = (half - vp[k]) / (vp[k + 1] - vp[k])
+            ic50 = float(np.exp(np.log(ip[k]) + f * (np.log(ip[k + 1]) - np.log(ip[k]))))
+            break
+    n = 1.0 if top >= bottom else -1.0
+    return {"top": top, "bottom": bottom, "IC50": ic50, "n": n}
+
+
+_POS = 1e-12
+SATURATION = {
+    "mm": Model("mm", mm, ("Vmax", "Km"), _guess_mm, {"Vmax": 0, "Km": _POS}, {},
+                {"Vmax": "y", "Km": "x"}, "v = Vmax S / (Km + S)", "Michaelis & Menten (1913)"),
+    "hill": Model("hill", hill, ("Vmax", "K_half", "n"), _guess_hill,
+                  {"Vmax": 0, "K_half": _POS, "n": 0.05}, {"n": 20},
+                  {"Vmax": "y", "K_half": "x", "n": "1"}, "v = Vmax S^n / (K_half^n + S^n)",
+                  "Hill (1910)"),
+    "substrate-inhibition": Model(
+        "substrate-inhibition", substrate_inhibition, ("Vmax", "Km", "Ksi"), _guess_si,
+        {"Vmax": 0, "Km": _POS, "Ksi": _POS}, {}, {"Vmax": "y", "Km": "x", "Ksi": "x"},
+        "v = Vmax S / (Km + S (1 + S/Ksi))", "Haldane (1930)"),
+    "competitive": Model("competitive", competitive, ("Vmax", "Km", "Ki"), _guess_inhib,
+                         {"Vmax": 0, "Km": _POS, "Ki": _POS}, {},
+                         {"Vmax": "y", "Km": "x", "Ki": "i"}, "v = Vmax S / (Km (1 + I/Ki) + S)"),
+    "uncompetitive": Model("uncompetitive", uncompetitive, ("Vmax", "Km", "Ki"), _guess_inhib,
+                           {"Vmax": 0, "Km": _POS, "Ki": _POS}, {},
+                           {"Vmax": "y", "Km": "x", "Ki": "i"},
+                           "v = Vmax S / (Km + S (1 + I/Ki))"),
+    "noncompetitive": Model("noncompetitive", noncompetitive, ("Vmax", "Km", "Ki"), _guess_inhib,
+                            {"Vmax": 0, "Km": _POS, "Ki": _POS}, {},
+                            {"Vmax": "y", "Km": "x", "Ki": "i"},
+                            "v = Vmax S / ((Km + S)(1 + I/Ki))"),
+    "mixed": Model("mixed", mixed, ("Vmax", "Km", "Ki", "Kiu"),
+                   lambda x, y: _guess_inhib(x, y, extra=True),
+                   {"Vmax": 0, "Km": _POS, "Ki": _POS, "Kiu": _POS}, {},
+                   {"Vmax": "y", "Km": "x", "Ki": "i", "Kiu": "i"},
+                   "v = Vmax S / (Km (1 + I/Ki) + S (1 + I/Kiu))"),
+    "ic50": Model("ic50", logistic4, ("top", "bottom", "IC50", "n"), _guess_ic50,
+                  {"IC50": _POS}, {}, {"top": "y", "bottom": "y", "IC50": "i", "n": "1"},
+                  "v = bottom + (top - bottom) / (1 + (I/IC50)^n)"),
+}
+
+#: Models of one variable (substrate) and of two (substrate, inhibitor).
+SUBSTRATE_MODELS = ("mm", "hill", "substrate-inhibition")
+INHIBITION_MODELS = ("competitive", "uncompetitive", "noncompetitive", "mixed")
+
+#: Nested pairs (simpler, more general) for extra-sum-of-squares F-tests.
+NESTED = [("mm", "hill"), ("mm", "substrate-inhibition"), ("competitive", "mixed"),
+          ("uncompetitive", "mixed"), ("noncompetitive", "mixed")]

@@ -1,0 +1,366 @@
+"""Saturation and inhibition kinetics: rate vs substrate (and inhibitor) concentration.
+
+Michaelis–Menten, Hill and substrate-inhibition fits of v vs [S]; competitive, uncompetitive,
+noncompetitive and mixed inhibition fitted globally across an inhibitor series; a
+four-parameter logistic for IC50 with the Cheng–Prusoff Ki (Cheng & Prusoff 1973, Biochem.
+Pharmacol. 22:3099). ``auto`` fits every candidate, ranks them by AICc with F-tests for nested
+pairs, and chooses one. kcat = Vmax / [E] and kcat/Km carry propagated uncertainties. The direct
+linear plot (Eisenthal & Cornish-Bowden 1974) gives a robust cross-check.
+
+Linearised plots (Lineweaver–Burk, Eadie–Hofstee, Hanes–Woolf) are drawn for inspection only and
+never used for the estimates: they distort the error structure.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from .errors import FitError, InputError, UsageError
+from .fitting import Comparison, FitResult, Param, compare, fit
+from .models import INHIBITION_MODELS, NESTED, SATURATION, SUBSTRATE_MODELS, direct_linear_plot
+from .units import TIME_UNITS, concentration_factor
+
+MODEL_CHOICES = ("mm", "hill", "substrate-inhibition", "competitive", "uncompetitive",
+                 "noncompetitive", "mixed", "ic50", "auto")
+
+_CONC = re.compile(r"^(s|\[s\]|s0|substrate|conc|concentration|x)([\s_(\[]|$)", re.I)
+_RATE = re.compile(r"^(v|v0|vi|rate|velocity|activity|initial[\s_]rate|y)([\s_(\[]|$)", re.I)
+_INHIB = re.compile(r"^(i|\[i\]|inhibitor|inhib|dose|compound)([\s_(\[]|$)", re.I)
+_SD = re.compile(r"^(sd|std|stdev|error|se|sigma)([\s_(\[]|$)|_sd$|_se$", re.I)
+
+
+def unit_from_header(header: str) -> str:
+    """Unit named in a column header: ``"[S] (mM)"`` -> ``mM``; ``rate_uM_per_min`` -> ``uM/min``."""
+    h = header.strip()
+    m = re.search(r"[(\[]\s*([^)\]]+?)\s*[)\]]\s*$", h)
+    if m:
+        return m.group(1).replace(" per ", "/")
+    m = re.search(r"_((?:[munpµk]?M|A|AU|ppm|nmol|umol)(?:_per_(?:s|min|h))?)$", h)
+    if m:
+        return m.group(1).replace("_per_", "/")
+    return ""
+
+
+@dataclass(frozen=True)
+class SaturationData:
+    """Rates vs concentrations, with their units and the columns they came from."""
+
+    s: np.ndarray
+    v: np.ndarray
+    i: np.ndarray | None
+    sd: np.ndarray | None
+    conc_unit: str
+    rate_unit: str
+    inhib_unit: str
+    columns: dict
+
+
+def _number_column(df: pd.DataFrame, col: str, path: str) -> np.ndarray:
+    out = np.empty(len(df))
+    lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
+    for k, cell in enumerate(df[col].tolist()):
+        c = str(cell).strip()
+        if c == "" or c.lower() in ("nan", "na", "-"):
+            out[k] = np.nan
+            continue
+        try:
+            out[k] = float(c)
+        except ValueError:
+            raise InputError(f"{c!r} is not a number", "fix the cell or remove the row",
+                             file=path, row=lines[k], column=col) from None
+    return out
+
+
+def _pick(df, given, pattern, what, path, required=True):
+    if given is not None:
+        if given not in df.columns:
+            raise UsageError(f"no column {given!r} in {path}",
+                             f"use one of {', '.join(map(str, df.columns))}")
+        return given
+    for c in df.columns:
+        if pattern.search(str(c)):
+            return c
+    if required:
+        raise InputError(f"no {what} column found", f"name it with --{what} COLUMN", file=path)
+    return None
+
+
+def table_data(df: pd.DataFrame, *, conc=None, rate=None, inhibitor=None, sd=None,
+               conc_unit=None, rate_unit=None, inhib_unit=None, need_inhibitor=False) -> SaturationData:
+    """Select and check the concentration, rate, inhibitor and SD columns of a table."""
+    path = df.attrs.get("source", "table")
+    rate_c = _pick(df, rate, _RATE, "rate", path)
+    inhib_c = _pick(df, inhibitor, _INHIB, "inhibitor", path, required=need_inhibitor)
+    conc_c = _pick(df, conc, _CONC, "conc", path, required=not need_inhibitor)
+    sd_c = _pick(df, sd, _SD, "sd", path) if sd is not None else None
+    v = _number_column(df, rate_c, path)
+    s = _number_column(df, conc_c, path) if conc_c is not None else None
+    i = _number_column(df, inhib_c, path) if inhib_c is not None else None
+    e = _number_column(df, sd_c, path) if sd_c is not None else None
+    keep = np.isfinite(v)
+    if s is not None:
+        keep &= np.isfinite(s)
+    if i is not None:
+        keep &= np.isfinite(i)
+    lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
+    for arr, col in ((s, conc_c), (i, inhib_c)):
+        if arr is not None and np.any(arr[keep] < 0):
+            k = int(np.argmax((arr < 0) & keep))
+            raise InputError(f"negative concentration {arr[k]:g}", "concentrations cannot be "
+                             "negative; fix the cell", file=path, row=lines[k], column=col)
+    if keep.sum() == 0:
+        raise InputError("no rows with both a concentration and a rate", "fill the table",
+                         file=path)
+    pick = (lambda a: None if a is None else a[keep])
+    return SaturationData(
+        s=pick(s) if s is not None else None, v=v[keep], i=pick(i), sd=pick(e),
+        conc_unit=conc_unit or (unit_from_header(conc_c) if conc_c else ""),
+        rate_unit=rate_unit or unit_from_header(rate_c),
+        inhib_unit=inhib_unit or (unit_from_header(inhib_c) if inhib_c else ""),
+        columns={"conc": conc_c, "rate": rate_c, "inhibitor": inhib_c, "sd": sd_c})
+
+
+@dataclass(frozen=True)
+class SaturationAnalysis:
+    """All fitted candidates, the comparison that chose one, derived constants and warnings."""
+
+    fits: dict
+    comparison: Comparison | None
+    chosen: str
+    derived: dict
+    cross_check: dict
+    warnings: list = field(default_factory=list)
+    data: SaturationData | None = None
+
+    @property
+    def best(self) -> FitResult:
+        """The chosen fit."""
+        return self.fits[self.chosen]
+
+    def report(self) -> str:
+        """Chosen fit, derived constants and the evidence, as text."""
+        parts = [self.best.report()]
+        for p in self.derived.get(self.chosen, {}).values():
+            parts.append(f"  {p}")
+        if self.comparison is not None:
+            parts.append(self.comparison.report())
+        return "\n".join(parts)
+
+
+def _rate_per_second_factor(rate_unit: str) -> tuple[float, float] | None:
+    """(concentration factor to mol/L, seconds per time unit) of a rate unit like ``uM/min``."""
+    m = re.fullmatch(r"\s*([^/]+?)\s*/\s*([a-z]+)\s*", rate_unit or "")
+    if not m:
+        return None
+    try:
+        cf = concentration_factor(m.group(1))
+    except UsageError:
+        return None
+    t = TIME_UNITS.get(m.group(2))
+    return (cf, t) if t else None
+
+
+def _kcat(result: FitResult, enzyme_M: float, rate_unit: str, conc_unit: str, level: float):
+    """kcat = Vmax/[E] (1/s) and kcat/Km (M^-1 s^-1) with propagated uncertainty."""
+    f = _rate_per_second_factor(rate_unit)
+    if f is None or "Vmax" not in result.params:
+        return {}, ("kcat needs the rate in a molar unit per time (e.g. uM/min); rate unit is "
+                    f"{rate_unit or 'unknown'}: give --rate-unit")
+    cf, tsec = f
+    vm = result.params["Vmax"]
+    scale = cf / tsec / enzyme_M        # (rate unit) -> 1/s
+    kcat = Param("kcat", vm.value * scale, vm.se * scale, vm.ci_low * scale, vm.ci_high * scale,
+                 vm.ci_method, "1/s")
+    out = {"kcat": kcat}
+    km_name = "Km" if "Km" in result.params else None
+    if km_name and conc_unit:
+        try:
+            kf = concentration_factor(conc_unit)
+        except UsageError:
+            kf = None
+        if kf:
+            km = result.params[km_name]
+            val = kcat.value / (km.value * kf)
+            rel2 = (vm.se / vm.value) ** 2 + (km.se / km.value) ** 2
+            if result.cov is not None and vm.name in result.free and km_name in result.free:
+                iv, ik = result.free.index("Vmax"), result.free.index(km_name)
+                rel2 -= 2 * result.cov[iv, ik] / (vm.value * km.value)
+            se = abs(val) * math.sqrt(max(rel2, 0.0))
+            tq = stats.t.ppf(0.5 + level / 2, max(result.dof, 1))
+            out["kcat/Km"] = Param("kcat/Km", val, se, val - tq * se, val + tq * se,
+                                   "delta-method", "M^-1 s^-1")
+    return out, None
+
+
+def cheng_prusoff(ic50: Param, mode: str, s: float, km: float) -> Param:
+    """Ki from IC50 (Cheng & Prusoff 1973): competitive Ki = IC50 / (1 + [S]/Km);
+    uncompetitive Ki = IC50 / (1 + Km/[S]); noncompetitive Ki = IC50.
+
+    The IC50's interval is scaled by the same factor ([S] and Km are taken as exact).
+
+    >>> p = Param("IC50", 10.0, 1.0, 8.0, 12.0, "asymptotic", "uM")
+    >>> cheng_prusoff(p, "competitive", 100.0, 100.0).value
+    5.0
+    """
+    if s <= 0 or km <= 0:
+        raise UsageError("Cheng–Prusoff needs positive [S] and Km", "give --substrate and --km")
+    factor = {"competitive": 1 / (1 + s / km), "uncompetitive": 1 / (1 + km / s),
+              "noncompetitive": 1.0}.get(mode)
+    if factor is None:
+        raise UsageError(f"Cheng–Prusoff is defined here for competitive, uncompetitive and "
+                         f"noncompetitive modes, not {mode!r}", "give --mode")
+    return Param("Ki", ic50.value * factor, ic50.se * factor, ic50.ci_low * factor,
+                 ic50.ci_high * factor, ic50.ci_method, ic50.unit)
+
+
+def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic",
+            level: float = 0.95, weighting: str = "none", fix: dict | None = None,
+            enzyme_M: float | None = None, n_boot: int = 2000, resample: str = "residual",
+            seed: int = 0, mode: str | None = None, substrate: float | None = None,
+            km: float | None = None) -> SaturationAnalysis:
+    """Fit the requested model (or every candidate for ``auto``) and derive constants."""
+    if model not in MODEL_CHOICES:
+        raise UsageError(f"unknown model {model!r}", f"use one of {', '.join(MODEL_CHOICES)}")
+    warn: list[str] = []
+    units = {"x": data.conc_unit, "y": data.rate_unit, "i": data.inhib_unit}
+    has_i = data.i is not None
+    levels = np.unique(data.i) if has_i else np.array([])
+    if model == "ic50":
+        if not has_i:
+            raise UsageError("the ic50 model needs the inhibitor concentrations",
+                             "name the column with --inhibitor")
+        candidates = ["ic50"]
+        x = data.i
+        units["x"] = data.inhib_unit
+    elif model == "auto":
+        candidates = list(INHIBITION_MODELS if has_i and levels.size >= 2 else SUBSTRATE_MODELS)
+    else:
+        candidates = [model]
+    if any(c in INHIBITION_MODELS for c in candidates):
+        if not has_i:
+            raise UsageError(f"the {candidates[0]} model needs an inhibitor column",
+                             "name it with --inhibitor")
+        if levels.size < 2:
+            raise FitError("a global inhibition fit needs at least two inhibitor levels "
+                           f"(found only {levels.size})", "add rates without and with inhibitor")
+        x = np.vstack([data.s, data.i])
+    elif model != "ic50":
+        x = data.s
+        if has_i and levels.size > 1:
+            warn.append("the table has several inhibitor levels but a one-substrate model was "
+                        "asked for; all rows are fitted together")
+    if np.all(data.v == 0):
+        raise FitError("every rate is zero", "check the rate column and the blank subtraction")
+
+    fits: dict[str, FitResult] = {}
+    failed: dict[str, str] = {}
+    for name in candidates:
+        mdl = SATURATION[name]
+        try:
+            fits[name] = fit(mdl, x, data.v, weighting=weighting, sd=data.sd,
+                             fix={k: v for k, v in (fix or {}).items() if k in mdl.params},
+                             ci=ci, level=level, n_boot=n_boot, resample=resample, seed=seed,
+                             units=units)
+        except FitError as exc:
+            failed[name] = exc.problem
+            continue
+        if name == "substrate-inhibition" and fits[name].success:
+            p = fits[name].params
+            s_opt = math.sqrt(p["Km"].value * p["Ksi"].value)
+            if s_opt > float(np.max(data.s)):
+                fits[name] = replace(fits[name], success=False, message=(
+                    f"not supported: the fitted optimum [S] = {s_opt:.3g} lies above the highest "
+                    "concentration, so no decline of the rate is observed"))
+    if not fits:
+        raise FitError("no model could be fitted", "; ".join(f"{k}: {v}" for k, v in failed.items()))
+    unknown_fix = set(fix or {}) - {p for c in candidates for p in SATURATION[c].params}
+    if unknown_fix:
+        raise UsageError(f"--fix names {sorted(unknown_fix)[0]!r}, which no candidate model has",
+                         "check the parameter name (Vmax, Km, K_half, n, Ksi, Ki, Kiu, IC50...)")
+    if len(candidates) > 1:
+        comp = compare(fits, NESTED, failed)
+        chosen = comp.chosen
+    else:
+        comp = None
+        chosen = candidates[0]
+        if not fits[chosen].success:
+            warn.append(f"{chosen}: {fits[chosen].message}")
+
+    derived = {}
+    for name, r in fits.items():
+        d = {}
+        if enzyme_M is not None and name != "ic50":
+            kc, why = _kcat(r, enzyme_M, data.rate_unit, data.conc_unit, level)
+            d.update(kc)
+            if why and name == chosen:
+                warn.append(why)
+        if name == "mixed":
+            a = r.params["Kiu"].value / r.params["Ki"].value
+            rel = math.hypot(r.params["Kiu"].se / r.params["Kiu"].value,
+                             r.params["Ki"].se / r.params["Ki"].value)
+            zq = stats.norm.ppf(0.5 + level / 2)
+            spread = math.exp(min(zq * rel, 700.0)) if np.isfinite(rel) else float("nan")
+            d["alpha"] = Param("alpha", a, a * rel, a / spread, a * spread,
+                               "delta-method (log scale)", "")
+        if name == "ic50" and mode and substrate is not None and km is not None:
+            d["Ki"] = cheng_prusoff(r.params["IC50"], mode, substrate, km)
+        derived[name] = d
+
+    cross = {}
+    if model != "ic50":
+        base = data.i == np.min(data.i) if has_i else np.ones(data.s.size, bool)
+        if np.unique(data.s[base]).size >= 2:
+            vm, kmd = direct_linear_plot(data.s[base], data.v[base])
+            cross = {"method": "direct linear plot medians (Eisenthal & Cornish-Bowden 1974)",
+                     "Vmax": vm, "Km": kmd, "subset": "lowest inhibitor level" if has_i else "all"}
+        best = fits[chosen]
+        kname = "Km" if "Km" in best.params else ("K_half" if "K_half" in best.params else None)
+        if kname:
+            kval = best.params[kname].value
+            smax, smin = float(np.max(data.s)), float(np.min(data.s[data.s > 0]) if np.any(
+                data.s > 0) else 0)
+            if smax < 2.5 * kval:
+                warn.append(f"the highest substrate concentration is only {smax / kval:.2g} x "
+                            f"{kname}: Vmax is poorly determined; extend the series to 3 {kname} "
+                            "or more")
+            if smin > kval:
+                warn.append(f"the lowest substrate concentration is above {kname} "
+                            f"({smin:g} > {kval:.3g}): {kname} is poorly determined; add lower "
+                            "concentrations")
+        if np.isfinite(best.runs_p) and best.runs_p < 0.05:
+            warn.append(f"{chosen}: residuals are not random (runs test p = {best.runs_p:.2g}); "
+                        "the model may not describe these data")
+    return SaturationAnalysis(fits, comp, chosen, derived, cross, warn, data)
+
+
+def results_json(a: SaturationAnalysis) -> list[dict]:
+    """One JSON result per fitted model (fields of design.md §5)."""
+    out = []
+    rows = {r["model"]: r for r in (a.comparison.rows if a.comparison else [])}
+    for name, r in a.fits.items():
+        d = r.to_dict()
+        d["params"].update({k: p.to_dict() for k, p in a.derived.get(name, {}).items()})
+        d["chosen"] = name == a.chosen
+        d["status"] = "ok" if r.success else r.message
+        d["equation"] = SATURATION[name].equation
+        if name in rows:
+            d["delta_aicc"] = rows[name]["delta_aicc"]
+            d["akaike_weight"] = rows[name]["weight"]
+        if name == a.chosen:
+            if a.comparison is not None:
+                d["evidence"] = a.comparison.to_dict()
+            if a.cross_check:
+                d["cross_check"] = a.cross_check
+        out.append(d)
+    if a.comparison:
+        for name, why in a.comparison.failed.items():
+            if name not in a.fits:
+                out.append({"model": name, "params": {}, "aic": None, "aicc": None,
+                            "chosen": False, "status": f"not estimable: {why}"})
+    return out

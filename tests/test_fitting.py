@@ -1,0 +1,169 @@
+"""The shared fitting engine: published fits, agreement between solvers, intervals."""
+
+import math
+
+import numpy as np
+import pytest
+from scipy import optimize, stats
+
+from rateabs.errors import FitError, UsageError
+from rateabs.fitting import batch_lm, compare, fit, information_criteria, runs_test
+from rateabs.models import NESTED, SATURATION
+
+# published: Treloar (1974), Puromycin treated cells, as fitted in Bates & Watts (1988)
+PURO_S = np.array([0.02, 0.02, 0.06, 0.06, 0.11, 0.11, 0.22, 0.22, 0.56, 0.56, 1.10, 1.10])
+PURO_V = np.array([76, 47, 97, 107, 123, 139, 159, 152, 191, 201, 207, 200.0])
+
+
+def test_puromycin_bates_watts():
+    r = fit(SATURATION["mm"], PURO_S, PURO_V)
+    assert r.params["Vmax"].value == pytest.approx(212.68, abs=0.005)
+    assert r.params["Vmax"].se == pytest.approx(6.947, abs=0.0005)
+    assert r.params["Km"].value == pytest.approx(0.06412, abs=0.000005)
+    assert r.params["Km"].se == pytest.approx(0.008281, abs=0.0000005)
+    assert r.sigma == pytest.approx(10.93, abs=0.005) and r.dof == 10
+
+
+def _independent_profile(name, level=0.95):
+    """Profile interval of one MM parameter by brute force with scipy (reference library)."""
+    f = SATURATION["mm"].func
+    full = optimize.least_squares(lambda p: PURO_V - f(PURO_S, *p), [200, 0.1], xtol=1e-14,
+                                  ftol=1e-14)
+    s0 = float(np.sum(full.fun ** 2))
+    dof = PURO_S.size - 2
+    target = s0 * (1 + stats.t.ppf(0.5 + level / 2, dof) ** 2 / dof)
+    j = 0 if name == "Vmax" else 1
+
+    def excess(val):
+        def res(q):
+            p = [val, q[0]] if j == 0 else [q[0], val]
+            return PURO_V - f(PURO_S, *p)
+        r = optimize.least_squares(res, [full.x[1 - j]], xtol=1e-14, ftol=1e-14)
+        return float(np.sum(r.fun ** 2)) - target
+
+    best = full.x[j]
+    lo = optimize.brentq(excess, best * 0.5, best)
+    hi = optimize.brentq(excess, best, best * 2)
+    return lo, hi
+
+
+def test_profile_intervals_equal_independent_profile():
+    r = fit(SATURATION["mm"], PURO_S, PURO_V, ci="profile")
+    for name in ("Vmax", "Km"):
+        lo, hi = _independent_profile(name)
+        p = r.params[name]
+        assert p.ci_method == "profile"
+        assert p.ci_low == pytest.approx(lo, rel=2e-3)
+        assert p.ci_high == pytest.approx(hi, rel=2e-3)
+        # profile intervals of Km are asymmetric, unlike the asymptotic ones
+    km = r.params["Km"]
+    assert (km.ci_high - km.value) > (km.value - km.ci_low)
+
+
+@pytest.mark.parametrize("name", ["mm", "hill", "substrate-inhibition", "competitive",
+                                  "uncompetitive", "noncompetitive", "mixed", "ic50"])
+def test_batched_solver_agrees_with_lmfit(name):
+    rng = np.random.default_rng(7)
+    model = SATURATION[name]
+    x, truth = _design(name)
+    y = model.func(x, *truth.values())
+    y = y * (1 + rng.normal(0, 0.03, y.shape))
+    r = fit(model, x, y)
+    start = np.array([[v * 1.3 for v in model.guess(x, y).values()]])
+    b = batch_lm(model.func, x, y[None], np.ones((1, y.size)), start,
+                 lower=[model.lower.get(p, -np.inf) for p in model.params],
+                 upper=[model.upper.get(p, np.inf) for p in model.params])
+    assert b.converged[0]
+    np.testing.assert_allclose(b.params[0], list(r.values().values()), rtol=1e-6)
+
+
+def _design(name):
+    s = np.array([5, 10, 20, 40, 80, 160, 320, 640.0])
+    if name in ("mm",):
+        return s, {"Vmax": 10.0, "Km": 50.0}
+    if name == "hill":
+        return s, {"Vmax": 10.0, "K_half": 60.0, "n": 2.0}
+    if name == "substrate-inhibition":
+        s = np.array([5, 10, 20, 40, 80, 160, 320, 640, 1280, 2560.0])
+        return s, {"Vmax": 10.0, "Km": 50.0, "Ksi": 600.0}
+    if name == "ic50":
+        i = np.array([0, 0.1, 0.3, 1, 3, 10, 30, 100, 300.0])
+        return i, {"top": 100.0, "bottom": 5.0, "IC50": 4.0, "n": 1.2}
+    ss, ii = np.meshgrid(s, [0, 2, 5, 10.0])
+    x = np.vstack([ss.ravel(), ii.ravel()])
+    if name == "mixed":
+        return x, {"Vmax": 10.0, "Km": 50.0, "Ki": 3.0, "Kiu": 9.0}
+    return x, {"Vmax": 10.0, "Km": 50.0, "Ki": 4.0}
+
+
+@pytest.mark.parametrize("name", ["mm", "hill", "substrate-inhibition", "competitive",
+                                  "uncompetitive", "noncompetitive", "mixed", "ic50"])
+def test_parameters_recovered_from_seeded_simulation(name):
+    model = SATURATION[name]
+    x, truth = _design(name)
+    hits = 0
+    for seed in range(6):
+        rng = np.random.default_rng(100 + seed)
+        y = model.func(x, *truth.values())
+        y = y + rng.normal(0, 0.02 * np.max(np.abs(y)), y.shape)
+        r = fit(model, x, y)
+        assert r.success, r.report()
+        hits += all(r.params[k].ci_low <= v <= r.params[k].ci_high for k, v in truth.items())
+        for k, v in truth.items():
+            assert abs(r.params[k].value - v) < 4 * r.params[k].se, (k, seed)
+    assert hits >= 4          # joint coverage of 95 % intervals over 6 seeds
+
+
+def test_bootstrap_seeded_and_close_to_asymptotic():
+    a = fit(SATURATION["mm"], PURO_S, PURO_V, ci="bootstrap", n_boot=500, seed=3)
+    b = fit(SATURATION["mm"], PURO_S, PURO_V, ci="bootstrap", n_boot=500, seed=3)
+    assert a.params["Km"].ci_low == b.params["Km"].ci_low
+    assert a.params["Km"].ci_method == "bootstrap-residual" and a.n_boot_ok >= 490
+    assert a.params["Km"].se == pytest.approx(0.00828, rel=0.25)
+    c = fit(SATURATION["mm"], PURO_S, PURO_V, ci="bootstrap", n_boot=500, resample="case")
+    assert c.params["Vmax"].ci_method == "bootstrap-case"
+    assert c.params["Vmax"].ci_low < 212.68 < c.params["Vmax"].ci_high
+
+
+def test_fixed_parameter_and_bounds():
+    r = fit(SATURATION["mm"], PURO_S, PURO_V, fix={"Km": 0.07})
+    assert r.params["Km"].fixed and r.params["Km"].value == 0.07 and r.n_free == 1
+    assert r.params["Km"].to_dict()["ci_method"] == "fixed"
+    with pytest.raises(UsageError):
+        fit(SATURATION["mm"], PURO_S, PURO_V, fix={"Kx": 1})
+
+
+def test_too_few_points_is_not_estimable():
+    with pytest.raises(FitError, match="not estimable"):
+        fit(SATURATION["hill"], PURO_S[:3], PURO_V[:3])
+
+
+def test_weights():
+    r = fit(SATURATION["mm"], PURO_S, PURO_V, weighting="relative")
+    assert r.weighting == "relative" and r.success
+    sd = np.full(PURO_S.size, 10.93)
+    r2 = fit(SATURATION["mm"], PURO_S, PURO_V, weighting="sd", sd=sd)
+    # with the SDs equal to the residual SE the unscaled covariance gives the same SEs
+    assert r2.params["Km"].se == pytest.approx(0.008281, rel=1e-3)
+
+
+def test_runs_test_hand_worked():
+    # 10 alternating signs: R = 10, mu = 6, var = 2*25*40/(100*9) = 2.222, z = 1.897
+    p = runs_test([1, -1] * 5)
+    assert p == pytest.approx(2 * stats.norm.sf(4 / math.sqrt(2 * 25 * 40 / 900)), rel=1e-9)
+
+
+def test_aicc_definition():
+    aic, aicc, bic = information_criteria(100.0, 12, 3)
+    assert aic == pytest.approx(12 * math.log(100 / 12) + 6)
+    assert aicc == pytest.approx(aic + 2 * 3 * 4 / 8)
+    assert bic == pytest.approx(12 * math.log(100 / 12) + 3 * math.log(12))
+
+
+def test_compare_chooses_exactly_one_and_shows_f_tests():
+    fits = {m: fit(SATURATION[m], PURO_S, PURO_V) for m in ("mm", "hill")}
+    comp = compare(fits, NESTED)
+    assert comp.chosen in fits
+    assert len(comp.ftests) == 1 and comp.ftests[0]["simpler"] == "mm"
+    assert sum(r["model"] == comp.chosen for r in comp.rows) == 1
+    assert "AICc" in comp.report()
