@@ -117,9 +117,11 @@ def table_data(df: pd.DataFrame, *, conc=None, rate=None, inhibitor=None, sd=Non
     if keep.sum() == 0:
         raise InputError("no rows with both a concentration and a rate", "fill the table",
                          file=path)
-    pick = (lambda a: None if a is None else a[keep])
+    def pick(a):
+        return None if a is None else a[keep]
+
     return SaturationData(
-        s=pick(s) if s is not None else None, v=v[keep], i=pick(i), sd=pick(e),
+        s=pick(s), v=v[keep], i=pick(i), sd=pick(e),
         conc_unit=conc_unit or (unit_from_header(conc_c) if conc_c else ""),
         rate_unit=rate_unit or unit_from_header(rate_c),
         inhib_unit=inhib_unit or (unit_from_header(inhib_c) if inhib_c else ""),

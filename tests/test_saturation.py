@@ -100,7 +100,7 @@ def test_ic50_with_cheng_prusoff_via_cli(tmp_path):
     i = np.repeat([0, 0.3, 1, 3, 10, 30, 100, 300.0], 2)
     v = SATURATION["ic50"].func(i, 100, 4, 8.0, 1.0) + rng.normal(0, 1.5, i.size)
     f = tmp_path / "dose.csv"
-    f.write_text("inhibitor_uM,rate_uM_per_min\n" + "".join(f"{a},{b}\n" for a, b in zip(i, v)))
+    f.write_text("inhibitor_uM,rate_uM_per_min\n" + "".join(f"{a},{b}\n" for a, b in zip(i, v, strict=True)))
     r = CliRunner().invoke(main, ["saturation", str(f), "--model", "ic50", "--inhibitor",
                                   "inhibitor_uM", "--mode", "competitive", "--substrate", "100",
                                   "--km", "100", "--format", "json"])
