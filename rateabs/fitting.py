@@ -168,12 +168,14 @@ def make_weights(y, weighting: str = "none", sd=None) -> np.ndarray:
 
 @dataclass(frozen=True)
 class BatchResult:
-    """Outcome of :func:`batch_lm`: parameters (B, p), weighted RSS (B,), converged (B,)."""
+    """Outcome of :func:`batch_lm`: parameters (B, p), weighted RSS (B,), converged (B,), and
+    with ``want_cov`` the covariance of the free parameters (B, k, k), scaled by RSS/dof."""
 
     params: np.ndarray
     rss: np.ndarray
     converged: np.ndarray
     n_iter: int
+    cov: np.ndarray | None = None
 
 
 def _eval(func, x, P):
@@ -181,7 +183,7 @@ def _eval(func, x, P):
 
 
 def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
-             xtol=1e-10, ftol=1e-13) -> BatchResult:
+             xtol=1e-10, ftol=1e-13, want_cov=False) -> BatchResult:
     """Fit ``B`` datasets at once by Levenberg–Marquardt on arrays.
 
     ``func(x, *params)`` broadcasts with parameters of shape (B, 1); ``y`` and ``w`` are (B, n);
@@ -212,6 +214,19 @@ def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
             f = _eval(func, xx, PP)
         return (y[rows] - f) * w[rows]
 
+    def jacobian(rows):
+        Pj = P[rows]
+        Jr = np.empty((rows.size, n, k))
+        for c, j in enumerate(free):
+            h = 6e-6 * np.maximum(np.abs(Pj[:, j]), 1e-6 * scale[rows, j]) + 1e-10
+            up = np.minimum(Pj[:, j] + h, hi[j])
+            dn = np.maximum(Pj[:, j] - h, lo[j])
+            Pu, Pd = Pj.copy(), Pj.copy()
+            Pu[:, j], Pd[:, j] = up, dn
+            # residual = (y - f) w, so d(f w)/dp = -d(residual)/dp
+            Jr[:, :, c] = -(resid(Pu, rows) - resid(Pd, rows)) / (up - dn)[:, None]
+        return Jr
+
     rows_all = np.arange(B)
     r = resid(P, rows_all)
     S = np.sum(r * r, axis=1)
@@ -228,17 +243,7 @@ def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
             break
         jr = rows[need_j[rows]]
         if jr.size:
-            Pj = P[jr]
-            for c, j in enumerate(free):
-                h = 6e-6 * np.maximum(np.abs(Pj[:, j]), 1e-6 * scale[jr, j])
-                up = np.minimum(Pj[:, j] + h, hi[j])
-                dn = np.maximum(Pj[:, j] - h, lo[j])
-                Pu, Pd = Pj.copy(), Pj.copy()
-                Pu[:, j], Pd[:, j] = up, dn
-                fu = resid(Pu, jr)
-                fd = resid(Pd, jr)
-                # residual = (y - f) w, so d f w / dp = -(d resid / dp)
-                J[jr, :, c] = -(fu - fd) / (up - dn)[:, None]
+            J[jr] = jacobian(jr)
             need_j[jr] = False
         Jr = J[rows]
         rr = r[rows]
@@ -275,7 +280,14 @@ def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
         stuck = rej[lam[rej] > 1e12]           # no downhill step left: at a minimum
         converged[stuck] = True
         active[stuck] = False
-    return BatchResult(P, S, converged & np.isfinite(S), it)
+    cov = None
+    if want_cov:
+        Jf = jacobian(rows_all)
+        A = np.einsum("bni,bnj->bij", Jf, Jf)
+        n_eff = np.sum(w > 0, axis=1)
+        dof = np.maximum(n_eff - k, 1)
+        cov = np.linalg.pinv(A) * (S / dof)[:, None, None]
+    return BatchResult(P, S, converged & np.isfinite(S), it, cov)
 
 
 def _take_rows(x, rows, B):
