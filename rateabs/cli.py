@@ -125,6 +125,81 @@ def inspect(file, time_unit, signal, i0, sheet, linear_limit, fmt, out):
     _emit(fmt, doc, table, csv_text, out, "inspect")
 
 
+def _parse_window(text: str):
+    from .errors import UsageError
+    from .units import parse_time
+
+    if text == "auto":
+        return "auto"
+    a, sep, b = text.partition("-") if "-" in text.strip("-") else text.partition(":")
+    try:
+        if not sep:
+            raise ValueError
+        return (parse_time(a), parse_time(b))
+    except Exception:
+        raise UsageError(f"--window {text!r} is neither 'auto' nor START-END",
+                         "e.g. --window 30-300 (seconds) or --window '0.5 min-5 min'") from None
+
+
+@main.command()
+@click.argument("file", type=click.Path())
+@_reader_options
+@click.option("--layout", "layout_file", type=click.Path(), default=None,
+              help="Plate map CSV (roles, concentrations, dilutions, groups).")
+@click.option("--epsilon", default=None, help="Molar absorptivity, e.g. '6220 M^-1 cm^-1'.")
+@click.option("--epsilon-se", default=None, help="Standard error of epsilon (same unit).")
+@click.option("--chromophore", default=None, help="Take epsilon from the table: NADH, NADPH, TNB, "
+              "p-nitrophenolate.")
+@click.option("--pathlength", default=None, help="Optical pathlength, e.g. '1 cm' (default 1 cm).")
+@click.option("--well-volume", default=None, help="Liquid volume per well, e.g. '200 uL': "
+              "pathlength from the plate's well geometry.")
+@click.option("--plate", type=click.Choice(["96", "384"]), default="96", show_default=True,
+              help="Plate format for --well-volume.")
+@click.option("--total-volume", default=None, help="Reaction volume, e.g. '200 uL'.")
+@click.option("--sample-volume", default=None, help="Volume of enzyme sample added, e.g. '20 uL'.")
+@click.option("--protein", default=None, help="Protein concentration of the sample, e.g. "
+              "'0.8 mg/mL' (for U/mg; the plate map may give it per well).")
+@click.option("--dilution", type=float, default=1.0, show_default=True,
+              help="Dilution factor of the sample (the plate map may give it per well).")
+@click.option("--window", default="auto", show_default=True,
+              help="'auto' or a fixed START-END in seconds, e.g. 30-300.")
+@click.option("--min-points", type=int, default=None, help="Fewest readings in a window.")
+@click.option("--blank", type=click.Choice(["auto", "slope", "trace", "none"]), default="auto",
+              show_default=True, help="Subtract the mean blank slope or the time-matched mean "
+              "blank trace (auto: slope when the map has blanks).")
+@click.option("--direction", type=click.Choice(["auto", "up", "down"]), default="auto",
+              show_default=True, help="Whether product formation raises or lowers the signal.")
+@click.option("--linear-limit", type=float, default=2.0, show_default=True,
+              help="Absorbance above which readings are masked.")
+@click.option("--noisy-limit", type=float, default=0.10, show_default=True,
+              help="Relative SE of a slope above which it is flagged noisy.")
+@click.option("--katal", is_flag=True, help="Also report activity in nkat/mL.")
+@click.option("--slope-from", type=click.Choice(["window", "curve"]), default="window",
+              show_default=True, help="Report the straight-window slope, or the initial slope of "
+              "the whole-curve fit (better when substrate depletion bends every trace).")
+@click.option("--plots/--no-plots", default=True, show_default=True,
+              help="Write plots into --out.")
+@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--out", type=click.Path(file_okay=False), default=None,
+              help="Folder for rates.json/.csv, replicates.csv and plots.")
+@_guarded
+def rates(file, time_unit, signal, i0, sheet, layout_file, epsilon, epsilon_se, chromophore,
+          pathlength, well_volume, plate, total_volume, sample_volume, protein, dilution, window,
+          min_points, blank, direction, linear_limit, noisy_limit, katal, slope_from, plots, fmt,
+          out):
+    """Initial rate of each trace in FILE, converted to concentration and activity."""
+    from .views import run_rates
+
+    run_rates(dict(file=file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet,
+                   layout_file=layout_file, epsilon=epsilon, epsilon_se=epsilon_se,
+                   chromophore=chromophore, pathlength=pathlength, well_volume=well_volume,
+                   plate=int(plate), total_volume=total_volume, sample_volume=sample_volume,
+                   protein=protein, dilution=dilution, window=_parse_window(window),
+                   min_points=min_points, blank=blank, direction=direction,
+                   linear_limit=linear_limit, noisy_limit=noisy_limit, katal=katal,
+                   slope_from=slope_from, plots=plots, fmt=fmt, out=out), _emit)
+
+
 def _parse_fix(items) -> dict:
     from .errors import UsageError
 

@@ -19,7 +19,7 @@ backs up traces with no straight stretch and is compared with the window slope e
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -266,7 +266,9 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
         with np.errstate(all="ignore"):
             l_max = 0.1 * np.abs(b_start) / np.abs(cq)
         t_end_c = np.take_along_axis(Tc, np.clip(end, 0, M - 1)[:, None], 1)[:, 0]
-        bend = has & ok_w & (np.abs(tq) > 2) & (t_end_c - ts_c > l_max)
+        last_u = M - 1 - np.argmax(U[:, ::-1], axis=1)
+        slows = np.sign(cq) == -np.sign(b_start)
+        bend = has & ok_w & (end < last_u) & slows & (np.abs(tq) > 3) & (t_end_c - ts_c > l_max)
         if bend.any():
             limit = ts_c + l_max
             within = U & (Tc <= limit[:, None]) & (np.arange(M)[None, :] >= start[:, None])
@@ -279,15 +281,14 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
             for k, v in (("n", n1), ("a", a1), ("slope", b1), ("se", se1), ("r2", r21)):
                 out[k] = np.where(bend, v[:, 0], out[k])
         # why the window ends
-        last_usable = M - 1 - np.argmax(U[:, ::-1], axis=1)
+        last_usable = last_u
         after = np.arange(M)[None, :] > end[:, None]
         usable_after = (U & after).any(axis=1)
         masked_after = (~U & after & np.isfinite(T)).any(axis=1)
-        pred = out["a"][:, None] + out["slope"][:, None] * Tc
-        nxt = U & after & (np.arange(M)[None, :] <= (end + mp)[:, None])
-        with _quiet():
-            r_next = np.nanmean(np.where(nxt, Yc - pred, np.nan), axis=1)
-        slowing = np.sign(r_next) == -np.sign(out["slope"])
+        # the bend's direction: the quadratic term from the window start to the last reading
+        ext = np.maximum(last_usable, start + 2)
+        c_ext = _quadratic(C, start, ext, sigma, span)[1][:, 0]
+        slowing = np.sign(c_ext) == -np.sign(out["slope"])
         reason = np.where(~has, 5, np.where(end >= last_usable, 0,
                           np.where(~usable_after & masked_after, 1, np.where(slowing, 2, 3))))
     t_start = np.take_along_axis(T, np.clip(start, 0, M - 1)[:, None], 1)[:, 0]
@@ -334,9 +335,11 @@ def _whole_curve(Tc, Yc, U, start, slope):
     with _quiet():
         r = batch_lm(_curve, tau[rows], np.where(w[rows] > 0, Yc[rows], 0.0), w[rows],
                      p0[rows], lower=lo, upper=hi, max_iter=100, want_cov=True)
-    okr = r.converged & np.all(np.isfinite(r.params), axis=1)
+    se_v0 = np.sqrt(np.maximum(r.cov[:, 1, 1], 0))
+    # an initial slope the curve does not determine (flat or very noisy trace) is not reported
+    okr = r.converged & np.all(np.isfinite(r.params), axis=1) & (se_v0 < 0.5 * np.abs(r.params[:, 1]))
     cs[rows] = np.where(okr, r.params[:, 1], np.nan)
-    cse[rows] = np.where(okr, np.sqrt(np.maximum(r.cov[:, 1, 1], 0)), np.nan)
+    cse[rows] = np.where(okr, se_v0, np.nan)
     cp[rows] = np.where(okr[:, None], r.params, np.nan)
     return cs, cse, cp
 
@@ -362,6 +365,7 @@ class RateSettings:
     linear_limit: float = DEFAULT_LINEAR_LIMIT
     noisy_rel_se: float = 0.10
     katal: bool = False
+    slope_from: str = "window"            # window, curve
 
 
 @dataclass
@@ -396,7 +400,6 @@ def _blank_trace_subtract(ts: TraceSet, blanks: list[str]) -> TraceSet:
     order = pd.Categorical(d["trace"], categories=g.names, ordered=True)
     pos = d.groupby(order, observed=True).cumcount().to_numpy()
     d["value"] = vals[order.codes, pos]
-    from dataclasses import replace
     return replace(ts, data=d)
 
 
@@ -448,6 +451,11 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     raw_win = find_windows(raw_g, window=st.window, min_points=st.min_points, curve=False) if (
         mode == "trace") else win
 
+    window_found = np.isfinite(win.slope)
+    if st.slope_from == "curve":
+        win = replace(win, method=np.where(np.isfinite(win.curve_slope), "curve", "none"))
+    elif st.slope_from != "window":
+        raise UsageError(f"unknown slope source {st.slope_from!r}", "use window or curve")
     slope = np.where(win.method == "curve", win.curve_slope, win.slope) * 60.0   # per min
     slope_se = np.where(win.method == "curve", win.curve_slope_se, win.slope_se) * 60.0
     raw_slope = raw_win.slope * 60.0
@@ -487,7 +495,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
         if method == "none":
             f.append("few-points" if g.usable[k].sum() < max(5, g.values.shape[1] // 10)
                      else "no-linear")
-        if method == "curve":
+        if method == "curve" and not window_found[k]:
             f.append("no-linear")
         if win.lag_s[k] > 0:
             f.append("lag")

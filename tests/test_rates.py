@@ -1,0 +1,209 @@
+"""Initial rates: reference-library slopes, seeded simulations, activity by hand, QC, CLI."""
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from scipy import stats
+
+from rateabs.cli import main
+from rateabs.rates import RateSettings, analyse_plate, find_windows, grubbs_outlier, z_factor
+from rateabs.traces import TraceSet
+
+SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
+
+
+def simulate(kind, n, seed, m=61, noise=0.002):
+    """Ground-truth traces (A/s slopes known): linear, lag (hysteretic) or depletion."""
+    rng = np.random.default_rng(seed)
+    t = np.linspace(0, 600, m)
+    ys, truth = [], []
+    for _ in range(n):
+        b = rng.uniform(0.5, 3) * 1e-4 * rng.choice([-1, 1])
+        if kind == "linear":
+            y = 0.3 + b * t
+        elif kind == "lag":
+            tau = rng.uniform(60, 120)
+            y = 0.3 + b * (t - tau * (1 - np.exp(-t / tau)))
+        else:
+            k = rng.uniform(1.5, 3) / 600
+            y = 0.3 + b / k * (1 - np.exp(-k * t))
+        ys.append(y + rng.normal(0, noise, m))
+        truth.append(b)
+    return TraceSet.from_arrays([f"w{i}" for i in range(n)], t, np.array(ys)), np.array(truth)
+
+
+def test_window_slopes_equal_polyfit_and_linregress():
+    # reference library: numpy.polyfit and scipy.stats.linregress on the same points
+    ts, _ = simulate("depletion", 12, 3)
+    g = ts.grid()
+    w = find_windows(g)
+    for i in range(12):
+        sel = slice(w.start[i], w.end[i] + 1)
+        t, y = g.times[i][sel], g.values[i][sel]
+        assert w.n[i] == t.size
+        assert w.slope[i] == pytest.approx(np.polyfit(t, y, 1)[0], rel=1e-9)
+        lr = stats.linregress(t, y)
+        assert w.slope_se[i] == pytest.approx(lr.stderr, rel=1e-7)
+        assert w.r2[i] == pytest.approx(lr.rvalue ** 2, rel=1e-7)
+
+
+def test_linear_traces_use_the_whole_read():
+    """Small seeded version of benchmarks/window_hit_rates.py."""
+    ts, truth = simulate("linear", 100, 11)
+    w = find_windows(ts.grid())
+    assert np.mean(w.end_reason == 0) >= 0.9
+    assert np.mean(np.abs(w.slope - truth) < 3 * w.slope_se) >= 0.95
+    assert np.mean(w.lag_s > 0) <= 0.1
+
+
+def test_lag_phase_found_and_skipped():
+    ts, truth = simulate("lag", 100, 12)
+    w = find_windows(ts.grid())
+    assert np.mean(w.lag_s > 0) >= 0.9
+    assert np.median(np.abs(w.slope / truth - 1)) < 0.08
+
+
+def test_depletion_curvature_found_and_curve_estimate_close():
+    ts, truth = simulate("depletion", 100, 13)
+    w = find_windows(ts.grid())
+    assert np.mean(np.isin(w.end_reason, [2])) >= 0.9
+    assert np.median(np.abs(w.curve_slope / truth - 1)) < 0.08
+    ok = np.isfinite(w.curve_slope)
+    assert np.mean(np.abs(w.curve_slope[ok] - truth[ok]) < 3 * w.curve_slope_se[ok]) >= 0.9
+
+
+def test_decreasing_signal_gives_positive_rate():
+    t = np.arange(0, 301, 10.0)
+    y = 0.9 - 0.02 * t / 60 + np.random.default_rng(0).normal(0, 0.001, t.size)
+    ts = TraceSet.from_arrays(["A1"], t, [y])
+    a = analyse_plate(ts, settings=RateSettings(epsilon=6220, pathlength_cm=1.0))
+    r = a.table.iloc[0]
+    assert r["slope_A_per_min"] == pytest.approx(-0.02, rel=0.02)
+    assert r["rate_uM_per_min"] == pytest.approx(0.02 / 6220 * 1e6, rel=0.02)
+    assert a.blank_info["direction"] == "down"
+
+
+def test_activity_worked_by_hand():
+    # enzyme unit (IUB): 1 U = 1 umol/min. Slope 0.0622 A/min, eps 6220, 1 cm -> 10 uM/min;
+    # 1 mL reaction -> 10 nmol/min = 0.010 U from 50 uL of sample diluted 1:20
+    # -> 0.010 U / 0.050 mL * 20 = 4.0 U/mL; at 2 mg/mL protein -> 2.0 U/mg; 4.0 U = 66.67 nkat
+    t = np.arange(0, 181, 10.0)
+    ts = TraceSet.from_arrays(["cuv"], t, [0.1 + 0.0622 * t / 60])
+    st = RateSettings(epsilon=6220, pathlength_cm=1.0, total_volume_L=1e-3,
+                      sample_volume_L=50e-6, dilution=20, protein_mg_per_mL=2.0, katal=True)
+    r = analyse_plate(ts, settings=st).table.iloc[0]
+    assert r["rate_uM_per_min"] == pytest.approx(10.0, rel=1e-9)
+    assert r["activity_U_per_mL"] == pytest.approx(4.0, rel=1e-9)
+    assert r["specific_activity_U_per_mg"] == pytest.approx(2.0, rel=1e-9)
+    assert r["activity_nkat_per_mL"] == pytest.approx(4.0 * 16.667, rel=1e-4)
+
+
+def test_epsilon_uncertainty_propagates():
+    t = np.arange(0, 301, 10.0)
+    y = 0.1 + 0.03 * t / 60 + np.random.default_rng(1).normal(0, 0.001, t.size)
+    ts = TraceSet.from_arrays(["x"], t, [y])
+    a0 = analyse_plate(ts, settings=RateSettings(epsilon=6220)).table.iloc[0]
+    a1 = analyse_plate(ts, settings=RateSettings(epsilon=6220, epsilon_se=311)).table.iloc[0]
+    rel0 = a0["rate_uM_per_min_se"] / a0["rate_uM_per_min"]
+    rel1 = a1["rate_uM_per_min_se"] / a1["rate_uM_per_min"]
+    assert rel1 == pytest.approx(np.hypot(rel0, 0.05), rel=1e-9)
+
+
+def test_z_prime_hand_worked():
+    # Zhang, Chung & Oldenburg (1999): Z' = 1 - 3 (sd+ + sd-) / |mu+ - mu-|
+    pos, neg = [10.0, 11.0, 12.0], [1.0, 2.0, 3.0]        # sd 1 each, means 11 and 2
+    assert z_factor(pos, neg) == pytest.approx(1 - 3 * 2 / 9)
+
+
+def test_grubbs_critical_values():
+    # published critical values (Grubbs 1969, two-sided 0.05; from memory): n=3 1.1543, n=10 2.2900
+    x = np.array([0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0])
+    assert grubbs_outlier(x) == 9                    # G = 2.846 > 2.290
+    assert grubbs_outlier(np.array([1.0, 1.1, 1.2, 1.3, 1.4])) is None
+    n, t = 10, stats.t.ppf(1 - 0.05 / 20, 8)
+    assert (n - 1) / np.sqrt(n) * np.sqrt(t * t / (n - 2 + t * t)) == pytest.approx(2.290, abs=2e-3)
+
+
+def _run(args):
+    return CliRunner().invoke(main, ["rates", *args])
+
+
+def test_sample_plate_end_to_end(tmp_path):
+    r = _run([str(SAMPLES / "plate_kbdh_340nm.csv"), "--layout",
+              str(SAMPLES / "plate_kbdh_map.csv"), "--chromophore", "NADH", "--well-volume",
+              "200 uL", "--total-volume", "200 uL", "--sample-volume", "20 uL", "--format",
+              "json", "--out", str(tmp_path)])
+    assert r.exit_code == 0, r.output
+    doc = json.loads(r.stdout)
+    res = {x["trace"]: x for x in doc["results"]}
+    need = {"trace", "slope_A_per_min", "slope_A_per_min_se", "rate_uM_per_min", "window_start_s",
+            "window_end_s", "n_points", "r2", "flags", "activity_U_per_mL"}
+    assert need <= set(res["A8"])
+    # simulated truth (sample_runs/generate.py): near saturation ~ 9 * 1920/2040 uM/min
+    assert res["A8"]["rate_uM_per_min"] == pytest.approx(9 * 1920 / 2040, rel=0.12)
+    assert "few-points" in res["H12"]["flags"] and res["H12"]["rate_uM_per_min"] is None
+    assert doc["settings"]["z_prime"]["value"] > 0.5
+    assert doc["settings"]["blank"]["mode"] == "slope"
+    for f in ("rates.json", "rates.csv", "rates_replicates.csv", "rates_plate.png",
+              "rates_traces_1.png", "rates_replicates.png"):
+        assert (tmp_path / f).exists(), f
+
+
+def test_table_output_has_units():
+    r = _run([str(SAMPLES / "cuvettes_kbap_405nm_messy.csv"), "--chromophore", "pnp"])
+    assert r.exit_code == 0, r.output
+    assert "slope (A/min)" in r.stdout and "rate (uM/min)" in r.stdout
+
+
+def test_fixed_window(tmp_path):
+    r = _run([str(SAMPLES / "cuvettes_kbap_405nm_messy.csv"), "--window", "30-180",
+              "--format", "json"])
+    res = json.loads(r.stdout)["results"]
+    assert all(x["window_start_s"] == 30 and x["window_end_s"] == 180 for x in res)
+
+
+@pytest.mark.parametrize("mapping,args,words", [
+    ("well,role\nA1,sample\nZ9,blank\n", [], "names well Z9"),
+    ("well,role\nA1,sample\nA1,blank\n", [], "appears twice"),
+    ("well,role\nA1,enzyme\n", [], "unknown role"),
+    ("well,role\nA1,sample\nA2,sample\n", ["--blank", "slope"], "marks no blank wells"),
+    ("well,role,dilution\nA1,sample,ten\n", [], "dilution 'ten'"),
+    ("well,kind\nA1,sample\n", [], "no 'role' column"),
+])
+def test_bad_plate_maps(tmp_path, mapping, args, words):
+    data = tmp_path / "d.csv"
+    data.write_text("Time (s),A1,A2\n0,0.1,0.1\n10,0.2,0.1\n20,0.3,0.1\n30,0.4,0.1\n40,0.5,0.1\n"
+                    "50,0.6,0.1\n")
+    m = tmp_path / "map.csv"
+    m.write_text(mapping)
+    r = _run([str(data), "--layout", str(m), *args])
+    assert r.exit_code == 3, r.output
+    assert words in r.output and len(r.output.strip().splitlines()) == 1
+
+
+def test_few_points_well_flagged_and_plate_goes_on(tmp_path):
+    data = tmp_path / "d.csv"
+    rows = ["Time (s),A1,A2"] + [f"{10 * k},{0.1 + 0.01 * k},{'OVER' if k > 2 else 0.1}"
+                                 for k in range(12)]
+    data.write_text("\n".join(rows) + "\n")
+    r = _run([str(data), "--format", "json"])
+    res = {x["trace"]: x for x in json.loads(r.stdout)["results"]}
+    assert "few-points" in res["A2"]["flags"] and res["A2"]["slope_A_per_min"] is None
+    assert res["A1"]["slope_A_per_min"] == pytest.approx(0.06, rel=1e-6)
+
+
+@pytest.mark.parametrize("args,words", [
+    (["--pathlength", "1 cm", "--well-volume", "200 uL"], "only one"),
+    (["--total-volume", "200 uL"], "both --total-volume and --sample-volume"),
+    (["--epsilon", "6220", "--chromophore", "NADH"], "only one"),
+    (["--window", "300-30"], "not after its start"),
+    (["--window", "soon"], "START-END"),
+    (["--epsilon", "6220 bananas"], "unknown molar absorptivity unit"),
+])
+def test_bad_options(args, words):
+    r = _run([str(SAMPLES / "cuvettes_kbap_405nm_messy.csv"), *args])
+    assert r.exit_code == 2, r.output
+    assert words in r.output
