@@ -281,7 +281,17 @@ def _find_header(rows, decimal) -> tuple[int, str]:
         raise InputError("no table found: every line has a single field",
                          "export with one column for time and one per trace")
     mode = Counter(wide_rows).most_common(1)[0][0]
-    kinds = [[_kind(c, decimal) for c in r[:w]] for r, w in zip(rows, widths, strict=True)]
+    cache: dict[int, list[str]] = {}
+
+    class _Kinds:
+        """Cell kinds of a row, classified only when asked for (headers sit near the top)."""
+
+        def __getitem__(self, i):
+            if i not in cache:
+                cache[i] = [_kind(c, decimal) for c in rows[i][:widths[i]]]
+            return cache[i]
+
+    kinds = _Kinds()
 
     def texty(i):
         ks = [k for k in kinds[i] if k != "empty"]
@@ -431,7 +441,16 @@ def _parse_values(cells, decimal, lines, col_label) -> tuple[np.ndarray, np.ndar
     """Floats and flags: overflow markers and missing cells become NaN with a flag."""
     vals = np.full(len(cells), np.nan)
     flags = np.full(len(cells), "", dtype=object)
-    for i, c in enumerate(cells):
+    # fast path: a column of plain numbers converts in one call; otherwise cells one by one
+    try:
+        fast = np.array([c.replace(",", ".") for c in cells] if decimal == "," else cells,
+                        dtype=float)
+    except ValueError:
+        fast = np.full(len(cells), np.nan)
+    done = np.isfinite(fast)
+    vals[done] = fast[done]
+    for i in np.nonzero(~done)[0]:
+        c = cells[i]
         k = _kind(c, decimal)
         if k == "num":
             vals[i] = _to_float(c, decimal)
@@ -622,14 +641,16 @@ def _is_time_header(h: str) -> bool:
 def _normal(header, body, lines, decimal, time_unit, path):
     cols = list(zip(*body, strict=True))
     ncols = len(header)
-    kinds = [[_kind(c, decimal) for c in col] for col in cols]
+    # kinds from a sample of rows (first 150 and last 50) decide what each column is
+    pick = list(range(min(150, len(body)))) + list(range(max(150, len(body) - 50), len(body)))
+    kinds = [[_kind(col[i], decimal) for i in pick] for col in cols]
+    blank = [not any(c.strip() for c in col) for col in cols]
 
     def frac(j, ks):
         col = [k for k in kinds[j] if k != "empty"]
         return sum(k in ks for k in col) / len(col) if col else 0.0
 
-    empty_cols = {j for j in range(ncols) if all(k == "empty" for k in kinds[j])
-                  and not header[j]}
+    empty_cols = {j for j in range(ncols) if blank[j] and not header[j]}
     for j, h in enumerate(header):
         if not h and j not in empty_cols:
             raise InputError("a column with readings has no name in the header",

@@ -60,6 +60,19 @@ def _curve(t, c, v0, k):
     return c + v0 * frac
 
 
+def _curve_jac(t, c, v0, k):
+    """Partial derivatives of :func:`_curve` with respect to (c, v0, k); shape (B, n, 3)."""
+    kt = k * t
+    small = np.abs(kt) < 1e-6
+    kk = np.where(k == 0, 1.0, k)
+    with np.errstate(all="ignore"):
+        e = np.exp(-kt)
+        frac = np.where(small, t * (1 - kt / 2), -np.expm1(-kt) / kk)
+        dfrac = np.where(small, -t * t / 2 + k * t**3 / 3, (t * e - frac) / kk)
+    frac, dfrac = np.broadcast_arrays(frac, dfrac)
+    return np.stack([np.ones_like(frac), frac, v0 * dfrac], axis=-1)
+
+
 @dataclass(frozen=True)
 class Windows:
     """Per-trace window results (arrays of length n_traces); slopes in signal units per s."""
@@ -220,11 +233,13 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
         reason[:] = 4
     else:
         lim = int(max_lag_fraction * M)
-        step = max(1, math.ceil((lim + 1) / 60))
+        step = max(1, math.ceil((lim + 1) / 16))
         starts = list(range(0, lim + 1, step))
         cand = {k: np.full((len(starts), N), np.nan) for k in ("b", "se", "a", "n", "r2")}
         cand_end = np.full((len(starts), N), -1, dtype=int)
-        e_idx = np.arange(M)
+        e_idx = np.arange(0, M, max(1, M // 80))       # ends tested: at most ~80 per start
+        if e_idx[-1] != M - 1:
+            e_idx = np.append(e_idx, M - 1)
         chi = stats.chi2.ppf(1 - alpha, np.maximum(np.arange(M + 1) - 2, 1))
         for si, s in enumerate(starts):
             n, a, b, se, sse, r2 = _line(C, s, e_idx)
@@ -235,16 +250,14 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
             # a window ends just before the first failing one; windows beyond it are not used
             # a failure counts when the next window fails too (one noisy reading is no bend)
             fail = fail & np.concatenate([fail[:, 1:], fail[:, -1:]], axis=1)
-            any_fail = fail.any(axis=1)
-            ff = np.where(any_fail, np.argmax(fail, axis=1), M)
-            last = np.minimum(ff - 1, M - 1)
-            ok_first = np.take_along_axis(valid, np.clip(last, 0, M - 1)[:, None], 1)[:, 0]
-            ok = (last >= s) & ok_first & (s < n_use)
+            n_e = e_idx.size
+            ff = np.where(fail.any(axis=1), np.argmax(fail, axis=1), n_e)   # positions in e_idx
+            lp = np.clip(ff - 1, 0, n_e - 1)
             rows = np.arange(N)
-            li = np.clip(last, 0, M - 1)
+            ok = (ff >= 1) & valid[rows, lp] & (s < n_use)
             for k, v in (("b", b), ("se", se), ("a", a), ("n", n), ("r2", r2)):
-                cand[k][si] = np.where(ok, v[rows, li], np.nan)
-            cand_end[si] = np.where(ok, last, -1)
+                cand[k][si] = np.where(ok, v[rows, lp], np.nan)
+            cand_end[si] = np.where(ok, e_idx[lp], -1)
         absb = np.abs(cand["b"])
         has = np.isfinite(absb).any(axis=0)
         best = np.where(has, np.nanargmax(np.where(np.isfinite(absb), absb, -1), axis=0), 0)
@@ -334,7 +347,8 @@ def _whole_curve(Tc, Yc, U, start, slope):
         return cs, cse, cp
     with _quiet():
         r = batch_lm(_curve, tau[rows], np.where(w[rows] > 0, Yc[rows], 0.0), w[rows],
-                     p0[rows], lower=lo, upper=hi, max_iter=100, want_cov=True)
+                     p0[rows], lower=lo, upper=hi, max_iter=100, want_cov=True,
+                     jac=_curve_jac)
     se_v0 = np.sqrt(np.maximum(r.cov[:, 1, 1], 0))
     # an initial slope the curve does not determine (flat or very noisy trace) is not reported
     okr = r.converged & np.all(np.isfinite(r.params), axis=1) & (se_v0 < 0.5 * np.abs(r.params[:, 1]))
@@ -486,9 +500,10 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     blank_info["direction"] = "up" if direction > 0 else "down"
 
     flags_reading = analysed.reading_flags()
+    meta_rec = meta.to_dict("index")
     rows = []
     for k, name in enumerate(g.names):
-        m = meta.loc[name]
+        m = meta_rec[name]
         f = list(flags_reading.get(name, []))
         f = [x for x in f if x != "missing"]
         method = str(win.method[k])
@@ -598,27 +613,29 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
 
 def replicate_summary(table: pd.DataFrame, value_col: str) -> tuple[pd.DataFrame, list[str]]:
     """Mean, SD, CV and n per replicate group, and the wells that are Grubbs outliers."""
-    out, outliers = [], []
-    for grp, d in table[table["role"] != "blank"].groupby("group", sort=False):
-        d = d[np.isfinite(d[value_col].astype(float))]
-        if d.empty:
-            continue
-        x = d[value_col].to_numpy(dtype=float)
-        k = grubbs_outlier(x)
+    d = table[(table["role"] != "blank") & np.isfinite(table[value_col].astype(float))]
+    if d.empty:
+        return pd.DataFrame(), []
+    g = d.groupby("group", sort=False)
+    agg = g.agg(role=("role", "first"), sample=("sample", "first"),
+                substrate_uM=("substrate_uM", "first"), inhibitor_uM=("inhibitor_uM", "first"),
+                n=(value_col, "size"), mean=(value_col, "mean"), sd=(value_col, "std"),
+                wells=("trace", list)).reset_index()
+    if (agg["n"] == 1).all():
+        return pd.DataFrame(), []                   # no replicates on this plate
+    agg["sem"] = agg["sd"] / np.sqrt(agg["n"])
+    agg["cv_pct"] = 100 * agg["sd"] / agg["mean"].abs()
+    agg["unit"] = value_col.split("_", 1)[1].replace("_per_", "/")
+    outliers = []
+    out_col = []
+    values = d.set_index("trace")[value_col].astype(float)
+    for wells, n in zip(agg["wells"], agg["n"], strict=True):
+        k = grubbs_outlier(values.loc[wells].to_numpy()) if n >= 3 else None
+        out_col.append(wells[k] if k is not None else "")
         if k is not None:
-            outliers.append(d["trace"].iloc[k])
-        mean = float(np.mean(x))
-        sd = float(np.std(x, ddof=1)) if x.size > 1 else float("nan")
-        out.append({"group": grp, "role": d["role"].iloc[0], "sample": d["sample"].iloc[0],
-                    "substrate_uM": d["substrate_uM"].iloc[0],
-                    "inhibitor_uM": d["inhibitor_uM"].iloc[0], "n": int(x.size),
-                    "mean": mean, "sd": sd,
-                    "sem": sd / math.sqrt(x.size) if x.size > 1 else float("nan"),
-                    "cv_pct": 100 * sd / abs(mean) if mean and x.size > 1 else float("nan"),
-                    "unit": value_col.split("_", 1)[1].replace("_per_", "/"),
-                    "wells": list(d["trace"]),
-                    "outlier": d["trace"].iloc[k] if k is not None else ""})
-    return pd.DataFrame(out), outliers
+            outliers.append(wells[k])
+    agg["outlier"] = out_col
+    return agg, outliers
 
 
 def z_prime(table: pd.DataFrame, value_col: str) -> dict | None:
