@@ -82,7 +82,8 @@ def _emit(fmt: str, doc: dict, table: str, csv_text: str, out, name: str) -> Non
     else:
         click.echo(table, nl=False)
         for w in doc.get("warnings", []):
-            click.echo(f"warning: {w}", err=True)
+            if w not in table:
+                click.echo(f"warning: {w}", err=True)
     if out:
         write_text(out, f"{name}.json", to_json(doc))
         write_text(out, f"{name}.csv", csv_text)
@@ -303,6 +304,109 @@ def saturation(file, conc, rate, inhibitor, sd_col, model, ci, level, weighting,
         if model != "ic50" and a.chosen != "ic50":
             linearised(a, Path(out) / "saturation_linearised.png")
     _emit(fmt, doc, table, rows_to_csv(flat, cols), out, "saturation")
+
+
+def _law_options(fn):
+    fn = click.option("--c0", default=None, help="Initial reactant concentration, e.g. '50 uM'.")(fn)
+    fn = click.option("--pathlength", default=None, help="Pathlength, e.g. '1 cm'.")(fn)
+    fn = click.option("--epsilon-product", default=None,
+                      help="Molar absorptivity of the product when both species absorb.")(fn)
+    fn = click.option("--chromophore", default=None, help="Take epsilon from the table.")(fn)
+    fn = click.option("--epsilon", default=None,
+                      help="Molar absorptivity of the reactant (or the one absorbing species).")(fn)
+    fn = click.option("--trace", multiple=True, help="Analyse only this trace (repeatable).")(fn)
+    fn = click.option("--fix", multiple=True, help="Hold a parameter: NAME=VALUE, e.g. Ainf=0.05.")(fn)
+    fn = click.option("--level", type=float, default=0.95, show_default=True,
+                      help="Confidence level.")(fn)
+    return fn
+
+
+@main.command()
+@click.argument("file", type=click.Path())
+@_reader_options
+@_law_options
+@click.option("--order", type=click.Choice(["0", "1", "2", "auto", "mixed"]), default="auto",
+              show_default=True, help="Rate-law order; mixed: A + B with unequal [A]0, [B]0.")
+@click.option("--a0", default=None, help="[A]0 for --order mixed, e.g. '50 uM'.")
+@click.option("--b0", default=None, help="[B]0 for --order mixed, e.g. '120 uM'.")
+@click.option("--ci", type=click.Choice(["asymptotic", "profile"]), default="profile",
+              show_default=True)
+@click.option("--expect", type=click.Choice(["any", "decay", "rise"]), default="any",
+              show_default=True, help="Refuse traces that move the other way.")
+@click.option("--guggenheim", type=float, default=None,
+              help="Also apply Guggenheim's method with this interval in s (0: half the run).")
+@click.option("--excess", type=click.Path(), default=None,
+              help="CSV trace,conc of a pseudo-first-order series: k2 from kobs vs [excess].")
+@click.option("--plots/--no-plots", default=True, show_default=True)
+@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--out", type=click.Path(file_okay=False), default=None)
+@_guarded
+def ratelaw(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product, chromophore,
+            epsilon, trace, fix, level, order, a0, b0, ci, expect, guggenheim, excess, plots, fmt,
+            out):
+    """Integrated rate-law fits (order, k, half-life) of the traces in FILE."""
+    from .views import run_ratelaw
+
+    run_ratelaw(dict(file=file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet, c0=c0,
+                     pathlength=pathlength, epsilon_product=epsilon_product,
+                     chromophore=chromophore, epsilon=epsilon, trace=trace, fix=_parse_fix(fix),
+                     level=level, order=order, a0=a0, b0=b0, ci=ci, expect=expect,
+                     guggenheim=guggenheim, excess=excess, plots=plots, fmt=fmt, out=out), _emit)
+
+
+@main.command()
+@click.argument("file", type=click.Path())
+@_reader_options
+@_law_options
+@click.option("--target", type=float, default=99.0, show_default=True,
+              help="Target conversion in percent.")
+@click.option("--order", type=click.Choice(["1", "2", "auto"]), default="1", show_default=True)
+@click.option("--follow", type=float, default=None, metavar="SECONDS",
+              help="Re-read FILE every SECONDS while the instrument writes it; stop at completion "
+              "or Ctrl-C.")
+@click.option("--max-updates", type=int, default=None, help="With --follow: stop after N reads.")
+@click.option("--plots/--no-plots", default=True, show_default=True)
+@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--out", type=click.Path(file_okay=False), default=None)
+@_guarded
+def completion(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product, chromophore,
+               epsilon, trace, fix, level, target, order, follow, max_updates, plots, fmt, out):
+    """Conversion, time to a target conversion, and complete or not, for FILE.
+
+    A predicted end point is no process-safety assessment.
+    """
+    from .views import follow_completion, run_completion
+
+    o = dict(file=file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet, c0=c0,
+             pathlength=pathlength, epsilon_product=epsilon_product, chromophore=chromophore,
+             epsilon=epsilon, trace=trace, fix=_parse_fix(fix), level=level, target=target,
+             order=order, plots=plots, fmt=fmt, out=out)
+    if follow is not None:
+        follow_completion(o, follow, max_updates, click.echo, _emit)
+    else:
+        run_completion(o, _emit)
+
+
+@main.command()
+@click.argument("file", type=click.Path())
+@click.option("--temp-column", default=None, help="Temperature column (detected if not given).")
+@click.option("--k-column", default=None, help="Rate-constant column (detected if not given).")
+@click.option("--se-column", default=None, help="Column of SE(k), for weights.")
+@click.option("--temp-unit", type=click.Choice(["C", "K"]), default=None,
+              help="Unit of the temperatures (else from the header or the values).")
+@click.option("--at", multiple=True, help="Predict k at this temperature, e.g. '60 C' (repeatable).")
+@click.option("--level", type=float, default=0.95, show_default=True)
+@click.option("--plots/--no-plots", default=True, show_default=True)
+@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--out", type=click.Path(file_okay=False), default=None)
+@_guarded
+def temperature(file, temp_column, k_column, se_column, temp_unit, at, level, plots, fmt, out):
+    """Arrhenius and Eyring analysis of rate constants vs temperature in FILE."""
+    from .views import run_temperature
+
+    run_temperature(dict(file=file, temp_column=temp_column, k_column=k_column,
+                         se_column=se_column, temp_unit=temp_unit, at=at, level=level,
+                         plots=plots, fmt=fmt, out=out), _emit)
 
 
 @main.command()

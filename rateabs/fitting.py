@@ -384,12 +384,10 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     notes: list[str] = []
     success = bool(res.success) and np.all(np.isfinite(fitted))
     message = str(res.message) if not success else "converged"
-    cov = res.covar if getattr(res, "covar", None) is not None else None
-    se = {}
-    for nm in model.params:
-        p = res.params[nm.replace("-", "_")]
-        se[nm] = float(p.stderr) if (p.vary and p.stderr is not None) else (
-            0.0 if not p.vary else float("nan"))
+    cov = _covariance(model, x, w, values, free, rss / dof if (scale_covar and dof > 0) else 1.0)
+    se = {nm: 0.0 for nm in model.params}
+    for j, nm in enumerate(free):
+        se[nm] = float(np.sqrt(cov[j, j])) if cov is not None else float("nan")
     if cov is None and free:
         notes.append("the covariance matrix could not be estimated: the parameters are not "
                      "identifiable from these data")
@@ -448,6 +446,29 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
                      free=tuple(free), runs_p=runs_test(y - fitted), notes=tuple(notes),
                      weighting=weighting, resample=resample if ci == "bootstrap" else None,
                      n_boot_ok=n_ok, func=model.func)
+
+
+def _covariance(model, x, w, values, free, scale):
+    """Covariance of the free parameters, (J'J)^-1 * scale, J by central differences at the
+    optimum (more accurate than the solver's own forward-difference Jacobian)."""
+    if not free:
+        return None
+    base = [values[nm] for nm in model.params]
+    cols = []
+    for nm in free:
+        j = model.params.index(nm)
+        h = 1e-6 * max(abs(base[j]), 1e-8)
+        up, dn = list(base), list(base)
+        up[j] += h
+        dn[j] -= h
+        with np.errstate(all="ignore"):
+            cols.append((model.func(x, *up) - model.func(x, *dn)) / (2 * h) * w)
+    J = np.column_stack(cols)
+    A = J.T @ J
+    if not np.all(np.isfinite(A)) or np.linalg.matrix_rank(A) < len(free):
+        return None
+    cov = np.linalg.inv(A) * scale
+    return cov if np.all(np.isfinite(cov)) and np.all(np.diag(cov) >= 0) else None
 
 
 def information_criteria(rss: float, n: int, k: int) -> tuple[float, float, float]:

@@ -186,8 +186,11 @@ def _fmt_clock(seconds: float) -> str:
     return f"{int(h)}:{int(m):02d}:{s:09.6f}"
 
 
-def load_cells(path: str | Path, sheet: str | None = None) -> _Cells:
-    """Read a file into rows of string cells (no interpretation yet)."""
+def load_cells(path: str | Path, sheet: str | None = None, partial: bool = False) -> _Cells:
+    """Read a file into rows of string cells (no interpretation yet).
+
+    With ``partial`` a last line without its line end (a file still being written) is left out.
+    """
     path = str(path)
     p = Path(path)
     if not p.exists():
@@ -210,6 +213,8 @@ def load_cells(path: str | Path, sheet: str | None = None) -> _Cells:
         raise InputError("old binary .xls workbooks are not read",
                          "save the sheet as .xlsx or CSV", file=path)
     text, enc = _decode(raw, path)
+    if partial and text and not text.endswith(("\n", "\r")):
+        text = text[: max(text.rfind("\n"), 0)]
     rows, lines, delim = _split_rows(text, path)
     fmt = {"\t": "tsv", ";": "semicolon", ",": "csv", " ": "whitespace"}[delim]
     return _Cells(rows, lines, fmt, delim, enc)
@@ -298,7 +303,7 @@ def _find_header(rows, decimal) -> tuple[int, str]:
         return len(ks) >= 2 and sum(k == "text" for k in ks) >= len(ks) / 2
 
     for i in range(len(rows) - 1):
-        if widths[i] < max(2, min(mode, 2)) or widths[i] < mode * 0.5 or not texty(i):
+        if widths[i] < 2 or len(rows[i]) < mode or not texty(i):
             continue
         following = [j for j in range(i + 1, min(len(rows), i + 6)) if widths[j] >= 2]
         if not following:
@@ -486,13 +491,15 @@ def detect_signal(words: str) -> str | None:
 
 
 def read_traces(path: str | Path, *, time_unit: str | None = None, signal: str | None = None,
-                i0: float | None = None, sheet: str | None = None) -> TraceSet:
+                i0: float | None = None, sheet: str | None = None,
+                partial: bool = False) -> TraceSet:
     """Read a kinetic export into a :class:`TraceSet` of absorbance traces.
 
     Parameters: ``time_unit`` overrides the detected unit of a numeric time column (s, min, h);
     ``signal`` overrides the detected signal kind (absorbance, transmittance, percent,
     intensity); ``i0`` is the reference intensity for raw intensities when the file has no
-    ``I0`` trace or metadata line; ``sheet`` picks an .xlsx sheet.
+    ``I0`` trace or metadata line; ``sheet`` picks an .xlsx sheet; ``partial`` leaves out a
+    half-written last line (a file an instrument is still appending to).
 
     Raises :class:`~rateabs.errors.InputError` with file, row and column for anything it cannot
     read. Input files are only read, never written.
@@ -507,13 +514,13 @@ def read_traces(path: str | Path, *, time_unit: str | None = None, signal: str |
     if signal is not None and signal not in SIGNAL_KINDS:
         raise UsageError(f"unknown signal kind {signal!r}", f"use one of {', '.join(SIGNAL_KINDS)}")
     try:
-        return _read(path, time_unit, signal, i0, sheet)
+        return _read(path, time_unit, signal, i0, sheet, partial)
     except InputError as exc:
         raise exc.located(path) from None
 
 
-def _read(path, time_unit, signal, i0, sheet) -> TraceSet:
-    cells = load_cells(path, sheet)
+def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
+    cells = load_cells(path, sheet, partial)
     rows = cells.rows
     decimal = _detect_decimal(rows, cells.delimiter)
     hdr, shape = _find_header(rows, decimal)

@@ -238,3 +238,85 @@ INHIBITION_MODELS = ("competitive", "uncompetitive", "noncompetitive", "mixed")
 #: Nested pairs (simpler, more general) for extra-sum-of-squares F-tests.
 NESTED = [("mm", "hill"), ("mm", "substrate-inhibition"), ("competitive", "mixed"),
           ("uncompetitive", "mixed"), ("noncompetitive", "mixed")]
+
+
+# --------------------------------------------------------------------------- rate laws
+# Integrated rate laws written for absorbance: A(t) = Ainf + (A0 - Ainf) f(t), where f is the
+# fraction of reactant left. Absorbance is linear in the extent of reaction whichever species
+# absorb (reactant, product or both), so the same forms serve all cases; the concentration
+# scale enters only through delta-epsilon * pathlength when results are converted.
+
+
+def order0(t, A0, k):
+    """Zero order: A = A0 + k t (k in absorbance per second, signed)."""
+    return A0 + k * t
+
+
+def order1(t, A0, Ainf, k):
+    """First order: A = Ainf + (A0 - Ainf) exp(-k t)."""
+    return Ainf + (A0 - Ainf) * np.exp(-k * t)
+
+
+def order2(t, A0, Ainf, k):
+    """Second order (rate = k[A]^2) in absorbance units: A = Ainf + d / (1 + k |d| t), d = A0 - Ainf.
+
+    Here k is per absorbance unit per second: k = k_conc / (|delta-epsilon| b).
+    """
+    d = A0 - Ainf
+    return Ainf + d / (1 + k * np.abs(d) * t)
+
+
+def mixed2(t, A0, Ainf, k, a0=1.0, b0=2.0):
+    """Mixed second order A + B -> P with [A]0 = a0, [B]0 = b0 (mol/L, unequal); k in L/(mol s).
+
+    Extent x(t) = a0 b0 (e^{(b0-a0)kt} - 1) / (b0 e^{(b0-a0)kt} - a0); A = A0 + (Ainf - A0) x/x_end.
+    """
+    e = np.exp((b0 - a0) * k * t)
+    x = a0 * b0 * (e - 1) / (b0 * e - a0)
+    return A0 + (Ainf - A0) * x / min(a0, b0)
+
+
+def line(x, intercept, slope):
+    """Straight line: y = intercept + slope x (Arrhenius, Eyring and kobs-vs-concentration fits)."""
+    return intercept + slope * x
+
+
+def _guess_order0(t, y):
+    b, a = np.polyfit(t, y, 1)
+    return {"A0": float(a), "k": float(b)}
+
+
+def _guess_decay(t, y, order):
+    t, y = np.asarray(t, float), np.asarray(y, float)
+    n = y.size
+    tail = y[-max(2, n // 10):]
+    head = y[:max(2, n // 10)]
+    a0 = float(np.mean(head[:2]))
+    # the end value: a bit beyond the last readings, in the direction of travel
+    drift = float(np.mean(tail) - a0)
+    ainf = float(np.mean(tail)) + 0.05 * drift
+    d = a0 - ainf
+    frac = np.clip((y - ainf) / d, 1e-3, 1) if d != 0 else np.ones_like(y)
+    half = np.argmax(frac <= 0.5) if np.any(frac <= 0.5) else n - 1
+    t_half = max(float(t[half] - t[0]), float(t[-1] - t[0]) / 4, 1e-9)
+    if order == 1:
+        k = np.log(2) / t_half
+    else:
+        k = 1.0 / (t_half * abs(d)) if d else 1.0 / t_half
+    return {"A0": a0, "Ainf": ainf, "k": float(k)}
+
+
+RATE_LAWS = {
+    "0": Model("0", order0, ("A0", "k"), _guess_order0, {}, {}, {"A0": "A", "k": "A/s"},
+               "A = A0 + k t", "Atkins, Physical Chemistry"),
+    "1": Model("1", order1, ("A0", "Ainf", "k"), lambda t, y: _guess_decay(t, y, 1),
+               {"k": 0.0}, {}, {"A0": "A", "Ainf": "A", "k": "1/s"},
+               "A = Ainf + (A0 - Ainf) exp(-k t)", "Atkins, Physical Chemistry"),
+    "2": Model("2", order2, ("A0", "Ainf", "k"), lambda t, y: _guess_decay(t, y, 2),
+               {"k": 0.0}, {}, {"A0": "A", "Ainf": "A", "k": "1/(A s)"},
+               "A = Ainf + (A0 - Ainf) / (1 + k |A0 - Ainf| t)", "Atkins, Physical Chemistry"),
+}
+
+LINE = Model("line", line, ("intercept", "slope"),
+             lambda x, y: dict(zip(("slope", "intercept"), np.polyfit(x, y, 1), strict=True)),
+             units={"intercept": "y", "slope": "y/x"}, equation="y = intercept + slope x")

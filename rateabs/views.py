@@ -201,3 +201,363 @@ def run_rates(o: dict, emit) -> View:
     if o.get("out"):
         write_rate_outputs(view, o["out"], o.get("plots", True))
     return view
+
+
+# --------------------------------------------------------------------------- rate laws
+
+
+def _traces_for(o: dict):
+    from .io import read_traces
+
+    ts = read_traces(o["file"], time_unit=o.get("time_unit"), signal=o.get("signal"),
+                     i0=o.get("i0"), sheet=o.get("sheet"), partial=o.get("partial", False))
+    ts = ts.mask_above(o.get("linear_limit") or 2.0)
+    names = ts.names
+    if o.get("trace"):
+        missing = [n for n in o["trace"] if n not in names]
+        if missing:
+            raise UsageError(f"no trace named {missing[0]!r} in {o['file']}",
+                             f"use one of {', '.join(names[:12])}")
+        names = list(o["trace"])
+    return ts, names
+
+
+def _photometry(o: dict):
+    from .photometry import resolve_epsilon
+    from .ratelaws import Photometry
+    from .units import parse_concentration, parse_epsilon, parse_pathlength
+
+    eps = resolve_epsilon(o.get("epsilon"), o.get("chromophore"))
+    epp = parse_epsilon(o["epsilon_product"]) if o.get("epsilon_product") else None
+    b = parse_pathlength(o["pathlength"]) if o.get("pathlength") else 1.0
+    c0 = parse_concentration(o["c0"], default="uM") if o.get("c0") else None
+    return Photometry(eps, epp, b, c0)
+
+
+def compute_ratelaw(o: dict) -> View:
+    """The ``ratelaw`` command's results."""
+    from .errors import AnalysisError
+    from .ratelaws import fit_trace, guggenheim, pseudo_first_order
+    from .units import parse_concentration
+
+    ts, names = _traces_for(o)
+    ph = _photometry(o)
+    a0 = parse_concentration(o["a0"], default="uM") if o.get("a0") else None
+    b0 = parse_concentration(o["b0"], default="uM") if o.get("b0") else None
+    if o.get("order") == "mixed" and (a0 is None or b0 is None):
+        raise UsageError("--order mixed needs --a0 and --b0", "e.g. --a0 '50 uM' --b0 '120 uM'")
+    g = ts.grid()
+    results, warnings, laws = [], list(ts.info.get("warnings", [])), {}
+    for name in names:
+        i = g.names.index(name)
+        ok = g.usable[i]
+        try:
+            law = fit_trace(g.times[i][ok], g.values[i][ok], name, order=o.get("order", "auto"),
+                            photometry=ph, fix=o.get("fix"), ci=o.get("ci", "profile"),
+                            level=o.get("level", 0.95), expect=o.get("expect", "any"),
+                            a0=a0, b0=b0)
+        except AnalysisError as exc:
+            if len(names) == 1:
+                raise exc.located(o["file"]) from None
+            results.append({"trace": name, "order": None, "params": {}, "half_life_s": None,
+                            "status": f"not fitted: {exc.one_line()}"})
+            warnings.append(f"{name}: {exc.one_line()}")
+            continue
+        laws[name] = law
+        d = law.to_dict()
+        d["status"] = "ok"
+        if "temperature_K" in ts.meta.columns and name in ts.meta.index:
+            d["temperature_K"] = ts.meta.loc[name, "temperature_K"]
+        if o.get("guggenheim") is not None:
+            gg = guggenheim(g.times[i][ok], g.values[i][ok],
+                            None if o["guggenheim"] == 0 else o["guggenheim"],
+                            level=o.get("level", 0.95))
+            d["guggenheim"] = {"k": gg["k"].to_dict(), "half_life_s": gg["half_life"].to_dict(),
+                               "delta_s": gg["delta_s"], "n_pairs": gg["n_pairs"]}
+        results.append(d)
+        warnings += [f"{name}: {n}" for n in law.notes]
+    series = None
+    if o.get("excess"):
+        series = _pseudo_series(o, laws, pseudo_first_order)
+    settings = {"order": o.get("order", "auto"), "ci": o.get("ci", "profile"),
+                "level": o.get("level", 0.95), "epsilon": ph.epsilon,
+                "epsilon_product": ph.epsilon_product, "pathlength_cm": ph.pathlength_cm,
+                "c0_M": ph.c0_M, "fixed": o.get("fix") or {}, "time_unit": ts.info["time_unit"],
+                "pseudo_first_order": series}
+    doc = document("ratelaw", [o["file"]], settings, results, warnings)
+    rows = []
+    for r in results:
+        p = r.get("params", {})
+        k = p.get("k") or {}
+        hl = r.get("half_life_s") or {}
+        kc = r.get("k_conc") or {}
+        rows.append({"trace": r["trace"], "order": r.get("order") or "-",
+                     "k": _pm(k.get("value"), k.get("se"), 4), "k_unit": k.get("unit", ""),
+                     "ci": _ci(k), "kc": (_pm(kc.get("value"), kc.get("se"), 4) + " "
+                                          + kc.get("unit", "")) if kc else "-",
+                     "half": _pm(hl.get("value"), hl.get("se"), 4), "hci": _ci(hl),
+                     "status": r.get("status", "ok")})
+    table = render_table(rows, [("trace", "trace"), ("order", "order"), ("k", "k"),
+                                ("k_unit", "unit"), ("ci", "k interval"),
+                                ("kc", "k (concentration units)"), ("half", "half-life (s)"),
+                                ("hci", "half-life interval (s)")])
+    if len(laws) == 1:
+        law = next(iter(laws.values()))
+        if law.comparison is not None:
+            table += "\norder chosen by evidence\n" + law.comparison.report() + "\n"
+    if series:
+        table += (f"\npseudo-first-order series: k2 = {series['k2']['value']:.4g} ± "
+                  f"{series['k2']['se']:.2g} L/(mol s) [{series['k2']['ci_low']:.4g}, "
+                  f"{series['k2']['ci_high']:.4g}], intercept k0 = {series['k0']['value']:.3g} ± "
+                  f"{series['k0']['se']:.2g} 1/s\n")
+    flat = []
+    for r in results:
+        f = {"trace": r["trace"], "order": r.get("order"), "status": r.get("status")}
+        for name, p in (r.get("params") or {}).items():
+            f[name], f[f"{name}_se"], f[f"{name}_ci_low"], f[f"{name}_ci_high"] = (
+                p["value"], p["se"], p["ci_low"], p["ci_high"])
+            f[f"{name}_unit"] = p["unit"]
+        hl = r.get("half_life_s") or {}
+        f["half_life_s"], f["half_life_s_ci_low"], f["half_life_s_ci_high"] = (
+            hl.get("value"), hl.get("ci_low"), hl.get("ci_high"))
+        if r.get("temperature_K") is not None:
+            f["temperature_K"] = r["temperature_K"]
+        flat.append(f)
+    cols = list(dict.fromkeys(k for f in flat for k in f))
+    return View(doc, table, rows_to_csv(flat, cols), {"traces": ts, "laws": laws,
+                                                       "series": series})
+
+
+def _ci(p):
+    if not p or p.get("ci_low") is None or p.get("ci_high") is None:
+        return "-"
+    return f"[{p['ci_low']:.4g}, {p['ci_high']:.4g}]"
+
+
+def _pseudo_series(o, laws, pseudo_first_order):
+    from .io import read_table
+    from .layout import _conc_column, _parse_conc_cells
+
+    df = read_table(o["excess"])
+    lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
+    cols = {c.lower(): c for c in df.columns}
+    tcol = cols.get("trace") or cols.get("well") or df.columns[0]
+    ccol = _conc_column(df, "conc") or _conc_column(df, "excess") or df.columns[-1]
+    conc = _parse_conc_cells(df, ccol, o["excess"], lines)
+    kobs, x = [], []
+    for name, c in zip(df[tcol], conc, strict=True):
+        law = laws.get(str(name).strip())
+        if law is None or law.order != "1":
+            continue
+        kobs.append(law.fit.params["k"])
+        x.append(c)
+    if len(kobs) < 2:
+        raise UsageError("the pseudo-first-order series needs first-order kobs for at least two "
+                         "runs named in --excess", "use --order 1 and name the traces")
+    s = pseudo_first_order(kobs, x, level=o.get("level", 0.95))
+    return {"k2": s["k2"].to_dict(), "k0": s["k0"].to_dict(), "n_runs": len(kobs),
+            "weighting": s["weighting"], "conc_M": list(map(float, x)),
+            "kobs_per_s": [p.value for p in kobs]}
+
+
+def run_ratelaw(o: dict, emit) -> View:
+    """The ``ratelaw`` command."""
+    view = compute_ratelaw(o)
+    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "ratelaw")
+    if o.get("out") and o.get("plots", True):
+        from .plots import ratelaw_plots
+
+        ratelaw_plots(view.analysis, Path(o["out"]))
+    return view
+
+
+# --------------------------------------------------------------------------- completion
+
+
+def compute_completion(o: dict) -> View:
+    """The ``completion`` command's results (one per trace)."""
+    from .completion import CAUTION, assess
+    from .errors import AnalysisError
+
+    ts, names = _traces_for(o)
+    g = ts.grid()
+    results, warnings, done = [], list(ts.info.get("warnings", [])), {}
+    for name in names:
+        i = g.names.index(name)
+        ok = g.usable[i]
+        try:
+            c = assess(g.times[i][ok], g.values[i][ok], name, target=o["target"] / 100,
+                       order=o.get("order", "1"), level=o.get("level", 0.95),
+                       photometry=_photometry(o), fix=o.get("fix"))
+        except AnalysisError as exc:
+            if len(names) == 1:
+                raise exc.located(o["file"]) from None
+            results.append({"trace": name, "status": f"not assessed: {exc.one_line()}"})
+            continue
+        done[name] = c
+        d = c.to_dict()
+        d["status"] = "ok"
+        results.append(d)
+    warnings.append(CAUTION)
+    settings = {"target": o["target"] / 100, "order": o.get("order", "1"),
+                "level": o.get("level", 0.95),
+                "interval": "profile-likelihood interval of k mapped through t(k)",
+                "rule": "complete when the lower bound of the conversion at the last reading "
+                        "reaches the target"}
+    doc = document("completion", [o["file"]], settings, results, warnings)
+    lines = []
+    for name, c in done.items():
+        t = c.t_target
+        lines.append(
+            f"{name}: order {c.law.order}, k = {c.law.fit.params['k'].value:.4g} ± "
+            f"{c.law.fit.params['k'].se:.2g} 1/s\n"
+            f"  conversion at the last reading ({c.t_now / 60:.1f} min): "
+            f"{100 * c.conversion.value:.2f} % [{100 * c.conversion.ci_low:.2f}, "
+            f"{100 * c.conversion.ci_high:.2f}] %\n"
+            f"  time to {100 * c.target:g} %: {t.value / 60:.1f} min "
+            f"[{t.ci_low / 60:.1f}, {t.ci_high / 60:.1f}] min "
+            f"({max(t.value - c.t_now, 0) / 60:.1f} min from the last reading)\n"
+            f"  predicted end absorbance: {c.end_absorbance.value:.4f} ± "
+            f"{c.end_absorbance.se:.2g} A\n"
+            f"  {'COMPLETE' if c.complete else 'NOT YET COMPLETE'}: {c.rule}")
+    for r in results:
+        if r.get("status", "ok") != "ok":
+            lines.append(f"{r['trace']}: {r['status']}")
+    table = "\n".join(lines) + f"\n\n{CAUTION}\n"
+    flat = []
+    for r in results:
+        if r.get("status") != "ok":
+            flat.append({"trace": r["trace"], "status": r["status"]})
+            continue
+        flat.append({"trace": r["trace"], "order": r["order"], "target": r["target"],
+                     "conversion": r["conversion"]["value"],
+                     "conversion_ci_low": r["conversion"]["ci_low"],
+                     "conversion_ci_high": r["conversion"]["ci_high"],
+                     "t_target_s": r["t_target_s"]["value"],
+                     "t_target_s_ci_low": r["t_target_s"]["ci_low"],
+                     "t_target_s_ci_high": r["t_target_s"]["ci_high"],
+                     "complete": r["complete"], "status": "ok"})
+    cols = list(dict.fromkeys(k for f in flat for k in f))
+    return View(doc, table, rows_to_csv(flat, cols), {"traces": ts, "done": done})
+
+
+def run_completion(o: dict, emit) -> View:
+    """The ``completion`` command (one assessment)."""
+    view = compute_completion(o)
+    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "completion")
+    if o.get("out") and o.get("plots", True):
+        from .plots import completion_plot
+
+        for name, c in view.analysis["done"].items():
+            completion_plot(c, view.analysis["traces"], Path(o["out"]) / f"completion_{_safe(name)}.png")
+    return view
+
+
+def _safe(name: str) -> str:
+    import re
+
+    return re.sub(r"[^A-Za-z0-9._-]+", "_", name)[:60] or "trace"
+
+
+# --------------------------------------------------------------------------- temperature
+
+
+def compute_temperature(o: dict) -> View:
+    """The ``temperature`` command's results."""
+    from .io import read_table
+    from .temperature import analyse, read_temperature_table
+    from .units import parse_temperature
+
+    df = read_table(o["file"])
+    T, k, se, cols, kunit = read_temperature_table(df, temp_col=o.get("temp_column"),
+                                                   k_col=o.get("k_column"),
+                                                   se_col=o.get("se_column"),
+                                                   temp_unit=o.get("temp_unit"))
+    a = analyse(T, k, se, level=o.get("level", 0.95), k_unit=kunit)
+    preds = []
+    for at in o.get("at") or ():
+        tk = parse_temperature(at)
+        p = a.predict(tk, o.get("level", 0.95))
+        preds.append({"T_K": tk, "k": p.to_dict()})
+    results = [{"model": "arrhenius", "params": {"Ea": a.params["Ea"].to_dict(),
+                                                  "A": a.params["A"].to_dict()},
+                "equation": "ln k = ln A - Ea/(R T)", "sigma_lnk": a.arrhenius.sigma},
+               {"model": "eyring", "params": {"dH": a.params["dH"].to_dict(),
+                                               "dS": a.params["dS"].to_dict()},
+                "equation": "ln(k/T) = ln(kB/h) + dS/R - dH/(R T)", "sigma_lnk": a.eyring.sigma}]
+    if preds:
+        results.append({"model": "prediction", "predictions": preds})
+    settings = {"columns": cols, "n": int(T.size), "T_range_K": [float(T.min()), float(T.max())],
+                "weighting": a.arrhenius.weighting, "level": o.get("level", 0.95),
+                "constants": "scipy.constants (CODATA)"}
+    doc = document("temperature", [o["file"]], settings, results, a.warnings)
+    rows = [{"p": n, "v": p.value, "se": p.se, "lo": p.ci_low, "hi": p.ci_high, "u": p.unit}
+            for n, p in a.params.items()]
+    table = render_table(rows, [("p", "parameter"), ("v", "value"), ("se", "SE"),
+                                ("lo", f"{100 * o.get('level', 0.95):g}% low"),
+                                ("hi", f"{100 * o.get('level', 0.95):g}% high"), ("u", "unit")],
+                         title=f"Arrhenius and Eyring from {T.size} temperatures "
+                               f"({T.min() - 273.15:.1f} to {T.max() - 273.15:.1f} C)")
+    for pr in preds:
+        kk = pr["k"]
+        table += (f"k at {pr['T_K'] - 273.15:.2f} C ({pr['T_K']:.2f} K): {kk['value']:.4g} "
+                  f"[{kk['ci_low']:.4g}, {kk['ci_high']:.4g}] {kk['unit']}\n")
+    flat = [{"parameter": r["p"], "value": r["v"], "se": r["se"], "ci_low": r["lo"],
+             "ci_high": r["hi"], "unit": r["u"]} for r in rows]
+    return View(doc, table, rows_to_csv(flat, list(flat[0])), a)
+
+
+def run_temperature(o: dict, emit) -> View:
+    """The ``temperature`` command."""
+    view = compute_temperature(o)
+    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "temperature")
+    if o.get("out") and o.get("plots", True):
+        from .plots import arrhenius_plot
+
+        arrhenius_plot(view.analysis, Path(o["out"]) / "temperature_arrhenius.png")
+    return view
+
+
+def follow_completion(o: dict, every: float, max_updates, echo, emit, sleep=None) -> View | None:
+    """Re-read a file an instrument is still writing; print an updated forecast each time.
+
+    Stops when every trace is complete, after ``max_updates`` reads, or on Ctrl-C, then prints
+    the final summary. A half-written last line is left out; a read that cannot yet support a
+    fit says why and waits for more data.
+    """
+    import time as _time
+
+    from .completion import CAUTION
+    from .errors import AnalysisError, InputError
+
+    sleep = sleep or _time.sleep
+    view, n = None, 0
+    echo(f"following {o['file']} every {every:g} s (Ctrl-C stops); {CAUTION}")
+    try:
+        while True:
+            n += 1
+            stamp = _time.strftime("%H:%M:%S")
+            try:
+                view = compute_completion(dict(o, partial=True))
+                done = view.analysis["done"]
+                for name, c in done.items():
+                    echo(f"[{stamp}] {name}: {100 * c.conversion.value:.1f} % at "
+                         f"{c.t_now / 60:.1f} min; {100 * c.target:g} % at "
+                         f"{c.t_target.value / 60:.1f} min [{c.t_target.ci_low / 60:.1f}, "
+                         f"{c.t_target.ci_high / 60:.1f}]"
+                         + ("; COMPLETE" if c.complete else ""))
+                if done and all(c.complete for c in done.values()):
+                    break
+            except (InputError, AnalysisError) as exc:
+                echo(f"[{stamp}] waiting for data: {exc.one_line()}")
+            if max_updates and n >= max_updates:
+                break
+            sleep(every)
+    except KeyboardInterrupt:
+        echo("stopped (Ctrl-C)")
+    if view is None:
+        echo("no forecast could be made from the data read")
+        return None
+    echo("final summary:")
+    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "completion")
+    return view

@@ -158,6 +158,55 @@ def inhibitor_series(rng) -> None:
     _write("inhibition_kbdh_rates.csv", "\n".join(lines) + "\n")
 
 
+PROCESS = {"k_per_s": 8.0e-4, "A0": 1.25, "Ainf": 0.06, "Ea_kJ_per_mol": 65.0}
+
+
+def process_run(rng) -> None:
+    """In-line probe at 520 nm during the hydrolysis of an invented dye (Kestrel Red) in a pilot
+    reactor: first order, read every 30 s for 45 min, still running when exported."""
+    t = np.arange(0, 45 * 60 + 1, 30.0)
+    a = PROCESS["Ainf"] + (PROCESS["A0"] - PROCESS["Ainf"]) * np.exp(-PROCESS["k_per_s"] * t)
+    a = a + rng.normal(0, 0.004, t.size)
+    lines = ["Probe: in-line fibre dip probe, 5 mm gap", "Vessel: pilot reactor R-2, batch 26-118",
+             "Wavelength: 520 nm", "Temperature: 25.0 C", "",
+             "elapsed (min),A520,jacket temp (C)"]
+    for tt, aa in zip(t, a, strict=True):
+        lines.append(f"{tt / 60:.2f},{aa:.4f},{25 + rng.normal(0, 0.05):.2f}")
+    _write("process_kestrel_red_probe.csv", "\n".join(lines) + "\n")
+
+
+def temperature_series(rng) -> None:
+    """First-order k of the same hydrolysis at six temperatures (Ea 65 kJ/mol)."""
+    R = 8.314462618
+    ea = PROCESS["Ea_kJ_per_mol"] * 1e3
+    A = PROCESS["k_per_s"] / np.exp(-ea / (R * 298.15))
+    lines = ["# Kestrel Red hydrolysis, k from ratelaw runs at each temperature (simulated)",
+             "T (C),k (1/s),k_se"]
+    for tc in (15, 20, 25, 30, 35, 40):
+        k = A * np.exp(-ea / (R * (tc + 273.15)))
+        ko = k * (1 + rng.normal(0, 0.025))
+        lines.append(f"{tc},{ko:.5e},{0.025 * ko:.2e}")
+    _write("temperature_kestrel_red.csv", "\n".join(lines) + "\n")
+
+
+def pseudo_series(rng) -> None:
+    """Dye fading in excess hydroxide at five concentrations: kobs = k2 [OH-] + k0."""
+    k2, k0 = 0.42, 1.5e-4                              # L/(mol s), 1/s
+    oh = [0.002, 0.004, 0.008, 0.012, 0.016]            # mol/L
+    t = np.arange(0, 1201, 20.0)
+    cols = []
+    for c in oh:
+        k = k2 * c + k0
+        cols.append(0.03 + 0.85 * np.exp(-k * t) + rng.normal(0, 0.003, t.size))
+    names = [f"run {i + 1}" for i in range(len(oh))]
+    lines = ["Kestrel Red fading in excess NaOH, 25 C, 1 cm cuvettes", "Time (s)," + ",".join(names)]
+    for j, tt in enumerate(t):
+        lines.append(f"{tt:g}," + ",".join(f"{c[j]:.4f}" for c in cols))
+    _write("pseudo_first_order_runs.csv", "\n".join(lines) + "\n")
+    _write("pseudo_first_order_excess.csv", "trace,conc (mM)\n" + "".join(
+        f"{n},{c * 1e3:g}\n" for n, c in zip(names, oh, strict=True)))
+
+
 def _write(name: str, text: str) -> None:
     for folder in (HERE, PACKAGE):
         folder.mkdir(parents=True, exist_ok=True)
@@ -170,6 +219,9 @@ def main() -> None:
     messy(rng)
     transposed(rng)
     inhibitor_series(rng)
+    process_run(rng)
+    temperature_series(rng)
+    pseudo_series(rng)
     for extra in ("README.md",):
         src = HERE / extra
         if src.exists():
