@@ -5,7 +5,8 @@ import sys
 from pathlib import Path
 
 HERE = Path(__file__).parent
-SCRIPTS = ["bench_rates.py", "bench_bootstrap.py", "window_hit_rates.py", "mode_choice.py"]
+SCRIPTS = ["bench_rates.py", "bench_bootstrap.py", "window_hit_rates.py", "mode_choice.py",
+           "order_choice.py", "completion_coverage.py", "bench_grade.py"]
 
 if __name__ == "__main__":
     sys.path.insert(0, str(HERE))

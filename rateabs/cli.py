@@ -410,6 +410,43 @@ def temperature(file, temp_column, k_column, se_column, temp_unit, at, level, pl
 
 
 @main.command()
+@click.argument("file", type=click.Path())
+@_reader_options
+@click.option("--s0", default=None, help="Initial substrate concentration of every curve, e.g. "
+              "'100 uM' (a bare number is uM).")
+@click.option("--s0-column", default=None, help="Per-curve column holding S0 (long layout).")
+@click.option("--layout", "layout_file", type=click.Path(), default=None,
+              help="Plate map giving each curve's substrate (and enzyme) concentration.")
+@click.option("--epsilon", default=None, help="Molar absorptivity of the absorbing species.")
+@click.option("--chromophore", default=None, help="Take epsilon from the table.")
+@click.option("--pathlength", default=None, help="Pathlength, e.g. '1 cm'.")
+@click.option("--species", type=click.Choice(["product", "substrate"]), default="product",
+              show_default=True, help="Which species absorbs.")
+@click.option("--product-inhibition", is_flag=True, help="Add competitive product inhibition (Kp).")
+@click.option("--selwyn", default=None, metavar="COL",
+              help="Per-curve enzyme amount column: run Selwyn's test.")
+@click.option("--trace", multiple=True, help="Use only this curve (repeatable).")
+@click.option("--ci", type=click.Choice(["asymptotic", "profile"]), default="asymptotic",
+              show_default=True)
+@click.option("--level", type=float, default=0.95, show_default=True)
+@click.option("--plots/--no-plots", default=True, show_default=True)
+@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--out", type=click.Path(file_okay=False), default=None)
+@_guarded
+def progress(file, time_unit, signal, i0, sheet, s0, s0_column, layout_file, epsilon,
+             chromophore, pathlength, species, product_inhibition, selwyn, trace, ci, level,
+             plots, fmt, out):
+    """Integrated Michaelis-Menten fit of whole progress curves in FILE (and Selwyn's test)."""
+    from .views import run_progress
+
+    run_progress(dict(file=file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet, s0=s0,
+                      s0_column=s0_column, layout_file=layout_file, epsilon=epsilon,
+                      chromophore=chromophore, pathlength=pathlength, species=species,
+                      product_inhibition=product_inhibition, selwyn=selwyn, trace=trace, ci=ci,
+                      level=level, plots=plots, fmt=fmt, out=out), _emit)
+
+
+@main.command()
 @click.option("--out", type=click.Path(file_okay=False), default="rateabs-demo",
               show_default=True, help="Folder for the demo's results, plots and summary.")
 @_guarded

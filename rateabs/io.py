@@ -536,6 +536,7 @@ def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
             warnings.append(f"ignored {trailing} line(s) after the table (a second section)")
         layout, parts = _normal(header, body, body_lines, decimal, time_unit, path)
     names, times, values, flags, extra, t_unit, t_source, hdr_words = parts
+    per_trace = extra.pop("__per_trace__", {})
     if not names:
         raise InputError("no trace columns were found next to the time column",
                          "export one column (or row) of readings per well or sample")
@@ -591,6 +592,9 @@ def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
         signal_source="option" if signal else ("header" if kind_found else "assumed"),
         metadata=meta, extra_columns=extra, warnings=warnings,
     )
+    for col, vals in per_trace.items():
+        ts.meta[col] = [vals.get(n) for n in ts.meta.index]
+    ts.info["per_trace_columns"] = list(per_trace)
     facts = _file_facts(meta)
     ts.info.update(facts)
     for key, val in facts.items():
@@ -743,6 +747,21 @@ def _long(header, cols, lines, decimal, time_j, trace_j, text_cols, meta_cols, e
     times = np.full((len(names), m), np.nan)
     values = np.full((len(names), m), np.nan)
     flags = np.full((len(names), m), "missing", dtype=object)
+    # other columns that are constant within a trace become per-trace metadata (S0, enzyme...)
+    per_trace: dict[str, dict[str, object]] = {}
+    for j in range(len(header)):
+        if j in (time_j, trace_j, value_j) or j in empty_cols or j in meta_cols:
+            continue
+        vals = {}
+        for n in names:
+            cells = {cols[j][i].strip() for i in idx[n]}
+            if len(cells) != 1:
+                break
+            c = cells.pop()
+            vals[n] = _to_float(c, decimal) if _kind(c, decimal) == "num" else c
+        else:
+            per_trace[header[j]] = vals
+    extra["__per_trace__"] = per_trace
     for r, n in enumerate(names):
         ix = np.asarray(idx[n])
         order = np.argsort(t[ix], kind="stable")

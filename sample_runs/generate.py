@@ -207,6 +207,37 @@ def pseudo_series(rng) -> None:
         f"{n},{c * 1e3:g}\n" for n, c in zip(names, oh, strict=True)))
 
 
+KBAP = {"Km_uM": 60.0, "Vmax_uM_per_min_per_nM": 3.0, "eps_405": 18000.0}
+
+
+def _progress(t, s0, e_nM, kd=0.0):
+    from scipy.integrate import solve_ivp
+
+    vmax = KBAP["Vmax_uM_per_min_per_nM"] * e_nM / 60.0          # uM/s
+
+    def rhs(tt, y):
+        return [-vmax * np.exp(-kd * tt) * y[0] / (KBAP["Km_uM"] + y[0])]
+
+    sol = solve_ivp(rhs, (0, t[-1]), [s0], t_eval=t, rtol=1e-10, atol=1e-12)
+    return s0 - sol.y[0]                                         # product, uM
+
+
+def progress_sets(rng) -> None:
+    """KbAP progress curves at 405 nm (p-nitrophenolate, 1 cm): four S0 at 1 nM enzyme and two
+    more enzyme amounts at S0 = 100 uM (a Selwyn set); a second set whose enzyme decays."""
+    t = np.arange(0, 30 * 60 + 1, 20.0)
+    for name, kd in (("progress_kbap_405nm.csv", 0.0), ("progress_kbap_unstable.csv", 1.2e-3)):
+        lines = ["KbAP progress curves, 405 nm, 1 cm cuvettes, 25 C (simulated)",
+                 "curve,S0 (uM),enzyme (nM),time (s),A405"]
+        sets = [(20, 1.0), (50, 1.0), (100, 1.0), (200, 1.0), (100, 0.5), (100, 2.0)]
+        for k, (s0, e) in enumerate(sets):
+            a = 0.04 + KBAP["eps_405"] * 1e-6 * _progress(t, s0, e, kd)
+            a = a + rng.normal(0, 0.003, t.size)
+            for tt, aa in zip(t, a, strict=True):
+                lines.append(f"c{k + 1},{s0},{e},{tt:g},{aa:.4f}")
+        _write(name, "\n".join(lines) + "\n")
+
+
 def _write(name: str, text: str) -> None:
     for folder in (HERE, PACKAGE):
         folder.mkdir(parents=True, exist_ok=True)
@@ -222,6 +253,7 @@ def main() -> None:
     process_run(rng)
     temperature_series(rng)
     pseudo_series(rng)
+    progress_sets(rng)
     for extra in ("README.md",):
         src = HERE / extra
         if src.exists():
