@@ -444,7 +444,6 @@ def progress_plots(a, out):
     """Curves with the global fit and residuals; the Selwyn overlay when enzyme amounts vary."""
     c = a.curves
     r = a.fit
-    vals = list(r.values().values())
     files = []
     with house_style() as plt:
         fig, (ax, axr) = plt.subplots(2, 1, figsize=(7, 5.6), sharex=True,

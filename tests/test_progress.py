@@ -41,7 +41,7 @@ def _simulate(seed, kd=0.0, enzymes=(1.0,), s0s=(20, 50, 100, 200), km=60.0, v=3
     names, ts, ps, s0, en = [], [], [], [], []
     for s in s0s:
         for e in enzymes:
-            sol = solve_ivp(lambda tt, y: [-v * e * np.exp(-kd * tt) * y[0] / (km + y[0])],
+            sol = solve_ivp(lambda tt, y, e=e: [-v * e * np.exp(-kd * tt) * y[0] / (km + y[0])],
                             (0, t[-1]), [s], t_eval=t, rtol=1e-10)
             names.append(f"S{s}E{e}")
             ts.append(t)
