@@ -447,6 +447,25 @@ def progress(file, time_unit, signal, i0, sheet, s0, s0_column, layout_file, eps
 
 
 @main.command()
+@click.argument("folder", type=click.Path())
+@click.option("--rubric", type=click.Path(), required=True, help="Rubric TOML file.")
+@click.option("--jobs", type=int, default=None, help="Worker processes (default: all cores).")
+@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--out", type=click.Path(file_okay=False), default=None,
+              help="Folder for the gradebook, feedback pages and class summary.")
+@_guarded
+def grade(folder, rubric, jobs, fmt, out):
+    """Batch-grade a class's runs in FOLDER (roster.csv plus one file per student)."""
+    from .grade import read_roster
+    from .views import run_grade
+
+    n = len(read_roster(folder))
+    with click.progressbar(length=n, label="grading", file=sys.stderr) as bar:
+        run_grade(dict(folder=folder, rubric=rubric, jobs=jobs, fmt=fmt, out=out), _emit,
+                  progressbar=bar.update)
+
+
+@main.command()
 @click.option("--out", type=click.Path(file_okay=False), default="rateabs-demo",
               show_default=True, help="Folder for the demo's results, plots and summary.")
 @_guarded

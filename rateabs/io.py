@@ -305,9 +305,9 @@ def _find_header(rows, decimal) -> tuple[int, str]:
     for i in range(len(rows) - 1):
         if widths[i] < 2 or len(rows[i]) < mode or not texty(i):
             continue
-        following = [j for j in range(i + 1, min(len(rows), i + 6)) if widths[j] >= 2]
-        if not following:
-            continue
+        following = [j for j in range(i + 1, min(len(rows), i + 8)) if widths[j] >= 2][:5]
+        if not following or all(k in ("text", "empty") for k in kinds[following[0]]):
+            continue            # the header is the last line of words before the data
         for col, k in enumerate(kinds[i]):
             if k != "text":
                 continue
@@ -618,6 +618,9 @@ def _body(rows, lines, hdr, ncols, decimal):
         r = rows[i]
         if _width(r) == 0:
             rest = [j for j in range(i + 1, len(rows)) if _width(rows[j])]
+            if not body:          # blank lines between the header and the data
+                i += 1
+                continue
             if rest:
                 return body, body_lines, len(rest)
             break

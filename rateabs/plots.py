@@ -491,3 +491,23 @@ def progress_plots(a, out):
             ax.legend(loc="lower right")
             files.append(save(fig, out / "progress_selwyn.png"))
     return files
+
+
+def class_summary_plot(results, rubric, path):
+    """Each student's own value as a dot, the reference line and the tolerance band."""
+    vals = [(r["student"], r["value"]) for r in results if r["value"] is not None]
+    with house_style() as plt:
+        fig, ax = plt.subplots(figsize=(7.2, max(2.6, 0.2 * len(vals) + 1.2)))
+        ref, tol = rubric.reference, rubric.tolerance_pct / 100
+        ax.axvspan(ref * (1 - tol), ref * (1 + tol), color=PALETTE[2], alpha=0.18, lw=0,
+                   label=f"reference ± {rubric.tolerance_pct:g} %")
+        ax.axvline(ref, color=PALETTE[2], lw=1.4)
+        for k, (name, v) in enumerate(vals):
+            inside = abs(v / ref - 1) <= tol
+            ax.plot(v, k, "o", ms=5, color=PALETTE[0] if inside else PALETTE[1])
+        ax.set_yticks(range(len(vals)), [n[:24] for n, _ in vals], fontsize=7)
+        ax.invert_yaxis()
+        ax.set_xlabel(f"{rubric.quantity} from each student's own data ({rubric.unit})")
+        ax.set_title("class distribution (orange: outside the tolerance band)")
+        ax.legend(loc="best")
+        return save(fig, path)

@@ -238,9 +238,89 @@ def progress_sets(rng) -> None:
         _write(name, "\n".join(lines) + "\n")
 
 
+CLASS = "class_kestrel_red"
+
+
+def class_runs(rng) -> None:
+    """A teaching lab's runs: each student followed Kestrel Red fading at 520 nm (first order,
+    k about 8.0e-4 1/s at 25 C) and reported k in 1/s. Mistakes are planted (see the roster's
+    'planted' column, which only the generator and the tests read)."""
+    t = np.arange(0, 40 * 60 + 1, 30.0)
+    students = [
+        ("Ada Brennholt", "sound", "s"), ("Bo Lindqvist", "sound", "min"),
+        ("Chidi Okafor", "minutes", "s"), ("Dana Ruiz", "log10", "clock"),
+        ("Elin Sato", "half-life", "s"), ("Farid Haddad", "sign", "min"),
+        ("Greta Nilsen", "recorded-%T", "s"), ("Hugo Marais", "analysed-%T", "s"),
+        ("Ines Kowalczyk", "time-constant", "min"), ("Jonah Pike", "noisy", "s"),
+        ("Kira Vance", "warm-bath", "s"), ("Liam O'Shea", "missing-file", "s"),
+        ("Mara Quist", "path-escape", "s"), ("<b>Nils</b> & <script>x</script>", "sound", "s"),
+        ("Oona Fenwick", "minutes+log10", "s"),
+    ]
+    from rateabs.models import order1
+    from rateabs.ratelaws import fit_trace
+
+    roster = ["student,file,reported,bench,planted"]
+    for i, (name, slip, tstyle) in enumerate(students):
+        k = 8.0e-4 * (1 + rng.normal(0, 0.01))
+        if slip == "warm-bath":
+            k *= 1.35
+        noise = 0.03 if slip == "noisy" else 0.004
+        a = order1(t, 1.2 + rng.normal(0, 0.05), 0.05, k) + rng.normal(0, noise, t.size)
+        fname = f"run_{i + 1:02d}.csv"
+        if slip in ("recorded-%T", "analysed-%T"):
+            vals = 100 * 10 ** (-a)
+            header = "Absorbance" if slip == "recorded-%T" else "%T"
+        else:
+            vals = a
+            header = "A520"
+        tcol = {"s": ("time (s)", t), "min": ("time (min)", t / 60)}.get(tstyle)
+        lines = [f"Student: {name}", "Instrument: bench spectrophotometer, 520 nm", ""]
+        if tstyle == "clock":
+            lines.append(f"Time,{header}")
+            for tt, v in zip(t, vals, strict=True):
+                lines.append(f"{int(tt) // 60:02d}:{int(tt) % 60:02d},{v:.4f}")
+        else:
+            lines.append(f"{tcol[0]},{header}")
+            for tt, v in zip(tcol[1], vals, strict=True):
+                lines.append(f"{tt:g},{v:.4f}")
+        k_fit = fit_trace(t, a, order="1", ci="asymptotic").fit.params["k"].value
+        reported = {"sound": k_fit, "noisy": k_fit, "warm-bath": k_fit,
+                    "minutes": k_fit * 60, "log10": k_fit / np.log(10),
+                    "half-life": np.log(2) / k_fit, "sign": -k_fit,
+                    "recorded-%T": k_fit, "time-constant": 1 / k_fit / 60,
+                    "minutes+log10": k_fit * 60 / np.log(10), "missing-file": k_fit,
+                    "path-escape": k_fit}.get(slip, k_fit)
+        if slip == "analysed-%T":
+            reported = fit_trace(t, vals, order="1", ci="asymptotic").fit.params["k"].value
+        reported *= 1 + rng.normal(0, 0.005)
+        if slip == "missing-file":
+            fname = "run_lost.csv"
+        elif slip == "path-escape":
+            fname = "../../outside.csv"
+        else:
+            _write(f"{CLASS}/{fname}", "\n".join(lines) + "\n")
+        cell = f'"{name}"' if "," in name else name
+        roster.append(f"{cell},{fname},{reported:.4g},{1 + i % 4},{slip}")
+    _write(f"{CLASS}/roster.csv", "\n".join(roster) + "\n")
+    _write(f"{CLASS}/rubric.toml", '''# Rubric of the Kestrel Red fading practical (format: docs/formats.md)
+[assignment]
+title = "Fading of Kestrel Red in base"
+quantity = "k"
+model = "first-order"
+unit = "1/s"
+reference = 8.0e-4
+tolerance_pct = 5
+
+[weights]
+data = 20
+report = 50
+reference = 30
+''')
+
+
 def _write(name: str, text: str) -> None:
     for folder in (HERE, PACKAGE):
-        folder.mkdir(parents=True, exist_ok=True)
+        (folder / name).parent.mkdir(parents=True, exist_ok=True)
         (folder / name).write_bytes(text.encode("utf-8"))
 
 
@@ -254,6 +334,7 @@ def main() -> None:
     temperature_series(rng)
     pseudo_series(rng)
     progress_sets(rng)
+    class_runs(rng)
     for extra in ("README.md",):
         src = HERE / extra
         if src.exists():

@@ -1,0 +1,177 @@
+"""Batch grading: planted mistakes found, scores by hand, unsafe input, parallel classes."""
+
+import json
+import math
+import shutil
+from concurrent.futures import ThreadPoolExecutor
+from pathlib import Path
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+
+from rateabs.cli import main
+from rateabs.grade import Rubric, agreement, data_quality, grade_class, read_rubric
+from rateabs.models import order1
+
+SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
+CLASS = SAMPLES / "class_kestrel_red"
+
+EXPECT = {  # planted slip -> words the diagnosis must hold (ground truth in roster 'planted')
+    "sound": "no slip found", "noisy": "no slip found", "warm-bath": "class reference",
+    "minutes": "factor of 60", "log10": "2.303", "half-life": "half-life",
+    "sign": "sign is wrong", "recorded-%T": "percent transmittance",
+    "analysed-%T": "analysed as if they were absorbance", "time-constant": "time constant",
+    "missing-file": "missing", "path-escape": "leaves the class folder",
+    "minutes+log10": "two slips",
+}
+
+
+def test_sample_class_every_planted_mistake_named(tmp_path):
+    r = CliRunner().invoke(main, ["grade", str(CLASS), "--rubric", str(CLASS / "rubric.toml"),
+                                  "--format", "json", "--jobs", "2", "--out", str(tmp_path)])
+    assert r.exit_code == 0, r.output
+    doc = json.loads(r.stdout)
+    roster = [ln.split(",") for ln in (CLASS / "roster.csv").read_text().splitlines()[1:]]
+    planted = {row[0].strip('"'): row[-1] for row in roster}
+    res = doc["results"]
+    assert [x["student"] for x in res] == list(planted)          # roster order kept
+    hits = 0
+    for x in res:
+        words = EXPECT[planted[x["student"]]]
+        hits += any(words in d for d in x["diagnosis"])
+        assert {"student", "score", "diagnosis"} <= set(x)
+    assert hits == len(res)
+    sound = [x["score"] for x in res if planted[x["student"]] == "sound"]
+    assert min(sound) >= 95
+    assert all(x["score"] <= 50 for x in res if planted[x["student"]] in ("minutes", "sign"))
+    book = (tmp_path / "gradebook.csv").read_text()
+    assert "bench" in book.splitlines()[0]                       # extra roster columns carried
+    assert (tmp_path / "class_summary.html").exists()
+
+
+def test_html_is_escaped(tmp_path):
+    CliRunner().invoke(main, ["grade", str(CLASS), "--rubric", str(CLASS / "rubric.toml"),
+                              "--jobs", "1", "--out", str(tmp_path)])
+    pages = list((tmp_path / "feedback").glob("*.html")) + [tmp_path / "class_summary.html"]
+    for p in pages:
+        text = p.read_text()
+        assert "<script>x" not in text and "<b>Nils" not in text
+    assert "&lt;script&gt;x&lt;/script&gt;" in (tmp_path / "class_summary.html").read_text()
+
+
+def test_hand_worked_score():
+    # own value 1.00, reported 1.08 (8 % off, tolerance 5 % -> 1 - 3/20 = 0.85),
+    # own vs reference 1.00 vs 1.00 (1.0), relative SE 11 % (1 - 0.09/0.18 = 0.5)
+    # score = 100 (20*0.5 + 50*0.85 + 30*1.0) / 100 = 82.5
+    parts = {"data": data_quality(0.11, 0), "report": agreement(1.08, 1.0, 5),
+             "reference": agreement(1.0, 1.0, 5)}
+    assert parts == pytest.approx({"data": 0.5, "report": 0.85, "reference": 1.0})
+    w = {"data": 20, "report": 50, "reference": 30}
+    assert 100 * sum(w[k] * parts[k] for k in w) / 100 == pytest.approx(82.5)
+    assert agreement(1.3, 1.0, 5) == 0.0 and data_quality(0.01, 3) == pytest.approx(0.8)
+
+
+def _make_class(folder: Path, n: int, quantity="k", seed=0):
+    folder.mkdir(parents=True, exist_ok=True)
+    rng = np.random.default_rng(seed)
+    t = np.arange(0, 2401, 60.0)
+    rows = ["student,file,reported"]
+    for i in range(n):
+        k = 8e-4 * (1 + rng.normal(0, 0.01))
+        a = order1(t, 1.1, 0.05, k) + rng.normal(0, 0.004, t.size)
+        (folder / f"r{i}.csv").write_text("time (s),A\n" + "".join(
+            f"{tt:g},{v:.4f}\n" for tt, v in zip(t, a, strict=True)))
+        rows.append(f"s{i:03d},r{i}.csv,{k:.4g}")
+    (folder / "roster.csv").write_text("\n".join(rows) + "\n")
+    (folder / "rubric.toml").write_text('[assignment]\nquantity = "k"\nunit = "1/s"\n'
+                                        'reference = 8e-4\ntolerance_pct = 5\n')
+
+
+def test_class_of_300_in_parallel_keeps_order(tmp_path):
+    _make_class(tmp_path / "c", 300)
+    r = CliRunner().invoke(main, ["grade", str(tmp_path / "c"), "--rubric",
+                                  str(tmp_path / "c" / "rubric.toml"), "--jobs", "2",
+                                  "--format", "json"])
+    assert r.exit_code == 0, r.output
+    res = json.loads(r.stdout)["results"]
+    assert [x["student"] for x in res] == [f"s{i:03d}" for i in range(300)]
+    assert np.mean([x["score"] for x in res]) > 90
+
+
+def test_executor_seam_accepts_any_executor(tmp_path):
+    _make_class(tmp_path / "c", 6)
+    rub = read_rubric(tmp_path / "c" / "rubric.toml")
+    with ThreadPoolExecutor(2) as ex:
+        a = grade_class(tmp_path / "c", rub, executor=ex, plots=False)
+    b = grade_class(tmp_path / "c", rub, plots=False)
+    assert [x["score"] for x in a] == [x["score"] for x in b]
+
+
+def test_v0_assignment_concentration_and_pathlength_slips(tmp_path):
+    # initial rate in uM/min with epsilon 6220 and 1 cm: mM/uM slip (1000) and mm/cm slip (10)
+    f = tmp_path / "v"
+    f.mkdir()
+    t = np.arange(0, 301, 15.0)
+    y = 0.2 + 0.0311 * t / 60 + np.random.default_rng(1).normal(0, 0.001, t.size)
+    (f / "a.csv").write_text("Time (s),A340\n" + "".join(f"{a:g},{b:.5f}\n" for a, b in zip(
+        t, y, strict=True)))
+    v = 0.0311 / 6220 * 1e6                              # 5.0 uM/min
+    (f / "roster.csv").write_text(f"student,file,reported\nok,a.csv,{v:.4g}\nmilli,a.csv,"
+                                  f"{v / 1000:.4g}\npath,a.csv,{v * 10:.4g}\n")
+    (f / "rubric.toml").write_text('[assignment]\nquantity = "v0"\nmodel = "initial-rate"\n'
+                                   'unit = "uM/min"\nreference = 5.0\ntolerance_pct = 5\n'
+                                   'epsilon = "6220"\npathlength = "1 cm"\n')
+    res = grade_class(f, read_rubric(f / "rubric.toml"), plots=False)
+    d = {x["student"]: " ".join(x["diagnosis"]) for x in res}
+    assert "no slip" in d["ok"] and "1000" in d["milli"] and "pathlength" in d["path"]
+
+
+@pytest.mark.parametrize("fname", ["../x.csv", "/etc/passwd", "sub/../../x.csv", "~/x.csv"])
+def test_path_escape_rejected(tmp_path, fname):
+    _make_class(tmp_path / "c", 1)
+    roster = tmp_path / "c" / "roster.csv"
+    roster.write_text(f"student,file,reported\nmallory,{fname},1e-3\n")
+    (tmp_path / "x.csv").write_text("time (s),A\n0,1\n")
+    res = grade_class(tmp_path / "c", read_rubric(tmp_path / "c" / "rubric.toml"), plots=False)
+    assert res[0]["status"] == "not analysed"
+    assert "class folder" in res[0]["diagnosis"][0]
+
+
+def test_symlink_out_of_folder_rejected(tmp_path):
+    _make_class(tmp_path / "c", 1)
+    outside = tmp_path / "secret.csv"
+    shutil.copy(tmp_path / "c" / "r0.csv", outside)
+    (tmp_path / "c" / "link.csv").symlink_to(outside)
+    (tmp_path / "c" / "roster.csv").write_text("student,file,reported\nm,link.csv,1e-3\n")
+    res = grade_class(tmp_path / "c", read_rubric(tmp_path / "c" / "rubric.toml"), plots=False)
+    assert "outside the class folder" in res[0]["diagnosis"][0]
+
+
+def test_broken_student_file_gets_a_row(tmp_path):
+    _make_class(tmp_path / "c", 3)
+    (tmp_path / "c" / "r1.csv").write_text("this is not data\n")
+    res = grade_class(tmp_path / "c", read_rubric(tmp_path / "c" / "rubric.toml"), plots=False)
+    assert res[1]["status"] == "not analysed" and res[0]["status"] == res[2]["status"] == "graded"
+
+
+@pytest.mark.parametrize("text,words", [
+    ('[assignment]\nquantity = "q"\nunit = "1/s"\nreference = 1\ntolerance_pct = 5\n',
+     "unknown quantity"),
+    ('[assignment]\nquantity = "k"\nunit = "furlong"\nreference = 1\ntolerance_pct = 5\n',
+     "does not fit"),
+    ('[assignment]\nquantity = "k"\nunit = "1/s"\ntolerance_pct = 5\n', "no 'reference'"),
+    ("not [toml", "not valid TOML"),
+])
+def test_bad_rubric(tmp_path, text, words):
+    _make_class(tmp_path / "c", 1)
+    (tmp_path / "c" / "rubric.toml").write_text(text)
+    r = CliRunner().invoke(main, ["grade", str(tmp_path / "c"), "--rubric",
+                                  str(tmp_path / "c" / "rubric.toml")])
+    assert r.exit_code == 3 and words in r.output
+
+
+def test_rubric_defaults():
+    r = Rubric("k", "first-order", "1/s", 8e-4, 5)
+    assert r.weights == {"data": 20.0, "report": 50.0, "reference": 30.0}
+    assert math.isclose(sum(r.weights.values()), 100)
