@@ -368,7 +368,8 @@ def grade_one(task: Task, rubric: dict, plots: bool = True) -> dict:
     score = 100 * sum(w[k] * parts[k] for k in parts) / sum(w.values())
     diag = diagnose(task.reported, own, rubric)
     if parts["reference"] < 1:
-        diag.append(f"your own data give {_g(v)} {rubric['unit']}, {100 * (v / rubric['reference'] - 1):+.0f} % "
+        off = 100 * (v / rubric["reference"] - 1)
+        diag.append(f"your own data give {_g(v)} {rubric['unit']}, {off:+.0f} % "
                     f"from the class reference {_g(rubric['reference'])}: check the temperature, "
                     "the concentrations and the blank of your run")
     if own["masked"]:

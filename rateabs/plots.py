@@ -502,7 +502,7 @@ def class_summary_plot(results, rubric, path):
         ax.axvspan(ref * (1 - tol), ref * (1 + tol), color=PALETTE[2], alpha=0.18, lw=0,
                    label=f"reference ± {rubric.tolerance_pct:g} %")
         ax.axvline(ref, color=PALETTE[2], lw=1.4)
-        for k, (name, v) in enumerate(vals):
+        for k, (_, v) in enumerate(vals):
             inside = abs(v / ref - 1) <= tol
             ax.plot(v, k, "o", ms=5, color=PALETTE[0] if inside else PALETTE[1])
         ax.set_yticks(range(len(vals)), [n[:24] for n, _ in vals], fontsize=7)
