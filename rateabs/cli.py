@@ -72,6 +72,11 @@ def _reader_options(fn):
     return fn
 
 
+def _report_option(fn):
+    return click.option("--report", type=click.Path(dir_okay=False), default=None,
+                        help="Write one self-contained HTML report (plots inline) to this file.")(fn)
+
+
 def _emit(fmt: str, doc: dict, table: str, csv_text: str, out, name: str) -> None:
     from .output import to_json, write_text
 
@@ -97,33 +102,14 @@ def _emit(fmt: str, doc: dict, table: str, csv_text: str, out, name: str) -> Non
 @click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
 @click.option("--out", type=click.Path(file_okay=False), default=None,
               help="Folder for inspect.json and inspect.csv.")
+@_report_option
 @_guarded
-def inspect(file, time_unit, signal, i0, sheet, linear_limit, fmt, out):
+def inspect(file, time_unit, signal, i0, sheet, linear_limit, fmt, out, report):
     """Show what the reader found in FILE: traces, time unit, signal kind, flags."""
-    from .inspecting import inspect_file
-    from .output import document, render_table, rows_to_csv
+    from .views import run_inspect
 
-    summary = inspect_file(file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet,
-                           linear_limit=linear_limit)
-    doc = document("inspect", [file], summary.settings, summary.results, summary.warnings)
-    cols = [("trace", "trace"), ("n_points", "n"), ("t_start_s", "t start (s)"),
-            ("t_end_s", "t end (s)"), ("A_first", "A first (AU)"), ("A_last", "A last (AU)"),
-            ("flags", "flags")]
-    s = summary.settings
-    head = [f"file       {file}",
-            f"format     {s['format']} (delimiter {s['delimiter']!r}, decimal {s['decimal']!r}, "
-            f"encoding {s['encoding']})",
-            f"layout     {s['layout']}, header on line {s['header_row']}",
-            f"time       {s['time_unit']} ({s['time_unit_source']})",
-            f"signal     {s['signal_kind']} ({s['signal_source']}), shown as absorbance",
-            f"limit      readings above A = {s['linear_limit']:g} flagged past-linear"]
-    for k, v in s["metadata"].items():
-        head.append(f"meta       {k}: {v}")
-    for k, v in s["extra_columns"].items():
-        head.append(f"column     {k}: kept as metadata ({v})")
-    table = "\n".join(head) + "\n\n" + render_table(summary.results, cols)
-    csv_text = rows_to_csv(summary.results, [c for c, _ in cols])
-    _emit(fmt, doc, table, csv_text, out, "inspect")
+    run_inspect(dict(file=file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet,
+                     linear_limit=linear_limit, fmt=fmt, out=out, report=report), _emit)
 
 
 def _parse_window(text: str):
@@ -183,11 +169,12 @@ def _parse_window(text: str):
 @click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
 @click.option("--out", type=click.Path(file_okay=False), default=None,
               help="Folder for rates.json/.csv, replicates.csv and plots.")
+@_report_option
 @_guarded
 def rates(file, time_unit, signal, i0, sheet, layout_file, epsilon, epsilon_se, chromophore,
           pathlength, well_volume, plate, total_volume, sample_volume, protein, dilution, window,
           min_points, blank, direction, linear_limit, noisy_limit, katal, slope_from, plots, fmt,
-          out):
+          out, report):
     """Initial rate of each trace in FILE, converted to concentration and activity."""
     from .views import run_rates
 
@@ -198,7 +185,8 @@ def rates(file, time_unit, signal, i0, sheet, layout_file, epsilon, epsilon_se, 
                    protein=protein, dilution=dilution, window=_parse_window(window),
                    min_points=min_points, blank=blank, direction=direction,
                    linear_limit=linear_limit, noisy_limit=noisy_limit, katal=katal,
-                   slope_from=slope_from, plots=plots, fmt=fmt, out=out), _emit)
+                   slope_from=slope_from, plots=plots, fmt=fmt, out=out, report=report),
+              _emit)
 
 
 def _parse_fix(items) -> dict:
@@ -245,65 +233,25 @@ def _parse_fix(items) -> dict:
               show_default=True, help="Bootstrap scheme.")
 @click.option("--seed", type=int, default=0, show_default=True, help="Bootstrap seed.")
 @click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
+@click.option("--select", multiple=True, metavar="COL=VALUE",
+              help="Use only rows whose COL equals VALUE (repeatable), e.g. sample=KbDH1.")
+@click.option("--plots/--no-plots", default=True, show_default=True)
 @click.option("--out", type=click.Path(file_okay=False), default=None,
               help="Folder for saturation.json/.csv and plots.")
+@_report_option
 @_guarded
 def saturation(file, conc, rate, inhibitor, sd_col, model, ci, level, weighting, fix, enzyme,
                conc_unit, rate_unit, inhibitor_unit, mode, substrate, km, resamples, resample,
-               seed, fmt, out):
+               seed, fmt, select, plots, out, report):
     """Michaelis-Menten family and inhibition fits of rate vs concentration in FILE."""
-    from pathlib import Path
+    from .views import run_saturation
 
-    from .io import read_table
-    from .output import document, flatten_params, render_table, rows_to_csv
-    from .saturation import analyse, results_json, table_data
-    from .units import parse_concentration
-
-    df = read_table(file)
-    if "role" in df.columns:
-        df = df[df["role"].astype(str).str.strip().str.lower().isin(["sample", ""])]
-        df.attrs["source"] = file
-    data = table_data(df, conc=conc, rate=rate, inhibitor=inhibitor, sd=sd_col,
-                      conc_unit=conc_unit, rate_unit=rate_unit, inhib_unit=inhibitor_unit,
-                      need_inhibitor=model == "ic50")
-    enzyme_m = parse_concentration(enzyme, default="nM") if enzyme else None
-    a = analyse(data, model=model, ci=ci, level=level, weighting=weighting, fix=_parse_fix(fix),
-                enzyme_M=enzyme_m, n_boot=resamples, resample=resample, seed=seed, mode=mode,
-                substrate=substrate, km=km)
-    results = results_json(a)
-    settings = {"model": model, "ci": ci, "level": level, "weighting": weighting,
-                "fixed": _parse_fix(fix), "columns": data.columns, "conc_unit": data.conc_unit,
-                "rate_unit": data.rate_unit, "inhibitor_unit": data.inhib_unit,
-                "enzyme_M": enzyme_m, "n_points": int(data.v.size)}
-    if ci == "bootstrap":
-        settings.update(resamples=resamples, resample=resample, seed=seed)
-    doc = document("saturation", [file], settings, results, a.warnings)
-    chosen = next(r for r in results if r.get("chosen"))
-    prow = [{"param": k, **v} for k, v in chosen["params"].items()]
-    table = render_table(prow, [("param", "parameter"), ("value", "value"), ("se", "SE"),
-                                ("ci_low", f"{100 * level:g}% low"),
-                                ("ci_high", f"{100 * level:g}% high"), ("unit", "unit"),
-                                ("ci_method", "interval")],
-                         title=f"chosen model: {a.chosen}   ({chosen['equation']})")
-    table += (f"n = {data.v.size} points, residual SE = {a.best.sigma:.4g} {data.rate_unit}, "
-              f"runs test p = {a.best.runs_p:.3g}\n")
-    if a.comparison is not None:
-        table += "\nevidence\n" + a.comparison.report() + "\n"
-    if a.cross_check:
-        cc = a.cross_check
-        table += (f"\ncross-check, {cc['method']}: Vmax = {cc['Vmax']:.4g} {data.rate_unit}, "
-                  f"Km = {cc['Km']:.4g} {data.conc_unit}\n")
-    flat = [flatten_params({"model": r["model"], "chosen": r["chosen"], "aicc": r.get("aicc"),
-                            "status": r.get("status"), "params": r["params"]}) for r in results]
-    cols = list(dict.fromkeys(k for f in flat for k in f))
-    if out:
-        from .plots import linearised, saturation_fit
-
-        Path(out).mkdir(parents=True, exist_ok=True)
-        saturation_fit(a, Path(out) / "saturation_fit.png", title=Path(file).stem)
-        if model != "ic50" and a.chosen != "ic50":
-            linearised(a, Path(out) / "saturation_linearised.png")
-    _emit(fmt, doc, table, rows_to_csv(flat, cols), out, "saturation")
+    run_saturation(dict(file=file, conc=conc, rate=rate, inhibitor=inhibitor, sd=sd_col,
+                        model=model, ci=ci, level=level, weighting=weighting, fix=_parse_fix(fix),
+                        enzyme=enzyme, conc_unit=conc_unit, rate_unit=rate_unit,
+                        inhibitor_unit=inhibitor_unit, mode=mode, substrate=substrate, km=km,
+                        resamples=resamples, resample=resample, seed=seed, select=select,
+                        plots=plots, fmt=fmt, out=out, report=report), _emit)
 
 
 def _law_options(fn):
@@ -340,10 +288,11 @@ def _law_options(fn):
 @click.option("--plots/--no-plots", default=True, show_default=True)
 @click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
 @click.option("--out", type=click.Path(file_okay=False), default=None)
+@_report_option
 @_guarded
 def ratelaw(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product, chromophore,
             epsilon, trace, fix, level, order, a0, b0, ci, expect, guggenheim, excess, plots, fmt,
-            out):
+            out, report):
     """Integrated rate-law fits (order, k, half-life) of the traces in FILE."""
     from .views import run_ratelaw
 
@@ -351,7 +300,8 @@ def ratelaw(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product,
                      pathlength=pathlength, epsilon_product=epsilon_product,
                      chromophore=chromophore, epsilon=epsilon, trace=trace, fix=_parse_fix(fix),
                      level=level, order=order, a0=a0, b0=b0, ci=ci, expect=expect,
-                     guggenheim=guggenheim, excess=excess, plots=plots, fmt=fmt, out=out), _emit)
+                     guggenheim=guggenheim, excess=excess, plots=plots, fmt=fmt, out=out,
+                     report=report), _emit)
 
 
 @main.command()
@@ -368,9 +318,11 @@ def ratelaw(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product,
 @click.option("--plots/--no-plots", default=True, show_default=True)
 @click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
 @click.option("--out", type=click.Path(file_okay=False), default=None)
+@_report_option
 @_guarded
 def completion(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product, chromophore,
-               epsilon, trace, fix, level, target, order, follow, max_updates, plots, fmt, out):
+               epsilon, trace, fix, level, target, order, follow, max_updates, plots, fmt, out,
+               report):
     """Conversion, time to a target conversion, and complete or not, for FILE.
 
     A predicted end point is no process-safety assessment.
@@ -380,7 +332,7 @@ def completion(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_produ
     o = dict(file=file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet, c0=c0,
              pathlength=pathlength, epsilon_product=epsilon_product, chromophore=chromophore,
              epsilon=epsilon, trace=trace, fix=_parse_fix(fix), level=level, target=target,
-             order=order, plots=plots, fmt=fmt, out=out)
+             order=order, plots=plots, fmt=fmt, out=out, report=report)
     if follow is not None:
         follow_completion(o, follow, max_updates, click.echo, _emit)
     else:
@@ -399,14 +351,16 @@ def completion(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_produ
 @click.option("--plots/--no-plots", default=True, show_default=True)
 @click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
 @click.option("--out", type=click.Path(file_okay=False), default=None)
+@_report_option
 @_guarded
-def temperature(file, temp_column, k_column, se_column, temp_unit, at, level, plots, fmt, out):
+def temperature(file, temp_column, k_column, se_column, temp_unit, at, level, plots, fmt, out,
+                report):
     """Arrhenius and Eyring analysis of rate constants vs temperature in FILE."""
     from .views import run_temperature
 
     run_temperature(dict(file=file, temp_column=temp_column, k_column=k_column,
                          se_column=se_column, temp_unit=temp_unit, at=at, level=level,
-                         plots=plots, fmt=fmt, out=out), _emit)
+                         plots=plots, fmt=fmt, out=out, report=report), _emit)
 
 
 @main.command()
@@ -432,10 +386,11 @@ def temperature(file, temp_column, k_column, se_column, temp_unit, at, level, pl
 @click.option("--plots/--no-plots", default=True, show_default=True)
 @click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
 @click.option("--out", type=click.Path(file_okay=False), default=None)
+@_report_option
 @_guarded
 def progress(file, time_unit, signal, i0, sheet, s0, s0_column, layout_file, epsilon,
              chromophore, pathlength, species, product_inhibition, selwyn, trace, ci, level,
-             plots, fmt, out):
+             plots, fmt, out, report):
     """Integrated Michaelis-Menten fit of whole progress curves in FILE (and Selwyn's test)."""
     from .views import run_progress
 
@@ -443,7 +398,7 @@ def progress(file, time_unit, signal, i0, sheet, s0, s0_column, layout_file, eps
                       s0_column=s0_column, layout_file=layout_file, epsilon=epsilon,
                       chromophore=chromophore, pathlength=pathlength, species=species,
                       product_inhibition=product_inhibition, selwyn=selwyn, trace=trace, ci=ci,
-                      level=level, plots=plots, fmt=fmt, out=out), _emit)
+                      level=level, plots=plots, fmt=fmt, out=out, report=report), _emit)
 
 
 @main.command()

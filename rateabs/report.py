@@ -98,11 +98,12 @@ def page(title: str, subtitle: str, sections: list[tuple[str, str]], cautions=CA
     """A whole page: header, sections (heading, html body), cautions, version footer."""
     parts = [f"<h2>{esc(h)}</h2>{body}" if h else body for h, body in sections]
     caution = "".join(f"<li>{esc(c)}</li>" for c in cautions)
+    caution = f"<h2>Cautions</h2><ul>{caution}</ul>" if cautions else ""
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
             f"<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
             f"<title>{esc(title)}</title><style>{STYLE}</style></head><body>"
             f"<header><h1>{esc(title)}</h1><div class=\"sub\">{esc(subtitle)}</div></header>"
-            f"<main>{''.join(parts)}<h2>Cautions</h2><ul>{caution}</ul>"
+            f"<main>{''.join(parts)}{caution}"
             f"<footer>made by rateabs {esc(__version__)}; every number carries its unit and "
             "every fitted value its uncertainty</footer></main></body></html>\n")
 

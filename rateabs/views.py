@@ -34,6 +34,160 @@ class View:
     analysis: object = None
 
 
+def deliver(o: dict, emit, view: View, name: str, plot=None) -> list[Path]:
+    """Print the view, write --out files and plots, and the --report page; returns the plots.
+
+    ``plot(folder)`` draws the command's figures into a folder and returns their paths; with
+    --report but no --out they are drawn into a temporary folder and embedded in the page.
+    """
+    import tempfile
+
+    from .io import write_atomic
+
+    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), name)
+    pics: list[Path] = []
+    with tempfile.TemporaryDirectory() as tmp:
+        target = Path(o["out"]) if o.get("out") else Path(tmp)
+        if plot is not None and o.get("plots", True) and (o.get("out") or o.get("report")):
+            target.mkdir(parents=True, exist_ok=True)
+            pics = list(plot(target) or [])
+        if o.get("report"):
+            from .report import document_page
+
+            write_atomic(o["report"], document_page(view.doc, pics))
+    return pics if o.get("out") else []
+
+
+def compute_inspect(o: dict) -> View:
+    """The ``inspect`` command's document and table."""
+    from .inspecting import inspect_file
+
+    summary = inspect_file(o["file"], time_unit=o.get("time_unit"), signal=o.get("signal"),
+                           i0=o.get("i0"), sheet=o.get("sheet"),
+                           linear_limit=o.get("linear_limit"))
+    doc = document("inspect", [o["file"]], summary.settings, summary.results, summary.warnings)
+    cols = [("trace", "trace"), ("n_points", "n"), ("t_start_s", "t start (s)"),
+            ("t_end_s", "t end (s)"), ("A_first", "A first (AU)"), ("A_last", "A last (AU)"),
+            ("flags", "flags")]
+    st = summary.settings
+    head = [f"file       {o['file']}",
+            f"format     {st['format']} (delimiter {st['delimiter']!r}, decimal "
+            f"{st['decimal']!r}, encoding {st['encoding']})",
+            f"layout     {st['layout']}, header on line {st['header_row']}",
+            f"time       {st['time_unit']} ({st['time_unit_source']})",
+            f"signal     {st['signal_kind']} ({st['signal_source']}), shown as absorbance",
+            f"limit      readings above A = {st['linear_limit']:g} flagged past-linear"]
+    head += [f"meta       {k}: {v}" for k, v in st["metadata"].items()]
+    head += [f"column     {k}: kept as metadata ({v})" for k, v in st["extra_columns"].items()]
+    table = "\n".join(head) + "\n\n" + render_table(summary.results, cols)
+    return View(doc, table, rows_to_csv(summary.results, [c for c, _ in cols]), summary)
+
+
+def run_inspect(o: dict, emit) -> View:
+    """The ``inspect`` command."""
+    view = compute_inspect(o)
+
+    def plot(folder):
+        from .plots import traces_overview
+
+        return [traces_overview(view.analysis.traces, folder / "inspect_traces.png",
+                                Path(o["file"]).name, "absorbance (AU)")]
+
+    deliver(o, emit, view, "inspect", plot)
+    return view
+
+
+def _select_rows(df, select):
+    for item in select or ():
+        col, sep, val = item.partition("=")
+        if not sep or col.strip() not in df.columns:
+            raise UsageError(f"--select {item!r} does not name a column of the table",
+                             f"use COL=VALUE with one of {', '.join(map(str, df.columns))}")
+        keep = df[col.strip()].astype(str).str.strip() == val.strip()
+        attrs = dict(df.attrs)
+        lines = attrs.get("lines")
+        df = df[keep.to_numpy()]
+        if lines is not None:
+            attrs["lines"] = [ln for ln, k in zip(lines, keep.to_numpy(), strict=True) if k]
+        df.attrs = attrs
+        if df.empty:
+            raise UsageError(f"--select {item!r} keeps no rows", "check the value")
+    return df
+
+
+def compute_saturation(o: dict) -> View:
+    """The ``saturation`` command's results."""
+    from .io import read_table
+    from .output import flatten_params
+    from .saturation import analyse, results_json, table_data
+    from .units import parse_concentration
+
+    df = read_table(o["file"])
+    if "role" in df.columns:
+        df = _select_rows(df.assign(_role=df["role"].astype(str).str.strip().str.lower()),
+                          ["_role=sample"]).drop(columns="_role")
+    df = _select_rows(df, o.get("select"))
+    df.attrs["source"] = o["file"]
+    model = o.get("model", "auto")
+    data = table_data(df, conc=o.get("conc"), rate=o.get("rate"), inhibitor=o.get("inhibitor"),
+                      sd=o.get("sd"), conc_unit=o.get("conc_unit"), rate_unit=o.get("rate_unit"),
+                      inhib_unit=o.get("inhibitor_unit"), need_inhibitor=model == "ic50")
+    enzyme_m = parse_concentration(o["enzyme"], default="nM") if o.get("enzyme") else None
+    level = o.get("level", 0.95)
+    a = analyse(data, model=model, ci=o.get("ci", "asymptotic"), level=level,
+                weighting=o.get("weighting", "none"), fix=o.get("fix"), enzyme_M=enzyme_m,
+                n_boot=o.get("resamples", 2000), resample=o.get("resample", "residual"),
+                seed=o.get("seed", 0), mode=o.get("mode"), substrate=o.get("substrate"),
+                km=o.get("km"))
+    results = results_json(a)
+    settings = {"model": model, "ci": o.get("ci", "asymptotic"), "level": level,
+                "weighting": o.get("weighting", "none"), "fixed": o.get("fix") or {},
+                "columns": data.columns, "conc_unit": data.conc_unit,
+                "rate_unit": data.rate_unit, "inhibitor_unit": data.inhib_unit,
+                "enzyme_M": enzyme_m, "n_points": int(data.v.size),
+                "selected": list(o.get("select") or [])}
+    if o.get("ci") == "bootstrap":
+        settings.update(resamples=o.get("resamples", 2000), resample=o.get("resample"),
+                        seed=o.get("seed", 0))
+    doc = document("saturation", [o["file"]], settings, results, a.warnings)
+    chosen = next(r for r in results if r.get("chosen"))
+    prow = [{"param": k, **v} for k, v in chosen["params"].items()]
+    table = render_table(prow, [("param", "parameter"), ("value", "value"), ("se", "SE"),
+                                ("ci_low", f"{100 * level:g}% low"),
+                                ("ci_high", f"{100 * level:g}% high"), ("unit", "unit"),
+                                ("ci_method", "interval")],
+                         title=f"chosen model: {a.chosen}   ({chosen['equation']})")
+    table += (f"n = {data.v.size} points, residual SE = {a.best.sigma:.4g} {data.rate_unit}, "
+              f"runs test p = {a.best.runs_p:.3g}\n")
+    if a.comparison is not None:
+        table += "\nevidence\n" + a.comparison.report() + "\n"
+    if a.cross_check:
+        cc = a.cross_check
+        table += (f"\ncross-check, {cc['method']}: Vmax = {cc['Vmax']:.4g} {data.rate_unit}, "
+                  f"Km = {cc['Km']:.4g} {data.conc_unit}\n")
+    flat = [flatten_params({"model": r["model"], "chosen": r["chosen"], "aicc": r.get("aicc"),
+                            "status": r.get("status"), "params": r["params"]}) for r in results]
+    cols = list(dict.fromkeys(k for f in flat for k in f))
+    return View(doc, table, rows_to_csv(flat, cols), a)
+
+
+def run_saturation(o: dict, emit) -> View:
+    """The ``saturation`` command."""
+    view = compute_saturation(o)
+    a = view.analysis
+
+    def plot(folder):
+        from .plots import linearised, saturation_fit
+
+        files = [saturation_fit(a, folder / "saturation_fit.png", title=Path(o["file"]).stem)]
+        if a.chosen != "ic50":
+            files.append(linearised(a, folder / "saturation_linearised.png"))
+        return files
+
+    deliver(o, emit, view, "saturation", plot)
+    return view
+
+
 def rate_settings(o: dict):
     """RateSettings from command options (quantities parsed with their units)."""
     from .photometry import pathlength_from_volume, resolve_epsilon
@@ -172,34 +326,37 @@ def _pm(v, se, digits):
     return f"{v:.{digits}g} ± {se:.2g}"
 
 
-def write_rate_outputs(view: View, out: str | Path, plots: bool = True, stem: str = "rates"):
-    """replicates.csv and the plots of a rates run into ``out``."""
-    from .plots import plate_heatmap, rate_traces, replicate_plot
-
-    out = Path(out)
+def write_replicates(view: View, out: str | Path, stem: str = "rates") -> None:
+    """The replicate summary of a rates run as CSV in ``out``."""
     a = view.analysis
     if not a.replicates.empty:
         reps = a.replicates.copy()
         reps["wells"] = reps["wells"].apply(";".join)
         write_text(out, f"{stem}_replicates.csv",
                    rows_to_csv(reps.to_dict("records"), list(reps.columns)))
-    files = []
-    if plots:
-        files += rate_traces(a, out, stem)
-        p = plate_heatmap(a, out / f"{stem}_plate.png")
-        if p:
-            files.append(p)
-        if not a.replicates.empty:
-            files.append(replicate_plot(a, out / f"{stem}_replicates.png"))
+
+
+def rate_plots(view: View, out: str | Path, stem: str = "rates") -> list[Path]:
+    """Trace pages, plate heat map and replicate plot of a rates run, into ``out``."""
+    from .plots import plate_heatmap, rate_traces, replicate_plot
+
+    out = Path(out)
+    a = view.analysis
+    files = list(rate_traces(a, out, stem))
+    p = plate_heatmap(a, out / f"{stem}_plate.png")
+    if p:
+        files.append(p)
+    if not a.replicates.empty:
+        files.append(replicate_plot(a, out / f"{stem}_replicates.png"))
     return files
 
 
 def run_rates(o: dict, emit) -> View:
     """The ``rates`` command: compute, print in the chosen format, write files into --out."""
     view = compute_rates(o)
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "rates")
     if o.get("out"):
-        write_rate_outputs(view, o["out"], o.get("plots", True))
+        write_replicates(view, o["out"])
+    deliver(o, emit, view, "rates", lambda folder: rate_plots(view, folder))
     return view
 
 
@@ -362,12 +519,10 @@ def _pseudo_series(o, laws, pseudo_first_order):
 
 def run_ratelaw(o: dict, emit) -> View:
     """The ``ratelaw`` command."""
-    view = compute_ratelaw(o)
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "ratelaw")
-    if o.get("out") and o.get("plots", True):
-        from .plots import ratelaw_plots
+    from .plots import ratelaw_plots
 
-        ratelaw_plots(view.analysis, Path(o["out"]))
+    view = compute_ratelaw(o)
+    deliver(o, emit, view, "ratelaw", lambda folder: ratelaw_plots(view.analysis, folder))
     return view
 
 
@@ -443,13 +598,13 @@ def compute_completion(o: dict) -> View:
 
 def run_completion(o: dict, emit) -> View:
     """The ``completion`` command (one assessment)."""
-    view = compute_completion(o)
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "completion")
-    if o.get("out") and o.get("plots", True):
-        from .plots import completion_plot
+    from .plots import completion_plot
 
-        for name, c in view.analysis["done"].items():
-            completion_plot(c, view.analysis["traces"], Path(o["out"]) / f"completion_{_safe(name)}.png")
+    view = compute_completion(o)
+    an = view.analysis
+    deliver(o, emit, view, "completion", lambda folder: [
+        completion_plot(c, an["traces"], folder / f"completion_{_safe(name)}.png")
+        for name, c in an["done"].items()])
     return view
 
 
@@ -509,12 +664,11 @@ def compute_temperature(o: dict) -> View:
 
 def run_temperature(o: dict, emit) -> View:
     """The ``temperature`` command."""
-    view = compute_temperature(o)
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "temperature")
-    if o.get("out") and o.get("plots", True):
-        from .plots import arrhenius_plot
+    from .plots import arrhenius_plot
 
-        arrhenius_plot(view.analysis, Path(o["out"]) / "temperature_arrhenius.png")
+    view = compute_temperature(o)
+    deliver(o, emit, view, "temperature", lambda folder: [
+        arrhenius_plot(view.analysis, folder / "temperature_arrhenius.png")])
     return view
 
 
@@ -660,12 +814,10 @@ def compute_progress(o: dict) -> View:
 
 def run_progress(o: dict, emit) -> View:
     """The ``progress`` command."""
-    view = compute_progress(o)
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "progress")
-    if o.get("out") and o.get("plots", True):
-        from .plots import progress_plots
+    from .plots import progress_plots
 
-        progress_plots(view.analysis, Path(o["out"]))
+    view = compute_progress(o)
+    deliver(o, emit, view, "progress", lambda folder: progress_plots(view.analysis, folder))
     return view
 
 
