@@ -1,50 +1,140 @@
 """The demo: the whole job on the embedded sample runs (an invented lab, simulated data).
 
 Scenario: the Enzymology Core of the invented Kestrel Bay Institute characterises KbDH1, an
-NADH-dependent dehydrogenase, and its inhibitor candidate KB-17; a teaching annex follows a
-phosphatase at 405 nm; a thiol assay reads raw detector counts at 412 nm.
+NADH-dependent dehydrogenase, and its inhibitor candidate KB-17 on a 96-well plate; follows the
+phosphatase KbAP through whole progress curves; a pilot plant watches the hydrolysis of the dye
+Kestrel Red with an in-line probe and at several temperatures; and a teaching lab grades a class
+that measured the same hydrolysis. Every step writes its results, plots and one report page;
+``index.html`` links them all.
 """
 
 from __future__ import annotations
 
+import time
 from pathlib import Path
 
-from .inspecting import summarize
-from .io import read_traces, sample_path
-from .output import rows_to_csv, write_text
-from .photometry import chromophore, pathlength_from_volume
+from .io import sample_path, write_atomic
+from .report import esc, notes, page, table
 
-#: (sample file, chromophore, pathlength in cm or a well volume, what it shows)
-RUNS = [
-    ("plate_kbdh_340nm.csv", "NADH", "200 uL", "96-well KbDH1 plate, NADH consumed at 340 nm"),
-    ("cuvettes_kbap_405nm_messy.csv", "p-nitrophenolate", 1.0,
-     "cuvette export with decimal commas, clock times and an overflowing cuvette"),
-    ("tubes_tnb_412nm_counts.tsv", "TNB", 1.0, "raw detector counts with a reference row"),
-]
+
+def _quiet_emit(fmt, doc, table_text, csv_text, out, name):
+    from .output import to_json, write_text
+
+    if out:
+        write_text(out, f"{name}.json", to_json(doc))
+        write_text(out, f"{name}.csv", csv_text)
 
 
 def run_demo(out: str | Path, echo=print) -> str:
     """Run every demo step into ``out``; returns a short summary for the terminal."""
-    from .plots import traces_overview
+    from . import views
 
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
-    lines = [f"rateabs demo: results in {out}/"]
-    for name, chrom, path_spec, what in RUNS:
-        ts = read_traces(sample_path(name))
-        insp = summarize(ts)
-        c = chromophore(chrom)
-        b = pathlength_from_volume(path_spec) if isinstance(path_spec, str) else path_spec
-        conc = insp.traces.to_concentration(c.epsilon, b)
-        stem = Path(name).stem
-        d = conc.data.assign(value_uM=conc.data["value"] * 1e6)
-        rows = d.to_dict("records")
-        write_text(out, f"{stem}_concentration.csv",
-                   rows_to_csv(rows, ["trace", "time_s", "value_uM", "usable", "flag"]))
-        traces_overview(conc, out / f"{stem}.png", f"{stem}: {c.name} ({c.wavelength_nm:g} nm)",
-                        f"[{c.name}] (µM)", scale=1e6)
-        flagged = sum(bool(r["flags"]) for r in insp.results)
-        lines.append(f"  {name}: {len(insp.results)} traces, layout {ts.info['layout']}, "
-                     f"time {ts.info['time_unit']}, {flagged} flagged; epsilon {c.epsilon:g} "
-                     f"M^-1 cm^-1, pathlength {b:.3g} cm ({what})")
+    t0 = time.perf_counter()
+    steps = []
+
+    def step(key, title, who, fn, o):
+        folder = out / key
+        o = dict(o, fmt="table", out=str(folder), report=str(folder / "report.html"),
+                 plots=True)
+        view = fn(o, _quiet_emit)
+        steps.append({"key": key, "title": title, "who": who, "view": view,
+                      "page": f"{key}/report.html"})
+        echo(f"  done: {title}")
+        return view
+
+    s = lambda name: str(sample_path(name))  # noqa: E731
+    echo(f"rateabs demo: writing into {out}/")
+    step("1_inspect", "What the reader finds in a messy cuvette export", "everyone",
+         views.run_inspect, {"file": s("cuvettes_kbap_405nm_messy.csv")})
+    plate = step("2_plate_rates", "KbDH1 plate: initial rates, activity and QC",
+                 "enzyme assay scientist", views.run_rates,
+                 {"file": s("plate_kbdh_340nm.csv"), "layout_file": s("plate_kbdh_map.csv"),
+                  "chromophore": "NADH", "well_volume": "200 uL", "plate": 96,
+                  "total_volume": "200 uL", "sample_volume": "20 uL", "katal": True,
+                  # the low-substrate wells use over 10 % of their substrate within the read
+                  # (flag over-10pct): the whole-curve initial slope is the better estimate
+                  "slope_from": "curve"})
+    sat = step("3_inhibition", "KB-17 inhibition mode from the plate's rates",
+               "enzyme assay scientist", views.run_saturation,
+               {"file": str(out / "2_plate_rates" / "rates.csv"), "select": ["sample=KbDH1"],
+                "enzyme": "1 nM", "model": "auto"})
+    prog = step("4_progress", "KbAP progress curves: integrated Michaelis-Menten and Selwyn's test",
+                "enzyme assay scientist", views.run_progress,
+                {"file": s("progress_kbap_405nm.csv"), "s0_column": "S0 (uM)",
+                 "chromophore": "pnp", "selwyn": "enzyme (nM)"})
+    unst = step("5_progress_unstable", "The same test on an enzyme that decays during the assay",
+                "enzyme assay scientist", views.run_progress,
+                {"file": s("progress_kbap_unstable.csv"), "s0_column": "S0 (uM)",
+                 "chromophore": "pnp", "selwyn": "enzyme (nM)"})
+    law = step("6_process_ratelaw", "Pilot reactor R-2: order and rate constant",
+               "process chemist", views.run_ratelaw,
+               {"file": s("process_kestrel_red_probe.csv"), "order": "auto"})
+    comp = step("7_process_completion", "Pilot reactor R-2: time to 99 % conversion",
+                "process chemist", views.run_completion,
+                {"file": s("process_kestrel_red_probe.csv"), "target": 99.0, "order": "1"})
+    temp = step("8_temperature", "Kestrel Red hydrolysis: Arrhenius and Eyring",
+                "process chemist", views.run_temperature,
+                {"file": s("temperature_kestrel_red.csv"), "at": ["60 C"]})
+    cls = sample_path("class_kestrel_red")
+    gview = views.run_grade({"folder": str(cls), "rubric": str(cls / "rubric.toml"),
+                             "fmt": "table", "out": str(out / "9_class"), "jobs": None},
+                            _quiet_emit)
+    steps.append({"key": "9_class", "title": "Teaching lab: the class's Kestrel Red runs graded",
+                  "who": "teaching-lab instructor", "view": gview,
+                  "page": "9_class/class_summary.html"})
+    echo("  done: class graded")
+
+    # key numbers
+    lines = [f"rateabs demo: results in {out}/ (open {out / 'index.html'})"]
+    t = plate.analysis.table
+    lysate = t[t["sample"].astype(str).str.startswith("lysate")]
+    zp = plate.analysis.zprime
+    lines.append(f"  plate: {len(t)} wells, {int(sum(bool(f) for f in t['flags']))} flagged, "
+                 f"Z' = {zp['value']:.2f}; lysate activities "
+                 + ", ".join(f"{g}: {d['activity_U_per_mL'].mean():.3g} U/mL"
+                             for g, d in lysate.groupby("sample")))
+    best = sat.analysis.best
+    p = best.params
+    lines.append(f"  inhibition: chosen {sat.analysis.chosen}; Km = {p['Km'].value:.3g} ± "
+                 f"{p['Km'].se:.2g} uM, Ki = {p['Ki'].value:.3g} ± {p['Ki'].se:.2g} uM"
+                 if "Ki" in p else f"  saturation: chosen {sat.analysis.chosen}")
+    pp = prog.analysis.params
+    lines.append(f"  progress curves: Km = {pp['Km'].value:.3g} ± {pp['Km'].se:.2g} uM, "
+                 f"Vmax = {pp['Vmax'].value:.3g} ± {pp['Vmax'].se:.2g} {pp['Vmax'].unit}; "
+                 f"Selwyn: stable = {prog.analysis.selwyn['enzyme_stable']}, decaying set: "
+                 f"stable = {unst.analysis.selwyn['enzyme_stable']}")
+    lw = next(iter(law.analysis["laws"].values()))
+    k = lw.fit.params["k"]
+    lines.append(f"  process run: order {lw.order}, k = {k.value:.4g} ± {k.se:.2g} 1/s, "
+                 f"half-life {lw.half_life.value / 60:.1f} min")
+    c = next(iter(comp.analysis["done"].values()))
+    lines.append(f"  completion: {100 * c.conversion.value:.1f} % now; 99 % at "
+                 f"{c.t_target.value / 60:.1f} min [{c.t_target.ci_low / 60:.1f}, "
+                 f"{c.t_target.ci_high / 60:.1f}]; {'complete' if c.complete else 'not yet complete'}")
+    ea = temp.analysis.params["Ea"]
+    lines.append(f"  temperature: Ea = {ea.value:.1f} [{ea.ci_low:.1f}, {ea.ci_high:.1f}] kJ/mol")
+    scores = [r["score"] for r in gview.analysis]
+    lines.append(f"  class: {len(scores)} students graded, median score {sorted(scores)[len(scores) // 2]:.0f}")
+    lines.append(f"  finished in {time.perf_counter() - t0:.1f} s")
+    _index(out, steps, lines)
+    write_atomic(out / "summary.txt", "\n".join(lines) + "\n")
     return "\n".join(lines)
+
+
+def _index(out: Path, steps: list, lines: list) -> None:
+    rows = [{"step": f'@@{i}', "for": s["who"], "warnings": len(s["view"].doc.get("warnings", []))}
+            for i, s in enumerate(steps)]
+    body = table(rows, [("step", "step"), ("for", "for"), ("warnings", "warnings")],
+                 text_cols=("step", "for"))
+    for i, s in enumerate(steps):
+        body = body.replace(f">@@{i}<", f'><a href="{esc(s["page"])}">{esc(s["title"])}</a><', 1)
+    intro = ("<p>The whole job of rateabs on simulated sample runs set in an invented lab (the "
+             "Kestrel Bay Institute): a 96-well plate through initial rates, activity and the "
+             "inhibition mode; progress curves with Selwyn's test; a process run through order, "
+             "rate constant and time to completion; rate constants at several temperatures; and "
+             "a class graded. Each step links to its self-contained report.</p>")
+    html_text = page("rateabs demo", "Kestrel Bay Institute sample runs (simulated data)",
+                     [("", intro), ("Steps", body), ("Key numbers", notes(lines[1:], "ok"))])
+    write_atomic(out / "index.html", html_text)

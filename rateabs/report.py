@@ -119,6 +119,19 @@ def document_page(doc: dict, pictures: list[Path | tuple], title: str | None = N
     sections.append(("Results", table(rows, cols, text_cols=("trace", "model", "flags",
                                                              "status", "order", "test",
                                                              "reason", "student"))))
+    for r in doc["results"]:
+        ev = r.get("evidence")
+        if isinstance(ev, dict) and ev.get("aicc_table"):
+            body = table(ev["aicc_table"], [("model", "model"), ("k", "free parameters"),
+                                            ("aicc", "AICc"), ("delta_aicc", "dAICc"),
+                                            ("weight", "Akaike weight")], text_cols=("model",))
+            if ev.get("f_tests"):
+                body += table(ev["f_tests"], [("simpler", "simpler"), ("general", "within"),
+                                              ("F", "F"), ("df1", "df1"), ("df2", "df2"),
+                                              ("p", "p")], text_cols=("simpler", "general"))
+            body += notes([f"chosen: {ev.get('chosen')} ({ev.get('reason')})"], "ok")
+            label = r.get("trace") or r.get("model") or ""
+            sections.append((f"Evidence for the chosen model {label}".rstrip(), body))
     if doc["warnings"]:
         sections.append(("Warnings and flags", notes(doc["warnings"])))
     figs = []

@@ -128,6 +128,11 @@ def compute_saturation(o: dict) -> View:
                           ["_role=sample"]).drop(columns="_role")
     df = _select_rows(df, o.get("select"))
     df.attrs["source"] = o["file"]
+    bent = []
+    if "flags" in df.columns:           # a table written by `rateabs rates`
+        method = df["method"] if "method" in df.columns else ["window"] * len(df)
+        bent = [f for f, m in zip(df["flags"].astype(str), method, strict=True)
+                if m == "window" and any(w in f for w in ("over-10pct", "curved"))]
     model = o.get("model", "auto")
     data = table_data(df, conc=o.get("conc"), rate=o.get("rate"), inhibitor=o.get("inhibitor"),
                       sd=o.get("sd"), conc_unit=o.get("conc_unit"), rate_unit=o.get("rate_unit"),
@@ -140,6 +145,10 @@ def compute_saturation(o: dict) -> View:
                 seed=o.get("seed", 0), mode=o.get("mode"), substrate=o.get("substrate"),
                 km=o.get("km"))
     results = results_json(a)
+    if bent:
+        a.warnings.append(f"{len(bent)} of {len(df)} rates come from wells flagged over-10pct or "
+                          "curved: window slopes there underestimate the initial rate; consider "
+                          "`rateabs rates --slope-from curve`")
     settings = {"model": model, "ci": o.get("ci", "asymptotic"), "level": level,
                 "weighting": o.get("weighting", "none"), "fixed": o.get("fix") or {},
                 "columns": data.columns, "conc_unit": data.conc_unit,
