@@ -71,8 +71,15 @@ def img(png: bytes | str | Path | None, caption: str = "", alt: str = "plot") ->
     return f'<figure><img alt="{esc(alt)}" src="data:image/png;base64,{b64}">{cap}</figure>'
 
 
+def _is_number(v) -> bool:
+    return v is None or (isinstance(v, (int, float)) and not isinstance(v, bool))
+
+
 def table(rows: list[dict], columns: list[tuple[str, str]], text_cols=()) -> str:
-    """An HTML table; ``columns`` is a list of (key, header with unit)."""
+    """An HTML table; ``columns`` is a list of (key, header with unit). Columns that hold text
+    are left-aligned, numbers right-aligned."""
+    text_cols = set(text_cols) | {k for k, _ in columns
+                                  if not all(_is_number(r.get(k)) for r in rows)}
     head = "".join(f'<th class="{"t" if k in text_cols else ""}">{esc(h)}</th>'
                    for k, h in columns)
     body = []

@@ -50,13 +50,6 @@ def test_linear_limit_option():
     assert "past-linear" not in res["K1"]["flags"]
 
 
-def test_demo_writes_results(tmp_path):
-    r = CliRunner().invoke(main, ["demo", "--out", str(tmp_path / "d")])
-    assert r.exit_code == 0, r.output
-    assert (tmp_path / "d" / "plate_kbdh_340nm.png").stat().st_size > 10_000
-    assert "not for clinical diagnosis" in r.stdout
-
-
 def test_help_is_fast_and_lazy():
     import subprocess
     import sys
