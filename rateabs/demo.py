@@ -115,8 +115,9 @@ def run_demo(out: str | Path, echo=print) -> str:
                  f"{c.t_target.ci_high / 60:.1f}]; {'complete' if c.complete else 'not yet complete'}")
     ea = temp.analysis.params["Ea"]
     lines.append(f"  temperature: Ea = {ea.value:.1f} [{ea.ci_low:.1f}, {ea.ci_high:.1f}] kJ/mol")
-    scores = [r["score"] for r in gview.analysis]
-    lines.append(f"  class: {len(scores)} students graded, median score {sorted(scores)[len(scores) // 2]:.0f}")
+    scores = sorted(r["score"] for r in gview.analysis)
+    lines.append(f"  class: {len(scores)} students graded, median score "
+                 f"{scores[len(scores) // 2]:.0f}")
     lines.append(f"  finished in {time.perf_counter() - t0:.1f} s")
     _index(out, steps, lines)
     write_atomic(out / "summary.txt", "\n".join(lines) + "\n")
