@@ -11,26 +11,7 @@ import sys
 import numpy as np
 
 from rateabs.rates import find_windows
-from rateabs.traces import TraceSet
-
-
-def simulate(kind, n, seed, m=61, noise=0.002):
-    rng = np.random.default_rng(seed)
-    t = np.linspace(0, 600, m)
-    ys, truth = [], []
-    for _ in range(n):
-        b = rng.uniform(0.5, 3) * 1e-4 * rng.choice([-1, 1])
-        if kind == "linear":
-            y = 0.3 + b * t
-        elif kind == "lag":
-            tau = rng.uniform(60, 120)
-            y = 0.3 + b * (t - tau * (1 - np.exp(-t / tau)))
-        else:
-            k = rng.uniform(1.5, 3) / 600
-            y = 0.3 + b / k * (1 - np.exp(-k * t))
-        ys.append(y + rng.normal(0, noise, m))
-        truth.append(b)
-    return TraceSet.from_arrays([f"w{i}" for i in range(n)], t, np.array(ys)), np.array(truth)
+from rateabs.simulate import rate_traces as simulate
 
 
 def main(n: int = 1000) -> None:

@@ -889,6 +889,41 @@ def read_table(path: str | Path) -> pd.DataFrame:
     return df
 
 
+def pick_column(df: pd.DataFrame, given: str | None, pattern: re.Pattern, what: str,
+                option: str, required: bool = True) -> str | None:
+    """The column a user named (``given``), else the first whose header matches ``pattern``."""
+    path = df.attrs.get("source", "table")
+    if given is not None:
+        if given not in df.columns:
+            raise UsageError(f"no column {given!r} in {path}",
+                             f"use one of {', '.join(map(str, df.columns))}")
+        return given
+    for c in df.columns:
+        if pattern.search(str(c).strip()):
+            return c
+    if required:
+        raise InputError(f"no {what} column found", f"name it with {option} COLUMN", file=path)
+    return None
+
+
+def number_column(df: pd.DataFrame, col: str) -> np.ndarray:
+    """A table column as floats; empty cells are NaN, text is refused with its row."""
+    path = df.attrs.get("source", "table")
+    lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
+    out = np.empty(len(df))
+    for k, cell in enumerate(df[col].tolist()):
+        c = str(cell).strip()
+        if c == "" or c.lower() in ("nan", "na", "-"):
+            out[k] = np.nan
+            continue
+        try:
+            out[k] = float(c)
+        except ValueError:
+            raise InputError(f"{c!r} is not a number", "fix the cell or remove the row",
+                             file=path, row=lines[k], column=col) from None
+    return out
+
+
 def sample_path(name: str) -> Path:
     """Path of an embedded sample run shipped with the package."""
     return Path(__file__).with_name("data") / "samples" / name

@@ -23,6 +23,7 @@ from scipy import stats
 
 from .errors import FitError, InputError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, fit
+from .io import number_column, pick_column
 from .models import INHIBITION_MODELS, NESTED, SATURATION, SUBSTRATE_MODELS, direct_linear_plot
 from .units import TIME_UNITS, concentration_factor
 
@@ -61,48 +62,19 @@ class SaturationData:
     columns: dict
 
 
-def _number_column(df: pd.DataFrame, col: str, path: str) -> np.ndarray:
-    out = np.empty(len(df))
-    lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
-    for k, cell in enumerate(df[col].tolist()):
-        c = str(cell).strip()
-        if c == "" or c.lower() in ("nan", "na", "-"):
-            out[k] = np.nan
-            continue
-        try:
-            out[k] = float(c)
-        except ValueError:
-            raise InputError(f"{c!r} is not a number", "fix the cell or remove the row",
-                             file=path, row=lines[k], column=col) from None
-    return out
-
-
-def _pick(df, given, pattern, what, path, required=True):
-    if given is not None:
-        if given not in df.columns:
-            raise UsageError(f"no column {given!r} in {path}",
-                             f"use one of {', '.join(map(str, df.columns))}")
-        return given
-    for c in df.columns:
-        if pattern.search(str(c)):
-            return c
-    if required:
-        raise InputError(f"no {what} column found", f"name it with --{what} COLUMN", file=path)
-    return None
-
-
 def table_data(df: pd.DataFrame, *, conc=None, rate=None, inhibitor=None, sd=None,
                conc_unit=None, rate_unit=None, inhib_unit=None, need_inhibitor=False) -> SaturationData:
     """Select and check the concentration, rate, inhibitor and SD columns of a table."""
     path = df.attrs.get("source", "table")
-    rate_c = _pick(df, rate, _RATE, "rate", path)
-    inhib_c = _pick(df, inhibitor, _INHIB, "inhibitor", path, required=need_inhibitor)
-    conc_c = _pick(df, conc, _CONC, "conc", path, required=not need_inhibitor)
-    sd_c = _pick(df, sd, _SD, "sd", path) if sd is not None else None
-    v = _number_column(df, rate_c, path)
-    s = _number_column(df, conc_c, path) if conc_c is not None else None
-    i = _number_column(df, inhib_c, path) if inhib_c is not None else None
-    e = _number_column(df, sd_c, path) if sd_c is not None else None
+    rate_c = pick_column(df, rate, _RATE, "rate", "--rate")
+    inhib_c = pick_column(df, inhibitor, _INHIB, "inhibitor", "--inhibitor",
+                          required=need_inhibitor)
+    conc_c = pick_column(df, conc, _CONC, "conc", "--conc", required=not need_inhibitor)
+    sd_c = pick_column(df, sd, _SD, "sd", "--sd") if sd is not None else None
+    v = number_column(df, rate_c)
+    s = number_column(df, conc_c) if conc_c is not None else None
+    i = number_column(df, inhib_c) if inhib_c is not None else None
+    e = number_column(df, sd_c) if sd_c is not None else None
     keep = np.isfinite(v)
     if s is not None:
         keep &= np.isfinite(s)

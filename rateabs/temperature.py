@@ -17,8 +17,9 @@ import numpy as np
 import pandas as pd
 from scipy import constants, stats
 
-from .errors import AnalysisError, InputError, UsageError
+from .errors import AnalysisError, InputError
 from .fitting import FitResult, Param, fit
+from .io import number_column, pick_column
 from .models import LINE
 
 R = constants.R
@@ -63,37 +64,17 @@ def read_temperature_table(df: pd.DataFrame, *, temp_col=None, k_col=None, se_co
     """Temperatures (K), rate constants and their SEs from a table; T unit from header or values."""
     path = df.attrs.get("source", "table")
 
-    def pick(given, pat, what, required=True):
-        if given is not None:
-            if given not in df.columns:
-                raise UsageError(f"no column {given!r} in {path}",
-                                 f"use one of {', '.join(map(str, df.columns))}")
-            return given
-        for c in df.columns:
-            if pat.search(str(c).strip()):
-                return c
-        if required:
-            raise InputError(f"no {what} column found", f"name it, or give --{what}-column",
-                             file=path)
-        return None
-
-    tc = pick(temp_col, _T, "temperature")
-    kc = pick(k_col, _K, "k")
-    sc = pick(se_col, _KSE, "se", required=False)
+    tc = pick_column(df, temp_col, _T, "temperature", "--temp-column")
+    kc = pick_column(df, k_col, _K, "k", "--k-column")
+    sc = pick_column(df, se_col, _KSE, "se", "--se-column", required=False)
     lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
-
-    def nums(col):
-        out = []
-        for i, c in enumerate(df[col]):
-            try:
-                out.append(float(str(c).strip()))
-            except ValueError:
-                raise InputError(f"{str(c).strip()!r} is not a number", "fix the cell",
-                                 file=path, row=lines[i], column=col) from None
-        return np.array(out)
-
-    T, k = nums(tc), nums(kc)
-    se = nums(sc) if sc else None
+    T, k = number_column(df, tc), number_column(df, kc)
+    se = number_column(df, sc) if sc else None
+    for arr, col in ((T, tc), (k, kc)):
+        if np.any(~np.isfinite(arr)):
+            i = int(np.argmax(~np.isfinite(arr)))
+            raise InputError("a cell is empty", "fill it or remove the row", file=path,
+                             row=lines[i], column=col)
     unit = temp_unit
     if unit is None:
         h = str(tc).lower()

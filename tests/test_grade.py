@@ -12,7 +12,7 @@ from click.testing import CliRunner
 
 from rateabs.cli import main
 from rateabs.grade import Rubric, agreement, data_quality, grade_class, read_rubric
-from rateabs.models import order1
+from rateabs.simulate import first_order_class
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 CLASS = SAMPLES / "class_kestrel_red"
@@ -72,20 +72,8 @@ def test_hand_worked_score():
     assert agreement(1.3, 1.0, 5) == 0.0 and data_quality(0.01, 3) == pytest.approx(0.8)
 
 
-def _make_class(folder: Path, n: int, quantity="k", seed=0):
-    folder.mkdir(parents=True, exist_ok=True)
-    rng = np.random.default_rng(seed)
-    t = np.arange(0, 2401, 60.0)
-    rows = ["student,file,reported"]
-    for i in range(n):
-        k = 8e-4 * (1 + rng.normal(0, 0.01))
-        a = order1(t, 1.1, 0.05, k) + rng.normal(0, 0.004, t.size)
-        (folder / f"r{i}.csv").write_text("time (s),A\n" + "".join(
-            f"{tt:g},{v:.4f}\n" for tt, v in zip(t, a, strict=True)))
-        rows.append(f"s{i:03d},r{i}.csv,{k:.4g}")
-    (folder / "roster.csv").write_text("\n".join(rows) + "\n")
-    (folder / "rubric.toml").write_text('[assignment]\nquantity = "k"\nunit = "1/s"\n'
-                                        'reference = 8e-4\ntolerance_pct = 5\n')
+def _make_class(folder: Path, n: int):
+    return first_order_class(folder, n)
 
 
 def test_class_of_300_in_parallel_keeps_order(tmp_path):

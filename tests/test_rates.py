@@ -10,29 +10,15 @@ from scipy import stats
 
 from rateabs.cli import main
 from rateabs.rates import RateSettings, analyse_plate, find_windows, grubbs_outlier, z_factor
+from rateabs.simulate import rate_traces
 from rateabs.traces import TraceSet
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 
 
-def simulate(kind, n, seed, m=61, noise=0.002):
-    """Ground-truth traces (A/s slopes known): linear, lag (hysteretic) or depletion."""
-    rng = np.random.default_rng(seed)
-    t = np.linspace(0, 600, m)
-    ys, truth = [], []
-    for _ in range(n):
-        b = rng.uniform(0.5, 3) * 1e-4 * rng.choice([-1, 1])
-        if kind == "linear":
-            y = 0.3 + b * t
-        elif kind == "lag":
-            tau = rng.uniform(60, 120)
-            y = 0.3 + b * (t - tau * (1 - np.exp(-t / tau)))
-        else:
-            k = rng.uniform(1.5, 3) / 600
-            y = 0.3 + b / k * (1 - np.exp(-k * t))
-        ys.append(y + rng.normal(0, noise, m))
-        truth.append(b)
-    return TraceSet.from_arrays([f"w{i}" for i in range(n)], t, np.array(ys)), np.array(truth)
+def simulate(kind, n, seed):
+    """Ground-truth traces with known slopes (rateabs.simulate, seeded)."""
+    return rate_traces(kind, n, seed)
 
 
 def test_window_slopes_equal_polyfit_and_linregress():
