@@ -4,6 +4,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
 from rateabs import photometry as ph
 from rateabs import units
@@ -115,3 +117,40 @@ def test_resolve_epsilon():
     assert ph.resolve_epsilon(None, None) is None
     with pytest.raises(UsageError):
         ph.resolve_epsilon("6220", "NADH")
+
+
+# property-based round trips of the conversions (hypothesis)
+
+
+@given(st.floats(1e-6, 1.0))
+def test_transmittance_round_trip(t):
+    assert ph.transmittance_from_absorbance(ph.absorbance_from_transmittance(t)) == \
+        pytest.approx(t, rel=1e-12)
+    assert ph.absorbance_from_percent_t(100 * t) == pytest.approx(
+        float(ph.absorbance_from_transmittance(t)), abs=1e-12)
+
+
+@given(st.floats(1e-9, 1e-2), st.floats(10, 1e5), st.floats(0.01, 10))
+def test_beer_lambert_round_trip(c, eps, b):
+    assert ph.concentration(ph.absorbance(c, eps, b), eps, b) == pytest.approx(c, rel=1e-12)
+
+
+@given(st.floats(1e-3, 1e4, allow_nan=False), st.sampled_from(
+    [("s", 1), ("min", 60), ("h", 3600), ("ms", 1e-3)]))
+def test_time_units_scale(x, unit):
+    name, factor = unit
+    assert units.parse_time(f"{x!r} {name}") == pytest.approx(x * factor, rel=1e-12)
+
+
+@given(st.floats(1e-3, 1e4), st.sampled_from([("M", 1), ("mM", 1e-3), ("uM", 1e-6),
+                                             ("nM", 1e-9), ("µM", 1e-6)]))
+def test_concentration_units_scale(x, unit):
+    name, factor = unit
+    assert units.parse_concentration(f"{x!r} {name}") == pytest.approx(x * factor, rel=1e-12)
+
+
+@given(st.floats(1, 1e5))
+def test_epsilon_spellings_agree(x):
+    a = units.parse_epsilon(f"{x!r} M^-1 cm^-1")
+    assert units.parse_epsilon(f"{x / 1000!r} mM^-1 cm^-1") == pytest.approx(a, rel=1e-12)
+    assert units.parse_epsilon(f"{x!r} L/(mol*cm)") == pytest.approx(a, rel=1e-12)
