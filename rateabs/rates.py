@@ -105,6 +105,21 @@ def _sums(T, Y, W):
                          ("t4", W * T2 * T2), ("tty", W * T2 * Y))}
 
 
+def _window_sums(C, s, e):
+    """Sums over readings s..e (inclusive) from cumulative sums, shape (N, E) or (N, 1).
+
+    ``s`` is one start for all traces with an array of ends ``e`` (or, as a speed-up, ``e`` may
+    be a dict of the cumulative sums already taken at the ends), or one start and one end per
+    trace.
+    """
+    if isinstance(e, dict):
+        return {k: e[k] - C[k][:, [s]] for k in e}
+    if np.ndim(s) == 0:
+        return {k: v[:, e + 1] - v[:, [s]] for k, v in C.items()}
+    rows = np.arange(len(s))
+    return {k: (v[rows, np.asarray(e) + 1] - v[rows, s])[:, None] for k, v in C.items()}
+
+
 def _quadratic(C, s, e, sigma, scale):
     """Quadratic fit of windows s..e from cumulative sums, the noise sigma known.
 
@@ -113,13 +128,7 @@ def _quadratic(C, s, e, sigma, scale):
     c, the slope b at the window's mean time and that mean time, all in unscaled time units).
     Moments are about the window's mean time; time is divided by ``scale`` for conditioning.
     """
-    keys = ("w", "t", "tt", "t3", "t4", "y", "ty", "tty")
-    if np.ndim(s) == 0:
-        g = {k: C[k][:, e + 1] - C[k][:, [s]] for k in keys}
-    else:
-        rows = np.arange(len(s))
-        g = {k: (C[k][rows, e + 1] - C[k][rows, s])[:, None] for k in keys}
-        e = np.asarray(e)[:, None]
+    g = _window_sums(C, s, e)
     n = g["w"]
     sc = scale[:, None]
     with np.errstate(all="ignore"):
@@ -144,11 +153,7 @@ def _line(C, s, e):
 
     ``s`` is one start for all traces with an array of ends, or one start and end per trace.
     """
-    if np.ndim(s) == 0:
-        g = {k: v[:, e + 1] - v[:, [s]] for k, v in C.items()}
-    else:           # one start and one end per trace
-        rows = np.arange(len(s))
-        g = {k: (v[rows, np.asarray(e) + 1] - v[rows, s])[:, None] for k, v in C.items()}
+    g = _window_sums(C, s, e)
     n = g["w"]
     with np.errstate(all="ignore"):
         stt = g["tt"] - g["t"] ** 2 / n
@@ -241,10 +246,11 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
         if e_idx[-1] != M - 1:
             e_idx = np.append(e_idx, M - 1)
         chi = stats.chi2.ppf(1 - alpha, np.maximum(np.arange(M + 1) - 2, 1))
+        c_end = {k: v[:, e_idx + 1] for k, v in C.items()}       # taken once for every start
         for si, s in enumerate(starts):
-            n, a, b, se, sse, r2 = _line(C, s, e_idx)
+            n, a, b, se, sse, r2 = _line(C, s, c_end)
             valid = (e_idx[None, :] >= s) & (n >= mp)
-            tq = _quadratic(C, s, e_idx, sigma, span)[0]
+            tq = _quadratic(C, s, c_end, sigma, span)[0]
             fail = valid & ((sse / sigma[:, None] ** 2 > chi[np.minimum(n, M).astype(int)])
                             | (np.abs(tq) > curvature_z))
             # a window ends just before the first failing one; windows beyond it are not used
@@ -300,7 +306,12 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
         masked_after = (~U & after & np.isfinite(T)).any(axis=1)
         # the bend's direction: the quadratic term from the window start to the last reading
         ext = np.maximum(last_usable, start + 2)
-        c_ext = _quadratic(C, start, ext, sigma, span)[1][:, 0]
+        _, c_ext, b_ext, tm_ext = (a[:, 0] for a in _quadratic(C, start, ext, sigma, span))
+        # starting values for the whole-curve fit: slope and curvature at the window start
+        ts_c = np.take_along_axis(Tc, start[:, None], 1)[:, 0]
+        v_start = b_ext + 2 * c_ext * (ts_c - tm_ext)
+        with np.errstate(all="ignore"):
+            k_start = -2 * c_ext / v_start
         slowing = np.sign(c_ext) == -np.sign(out["slope"])
         reason = np.where(~has, 5, np.where(end >= last_usable, 0,
                           np.where(~usable_after & masked_after, 1, np.where(slowing, 2, 3))))
@@ -315,7 +326,8 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
     cse = np.full(N, np.nan)
     cp = np.full((N, 3), np.nan)
     if curve:
-        cs, cse, cp = _whole_curve(Tc, Yc, U, start, out["slope"])
+        guess = (v_start, k_start) if window == "auto" else (out["slope"], None)
+        cs, cse, cp = _whole_curve(Tc, Yc, U, start, *guess)
     method = np.where(np.isfinite(out["slope"]), "window", np.where(np.isfinite(cs), "curve",
                                                                      "none"))
     return Windows(list(grid.names), start, end, out["slope"], out["se"], out["a"] + y0[:, 0]
@@ -323,8 +335,12 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
                    sigma, cs, cse, cp, method)
 
 
-def _whole_curve(Tc, Yc, U, start, slope):
-    """Vectorised fit of c + v0 (1 - exp(-k tau)) / k from each trace's window start onwards."""
+def _whole_curve(Tc, Yc, U, start, slope, k_guess=None):
+    """Vectorised fit of c + v0 (1 - exp(-k tau)) / k from each trace's window start onwards.
+
+    ``slope`` and ``k_guess`` (from the quadratic over the same readings) start the solver near
+    the answer, which saves most of its iterations.
+    """
     N, M = Yc.shape
     ts = np.take_along_axis(Tc, np.clip(start, 0, M - 1)[:, None], 1)
     tau = np.where(U, Tc - ts, 0.0)
@@ -336,9 +352,11 @@ def _whole_curve(Tc, Yc, U, start, slope):
         rise = np.nanmax(np.where(w > 0, Yc, np.nan), axis=1) - np.nanmin(
             np.where(w > 0, Yc, np.nan), axis=1)
     v_guess = np.where(np.isfinite(slope), slope, np.nan_to_num(rise) / span)
-    p0 = np.column_stack([ys, v_guess, 0.5 / span])
     lo = [-np.inf, -np.inf, -2.0 / float(np.max(span))]
     hi = [np.inf, np.inf, 20.0 / float(np.min(span))]
+    k0 = np.full(N, np.nan) if k_guess is None else np.asarray(k_guess, float)
+    k0 = np.where(np.isfinite(k0), np.clip(k0, 0.9 * lo[2], 0.9 * hi[2]), 0.5 / span)
+    p0 = np.column_stack([ys, v_guess, k0])
     rows = np.nonzero(enough)[0]
     cs = np.full(N, np.nan)
     cse = np.full(N, np.nan)
@@ -431,7 +449,8 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     meta = pd.DataFrame(index=pd.Index(names, name="trace"))
     if layout is not None:
         meta = meta.join(layout, how="left")
-        excluded = [n for n in names if bool(meta.loc[n].get("exclude", False) is True)]
+        excl = meta["exclude"] if "exclude" in meta.columns else pd.Series(False, meta.index)
+        excluded = list(meta.index[excl.fillna(False).astype(bool).to_numpy()])
         if excluded:
             ts = ts.select([n for n in names if n not in excluded])
             meta = meta.drop(index=excluded)
@@ -448,7 +467,8 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     meta["group"] = meta["group"].where(meta["group"].notna(), pd.Series(meta.index,
                                                                          index=meta.index))
     meta["dilution"] = meta["dilution"].fillna(st.dilution)
-    blanks = [n for n in names if meta.loc[n, "role"] == "blank"]
+    present = set(names)
+    blanks = [n for n in meta.index[(meta["role"] == "blank").to_numpy()] if n in present]
     mode = st.blank
     if mode in ("slope", "trace") and not blanks:
         raise InputError("blank subtraction was asked for but the plate map marks no blank wells",
@@ -499,83 +519,81 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
         direction = 1.0 if st.direction == "up" else -1.0
     blank_info["direction"] = "up" if direction > 0 else "down"
 
-    flags_reading = analysed.reading_flags()
-    meta_rec = meta.to_dict("index")
-    rows = []
-    for k, name in enumerate(g.names):
-        m = meta_rec[name]
-        f = list(flags_reading.get(name, []))
-        f = [x for x in f if x != "missing"]
-        method = str(win.method[k])
-        if method == "none":
-            f.append("few-points" if g.usable[k].sum() < max(5, g.values.shape[1] // 10)
-                     else "no-linear")
-        if method == "curve" and not window_found[k]:
-            f.append("no-linear")
-        if win.lag_s[k] > 0:
-            f.append("lag")
-        if win.end_reason[k] in (2, 3):
-            f.append("curved")
-        b, bse = slope[k], slope_se[k]
-        if np.isfinite(b) and np.isfinite(bse) and abs(b) > 0 and bse / abs(b) > st.noisy_rel_se \
-                and roles[k] not in ("blank", "negative"):
-            f.append("noisy")
-        cs, cse = win.curve_slope[k] * 60, win.curve_slope_se[k] * 60
-        raw_b = win.slope[k] * 60
-        if method == "window" and roles[k] not in ("blank", "negative") and np.isfinite(cs) \
-                and np.isfinite(cse) and (
-                abs(cs - raw_b) > 3 * math.hypot(cse, win.slope_se[k] * 60)
-                and abs(cs - raw_b) > 0.15 * abs(raw_b)):
-            f.append("disagree")
-        if roles[k] == "blank" and np.isfinite(raw_slope[k]) and np.isfinite(raw_win.slope_se[k]):
-            med = np.nanmedian(np.abs(slope[sample_like])) if sample_like.any() else np.nan
-            if abs(raw_slope[k]) > 3 * raw_win.slope_se[k] * 60 and (
-                    not np.isfinite(med) or abs(raw_slope[k]) > 0.05 * med):
-                f.append("blank-drift")
-        if roles[k] in ("sample", "positive", "standard") and np.isfinite(b) and b * direction < 0 \
-                and abs(b) > 3 * bse:
-            f.append("reversed")
-        row = {"trace": name, "role": roles[k], "sample": m.get("sample", ""),
-               "group": m.get("group", name), "method": method,
-               "slope_A_per_min": b, "slope_A_per_min_se": bse,
-               "slope_raw_A_per_min": raw_b if method == "window" else cs,
-               "window_start_s": win.t_start[k], "window_end_s": win.t_end[k],
-               "n_points": int(win.n[k]) if np.isfinite(win.n[k]) else 0, "r2": win.r2[k],
-               "lag_s": win.lag_s[k], "window_end_reason": END_REASONS[int(win.end_reason[k])],
-               "curve_slope_A_per_min": cs, "curve_slope_A_per_min_se": cse,
-               "noise_A": win.sigma[k],
-               "substrate_uM": m.get("substrate_M", np.nan) * 1e6,
-               "inhibitor_uM": m.get("inhibitor_M", np.nan) * 1e6,
-               "enzyme_nM": m.get("enzyme_M", np.nan) * 1e9, "flags": f}
-        if st.epsilon:
-            factor = 1e6 / (st.epsilon * st.pathlength_cm)      # A/min -> uM/min
-            rate = direction * b * factor
-            rel_eps = st.epsilon_se / st.epsilon if st.epsilon else 0.0
-            rate_se = abs(rate) * math.hypot(bse / b, rel_eps) if b else bse * factor
-            row["rate_uM_per_min"] = rate
-            row["rate_uM_per_min_se"] = rate_se
-            s0 = m.get("substrate_M", np.nan) * 1e6
-            dur = (win.t_end[k] - win.t_start[k]) / 60.0
-            if np.isfinite(s0) and s0 > 0 and np.isfinite(rate) and abs(rate) * dur > 0.1 * s0 \
-                    and roles[k] == "sample":
-                f.append("over-10pct")
-            if st.total_volume_L and st.sample_volume_L and roles[k] != "blank":
-                dil = float(m.get("dilution", st.dilution) or 1.0)
-                act = rate * st.total_volume_L / (st.sample_volume_L * 1e3) * dil
-                act_se = rate_se * st.total_volume_L / (st.sample_volume_L * 1e3) * dil
-                row["activity_U_per_mL"] = act
-                row["activity_U_per_mL_se"] = act_se
-                if st.katal:
-                    row["activity_nkat_per_mL"] = act * 1e3 / 60
-                    row["activity_nkat_per_mL_se"] = act_se * 1e3 / 60
-                prot = m.get("protein_mg_per_mL", np.nan)
-                if not np.isfinite(prot) and st.protein_mg_per_mL:
-                    prot = st.protein_mg_per_mL
-                if np.isfinite(prot) and prot > 0:
-                    row["specific_activity_U_per_mg"] = act / prot
-                    row["specific_activity_U_per_mg_se"] = act_se / prot
-        rows.append(row)
-    table = pd.DataFrame(rows)
+    # per-trace columns and flags, as whole arrays (no per-trace arithmetic in Python)
+    m = meta.loc[g.names]
+    n_use = g.usable.sum(axis=1)
+    method = np.asarray(win.method).astype(str)
+    cs, cse = win.curve_slope * 60, win.curve_slope_se * 60
+    raw_b, raw_se = win.slope * 60, win.slope_se * 60
+    not_ctrl = ~np.isin(roles, ["blank", "negative"])
+    with np.errstate(all="ignore"):
+        rel = slope_se / np.abs(slope)
+        diff = np.abs(cs - raw_b)
+        med = np.nanmedian(np.abs(slope[sample_like])) if sample_like.any() else np.nan
+        blank_sig = np.abs(raw_slope) > 3 * raw_win.slope_se * 60
+    masks = {
+        "few-points": (method == "none") & (n_use < max(5, g.values.shape[1] // 10)),
+        "no-linear": ((method == "none") & (n_use >= max(5, g.values.shape[1] // 10)))
+                     | ((method == "curve") & ~window_found),
+        "lag": win.lag_s > 0,
+        "curved": np.isin(win.end_reason, [2, 3]),
+        "noisy": np.isfinite(rel) & (rel > st.noisy_rel_se) & not_ctrl,
+        "disagree": (method == "window") & not_ctrl & np.isfinite(cs) & np.isfinite(cse)
+                    & (diff > 3 * np.hypot(cse, raw_se)) & (diff > 0.15 * np.abs(raw_b)),
+        "blank-drift": (roles == "blank") & np.nan_to_num(blank_sig)
+                       & (~np.isfinite(med) | (np.abs(raw_slope) > 0.05 * med)),
+        "reversed": sample_like & np.isfinite(slope) & (slope * direction < 0)
+                    & (np.abs(slope) > 3 * slope_se),
+    }
+    cols = {"trace": g.names, "role": roles, "sample": m["sample"].fillna("").to_numpy(),
+            "group": m["group"].to_numpy(), "method": method,
+            "slope_A_per_min": slope, "slope_A_per_min_se": slope_se,
+            "slope_raw_A_per_min": np.where(method == "window", raw_b, cs),
+            "window_start_s": win.t_start, "window_end_s": win.t_end,
+            "n_points": np.nan_to_num(win.n).astype(int), "r2": win.r2, "lag_s": win.lag_s,
+            "window_end_reason": [END_REASONS[int(r)] for r in win.end_reason],
+            "curve_slope_A_per_min": cs, "curve_slope_A_per_min_se": cse, "noise_A": win.sigma,
+            "substrate_uM": m["substrate_M"].to_numpy(float) * 1e6,
+            "inhibitor_uM": m["inhibitor_M"].to_numpy(float) * 1e6,
+            "enzyme_nM": m["enzyme_M"].to_numpy(float) * 1e9}
+    if st.epsilon:
+        factor = 1e6 / (st.epsilon * st.pathlength_cm)          # A/min -> uM/min
+        rate = direction * slope * factor
+        rel_eps = st.epsilon_se / st.epsilon
+        with np.errstate(all="ignore"):
+            rate_se = np.where(slope != 0, np.abs(rate) * np.hypot(slope_se / slope, rel_eps),
+                               slope_se * factor)
+        cols["rate_uM_per_min"], cols["rate_uM_per_min_se"] = rate, rate_se
+        s0 = cols["substrate_uM"]
+        dur = (win.t_end - win.t_start) / 60.0
+        with np.errstate(invalid="ignore"):
+            masks["over-10pct"] = (roles == "sample") & (s0 > 0) & (np.abs(rate) * dur > 0.1 * s0)
+        if st.total_volume_L and st.sample_volume_L:
+            dil = m["dilution"].fillna(st.dilution).to_numpy(float)
+            scale = np.where(roles != "blank", st.total_volume_L / (st.sample_volume_L * 1e3) * dil,
+                             np.nan)
+            cols["activity_U_per_mL"], cols["activity_U_per_mL_se"] = rate * scale, rate_se * scale
+            if st.katal:
+                cols["activity_nkat_per_mL"] = rate * scale * 1e3 / 60
+                cols["activity_nkat_per_mL_se"] = rate_se * scale * 1e3 / 60
+            prot = m["protein_mg_per_mL"].to_numpy(float)
+            if st.protein_mg_per_mL:
+                prot = np.where(np.isfinite(prot), prot, st.protein_mg_per_mL)
+            if np.any(np.isfinite(prot) & (prot > 0)):
+                ok_p = np.isfinite(prot) & (prot > 0)
+                cols["specific_activity_U_per_mg"] = np.where(ok_p, rate * scale / prot, np.nan)
+                cols["specific_activity_U_per_mg_se"] = np.where(ok_p, rate_se * scale / prot,
+                                                                  np.nan)
+    # reading flags (overflow, past-linear), then the trace flags in a fixed order
+    bad = analysed.data[analysed.data["flag"].isin(["overflow", "past-linear", "excluded"])]
+    per = bad.groupby("trace")["flag"].unique().to_dict() if len(bad) else {}
+    order = ["few-points", "no-linear", "lag", "curved", "noisy", "disagree", "blank-drift",
+             "reversed", "over-10pct"]
+    stacked = np.column_stack([masks[k] for k in order if k in masks])
+    names_ = [k for k in order if k in masks]
+    cols["flags"] = [sorted(per.get(n, [])) + [names_[j] for j in np.nonzero(row)[0]]
+                     for n, row in zip(g.names, stacked, strict=True)]
+    table = pd.DataFrame(cols)
     value_col = "rate_uM_per_min" if st.epsilon else "slope_A_per_min"
     reps, outliers = replicate_summary(table, value_col)
     for w in outliers:
@@ -614,8 +632,8 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
 def replicate_summary(table: pd.DataFrame, value_col: str) -> tuple[pd.DataFrame, list[str]]:
     """Mean, SD, CV and n per replicate group, and the wells that are Grubbs outliers."""
     d = table[(table["role"] != "blank") & np.isfinite(table[value_col].astype(float))]
-    if d.empty:
-        return pd.DataFrame(), []
+    if d.empty or d["group"].nunique() == len(d):
+        return pd.DataFrame(), []                   # no replicates on this plate
     g = d.groupby("group", sort=False)
     agg = g.agg(role=("role", "first"), sample=("sample", "first"),
                 substrate_uM=("substrate_uM", "first"), inhibitor_uM=("inhibitor_uM", "first"),
