@@ -72,13 +72,22 @@ def _reader_options(fn):
     return fn
 
 
-def _report_option(fn):
-    return click.option("--report", type=click.Path(dir_okay=False), default=None,
-                        help="Write one self-contained HTML report (plots inline) to this file.")(fn)
+def _output_options(fn):
+    """--plots, --format, --out and --report, shared by every analysis command."""
+    fn = click.option("--report", type=click.Path(dir_okay=False), default=None,
+                      help="Write one self-contained HTML report (plots inline) to this file.")(fn)
+    fn = click.option("--out", type=click.Path(file_okay=False), default=None,
+                      help="Folder for the JSON, CSV and plots.")(fn)
+    fn = click.option("--format", "fmt", type=FORMATS, default="table", show_default=True,
+                      help="table for a person, csv, or one json document.")(fn)
+    fn = click.option("--plots/--no-plots", default=True, show_default=True,
+                      help="Draw plots into --out (and into --report).")(fn)
+    return fn
 
 
 def _emit(fmt: str, doc: dict, table: str, csv_text: str, out, name: str) -> None:
-    from .output import to_json, write_text
+    from .output import to_json
+    from .views import write_outputs
 
     if fmt == "json":
         click.echo(to_json(doc), nl=False)
@@ -89,9 +98,7 @@ def _emit(fmt: str, doc: dict, table: str, csv_text: str, out, name: str) -> Non
         for w in doc.get("warnings", []):
             if w not in table:
                 click.echo(f"warning: {w}", err=True)
-    if out:
-        write_text(out, f"{name}.json", to_json(doc))
-        write_text(out, f"{name}.csv", csv_text)
+    write_outputs(doc, csv_text, out, name)
 
 
 @main.command()
@@ -99,17 +106,15 @@ def _emit(fmt: str, doc: dict, table: str, csv_text: str, out, name: str) -> Non
 @_reader_options
 @click.option("--linear-limit", type=float, default=None,
               help="Absorbance above which readings are flagged (default 2.0).")
-@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
-@click.option("--out", type=click.Path(file_okay=False), default=None,
-              help="Folder for inspect.json and inspect.csv.")
-@_report_option
+@_output_options
 @_guarded
-def inspect(file, time_unit, signal, i0, sheet, linear_limit, fmt, out, report):
+def inspect(file, time_unit, signal, i0, sheet, linear_limit, plots, fmt, out, report):
     """Show what the reader found in FILE: traces, time unit, signal kind, flags."""
     from .views import run_inspect
 
     run_inspect(dict(file=file, time_unit=time_unit, signal=signal, i0=i0, sheet=sheet,
-                     linear_limit=linear_limit, fmt=fmt, out=out, report=report), _emit)
+                     linear_limit=linear_limit, plots=plots, fmt=fmt, out=out, report=report),
+                _emit)
 
 
 def _parse_window(text: str):
@@ -164,12 +169,7 @@ def _parse_window(text: str):
 @click.option("--slope-from", type=click.Choice(["window", "curve"]), default="window",
               show_default=True, help="Report the straight-window slope, or the initial slope of "
               "the whole-curve fit (better when substrate depletion bends every trace).")
-@click.option("--plots/--no-plots", default=True, show_default=True,
-              help="Write plots into --out.")
-@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
-@click.option("--out", type=click.Path(file_okay=False), default=None,
-              help="Folder for rates.json/.csv, replicates.csv and plots.")
-@_report_option
+@_output_options
 @_guarded
 def rates(file, time_unit, signal, i0, sheet, layout_file, epsilon, epsilon_se, chromophore,
           pathlength, well_volume, plate, total_volume, sample_volume, protein, dilution, window,
@@ -232,13 +232,9 @@ def _parse_fix(items) -> dict:
 @click.option("--resample", type=click.Choice(["residual", "case"]), default="residual",
               show_default=True, help="Bootstrap scheme.")
 @click.option("--seed", type=int, default=0, show_default=True, help="Bootstrap seed.")
-@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
 @click.option("--select", multiple=True, metavar="COL=VALUE",
               help="Use only rows whose COL equals VALUE (repeatable), e.g. sample=KbDH1.")
-@click.option("--plots/--no-plots", default=True, show_default=True)
-@click.option("--out", type=click.Path(file_okay=False), default=None,
-              help="Folder for saturation.json/.csv and plots.")
-@_report_option
+@_output_options
 @_guarded
 def saturation(file, conc, rate, inhibitor, sd_col, model, ci, level, weighting, fix, enzyme,
                conc_unit, rate_unit, inhibitor_unit, mode, substrate, km, resamples, resample,
@@ -285,10 +281,7 @@ def _law_options(fn):
               help="Also apply Guggenheim's method with this interval in s (0: half the run).")
 @click.option("--excess", type=click.Path(), default=None,
               help="CSV trace,conc of a pseudo-first-order series: k2 from kobs vs [excess].")
-@click.option("--plots/--no-plots", default=True, show_default=True)
-@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
-@click.option("--out", type=click.Path(file_okay=False), default=None)
-@_report_option
+@_output_options
 @_guarded
 def ratelaw(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product, chromophore,
             epsilon, trace, fix, level, order, a0, b0, ci, expect, guggenheim, excess, plots, fmt,
@@ -315,10 +308,7 @@ def ratelaw(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product,
               help="Re-read FILE every SECONDS while the instrument writes it; stop at completion "
               "or Ctrl-C.")
 @click.option("--max-updates", type=int, default=None, help="With --follow: stop after N reads.")
-@click.option("--plots/--no-plots", default=True, show_default=True)
-@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
-@click.option("--out", type=click.Path(file_okay=False), default=None)
-@_report_option
+@_output_options
 @_guarded
 def completion(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_product, chromophore,
                epsilon, trace, fix, level, target, order, follow, max_updates, plots, fmt, out,
@@ -348,10 +338,7 @@ def completion(file, time_unit, signal, i0, sheet, c0, pathlength, epsilon_produ
               help="Unit of the temperatures (else from the header or the values).")
 @click.option("--at", multiple=True, help="Predict k at this temperature, e.g. '60 C' (repeatable).")
 @click.option("--level", type=float, default=0.95, show_default=True)
-@click.option("--plots/--no-plots", default=True, show_default=True)
-@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
-@click.option("--out", type=click.Path(file_okay=False), default=None)
-@_report_option
+@_output_options
 @_guarded
 def temperature(file, temp_column, k_column, se_column, temp_unit, at, level, plots, fmt, out,
                 report):
@@ -383,10 +370,7 @@ def temperature(file, temp_column, k_column, se_column, temp_unit, at, level, pl
 @click.option("--ci", type=click.Choice(["asymptotic", "profile"]), default="asymptotic",
               show_default=True)
 @click.option("--level", type=float, default=0.95, show_default=True)
-@click.option("--plots/--no-plots", default=True, show_default=True)
-@click.option("--format", "fmt", type=FORMATS, default="table", show_default=True)
-@click.option("--out", type=click.Path(file_okay=False), default=None)
-@_report_option
+@_output_options
 @_guarded
 def progress(file, time_unit, signal, i0, sheet, s0, s0_column, layout_file, epsilon,
              chromophore, pathlength, species, product_inhibition, selwyn, trace, ci, level,

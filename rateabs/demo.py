@@ -17,14 +17,6 @@ from .io import sample_path, write_atomic
 from .report import esc, notes, page, table
 
 
-def _quiet_emit(fmt, doc, table_text, csv_text, out, name):
-    from .output import to_json, write_text
-
-    if out:
-        write_text(out, f"{name}.json", to_json(doc))
-        write_text(out, f"{name}.csv", csv_text)
-
-
 def run_demo(out: str | Path, echo=print) -> str:
     """Run every demo step into ``out``; returns a short summary for the terminal."""
     from . import views
@@ -38,7 +30,7 @@ def run_demo(out: str | Path, echo=print) -> str:
         folder = out / key
         o = dict(o, fmt="table", out=str(folder), report=str(folder / "report.html"),
                  plots=True)
-        view = fn(o, _quiet_emit)
+        view = fn(o, views.write_only)
         steps.append({"key": key, "title": title, "who": who, "view": view,
                       "page": f"{key}/report.html"})
         echo(f"  done: {title}")
@@ -80,7 +72,7 @@ def run_demo(out: str | Path, echo=print) -> str:
     cls = sample_path("class_kestrel_red")
     gview = views.run_grade({"folder": str(cls), "rubric": str(cls / "rubric.toml"),
                              "fmt": "table", "out": str(out / "9_class"), "jobs": None},
-                            _quiet_emit)
+                            views.write_only)
     steps.append({"key": "9_class", "title": "Teaching lab: the class's Kestrel Red runs graded",
                   "who": "teaching-lab instructor", "view": gview,
                   "page": "9_class/class_summary.html"})

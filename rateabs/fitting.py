@@ -300,10 +300,8 @@ def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
 def _take_rows(x, rows, B):
     """x restricted to the given datasets when x carries a dataset axis (shape (..., B, n))."""
     x = np.asarray(x, dtype=float)
-    if x.ndim >= 2 and x.shape[-2] == B and B > 1:
+    if B > 1 and x.ndim >= 2 and x.shape[-2] == B:
         return x[..., rows, :]
-    if x.ndim >= 2 and x.shape[-2] == B and B == 1:
-        return x
     return x
 
 

@@ -383,7 +383,7 @@ def grade_one(task: Task, rubric: dict, plots: bool = True) -> dict:
 def _student_plot(task, own, rubric) -> bytes:
     import io
 
-    from .plots import GRID, INK, PALETTE, house_style
+    from .plots import PALETTE, house_style
 
     with house_style() as plt:
         fig, ax = plt.subplots(figsize=(5.6, 3.4))
@@ -397,9 +397,6 @@ def _student_plot(task, own, rubric) -> bytes:
         ax.set_title(f"{task.student}: {rubric['quantity']} = {own['value']:.4g} {rubric['unit']}",
                      fontsize=9.5)
         ax.legend(loc="best")
-        ax.grid(True, color=GRID)
-        for s in ax.spines.values():
-            s.set_color(INK)
         buf = io.BytesIO()
         fig.savefig(buf, format="png", bbox_inches="tight", dpi=90)
         plt.close(fig)

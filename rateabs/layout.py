@@ -30,7 +30,7 @@ import pandas as pd
 
 from .errors import InputError, UnitError
 from .io import read_table
-from .units import parse_concentration, parse_mass_concentration
+from .units import parse_concentration, parse_mass_concentration, unit_from_header
 
 ROLES = ("sample", "blank", "standard", "positive", "negative")
 _ROLE_ALIASES = {"blk": "blank", "buffer": "blank", "bkg": "blank", "background": "blank",
@@ -38,20 +38,17 @@ _ROLE_ALIASES = {"blk": "blank", "buffer": "blank", "bkg": "blank", "background"
                  "smp": "sample", "positive control": "positive", "negative control": "negative"}
 
 
-def _conc_column(df, stem):
+def conc_column(df, stem: str):
+    """The column whose header starts with ``stem`` (substrate, inhibitor, enzyme...), or None."""
     for c in df.columns:
         if re.match(rf"^{stem}([\s_(\[]|$)", str(c), re.I):
             return c
     return None
 
 
-def _header_unit(col: str) -> str | None:
-    m = re.search(r"[(\[]\s*([^)\]]+?)\s*[)\]]\s*$", col) or re.search(r"_([munpµ]?M)$", col)
-    return m.group(1) if m else None
-
-
-def _parse_conc_cells(df, col, path, lines):
-    unit = _header_unit(col) or "uM"
+def parse_conc_cells(df, col: str, path: str, lines) -> np.ndarray:
+    """Concentrations (mol/L) of a column; unit from the header or each cell, bare numbers µM."""
+    unit = unit_from_header(col) or "uM"
     out = np.full(len(df), np.nan)
     for k, cell in enumerate(df[col].tolist()):
         c = str(cell).strip()
@@ -105,9 +102,9 @@ def read_layout(path: str) -> pd.DataFrame:
     out["role"] = roles
     out["sample"] = [str(x).strip() for x in df["sample"]] if "sample" in df.columns else ""
     for stem in ("substrate", "inhibitor"):
-        col = _conc_column(df, stem)
-        out[f"{stem}_M"] = _parse_conc_cells(df, col, path, lines) if col else np.nan
-    enz = _conc_column(df, "enzyme")
+        col = conc_column(df, stem)
+        out[f"{stem}_M"] = parse_conc_cells(df, col, path, lines) if col else np.nan
+    enz = conc_column(df, "enzyme")
     out["enzyme"] = [str(x).strip() for x in df[enz]] if enz else ""
     enz_m = np.full(len(df), np.nan)
     if enz:
@@ -133,7 +130,7 @@ def read_layout(path: str) -> pd.DataFrame:
                                  file=path, row=lines[k], column="dilution")
     out["dilution"] = dil
     prot = np.full(len(df), np.nan)
-    pcol = _conc_column(df, "protein")
+    pcol = conc_column(df, "protein")
     if pcol:
         for k, c in enumerate(df[pcol]):
             c = str(c).strip()

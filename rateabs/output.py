@@ -75,7 +75,7 @@ def fmt_num(x, digits: int = 4) -> str:
             return "0"
         if abs(x) >= 1e6 or abs(x) < 1e-3:
             return f"{x:.{digits - 1}e}"
-        return f"{x:.{digits}g}" if abs(x) >= 1 else f"{x:.{digits}g}"
+        return f"{x:.{digits}g}"
     if isinstance(x, (list, tuple)):
         return ",".join(str(v) for v in x) or "-"
     return str(x)

@@ -585,7 +585,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
                 cols["specific_activity_U_per_mg_se"] = np.where(ok_p, rate_se * scale / prot,
                                                                   np.nan)
     # reading flags (overflow, past-linear), then the trace flags in a fixed order
-    bad = analysed.data[analysed.data["flag"].isin(["overflow", "past-linear", "excluded"])]
+    bad = analysed.data[analysed.data["flag"].isin(["overflow", "past-linear"])]
     per = bad.groupby("trace")["flag"].unique().to_dict() if len(bad) else {}
     order = ["few-points", "no-linear", "lag", "curved", "noisy", "disagree", "blank-drift",
              "reversed", "over-10pct"]

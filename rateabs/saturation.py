@@ -25,7 +25,7 @@ from .errors import FitError, InputError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, fit
 from .io import number_column, pick_column
 from .models import INHIBITION_MODELS, NESTED, SATURATION, SUBSTRATE_MODELS, direct_linear_plot
-from .units import TIME_UNITS, concentration_factor
+from .units import TIME_UNITS, concentration_factor, unit_from_header
 
 MODEL_CHOICES = ("mm", "hill", "substrate-inhibition", "competitive", "uncompetitive",
                  "noncompetitive", "mixed", "ic50", "auto")
@@ -34,18 +34,6 @@ _CONC = re.compile(r"^(s|\[s\]|s0|substrate|conc|concentration|x)([\s_(\[]|$)", 
 _RATE = re.compile(r"^(v|v0|vi|rate|velocity|activity|initial[\s_]rate|y)([\s_(\[]|$)", re.I)
 _INHIB = re.compile(r"^(i|\[i\]|inhibitor|inhib|dose|compound)([\s_(\[]|$)", re.I)
 _SD = re.compile(r"^(sd|std|stdev|error|se|sigma)([\s_(\[]|$)|_sd$|_se$", re.I)
-
-
-def unit_from_header(header: str) -> str:
-    """Unit named in a column header: ``"[S] (mM)"`` -> ``mM``; ``rate_uM_per_min`` -> ``uM/min``."""
-    h = header.strip()
-    m = re.search(r"[(\[]\s*([^)\]]+?)\s*[)\]]\s*$", h)
-    if m:
-        return m.group(1).replace(" per ", "/")
-    m = re.search(r"_((?:[munpµk]?M|A|AU|ppm|nmol|umol)(?:_per_(?:s|min|h))?)$", h)
-    if m:
-        return m.group(1).replace("_per_", "/")
-    return ""
 
 
 @dataclass(frozen=True)

@@ -24,7 +24,6 @@ READING_FLAGS = {
     "overflow": "the instrument marked the reading as over its range",
     "missing": "no reading (empty cell or NaN)",
     "past-linear": "absorbance above the linear limit of Beer–Lambert",
-    "excluded": "excluded by the user",
 }
 
 

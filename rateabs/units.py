@@ -171,5 +171,17 @@ def parse_number(text: str | float, what: str = "number") -> float:
         raise UnitError(f"cannot read {what} {text!r} as a number", "write a plain number") from None
 
 
+def unit_from_header(header: str) -> str:
+    """Unit named in a column header: ``"[S] (mM)"`` -> ``mM``; ``rate_uM_per_min`` -> ``uM/min``."""
+    h = header.strip()
+    m = re.search(r"[(\[]\s*([^)\]]+?)\s*[)\]]\s*$", h)
+    if m:
+        return m.group(1).replace(" per ", "/")
+    m = re.search(r"_((?:[munpµk]?M|A|AU|ppm|nmol|umol)(?:_per_(?:s|min|h))?)$", h)
+    if m:
+        return m.group(1).replace("_per_", "/")
+    return ""
+
+
 #: Display names and factors of concentration units for output, base mol/L.
 CONC_DISPLAY = {"M": 1.0, "mM": 1e-3, "uM": 1e-6, "nM": 1e-9}

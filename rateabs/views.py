@@ -34,6 +34,20 @@ class View:
     analysis: object = None
 
 
+def write_outputs(doc: dict, csv_text: str, out, name: str) -> None:
+    """``NAME.json`` and ``NAME.csv`` into the --out folder (nothing without one)."""
+    from .output import to_json
+
+    if out:
+        write_text(out, f"{name}.json", to_json(doc))
+        write_text(out, f"{name}.csv", csv_text)
+
+
+def write_only(fmt, doc, table_text, csv_text, out, name) -> None:
+    """An ``emit`` that prints nothing and only writes the --out files (the demo's)."""
+    write_outputs(doc, csv_text, out, name)
+
+
 def deliver(o: dict, emit, view: View, name: str, plot=None) -> list[Path]:
     """Print the view, write --out files and plots, and the --report page; returns the plots.
 
@@ -502,14 +516,14 @@ def _ci(p):
 
 def _pseudo_series(o, laws, pseudo_first_order):
     from .io import read_table
-    from .layout import _conc_column, _parse_conc_cells
+    from .layout import conc_column, parse_conc_cells
 
     df = read_table(o["excess"])
     lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
     cols = {c.lower(): c for c in df.columns}
     tcol = cols.get("trace") or cols.get("well") or df.columns[0]
-    ccol = _conc_column(df, "conc") or _conc_column(df, "excess") or df.columns[-1]
-    conc = _parse_conc_cells(df, ccol, o["excess"], lines)
+    ccol = conc_column(df, "conc") or conc_column(df, "excess") or df.columns[-1]
+    conc = parse_conc_cells(df, ccol, o["excess"], lines)
     kobs, x = [], []
     for name, c in zip(df[tcol], conc, strict=True):
         law = laws.get(str(name).strip())
@@ -736,7 +750,12 @@ def compute_progress(o: dict) -> View:
     from .layout import read_layout
     from .photometry import resolve_epsilon
     from .progress import Curves, analyse
-    from .units import concentration_factor, parse_concentration, parse_pathlength
+    from .units import (
+        concentration_factor,
+        parse_concentration,
+        parse_pathlength,
+        unit_from_header,
+    )
 
     ts, names = _traces_for(o)
     eps = resolve_epsilon(o.get("epsilon"), o.get("chromophore"))
@@ -756,8 +775,6 @@ def compute_progress(o: dict) -> View:
         if col not in meta.columns:
             raise UsageError(f"no per-curve column {col!r} in {o['file']}",
                              f"use one of {', '.join(map(str, meta.columns)) or '(none)'}")
-        from .saturation import unit_from_header
-
         f = concentration_factor(unit_from_header(col) or "uM") * 1e6
         s0 = np.array([float(meta.loc[n, col]) * f for n in names])
     elif "substrate_M" in meta.columns:

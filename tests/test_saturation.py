@@ -11,7 +11,8 @@ from rateabs.cli import main
 from rateabs.errors import FitError
 from rateabs.fitting import Param
 from rateabs.models import SATURATION, direct_linear_plot
-from rateabs.saturation import SaturationData, analyse, cheng_prusoff, unit_from_header
+from rateabs.saturation import SaturationData, analyse, cheng_prusoff
+from rateabs.units import unit_from_header
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 PURO = ("conc (ppm),rate (counts/min^2)\n0.02,76\n0.02,47\n0.06,97\n0.06,107\n0.11,123\n"
