@@ -310,6 +310,8 @@ def rates_table(a) -> str:
             row["rate"] = _pm(r["rate_uM_per_min"], r["rate_uM_per_min_se"], 4)
         if "activity_U_per_mL" in r and np.isfinite(r.get("activity_U_per_mL", np.nan)):
             row["act"] = _pm(r["activity_U_per_mL"], r["activity_U_per_mL_se"], 4)
+        if np.isfinite(r.get("specific_activity_U_per_mg", np.nan)):
+            row["spec"] = _pm(r["specific_activity_U_per_mg"], r["specific_activity_U_per_mg_se"], 4)
         rows.append(row)
     cols = [("trace", "trace"), ("role", "role"), ("sample", "sample"),
             ("slope", "slope (A/min)")]
@@ -317,6 +319,8 @@ def rates_table(a) -> str:
         cols.append(("rate", "rate (uM/min)"))
     if any("act" in r for r in rows):
         cols.append(("act", "activity (U/mL)"))
+    if any("spec" in r for r in rows):
+        cols.append(("spec", "specific (U/mg)"))
     cols += [("window", "window (s)"), ("n", "n"), ("r2", "r2"), ("flags", "flags")]
     text = render_table(rows, cols)
     if not a.replicates.empty:
