@@ -6,6 +6,7 @@ The CLI and the demo both call these; the analyses below them never print or rea
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -772,14 +773,18 @@ def compute_progress(o: dict) -> View:
     if o.get("layout_file"):
         meta = meta.join(read_layout(o["layout_file"]), how="left", rsuffix="_map")
     s0 = np.full(len(names), np.nan)
+    s0_unit = "uM"                # Km and Vmax are reported in the unit S0 was given in
     if o.get("s0") is not None:
         s0[:] = parse_concentration(o["s0"], default="uM") * 1e6
+        m_u = re.search(r"([munpµ]?M)\s*$", str(o["s0"]).strip())
+        s0_unit = m_u.group(1).replace("µ", "u") if m_u else "uM"
     elif o.get("s0_column"):
         col = o["s0_column"]
         if col not in meta.columns:
             raise UsageError(f"no per-curve column {col!r} in {o['file']}",
                              f"use one of {', '.join(map(str, meta.columns)) or '(none)'}")
-        f = concentration_factor(unit_from_header(col) or "uM") * 1e6
+        s0_unit = unit_from_header(col) or "uM"
+        f = concentration_factor(s0_unit) * 1e6
         s0 = np.array([float(meta.loc[n, col]) * f for n in names])
     elif "substrate_M" in meta.columns:
         s0 = np.array([float(meta.loc[n, "substrate_M"]) * 1e6 for n in names])
@@ -804,6 +809,20 @@ def compute_progress(o: dict) -> View:
     a = analyse(curves, product_inhibition=o.get("product_inhibition", False),
                 ci=o.get("ci", "asymptotic"), level=o.get("level", 0.95),
                 selwyn=enzyme is not None)
+    if enzyme is None:
+        for col in meta.columns:
+            vals = meta.loc[names, col] if col in meta.columns else None
+            if "enzyme" in str(col).lower() and vals is not None and vals.nunique() > 1:
+                a.warnings.append(f"the curves differ in {col!r} but one Vmax was fitted to all; "
+                                  f"give --selwyn {col!r} so that the rate scales with the "
+                                  "enzyme amount")
+    if s0_unit != "uM":
+        from dataclasses import replace as _replace
+
+        f = 1e-6 / concentration_factor(s0_unit)           # uM -> the unit of S0
+        a.params = {k: _replace(p, value=p.value * f, se=p.se * f, ci_low=p.ci_low * f,
+                                ci_high=p.ci_high * f, unit=p.unit.replace("uM", s0_unit))
+                    for k, p in a.params.items()}
     res = {"model": "integrated-mm" + ("+product-inhibition" if "Kp" in a.params else ""),
            "params": {k: p.to_dict() for k, p in a.params.items()},
            "n_curves": len(names), "n": a.fit.n, "aicc": a.fit.aicc, "sigma_uM": a.fit.sigma,

@@ -116,3 +116,22 @@ def test_bad_input(tmp_path, content, args, words, code):
     r = CliRunner().invoke(main, ["progress", str(f), *args, "--no-plots"])
     assert r.exit_code == code, r.output
     assert words in r.output and len(r.output.strip().splitlines()) == 1
+
+
+def test_units_follow_s0_and_enzyme_warning(tmp_path):
+    src = (SAMPLES / "progress_kbap_405nm.csv").read_text().splitlines()
+    rows = [src[0], src[1].replace("S0 (uM)", "S0 (mM)")]
+    for line in src[2:]:
+        c = line.split(",")
+        c[1] = f"{float(c[1]) / 1000:g}"
+        rows.append(",".join(c))
+    f = tmp_path / "mM.csv"
+    f.write_text("\n".join(rows) + "\n")
+    r = CliRunner().invoke(main, ["progress", str(f), "--s0-column", "S0 (mM)", "--chromophore",
+                                  "pnp", "--selwyn", "enzyme (nM)", "--format", "json"])
+    km = json.loads(r.stdout)["results"][0]["params"]["Km"]
+    assert km["unit"] == "mM" and km["value"] == pytest.approx(0.060, rel=0.05)
+    r = CliRunner().invoke(main, ["progress", str(SAMPLES / "progress_kbap_405nm.csv"),
+                                  "--s0-column", "S0 (uM)", "--chromophore", "pnp", "--format",
+                                  "json"])
+    assert any("--selwyn" in w for w in json.loads(r.stdout)["warnings"])
