@@ -365,7 +365,8 @@ def _whole_curve(Tc, Yc, U, start, slope, k_guess=None):
         return cs, cse, cp
     with _quiet():
         r = batch_lm(_curve, tau[rows], np.where(w[rows] > 0, Yc[rows], 0.0), w[rows],
-                     p0[rows], lower=lo, upper=hi, max_iter=100, want_cov=True,
+                     p0[rows], lower=lo, upper=hi, max_iter=100, want_cov=True, xtol=1e-7,
+                     ftol=1e-9,
                      jac=_curve_jac)
     se_v0 = np.sqrt(np.maximum(r.cov[:, 1, 1], 0))
     # an initial slope the curve does not determine (flat or very noisy trace) is not reported
