@@ -163,3 +163,33 @@ def test_rubric_defaults():
     r = Rubric("k", "first-order", "1/s", 8e-4, 5)
     assert r.weights == {"data": 20.0, "report": 50.0, "reference": 30.0}
     assert math.isclose(sum(r.weights.values()), 100)
+
+
+def test_km_and_half_life_assignments(tmp_path):
+    # Km from each student's own rates table (published model: Michaelis & Menten); a student
+    # who reports Km in mM while the rubric asks for uM is a factor of 1000 off
+    from rateabs.models import SATURATION
+
+    f = tmp_path / "km"
+    f.mkdir()
+    s = np.array([5, 10, 20, 40, 80, 160, 320.0])
+    v = SATURATION["mm"].func(s, 10.0, 40.0) * (1 + np.random.default_rng(2).normal(0, 0.01, 7))
+    (f / "t.csv").write_text("substrate_uM,rate_uM_per_min\n" + "".join(
+        f"{a:g},{b:.5f}\n" for a, b in zip(s, v, strict=True)))
+    (f / "roster.csv").write_text("student,file,reported\nok,t.csv,40.2\nmm,t.csv,0.0402\n")
+    (f / "rubric.toml").write_text('[assignment]\nquantity = "Km"\nmodel = "michaelis-menten"\n'
+                                   'unit = "uM"\nreference = 40\ntolerance_pct = 5\n')
+    res = {x["student"]: x for x in grade_class(f, read_rubric(f / "rubric.toml"), plots=False)}
+    assert res["ok"]["value"] == pytest.approx(40, rel=0.05) and res["ok"]["score"] > 90
+    assert any("1000" in d for d in res["mm"]["diagnosis"])
+    # half-life in min; a student who reports k instead is named
+    g = tmp_path / "hl"
+    first_order_class(g, 2)
+    k = [float(ln.split(",")[2]) for ln in (g / "roster.csv").read_text().splitlines()[1:]]
+    (g / "roster.csv").write_text(f"student,file,reported\nok,r0.csv,{math.log(2) / k[0] / 60:.4g}"
+                                  f"\nswap,r1.csv,{k[1] * 60:.4g}\n")
+    (g / "rubric.toml").write_text('[assignment]\nquantity = "half_life"\nunit = "min"\n'
+                                   'reference = 14.44\ntolerance_pct = 5\n')
+    res = {x["student"]: x for x in grade_class(g, read_rubric(g / "rubric.toml"), plots=False)}
+    assert "no slip" in res["ok"]["diagnosis"][0]
+    assert "rate constant" in " ".join(res["swap"]["diagnosis"])
