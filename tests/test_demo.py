@@ -113,3 +113,23 @@ def test_index_renders_in_headless_chromium(demo_dir, tmp_path):
                        capture_output=True, text=True, timeout=120)
     assert r.returncode == 0, r.stderr[-2000:]
     assert shot.stat().st_size > 20_000
+
+
+def test_report_escapes_a_hostile_sample_name(tmp_path):
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    data = tmp_path / "d.csv"
+    data.write_text("Time (s),A1,A2\n" + "".join(f"{10 * k},{0.1 + 0.01 * k},{0.1 + 0.001 * k}\n"
+                                                for k in range(20)))
+    mp = tmp_path / "map.csv"
+    mp.write_text('well,role,sample\nA1,sample,"<img src=x onerror=alert(1)>"\nA2,blank,buffer\n')
+    rep = tmp_path / "r.html"
+    r = CliRunner().invoke(main, ["rates", str(data), "--layout", str(mp), "--report", str(rep)])
+    assert r.exit_code == 0, r.output
+    text = rep.read_text()
+    assert "<img src=x" not in text and "&lt;img src=x onerror=alert(1)&gt;" in text
+    assert "data:image/png;base64," in text                 # plots drawn without --out
+    r = CliRunner().invoke(main, ["inspect", str(data), "--report", str(tmp_path / "i.html")])
+    assert r.exit_code == 0 and "data:image/png" in (tmp_path / "i.html").read_text()
