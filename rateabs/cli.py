@@ -166,6 +166,9 @@ def _parse_window(text: str):
 @click.option("--noisy-limit", type=float, default=0.10, show_default=True,
               help="Relative SE of a slope above which it is flagged noisy.")
 @click.option("--katal", is_flag=True, help="Also report activity in nkat/mL.")
+@click.option("--calibrate", type=click.Choice(["auto", "standards", "none"]), default="auto",
+              show_default=True, help="Convert with a standard curve from 'standard' wells "
+              "(auto: when no epsilon is given).")
 @click.option("--slope-from", type=click.Choice(["window", "curve"]), default="window",
               show_default=True, help="Report the straight-window slope, or the initial slope of "
               "the whole-curve fit (better when substrate depletion bends every trace).")
@@ -173,8 +176,8 @@ def _parse_window(text: str):
 @_guarded
 def rates(file, time_unit, signal, i0, sheet, layout_file, epsilon, epsilon_se, chromophore,
           pathlength, well_volume, plate, total_volume, sample_volume, protein, dilution, window,
-          min_points, blank, direction, linear_limit, noisy_limit, katal, slope_from, plots, fmt,
-          out, report):
+          min_points, blank, direction, linear_limit, noisy_limit, katal, calibrate, slope_from,
+          plots, fmt, out, report):
     """Initial rate of each trace in FILE, converted to concentration and activity."""
     from .views import run_rates
 
@@ -185,7 +188,8 @@ def rates(file, time_unit, signal, i0, sheet, layout_file, epsilon, epsilon_se, 
                    protein=protein, dilution=dilution, window=_parse_window(window),
                    min_points=min_points, blank=blank, direction=direction,
                    linear_limit=linear_limit, noisy_limit=noisy_limit, katal=katal,
-                   slope_from=slope_from, plots=plots, fmt=fmt, out=out, report=report),
+                   slope_from=slope_from, calibrate=calibrate, plots=plots, fmt=fmt, out=out,
+                   report=report),
               _emit)
 
 

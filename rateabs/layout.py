@@ -11,6 +11,8 @@ A plate map is a CSV (or TSV/.xlsx) with one row per well. Columns (case-insensi
 ``substrate``  substrate concentration; unit in the header (``substrate_uM``,
                ``substrate (mM)``) or in the cell (``50 uM``); bare numbers are µM
 ``inhibitor``  inhibitor concentration, same rules
+``standard``   known concentration of the absorbing species in a ``standard`` well (a standard
+               curve calibrates absorbance when no epsilon is given)
 ``enzyme``     enzyme amount in the well, e.g. ``1 nM`` (kept for kcat)
 ``dilution``   dilution factor of the sample before it was added (default 1)
 ``protein``    protein concentration of the undiluted sample, e.g. ``0.8 mg/mL``
@@ -101,7 +103,7 @@ def read_layout(path: str) -> pd.DataFrame:
     out = pd.DataFrame(index=pd.Index(wells, name="trace"))
     out["role"] = roles
     out["sample"] = [str(x).strip() for x in df["sample"]] if "sample" in df.columns else ""
-    for stem in ("substrate", "inhibitor"):
+    for stem in ("substrate", "inhibitor", "standard"):
         col = conc_column(df, stem)
         out[f"{stem}_M"] = parse_conc_cells(df, col, path, lines) if col else np.nan
     enz = conc_column(df, "enzyme")

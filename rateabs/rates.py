@@ -399,6 +399,7 @@ class RateSettings:
     noisy_rel_se: float = 0.10
     katal: bool = False
     slope_from: str = "window"            # window, curve
+    calibrate: str = "auto"               # auto (standards when no epsilon), standards, none
 
 
 @dataclass
@@ -511,7 +512,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
         slope_se = np.where(corr, np.hypot(slope_se, blank_se), slope_se)
 
     roles = meta.loc[g.names, "role"].to_numpy()
-    sample_like = np.isin(roles, ["sample", "positive", "standard"])
+    sample_like = np.isin(roles, ["sample", "positive"])
     if st.direction == "auto":
         ref = slope[sample_like & np.isfinite(slope)]
         ref = ref if ref.size else slope[np.isfinite(slope)]
@@ -526,7 +527,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     method = np.asarray(win.method).astype(str)
     cs, cse = win.curve_slope * 60, win.curve_slope_se * 60
     raw_b, raw_se = win.slope * 60, win.slope_se * 60
-    not_ctrl = ~np.isin(roles, ["blank", "negative"])
+    not_ctrl = ~np.isin(roles, ["blank", "negative", "standard"])
     with np.errstate(all="ignore"):
         rel = slope_se / np.abs(slope)
         diff = np.abs(cs - raw_b)
@@ -557,10 +558,15 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
             "substrate_uM": m["substrate_M"].to_numpy(float) * 1e6,
             "inhibitor_uM": m["inhibitor_M"].to_numpy(float) * 1e6,
             "enzyme_nM": m["enzyme_M"].to_numpy(float) * 1e9}
-    if st.epsilon:
-        factor = 1e6 / (st.epsilon * st.pathlength_cm)          # A/min -> uM/min
+    eps, eps_se = st.epsilon, st.epsilon_se
+    calib = standard_curve(ts, meta, st) if st.calibrate != "none" else None
+    if calib is not None:
+        eps, eps_se = calib["slope_A_per_M"] / st.pathlength_cm, calib["slope_se"] / st.pathlength_cm
+        blank_info["calibration"] = calib
+    if eps:
+        factor = 1e6 / (eps * st.pathlength_cm)                 # A/min -> uM/min
         rate = direction * slope * factor
-        rel_eps = st.epsilon_se / st.epsilon
+        rel_eps = eps_se / eps
         with np.errstate(all="ignore"):
             rate_se = np.where(slope != 0, np.abs(rate) * np.hypot(slope_se / slope, rel_eps),
                                slope_se * factor)
@@ -595,15 +601,15 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     cols["flags"] = [sorted(per.get(n, [])) + [names_[j] for j in np.nonzero(row)[0]]
                      for n, row in zip(g.names, stacked, strict=True)]
     table = pd.DataFrame(cols)
-    value_col = "rate_uM_per_min" if st.epsilon else "slope_A_per_min"
+    value_col = "rate_uM_per_min" if eps else "slope_A_per_min"
     reps, outliers = replicate_summary(table, value_col)
     for w in outliers:
         table.loc[table["trace"] == w, "flags"] = table.loc[table["trace"] == w, "flags"].apply(
             lambda f: f + ["outlier"])
     zp = z_prime(table, value_col)
-    if st.epsilon is None:
-        warnings.append("no molar absorptivity given (--epsilon or --chromophore): rates are in "
-                        "A/min only")
+    if not eps:
+        warnings.append("no molar absorptivity given (--epsilon or --chromophore) and no "
+                        "standard curve: rates are in A/min only")
     n_flag = int(sum(bool(f) for f in table["flags"]))
     if n_flag:
         warnings.append(f"{n_flag} of {len(table)} traces carry flags; read them before using "
@@ -611,6 +617,42 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     if zp and zp.get("value") is not None and zp["value"] < 0.5:
         warnings.append(f"Z' = {zp['value']:.2f} is below 0.5: the controls do not separate well")
     return RatesAnalysis(table, reps, zp, win, analysed, st, warnings, blank_info)
+
+
+def standard_curve(ts: TraceSet, meta: pd.DataFrame, st: RateSettings) -> dict | None:
+    """Calibration from ``standard`` wells of known concentration: A = a + m c (shared engine).
+
+    Each standard's absorbance is the mean of its usable readings; the slope m (A per mol/L) is
+    epsilon x pathlength, used in place of a tabulated epsilon (when none was given, or always
+    with ``calibrate="standards"``). Returns None when it does not apply.
+    """
+    from .fitting import fit
+    from .models import LINE
+
+    has = "standard_M" in meta.columns
+    std = [n for n in meta.index if has and meta.loc[n, "role"] == "standard"
+           and np.isfinite(meta.loc[n, "standard_M"])] if has else []
+    if st.calibrate == "standards" and len(std) < 3:
+        raise InputError(f"a standard curve needs three or more standard wells with a known "
+                         f"concentration (found {len(std)})",
+                         "mark them role 'standard' with a 'standard' concentration column")
+    if len(std) < 3 or (st.calibrate == "auto" and st.epsilon):
+        return None
+    d = ts.data[ts.data["trace"].isin(std) & ts.data["usable"]]
+    mean_a = d.groupby("trace")["value"].mean()
+    c = meta.loc[mean_a.index, "standard_M"].to_numpy(float)
+    if np.unique(c).size < 2:
+        raise InputError("the standard wells all have the same concentration",
+                         "use standards at several concentrations")
+    r = fit(LINE, c, mean_a.to_numpy(float))
+    m = r.params["slope"]
+    if m.value <= 0 or m.ci_low <= 0:
+        raise InputError("the standard curve does not rise with concentration",
+                         "check the standard wells and their concentrations")
+    return {"slope_A_per_M": m.value, "slope_se": m.se, "intercept_A": r.value("intercept"),
+            "n_standards": len(std), "sigma_A": r.sigma,
+            "epsilon_equivalent_M_per_cm": m.value / st.pathlength_cm,
+            "method": "straight line of mean standard absorbance vs concentration"}
 
 
 def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:

@@ -246,7 +246,8 @@ def rate_settings(o: dict):
                         direction=o.get("direction", "auto"),
                         linear_limit=o.get("linear_limit", 2.0),
                         noisy_rel_se=o.get("noisy_limit", 0.10), katal=o.get("katal", False),
-                        slope_from=o.get("slope_from", "window"))
+                        slope_from=o.get("slope_from", "window"),
+                        calibrate=o.get("calibrate", "auto"))
 
 
 def compute_rates(o: dict) -> View:
@@ -339,6 +340,10 @@ def rates_table(a) -> str:
                  f"{b.get('slope_A_per_min_se', float('nan')):.2g} A/min, subtracted as "
                  f"{b['mode']}\n")
     text += f"assay direction: signal goes {b.get('direction')}\n"
+    if b.get("calibration"):
+        c = b["calibration"]
+        text += (f"standard curve: {c['n_standards']} standards, {c['slope_A_per_M'] * 1e-6:.4g} ± "
+                 f"{c['slope_se'] * 1e-6:.2g} A per uM (epsilon x b), used to convert slopes\n")
     if a.zprime:
         z = a.zprime
         text += (f"Z' = {z['value']:.3f} ({z['verdict']}; {z['n_positive']} positive, "

@@ -193,3 +193,30 @@ def test_bad_options(args, words):
     r = _run([str(SAMPLES / "cuvettes_kbap_405nm_messy.csv"), *args])
     assert r.exit_code == 2, r.output
     assert words in r.output
+
+
+def test_standard_curve_calibrates_without_epsilon(tmp_path):
+    # standards of the product at 0-100 uM read A = 0.05 + 0.0115 per uM (eps 18400, 0.625 cm)
+    t = np.arange(0, 301, 15.0)
+    rng = np.random.default_rng(4)
+    rows = {"S1": 0.05 + 0.0115 * 0 + 0 * t, "S2": 0.05 + 0.0115 * 25 + 0 * t,
+            "S3": 0.05 + 0.0115 * 50 + 0 * t, "S4": 0.05 + 0.0115 * 100 + 0 * t,
+            "X1": 0.05 + 0.0115 * 2.0 * t / 60}          # 2 uM/min of product
+    data = tmp_path / "d.csv"
+    names = list(rows)
+    data.write_text("Time (s)," + ",".join(names) + "\n" + "".join(
+        f"{tt:g}," + ",".join(f"{rows[n][k] + rng.normal(0, 0.001):.5f}" for n in names) + "\n"
+        for k, tt in enumerate(t)))
+    mp = tmp_path / "map.csv"
+    mp.write_text("well,role,standard_uM\nS1,standard,0\nS2,standard,25\nS3,standard,50\n"
+                  "S4,standard,100\nX1,sample,\n")
+    r = CliRunner().invoke(main, ["rates", str(data), "--layout", str(mp), "--format", "json"])
+    assert r.exit_code == 0, r.output
+    doc = json.loads(r.stdout)
+    x1 = next(x for x in doc["results"] if x["trace"] == "X1")
+    assert x1["rate_uM_per_min"] == pytest.approx(2.0, rel=0.03)
+    cal = doc["settings"]["blank"]["calibration"]
+    assert cal["slope_A_per_M"] == pytest.approx(0.0115e6, rel=0.01) and cal["n_standards"] == 4
+    r = CliRunner().invoke(main, ["rates", str(data), "--layout", str(mp), "--calibrate",
+                                  "none"])
+    assert "rate (uM/min)" not in r.stdout
