@@ -43,6 +43,7 @@ _NUM_DOT = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?$")
 _NUM_COMMA = re.compile(r"^[-+]?(\d+,?\d*|,\d+)([eE][-+]?\d+)?$")
 _CLOCK3 = re.compile(r"^(\d+):([0-5]?\d):([0-5]?\d(?:[.,]\d+)?)$")
 _CLOCK2 = re.compile(r"^(\d+):([0-5]?\d(?:[.,]\d+)?)$")
+_TIMED = re.compile(r"^(\d+(?:[.,]\d+)?)\s*(s|sec|min|h)$", re.IGNORECASE)   # "30 s", "2 min"
 _OVERFLOW = re.compile(
     r"^(over(flow)?|ovrflw|sat(urated)?|\*+|>\s*[-+]?[\d.,]+([eE][-+]?\d+)?|oor|out of range|"
     r"range\?|hi(gh)?|[-+]?inf(inity)?)$", re.IGNORECASE)
@@ -229,7 +230,7 @@ def _kind(cell: str, decimal: str) -> str:
         return "empty"
     if (_NUM_COMMA if decimal == "," else _NUM_DOT).match(c):
         return "num"
-    if _CLOCK3.match(c) or _CLOCK2.match(c):
+    if _CLOCK3.match(c) or _CLOCK2.match(c) or _TIMED.match(c):
         return "clock"
     if _OVERFLOW.match(c):
         return "marker"
@@ -251,6 +252,9 @@ def _clock_seconds(cell: str) -> float | None:
     m = _CLOCK2.match(c)
     if m:
         return int(m.group(1)) * 60 + float(m.group(2))
+    m = _TIMED.match(c)
+    if m:
+        return float(m.group(1)) * TIME_UNITS[m.group(2).lower()]
     return None
 
 
@@ -322,6 +326,10 @@ def _find_header(rows, decimal) -> tuple[int, str]:
         if rest and all(k in ("num", "clock") for k in rest):
             nxt = [j for j in range(i + 1, len(rows)) if widths[j] >= 2][:3]
             if nxt and all(kinds[j][0] == "text" for j in nxt):
+                # among the label rows at the top (cycle, time, temperature...), the time row
+                for j in range(i, min(i + 4, len(rows))):
+                    if widths[j] >= 3 and _is_time_header(rows[j][0]):
+                        return j, "transposed"
                 return i, "transposed"
     if any(texty(i) for i in range(len(rows))):
         raise InputError("a header row was found but no numeric data below it",

@@ -195,3 +195,19 @@ def test_input_file_never_written(tmp_path):
 
 def test_percent_helper_consistent():
     assert absorbance_from_percent_t(100.0) == 0.0
+
+
+def test_transposed_with_cycle_time_and_temperature_rows(tmp_path):
+    p = tmp_path / "t.csv"
+    p.write_text("Cycle Nr.,1,2,3,4\nTime [s],0,30,60,90\nTemp. [°C],25.0,25.1,25.0,25.1\n"
+                 "A1,0.10,0.12,0.14,0.16\nA2,0.20,0.21,0.22,0.23\n")
+    ts = read_traces(p)
+    assert ts.names == ["A1", "A2"] and ts.info["layout"] == "transposed"
+    np.testing.assert_allclose(ts.grid().times[0], [0, 30, 60, 90])
+    assert ts.info["temperature_K"] == pytest.approx(298.2, abs=0.1)
+
+
+def test_times_written_with_units_in_the_cells(tmp_path):
+    p = tmp_path / "t.csv"
+    p.write_text("Well,0 s,30 s,1 min,1.5 min\nB3,0.1,0.2,0.3,0.4\n")
+    np.testing.assert_allclose(read_traces(p).grid().times[0], [0, 30, 60, 90])
