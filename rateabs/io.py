@@ -6,7 +6,9 @@ the header (kept as key/value metadata); three layouts:
 
 * **wide**: a time column and one column per trace (wells A1..P24 or any names);
 * **long**: a trace column, a time column and a value column, one row per reading;
-* **transposed**: one row per trace, times across the header row.
+* **transposed**: one row per trace, times across the header row;
+* **plate blocks**: one plate grid (rows A..P, columns 1..24) per read, each under a line that
+  names its time.
 
 Times in s, min or h (from header words such as ``min``, ``(min)``, ``time_min``, ``h``) or clock
 strings ``h:mm:ss`` / ``mm:ss``. Columns such as temperature or cycle number are kept as metadata,
@@ -441,6 +443,58 @@ def _check_times(t: np.ndarray, lines, path, label: str) -> None:
                          "sort the readings by time or fix the time column", row=lines[i])
 
 
+_WELL_ROW = re.compile(r"^[A-Pa-p]$")
+_TIME_IN_TEXT = re.compile(r"(\d+:\d{1,2}(?::\d{1,2}(?:[.,]\d+)?)?)|(\d+(?:[.,]\d+)?)\s*"
+                           r"(s|sec|seconds|min|minutes|h|hours)\b", re.IGNORECASE)
+
+
+def _plate_blocks(rows, lines, decimal):
+    """A plate grid per read: a line naming the time, a row of column numbers (1..12/24), then
+    rows lettered A..P. Returns (first line index, layout parts) or None for other shapes."""
+    starts = []
+    for i in range(1, len(rows) - 1):
+        cells = [c.strip() for c in rows[i][:_width(rows[i])]]
+        if len(cells) >= 3 and not cells[0] and all(c.isdigit() for c in cells[1:]) \
+                and [int(c) for c in cells[1:]] == list(range(1, len(cells))):
+            nxt = rows[i + 1][0].strip() if rows[i + 1] else ""
+            if _WELL_ROW.match(nxt):
+                starts.append(i)
+    if len(starts) < 2:
+        return None
+    times, grids = [], []
+    for i in starts:
+        label = next((" ".join(rows[j]) for j in range(i - 1, max(i - 4, -1), -1)
+                      if _width(rows[j])), "")
+        m = _TIME_IN_TEXT.search(label)
+        if not m:
+            raise InputError("a plate block has no time in the line above it",
+                             "each read needs a line such as 'Time: 0:00:30' above its grid",
+                             row=lines[i])
+        t = _clock_seconds(m.group(1)) if m.group(1) else float(
+            m.group(2).replace(",", ".")) * TIME_UNITS[m.group(3).lower()]
+        ncol = _width(rows[i]) - 1
+        grid = {}
+        j = i + 1
+        while j < len(rows) and rows[j] and _WELL_ROW.match(rows[j][0].strip()):
+            letter = rows[j][0].strip().upper()
+            cells = list(rows[j][1:ncol + 1]) + [""] * (ncol - len(rows[j][1:ncol + 1]))
+            v, f = _parse_values(cells, decimal, [lines[j]] * ncol, f"row {letter}")
+            for c in range(ncol):
+                grid[f"{letter}{c + 1}"] = (v[c], f[c])
+            j += 1
+        times.append(t)
+        grids.append(grid)
+    names = [n for n in grids[0] if not all(np.isnan(g[n][0]) and g[n][1] == "missing"
+                                            for g in grids)]
+    t = np.asarray(times, float)
+    _check_times(t, [lines[i] for i in starts], None, "")
+    values = np.array([[g.get(n, (np.nan, "missing"))[0] for g in grids] for n in names])
+    flags = np.array([[g.get(n, (np.nan, "missing"))[1] for g in grids] for n in names],
+                     dtype=object)
+    timesm = np.broadcast_to(t, values.shape).copy()
+    return starts[0] - 1, (names, timesm, values, flags, {}, "per block", "block labels", "")
+
+
 def _need_two(t: np.ndarray, lines) -> None:
     if t.size < 2:
         raise InputError("only one time point was read; kinetics needs readings over time",
@@ -531,10 +585,14 @@ def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
     cells = load_cells(path, sheet, partial)
     rows = cells.rows
     decimal = _detect_decimal(rows, cells.delimiter)
-    hdr, shape = _find_header(rows, decimal)
+    blocks = _plate_blocks(rows, cells.lines, decimal)
+    hdr, shape = (blocks[0], "plate-blocks") if blocks else _find_header(rows, decimal)
     meta = _preamble(rows, hdr, cells.delimiter)
     warnings: list[str] = []
-    if shape == "transposed":
+    if shape == "plate-blocks":
+        parts = blocks[1]
+        layout = "plate-blocks"
+    elif shape == "transposed":
         parts = _transposed(rows, cells.lines, hdr, decimal, time_unit, path)
         layout = "transposed"
     else:

@@ -211,3 +211,23 @@ def test_times_written_with_units_in_the_cells(tmp_path):
     p = tmp_path / "t.csv"
     p.write_text("Well,0 s,30 s,1 min,1.5 min\nB3,0.1,0.2,0.3,0.4\n")
     np.testing.assert_allclose(read_traces(p).grid().times[0], [0, 30, 60, 90])
+
+
+@pytest.mark.parametrize("labels", [["Read 1, time 0:00:00", "Read 2, time 0:00:30",
+                                     "Read 3, time 0:01:00"], ["Time: 0 s", "Time: 30 s",
+                                                                "Time: 1 min"]])
+def test_plate_grid_per_read(tmp_path, labels):
+    lines = ["Kinetic read, 340 nm", ""]
+    for k, label in enumerate(labels):
+        lines += [label, "," + ",".join(str(c) for c in range(1, 13))]
+        lines += [r + "," + ",".join(f"{0.5 - 0.01 * k * (c + 1):.4f}" if (r, c) != ("H", 11)
+                                     else ("OVER" if k == 2 else "2.9") for c in range(12))
+                  for r in "ABCDEFGH"]
+        lines.append("")
+    p = tmp_path / "blocks.csv"
+    p.write_text("\n".join(lines) + "\n")
+    ts = read_traces(p)
+    assert ts.info["layout"] == "plate-blocks" and len(ts) == 96
+    np.testing.assert_allclose(ts.grid().times[0], [0, 30, 60])
+    np.testing.assert_allclose(ts.grid().values[ts.names.index("A2")], [0.5, 0.48, 0.46])
+    assert "overflow" in ts.reading_flags()["H12"]
