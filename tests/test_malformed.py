@@ -40,6 +40,11 @@ CASES = {
     "intensity without I0": ("i.csv", b"Time (s),counts A1\n0,100\n10,90\n", "I0"),
     "long layout without values": ("lv.csv", b"well,Time (s)\nA1,0\nA1,10\nA2,0\n",
                                    "no value column"),
+    "plate block without a time": ("pb.csv", b"Plate export\nfirst read\n,1,2,3\nA,0.1,0.2,0.3\n"
+                                   b"B,0.1,0.2,0.3\n\nnext read\n,1,2,3\nA,0.2,0.3,0.4\n"
+                                   b"B,0.2,0.3,0.4\n", "no time in the line above"),
+    "plate blocks out of order": ("po.csv", b"Time: 30 s\n,1,2\nA,0.1,0.2\n\nTime: 0 s\n,1,2\n"
+                                  b"A,0.2,0.3\n", "backwards"),
     "long layout duplicate times": ("ld.csv", b"well,Time (s),absorbance\nA1,0,0.1\nA1,0,0.2\n"
                                     b"A2,0,0.3\n", "twice in trace A1"),
 }
