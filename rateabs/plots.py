@@ -248,6 +248,8 @@ def plate_heatmap(analysis, path):
     import re
 
     t = analysis.table
+    if len(t) < 8:               # a few cuvettes named like wells are not a plate
+        return None
     col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
     unit = "µM/min" if col.startswith("rate") else "A/min"
     wells = {}
