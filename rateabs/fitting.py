@@ -29,6 +29,34 @@ from scipy import stats
 from .errors import FitError, UsageError
 from .models import Model, unit_of
 
+
+def param(value, se=None, ci_low=None, ci_high=None, ci_method=None, unit="") -> dict:
+    """A fitted parameter as the JSON object of design.md §5."""
+    return {"value": _num(value), "se": _num(se), "ci_low": _num(ci_low),
+            "ci_high": _num(ci_high), "ci_method": ci_method, "unit": unit}
+
+
+def _num(x):
+    if x is None:
+        return None
+    try:
+        x = float(x)
+    except (TypeError, ValueError):
+        return None
+    return x if math.isfinite(x) else None
+
+
+def fmt_p(p) -> str:
+    """A p value for a sentence: two significant digits, '< 1e-16' below double precision."""
+    try:
+        p = float(p)
+    except (TypeError, ValueError):
+        return "-"
+    if not math.isfinite(p):
+        return "-"
+    return "< 1e-16" if p < 1e-16 else f"{p:.2g}"
+
+
 CI_METHODS = ("asymptotic", "profile", "bootstrap")
 WEIGHTINGS = ("none", "relative", "sd")
 
@@ -48,8 +76,6 @@ class Param:
 
     def to_dict(self) -> dict:
         """The JSON parameter object of design.md §5."""
-        from .output import param
-
         return param(self.value, self.se, self.ci_low, self.ci_high,
                      "fixed" if self.fixed else self.ci_method, self.unit)
 
@@ -583,7 +609,7 @@ class Comparison:
                          f"{r['weight']:>7.3f}{'  <- chosen' if r['model'] == self.chosen else ''}")
         for t in self.ftests:
             lines.append(f"F-test {t['simpler']} within {t['general']}: F = {t['F']:.3g} "
-                         f"({t['df1']}, {t['df2']} df), p = {t['p']:.3g}")
+                         f"({t['df1']}, {t['df2']} df), p = {fmt_p(t['p'])}")
         for m, why in self.failed.items():
             lines.append(f"{m}: not estimable: {why}")
         lines.append(f"chosen: {self.chosen} ({self.reason})")
@@ -635,7 +661,7 @@ def compare(results: dict, nested=(), failed: dict | None = None, alpha: float =
             break
         t = min(simpler, key=lambda t: good[t["simpler"]].aicc)
         reason = (f"{chosen} had the lowest AICc but its extra parameter is not supported "
-                  f"against {t['simpler']} (F-test p = {t['p']:.3g}); the simpler model is kept")
+                  f"against {t['simpler']} (F-test p = {fmt_p(t['p'])}); the simpler model is kept")
         chosen = t["simpler"]
     return Comparison(rows, ftests, chosen, reason, failed)
 

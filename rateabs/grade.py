@@ -19,7 +19,6 @@ Batch work goes through one executor seam (:func:`grade_class` takes any
 from __future__ import annotations
 
 import math
-import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -452,9 +451,3 @@ def check_jobs(jobs: int | None) -> int:
     if jobs < 1:
         raise UsageError("--jobs must be at least 1", f"use 1 to {n}")
     return jobs
-
-
-def safe_name(student: str) -> str:
-    """A file name for a student's page (the name itself is escaped inside the page)."""
-    s = re.sub(r"[^A-Za-z0-9_-]+", "_", student).strip("_")[:40] or "student"
-    return s

@@ -13,23 +13,8 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from . import __version__
+from .fitting import _num, fmt_p, param  # noqa: F401  (the JSON parameter object lives with Param)
 from .io import write_atomic
-
-
-def param(value, se=None, ci_low=None, ci_high=None, ci_method=None, unit="") -> dict:
-    """A fitted parameter as the JSON object of design.md §5."""
-    return {"value": _num(value), "se": _num(se), "ci_low": _num(ci_low),
-            "ci_high": _num(ci_high), "ci_method": ci_method, "unit": unit}
-
-
-def _num(x):
-    if x is None:
-        return None
-    try:
-        x = float(x)
-    except (TypeError, ValueError):
-        return None
-    return x if math.isfinite(x) else None
 
 
 def _clean(obj):
@@ -135,6 +120,13 @@ def rows_to_csv(rows: Sequence[dict], columns: Sequence[str]) -> str:
             out.append(v)
         w.writerow(out)
     return buf.getvalue()
+
+
+def safe_filename(name: str, limit: int = 60) -> str:
+    """A file-name stem from any label (a trace, a student): letters, digits, '_', '-', '.'."""
+    import re
+
+    return re.sub(r"[^A-Za-z0-9._-]+", "_", str(name)).strip("_.")[:limit] or "item"
 
 
 def write_text(out_dir: str | Path, name: str, text: str | bytes) -> Path:

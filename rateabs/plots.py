@@ -308,7 +308,7 @@ def replicate_plot(analysis, path):
 
 def ratelaw_plots(analysis, out):
     """Per fitted trace: data, fit and residuals, and the linearised view of the chosen order."""
-    from .views import _safe
+    from .output import safe_filename
 
     ts, laws = analysis["traces"], analysis["laws"]
     g = ts.grid()
@@ -360,7 +360,7 @@ def ratelaw_plots(analysis, out):
                 axl.set_ylabel("absorbance (AU)")
             axl.set_xlabel("time (min)")
             axl.set_title(f"linearised view of order {law.order} (inspection only)")
-            files.append(save(fig, out / f"ratelaw_{_safe(name)}.png"))
+            files.append(save(fig, out / f"ratelaw_{safe_filename(name)}.png"))
     return files
 
 

@@ -123,9 +123,11 @@ def document_page(doc: dict, pictures: list[Path | tuple], title: str | None = N
                                  if not isinstance(v, (list, dict)) or k in ("blank", "columns",
                                                                              "fixed")]))]
     rows, cols = flatten_results(doc["results"])
-    sections.append(("Results", table(rows, cols, text_cols=("trace", "model", "flags",
-                                                             "status", "order", "test",
-                                                             "reason", "student"))))
+    if len(rows) <= 3:            # a few results read best one by one, field by field
+        body = "".join(kv([(k, r[k]) for k, _ in cols if k in r]) for r in rows)
+    else:
+        body = table(rows, cols, text_cols=("trace", "model", "flags", "status", "order"))
+    sections.append(("Results", body))
     for r in doc["results"]:
         ev = r.get("evidence")
         if isinstance(ev, dict) and ev.get("aicc_table"):

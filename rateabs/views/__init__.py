@@ -80,12 +80,6 @@ def _ci(p):
     return f"[{p['ci_low']:.4g}, {p['ci_high']:.4g}]"
 
 
-def _safe(name: str) -> str:
-    import re
-
-    return re.sub(r"[^A-Za-z0-9._-]+", "_", name)[:60] or "trace"
-
-
 def _traces_for(o: dict):
     from ..io import read_traces
 

@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
-from ..output import document, rows_to_csv
-from . import View, _photometry, _safe, _traces_for, deliver
+from ..output import document, rows_to_csv, safe_filename
+from . import View, _photometry, _traces_for, deliver
 
 
 def compute_completion(o: dict) -> View:
@@ -80,7 +80,7 @@ def run_completion(o: dict, emit) -> View:
     view = compute_completion(o)
     an = view.analysis
     deliver(o, emit, view, "completion", lambda folder: [
-        completion_plot(c, an["traces"], folder / f"completion_{_safe(name)}.png")
+        completion_plot(c, an["traces"], folder / f"completion_{safe_filename(name)}.png")
         for name, c in an["done"].items()])
     return view
 

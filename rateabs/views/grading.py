@@ -12,7 +12,7 @@ from . import View
 
 def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
     """Gradebook CSV, one feedback page per student and the class summary, into ``out``."""
-    from ..grade import safe_name
+    from ..output import safe_filename
     from ..plots import class_summary_plot
     from ..report import esc, img, kv, notes, page, table
 
@@ -32,7 +32,7 @@ def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
     files = [write_text(out, "gradebook.csv", rows_to_csv(book, list(book[0])))]
     used = set()
     for r in results:
-        name = safe_name(r["student"])
+        name = safe_filename(r["student"], 40)
         while name in used:
             name += "_"
         used.add(name)
