@@ -231,3 +231,11 @@ def test_plate_grid_per_read(tmp_path, labels):
     np.testing.assert_allclose(ts.grid().times[0], [0, 30, 60])
     np.testing.assert_allclose(ts.grid().values[ts.names.index("A2")], [0.5, 0.48, 0.46])
     assert "overflow" in ts.reading_flags()["H12"]
+
+
+def test_packaged_samples_equal_sample_runs():
+    files = [p for p in SAMPLES.rglob("*") if p.is_file() and p.name != "generate.py"
+             and "__pycache__" not in p.parts]
+    assert len(files) >= 25
+    for p in files:
+        assert p.read_bytes() == sample_path(str(p.relative_to(SAMPLES))).read_bytes(), p
