@@ -17,7 +17,7 @@ sys.path.insert(0, str(Path(__file__).parent))
 from common import timed, write_plate  # noqa: E402
 
 from rateabs.io import read_traces  # noqa: E402
-from rateabs.rates import analyse_plate, find_windows  # noqa: E402
+from rateabs.rates import RateSettings, analyse_plate, find_windows  # noqa: E402
 
 
 def main() -> None:
@@ -25,6 +25,8 @@ def main() -> None:
         path = write_plate(Path(d) / "plate1536.csv")
         t_parse, ts = timed(lambda: read_traces(path))
         t_all, _ = timed(lambda: analyse_plate(read_traces(path)))
+        t_fast, _ = timed(lambda: analyse_plate(read_traces(path), settings=RateSettings(
+            curve=False)))
         g = ts.grid()
         t_win, w = timed(lambda: find_windows(g, curve=False))
         t_win_curve, w = timed(lambda: find_windows(g))
@@ -51,6 +53,7 @@ def main() -> None:
     print(f"plate: {n} wells x {g.values.shape[1]} reads")
     print(f"parse the file alone                  {t_parse:7.3f} s")
     print(f"rates (parse + windows + curve + QC)  {t_all:7.3f} s   ratio to parse {t_all / t_parse:5.2f}")
+    print(f"rates --no-curve (no whole-curve fit) {t_fast:7.3f} s   ratio to parse {t_fast / t_parse:5.2f}")
     print(f"vectorised windows, no curve fit      {t_win:7.3f} s")
     print(f"vectorised windows with curve fit     {t_win_curve:7.3f} s")
     print(f"per-trace linregress loop on the      {t_loop:7.3f} s   (slopes only, windows given;"

@@ -169,6 +169,8 @@ def _parse_window(text: str):
 @click.option("--calibrate", type=click.Choice(["auto", "standards", "none"]), default="auto",
               show_default=True, help="Convert with a standard curve from 'standard' wells "
               "(auto: when no epsilon is given).")
+@click.option("--curve/--no-curve", default=True, show_default=True,
+              help="Also fit each whole trace for its initial slope (--no-curve is faster).")
 @click.option("--slope-from", type=click.Choice(["window", "curve"]), default="window",
               show_default=True, help="Report the straight-window slope, or the initial slope of "
               "the whole-curve fit (better when substrate depletion bends every trace).")
@@ -176,8 +178,8 @@ def _parse_window(text: str):
 @_guarded
 def rates(file, time_unit, signal, i0, sheet, layout_file, epsilon, epsilon_se, chromophore,
           pathlength, well_volume, plate, total_volume, sample_volume, protein, dilution, window,
-          min_points, blank, direction, linear_limit, noisy_limit, katal, calibrate, slope_from,
-          plots, fmt, out, report):
+          min_points, blank, direction, linear_limit, noisy_limit, katal, calibrate, curve,
+          slope_from, plots, fmt, out, report):
     """Initial rate of each trace in FILE, converted to concentration and activity."""
     from .views import run_rates
 
@@ -188,7 +190,8 @@ def rates(file, time_unit, signal, i0, sheet, layout_file, epsilon, epsilon_se, 
                    protein=protein, dilution=dilution, window=_parse_window(window),
                    min_points=min_points, blank=blank, direction=direction,
                    linear_limit=linear_limit, noisy_limit=noisy_limit, katal=katal,
-                   slope_from=slope_from, calibrate=calibrate, plots=plots, fmt=fmt, out=out,
+                   slope_from=slope_from, calibrate=calibrate, curve=curve, plots=plots,
+                   fmt=fmt, out=out,
                    report=report),
               _emit)
 

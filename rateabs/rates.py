@@ -399,6 +399,7 @@ class RateSettings:
     noisy_rel_se: float = 0.10
     katal: bool = False
     slope_from: str = "window"            # window, curve
+    curve: bool = True                    # also fit the whole-curve estimate
     calibrate: str = "auto"               # auto (standards when no epsilon), standards, none
 
 
@@ -482,7 +483,9 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
 
     analysed = _blank_trace_subtract(ts, blanks) if mode == "trace" else ts
     g = analysed.grid()
-    win = find_windows(g, window=st.window, min_points=st.min_points)
+    if st.slope_from == "curve" and not st.curve:
+        raise UsageError("--slope-from curve needs the whole-curve fit", "drop --no-curve")
+    win = find_windows(g, window=st.window, min_points=st.min_points, curve=st.curve)
     raw_g = ts.grid() if mode == "trace" else g
     raw_win = find_windows(raw_g, window=st.window, min_points=st.min_points, curve=False) if (
         mode == "trace") else win

@@ -220,3 +220,14 @@ def test_standard_curve_calibrates_without_epsilon(tmp_path):
     r = CliRunner().invoke(main, ["rates", str(data), "--layout", str(mp), "--calibrate",
                                   "none"])
     assert "rate (uM/min)" not in r.stdout
+
+
+def test_no_curve_option(tmp_path):
+    r = _run([str(SAMPLES / "cuvettes_kbap_405nm_messy.csv"), "--no-curve", "--format", "json"])
+    assert r.exit_code == 0
+    res = json.loads(r.stdout)["results"]
+    assert all(x["curve_slope_A_per_min"] is None for x in res)
+    assert all(x["slope_A_per_min"] is not None for x in res)
+    r = _run([str(SAMPLES / "cuvettes_kbap_405nm_messy.csv"), "--no-curve", "--slope-from",
+              "curve"])
+    assert r.exit_code == 2 and "--no-curve" in r.output

@@ -56,7 +56,7 @@ def rate_settings(o: dict):
                         linear_limit=o.get("linear_limit", 2.0),
                         noisy_rel_se=o.get("noisy_limit", 0.10), katal=o.get("katal", False),
                         slope_from=o.get("slope_from", "window"),
-                        calibrate=o.get("calibrate", "auto"))
+                        calibrate=o.get("calibrate", "auto"), curve=o.get("curve", True))
 
 
 def compute_rates(o: dict) -> View:
