@@ -96,6 +96,27 @@ def _traces_for(o: dict):
     return ts, names
 
 
+def each_trace(o: dict, ts, names, fn) -> list[tuple]:
+    """``fn(name, t, y)`` on each named trace's usable readings: [(name, result, why_not)].
+
+    With one trace its failure is the command's error; with several it costs that trace only.
+    """
+    from ..errors import AnalysisError
+
+    g = ts.grid()
+    out = []
+    for name in names:
+        i = g.names.index(name)
+        ok = g.usable[i]
+        try:
+            out.append((name, fn(name, g.times[i][ok], g.values[i][ok]), None))
+        except AnalysisError as exc:
+            if len(names) == 1:
+                raise exc.located(o["file"]) from None
+            out.append((name, None, exc.one_line()))
+    return out
+
+
 def _photometry(o: dict):
     from ..photometry import resolve_epsilon
     from ..ratelaws import Photometry

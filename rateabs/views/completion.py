@@ -3,28 +3,24 @@
 from __future__ import annotations
 
 from ..output import document, rows_to_csv, safe_filename
-from . import View, _photometry, _traces_for, deliver
+from . import View, _photometry, _traces_for, deliver, each_trace
 
 
 def compute_completion(o: dict) -> View:
     """The ``completion`` command's results (one per trace)."""
     from ..completion import CAUTION, assess
-    from ..errors import AnalysisError
 
     ts, names = _traces_for(o)
-    g = ts.grid()
+    ph = _photometry(o)
+
+    def one(name, t, y):
+        return assess(t, y, name, target=o["target"] / 100, order=o.get("order", "1"),
+                      level=o.get("level", 0.95), photometry=ph, fix=o.get("fix"))
+
     results, warnings, done = [], list(ts.info.get("warnings", [])), {}
-    for name in names:
-        i = g.names.index(name)
-        ok = g.usable[i]
-        try:
-            c = assess(g.times[i][ok], g.values[i][ok], name, target=o["target"] / 100,
-                       order=o.get("order", "1"), level=o.get("level", 0.95),
-                       photometry=_photometry(o), fix=o.get("fix"))
-        except AnalysisError as exc:
-            if len(names) == 1:
-                raise exc.located(o["file"]) from None
-            results.append({"trace": name, "status": f"not assessed: {exc.one_line()}"})
+    for name, c, why in each_trace(o, ts, names, one):
+        if c is None:
+            results.append({"trace": name, "status": f"not assessed: {why}"})
             continue
         done[name] = c
         d = c.to_dict()

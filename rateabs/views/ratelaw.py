@@ -4,12 +4,11 @@ from __future__ import annotations
 
 from ..errors import UsageError
 from ..output import document, render_table, rows_to_csv
-from . import View, _ci, _photometry, _pm, _traces_for, deliver
+from . import View, _ci, _photometry, _pm, _traces_for, deliver, each_trace
 
 
 def compute_ratelaw(o: dict) -> View:
     """The ``ratelaw`` command's results."""
-    from ..errors import AnalysisError
     from ..ratelaws import fit_trace, guggenheim, pseudo_first_order
     from ..units import parse_concentration
 
@@ -19,32 +18,31 @@ def compute_ratelaw(o: dict) -> View:
     b0 = parse_concentration(o["b0"], default="uM") if o.get("b0") else None
     if o.get("order") == "mixed" and (a0 is None or b0 is None):
         raise UsageError("--order mixed needs --a0 and --b0", "e.g. --a0 '50 uM' --b0 '120 uM'")
-    g = ts.grid()
+    level = o.get("level", 0.95)
+
+    def one(name, t, y):
+        law = fit_trace(t, y, name, order=o.get("order", "auto"), photometry=ph, fix=o.get("fix"),
+                        ci=o.get("ci", "profile"), level=level, expect=o.get("expect", "any"),
+                        a0=a0, b0=b0)
+        gg = None
+        if o.get("guggenheim") is not None:
+            gg = guggenheim(t, y, None if o["guggenheim"] == 0 else o["guggenheim"], level=level)
+        return law, gg
+
     results, warnings, laws = [], list(ts.info.get("warnings", [])), {}
-    for name in names:
-        i = g.names.index(name)
-        ok = g.usable[i]
-        try:
-            law = fit_trace(g.times[i][ok], g.values[i][ok], name, order=o.get("order", "auto"),
-                            photometry=ph, fix=o.get("fix"), ci=o.get("ci", "profile"),
-                            level=o.get("level", 0.95), expect=o.get("expect", "any"),
-                            a0=a0, b0=b0)
-        except AnalysisError as exc:
-            if len(names) == 1:
-                raise exc.located(o["file"]) from None
+    for name, res, why in each_trace(o, ts, names, one):
+        if res is None:
             results.append({"trace": name, "order": None, "params": {}, "half_life_s": None,
-                            "status": f"not fitted: {exc.one_line()}"})
-            warnings.append(f"{name}: {exc.one_line()}")
+                            "status": f"not fitted: {why}"})
+            warnings.append(f"{name}: {why}")
             continue
+        law, gg = res
         laws[name] = law
         d = law.to_dict()
         d["status"] = "ok"
         if "temperature_K" in ts.meta.columns and name in ts.meta.index:
             d["temperature_K"] = ts.meta.loc[name, "temperature_K"]
-        if o.get("guggenheim") is not None:
-            gg = guggenheim(g.times[i][ok], g.values[i][ok],
-                            None if o["guggenheim"] == 0 else o["guggenheim"],
-                            level=o.get("level", 0.95))
+        if gg is not None:
             d["guggenheim"] = {"k": gg["k"].to_dict(), "half_life_s": gg["half_life"].to_dict(),
                                "delta_s": gg["delta_s"], "n_pairs": gg["n_pairs"]}
         results.append(d)
