@@ -10,6 +10,7 @@ The public API is imported lazily so that ``rateabs --help`` stays fast:
 
 >>> import rateabs
 >>> ts = rateabs.read_traces(rateabs.sample_path("plate_kbdh_340nm.csv"))  # doctest: +SKIP
+>>> plate = rateabs.analyse_plate(ts, rateabs.read_layout(...))            # doctest: +SKIP
 """
 
 __version__ = "0.1.0"
@@ -19,9 +20,21 @@ _API = {
     "read_table": "rateabs.io",
     "sample_path": "rateabs.io",
     "TraceSet": "rateabs.traces",
+    "read_layout": "rateabs.layout",
     "chromophore": "rateabs.photometry",
     "pathlength_from_volume": "rateabs.photometry",
+    "fit": "rateabs.fitting",
+    "batch_lm": "rateabs.fitting",
+    "compare": "rateabs.fitting",
+    "Model": "rateabs.models",
+    "analyse_plate": "rateabs.rates",
+    "RateSettings": "rateabs.rates",
+    "find_windows": "rateabs.rates",
+    "fit_trace": "rateabs.ratelaws",
+    "assess_completion": "rateabs.completion",
+    "grade_class": "rateabs.grade",
 }
+_RENAMED = {"assess_completion": "assess"}
 
 __all__ = ["__version__", *_API]
 
@@ -30,5 +43,5 @@ def __getattr__(name):
     if name in _API:
         import importlib
 
-        return getattr(importlib.import_module(_API[name]), name)
+        return getattr(importlib.import_module(_API[name]), _RENAMED.get(name, name))
     raise AttributeError(f"module 'rateabs' has no attribute {name!r}")

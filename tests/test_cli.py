@@ -57,3 +57,10 @@ def test_help_is_fast_and_lazy():
                           "print(sorted(m for m in ('pandas','scipy','lmfit','matplotlib') "
                           "if m in sys.modules))"], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"          # no heavy import at start-up
+
+
+def test_public_api_names_resolve():
+    import rateabs
+
+    for name in rateabs.__all__:
+        assert getattr(rateabs, name) is not None, name
