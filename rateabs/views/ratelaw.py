@@ -67,11 +67,13 @@ def compute_ratelaw(o: dict) -> View:
                      "ci": _ci(k), "kc": (_pm(kc.get("value"), kc.get("se"), 4) + " "
                                           + kc.get("unit", "")) if kc else "-",
                      "half": _pm(hl.get("value"), hl.get("se"), 4), "hci": _ci(hl),
-                     "status": r.get("status", "ok")})
+                     "status": r.get("status", "ok"), "next": _runner_up(r)})
     table = render_table(rows, [("trace", "trace"), ("order", "order"), ("k", "k"),
                                 ("k_unit", "unit"), ("ci", "k interval"),
                                 ("kc", "k (concentration units)"), ("half", "half-life (s)"),
-                                ("hci", "half-life interval (s)")])
+                                ("hci", "half-life interval (s)")]
+                         + ([("next", "next best order (dAICc)")]
+                            if any(x["next"] != "-" for x in rows) else []))
     if len(laws) == 1:
         law = next(iter(laws.values()))
         if law.comparison is not None:
@@ -123,6 +125,14 @@ def _pseudo_series(o, laws, pseudo_first_order):
     return {"k2": s["k2"].to_dict(), "k0": s["k0"].to_dict(), "n_runs": len(kobs),
             "weighting": s["weighting"], "conc_M": list(map(float, x)),
             "kobs_per_s": [p.value for p in kobs]}
+
+
+def _runner_up(result: dict) -> str:
+    """The second-best order by AICc and how far behind it is (for --order auto)."""
+    rows = ((result.get("evidence") or {}).get("aicc_table") or [])
+    if len(rows) < 2:
+        return "-"
+    return f"{rows[1]['model']} (+{rows[1]['delta_aicc']:.1f})"
 
 
 def run_ratelaw(o: dict, emit) -> View:
