@@ -231,3 +231,41 @@ def test_no_curve_option(tmp_path):
     r = _run([str(SAMPLES / "cuvettes_kbap_405nm_messy.csv"), "--no-curve", "--slope-from",
               "curve"])
     assert r.exit_code == 2 and "--no-curve" in r.output
+
+
+def _plate_file(tmp_path, slopes, drift=0.0, noise=0.0005, seed=0):
+    rng = np.random.default_rng(seed)
+    t = np.arange(0, 301, 10.0)
+    names = list(slopes)
+    data = tmp_path / "p.csv"
+    data.write_text("Time (s)," + ",".join(names) + "\n" + "".join(
+        f"{tt:g}," + ",".join(f"{0.2 + (slopes[n] + drift) * tt / 60 + rng.normal(0, noise):.5f}"
+                              for n in names) + "\n" for tt in t))
+    return data
+
+
+@pytest.mark.parametrize("mode", ["trace", "slope"])
+def test_blank_subtraction_removes_drift(tmp_path, mode):
+    data = _plate_file(tmp_path, {"A1": 0.0, "A2": 0.0, "B1": 0.05, "B2": 0.03}, drift=0.01)
+    mp = tmp_path / "m.csv"
+    mp.write_text("well,role\nA1,blank\nA2,blank\nB1,sample\nB2,sample\n")
+    r = _run([str(data), "--layout", str(mp), "--blank", mode, "--format", "json"])
+    res = {x["trace"]: x for x in json.loads(r.stdout)["results"]}
+    assert res["B1"]["slope_A_per_min"] == pytest.approx(0.05, abs=0.002)
+    assert res["B2"]["slope_A_per_min"] == pytest.approx(0.03, abs=0.002)
+    assert "blank-drift" in res["A1"]["flags"]
+
+
+def test_reversed_well_and_replicate_outlier(tmp_path):
+    slopes = {"A1": 0.05, "A2": 0.05, "A3": 0.05, "A4": 0.05, "A5": 0.08, "A6": -0.05}
+    data = _plate_file(tmp_path, slopes, noise=0.0002, seed=1)
+    mp = tmp_path / "m.csv"
+    mp.write_text("well,role,group\n" + "".join(f"{w},sample,{'g' if w != 'A6' else 'h'}\n"
+                                                for w in slopes))
+    r = _run([str(data), "--layout", str(mp), "--format", "json"])
+    res = {x["trace"]: x for x in json.loads(r.stdout)["results"]}
+    assert "reversed" in res["A6"]["flags"]
+    assert "outlier" in res["A5"]["flags"] and "outlier" not in res["A1"]["flags"]
+    r = _run([str(data), "--direction", "down", "--format", "json"])
+    res = {x["trace"]: x for x in json.loads(r.stdout)["results"]}
+    assert "reversed" in res["A1"]["flags"] and "reversed" not in res["A6"]["flags"]
