@@ -18,13 +18,13 @@ follow the site's own rules.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from .errors import AnalysisError, UsageError
 from .fitting import Param
-from .ratelaws import Photometry, RateLawResult, fit_trace
+from .ratelaws import Photometry, RateLawResult, fit_trace, map_param
 
 CAUTION = ("A predicted end point is no process-safety assessment: runaway, sampling and mixing "
            "hazards follow the site's own rules.")
@@ -90,19 +90,9 @@ def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "1",
     k = r.params["k"]
     d_a = abs(r.value("A0") - r.value("Ainf"))
     t_now = float(np.max(t))
-    x_now = _conversion(law.order, k.value, d_a, t_now)
-    x_lo = _conversion(law.order, k.ci_low, d_a, t_now)
-    x_hi = _conversion(law.order, k.ci_high, d_a, t_now)
-    h = 1e-6 * k.value
-    dx = (_conversion(law.order, k.value + h, d_a, t_now)
-          - _conversion(law.order, k.value - h, d_a, t_now)) / (2 * h)
-    conv = Param("conversion", x_now, abs(dx) * k.se, x_lo, x_hi, k.ci_method, "")
-    tt = _times(law.order, k.value, d_a, target)
-    dt = (_times(law.order, k.value + h, d_a, target)
-          - _times(law.order, k.value - h, d_a, target)) / (2 * h)
-    t_t = Param("t_target", tt, abs(dt) * k.se, _times(law.order, k.ci_high, d_a, target),
-                _times(law.order, k.ci_low, d_a, target), f"{k.ci_method} interval of k mapped",
-                "s")
+    conv = map_param(k, lambda kk: _conversion(law.order, kk, d_a, t_now), "conversion", "")
+    t_t = replace(map_param(k, lambda kk: _times(law.order, kk, d_a, target), "t_target", "s",
+                            decreasing=True), ci_method=f"{k.ci_method} interval of k mapped")
     complete = bool(conv.ci_low >= target)
     rule = (f"complete when the lower {100 * level:g} % bound of the conversion at the last "
             f"reading ({conv.ci_low:.4f}) reaches the target ({target:g})")

@@ -81,7 +81,7 @@ class RateLawResult:
         return d
 
 
-def _map_param(p: Param, fn, name: str, unit: str, decreasing: bool = False) -> Param:
+def map_param(p: Param, fn, name: str, unit: str, decreasing: bool = False) -> Param:
     """A parameter through a monotone function; the interval maps exactly, SE by the delta rule."""
     v = fn(p.value)
     h = 1e-6 * max(abs(p.value), 1e-300)
@@ -187,17 +187,17 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     half = None
     if chosen == "1":
         k_conc = k
-        half = _map_param(k, lambda x: LN2 / x, "half_life", "s", decreasing=True)
+        half = map_param(k, lambda x: LN2 / x, "half_life", "s", decreasing=True)
     elif chosen == "2":
         if deps:
-            k_conc = _map_param(k, lambda x: x * deps * b, "k", "L/(mol s)")
+            k_conc = map_param(k, lambda x: x * deps * b, "k", "L/(mol s)")
         d_a = abs(r.value("A0") - r.value("Ainf"))
-        half = _map_param(k, lambda x: 1.0 / (x * d_a), "half_life", "s", decreasing=True)
+        half = map_param(k, lambda x: 1.0 / (x * d_a), "half_life", "s", decreasing=True)
     elif chosen == "0":
         if deps:
-            k_conc = _map_param(k, lambda x: abs(x) / (deps * b), "k", "mol/(L s)")
+            k_conc = map_param(k, lambda x: abs(x) / (deps * b), "k", "mol/(L s)")
         if c0 is not None and k_conc is not None:
-            half = _map_param(k_conc, lambda x: c0.value / (2 * x), "half_life", "s",
+            half = map_param(k_conc, lambda x: c0.value / (2 * x), "half_life", "s",
                               decreasing=True)
         else:
             notes.append("zero-order half-life needs [A]0: give --c0 with --epsilon")
@@ -236,7 +236,7 @@ def guggenheim(t, y, delta: float | None = None, level: float = 0.95) -> dict:
     slope = r.params["slope"]
     k = Param("k", -slope.value, slope.se, -slope.ci_high, -slope.ci_low, slope.ci_method, "1/s")
     return {"method": "Guggenheim (1926)", "delta_s": delta, "k": k, "n_pairs": int(ok.sum()),
-            "half_life": _map_param(k, lambda x: LN2 / x, "half_life", "s", decreasing=True),
+            "half_life": map_param(k, lambda x: LN2 / x, "half_life", "s", decreasing=True),
             "fit": r}
 
 
