@@ -217,7 +217,7 @@ def _own_value(path: str, rubric: dict) -> dict:
         from .ratelaws import fit_trace
 
         ts = read_traces(path)
-        looks_pt = any("percent transmittance" in w for w in ts.info.get("warnings", []))
+        looks_pt = ts.info.get("looks_like") == "percent"
         if looks_pt:          # %T recorded under an absorbance header: grade the real kinetics
             ts = read_traces(path, signal="percent")
         ts = ts.mask_above(2.0)

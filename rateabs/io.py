@@ -401,7 +401,7 @@ def time_unit_from_header(header: str) -> str | None:
     return None
 
 
-def _parse_times(cells, decimal, unit_hint, option_unit, path, header, lines, col_label):
+def _parse_times(cells, decimal, unit_hint, option_unit, lines, col_label):
     """Seconds from numbers (with a unit) or clock strings; returns (seconds, unit, source)."""
     out = np.empty(len(cells))
     kinds = [_kind(c, decimal) for c in cells]
@@ -431,7 +431,7 @@ def _parse_times(cells, decimal, unit_hint, option_unit, path, header, lines, co
     return out, unit, source
 
 
-def _check_times(t: np.ndarray, lines, path, label: str) -> None:
+def _check_times(t: np.ndarray, lines, label: str = "") -> None:
     d = np.diff(t)
     if np.any(d == 0):
         i = int(np.argmax(d == 0)) + 1
@@ -487,7 +487,7 @@ def _plate_blocks(rows, lines, decimal):
     names = [n for n in grids[0] if not all(np.isnan(g[n][0]) and g[n][1] == "missing"
                                             for g in grids)]
     t = np.asarray(times, float)
-    _check_times(t, [lines[i] for i in starts], None, "")
+    _check_times(t, [lines[i] for i in starts])
     values = np.array([[g.get(n, (np.nan, "missing"))[0] for g in grids] for n in names])
     flags = np.array([[g.get(n, (np.nan, "missing"))[1] for g in grids] for n in names],
                      dtype=object)
@@ -593,14 +593,14 @@ def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
         parts = blocks[1]
         layout = "plate-blocks"
     elif shape == "transposed":
-        parts = _transposed(rows, cells.lines, hdr, decimal, time_unit, path)
+        parts = _transposed(rows, cells.lines, hdr, decimal, time_unit)
         layout = "transposed"
     else:
         header = [c.strip() for c in rows[hdr][:_width(rows[hdr])]]
-        body, body_lines, trailing = _body(rows, cells.lines, hdr, len(header), decimal)
+        body, body_lines, trailing = _body(rows, cells.lines, hdr, len(header))
         if trailing:
             warnings.append(f"ignored {trailing} line(s) after the table (a second section)")
-        layout, parts = _normal(header, body, body_lines, decimal, time_unit, path)
+        layout, parts = _normal(header, body, body_lines, decimal, time_unit)
     names, times, values, flags, extra, t_unit, t_source, hdr_words = parts
     per_trace = extra.pop("__per_trace__", {})
     if not names:
@@ -611,7 +611,8 @@ def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
                                    if re.search(r"mode|measure|signal|type|unit|read", k, re.I)])
     kind_found = detect_signal(words)
     kind = signal or kind_found or "absorbance"
-    warnings += _plausibility(kind, values, signal is not None)
+    more, looks_like = _plausibility(kind, values, signal is not None)
+    warnings += more
 
     # reference intensity for raw intensities
     if kind == "intensity":
@@ -639,8 +640,7 @@ def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
     converted_bad = ~np.isfinite(values) & (flags == "")
     flags = np.where(converted_bad, "overflow", flags)   # T <= 0: no light through
     finite = np.isfinite(values)
-    looks_percent = any("look like percent" in w for w in warnings)
-    if np.any(np.abs(values[finite]) > 10) and not looks_percent:
+    if np.any(np.abs(values[finite]) > 10) and looks_like != "percent":
         i, j = np.argwhere(np.isfinite(values) & (np.abs(values) > 10))[0]
         raise InputError(f"absorbance {values[i, j]:.4g} in trace {names[i]} is not plausible "
                          "(|A| > 10)", "check that this column holds readings and the signal "
@@ -656,7 +656,7 @@ def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
         encoding=cells.encoding, layout=layout, header_row=cells.lines[hdr],
         time_unit=t_unit, time_unit_source=t_source, signal_kind=kind,
         signal_source="option" if signal else ("header" if kind_found else "assumed"),
-        metadata=meta, extra_columns=extra, warnings=warnings,
+        metadata=meta, extra_columns=extra, warnings=warnings, looks_like=looks_like,
     )
     for col, vals in per_trace.items():
         ts.meta[col] = [vals.get(n) for n in ts.meta.index]
@@ -676,7 +676,7 @@ def _read(path, time_unit, signal, i0, sheet, partial=False) -> TraceSet:
     return ts
 
 
-def _body(rows, lines, hdr, ncols, decimal):
+def _body(rows, lines, hdr, ncols):
     """Data rows below the header, up to a blank line followed by another section."""
     body, body_lines = [], []
     i = hdr + 1
@@ -718,7 +718,7 @@ def _is_time_header(h: str) -> bool:
     return (bool(_TIME_HDR.search(h)) or bool(_BARE_T.match(h.strip()))) and not _TEMP_HDR.search(h)
 
 
-def _normal(header, body, lines, decimal, time_unit, path):
+def _normal(header, body, lines, decimal, time_unit):
     cols = list(zip(*body, strict=True))
     ncols = len(header)
     # kinds from a sample of rows (first 150 and last 50) decide what each column is
@@ -769,11 +769,11 @@ def _normal(header, body, lines, decimal, time_unit, path):
 
     if trace_j is not None:
         return "long", _long(header, cols, lines, decimal, time_j, trace_j, text_cols, meta_cols,
-                             empty_cols, unit_hint, time_unit, path, extra)
+                             empty_cols, unit_hint, time_unit, extra)
 
-    t, t_unit, t_source = _parse_times(list(cols[time_j]), decimal, unit_hint, time_unit, path,
-                                       header[time_j], lines, header[time_j])
-    _check_times(t, lines, path, "")
+    t, t_unit, t_source = _parse_times(list(cols[time_j]), decimal, unit_hint, time_unit, lines,
+                                       header[time_j])
+    _check_times(t, lines)
     _need_two(t, lines)
     trace_js = [j for j in range(ncols) if j not in empty_cols and j != time_j
                 and j not in meta_cols]
@@ -793,7 +793,7 @@ def _normal(header, body, lines, decimal, time_unit, path):
 
 
 def _long(header, cols, lines, decimal, time_j, trace_j, text_cols, meta_cols, empty_cols,
-          unit_hint, time_unit, path, extra):
+          unit_hint, time_unit, extra):
     value_cands = [j for j in range(len(header)) if j not in empty_cols and j not in
                    (time_j, trace_j) and j not in text_cols and j not in meta_cols]
     value_j = next((j for j in value_cands if _VALUE_HDR.search(header[j])), None)
@@ -802,8 +802,8 @@ def _long(header, cols, lines, decimal, time_j, trace_j, text_cols, meta_cols, e
             raise InputError("a trace column and a time column were found but no value column",
                              "add a column of readings, e.g. 'absorbance'", row=lines[0] - 1)
         value_j = value_cands[-1]
-    t, t_unit, t_source = _parse_times(list(cols[time_j]), decimal, unit_hint, time_unit, path,
-                                       header[time_j], lines, header[time_j])
+    t, t_unit, t_source = _parse_times(list(cols[time_j]), decimal, unit_hint, time_unit, lines,
+                                       header[time_j])
     v, f = _parse_values(cols[value_j], decimal, lines, header[value_j])
     ids = [c.strip() for c in cols[trace_j]]
     for i, name in enumerate(ids):
@@ -835,22 +835,22 @@ def _long(header, cols, lines, decimal, time_j, trace_j, text_cols, meta_cols, e
         ix = np.asarray(idx[n])
         order = np.argsort(t[ix], kind="stable")
         ix = ix[order]
-        _check_times(t[ix], [lines[i] for i in ix], path, f" in trace {n}")
+        _check_times(t[ix], [lines[i] for i in ix], f" in trace {n}")
         k = len(ix)
         times[r, :k], values[r, :k], flags[r, :k] = t[ix], v[ix], f[ix]
     return (names, times, values, flags, extra, t_unit, t_source, header[value_j])
 
 
-def _transposed(rows, lines, hdr, decimal, time_unit, path):
+def _transposed(rows, lines, hdr, decimal, time_unit):
     header = rows[hdr]
     w = _width(header)
     label = header[0].strip()
     tcells = [c for c in header[1:w]]
     unit_hint = time_unit_from_header(label)
     hdr_lines = [lines[hdr]] * len(tcells)
-    t, t_unit, t_source = _parse_times(tcells, decimal, unit_hint, time_unit, path, label,
-                                       hdr_lines, label or "time row")
-    _check_times(t, hdr_lines, path, "")
+    t, t_unit, t_source = _parse_times(tcells, decimal, unit_hint, time_unit, hdr_lines,
+                                       label or "time row")
+    _check_times(t, hdr_lines)
     _need_two(t, hdr_lines)
     names, values, flags = [], [], []
     extra: dict[str, list[float]] = {}
@@ -882,14 +882,17 @@ def _transposed(rows, lines, hdr, decimal, time_unit, path):
     return (names, times, values, flags, extra, t_unit, t_source, label + " " + " ".join(names))
 
 
-def _plausibility(kind: str, values: np.ndarray, forced: bool) -> list[str]:
-    """Warnings for values that cannot be what the header (or option) says they are."""
+def _plausibility(kind: str, values: np.ndarray, forced: bool) -> tuple[list[str], str | None]:
+    """Warnings for values that cannot be what the header (or option) says they are, and the
+    signal kind they look like instead (``"percent"`` or None)."""
     v = values[np.isfinite(values)]
     if v.size == 0:
-        return []
+        return [], None
     out = []
+    looks_like = None
     how = "--signal says" if forced else "the file says"
     if kind == "absorbance" and np.median(v) > 5 and np.all(v >= 0) and np.max(v) <= 100.5:
+        looks_like = "percent"
         out.append(f"{how} absorbance but the values ({np.min(v):.3g}-{np.max(v):.3g}) look like "
                    "percent transmittance; use --signal percent if they are %T")
     if kind == "transmittance":
@@ -897,11 +900,12 @@ def _plausibility(kind: str, values: np.ndarray, forced: bool) -> list[str]:
             out.append("negative transmittance values: transmittance lies between 0 and 1; "
                        "check the blank or the signal kind")
         if np.median(v) > 1.5 and np.max(v) <= 100.5:
+            looks_like = "percent"
             out.append(f"{how} transmittance but values run to {np.max(v):.3g}: they look like "
                        "percent transmittance; use --signal percent")
     if kind == "percent" and (np.any(v < 0) or np.any(v > 101)):
         out.append("percent transmittance outside 0-100: check the signal kind")
-    return out
+    return out, looks_like
 
 
 def write_atomic(path: str | Path, data: str | bytes) -> None:
