@@ -19,6 +19,8 @@ backs up traces with no straight stretch and is compared with the window slope e
 from __future__ import annotations
 
 import math
+import warnings
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -185,15 +187,12 @@ def noise_sigma(grid: Grid, floor: float = 1e-4) -> np.ndarray:
     return np.where(np.isfinite(sig), np.maximum(sig, floor), floor)
 
 
-class _quiet:
-    def __enter__(self):
-        import warnings
-        self._w = warnings.catch_warnings()
-        self._w.__enter__()
+@contextmanager
+def _quiet():
+    """Silence numpy's RuntimeWarnings (all-NaN slices of padded traces are expected here)."""
+    with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-
-    def __exit__(self, *a):
-        self._w.__exit__(*a)
+        yield
 
 
 def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
@@ -595,13 +594,12 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
                 cols["specific_activity_U_per_mg_se"] = np.where(ok_p, rate_se * scale / prot,
                                                                   np.nan)
     # reading flags (overflow, past-linear), then the trace flags in a fixed order
-    bad = analysed.data[analysed.data["flag"].isin(["overflow", "past-linear"])]
-    per = bad.groupby("trace")["flag"].unique().to_dict() if len(bad) else {}
+    per = {n: [f for f in fl if f != "missing"] for n, fl in analysed.reading_flags().items()}
     order = ["few-points", "no-linear", "lag", "curved", "noisy", "disagree", "blank-drift",
              "reversed", "over-10pct"]
     stacked = np.column_stack([masks[k] for k in order if k in masks])
     names_ = [k for k in order if k in masks]
-    cols["flags"] = [sorted(per.get(n, [])) + [names_[j] for j in np.nonzero(row)[0]]
+    cols["flags"] = [per.get(n, []) + [names_[j] for j in np.nonzero(row)[0]]
                      for n, row in zip(g.names, stacked, strict=True)]
     table = pd.DataFrame(cols)
     value_col = "rate_uM_per_min" if eps else "slope_A_per_min"

@@ -113,10 +113,9 @@ class TraceSet:
     def reading_flags(self) -> dict[str, list[str]]:
         """Per trace, the sorted distinct reading flags (e.g. ``["overflow"]``)."""
         flagged = self.data[self.data["flag"] != ""]
-        out = {name: [] for name in self.names}
-        for name, grp in flagged.groupby("trace", sort=False):
-            out[name] = sorted(set(grp["flag"]))
-        return out
+        found = flagged.groupby("trace", sort=False)["flag"].unique().to_dict() if len(
+            flagged) else {}
+        return {name: sorted(found.get(name, [])) for name in self.names}
 
     def select(self, names) -> TraceSet:
         """A TraceSet with only the named traces."""

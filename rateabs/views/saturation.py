@@ -4,9 +4,22 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
+
 from ..errors import UsageError
 from ..output import document, render_table, rows_to_csv
 from . import View, deliver
+
+
+def _keep_rows(df, keep):
+    """Rows where ``keep`` is true, with the table's line numbers kept for error messages."""
+    keep = np.asarray(keep, dtype=bool)
+    attrs = dict(df.attrs)
+    if attrs.get("lines") is not None:
+        attrs["lines"] = [ln for ln, k in zip(attrs["lines"], keep, strict=True) if k]
+    out = df[keep]
+    out.attrs = attrs
+    return out
 
 
 def _select_rows(df, select):
@@ -15,13 +28,7 @@ def _select_rows(df, select):
         if not sep or col.strip() not in df.columns:
             raise UsageError(f"--select {item!r} does not name a column of the table",
                              f"use COL=VALUE with one of {', '.join(map(str, df.columns))}")
-        keep = df[col.strip()].astype(str).str.strip() == val.strip()
-        attrs = dict(df.attrs)
-        lines = attrs.get("lines")
-        df = df[keep.to_numpy()]
-        if lines is not None:
-            attrs["lines"] = [ln for ln, k in zip(lines, keep.to_numpy(), strict=True) if k]
-        df.attrs = attrs
+        df = _keep_rows(df, df[col.strip()].astype(str).str.strip() == val.strip())
         if df.empty:
             raise UsageError(f"--select {item!r} keeps no rows", "check the value")
     return df
@@ -36,8 +43,7 @@ def compute_saturation(o: dict) -> View:
 
     df = read_table(o["file"])
     if "role" in df.columns:
-        df = _select_rows(df.assign(_role=df["role"].astype(str).str.strip().str.lower()),
-                          ["_role=sample"]).drop(columns="_role")
+        df = _keep_rows(df, df["role"].astype(str).str.strip().str.lower() == "sample")
     df = _select_rows(df, o.get("select"))
     df.attrs["source"] = o["file"]
     bent = []
