@@ -36,7 +36,9 @@ def run_demo(out: str | Path, echo=print) -> str:
         echo(f"  done: {title}")
         return view
 
-    s = lambda name: str(sample_path(name))  # noqa: E731
+    def s(name):
+        return str(sample_path(name))
+
     echo(f"rateabs demo: writing into {out}/")
     step("1_inspect", "What the reader finds in a messy cuvette export", "everyone",
          views.run_inspect, {"file": s("cuvettes_kbap_405nm_messy.csv")})

@@ -386,10 +386,10 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
         v0 = float(start[name])
         if name not in fix:
             v0 = min(max(v0, lo if np.isfinite(lo) else v0), hi if np.isfinite(hi) else v0)
-        pars.add(name.replace("-", "_"), value=v0, min=lo, max=hi, vary=name not in fix)
+        pars.add(name, value=v0, min=lo, max=hi, vary=name not in fix)
 
     def residual(ps):
-        vals = [ps[nm.replace("-", "_")].value for nm in model.params]
+        vals = [ps[nm].value for nm in model.params]
         with np.errstate(all="ignore"):
             r = (y - model.func(x, *vals)) * w
         return np.where(np.isfinite(r), r, 1e150)
@@ -400,7 +400,7 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
         warnings.simplefilter("ignore")
         res = mini.minimize(method="least_squares", max_nfev=4000 * (len(free) + 1),
                             xtol=1e-15, ftol=1e-15, gtol=1e-15)
-    values = {nm: res.params[nm.replace("-", "_")].value for nm in model.params}
+    values = {nm: res.params[nm].value for nm in model.params}
     fitted = model.func(x, *values.values())
     rw = (y - fitted) * w
     rss = float(np.sum(rw * rw))
@@ -419,7 +419,7 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
         success = False
         message = "not identifiable (singular covariance)"
     for nm in free:
-        lo, hi = res.params[nm.replace("-", "_")].min, res.params[nm.replace("-", "_")].max
+        lo, hi = res.params[nm].min, res.params[nm].max
         v = values[nm]
         if (np.isfinite(lo) and abs(v - lo) <= 1e-9 * max(1.0, abs(lo))) or (
                 np.isfinite(hi) and abs(v - hi) <= 1e-9 * max(1.0, abs(hi))):
@@ -508,15 +508,14 @@ def information_criteria(rss: float, n: int, k: int) -> tuple[float, float, floa
 
 def _profile(lmfit, mini, res, model, free, level, values):
     out = {}
-    names = [nm.replace("-", "_") for nm in free]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            ci = lmfit.conf_interval(mini, res, p_names=names, sigmas=[level], maxiter=400)
+            ci = lmfit.conf_interval(mini, res, p_names=list(free), sigmas=[level], maxiter=400)
     except Exception as exc:  # lmfit raises several kinds when a profile cannot close
         return {nm: (None, None, f"the search failed ({type(exc).__name__})") for nm in free}
-    for nm, key in zip(free, names, strict=True):
-        rows = ci.get(key, [])
+    for nm in free:
+        rows = ci.get(nm, [])
         lo = next((v for p, v in rows if p > 0 and v < values[nm]), None)
         hi = next((v for p, v in reversed(rows) if p > 0 and v > values[nm]), None)
         finite = lo is not None and hi is not None and np.isfinite(lo) and np.isfinite(hi)
