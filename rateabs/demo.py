@@ -13,7 +13,8 @@ from __future__ import annotations
 import time
 from pathlib import Path
 
-from .io import sample_path, write_atomic
+from .files import write_atomic
+from .io import sample_path
 from .report import esc, notes, page, table
 
 

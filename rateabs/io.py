@@ -908,17 +908,6 @@ def _plausibility(kind: str, values: np.ndarray, forced: bool) -> tuple[list[str
     return out, looks_like
 
 
-def write_atomic(path: str | Path, data: str | bytes) -> None:
-    """Write a whole file via a temporary name and rename, so a crash leaves no half file."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".{path.name}.tmp")
-    mode = "wb" if isinstance(data, bytes) else "w"
-    with open(tmp, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": ""})) as fh:
-        fh.write(data)
-    tmp.replace(path)
-
-
 def read_table(path: str | Path) -> pd.DataFrame:
     """Read a plain table (a plate map, a rates table, a roster) with the same sniffing.
 

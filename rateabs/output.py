@@ -13,8 +13,8 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from . import __version__
+from .files import write_atomic
 from .fitting import _num, fmt_p, param  # noqa: F401  (the JSON parameter object lives with Param)
-from .io import write_atomic
 
 
 def _clean(obj):

@@ -44,7 +44,7 @@ def house_style():
 
 def save(fig, path: str | Path) -> Path:
     """Write a figure as PNG atomically and close it."""
-    from .io import write_atomic
+    from .files import write_atomic
 
     buf = io.BytesIO()
     fig.savefig(buf, format="png", bbox_inches="tight")

@@ -50,7 +50,7 @@ def deliver(o: dict, emit, view: View, name: str, plot=None) -> list[Path]:
     """
     import tempfile
 
-    from ..io import write_atomic
+    from ..files import write_atomic
 
     emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), name)
     pics: list[Path] = []
