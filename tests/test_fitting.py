@@ -82,13 +82,13 @@ def _design(name):
     if name in ("mm",):
         return s, {"Vmax": 10.0, "Km": 50.0}
     if name == "hill":
-        return s, {"Vmax": 10.0, "K_half": 60.0, "n": 2.0}
+        return s, {"Vmax": 10.0, "S50": 60.0, "n": 2.0}
     if name == "substrate-inhibition":
         s = np.array([5, 10, 20, 40, 80, 160, 320, 640, 1280, 2560.0])
         return s, {"Vmax": 10.0, "Km": 50.0, "Ksi": 600.0}
     if name == "ic50":
         i = np.array([0, 0.1, 0.3, 1, 3, 10, 30, 100, 300.0])
-        return i, {"top": 100.0, "bottom": 5.0, "IC50": 4.0, "n": 1.2}
+        return i, {"v_free": 100.0, "v_floor": 5.0, "IC50": 4.0, "n": 1.2}
     ss, ii = np.meshgrid(s, [0, 2, 5, 10.0])
     x = np.vstack([ss.ravel(), ii.ravel()])
     if name == "mixed":
