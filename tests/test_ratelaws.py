@@ -89,9 +89,9 @@ def test_each_order_recovered_and_half_life_formula(order, k_conc):
         assert h.value == pytest.approx(c0 / (2 * kc.value), rel=1e-9)
 
 
-# Hit rate of the automatic order choice on these two designs, measured over 200 other seeds
-# each (as benchmarks/order_choice.py does): 400 of 400. The binomial 97.5 % lower bound of
-# 400/400 is 0.991; use 0.99.
+# Hit rate of the automatic order choice on these two designs, measured by
+# benchmarks/order_choice.py over 200 other seeds each (1000-1199): 400 of 400. The binomial
+# 97.5 % lower bound of 400/400 is 0.991; use 0.99.
 ORDER_HIT_RATE = 0.99
 
 
