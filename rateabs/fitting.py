@@ -497,7 +497,11 @@ def _covariance(model, x, w, values, free, scale):
 
 
 def information_criteria(rss: float, n: int, k: int) -> tuple[float, float, float]:
-    """AIC, AICc and BIC of a least-squares fit with ``k`` estimated quantities (incl. sigma)."""
+    """AIC, AICc and BIC of a least-squares fit with ``k`` estimated quantities (incl. sigma).
+
+    AIC = n ln(RSS/n) + 2k (Akaike 1974); AICc adds 2k(k+1)/(n-k-1) (Hurvich & Tsai 1989,
+    Biometrika 76:297); BIC = n ln(RSS/n) + k ln n (Schwarz 1978).
+    """
     if rss <= 0:
         rss = 1e-300
     aic = n * math.log(rss / n) + 2 * k
@@ -566,7 +570,10 @@ def bootstrap(model: Model, x, y, w, values: dict, free, fitted, *, n_boot=2000,
 
 
 def runs_test(residuals) -> float:
-    """Two-sided p of the Wald–Wolfowitz runs test on residual signs (NaN if too few)."""
+    """Two-sided p of the runs test on residual signs, normal approximation (NaN if too few).
+
+    Wald & Wolfowitz (1940), Ann. Math. Stat. 11:147.
+    """
     r = np.asarray(residuals, dtype=float)
     r = r[np.isfinite(r) & (r != 0)]
     n1, n2 = int(np.sum(r > 0)), int(np.sum(r < 0))

@@ -6,7 +6,8 @@ A plate map is a CSV (or TSV/.xlsx) with one row per well. Columns (case-insensi
 =============  ==============================================================================
 ``well``       well or trace name as it appears in the data (A1, B12, "cuvette 3", ...)
 ``role``       ``sample``, ``blank``, ``standard``, ``positive`` (full-signal control) or
-               ``negative`` (no-signal control)
+               ``negative`` (no-signal control); ``buffer`` and ``background`` mean blank,
+               ``unknown`` means sample, ``positive control``/``negative control`` the controls
 ``sample``     sample name (free text)
 ``substrate``  substrate concentration; unit in the header (``substrate_uM``,
                ``substrate (mM)``) or in the cell (``50 uM``); bare numbers are µM
@@ -35,9 +36,9 @@ from .io import read_table
 from .units import parse_concentration, parse_mass_concentration, unit_from_header
 
 ROLES = ("sample", "blank", "standard", "positive", "negative")
-_ROLE_ALIASES = {"blk": "blank", "buffer": "blank", "bkg": "blank", "background": "blank",
-                 "std": "standard", "pos": "positive", "neg": "negative", "unknown": "sample",
-                 "smp": "sample", "positive control": "positive", "negative control": "negative"}
+#: Other words of the trade for the same roles (common practice).
+_ROLE_ALIASES = {"buffer": "blank", "background": "blank", "unknown": "sample",
+                 "positive control": "positive", "negative control": "negative"}
 
 
 def conc_column(df, stem: str):

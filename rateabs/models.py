@@ -82,12 +82,12 @@ def _positive(x, fallback):
 
 def _mm_start(s, v):
     vmax, km = direct_linear_plot(s, v)
-    top = float(np.nanmax(v)) if np.size(v) else 1.0
+    highest = float(np.nanmax(v)) if np.size(v) else 1.0
     s_pos = s[s > 0] if np.any(s > 0) else np.array([1.0])
-    vmax = _positive(vmax, top * 1.2)
+    vmax = _positive(vmax, highest * 1.2)
     km = _positive(km, np.median(s_pos))
     # keep starts in a sane range even for odd data
-    vmax = min(max(vmax, 0.5 * top), 20 * abs(top) + 1e-300)
+    vmax = min(max(vmax, 0.5 * highest), 20 * abs(highest) + 1e-300)
     km = min(max(km, s_pos.min() * 0.01), s_pos.max() * 100)
     return vmax, km
 
@@ -100,10 +100,10 @@ def mm(s, Vmax, Km):
     return Vmax * s / (Km + s)
 
 
-def hill(s, Vmax, K_half, n):
-    """Hill: v = Vmax S^n / (K_half^n + S^n)."""
+def hill(s, Vmax, S50, n):
+    """Hill (1910): v = Vmax S^n / (S50^n + S^n); S50 is the substrate giving half of Vmax."""
     sn = np.power(np.maximum(s, 0.0), n)
-    return Vmax * sn / (np.power(K_half, n) + sn)
+    return Vmax * sn / (np.power(S50, n) + sn)
 
 
 def substrate_inhibition(s, Vmax, Km, Ksi):
@@ -135,10 +135,13 @@ def mixed(x, Vmax, Km, Ki, Kiu):
     return Vmax * s / (Km * (1 + i / Ki) + s * (1 + i / Kiu))
 
 
-def logistic4(i, top, bottom, IC50, n):
-    """Four-parameter logistic dose response: v = bottom + (top - bottom) / (1 + (I/IC50)^n)."""
+def logistic4(i, v_free, v_floor, IC50, n):
+    """Four-parameter logistic dose response: v = v_floor + (v_free - v_floor) / (1 + (I/IC50)^n).
+
+    ``v_free`` is the rate without inhibitor, ``v_floor`` the rate at saturating inhibitor.
+    """
     r = np.power(np.maximum(i, 0.0) / IC50, n)
-    return bottom + (top - bottom) / (1 + r)
+    return v_floor + (v_free - v_floor) / (1 + r)
 
 
 def _guess_mm(x, y):
@@ -148,7 +151,7 @@ def _guess_mm(x, y):
 
 def _guess_hill(x, y):
     vmax, km = _mm_start(np.asarray(x, float), np.asarray(y, float))
-    return {"Vmax": vmax, "K_half": km, "n": 1.0}
+    return {"Vmax": vmax, "S50": km, "n": 1.0}
 
 
 def _guess_si(x, y):
@@ -181,10 +184,10 @@ def _guess_inhib(x, y, extra=False):
 def _guess_ic50(x, y):
     i, v = np.asarray(x, float), np.asarray(y, float)
     zero = i == np.nanmin(i)
-    top = float(np.nanmean(v[zero]))
+    v_free = float(np.nanmean(v[zero]))
     hi = i == np.nanmax(i)
-    bottom = float(np.nanmean(v[hi]))
-    half = (top + bottom) / 2
+    v_floor = float(np.nanmean(v[hi]))
+    half = (v_free + v_floor) / 2
     pos = i > 0
     order = np.argsort(i[pos])
     ip, vp = i[pos][order], v[pos][order]
@@ -194,17 +197,17 @@ def _guess_ic50(x, y):
             f = (half - vp[k]) / (vp[k + 1] - vp[k])
             ic50 = float(np.exp(np.log(ip[k]) + f * (np.log(ip[k + 1]) - np.log(ip[k]))))
             break
-    n = 1.0 if top >= bottom else -1.0
-    return {"top": top, "bottom": bottom, "IC50": ic50, "n": n}
+    n = 1.0 if v_free >= v_floor else -1.0
+    return {"v_free": v_free, "v_floor": v_floor, "IC50": ic50, "n": n}
 
 
 _POS = 1e-12
 SATURATION = {
     "mm": Model("mm", mm, ("Vmax", "Km"), _guess_mm, {"Vmax": 0, "Km": _POS}, {},
                 {"Vmax": "y", "Km": "x"}, "v = Vmax S / (Km + S)", "Michaelis & Menten (1913)"),
-    "hill": Model("hill", hill, ("Vmax", "K_half", "n"), _guess_hill,
-                  {"Vmax": 0, "K_half": _POS, "n": 0.05}, {"n": 20},
-                  {"Vmax": "y", "K_half": "x", "n": "1"}, "v = Vmax S^n / (K_half^n + S^n)",
+    "hill": Model("hill", hill, ("Vmax", "S50", "n"), _guess_hill,
+                  {"Vmax": 0, "S50": _POS, "n": 0.05}, {"n": 20},
+                  {"Vmax": "y", "S50": "x", "n": "1"}, "v = Vmax S^n / (S50^n + S^n)",
                   "Hill (1910)"),
     "substrate-inhibition": Model(
         "substrate-inhibition", substrate_inhibition, ("Vmax", "Km", "Ksi"), _guess_si,
@@ -226,9 +229,10 @@ SATURATION = {
                    {"Vmax": 0, "Km": _POS, "Ki": _POS, "Kiu": _POS}, {},
                    {"Vmax": "y", "Km": "x", "Ki": "i", "Kiu": "i"},
                    "v = Vmax S / (Km (1 + I/Ki) + S (1 + I/Kiu))"),
-    "ic50": Model("ic50", logistic4, ("top", "bottom", "IC50", "n"), _guess_ic50,
-                  {"IC50": _POS}, {}, {"top": "y", "bottom": "y", "IC50": "i", "n": "1"},
-                  "v = bottom + (top - bottom) / (1 + (I/IC50)^n)"),
+    "ic50": Model("ic50", logistic4, ("v_free", "v_floor", "IC50", "n"), _guess_ic50,
+                  {"IC50": _POS}, {}, {"v_free": "y", "v_floor": "y", "IC50": "i", "n": "1"},
+                  "v = v_floor + (v_free - v_floor) / (1 + (I/IC50)^n)",
+                  "four-parameter logistic, e.g. DeLean, Munson & Rodbard (1978)"),
 }
 
 #: Models of one variable (substrate) and of two (substrate, inhibitor).

@@ -8,7 +8,7 @@ Beer–Lambert holds for monochromatic light in a dilute, non-scattering sample.
 have a finite bandwidth and some stray light, which bend the response at high absorbance; readings
 above :data:`DEFAULT_LINEAR_LIMIT` are therefore flagged and kept out of fits.
 
->>> round(absorbance_from_percent_t(50.0), 5)
+>>> round(float(absorbance_from_percent_t(50.0)), 5)
 0.30103
 """
 

@@ -657,7 +657,11 @@ def standard_curve(ts: TraceSet, meta: pd.DataFrame, st: RateSettings) -> dict |
 
 
 def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
-    """Index of the single Grubbs outlier (two-sided, level ``alpha``) or None; n >= 3."""
+    """Index of the single Grubbs outlier (two-sided, level ``alpha``) or None; n >= 3.
+
+    Grubbs (1969), Technometrics 11:1: G = max |x - mean| / s against the critical value from
+    Student's t at alpha/(2n), which reproduces Grubbs's table.
+    """
     x = np.asarray(x, dtype=float)
     n = x.size
     if n < 3:

@@ -244,7 +244,7 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
     unknown_fix = set(fix or {}) - {p for c in candidates for p in SATURATION[c].params}
     if unknown_fix:
         raise UsageError(f"--fix names {sorted(unknown_fix)[0]!r}, which no candidate model has",
-                         "check the parameter name (Vmax, Km, K_half, n, Ksi, Ki, Kiu, IC50...)")
+                         "check the parameter name (Vmax, Km, S50, n, Ksi, Ki, Kiu, IC50, v_free...)")
     if len(candidates) > 1:
         comp = compare(fits, NESTED, failed)
         chosen = comp.chosen
@@ -282,7 +282,7 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
             cross = {"method": "direct linear plot medians (Eisenthal & Cornish-Bowden 1974)",
                      "Vmax": vm, "Km": kmd, "subset": "lowest inhibitor level" if has_i else "all"}
         best = fits[chosen]
-        kname = "Km" if "Km" in best.params else ("K_half" if "K_half" in best.params else None)
+        kname = "Km" if "Km" in best.params else ("S50" if "S50" in best.params else None)
         if kname:
             kval = best.params[kname].value
             smax, smin = float(np.max(data.s)), float(np.min(data.s[data.s > 0]) if np.any(

@@ -1,6 +1,7 @@
 """Temperature dependence of rate constants: Arrhenius and Eyring.
 
-Arrhenius: ln k = ln A - Ea / (R T). Eyring: ln(k/T) = ln(kB/h) + dS/R - dH/(R T), for a
+Arrhenius: ln k = ln A - Ea / (R T). Eyring (1935, J. Chem. Phys. 3:107):
+ln(k/T) = ln(kB/h) + dS/R - dH/(R T), for a
 rate constant in 1/s (first order or pseudo-first order; the transmission coefficient is taken
 as 1). Both are straight-line fits in the shared engine, weighted by SE(ln k) = SE(k)/k when SEs
 are given. Constants R, kB and h come from ``scipy.constants`` (CODATA). At the mean temperature,

@@ -4,6 +4,7 @@ import math
 
 import numpy as np
 import pytest
+from kinetics_truth import log_logistic4, mechanism_rates, v_hill, v_mixed, v_substrate_inhibition
 from scipy import optimize, stats
 
 from rateabs.errors import FitError, UsageError
@@ -60,13 +61,34 @@ def test_profile_intervals_equal_independent_profile():
     assert (km.ci_high - km.value) > (km.value - km.ci_low)
 
 
-@pytest.mark.parametrize("name", ["mm", "hill", "substrate-inhibition", "competitive",
-                                  "uncompetitive", "noncompetitive", "mixed", "ic50"])
+def _truth(name, x, t):
+    """Noise-free rates from tests/kinetics_truth.py (typed equations or solve_ivp mechanisms),
+    never from rateabs.models."""
+    if name == "mm":
+        return mechanism_rates(x, 0 * x, V=t["Vmax"], Km=t["Km"])
+    if name == "hill":
+        return v_hill(x, t["Vmax"], t["S50"], t["n"])
+    if name == "substrate-inhibition":
+        return v_substrate_inhibition(x, t["Vmax"], t["Km"], t["Ksi"])
+    if name == "ic50":
+        return log_logistic4(x, t["n"], t["v_floor"], t["v_free"], t["IC50"])
+    if name == "mixed":
+        return v_mixed(x[0], x[1], t["Vmax"], t["Km"], t["Ki"], t["Kiu"])
+    ks = {"competitive": {"Kic": t["Ki"]}, "uncompetitive": {"Kiu": t["Ki"]},
+          "noncompetitive": {"Kic": t["Ki"], "Kiu": t["Ki"]}}[name]
+    return mechanism_rates(x[0], x[1], V=t["Vmax"], Km=t["Km"], **ks)
+
+
+ALL_SATURATION = ["mm", "hill", "substrate-inhibition", "competitive", "uncompetitive",
+                  "noncompetitive", "mixed", "ic50"]
+
+
+@pytest.mark.parametrize("name", ALL_SATURATION)
 def test_batched_solver_agrees_with_lmfit(name):
     rng = np.random.default_rng(7)
     model = SATURATION[name]
     x, truth = _design(name)
-    y = model.func(x, *truth.values())
+    y = _truth(name, x, truth)
     y = y * (1 + rng.normal(0, 0.03, y.shape))
     r = fit(model, x, y)
     start = np.array([[v * 1.3 for v in model.guess(x, y).values()]])
@@ -82,13 +104,13 @@ def _design(name):
     if name in ("mm",):
         return s, {"Vmax": 10.0, "Km": 50.0}
     if name == "hill":
-        return s, {"Vmax": 10.0, "K_half": 60.0, "n": 2.0}
+        return s, {"Vmax": 10.0, "S50": 60.0, "n": 2.0}
     if name == "substrate-inhibition":
         s = np.array([5, 10, 20, 40, 80, 160, 320, 640, 1280, 2560.0])
         return s, {"Vmax": 10.0, "Km": 50.0, "Ksi": 600.0}
     if name == "ic50":
         i = np.array([0, 0.1, 0.3, 1, 3, 10, 30, 100, 300.0])
-        return i, {"top": 100.0, "bottom": 5.0, "IC50": 4.0, "n": 1.2}
+        return i, {"v_free": 100.0, "v_floor": 5.0, "IC50": 4.0, "n": 1.2}
     ss, ii = np.meshgrid(s, [0, 2, 5, 10.0])
     x = np.vstack([ss.ravel(), ii.ravel()])
     if name == "mixed":
@@ -96,22 +118,32 @@ def _design(name):
     return x, {"Vmax": 10.0, "Km": 50.0, "Ki": 4.0}
 
 
-@pytest.mark.parametrize("name", ["mm", "hill", "substrate-inhibition", "competitive",
-                                  "uncompetitive", "noncompetitive", "mixed", "ic50"])
+N_SEEDS = 12
+
+
+@pytest.mark.parametrize("name", ALL_SATURATION)
 def test_parameters_recovered_from_seeded_simulation(name):
     model = SATURATION[name]
     x, truth = _design(name)
-    hits = 0
-    for seed in range(6):
+    y_true = _truth(name, x, truth)
+    covered = dict.fromkeys(truth, 0)
+    for seed in range(N_SEEDS):
         rng = np.random.default_rng(100 + seed)
-        y = model.func(x, *truth.values())
-        y = y + rng.normal(0, 0.02 * np.max(np.abs(y)), y.shape)
+        y = y_true + rng.normal(0, 0.02 * np.max(np.abs(y_true)), y_true.shape)
         r = fit(model, x, y)
         assert r.success, r.report()
-        hits += all(r.params[k].ci_low <= v <= r.params[k].ci_high for k, v in truth.items())
+        # the error over its SE follows Student's t on the fit's degrees of freedom (few here:
+        # 5 to 36); a two-sided tail of 1e-4 per check keeps a false failure over the ~300
+        # checks of this test below 3 %
+        bound = stats.t.ppf(1 - 5e-5, r.dof)
         for k, v in truth.items():
-            assert abs(r.params[k].value - v) < 4 * r.params[k].se, (k, seed)
-    assert hits >= 4          # joint coverage of 95 % intervals over 6 seeds
+            covered[k] += r.params[k].ci_low <= v <= r.params[k].ci_high
+            assert abs(r.params[k].value - v) < bound * r.params[k].se, (k, seed)
+    # coverage of the nominal 95 % intervals: with 12 simulations, accept down to the lower
+    # 0.1 % binomial quantile, scipy.stats.binom.ppf(0.001, 12, 0.95) = 8
+    floor = stats.binom.ppf(0.001, N_SEEDS, 0.95)
+    assert floor == 8
+    assert all(c >= floor for c in covered.values()), covered
 
 
 def test_bootstrap_seeded_and_close_to_asymptotic():
@@ -148,16 +180,31 @@ def test_weights():
 
 
 def test_runs_test_hand_worked():
-    # 10 alternating signs: R = 10, mu = 6, var = 2*25*40/(100*9) = 2.222, z = 1.897
-    p = runs_test([1, -1] * 5)
-    assert p == pytest.approx(2 * stats.norm.sf(4 / math.sqrt(2 * 25 * 40 / 900)), rel=1e-9)
+    # Wald & Wolfowitz (1940), Ann. Math. Stat. 11:147, normal approximation. Ten alternating
+    # signs: n1 = n2 = 5, R = 10 runs; mean 2 n1 n2 / n + 1 = 6; variance
+    # 2 n1 n2 (2 n1 n2 - n) / (n^2 (n - 1)) = 2 x 25 x 40 / (100 x 9) = 2.2222; z = 4 / 1.4907
+    # = 2.6833; two-sided p = 2 x 0.0036452 = 0.0072904
+    assert runs_test([1, -1] * 5) == pytest.approx(0.0072904, abs=5e-7)
+    # the exact distribution (Wald & Wolfowitz 1940) gives P(R >= 10) = 2 / C(10, 5) = 0.0079:
+    # the approximation is close, and in the right direction
+    assert runs_test([1, -1] * 5) == pytest.approx(2 / math.comb(10, 5), rel=0.1)
+    # two long runs: R = 2, z = -4 / 1.4907, the same p
+    assert runs_test([1] * 5 + [-1] * 5) == pytest.approx(0.0072904, abs=5e-7)
+    assert math.isnan(runs_test([1, 1, 1, 1, 1, 1]))
 
 
 def test_aicc_definition():
+    # AICc of Hurvich & Tsai (1989), Biometrika 76:297: AIC + 2k(k+1)/(n-k-1); for least
+    # squares AIC = n ln(RSS/n) + 2k (Akaike 1974), BIC = n ln(RSS/n) + k ln n (Schwarz 1978).
+    # RSS 100, n 12, k 3: n ln(RSS/n) = 12 ln(8.3333) = 12 x 2.120264 = 25.443162
+    #   AIC  = 25.443162 + 6                = 31.443162
+    #   AICc = 31.443162 + 2 x 3 x 4 / 8     = 34.443162
+    #   BIC  = 25.443162 + 3 ln 12 = + 7.454720 = 32.897882
     aic, aicc, bic = information_criteria(100.0, 12, 3)
-    assert aic == pytest.approx(12 * math.log(100 / 12) + 6)
-    assert aicc == pytest.approx(aic + 2 * 3 * 4 / 8)
-    assert bic == pytest.approx(12 * math.log(100 / 12) + 3 * math.log(12))
+    assert aic == pytest.approx(31.443162, abs=1e-6)
+    assert aicc == pytest.approx(34.443162, abs=1e-6)
+    assert bic == pytest.approx(32.897882, abs=1e-6)
+    assert information_criteria(1.0, 4, 3)[1] == math.inf      # n - k - 1 = 0: undefined
 
 
 def test_compare_chooses_exactly_one_and_shows_f_tests():

@@ -60,16 +60,36 @@ def test_html_is_escaped(tmp_path):
     assert "&lt;script&gt;x&lt;/script&gt;" in (tmp_path / "class_summary.html").read_text()
 
 
-def test_hand_worked_score():
-    # own value 1.00, reported 1.08 (8 % off, tolerance 5 % -> 1 - 3/20 = 0.85),
-    # own vs reference 1.00 vs 1.00 (1.0), relative SE 11 % (1 - 0.09/0.18 = 0.5)
-    # score = 100 (20*0.5 + 50*0.85 + 30*1.0) / 100 = 82.5
-    parts = {"data": data_quality(0.11, 0), "report": agreement(1.08, 1.0, 5),
-             "reference": agreement(1.0, 1.0, 5)}
-    assert parts == pytest.approx({"data": 0.5, "report": 0.85, "reference": 1.0})
-    w = {"data": 20, "report": 50, "reference": 30}
-    assert 100 * sum(w[k] * parts[k] for k in w) / 100 == pytest.approx(82.5)
-    assert agreement(1.3, 1.0, 5) == 0.0 and data_quality(0.01, 3) == pytest.approx(0.8)
+def test_hand_worked_score(tmp_path):
+    # One student whose run is an exact first-order trace, k = 8.0e-4 1/s (written to 6 decimals,
+    # so the fitted k is 8.0e-4 to about 1e-6 relative and its SE far below 2 %).
+    # Rubric: reference 8.8e-4 1/s, tolerance 5 %, default weights data 20, report 50, ref. 30.
+    #   data:      relative SE <= 2 %                                   -> 1
+    #   report:    8.6e-4 vs own 8.0e-4 is 7.5 % off; 1 - (7.5 - 5)/(4 x 5) = 0.875
+    #   reference: own 8.0e-4 vs 8.8e-4 is 9.0909 % off; 1 - 4.0909/20     = 0.79545
+    #   score = (20 x 1 + 50 x 0.875 + 30 x 0.79545) / 100 x 100 = 20 + 43.75 + 23.864 = 87.614,
+    #   reported to one decimal: 87.6
+    t = np.arange(0, 2401, 30.0)
+    a = 0.05 + 1.05 * np.exp(-8e-4 * t)
+    (tmp_path / "run.csv").write_text("time (s),A\n" + "".join(
+        f"{x:g},{y:.6f}\n" for x, y in zip(t, a, strict=True)))
+    (tmp_path / "roster.csv").write_text("student,file,reported\nava,run.csv,8.6e-4\n")
+    (tmp_path / "rubric.toml").write_text('[assignment]\nquantity = "k"\nunit = "1/s"\n'
+                                          'reference = 8.8e-4\ntolerance_pct = 5\n')
+    res = grade_class(tmp_path, read_rubric(tmp_path / "rubric.toml"), plots=False)[0]
+    assert res["score"] == 87.6
+    assert res["parts"] == pytest.approx({"data": 1.0, "report": 0.875, "reference": 0.79545},
+                                         abs=5e-5)
+
+
+def test_agreement_and_data_quality_parts_by_hand():
+    # agreement: 1 within the tolerance, linear to 0 at five times it (grade.py docstring)
+    assert agreement(1.04, 1.0, 5) == 1.0                  # 4 % off, within the tolerance
+    assert agreement(1.15, 1.0, 5) == pytest.approx(0.5)   # 15 %: 1 - 10/20
+    assert agreement(1.30, 1.0, 5) == 0.0                  # 30 %: past 25 %
+    # data quality: 1 at <= 2 % relative SE, 0 at >= 20 %, x 0.8 when readings were masked
+    assert data_quality(0.11, 0) == pytest.approx(0.5)     # 1 - (11 - 2)/18
+    assert data_quality(0.01, 3) == pytest.approx(0.8)     # full marks x 0.8
 
 
 def _make_class(folder: Path, n: int):
@@ -166,14 +186,15 @@ def test_rubric_defaults():
 
 
 def test_km_and_half_life_assignments(tmp_path):
-    # Km from each student's own rates table (published model: Michaelis & Menten); a student
-    # who reports Km in mM while the rubric asks for uM is a factor of 1000 off
-    from rateabs.models import SATURATION
+    # Km from each student's own rates table; a student who reports Km in mM while the rubric
+    # asks for uM is a factor of 1000 off. Rates from the E + S <-> ES -> E + P mechanism
+    # (solve_ivp steady state, tests/kinetics_truth.py), 1 % noise
+    from kinetics_truth import mechanism_rates
 
     f = tmp_path / "km"
     f.mkdir()
     s = np.array([5, 10, 20, 40, 80, 160, 320.0])
-    v = SATURATION["mm"].func(s, 10.0, 40.0) * (1 + np.random.default_rng(2).normal(0, 0.01, 7))
+    v = mechanism_rates(s, 0 * s, V=10.0, Km=40.0) * (1 + np.random.default_rng(2).normal(0, 0.01, 7))
     (f / "t.csv").write_text("substrate_uM,rate_uM_per_min\n" + "".join(
         f"{a:g},{b:.5f}\n" for a, b in zip(s, v, strict=True)))
     (f / "roster.csv").write_text("student,file,reported\nok,t.csv,40.2\nmm,t.csv,0.0402\n")

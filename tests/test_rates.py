@@ -6,7 +6,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from click.testing import CliRunner
-from scipy import stats
+from scipy import optimize, stats
 
 from rateabs.cli import main
 from rateabs.rates import RateSettings, analyse_plate, find_windows, grubbs_outlier, z_factor
@@ -104,13 +104,42 @@ def test_z_prime_hand_worked():
     assert z_factor(pos, neg) == pytest.approx(1 - 3 * 2 / 9)
 
 
-def test_grubbs_critical_values():
-    # published critical values (Grubbs 1969, two-sided 0.05; from memory): n=3 1.1543, n=10 2.2900
-    x = np.array([0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0])
-    assert grubbs_outlier(x) == 9                    # G = 2.846 > 2.290
-    assert grubbs_outlier(np.array([1.0, 1.1, 1.2, 1.3, 1.4])) is None
-    n, t = 10, stats.t.ppf(1 - 0.05 / 20, 8)
-    assert (n - 1) / np.sqrt(n) * np.sqrt(t * t / (n - 2 + t * t)) == pytest.approx(2.290, abs=2e-3)
+# published: Grubbs (1969), Technometrics 11:1, Table 1, upper 2.5 % points of T_n = (x_n - mean)/s
+# (the two-sided test at alpha = 0.05), as reproduced in Harvey, Analytical Chemistry 2.1,
+# Appendix 7 (LibreTexts). Typed from the table, not from any formula.
+GRUBBS_TWO_SIDED_05 = {3: 1.155, 4: 1.481, 5: 1.715, 6: 1.887, 8: 2.126, 9: 2.215, 10: 2.290,
+                       12: 2.412, 15: 2.549}
+# The table gives 3 decimals and its reproductions differ from the exact percentage points by up
+# to 0.001; a margin of 0.003 either side keeps the test clear of that rounding, while a wrong
+# level (one-sided 5 %, or alpha/n for alpha/2n) moves the critical value by 0.1 or more.
+GRUBBS_MARGIN = 0.003
+
+
+def _sample_with_grubbs_statistic(n: int, g: float) -> np.ndarray:
+    """n - 1 evenly spread readings and one high reading placed so that the Grubbs statistic
+    G = max |x - mean| / s (sample SD; Grubbs 1969) equals ``g``."""
+    base = np.linspace(-1.0, 1.0, n - 1)
+
+    def excess(a):
+        x = np.append(base, a)
+        return abs(a - x.mean()) / np.std(x, ddof=1) - g
+
+    return np.append(base, optimize.brentq(excess, 1.0, 1e6, xtol=1e-12))
+
+
+@pytest.mark.parametrize("n,crit", sorted(GRUBBS_TWO_SIDED_05.items()))
+def test_grubbs_outlier_against_published_critical_values(n, crit):
+    below = _sample_with_grubbs_statistic(n, crit - GRUBBS_MARGIN)
+    assert grubbs_outlier(below) is None
+    if crit + GRUBBS_MARGIN < (n - 1) / np.sqrt(n):      # G cannot exceed (n - 1)/sqrt(n)
+        above = _sample_with_grubbs_statistic(n, crit + GRUBBS_MARGIN)
+        assert grubbs_outlier(above) == n - 1
+        assert grubbs_outlier(np.roll(above, 1)) == 0      # wherever the reading sits
+
+
+def test_grubbs_needs_three_readings_and_spread():
+    assert grubbs_outlier(np.array([1.0, 5.0])) is None
+    assert grubbs_outlier(np.array([2.0, 2.0, 2.0, 2.0])) is None
 
 
 def _run(args):
