@@ -14,7 +14,6 @@ from pathlib import Path
 
 from . import __version__
 from .files import write_atomic
-from .fitting import _num, fmt_p, param  # noqa: F401  (the JSON parameter object lives with Param)
 
 
 def _clean(obj):
