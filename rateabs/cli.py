@@ -35,9 +35,12 @@ class RuleType(click.ParamType):
         self.name = rule.describe() or "value"
 
     def convert(self, value, param, ctx):
-        """The checked value; a bad one raises the rule's one-line UsageError."""
+        """The checked value; a bad one raises the rule's one-line UsageError. A quantity is
+        only checked here and kept as typed: the settings object parses it (and keeps its
+        unit where the output follows it)."""
         flag = param.opts[0] if param is not None and param.opts else "value"
-        return self.rule.check(value, flag)
+        checked = self.rule.check(value, flag)
+        return value if isinstance(self.rule, opts.Quantity) else checked
 
     def get_metavar(self, param, ctx=None) -> str:
         """NUMBER, INTEGER, a choice list or TEXT, for --help."""
@@ -66,6 +69,8 @@ class Main(click.Group):
             click.echo(f"rateabs: {where}{exc.format_message()}{hint}", err=True)
             sys.exit(exc.exit_code)
         except RateabsError as exc:            # an option refused while click parsed it
+            if "--debug" in (sys.argv[1:] if args is None else args):
+                raise
             click.echo(f"rateabs: {exc.one_line()}", err=True)
             sys.exit(exc.exit_code)
         except click.exceptions.Abort:
@@ -91,10 +96,10 @@ def _guarded(fn):
                     warnings.simplefilter("ignore")
                 return fn(*args, **kwargs)
         except RateabsError as exc:
-            if debug:
-                raise
             if isinstance(exc, AnalysisError):
                 exc.located(kwargs.get("file") or kwargs.get("folder"))
+            if debug:
+                raise
             click.echo(f"rateabs: {exc.one_line()}", err=True)
             sys.exit(exc.exit_code)
         except KeyboardInterrupt:
