@@ -301,57 +301,57 @@ def _lm_start(prob: _Batch, P: np.ndarray) -> _LMState:
                     np.zeros((B, n, len(prob.free))), np.ones(B, dtype=bool))
 
 
-def _lm_delta(st: _LMState, rows, k: int):
+def _lm_delta(state: _LMState, rows, k: int):
     """The damped Gauss–Newton step of each active dataset (Marquardt's diagonal scaling)."""
-    Jr, rr = st.J[rows], st.r[rows]
+    Jr, rr = state.J[rows], state.r[rows]
     JT = Jr.transpose(0, 2, 1)
     A = JT @ Jr                                   # batched BLAS, faster than einsum
     g = (JT @ rr[:, :, None])[:, :, 0]
     d = np.diagonal(A, axis1=1, axis2=2)
     d = np.maximum(d, 1e-12 * np.max(d, axis=1, keepdims=True) + 1e-300)
-    M = A + (st.lam[rows][:, None] * d)[:, :, None] * np.eye(k)[None]
+    M = A + (state.lam[rows][:, None] * d)[:, :, None] * np.eye(k)[None]
     try:
         return np.linalg.solve(M, g[:, :, None])[:, :, 0]
     except np.linalg.LinAlgError:
         return np.einsum("bij,bj->bi", np.linalg.pinv(M), g)
 
 
-def _lm_iteration(prob: _Batch, st: _LMState, rows, xtol: float, ftol: float) -> None:
+def _lm_iteration(prob: _Batch, state: _LMState, rows, xtol: float, ftol: float) -> None:
     """One Levenberg–Marquardt step for the active datasets: accept or damp, mark convergence."""
     free = prob.free
-    jr = rows[st.need_j[rows]]
+    jr = rows[state.need_j[rows]]
     if jr.size:
-        st.J[jr] = prob.jacobian(st.P, jr)
-        st.need_j[jr] = False
-    Pn = st.P[rows].copy()
-    Pn[:, free] = np.clip(Pn[:, free] + _lm_delta(st, rows, len(free)), prob.lo[free],
+        state.J[jr] = prob.jacobian(state.P, jr)
+        state.need_j[jr] = False
+    Pn = state.P[rows].copy()
+    Pn[:, free] = np.clip(Pn[:, free] + _lm_delta(state, rows, len(free)), prob.lo[free],
                           prob.hi[free])
     rn = prob.resid(Pn, rows)
     Sn = np.sum(rn * rn, axis=1)
     Sn[~np.isfinite(Sn)] = np.inf
-    better = Sn < st.S[rows]
+    better = Sn < state.S[rows]
     acc, rej = rows[better], rows[~better]
-    step = np.max(np.abs(Pn[better][:, free] - st.P[acc][:, free])
-                  / np.maximum(np.abs(st.P[acc][:, free]), 1e-12 * prob.scale[acc][:, free]),
+    step = np.max(np.abs(Pn[better][:, free] - state.P[acc][:, free])
+                  / np.maximum(np.abs(state.P[acc][:, free]), 1e-12 * prob.scale[acc][:, free]),
                   axis=1) if acc.size else np.array([])
-    gain = (st.S[acc] - Sn[better]) / np.maximum(st.S[acc], 1e-300)
-    st.P[acc], st.r[acc], st.S[acc] = Pn[better], rn[better], Sn[better]
-    st.lam[acc] = np.maximum(st.lam[acc] / 10, 1e-12)
-    st.need_j[acc] = True
-    st.lam[rej] *= 10
-    done = acc[(gain <= ftol) | (step <= xtol) | (st.S[acc] == 0)]
-    stuck = rej[st.lam[rej] > 1e12]           # no downhill step left: at a minimum
+    gain = (state.S[acc] - Sn[better]) / np.maximum(state.S[acc], 1e-300)
+    state.P[acc], state.r[acc], state.S[acc] = Pn[better], rn[better], Sn[better]
+    state.lam[acc] = np.maximum(state.lam[acc] / 10, 1e-12)
+    state.need_j[acc] = True
+    state.lam[rej] *= 10
+    done = acc[(gain <= ftol) | (step <= xtol) | (state.S[acc] == 0)]
+    stuck = rej[state.lam[rej] > 1e12]           # no downhill step left: at a minimum
     for idx in (done, stuck):
-        st.converged[idx] = True
-        st.active[idx] = False
+        state.converged[idx] = True
+        state.active[idx] = False
 
 
-def _batch_cov(prob: _Batch, st: _LMState) -> np.ndarray:
+def _batch_cov(prob: _Batch, state: _LMState) -> np.ndarray:
     """Covariance of the free parameters, (J'J)^-1 RSS/dof per dataset."""
-    Jf = prob.jacobian(st.P, np.arange(st.P.shape[0]))
+    Jf = prob.jacobian(state.P, np.arange(state.P.shape[0]))
     A = Jf.transpose(0, 2, 1) @ Jf
     dof = np.maximum(np.sum(prob.w > 0, axis=1) - len(prob.free), 1)
-    return np.linalg.pinv(A) * (st.S / dof)[:, None, None]
+    return np.linalg.pinv(A) * (state.S / dof)[:, None, None]
 
 
 def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
@@ -379,15 +379,15 @@ def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
                   np.full(p, -np.inf) if lower is None else np.asarray(lower, dtype=float),
                   np.full(p, np.inf) if upper is None else np.asarray(upper, dtype=float),
                   np.maximum(np.abs(P), 1e-12), jac)
-    st = _lm_start(prob, P)
+    state = _lm_start(prob, P)
     it = 0
     for it in range(1, max_iter + 1):  # noqa: B007 - it is reported
-        rows = np.nonzero(st.active)[0]
+        rows = np.nonzero(state.active)[0]
         if rows.size == 0:
             break
-        _lm_iteration(prob, st, rows, xtol, ftol)
-    cov = _batch_cov(prob, st) if want_cov else None
-    return BatchResult(st.P, st.S, st.converged & np.isfinite(st.S), it, cov)
+        _lm_iteration(prob, state, rows, xtol, ftol)
+    cov = _batch_cov(prob, state) if want_cov else None
+    return BatchResult(state.P, state.S, state.converged & np.isfinite(state.S), it, cov)
 
 
 def _take_rows(x, rows, B):

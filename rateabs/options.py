@@ -24,7 +24,7 @@ rateabs.errors.UsageError: --direction 'Up' is not one of auto, up, down; give o
 from __future__ import annotations
 
 import math
-from dataclasses import MISSING, dataclass, field, fields, replace
+from dataclasses import MISSING, dataclass, field, fields
 from pathlib import Path
 
 from .errors import RateabsError, UnitError, UsageError
@@ -1081,9 +1081,3 @@ class GradeOptions(Checked):
                       "document.", "table")
     out: str | None = option("--out", Text("folder", "grades"), "Folder for the gradebook, "
                              "feedback pages and class summary.")
-
-
-def with_output(opts, **changes):
-    """A copy of a command's settings with some output options changed (the demo's)."""
-    return replace(opts, output=replace(opts.output, **changes))
-

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .fitting import fmt_pm
+from .fitting import fmt_interval, fmt_pm
 
 PALETTE = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442",
            "#000000"]
@@ -131,7 +131,7 @@ def saturation_fit(analysis, path, title: str = "rate vs substrate"):
         ax.set_ylabel(f"rate ({yu})")
         ax.set_title(f"{title}: {best.model} fit (chosen)")
         ax.legend(loc="center right")
-        txt = "\n".join(f"{p.name} = {p.value:.4g} ± {p.se:.2g} {p.unit}".rstrip()
+        txt = "\n".join(f"{p.name} = {fmt_pm(p.value, p.se, unit=p.unit)}"
                         for p in best.params.values())
         ax.text(0.98, 0.04, txt, transform=ax.transAxes, ha="right", va="bottom", fontsize=8,
                 bbox={"boxstyle": "round", "fc": "white", "ec": GRID})
@@ -333,9 +333,9 @@ def ratelaw_plots(analysis, out):
             ax.set_ylabel("absorbance (AU)")
             k = r.params["k"]
             hl = law.half_life
-            txt = f"k = {k.value:.4g} ± {k.se:.2g} {k.unit}"
+            txt = f"k = {fmt_pm(k.value, k.se, unit=k.unit)}"
             if hl is not None:
-                txt += f"\nt½ = {hl.value:.4g} s [{hl.ci_low:.4g}, {hl.ci_high:.4g}]"
+                txt += f"\nt½ = {hl.value:.4g} s {fmt_interval(hl.ci_low, hl.ci_high)}"
             ax.text(0.98, 0.95, txt, transform=ax.transAxes, ha="right", va="top", fontsize=8,
                     bbox={"boxstyle": "round", "fc": "white", "ec": GRID})
             ax.set_title(f"{name}: integrated rate law")
