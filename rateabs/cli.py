@@ -1,9 +1,9 @@
 """Command-line interface (thin: parse options into a settings object, call a view).
 
 Each command's options are the fields of its settings class in :mod:`rateabs.options`: names,
-rules (type, range, choices, unit), defaults and help are read from there, and every value is
-checked by the same rule that checks the settings object. A bad option gives one line on stderr
-naming the option and exit code 2.
+rules (type, range, choices, unit; :mod:`rateabs.rules`), defaults and help are read from there,
+and every value is checked by the same rule that checks the settings object. A bad option gives
+one line on stderr naming the option and exit code 2.
 
 Heavy libraries (numpy, pandas, scipy, lmfit, matplotlib) are imported inside the commands so
 that ``rateabs --help`` stays fast.
@@ -18,7 +18,7 @@ from dataclasses import MISSING
 
 import click
 
-from . import __version__
+from . import __version__, rules
 from . import options as opts
 from .errors import AnalysisError, RateabsError
 
@@ -27,10 +27,10 @@ CAUTION = ("Results are for research and teaching, not for clinical diagnosis; f
 
 
 class RuleType(click.ParamType):
-    """A click type that checks a value by its option's rule (:mod:`rateabs.options`): the same
+    """A click type that checks a value by its option's rule (:mod:`rateabs.rules`): the same
     range, finiteness and integer checks whether the value is typed or passed from Python."""
 
-    def __init__(self, rule: opts.Rule) -> None:
+    def __init__(self, rule: rules.Rule) -> None:
         self.rule = rule
         self.name = rule.describe() or "value"
 
@@ -40,16 +40,16 @@ class RuleType(click.ParamType):
         unit where the output follows it)."""
         flag = param.opts[0] if param is not None and param.opts else "value"
         checked = self.rule.check(value, flag)
-        return value if isinstance(self.rule, opts.Quantity) else checked
+        return value if isinstance(self.rule, rules.Quantity) else checked
 
     def get_metavar(self, param, ctx=None) -> str:
         """NUMBER, INTEGER, a choice list or TEXT, for --help."""
         rule = self.rule
-        if isinstance(rule, opts.OneOf):
+        if isinstance(rule, rules.OneOf):
             return "[" + "|".join(map(str, rule.choices)) + "]"
-        if isinstance(rule, opts.Number):
+        if isinstance(rule, rules.Number):
             return "INTEGER" if rule.integer else "NUMBER"
-        if isinstance(rule, opts.Quantity):
+        if isinstance(rule, rules.Quantity):
             return "QUANTITY"
         return "TEXT"
 
@@ -126,16 +126,16 @@ def _click_param(f):
     flags = [meta["flag"], f.name]
     default = f.default_factory() if f.default_factory is not MISSING else f.default
     kw = {"help": meta["help"], "hidden": meta.get("hidden", False)}
-    if isinstance(rule, (opts.Number, opts.Quantity)):
+    if isinstance(rule, (rules.Number, rules.Quantity)):
         kw["help"] += f" Takes {rule.describe()}."
-    if isinstance(rule, opts.Flag):
+    if isinstance(rule, rules.Flag):
         return click.Option(flags, is_flag=True, default=default,
                             show_default=True, **kw)
     if default is MISSING:
         kw["required"] = True
     elif default is not None and default != () and default != {}:
         kw.update(default=default, show_default=True)
-    if isinstance(rule, (opts.Many, opts.Pairs)):
+    if isinstance(rule, (rules.Many, rules.Pairs)):
         item = rule.item
         return click.Option(flags, multiple=True, type=RuleType(item), **kw)
     return click.Option(flags, type=RuleType(rule), **kw)
@@ -145,7 +145,7 @@ def _with_options(settings_cls):
     """Add the settings class's fields to a command as click parameters."""
 
     def deco(fn):
-        fn.__click_params__ = [_click_param(f) for f in reversed(opts.flat_fields(settings_cls))]
+        fn.__click_params__ = [_click_param(f) for f in reversed(rules.flat_fields(settings_cls))]
         return fn
 
     return deco

@@ -28,7 +28,8 @@ from scipy import stats
 
 from .errors import FitError, UsageError
 from .models import Model, unit_of
-from .options import CI_METHODS, LEVEL, RESAMPLES, WEIGHTINGS, OneOf
+from .options import CI_METHODS, LEVEL, RESAMPLES, WEIGHTINGS
+from .rules import OneOf
 
 #: Relative step of central differences: the cube root of the machine epsilon balances
 #: truncation and rounding error (Nocedal & Wright, Numerical Optimization, 2nd ed. 2006,

@@ -14,6 +14,7 @@ import pytest
 from click.testing import CliRunner
 
 from rateabs import options as opts
+from rateabs import rules
 from rateabs.cli import main
 from rateabs.errors import UsageError
 
@@ -183,12 +184,12 @@ def test_quantities_are_parsed_once_into_base_units():
 
 
 def test_the_numeric_rule_refuses_what_is_not_a_finite_number_in_range():
-    rule = opts.Number(0, 1, lo_open=True)
+    rule = rules.Number(0, 1, lo_open=True)
     for bad in ("nan", "inf", "-inf", "abc", "", True, None, "1.5", 0):
         with pytest.raises(UsageError):
             rule.check(bad, "--x")
     assert rule.check("1e-3", "--x") == 1e-3 and rule.check(1, "--x") == 1.0
-    whole = opts.Number(3, math.inf, integer=True)
+    whole = rules.Number(3, math.inf, integer=True)
     assert whole.check("7", "--n") == 7 and isinstance(whole.check(7.0, "--n"), int)
     with pytest.raises(UsageError, match="not a whole number"):
         whole.check("7.5", "--n")
@@ -519,7 +520,7 @@ REFUSED = {"CompletionOptions": {"--c0", "--epsilon", "--epsilon-product", "--ch
                                  opts.TemperatureOptions, opts.ProgressOptions,
                                  opts.GradeOptions], ids=lambda c: c.__name__)
 def test_every_option_is_shown_used_or_refused(cls):
-    flags = {f.metadata["flag"] for f in opts.flat_fields(cls) if "argument" not in f.metadata}
+    flags = {f.metadata["flag"] for f in rules.flat_fields(cls) if "argument" not in f.metadata}
     covered = USED["shared"] | USED.get(cls.__name__, set()) | REFUSED.get(cls.__name__, set())
     assert flags <= covered, flags - covered
     for flag in REFUSED.get(cls.__name__, ()):
