@@ -113,7 +113,7 @@ def rows_to_csv(rows: Sequence[dict], columns: Sequence[str]) -> str:
             if isinstance(v, (list, tuple)):
                 v = ";".join(str(x) for x in v)
             elif isinstance(v, float):
-                v = "" if not math.isfinite(v) else repr(v)
+                v = "" if not math.isfinite(v) else repr(float(v))
             elif v is None:
                 v = ""
             out.append(v)

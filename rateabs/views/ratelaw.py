@@ -28,7 +28,7 @@ def _result(name, law, gg, ts) -> dict:
     d = law.to_dict()
     d["status"] = "ok"
     if "temperature_K" in ts.meta.columns and name in ts.meta.index:
-        d["temperature_K"] = ts.meta.loc[name, "temperature_K"]
+        d["temperature_K"] = float(ts.meta.loc[name, "temperature_K"])
     if gg is not None:
         d["guggenheim"] = {"k": gg["k"].to_dict(), "half_life_s": gg["half_life"].to_dict(),
                            "delta_s": gg["delta_s"], "n_pairs": gg["n_pairs"]}
