@@ -22,6 +22,7 @@ from . import __version__, rules
 from . import options as opts
 from .errors import AnalysisError, RateabsError
 
+NO_ARGS = getattr(click.exceptions, "NoArgsIsHelpError", ())
 CAUTION = ("Results are for research and teaching, not for clinical diagnosis; follow local "
            "rules and licensed practice for hazardous work.")
 
@@ -63,10 +64,13 @@ class Main(click.Group):
             return super().main(args, prog_name, complete_var, standalone_mode, **extra)
         try:
             rv = super().main(args, prog_name, complete_var, standalone_mode=False, **extra)
+        except NO_ARGS as exc:                  # bare `rateabs`: click's help, as usual
+            exc.show()
+            sys.exit(exc.exit_code)
         except click.ClickException as exc:
-            where = f"{exc.ctx.command_path}: " if getattr(exc, "ctx", None) else ""
-            hint = f" (see {exc.ctx.command_path} --help)" if getattr(exc, "ctx", None) else ""
-            click.echo(f"rateabs: {where}{exc.format_message()}{hint}", err=True)
+            ctx = getattr(exc, "ctx", None)
+            hint = f" (see {ctx.command_path} --help)" if ctx is not None else ""
+            click.echo(f"rateabs: {exc.format_message().rstrip('.')}{hint}", err=True)
             sys.exit(exc.exit_code)
         except RateabsError as exc:            # an option refused while click parsed it
             if "--debug" in (sys.argv[1:] if args is None else args):

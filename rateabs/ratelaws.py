@@ -23,10 +23,10 @@ from scipy import stats
 from .errors import AnalysisError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, fd_step, fit
 from .models import LINE, RATE_LAWS, Model, guess_decay, mixed2
+from .options import ORDERS
 from .rates import noise_sigma
 from .traces import Grid
 
-ORDERS = ("0", "1", "2", "auto", "mixed")
 LN2 = math.log(2.0)
 
 

@@ -25,10 +25,10 @@ from .errors import FitError, InputError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, fit
 from .io import number_column, pick_column
 from .models import INHIBITION_MODELS, NESTED, SATURATION, SUBSTRATE_MODELS, direct_linear_plot
+from .options import MODELS
 from .units import TIME_UNITS, concentration_factor, unit_from_header
 
-MODEL_CHOICES = ("mm", "hill", "substrate-inhibition", "competitive", "uncompetitive",
-                 "noncompetitive", "mixed", "ic50", "auto")
+MODEL_CHOICES = MODELS          # the --model choices (rateabs.options)
 
 _CONC = re.compile(r"^(s|\[s\]|s0|substrate|conc|concentration|x)([\s_(\[]|$)", re.I)
 _RATE = re.compile(r"^(v|v0|vi|rate|velocity|activity|initial[\s_]rate|y)([\s_(\[]|$)", re.I)
