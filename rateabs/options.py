@@ -65,7 +65,7 @@ class Chromophore(Rule):
 
     def describe(self) -> str:
         """What the option takes."""
-        return "a chromophore: NADH, NADPH, TNB or p-nitrophenolate"
+        return "a chromophore of the table in rateabs.photometry"
 
     def check(self, value, option: str) -> str:
         """The chromophore's table name."""
@@ -77,12 +77,11 @@ class Chromophore(Rule):
             raise UsageError(f"{option}: {exc.problem}", exc.fix) from None
 
 
-
 # --------------------------------------------------------------------------- shared rules
 
 LEVEL = Number(0, 1, lo_open=True, hi_open=True, example="0.95")
-POSITIVE_CONC = Number(0, math.inf, lo_open=True)
-EPSILON = Quantity("molar absorptivity", "M^-1 cm^-1", POSITIVE_CONC,
+POSITIVE = Number(0, math.inf, lo_open=True)
+EPSILON = Quantity("molar absorptivity", "M^-1 cm^-1", POSITIVE,
                    "'6.22 mM^-1 cm^-1'")
 PATHLENGTH = Quantity("pathlength", "cm", Number(0, 100, lo_open=True), "'1 cm'")
 LINEAR_LIMIT = Number(0, 10, lo_open=True, unit="absorbance, AU", example="2")
@@ -242,31 +241,52 @@ def _dilution():
                   "it per well).", 1.0)
 
 
+def _epsilon_se(default=None):
+    return option("--epsilon-se", Quantity("molar absorptivity", "M^-1 cm^-1", Number(0, math.inf),
+                                           "'100 M^-1 cm^-1'"),
+                  "Standard error of epsilon (same unit; with --epsilon or --chromophore).",
+                  default)
+
+
+def _total_volume():
+    return option("--total-volume", Quantity("volume", "uL", POSITIVE, "'200 uL'"),
+                  "Reaction volume, e.g. '200 uL'.")
+
+
+def _sample_volume():
+    return option("--sample-volume", Quantity("volume", "uL", POSITIVE, "'20 uL'"),
+                  "Volume of enzyme sample added, e.g. '20 uL'.")
+
+
+def _protein():
+    return option("--protein", Quantity("mass concentration", "mg/mL", POSITIVE, "'0.8 mg/mL'"),
+                  "Protein concentration of the sample, e.g. '0.8 mg/mL' (for U/mg; the plate "
+                  "map may give it per well).")
+
+
+def _noisy_limit():
+    return option("--noisy-limit", NOISY_LIMIT, "Relative SE of a slope above which it is "
+                  "flagged noisy.", 0.10)
+
+
 @dataclass(frozen=True)
 class RateSettings(Checked):
     """What the ``rates`` analysis uses, in base units (built from :class:`RatesOptions`, or
     directly from Python). Every field is checked as the matching option is."""
 
     epsilon: float | None = _epsilon()
-    epsilon_se: float = option("--epsilon-se", Quantity("molar absorptivity", "M^-1 cm^-1",
-                                                        Number(0, math.inf), "'100 M^-1 cm^-1'"),
-                               "Standard error of epsilon (same unit).", 0.0)
+    epsilon_se: float = _epsilon_se(0.0)
     pathlength_cm: float = _pathlength(default=1.0)
-    total_volume_L: float | None = option("--total-volume", Quantity(
-        "volume", "uL", POSITIVE_CONC, "'200 uL'"), "Reaction volume, e.g. '200 uL'.")
-    sample_volume_L: float | None = option("--sample-volume", Quantity(
-        "volume", "uL", POSITIVE_CONC, "'20 uL'"), "Volume of enzyme sample added.")
-    protein_mg_per_mL: float | None = option("--protein", Quantity(
-        "mass concentration", "mg/mL", POSITIVE_CONC, "'0.8 mg/mL'"),
-        "Protein concentration of the sample.")
+    total_volume_L: float | None = _total_volume()
+    sample_volume_L: float | None = _sample_volume()
+    protein_mg_per_mL: float | None = _protein()
     dilution: float = _dilution()
     window: object = _window()
     min_points: int | None = _min_points()
     blank: str = _blank()
     direction: str = _direction()
     linear_limit: float = _linear_limit()
-    noisy_rel_se: float = option("--noisy-limit", NOISY_LIMIT, "Relative SE of a slope above "
-                                 "which it is flagged noisy.", 0.10)
+    noisy_rel_se: float = _noisy_limit()
     katal: bool = _katal()
     slope_from: str = _slope_from()
     curve: bool = _curve()
@@ -293,31 +313,24 @@ class RatesOptions(Checked):
     layout_file: str | None = option("--layout", Text("file name", "map.csv"), "Plate map CSV "
                                      "(roles, concentrations, dilutions, groups).")
     epsilon: float | None = _epsilon()
-    epsilon_se: float | None = option("--epsilon-se", Quantity(
-        "molar absorptivity", "M^-1 cm^-1", Number(0, math.inf), "'100 M^-1 cm^-1'"),
-        "Standard error of epsilon (same unit; with --epsilon or --chromophore).")
+    epsilon_se: float | None = _epsilon_se()
     chromophore: str | None = _chromophore()
     pathlength: float | None = _pathlength()
     well_volume: float | None = option("--well-volume", Quantity(
-        "volume", "uL", POSITIVE_CONC, "'200 uL'"), "Liquid volume per well, e.g. '200 uL': "
+        "volume", "uL", POSITIVE, "'200 uL'"), "Liquid volume per well, e.g. '200 uL': "
         "pathlength from the plate's well geometry.")
     plate: int | None = option("--plate", OneOf((96, 384), "384"), "Plate format for "
                                "--well-volume (96 when not given).")
-    total_volume: float | None = option("--total-volume", Quantity(
-        "volume", "uL", POSITIVE_CONC, "'200 uL'"), "Reaction volume, e.g. '200 uL'.")
-    sample_volume: float | None = option("--sample-volume", Quantity(
-        "volume", "uL", POSITIVE_CONC, "'20 uL'"), "Volume of enzyme sample added, e.g. '20 uL'.")
-    protein: float | None = option("--protein", Quantity(
-        "mass concentration", "mg/mL", POSITIVE_CONC, "'0.8 mg/mL'"), "Protein concentration of "
-        "the sample, e.g. '0.8 mg/mL' (for U/mg; the plate map may give it per well).")
+    total_volume: float | None = _total_volume()
+    sample_volume: float | None = _sample_volume()
+    protein: float | None = _protein()
     dilution: float = _dilution()
     window: object = _window()
     min_points: int | None = _min_points()
     blank: str = _blank()
     direction: str = _direction()
     linear_limit: float = _linear_limit()
-    noisy_limit: float = option("--noisy-limit", NOISY_LIMIT, "Relative SE of a slope above "
-                                "which it is flagged noisy.", 0.10)
+    noisy_limit: float = _noisy_limit()
     katal: bool = _katal()
     calibrate: str = _calibrate()
     curve: bool = _curve()
@@ -418,7 +431,7 @@ class SaturationOptions(Checked):
     weighting: str = option("--weighting", OneOf(WEIGHTINGS, "relative"), "Residual weights: "
                             "none, 1/|v| (relative) or 1/SD (sd, with --sd).", "none")
     fix: dict = _fix()
-    enzyme: float | None = option("--enzyme", Quantity("concentration", "nM", POSITIVE_CONC,
+    enzyme: float | None = option("--enzyme", Quantity("concentration", "nM", POSITIVE,
                                                        "'1 nM'"),
                                   "Enzyme concentration for kcat, e.g. '1 nM' (a bare number is "
                                   "nM).")
@@ -482,7 +495,7 @@ ORDERS = ("0", "1", "2", "auto", "mixed")
 
 
 def _conc(flag: str, help: str, example: str = "'50 uM'"):
-    return option(flag, Quantity("concentration", "uM", POSITIVE_CONC, example), help)
+    return option(flag, Quantity("concentration", "uM", POSITIVE, example), help)
 
 
 @dataclass(frozen=True)
