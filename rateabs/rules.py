@@ -107,7 +107,9 @@ class Number(Rule):
         try:
             x = float(value.strip() if isinstance(value, str) else value)
         except (TypeError, ValueError):
-            raise self._bad(option, value, "is not a number") from None
+            comma = isinstance(value, str) and "," in value
+            raise self._bad(option, value, "is not a number" + (
+                " (write the decimal mark as a point)" if comma else "")) from None
         if not math.isfinite(x):
             raise self._bad(option, value, "is not a finite number")
         return x
@@ -166,11 +168,14 @@ class OneOf(Rule):
 
     def check(self, value, option: str):
         """The choice; ``"96"`` stands for 96 and 1 for ``"1"``, but ``Up`` is not ``up``."""
+        whole = isinstance(value, int) and not isinstance(value, bool)
         for c in self.choices:
-            same_text = isinstance(value, (str, int)) and not isinstance(value, bool) and (
-                str(value).strip() == str(c)) and (isinstance(value, int) or not isinstance(c, str))
-            if value == c or same_text:
+            if value == c and not isinstance(value, bool):
                 return c
+            if isinstance(c, int) and isinstance(value, str) and value.strip() == str(c):
+                return c                                    # "96" typed for 96
+            if isinstance(c, str) and whole and str(value) == c:
+                return c                                    # 1 passed for "1"
         raise UsageError(f"{option} {_show(value)} is not {self.describe()}",
                          f"give one of them as written, e.g. {option} {self.example or self.choices[0]}")
 
