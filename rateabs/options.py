@@ -454,7 +454,7 @@ class SaturationOptions(Checked):
                                    f"bootstrap; default {DEFAULT_RESAMPLES}).")
     resample: str | None = option("--resample", OneOf(("residual", "case"), "case"),
                                   "Bootstrap scheme (with --ci bootstrap; default residual).")
-    seed: int | None = option("--seed", Number(0, 2**63 - 1, integer=True, example="1"),
+    seed: int | None = option("--seed", Number(0, 2**32 - 1, integer=True, example="1"),
                               "Bootstrap seed (with --ci bootstrap; default 0).")
     select: tuple = option("--select", Many(Pair(Text("value", "KbDH1"), "sample=KbDH1")),
                            "Use only rows whose COL equals VALUE (repeatable), e.g. "
