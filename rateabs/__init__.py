@@ -11,6 +11,12 @@ The public API is imported lazily so that ``rateabs --help`` stays fast:
 >>> import rateabs
 >>> ts = rateabs.read_traces(rateabs.sample_path("plate_kbdh_340nm.csv"))  # doctest: +SKIP
 >>> plate = rateabs.analyse_plate(ts, rateabs.read_layout(...))            # doctest: +SKIP
+
+Each command's settings are one typed object (``rateabs.RatesOptions`` and so on, see
+:mod:`rateabs.options`) that ``rateabs.views.run_rates`` and its siblings take:
+
+>>> from rateabs import views                                               # doctest: +SKIP
+>>> views.compute_rates(rateabs.RatesOptions("plate.csv", chromophore="NADH"))  # doctest: +SKIP
 """
 
 __version__ = "0.1.0"
@@ -33,6 +39,14 @@ _API = {
     "fit_trace": "rateabs.ratelaws",
     "assess_completion": "rateabs.completion",
     "grade_class": "rateabs.grade",
+    "InspectOptions": "rateabs.options",
+    "RatesOptions": "rateabs.options",
+    "SaturationOptions": "rateabs.options",
+    "RatelawOptions": "rateabs.options",
+    "CompletionOptions": "rateabs.options",
+    "TemperatureOptions": "rateabs.options",
+    "ProgressOptions": "rateabs.options",
+    "GradeOptions": "rateabs.options",
 }
 _RENAMED = {"assess_completion": "assess"}
 

@@ -14,23 +14,103 @@ import time
 from pathlib import Path
 
 from .files import write_atomic
+from .fitting import fmt_pm
 from .io import sample_path
 from .report import esc, notes, page, table
+
+
+def _steps(run, s, out: Path) -> dict:
+    """Every demo step but the class: key -> the step's view."""
+    from . import options as opts
+    from . import views
+
+    return {
+        "inspect": run("1_inspect", "What the reader finds in a messy cuvette export", "everyone",
+                       views.run_inspect, opts.InspectOptions,
+                       {"file": s("cuvettes_kbap_405nm_messy.csv")}),
+        "plate": run("2_plate_rates", "KbDH1 plate: initial rates, activity and QC",
+                     "enzyme assay scientist", views.run_rates, opts.RatesOptions,
+                     {"file": s("plate_kbdh_340nm.csv"), "layout_file": s("plate_kbdh_map.csv"),
+                      "chromophore": "NADH", "well_volume": "200 uL", "plate": 96,
+                      "total_volume": "200 uL", "sample_volume": "20 uL", "katal": True,
+                      # the low-substrate wells use over 10 % of their substrate within the
+                      # read (flag over-10pct): the whole-curve initial slope is the better one
+                      "slope_from": "curve"}),
+        "sat": run("3_inhibition", "KB-17 inhibition mode from the plate's rates",
+                   "enzyme assay scientist", views.run_saturation, opts.SaturationOptions,
+                   {"file": str(out / "2_plate_rates" / "rates.csv"), "select": ["sample=KbDH1"],
+                    "enzyme": "1 nM", "model": "auto"}),
+        "prog": run("4_progress", "KbAP progress curves: integrated Michaelis-Menten and "
+                    "Selwyn's test", "enzyme assay scientist", views.run_progress,
+                    opts.ProgressOptions,
+                    {"file": s("progress_kbap_405nm.csv"), "s0_column": "S0 (uM)",
+                     "chromophore": "pnp", "selwyn": "enzyme (nM)"}),
+        "unst": run("5_progress_unstable", "The same test on an enzyme that decays during the "
+                    "assay", "enzyme assay scientist", views.run_progress, opts.ProgressOptions,
+                    {"file": s("progress_kbap_unstable.csv"), "s0_column": "S0 (uM)",
+                     "chromophore": "pnp", "selwyn": "enzyme (nM)"}),
+        "law": run("6_process_ratelaw", "Pilot reactor R-2: order and rate constant",
+                   "process chemist", views.run_ratelaw, opts.RatelawOptions,
+                   {"file": s("process_kestrel_red_probe.csv"), "order": "auto"}),
+        "comp": run("7_process_completion", "Pilot reactor R-2: time to 99 % conversion",
+                    "process chemist", views.run_completion, opts.CompletionOptions,
+                    {"file": s("process_kestrel_red_probe.csv"), "target": 99.0, "order": "1"}),
+        "temp": run("8_temperature", "Kestrel Red hydrolysis: Arrhenius and Eyring",
+                    "process chemist", views.run_temperature, opts.TemperatureOptions,
+                    {"file": s("temperature_kestrel_red.csv"), "at": ["60 C"]}),
+    }
+
+
+def _key_numbers(v: dict, gview) -> list[str]:
+    """The headline figure of every step, for the terminal and the index page."""
+    t = v["plate"].analysis.table
+    lysate = t[t["sample"].astype(str).str.startswith("lysate")]
+    zp = v["plate"].analysis.zprime
+    lines = [f"  plate: {len(t)} wells, {int(sum(bool(f) for f in t['flags']))} flagged, "
+             f"Z' = {zp['value']:.2f}; lysate activities "
+             + ", ".join(f"{g}: {d['activity_U_per_mL'].mean():.3g} U/mL"
+                         for g, d in lysate.groupby("sample"))]
+    sat = v["sat"].analysis
+    p = sat.best.params
+    lines.append(f"  inhibition: chosen {sat.chosen}; Km = {fmt_pm(p['Km'].value, p['Km'].se, 3)}"
+                 f" uM, Ki = {fmt_pm(p['Ki'].value, p['Ki'].se, 3)} uM"
+                 if "Ki" in p else f"  saturation: chosen {sat.chosen}")
+    pp = v["prog"].analysis.params
+    lines.append(f"  progress curves: Km = {fmt_pm(pp['Km'].value, pp['Km'].se, 3, 'uM')}, "
+                 f"Vmax = {fmt_pm(pp['Vmax'].value, pp['Vmax'].se, 3, pp['Vmax'].unit)}; "
+                 f"Selwyn: stable = {v['prog'].analysis.selwyn['enzyme_stable']}, decaying set: "
+                 f"stable = {v['unst'].analysis.selwyn['enzyme_stable']}")
+    lw = next(iter(v["law"].analysis["laws"].values()))
+    k = lw.fit.params["k"]
+    lines.append(f"  process run: order {lw.order}, k = {fmt_pm(k.value, k.se, unit='1/s')}, "
+                 f"half-life {lw.half_life.value / 60:.1f} min")
+    c = next(iter(v["comp"].analysis["done"].values()))
+    lines.append(f"  completion: {100 * c.conversion.value:.1f} % now; 99 % at "
+                 f"{c.t_target.value / 60:.1f} min [{c.t_target.ci_low / 60:.1f}, "
+                 f"{c.t_target.ci_high / 60:.1f}]; "
+                 f"{'complete' if c.complete else 'not yet complete'}")
+    ea = v["temp"].analysis.params["Ea"]
+    lines.append(f"  temperature: Ea = {ea.value:.1f} [{ea.ci_low:.1f}, {ea.ci_high:.1f}] kJ/mol")
+    scores = sorted(r["score"] for r in gview.analysis)
+    lines.append(f"  class: {len(scores)} students graded, median score "
+                 f"{scores[len(scores) // 2]:.0f}")
+    return lines
 
 
 def run_demo(out: str | Path, echo=print) -> str:
     """Run every demo step into ``out``; returns a short summary for the terminal."""
     from . import views
+    from .options import GradeOptions
 
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
     t0 = time.perf_counter()
     steps = []
 
-    def step(key, title, who, fn, o):
+    def run(key, title, who, fn, settings_cls, values):
         folder = out / key
-        o = dict(o, fmt="table", out=str(folder), report=str(folder / "report.html"),
-                 plots=True)
+        o = settings_cls.build(**values, fmt="table", out=str(folder),
+                               report=str(folder / "report.html"), plots=True)
         view = fn(o, views.write_only)
         steps.append({"key": key, "title": title, "who": who, "view": view,
                       "page": f"{key}/report.html"})
@@ -41,78 +121,16 @@ def run_demo(out: str | Path, echo=print) -> str:
         return str(sample_path(name))
 
     echo(f"rateabs demo: writing into {out}/")
-    step("1_inspect", "What the reader finds in a messy cuvette export", "everyone",
-         views.run_inspect, {"file": s("cuvettes_kbap_405nm_messy.csv")})
-    plate = step("2_plate_rates", "KbDH1 plate: initial rates, activity and QC",
-                 "enzyme assay scientist", views.run_rates,
-                 {"file": s("plate_kbdh_340nm.csv"), "layout_file": s("plate_kbdh_map.csv"),
-                  "chromophore": "NADH", "well_volume": "200 uL", "plate": 96,
-                  "total_volume": "200 uL", "sample_volume": "20 uL", "katal": True,
-                  # the low-substrate wells use over 10 % of their substrate within the read
-                  # (flag over-10pct): the whole-curve initial slope is the better estimate
-                  "slope_from": "curve"})
-    sat = step("3_inhibition", "KB-17 inhibition mode from the plate's rates",
-               "enzyme assay scientist", views.run_saturation,
-               {"file": str(out / "2_plate_rates" / "rates.csv"), "select": ["sample=KbDH1"],
-                "enzyme": "1 nM", "model": "auto"})
-    prog = step("4_progress", "KbAP progress curves: integrated Michaelis-Menten and Selwyn's test",
-                "enzyme assay scientist", views.run_progress,
-                {"file": s("progress_kbap_405nm.csv"), "s0_column": "S0 (uM)",
-                 "chromophore": "pnp", "selwyn": "enzyme (nM)"})
-    unst = step("5_progress_unstable", "The same test on an enzyme that decays during the assay",
-                "enzyme assay scientist", views.run_progress,
-                {"file": s("progress_kbap_unstable.csv"), "s0_column": "S0 (uM)",
-                 "chromophore": "pnp", "selwyn": "enzyme (nM)"})
-    law = step("6_process_ratelaw", "Pilot reactor R-2: order and rate constant",
-               "process chemist", views.run_ratelaw,
-               {"file": s("process_kestrel_red_probe.csv"), "order": "auto"})
-    comp = step("7_process_completion", "Pilot reactor R-2: time to 99 % conversion",
-                "process chemist", views.run_completion,
-                {"file": s("process_kestrel_red_probe.csv"), "target": 99.0, "order": "1"})
-    temp = step("8_temperature", "Kestrel Red hydrolysis: Arrhenius and Eyring",
-                "process chemist", views.run_temperature,
-                {"file": s("temperature_kestrel_red.csv"), "at": ["60 C"]})
+    v = _steps(run, s, out)
     cls = sample_path("class_kestrel_red")
-    gview = views.run_grade({"folder": str(cls), "rubric": str(cls / "rubric.toml"),
-                             "fmt": "table", "out": str(out / "9_class"), "jobs": None},
-                            views.write_only)
+    gview = views.run_grade(GradeOptions(str(cls), str(cls / "rubric.toml"),
+                                         out=str(out / "9_class")), views.write_only)
     steps.append({"key": "9_class", "title": "Teaching lab: the class's Kestrel Red runs graded",
                   "who": "teaching-lab instructor", "view": gview,
                   "page": "9_class/class_summary.html"})
     echo("  done: class graded")
-
-    # key numbers
     lines = [f"rateabs demo: results in {out}/ (open {out / 'index.html'})"]
-    t = plate.analysis.table
-    lysate = t[t["sample"].astype(str).str.startswith("lysate")]
-    zp = plate.analysis.zprime
-    lines.append(f"  plate: {len(t)} wells, {int(sum(bool(f) for f in t['flags']))} flagged, "
-                 f"Z' = {zp['value']:.2f}; lysate activities "
-                 + ", ".join(f"{g}: {d['activity_U_per_mL'].mean():.3g} U/mL"
-                             for g, d in lysate.groupby("sample")))
-    best = sat.analysis.best
-    p = best.params
-    lines.append(f"  inhibition: chosen {sat.analysis.chosen}; Km = {p['Km'].value:.3g} ± "
-                 f"{p['Km'].se:.2g} uM, Ki = {p['Ki'].value:.3g} ± {p['Ki'].se:.2g} uM"
-                 if "Ki" in p else f"  saturation: chosen {sat.analysis.chosen}")
-    pp = prog.analysis.params
-    lines.append(f"  progress curves: Km = {pp['Km'].value:.3g} ± {pp['Km'].se:.2g} uM, "
-                 f"Vmax = {pp['Vmax'].value:.3g} ± {pp['Vmax'].se:.2g} {pp['Vmax'].unit}; "
-                 f"Selwyn: stable = {prog.analysis.selwyn['enzyme_stable']}, decaying set: "
-                 f"stable = {unst.analysis.selwyn['enzyme_stable']}")
-    lw = next(iter(law.analysis["laws"].values()))
-    k = lw.fit.params["k"]
-    lines.append(f"  process run: order {lw.order}, k = {k.value:.4g} ± {k.se:.2g} 1/s, "
-                 f"half-life {lw.half_life.value / 60:.1f} min")
-    c = next(iter(comp.analysis["done"].values()))
-    lines.append(f"  completion: {100 * c.conversion.value:.1f} % now; 99 % at "
-                 f"{c.t_target.value / 60:.1f} min [{c.t_target.ci_low / 60:.1f}, "
-                 f"{c.t_target.ci_high / 60:.1f}]; {'complete' if c.complete else 'not yet complete'}")
-    ea = temp.analysis.params["Ea"]
-    lines.append(f"  temperature: Ea = {ea.value:.1f} [{ea.ci_low:.1f}, {ea.ci_high:.1f}] kJ/mol")
-    scores = sorted(r["score"] for r in gview.analysis)
-    lines.append(f"  class: {len(scores)} students graded, median score "
-                 f"{scores[len(scores) // 2]:.0f}")
+    lines += _key_numbers(v, gview)
     lines.append(f"  finished in {time.perf_counter() - t0:.1f} s")
     _index(out, steps, lines)
     write_atomic(out / "summary.txt", "\n".join(lines) + "\n")

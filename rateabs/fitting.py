@@ -21,22 +21,37 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import stats
 
 from .errors import FitError, UsageError
 from .models import Model, unit_of
+from .options import CI_METHODS, LEVEL, RESAMPLES, WEIGHTINGS
+from .rules import OneOf
+
+#: Relative step of central differences: the cube root of the machine epsilon balances
+#: truncation and rounding error (Nocedal & Wright, Numerical Optimization, 2nd ed. 2006,
+#: section 8.1).
+FD_REL_STEP = float(np.finfo(float).eps ** (1 / 3))
+
+
+def fd_step(x, typical, floor: float = 0.0):
+    """Central-difference step for a parameter at ``x``: FD_REL_STEP x max(|x|, typical), plus an
+    absolute ``floor``; ``typical`` is the size below which |x| no longer sets the scale."""
+    return FD_REL_STEP * np.maximum(np.abs(x), typical) + floor
 
 
 def param(value, se=None, ci_low=None, ci_high=None, ci_method=None, unit="") -> dict:
-    """A fitted parameter as the JSON object of design.md §5."""
-    return {"value": _num(value), "se": _num(se), "ci_low": _num(ci_low),
-            "ci_high": _num(ci_high), "ci_method": ci_method, "unit": unit}
+    """A fitted parameter as the JSON parameter object (docs/formats.md, "JSON document")."""
+    return {"value": finite_or_none(value), "se": finite_or_none(se),
+            "ci_low": finite_or_none(ci_low), "ci_high": finite_or_none(ci_high),
+            "ci_method": ci_method, "unit": unit}
 
 
-def _num(x):
+def finite_or_none(x) -> float | None:
+    """``x`` as a float, or None when it is missing, not a number, NaN or infinite."""
     if x is None:
         return None
     try:
@@ -57,8 +72,23 @@ def fmt_p(p) -> str:
     return "< 1e-16" if p < 1e-16 else f"{p:.2g}"
 
 
-CI_METHODS = ("asymptotic", "profile", "bootstrap")
-WEIGHTINGS = ("none", "relative", "sd")
+def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
+    """A value and its SE for a person: ``12.3 ± 0.45 uM``; '-' when the value is missing.
+
+    >>> fmt_pm(12.3456, 0.4567, unit="uM")
+    '12.35 ± 0.46 uM'
+    """
+    v, e = finite_or_none(value), finite_or_none(se)
+    if v is None:
+        return "-"
+    text = f"{v:.{digits}g}" if e is None else f"{v:.{digits}g} ± {e:.2g}"
+    return f"{text} {unit}" if unit else text
+
+
+def fmt_interval(low, high, digits: int = 4) -> str:
+    """An interval for a person: ``[1.2, 3.4]``; '-' when a bound is missing."""
+    lo, hi = finite_or_none(low), finite_or_none(high)
+    return "-" if lo is None or hi is None else f"[{lo:.{digits}g}, {hi:.{digits}g}]"
 
 
 @dataclass(frozen=True)
@@ -75,15 +105,15 @@ class Param:
     fixed: bool = False
 
     def to_dict(self) -> dict:
-        """The JSON parameter object of design.md §5."""
+        """The JSON parameter object (docs/formats.md)."""
         return param(self.value, self.se, self.ci_low, self.ci_high,
                      "fixed" if self.fixed else self.ci_method, self.unit)
 
     def __str__(self) -> str:
         if self.fixed:
-            return f"{self.name} = {self.value:.6g} {self.unit} (fixed)"
-        return (f"{self.name} = {self.value:.6g} ± {self.se:.3g} {self.unit}  "
-                f"[{self.ci_low:.5g}, {self.ci_high:.5g}] ({self.ci_method})").replace("  ", " ")
+            return f"{self.name} = {fmt_pm(self.value, None, 6, self.unit)} (fixed)"
+        return (f"{self.name} = {fmt_pm(self.value, self.se, 6, self.unit)} "
+                f"{fmt_interval(self.ci_low, self.ci_high, 5)} ({self.ci_method})")
 
 
 @dataclass(frozen=True)
@@ -138,7 +168,7 @@ class FitResult:
         return self.func(np.asarray(x, dtype=float), *self.values().values())
 
     def to_dict(self) -> dict:
-        """JSON-ready summary (parameters as design.md parameter objects)."""
+        """JSON-ready summary (parameters as JSON parameter objects)."""
         return {"model": self.model, "params": {k: p.to_dict() for k, p in self.params.items()},
                 "n": self.n, "dof": self.dof, "rss": self.rss, "sigma": self.sigma,
                 "aic": self.aic, "aicc": self.aicc, "bic": self.bic, "success": self.success,
@@ -172,8 +202,7 @@ class FitResult:
 def make_weights(y, weighting: str = "none", sd=None) -> np.ndarray:
     """Weights that multiply residuals: 1, 1/|y| (relative) or 1/SD (given SDs)."""
     y = np.asarray(y, dtype=float)
-    if weighting not in WEIGHTINGS:
-        raise UsageError(f"unknown weighting {weighting!r}", f"use one of {', '.join(WEIGHTINGS)}")
+    OneOf(WEIGHTINGS).check(weighting, "weighting")
     if weighting == "none":
         return np.ones_like(y)
     if weighting == "relative":
@@ -208,6 +237,124 @@ def _eval(func, x, P):
     return func(x, *[P[:, j:j + 1] for j in range(P.shape[1])])
 
 
+@dataclass(frozen=True)
+class _Batch:
+    """One batched least-squares problem: the data, the free parameters and their bounds."""
+
+    func: object
+    x: np.ndarray
+    y: np.ndarray
+    w: np.ndarray
+    free: list
+    lo: np.ndarray
+    hi: np.ndarray
+    scale: np.ndarray
+    jac: object = None
+
+    def resid(self, P, rows):
+        """Weighted residuals (y - f) w of the given datasets at parameters ``P``."""
+        xx = _take_rows(self.x, rows, self.y.shape[0])
+        with np.errstate(all="ignore"):
+            f = _eval(self.func, xx, P)
+        return (self.y[rows] - f) * self.w[rows]
+
+    def jacobian(self, P, rows):
+        """d(f w)/dp of the free parameters, (rows, n, k): analytic when given, else central
+        differences with the step of :func:`fd_step`."""
+        Pj = P[rows]
+        if self.jac is not None:
+            xx = _take_rows(self.x, rows, self.y.shape[0])
+            with np.errstate(all="ignore"):
+                Ja = self.jac(xx, *[Pj[:, j:j + 1] for j in range(Pj.shape[1])])
+            return Ja[:, :, self.free] * self.w[rows][:, :, None]
+        Jr = np.empty((rows.size, self.y.shape[1], len(self.free)))
+        for c, j in enumerate(self.free):
+            h = fd_step(Pj[:, j], 1e-6 * self.scale[rows, j], floor=1e-10)
+            up = np.minimum(Pj[:, j] + h, self.hi[j])
+            dn = np.maximum(Pj[:, j] - h, self.lo[j])
+            Pu, Pd = Pj.copy(), Pj.copy()
+            Pu[:, j], Pd[:, j] = up, dn
+            # residual = (y - f) w, so d(f w)/dp = -d(residual)/dp
+            Jr[:, :, c] = -(self.resid(Pu, rows) - self.resid(Pd, rows)) / (up - dn)[:, None]
+        return Jr
+
+
+@dataclass
+class _LMState:
+    """The iteration state of every dataset in :func:`batch_lm`."""
+
+    P: np.ndarray
+    r: np.ndarray
+    S: np.ndarray
+    lam: np.ndarray
+    active: np.ndarray
+    converged: np.ndarray
+    J: np.ndarray
+    need_j: np.ndarray
+
+
+def _lm_start(prob: _Batch, P: np.ndarray) -> _LMState:
+    B, n = prob.y.shape
+    r = prob.resid(P, np.arange(B))
+    S = np.sum(r * r, axis=1)
+    S[~np.isfinite(S)] = np.inf
+    return _LMState(P, r, S, np.full(B, 1e-3), np.isfinite(S), np.zeros(B, dtype=bool),
+                    np.zeros((B, n, len(prob.free))), np.ones(B, dtype=bool))
+
+
+def _lm_delta(state: _LMState, rows, k: int):
+    """The damped Gauss–Newton step of each active dataset (Marquardt's diagonal scaling)."""
+    Jr, rr = state.J[rows], state.r[rows]
+    JT = Jr.transpose(0, 2, 1)
+    A = JT @ Jr                                   # batched BLAS, faster than einsum
+    g = (JT @ rr[:, :, None])[:, :, 0]
+    d = np.diagonal(A, axis1=1, axis2=2)
+    d = np.maximum(d, 1e-12 * np.max(d, axis=1, keepdims=True) + 1e-300)
+    M = A + (state.lam[rows][:, None] * d)[:, :, None] * np.eye(k)[None]
+    try:
+        return np.linalg.solve(M, g[:, :, None])[:, :, 0]
+    except np.linalg.LinAlgError:
+        return np.einsum("bij,bj->bi", np.linalg.pinv(M), g)
+
+
+def _lm_iteration(prob: _Batch, state: _LMState, rows, xtol: float, ftol: float) -> None:
+    """One Levenberg–Marquardt step for the active datasets: accept or damp, mark convergence."""
+    free = prob.free
+    jr = rows[state.need_j[rows]]
+    if jr.size:
+        state.J[jr] = prob.jacobian(state.P, jr)
+        state.need_j[jr] = False
+    Pn = state.P[rows].copy()
+    Pn[:, free] = np.clip(Pn[:, free] + _lm_delta(state, rows, len(free)), prob.lo[free],
+                          prob.hi[free])
+    rn = prob.resid(Pn, rows)
+    Sn = np.sum(rn * rn, axis=1)
+    Sn[~np.isfinite(Sn)] = np.inf
+    better = Sn < state.S[rows]
+    acc, rej = rows[better], rows[~better]
+    step = np.max(np.abs(Pn[better][:, free] - state.P[acc][:, free])
+                  / np.maximum(np.abs(state.P[acc][:, free]), 1e-12 * prob.scale[acc][:, free]),
+                  axis=1) if acc.size else np.array([])
+    gain = (state.S[acc] - Sn[better]) / np.maximum(state.S[acc], 1e-300)
+    state.P[acc], state.r[acc], state.S[acc] = Pn[better], rn[better], Sn[better]
+    state.lam[acc] = np.maximum(state.lam[acc] / 10, 1e-12)
+    state.need_j[acc] = True
+    state.lam[rej] *= 10
+    done = acc[(gain <= ftol) | (step <= xtol) | (state.S[acc] == 0)]
+    stuck = rej[state.lam[rej] > 1e12]           # no downhill step left: at a minimum
+    for idx in (done, stuck):
+        state.converged[idx] = True
+        state.active[idx] = False
+
+
+def _batch_cov(prob: _Batch, state: _LMState) -> np.ndarray:
+    """Covariance of the free parameters, (J'J)^-1 RSS/dof per dataset."""
+    Jf = prob.jacobian(state.P, np.arange(state.P.shape[0]))
+    A = Jf.transpose(0, 2, 1) @ Jf
+    dof = np.maximum(np.sum(prob.w > 0, axis=1) - len(prob.free), 1)
+    return np.linalg.pinv(A) * (state.S / dof)[:, None, None]
+
+
 def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
              xtol=1e-10, ftol=1e-13, want_cov=False, jac=None) -> BatchResult:
     """Fit ``B`` datasets at once by Levenberg–Marquardt on arrays.
@@ -225,102 +372,23 @@ def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
     [[3.0, 0.5], [2.0, 0.2]]
     """
     y = np.atleast_2d(np.asarray(y, dtype=float))
-    B, n = y.shape
-    w = np.broadcast_to(np.asarray(w, dtype=float), y.shape)
+    B = y.shape[0]
     P = np.array(np.broadcast_to(np.asarray(p0, dtype=float), (B, np.shape(p0)[-1])), dtype=float)
     p = P.shape[1]
-    free = list(range(p)) if free is None else list(free)
-    k = len(free)
-    lo = np.full(p, -np.inf) if lower is None else np.asarray(lower, dtype=float)
-    hi = np.full(p, np.inf) if upper is None else np.asarray(upper, dtype=float)
-    scale = np.maximum(np.abs(P), 1e-12)
-
-    def resid(PP, rows):
-        xx = _take_rows(x, rows, B)
-        with np.errstate(all="ignore"):
-            f = _eval(func, xx, PP)
-        return (y[rows] - f) * w[rows]
-
-    def jacobian(rows):
-        Pj = P[rows]
-        if jac is not None:
-            xx = _take_rows(x, rows, B)
-            with np.errstate(all="ignore"):
-                Ja = jac(xx, *[Pj[:, j:j + 1] for j in range(p)])
-            return Ja[:, :, free] * w[rows][:, :, None]
-        Jr = np.empty((rows.size, n, k))
-        for c, j in enumerate(free):
-            h = 6e-6 * np.maximum(np.abs(Pj[:, j]), 1e-6 * scale[rows, j]) + 1e-10
-            up = np.minimum(Pj[:, j] + h, hi[j])
-            dn = np.maximum(Pj[:, j] - h, lo[j])
-            Pu, Pd = Pj.copy(), Pj.copy()
-            Pu[:, j], Pd[:, j] = up, dn
-            # residual = (y - f) w, so d(f w)/dp = -d(residual)/dp
-            Jr[:, :, c] = -(resid(Pu, rows) - resid(Pd, rows)) / (up - dn)[:, None]
-        return Jr
-
-    rows_all = np.arange(B)
-    r = resid(P, rows_all)
-    S = np.sum(r * r, axis=1)
-    S[~np.isfinite(S)] = np.inf
-    lam = np.full(B, 1e-3)
-    active = np.isfinite(S)
-    converged = np.zeros(B, dtype=bool)
-    J = np.zeros((B, n, k))
-    need_j = np.ones(B, dtype=bool)
+    prob = _Batch(func, x, y, np.broadcast_to(np.asarray(w, dtype=float), y.shape),
+                  list(range(p)) if free is None else list(free),
+                  np.full(p, -np.inf) if lower is None else np.asarray(lower, dtype=float),
+                  np.full(p, np.inf) if upper is None else np.asarray(upper, dtype=float),
+                  np.maximum(np.abs(P), 1e-12), jac)
+    state = _lm_start(prob, P)
     it = 0
     for it in range(1, max_iter + 1):  # noqa: B007 - it is reported
-        rows = np.nonzero(active)[0]
+        rows = np.nonzero(state.active)[0]
         if rows.size == 0:
             break
-        jr = rows[need_j[rows]]
-        if jr.size:
-            J[jr] = jacobian(jr)
-            need_j[jr] = False
-        Jr = J[rows]
-        rr = r[rows]
-        JT = Jr.transpose(0, 2, 1)
-        A = JT @ Jr                                   # batched BLAS, faster than einsum
-        g = (JT @ rr[:, :, None])[:, :, 0]
-        d = np.diagonal(A, axis1=1, axis2=2)
-        d = np.maximum(d, 1e-12 * np.max(d, axis=1, keepdims=True) + 1e-300)
-        M = A + (lam[rows][:, None] * d)[:, :, None] * np.eye(k)[None]
-        try:
-            delta = np.linalg.solve(M, g[:, :, None])[:, :, 0]
-        except np.linalg.LinAlgError:
-            delta = np.einsum("bij,bj->bi", np.linalg.pinv(M), g)
-        Pn = P[rows].copy()
-        Pn[:, free] = np.clip(Pn[:, free] + delta, lo[free], hi[free])
-        rn = resid(Pn, rows)
-        Sn = np.sum(rn * rn, axis=1)
-        Sn[~np.isfinite(Sn)] = np.inf
-        better = Sn < S[rows]
-        acc = rows[better]
-        rej = rows[~better]
-        step = np.max(np.abs(Pn[better][:, free] - P[acc][:, free])
-                      / np.maximum(np.abs(P[acc][:, free]), 1e-12 * scale[acc][:, free]),
-                      axis=1) if acc.size else np.array([])
-        gain = (S[acc] - Sn[better]) / np.maximum(S[acc], 1e-300)
-        P[acc] = Pn[better]
-        r[acc] = rn[better]
-        S[acc] = Sn[better]
-        lam[acc] = np.maximum(lam[acc] / 10, 1e-12)
-        need_j[acc] = True
-        lam[rej] *= 10
-        done = acc[(gain <= ftol) | (step <= xtol) | (S[acc] == 0)]
-        converged[done] = True
-        active[done] = False
-        stuck = rej[lam[rej] > 1e12]           # no downhill step left: at a minimum
-        converged[stuck] = True
-        active[stuck] = False
-    cov = None
-    if want_cov:
-        Jf = jacobian(rows_all)
-        A = Jf.transpose(0, 2, 1) @ Jf
-        n_eff = np.sum(w > 0, axis=1)
-        dof = np.maximum(n_eff - k, 1)
-        cov = np.linalg.pinv(A) * (S / dof)[:, None, None]
-    return BatchResult(P, S, converged & np.isfinite(S), it, cov)
+        _lm_iteration(prob, state, rows, xtol, ftol)
+    cov = _batch_cov(prob, state) if want_cov else None
+    return BatchResult(state.P, state.S, state.converged & np.isfinite(state.S), it, cov)
 
 
 def _take_rows(x, rows, B):
@@ -332,6 +400,130 @@ def _take_rows(x, rows, B):
 
 
 # --------------------------------------------------------------------------- single fit
+
+
+def check_fixed(model: Model, fix: dict | None, option: str = "--fix") -> dict:
+    """Fixed values by name, each a known parameter of ``model`` within its bounds."""
+    fix = dict(fix or {})
+    unknown = set(fix) - set(model.params)
+    if unknown:
+        raise UsageError(f"{option} {sorted(unknown)[0]}: model {model.name} has no such "
+                         "parameter", f"its parameters are {', '.join(model.params)}")
+    for name, v in fix.items():
+        lo, hi = model.lower.get(name, -np.inf), model.upper.get(name, np.inf)
+        if not (np.isfinite(v) and lo <= v <= hi):
+            rng = " and ".join(t for t in (f"at least {lo:g}" if np.isfinite(lo) else "",
+                                           f"at most {hi:g}" if np.isfinite(hi) else "") if t)
+            raise UsageError(f"{option} {name}={v:g} is outside the range of {name} in model "
+                             f"{model.name}", f"give a value {rng or 'that is finite'}")
+    return fix
+
+
+def _check_fit_args(ci: str, level: float, resample: str, n_boot: int) -> None:
+    OneOf(CI_METHODS).check(ci, "ci")
+    LEVEL.check(level, "level")
+    OneOf(("residual", "case")).check(resample, "resample")
+    if ci == "bootstrap":
+        RESAMPLES.check(n_boot, "n_boot")
+
+
+def _usable(x, y, sd):
+    """Only the readings with a finite y and finite x."""
+    ok = np.isfinite(y) & np.all(np.isfinite(x.reshape(-1, y.size)), axis=0)
+    if ok.all():
+        return x, y, sd
+    return x[..., ok], y[ok], None if sd is None else np.asarray(sd, dtype=float)[ok]
+
+
+def _parameters(lmfit, model: Model, start: dict, fix: dict, bounds: dict):
+    """lmfit Parameters with bounds, the start inside them, fixed ones held."""
+    pars = lmfit.Parameters()
+    for name in model.params:
+        lo, hi = bounds.get(name, (model.lower.get(name, -np.inf), model.upper.get(name, np.inf)))
+        v0 = float(start[name])
+        if name not in fix:
+            v0 = min(max(v0, lo if np.isfinite(lo) else v0), hi if np.isfinite(hi) else v0)
+        pars.add(name, value=v0, min=lo, max=hi, vary=name not in fix)
+    return pars
+
+
+def _minimize(lmfit, model: Model, x, y, w, pars, scale_covar: bool, n_free: int):
+    def residual(ps):
+        vals = [ps[nm].value for nm in model.params]
+        with np.errstate(all="ignore"):
+            r = (y - model.func(x, *vals)) * w
+        return np.where(np.isfinite(r), r, 1e150)
+
+    mini = lmfit.Minimizer(residual, pars, scale_covar=scale_covar, nan_policy="propagate")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = mini.minimize(method="least_squares", max_nfev=4000 * (n_free + 1),
+                            xtol=1e-15, ftol=1e-15, gtol=1e-15)
+    return mini, res
+
+
+@dataclass
+class _Uncertainty:
+    """SEs and intervals under construction, with the notes that qualify them."""
+
+    se: dict
+    lows: dict
+    highs: dict
+    method: dict
+    notes: list
+    success: bool
+    message: str
+    n_boot_ok: int | None = None
+
+
+def _asymptotic(model, res, values, free, cov, dof, level, success, message) -> _Uncertainty:
+    """t-based intervals from the covariance, and notes on bounds and identifiability."""
+    se = {nm: 0.0 for nm in model.params}
+    for j, nm in enumerate(free):
+        se[nm] = float(np.sqrt(cov[j, j])) if cov is not None else float("nan")
+    notes = []
+    if cov is None and free:
+        notes.append("the covariance matrix could not be estimated: the parameters are not "
+                     "identifiable from these data")
+        success, message = False, "not identifiable (singular covariance)"
+    for nm in free:
+        lo, hi, v = res.params[nm].min, res.params[nm].max, values[nm]
+        if (np.isfinite(lo) and abs(v - lo) <= 1e-9 * max(1.0, abs(lo))) or (
+                np.isfinite(hi) and abs(v - hi) <= 1e-9 * max(1.0, abs(hi))):
+            notes.append(f"{nm} ended at its bound ({v:.4g}); its interval is not reliable")
+        if np.isfinite(se[nm]) and v != 0 and se[nm] / abs(v) > 10:
+            notes.append(f"{nm} is poorly determined (SE {se[nm]:.3g} is over 10x its value)")
+            success, message = False, f"not identifiable: {nm} is not determined by these data"
+    tq = stats.t.ppf(0.5 + level / 2, dof) if dof > 0 else float("nan")
+    return _Uncertainty(se, {nm: values[nm] - tq * se[nm] for nm in model.params},
+                        {nm: values[nm] + tq * se[nm] for nm in model.params},
+                        {nm: "asymptotic" for nm in model.params}, notes, success, message)
+
+
+def _profile_into(u: _Uncertainty, lmfit, mini, res, model, free, level, values) -> None:
+    for nm, (lo, hi, why) in _profile(lmfit, mini, res, model, free, level, values).items():
+        if why:
+            u.notes.append(f"profile interval of {nm}: {why}; asymptotic interval shown")
+        else:
+            u.lows[nm], u.highs[nm], u.method[nm] = lo, hi, "profile"
+
+
+def _bootstrap_into(u: _Uncertainty, boot: Bootstrap, free, level: float) -> None:
+    n_boot = boot.n_requested
+    u.n_boot_ok = boot.n_ok
+    if boot.n_ok < max(20, 0.5 * n_boot):
+        u.notes.append(f"only {boot.n_ok} of {n_boot} bootstrap resamples converged; "
+                       "asymptotic intervals shown")
+        return
+    for j, nm in enumerate(free):
+        est = boot.estimates[:, j]
+        lo, hi = np.quantile(est, [0.5 - level / 2, 0.5 + level / 2])
+        u.lows[nm], u.highs[nm] = float(lo), float(hi)
+        u.method[nm] = f"bootstrap-{boot.resample}"
+        u.se[nm] = float(np.std(est, ddof=1))
+    if boot.n_ok < n_boot:
+        u.notes.append(f"{n_boot - boot.n_ok} of {n_boot} bootstrap resamples did not "
+                       "converge and were left out")
 
 
 def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | None = None,
@@ -346,131 +538,51 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     for designed x or ``case``; seeded). ``units`` maps unit kinds (``x``, ``y``, ``i``) to
     unit strings for the parameters.
 
-    Raises :class:`~rateabs.errors.FitError` when there are fewer points than free parameters;
-    other failures return ``success=False`` with the reason.
+    Raises :class:`~rateabs.errors.FitError` when there are fewer points than free parameters,
+    :class:`~rateabs.errors.UsageError` for a fixed value outside a parameter's bounds; other
+    failures return ``success=False`` with the reason.
     """
     import lmfit
 
-    if ci not in CI_METHODS:
-        raise UsageError(f"unknown interval method {ci!r}", f"use one of {', '.join(CI_METHODS)}")
-    if not 0 < level < 1:
-        raise UsageError(f"confidence level {level} must lie between 0 and 1", "e.g. 0.95")
-    if resample not in ("residual", "case"):
-        raise UsageError(f"unknown resampling {resample!r}", "use residual or case")
-    x = np.asarray(x, dtype=float)
-    y = np.asarray(y, dtype=float)
-    fix = dict(fix or {})
-    unknown = set(fix) - set(model.params)
-    if unknown:
-        raise UsageError(f"model {model.name} has no parameter {sorted(unknown)[0]!r}",
-                         f"its parameters are {', '.join(model.params)}")
-    ok = np.isfinite(y) & np.all(np.isfinite(x.reshape(-1, y.size)), axis=0)
-    if not ok.all():
-        x, y = x[..., ok], y[ok]
-        sd = None if sd is None else np.asarray(sd, dtype=float)[ok]
+    _check_fit_args(ci, level, resample, n_boot)
+    fix = check_fixed(model, fix)
+    x, y, sd = _usable(np.asarray(x, dtype=float), np.asarray(y, dtype=float), sd)
     n = y.size
     free = [p for p in model.params if p not in fix]
     if n <= len(free):
         raise FitError(f"not estimable: {n} points for {len(free)} free parameters of "
                        f"{model.name}", "measure more concentrations or fix a parameter")
     w = make_weights(y, weighting, sd)
-    start = model.guess(x, y)
-    start.update(p0 or {})
-    start.update(fix)
-    units = units or {}
+    start = {**model.guess(x, y), **(p0 or {}), **fix}
     bounds = bounds or {}
-
-    pars = lmfit.Parameters()
-    for name in model.params:
-        lo, hi = bounds.get(name, (model.lower.get(name, -np.inf), model.upper.get(name, np.inf)))
-        v0 = float(start[name])
-        if name not in fix:
-            v0 = min(max(v0, lo if np.isfinite(lo) else v0), hi if np.isfinite(hi) else v0)
-        pars.add(name, value=v0, min=lo, max=hi, vary=name not in fix)
-
-    def residual(ps):
-        vals = [ps[nm].value for nm in model.params]
-        with np.errstate(all="ignore"):
-            r = (y - model.func(x, *vals)) * w
-        return np.where(np.isfinite(r), r, 1e150)
-
     scale_covar = weighting != "sd"
-    mini = lmfit.Minimizer(residual, pars, scale_covar=scale_covar, nan_policy="propagate")
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        res = mini.minimize(method="least_squares", max_nfev=4000 * (len(free) + 1),
-                            xtol=1e-15, ftol=1e-15, gtol=1e-15)
+    mini, res = _minimize(lmfit, model, x, y, w, _parameters(lmfit, model, start, fix, bounds),
+                          scale_covar, len(free))
     values = {nm: res.params[nm].value for nm in model.params}
     fitted = model.func(x, *values.values())
     rw = (y - fitted) * w
-    rss = float(np.sum(rw * rw))
-    dof = n - len(free)
-    sigma = math.sqrt(rss / dof) if dof > 0 else float("nan")
-    notes: list[str] = []
-    success = bool(res.success) and np.all(np.isfinite(fitted))
-    message = str(res.message) if not success else "converged"
+    rss, dof = float(np.sum(rw * rw)), n - len(free)
+    success = bool(res.success) and bool(np.all(np.isfinite(fitted)))
     cov = _covariance(model, x, w, values, free, rss / dof if (scale_covar and dof > 0) else 1.0)
-    se = {nm: 0.0 for nm in model.params}
-    for j, nm in enumerate(free):
-        se[nm] = float(np.sqrt(cov[j, j])) if cov is not None else float("nan")
-    if cov is None and free:
-        notes.append("the covariance matrix could not be estimated: the parameters are not "
-                     "identifiable from these data")
-        success = False
-        message = "not identifiable (singular covariance)"
-    for nm in free:
-        lo, hi = res.params[nm].min, res.params[nm].max
-        v = values[nm]
-        if (np.isfinite(lo) and abs(v - lo) <= 1e-9 * max(1.0, abs(lo))) or (
-                np.isfinite(hi) and abs(v - hi) <= 1e-9 * max(1.0, abs(hi))):
-            notes.append(f"{nm} ended at its bound ({v:.4g}); its interval is not reliable")
-        if np.isfinite(se[nm]) and v != 0 and se[nm] / abs(v) > 10:
-            notes.append(f"{nm} is poorly determined (SE {se[nm]:.3g} is over 10x its value)")
-            success = False
-            message = f"not identifiable: {nm} is not determined by these data"
-
-    tq = stats.t.ppf(0.5 + level / 2, dof) if dof > 0 else float("nan")
-    lows = {nm: values[nm] - tq * se[nm] for nm in model.params}
-    highs = {nm: values[nm] + tq * se[nm] for nm in model.params}
-    method = {nm: "asymptotic" for nm in model.params}
-    n_ok = None
-    if ci == "profile" and free and success:
-        prof = _profile(lmfit, mini, res, model, free, level, values)
-        for nm, (lo, hi, why) in prof.items():
-            if why:
-                notes.append(f"profile interval of {nm}: {why}; asymptotic interval shown")
-            else:
-                lows[nm], highs[nm], method[nm] = lo, hi, "profile"
+    u = _asymptotic(model, res, values, free, cov, dof, level, success,
+                    "converged" if success else str(res.message))
+    if ci == "profile" and free and u.success:
+        _profile_into(u, lmfit, mini, res, model, free, level, values)
     elif ci == "bootstrap" and free:
-        boot = bootstrap(model, x, y, w, values, free, fitted, n_boot=n_boot, resample=resample,
-                         seed=seed, bounds=bounds)
-        n_ok = boot.n_ok
-        if boot.n_ok < max(20, 0.5 * n_boot):
-            notes.append(f"only {boot.n_ok} of {n_boot} bootstrap resamples converged; "
-                         "asymptotic intervals shown")
-        else:
-            for j, nm in enumerate(free):
-                est = boot.estimates[:, j]
-                lo, hi = np.quantile(est, [0.5 - level / 2, 0.5 + level / 2])
-                lows[nm], highs[nm], method[nm] = float(lo), float(hi), f"bootstrap-{resample}"
-                se[nm] = float(np.std(est, ddof=1))
-            if boot.n_ok < n_boot:
-                notes.append(f"{n_boot - boot.n_ok} of {n_boot} bootstrap resamples did not "
-                             "converge and were left out")
-
-    params = {}
-    for nm in model.params:
-        params[nm] = Param(nm, float(values[nm]), float(se[nm]), float(lows[nm]),
-                           float(highs[nm]), method[nm], unit_of(model.units.get(nm, "1"), units),
-                           fixed=nm in fix)
-    k = len(free) + 1   # + the residual variance
-    aic, aicc, bic = information_criteria(rss, n, k)
+        _bootstrap_into(u, bootstrap(model, x, y, w, values, free, fitted, n_boot=n_boot,
+                                     resample=resample, seed=seed, bounds=bounds), free, level)
+    params = {nm: Param(nm, float(values[nm]), float(u.se[nm]), float(u.lows[nm]),
+                        float(u.highs[nm]), u.method[nm],
+                        unit_of(model.units.get(nm, "1"), units or {}), fixed=nm in fix)
+              for nm in model.params}
+    aic, aicc, bic = information_criteria(rss, n, len(free) + 1)   # + the residual variance
     return FitResult(model=model.name, params=params, n=n, n_free=len(free), rss=rss,
-                     sigma=sigma, aic=aic, aicc=aicc, bic=bic, level=level, success=success,
-                     message=message, x=x, y=y, weights=w, fitted=fitted, cov=cov,
-                     free=tuple(free), runs_p=runs_test(y - fitted), notes=tuple(notes),
-                     weighting=weighting, resample=resample if ci == "bootstrap" else None,
-                     n_boot_ok=n_ok, func=model.func)
+                     sigma=math.sqrt(rss / dof) if dof > 0 else float("nan"), aic=aic,
+                     aicc=aicc, bic=bic, level=level, success=u.success, message=u.message,
+                     x=x, y=y, weights=w, fitted=fitted, cov=cov, free=tuple(free),
+                     runs_p=runs_test(y - fitted), notes=tuple(u.notes), weighting=weighting,
+                     resample=resample if ci == "bootstrap" else None, n_boot_ok=u.n_boot_ok,
+                     func=model.func)
 
 
 def _covariance(model, x, w, values, free, scale):
@@ -482,7 +594,7 @@ def _covariance(model, x, w, values, free, scale):
     cols = []
     for nm in free:
         j = model.params.index(nm)
-        h = 1e-6 * max(abs(base[j]), 1e-8)
+        h = float(fd_step(base[j], 1e-8))
         up, dn = list(base), list(base)
         up[j] += h
         dn[j] -= h
@@ -670,10 +782,3 @@ def compare(results: dict, nested=(), failed: dict | None = None, alpha: float =
                   f"against {t['simpler']} (F-test p = {fmt_p(t['p'])}); the simpler model is kept")
         chosen = t["simpler"]
     return Comparison(rows, ftests, chosen, reason, failed)
-
-
-def with_param(result: FitResult, p: Param) -> FitResult:
-    """A copy of ``result`` with one more (derived) parameter appended."""
-    params = dict(result.params)
-    params[p.name] = p
-    return replace(result, params=params)

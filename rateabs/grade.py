@@ -214,13 +214,14 @@ def _own_value(path: str, rubric: dict) -> dict:
     factor = QUANTITIES[q][2].get(rubric["unit"], 1.0)
     if q in ("k", "half_life"):
         from .io import read_traces
+        from .options import DEFAULT_LINEAR_LIMIT
         from .ratelaws import fit_trace
 
         ts = read_traces(path)
         looks_pt = ts.info.get("looks_like") == "percent"
         if looks_pt:          # %T recorded under an absorbance header: grade the real kinetics
             ts = read_traces(path, signal="percent")
-        ts = ts.mask_above(2.0)
+        ts = ts.mask_above(DEFAULT_LINEAR_LIMIT)
         g = ts.grid()
         ok = g.usable[0]
         t, y = g.times[0][ok], g.values[0][ok]
@@ -345,18 +346,19 @@ def _g(x: float) -> str:
 
 
 def grade_one(task: Task, rubric: dict, plots: bool = True) -> dict:
-    """Grade one student (runs in a worker process): value, parts, score, diagnosis, plot."""
+    """Grade one student (runs in a worker process): value, parts, score, diagnosis, and with
+    ``plots`` the data of the student's figure (drawn by the views layer)."""
     base = {"student": task.student, "file": task.file, "reported": task.reported,
             "reference": rubric["reference"], "unit": rubric["unit"], "extra": task.extra}
     if task.problem:
         return {**base, "value": None, "score": 0.0, "parts": {}, "status": "not analysed",
-                "diagnosis": [f"could not be analysed: {task.problem}"], "png": None}
+                "diagnosis": [f"could not be analysed: {task.problem}"], "figure": None}
     try:
         own = _own_value(task.path, rubric)
     except RateabsError as exc:
         return {**base, "value": None, "score": 0.0, "parts": {}, "status": "not analysed",
                 "diagnosis": [f"could not be analysed: {exc.problem}; {exc.fix}".rstrip("; ")],
-                "png": None}
+                "figure": None}
     v, se = own["value"], own["se"]
     rel = abs(se / v) if v else float("inf")
     tol = rubric["tolerance_pct"]
@@ -374,32 +376,12 @@ def grade_one(task: Task, rubric: dict, plots: bool = True) -> dict:
     if own["masked"]:
         diag.append(f"{own['masked']} reading(s) were unusable (over range or missing) and were "
                     "left out")
-    png = _student_plot(task, own, rubric) if plots else None
+    figure = {"x": own["t"], "y": own["y"], "fitted": own["fitted"],
+              "table": own.get("kind") == "table",
+              "title": f"{task.student}: {rubric['quantity']} = {own['value']:.4g} "
+                       f"{rubric['unit']}"} if plots else None
     return {**base, "value": v, "value_se": se, "score": round(score, 1), "parts": parts,
-            "status": "graded", "diagnosis": diag, "png": png}
-
-
-def _student_plot(task, own, rubric) -> bytes:
-    import io
-
-    from .plots import PALETTE, house_style
-
-    with house_style() as plt:
-        fig, ax = plt.subplots(figsize=(5.6, 3.4))
-        x, y = own["t"], own["y"]
-        table = own.get("kind") == "table"
-        xs = x if table else x / 60
-        ax.plot(xs, y, "o", ms=3, color=PALETTE[0], label="your data")
-        ax.plot(xs[:len(own["fitted"])], own["fitted"], color=PALETTE[1], label="fit")
-        ax.set_xlabel("[S]" if table else "time (min)")
-        ax.set_ylabel("rate" if table else "absorbance (AU)")
-        ax.set_title(f"{task.student}: {rubric['quantity']} = {own['value']:.4g} {rubric['unit']}",
-                     fontsize=9.5)
-        ax.legend(loc="best")
-        buf = io.BytesIO()
-        fig.savefig(buf, format="png", bbox_inches="tight", dpi=90)
-        plt.close(fig)
-        return buf.getvalue()
+            "status": "graded", "diagnosis": diag, "figure": figure}
 
 
 # --------------------------------------------------------------------------- the class

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .io import read_traces
-from .photometry import DEFAULT_LINEAR_LIMIT
+from .options import DEFAULT_LINEAR_LIMIT
 from .traces import TraceSet
 
 

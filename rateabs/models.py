@@ -290,7 +290,8 @@ def _guess_order0(t, y):
     return {"A0": float(a), "k": float(b)}
 
 
-def _guess_decay(t, y, order):
+def guess_decay(t, y, order):
+    """Starting A0, Ainf and k of a first- or second-order approach to an end value."""
     t, y = np.asarray(t, float), np.asarray(y, float)
     n = y.size
     tail = y[-max(2, n // 10):]
@@ -313,10 +314,10 @@ def _guess_decay(t, y, order):
 RATE_LAWS = {
     "0": Model("0", order0, ("A0", "k"), _guess_order0, {}, {}, {"A0": "A", "k": "A/s"},
                "A = A0 + k t", "Atkins, Physical Chemistry"),
-    "1": Model("1", order1, ("A0", "Ainf", "k"), lambda t, y: _guess_decay(t, y, 1),
+    "1": Model("1", order1, ("A0", "Ainf", "k"), lambda t, y: guess_decay(t, y, 1),
                {"k": 0.0}, {}, {"A0": "A", "Ainf": "A", "k": "1/s"},
                "A = Ainf + (A0 - Ainf) exp(-k t)", "Atkins, Physical Chemistry"),
-    "2": Model("2", order2, ("A0", "Ainf", "k"), lambda t, y: _guess_decay(t, y, 2),
+    "2": Model("2", order2, ("A0", "Ainf", "k"), lambda t, y: guess_decay(t, y, 2),
                {"k": 0.0}, {}, {"A0": "A", "Ainf": "A", "k": "1/(A s)"},
                "A = Ainf + (A0 - Ainf) / (1 + k |A0 - Ainf| t)", "Atkins, Physical Chemistry"),
 }

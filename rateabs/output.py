@@ -14,7 +14,6 @@ from pathlib import Path
 
 from . import __version__
 from .files import write_atomic
-from .fitting import _num, fmt_p, param  # noqa: F401  (the JSON parameter object lives with Param)
 
 
 def _clean(obj):
@@ -114,7 +113,7 @@ def rows_to_csv(rows: Sequence[dict], columns: Sequence[str]) -> str:
             if isinstance(v, (list, tuple)):
                 v = ";".join(str(x) for x in v)
             elif isinstance(v, float):
-                v = "" if not math.isfinite(v) else repr(v)
+                v = "" if not math.isfinite(v) else repr(float(v))
             elif v is None:
                 v = ""
             out.append(v)

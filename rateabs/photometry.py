@@ -6,7 +6,8 @@ epsilon in L mol^-1 cm^-1, b in cm and c in mol/L.
 
 Beer–Lambert holds for monochromatic light in a dilute, non-scattering sample. Real instruments
 have a finite bandwidth and some stray light, which bend the response at high absorbance; readings
-above :data:`DEFAULT_LINEAR_LIMIT` are therefore flagged and kept out of fits.
+above a linear limit (``rateabs.options.DEFAULT_LINEAR_LIMIT`` unless the user sets one) are
+therefore flagged and kept out of fits.
 
 >>> round(float(absorbance_from_percent_t(50.0)), 5)
 0.30103
@@ -19,11 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import UsageError
-from .units import parse_epsilon, parse_pathlength, parse_volume
-
-#: Absorbance above which readings are flagged as past the linear range (common practice:
-#: most instruments are trusted to about 1.5-2; the instrument's own specification overrides it).
-DEFAULT_LINEAR_LIMIT = 2.0
+from .units import parse_epsilon, parse_volume
 
 #: Water's absorbance difference A(977 nm) - A(900 nm) per cm of pathlength at room temperature
 #: (common practice, from memory), used to measure the liquid height in a microplate well.
@@ -112,35 +109,54 @@ class PlateGeometry:
 
     wells: int
     bottom_area_cm2: float
+    capacity_L: float
     source: str
 
 
 #: Typical flat-bottomed polystyrene plates (from memory: a 96-well well is about 6.4 mm across at
-#: the bottom, area 0.32 cm2; a 384-well well about 3.2 mm square, 0.10 cm2). Well walls taper,
-#: so this is an estimate: measure your plate (water peak) where the absolute rate matters.
+#: the bottom, area 0.32 cm2, and holds about 0.36 mL; a 384-well well is about 3.2 mm square,
+#: 0.10 cm2, and holds about 0.11 mL). Well walls taper, so this is an estimate: measure your
+#: plate (water peak) where the absolute rate matters.
 PLATES = {
-    96: PlateGeometry(96, 0.32, "typical 96-well flat-bottom well, 6.4 mm diameter (from memory)"),
-    384: PlateGeometry(384, 0.10, "typical 384-well flat-bottom well, 3.2 mm square (from memory)"),
+    96: PlateGeometry(96, 0.32, 0.36e-3, "typical 96-well flat-bottom well, 6.4 mm diameter, "
+                      "about 0.36 mL (from memory)"),
+    384: PlateGeometry(384, 0.10, 0.11e-3, "typical 384-well flat-bottom well, 3.2 mm square, "
+                       "about 0.11 mL (from memory)"),
 }
+
+
+def _ul(volume_l: float) -> str:
+    return f"{volume_l * 1e6:.4g} uL"
 
 
 def pathlength_from_volume(volume: str | float, wells: int = 96,
                            bottom_area_cm2: float | None = None) -> float:
     """Liquid height (cm) of ``volume`` in a flat-bottomed well: b = V / area.
 
-    ``volume`` in L or as a string ("200 uL"); the area defaults to :data:`PLATES`.
+    ``volume`` in L or as a string ("200 uL"); the area defaults to :data:`PLATES`. A volume
+    beyond the well's capacity is refused.
 
     >>> round(pathlength_from_volume("200 uL", 96), 4)
     0.625
     """
     v_l = parse_volume(volume) if isinstance(volume, str) else float(volume)
+    if not (v_l > 0 and np.isfinite(v_l)):
+        raise UsageError(f"well volume {volume!r} must be a positive volume",
+                         "give the liquid volume per well, e.g. '200 uL'")
     if bottom_area_cm2 is None:
         if wells not in PLATES:
             raise UsageError(f"no well geometry for a {wells}-well plate",
                              "use 96 or 384, or give the well bottom area")
-        bottom_area_cm2 = PLATES[wells].bottom_area_cm2
-    if v_l <= 0 or bottom_area_cm2 <= 0:
-        raise UsageError("well volume and area must be positive", "check the volume you gave")
+        plate = PLATES[wells]
+        if v_l > plate.capacity_L:
+            raise UsageError(f"a well volume of {_ul(v_l)} does not fit a {wells}-well well, "
+                             f"which holds about {_ul(plate.capacity_L)} (typical value, from "
+                             "memory)", f"give the liquid volume in one well, e.g. "
+                             f"'{plate.capacity_L * 0.5e6:.0f} uL', and the plate format with "
+                             "--plate")
+        bottom_area_cm2 = plate.bottom_area_cm2
+    if bottom_area_cm2 <= 0:
+        raise UsageError("the well bottom area must be positive", "check the area you gave")
     return v_l * 1000.0 / bottom_area_cm2   # L -> cm3 (mL), / cm2 -> cm
 
 
@@ -162,8 +178,3 @@ def resolve_epsilon(epsilon: str | float | None, chromophore_name: str | None) -
     if epsilon is not None:
         return parse_epsilon(epsilon)
     return None
-
-
-def resolve_pathlength(pathlength: str | float | None) -> float:
-    """Pathlength in cm from an option; 1 cm (a standard cuvette) when not given."""
-    return 1.0 if pathlength is None else parse_pathlength(pathlength)

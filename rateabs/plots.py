@@ -12,6 +12,8 @@ from pathlib import Path
 
 import numpy as np
 
+from .fitting import fmt_interval, fmt_pm
+
 PALETTE = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442",
            "#000000"]
 INK = "#222222"
@@ -129,7 +131,7 @@ def saturation_fit(analysis, path, title: str = "rate vs substrate"):
         ax.set_ylabel(f"rate ({yu})")
         ax.set_title(f"{title}: {best.model} fit (chosen)")
         ax.legend(loc="center right")
-        txt = "\n".join(f"{p.name} = {p.value:.4g} ± {p.se:.2g} {p.unit}".rstrip()
+        txt = "\n".join(f"{p.name} = {fmt_pm(p.value, p.se, unit=p.unit)}"
                         for p in best.params.values())
         ax.text(0.98, 0.04, txt, transform=ax.transAxes, ha="right", va="bottom", fontsize=8,
                 bbox={"boxstyle": "round", "fc": "white", "ec": GRID})
@@ -222,9 +224,9 @@ def rate_traces(analysis, out, stem: str = "rates", per_page: int = 24) -> list:
                     ts0 = w.t_start[i] if np.isfinite(w.t_start[i]) else 0.0
                     y0 = y[ok][0] if ok.any() else 0.0
                     tau = np.linspace(0, np.nanmax(g.times[i][ok]) - ts0, 60)
-                    from .rates import _curve
+                    from .rates import rate_curve
                     base = y0 - g.values[i][ok][0] if ok.any() else 0.0
-                    ax.plot((tau + ts0) / 60, y0 + _curve(tau, c, v0, kk) - base, ":", lw=1.0,
+                    ax.plot((tau + ts0) / 60, y0 + rate_curve(tau, c, v0, kk) - base, ":", lw=1.0,
                             color=INK)
                 axr.axhline(0, color=INK, lw=0.6)
                 role = table.loc[name, "role"]
@@ -331,9 +333,9 @@ def ratelaw_plots(analysis, out):
             ax.set_ylabel("absorbance (AU)")
             k = r.params["k"]
             hl = law.half_life
-            txt = f"k = {k.value:.4g} ± {k.se:.2g} {k.unit}"
+            txt = f"k = {fmt_pm(k.value, k.se, unit=k.unit)}"
             if hl is not None:
-                txt += f"\nt½ = {hl.value:.4g} s [{hl.ci_low:.4g}, {hl.ci_high:.4g}]"
+                txt += f"\nt½ = {hl.value:.4g} s {fmt_interval(hl.ci_low, hl.ci_high)}"
             ax.text(0.98, 0.95, txt, transform=ax.transAxes, ha="right", va="top", fontsize=8,
                     bbox={"boxstyle": "round", "fc": "white", "ec": GRID})
             ax.set_title(f"{name}: integrated rate law")
@@ -410,7 +412,7 @@ def completion_plot(c, ts, path):
 
 def arrhenius_plot(a, path):
     """ln k vs 1/T with the fitted line and its confidence band; the Eyring view beside it."""
-    from scipy import stats as st
+    from scipy import stats
 
     with house_style() as plt:
         fig, axes = plt.subplots(1, 2, figsize=(10, 4), layout="constrained")
@@ -422,7 +424,7 @@ def arrhenius_plot(a, path):
             fit_y = v["intercept"] + v["slope"] * xs / 1000
             G = np.vstack([np.ones_like(xs), xs / 1000]).T
             se = np.sqrt(np.einsum("ij,jk,ik->i", G, r.cov, G)) if r.cov is not None else 0 * xs
-            tq = st.t.ppf(0.5 + r.level / 2, max(r.dof, 1))
+            tq = stats.t.ppf(0.5 + r.level / 2, max(r.dof, 1))
             ax.fill_between(xs, fit_y - tq * se, fit_y + tq * se, color=SHADE, alpha=0.18, lw=0,
                             label=f"{100 * r.level:g} % band")
             if a.k_se is not None:
@@ -466,8 +468,9 @@ def progress_plots(a, out):
         axr.set_ylabel("residual (µM)")
         axr.set_xlabel("time (min)")
         km, vm = a.params["Km"], a.params["Vmax"]
-        ax.set_title(f"integrated Michaelis–Menten, global fit: Km = {km.value:.3g} ± {km.se:.2g} µM,"
-                     f" Vmax = {vm.value:.3g} ± {vm.se:.2g} {vm.unit}", fontsize=9)
+        ax.set_title(f"integrated Michaelis–Menten, global fit: Km = "
+                     f"{fmt_pm(km.value, km.se, 3, km.unit)}, Vmax = "
+                     f"{fmt_pm(vm.value, vm.se, 3, vm.unit)}", fontsize=9)
         ax.legend(loc="upper left", fontsize=7)
         files.append(save(fig, out / "progress_fit.png"))
     if c.enzyme is not None and np.unique(c.enzyme).size > 1:
@@ -513,3 +516,26 @@ def class_summary_plot(results, rubric, path):
         ax.set_title("class distribution (orange: outside the tolerance band)")
         ax.legend(loc="best")
         return save(fig, path)
+
+
+def student_plot(figure: dict) -> bytes:
+    """One student's readings and the fit used to check their number, as PNG bytes.
+
+    ``figure`` holds ``x``, ``y``, ``fitted``, ``title`` and ``table`` (True when x is [S] from a
+    rate table rather than time in s), as :func:`rateabs.grade.grade_one` returns it.
+    """
+    with house_style() as plt:
+        fig, ax = plt.subplots(figsize=(5.6, 3.4))
+        table = figure["table"]
+        xs = figure["x"] if table else np.asarray(figure["x"]) / 60
+        fitted = figure["fitted"]
+        ax.plot(xs, figure["y"], "o", ms=3, color=PALETTE[0], label="your data")
+        ax.plot(xs[:len(fitted)], fitted, color=PALETTE[1], label="fit")
+        ax.set_xlabel("[S]" if table else "time (min)")
+        ax.set_ylabel("rate" if table else "absorbance (AU)")
+        ax.set_title(figure["title"], fontsize=9.5)
+        ax.legend(loc="best")
+        buf = io.BytesIO()
+        fig.savefig(buf, format="png", bbox_inches="tight", dpi=90)
+        plt.close(fig)
+        return buf.getvalue()

@@ -16,7 +16,7 @@ enzyme; here the test is a nested model comparison, adding first-order enzyme in
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy import special, stats
@@ -24,6 +24,7 @@ from scipy import special, stats
 from .errors import AnalysisError, UsageError
 from .fitting import FitResult, Param, f_test, fit, fmt_p
 from .models import Model
+from .units import concentration_factor
 
 
 def _p(p) -> str:
@@ -80,6 +81,33 @@ class Curves:
     p: list            # arrays, µM of product (plus an unknown baseline)
     s0: np.ndarray     # µM
     enzyme: np.ndarray | None = None
+
+
+def curves_from_absorbance(names, times, absorbance, s0_uM, enzyme=None, *, epsilon: float,
+                           pathlength_cm: float = 1.0, species: str = "product") -> Curves:
+    """Progress curves from absorbance traces by Beer–Lambert, c = A / (epsilon b).
+
+    The product formed (µM, plus a baseline the fit takes care of) is +A/(epsilon b) when the
+    product absorbs and -A/(epsilon b) when the substrate absorbs (its absorbance falls as
+    product forms). ``epsilon`` in L mol^-1 cm^-1, ``pathlength_cm`` in cm, ``s0_uM`` per curve.
+    """
+    if species not in ("product", "substrate"):
+        raise UsageError(f"unknown absorbing species {species!r}", "use product or substrate")
+    scale = (1.0 if species == "product" else -1.0) * 1e6 / (epsilon * pathlength_cm)
+    return Curves(list(names), [np.asarray(t, float) for t in times],
+                  [scale * np.asarray(a, float) for a in absorbance],
+                  np.asarray(s0_uM, float), None if enzyme is None else np.asarray(enzyme, float))
+
+
+def in_unit(params: dict, unit: str) -> dict:
+    """Parameters in µM (Km, Vmax, Kp) expressed in another concentration ``unit``: values,
+    SEs, interval bounds and the unit strings."""
+    if unit == "uM":
+        return dict(params)
+    f = 1e-6 / concentration_factor(unit)           # uM -> unit
+    return {k: replace(p, value=p.value * f, se=p.se * f, ci_low=p.ci_low * f,
+                       ci_high=p.ci_high * f, unit=p.unit.replace("uM", unit))
+            if "uM" in p.unit else p for k, p in params.items()}
 
 
 def _stack(c: Curves):
@@ -154,8 +182,10 @@ class ProgressAnalysis:
 
 
 def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptotic",
-            level: float = 0.95, selwyn: bool = False) -> ProgressAnalysis:
-    """Global integrated Michaelis–Menten fit (and Selwyn's test when enzyme amounts vary)."""
+            level: float = 0.95, selwyn: bool = False, unit: str = "uM") -> ProgressAnalysis:
+    """Global integrated Michaelis–Menten fit (and Selwyn's test when enzyme amounts vary).
+
+    Km, Vmax (and Kp) are reported in the concentration ``unit`` (the fit works in µM)."""
     if len(c.t) == 0:
         raise AnalysisError("no progress curves to fit", "give a file with curves")
     for name, t, s0 in zip(c.names, c.t, c.s0, strict=True):
@@ -209,7 +239,7 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
     if sel is not None and not sel["enzyme_stable"]:
         warnings.append("the enzyme is not stable during the assay (Selwyn's test): Km and Vmax "
                         "from this fit are biased; shorten the assay or stabilise the enzyme")
-    return ProgressAnalysis(r, params, c, sel, warnings, conv)
+    return ProgressAnalysis(r, in_unit(params, unit), c, sel, warnings, conv)
 
 
 def _initial_product(r: FitResult, i: int, c: Curves) -> float:

@@ -21,12 +21,12 @@ import numpy as np
 from scipy import stats
 
 from .errors import AnalysisError, UsageError
-from .fitting import Comparison, FitResult, Param, compare, fit
-from .models import LINE, RATE_LAWS, Model, _guess_decay, mixed2
+from .fitting import Comparison, FitResult, Param, compare, fd_step, fit
+from .models import LINE, RATE_LAWS, Model, guess_decay, mixed2
+from .options import ORDERS
 from .rates import noise_sigma
 from .traces import Grid
 
-ORDERS = ("0", "1", "2", "auto", "mixed")
 LN2 = math.log(2.0)
 
 
@@ -84,7 +84,7 @@ class RateLawResult:
 def map_param(p: Param, fn, name: str, unit: str, decreasing: bool = False) -> Param:
     """A parameter through a monotone function; the interval maps exactly, SE by the delta rule."""
     v = fn(p.value)
-    h = 1e-6 * max(abs(p.value), 1e-300)
+    h = float(fd_step(p.value, 1e-300))
     deriv = (fn(p.value + h) - fn(p.value - h)) / (2 * h)
     with np.errstate(divide="ignore"):
         lo, hi = fn(p.ci_low), fn(p.ci_high)
@@ -124,7 +124,7 @@ def mixed_model(a0: float, b0: float) -> Model:
         raise UsageError("[A]0 equals [B]0: that is plain second order", "use --order 2")
 
     def guess(t, y):
-        g = _guess_decay(t, y, 1)
+        g = guess_decay(t, y, 1)
         return {"A0": g["A0"], "Ainf": g["Ainf"], "k": g["k"] / min(a0, b0)}
 
     return Model("mixed", partial(mixed2, a0=a0, b0=b0), ("A0", "Ainf", "k"), guess,

@@ -22,6 +22,7 @@ import math
 import warnings
 from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
+from enum import IntEnum
 
 import numpy as np
 import pandas as pd
@@ -29,7 +30,7 @@ from scipy import stats
 
 from .errors import InputError, UsageError
 from .fitting import batch_lm
-from .photometry import DEFAULT_LINEAR_LIMIT
+from .options import RateSettings
 from .traces import Grid, TraceSet
 
 #: Per-trace flags: short words of our own, documented in docs/formats.md.
@@ -48,12 +49,40 @@ FLAGS = {
     "outlier": "the well is an outlier among its replicates (Grubbs test)",
 }
 
-END_REASONS = {0: "end of read", 1: "unusable readings follow (overflow or past linear range)",
-               2: "curvature: the rate slows (substrate depletion, product inhibition or enzyme "
-                  "decay)", 3: "curvature: the rate speeds up", 4: "fixed window", 5: "no window"}
+class WindowEnd(IntEnum):
+    """Why a trace's window ends (``Windows.end_reason``); :attr:`text` says it in words."""
+
+    END_OF_READ = 0
+    UNUSABLE_FOLLOW = 1
+    SLOWS = 2
+    SPEEDS_UP = 3
+    FIXED = 4
+    NO_WINDOW = 5
+
+    @property
+    def text(self) -> str:
+        """The reason in words, as the output shows it."""
+        return _END_TEXT[self]
 
 
-def _curve(t, c, v0, k):
+_END_TEXT = {
+    WindowEnd.END_OF_READ: "end of read",
+    WindowEnd.UNUSABLE_FOLLOW: "unusable readings follow (overflow or past linear range)",
+    WindowEnd.SLOWS: "curvature: the rate slows (substrate depletion, product inhibition or "
+                     "enzyme decay)",
+    WindowEnd.SPEEDS_UP: "curvature: the rate speeds up",
+    WindowEnd.FIXED: "fixed window",
+    WindowEnd.NO_WINDOW: "no window",
+}
+
+
+def window_min_points(n_times: int, min_points: int | None = None) -> int:
+    """Fewest readings in a window: ``min_points`` when given, else 5 or a tenth of the readings,
+    whichever is more (the one home of this rule)."""
+    return int(min_points) if min_points else max(5, n_times // 10)
+
+
+def rate_curve(t, c, v0, k):
     """y = c + v0 (1 - exp(-k t)) / k, with the straight line as the k -> 0 limit."""
     kt = k * t
     small = np.abs(kt) < 1e-8
@@ -63,7 +92,7 @@ def _curve(t, c, v0, k):
 
 
 def _curve_jac(t, c, v0, k):
-    """Partial derivatives of :func:`_curve` with respect to (c, v0, k); shape (B, n, 3)."""
+    """Partial derivatives of :func:`rate_curve` with respect to (c, v0, k); shape (B, n, 3)."""
     kt = k * t
     small = np.abs(kt) < 1e-6
     kk = np.where(k == 0, 1.0, k)
@@ -215,11 +244,11 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
     n_use = U.sum(axis=1)
     sigma = noise_sigma(grid, noise_floor)
     span = np.maximum(np.max(Tc, axis=1), 1e-12)
-    mp = int(min_points) if min_points else max(5, M // 10)
+    mp = window_min_points(M, min_points)
     out = {k: np.full(N, np.nan) for k in ("slope", "se", "a", "n", "r2")}
     start = np.zeros(N, dtype=int)
     end = np.full(N, -1, dtype=int)
-    reason = np.full(N, 5, dtype=int)
+    reason = np.full(N, WindowEnd.NO_WINDOW, dtype=int)
 
     if window != "auto":
         lo_t, hi_t = window
@@ -234,7 +263,7 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
         has = inside.any(axis=1)
         start = np.where(has, np.argmax(inside, axis=1), 0)
         end = np.where(has, M - 1 - np.argmax(inside[:, ::-1], axis=1), -1)
-        reason[:] = 4
+        reason[:] = WindowEnd.FIXED
     else:
         lim = int(max_lag_fraction * M)
         step = max(1, math.ceil((lim + 1) / 16))
@@ -312,8 +341,10 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
         with np.errstate(all="ignore"):
             k_start = -2 * c_ext / v_start
         slowing = np.sign(c_ext) == -np.sign(out["slope"])
-        reason = np.where(~has, 5, np.where(end >= last_usable, 0,
-                          np.where(~usable_after & masked_after, 1, np.where(slowing, 2, 3))))
+        reason = np.where(~has, WindowEnd.NO_WINDOW, np.where(
+            end >= last_usable, WindowEnd.END_OF_READ,
+            np.where(~usable_after & masked_after, WindowEnd.UNUSABLE_FOLLOW,
+                     np.where(slowing, WindowEnd.SLOWS, WindowEnd.SPEEDS_UP))))
     t_start = np.take_along_axis(T, np.clip(start, 0, M - 1)[:, None], 1)[:, 0]
     t_end = np.take_along_axis(T, np.clip(end, 0, M - 1)[:, None], 1)[:, 0]
     t_first = t0[:, 0]
@@ -363,7 +394,7 @@ def _whole_curve(Tc, Yc, U, start, slope, k_guess=None):
     if rows.size == 0:
         return cs, cse, cp
     with _quiet():
-        r = batch_lm(_curve, tau[rows], np.where(w[rows] > 0, Yc[rows], 0.0), w[rows],
+        r = batch_lm(rate_curve, tau[rows], np.where(w[rows] > 0, Yc[rows], 0.0), w[rows],
                      p0[rows], lower=lo, upper=hi, max_iter=100, want_cov=True, xtol=1e-7,
                      ftol=1e-9,
                      jac=_curve_jac)
@@ -377,29 +408,6 @@ def _whole_curve(Tc, Yc, U, start, slope, k_guess=None):
 
 
 # --------------------------------------------------------------------------- the plate
-
-
-@dataclass(frozen=True)
-class RateSettings:
-    """What the user set for a rates analysis (all in base units)."""
-
-    epsilon: float | None = None          # L mol^-1 cm^-1
-    epsilon_se: float = 0.0
-    pathlength_cm: float = 1.0
-    total_volume_L: float | None = None
-    sample_volume_L: float | None = None
-    protein_mg_per_mL: float | None = None
-    dilution: float = 1.0
-    window: object = "auto"
-    min_points: int | None = None
-    blank: str = "auto"                   # auto, slope, trace, none
-    direction: str = "auto"               # auto, up, down
-    linear_limit: float = DEFAULT_LINEAR_LIMIT
-    noisy_rel_se: float = 0.10
-    katal: bool = False
-    slope_from: str = "window"            # window, curve
-    curve: bool = True                    # also fit the whole-curve estimate
-    calibrate: str = "auto"               # auto (standards when no epsilon), standards, none
 
 
 @dataclass
@@ -445,7 +453,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     roles, concentrations, dilutions and replicate groups.
     """
     st = settings or RateSettings()
-    warnings: list[str] = []
+    notes: list[str] = []
     ts = ts.mask_above(st.linear_limit)
     names = ts.names
     meta = pd.DataFrame(index=pd.Index(names, name="trace"))
@@ -457,7 +465,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
             ts = ts.select([n for n in names if n not in excluded])
             meta = meta.drop(index=excluded)
             names = ts.names
-            warnings.append(f"{len(excluded)} well(s) excluded by the plate map")
+            notes.append(f"{len(excluded)} well(s) excluded by the plate map")
     if "role" not in meta.columns:
         meta["role"] = "sample"
     meta["role"] = meta["role"].fillna("sample")
@@ -526,21 +534,22 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     # per-trace columns and flags, as whole arrays (no per-trace arithmetic in Python)
     m = meta.loc[g.names]
     n_use = g.usable.sum(axis=1)
+    min_n = window_min_points(g.values.shape[1], st.min_points)
     method = np.asarray(win.method).astype(str)
     cs, cse = win.curve_slope * 60, win.curve_slope_se * 60
     raw_b, raw_se = win.slope * 60, win.slope_se * 60
     not_ctrl = ~np.isin(roles, ["blank", "negative", "standard"])
-    with np.errstate(all="ignore"):
+    with np.errstate(all="ignore"), _quiet():     # no usable sample slope: med is NaN
         rel = slope_se / np.abs(slope)
         diff = np.abs(cs - raw_b)
         med = np.nanmedian(np.abs(slope[sample_like])) if sample_like.any() else np.nan
         blank_sig = np.abs(raw_slope) > 3 * raw_win.slope_se * 60
     masks = {
-        "few-points": (method == "none") & (n_use < max(5, g.values.shape[1] // 10)),
-        "no-linear": ((method == "none") & (n_use >= max(5, g.values.shape[1] // 10)))
+        "few-points": (method == "none") & (n_use < min_n),
+        "no-linear": ((method == "none") & (n_use >= min_n))
                      | ((method == "curve") & ~window_found),
         "lag": win.lag_s > 0,
-        "curved": np.isin(win.end_reason, [2, 3]),
+        "curved": np.isin(win.end_reason, [WindowEnd.SLOWS, WindowEnd.SPEEDS_UP]),
         "noisy": np.isfinite(rel) & (rel > st.noisy_rel_se) & not_ctrl,
         "disagree": (method == "window") & not_ctrl & np.isfinite(cs) & np.isfinite(cse)
                     & (diff > 3 * np.hypot(cse, raw_se)) & (diff > 0.15 * np.abs(raw_b)),
@@ -555,7 +564,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
             "slope_raw_A_per_min": np.where(method == "window", raw_b, cs),
             "window_start_s": win.t_start, "window_end_s": win.t_end,
             "n_points": np.nan_to_num(win.n).astype(int), "r2": win.r2, "lag_s": win.lag_s,
-            "window_end_reason": [END_REASONS[int(r)] for r in win.end_reason],
+            "window_end_reason": [WindowEnd(int(r)).text for r in win.end_reason],
             "curve_slope_A_per_min": cs, "curve_slope_A_per_min_se": cse, "noise_A": win.sigma,
             "substrate_uM": m["substrate_M"].to_numpy(float) * 1e6,
             "inhibitor_uM": m["inhibitor_M"].to_numpy(float) * 1e6,
@@ -609,15 +618,15 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
             lambda f: f + ["outlier"])
     zp = z_prime(table, value_col)
     if not eps:
-        warnings.append("no molar absorptivity given (--epsilon or --chromophore) and no "
+        notes.append("no molar absorptivity given (--epsilon or --chromophore) and no "
                         "standard curve: rates are in A/min only")
     n_flag = int(sum(bool(f) for f in table["flags"]))
     if n_flag:
-        warnings.append(f"{n_flag} of {len(table)} traces carry flags; read them before using "
+        notes.append(f"{n_flag} of {len(table)} traces carry flags; read them before using "
                         "their rates")
     if zp and zp.get("value") is not None and zp["value"] < 0.5:
-        warnings.append(f"Z' = {zp['value']:.2f} is below 0.5: the controls do not separate well")
-    return RatesAnalysis(table, reps, zp, win, analysed, st, warnings, blank_info)
+        notes.append(f"Z' = {zp['value']:.2f} is below 0.5: the controls do not separate well")
+    return RatesAnalysis(table, reps, zp, win, analysed, st, notes, blank_info)
 
 
 def standard_curve(ts: TraceSet, meta: pd.DataFrame, st: RateSettings) -> dict | None:

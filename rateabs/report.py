@@ -12,6 +12,7 @@ import math
 from pathlib import Path
 
 from . import __version__
+from .fitting import fmt_interval, fmt_pm
 
 CAUTIONS = (
     "rateabs results are for research and teaching and are not for clinical diagnosis.",
@@ -186,11 +187,6 @@ def flatten_results(results: list[dict]) -> tuple[list[dict], list[tuple[str, st
 def _param_cell(p: dict) -> str:
     if not p or p.get("value") is None:
         return "-"
-    s = f"{p['value']:.4g}"
-    if p.get("se") is not None:
-        s += f" ± {p['se']:.2g}"
-    if p.get("ci_low") is not None and p.get("ci_high") is not None:
-        s += f" [{p['ci_low']:.4g}, {p['ci_high']:.4g}]"
-    if p.get("unit"):
-        s += f" {p['unit']}"
-    return s
+    interval = fmt_interval(p.get("ci_low"), p.get("ci_high"))
+    text = fmt_pm(p["value"], p.get("se")) + ("" if interval == "-" else f" {interval}")
+    return f"{text} {p['unit']}" if p.get("unit") else text

@@ -25,10 +25,10 @@ from .errors import FitError, InputError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, fit
 from .io import number_column, pick_column
 from .models import INHIBITION_MODELS, NESTED, SATURATION, SUBSTRATE_MODELS, direct_linear_plot
+from .options import MODELS
 from .units import TIME_UNITS, concentration_factor, unit_from_header
 
-MODEL_CHOICES = ("mm", "hill", "substrate-inhibition", "competitive", "uncompetitive",
-                 "noncompetitive", "mixed", "ic50", "auto")
+MODEL_CHOICES = MODELS          # the --model choices (rateabs.options)
 
 _CONC = re.compile(r"^(s|\[s\]|s0|substrate|conc|concentration|x)([\s_(\[]|$)", re.I)
 _RATE = re.compile(r"^(v|v0|vi|rate|velocity|activity|initial[\s_]rate|y)([\s_(\[]|$)", re.I)
@@ -181,15 +181,11 @@ def cheng_prusoff(ic50: Param, mode: str, s: float, km: float) -> Param:
                  ic50.ci_high * factor, ic50.ci_method, ic50.unit)
 
 
-def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic",
-            level: float = 0.95, weighting: str = "none", fix: dict | None = None,
-            enzyme_M: float | None = None, n_boot: int = 2000, resample: str = "residual",
-            seed: int = 0, mode: str | None = None, substrate: float | None = None,
-            km: float | None = None) -> SaturationAnalysis:
-    """Fit the requested model (or every candidate for ``auto``) and derive constants."""
+def _candidates(data: SaturationData, model: str) -> tuple[list, np.ndarray, dict, list]:
+    """The models to fit, their x (substrate, or substrate and inhibitor stacked), the units
+    of the parameters and any warning about the choice."""
     if model not in MODEL_CHOICES:
         raise UsageError(f"unknown model {model!r}", f"use one of {', '.join(MODEL_CHOICES)}")
-    warn: list[str] = []
     units = {"x": data.conc_unit, "y": data.rate_unit, "i": data.inhib_unit}
     has_i = data.i is not None
     levels = np.unique(data.i) if has_i else np.array([])
@@ -197,38 +193,44 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
         if not has_i:
             raise UsageError("the ic50 model needs the inhibitor concentrations",
                              "name the column with --inhibitor")
-        candidates = ["ic50"]
-        x = data.i
-        units["x"] = data.inhib_unit
-    elif model == "auto":
+        return ["ic50"], data.i, {**units, "x": data.inhib_unit}, []
+    if model == "auto":
         candidates = list(INHIBITION_MODELS if has_i and levels.size >= 2 else SUBSTRATE_MODELS)
     else:
         candidates = [model]
-    if any(c in INHIBITION_MODELS for c in candidates):
+    if candidates[0] in INHIBITION_MODELS:
         if not has_i:
             raise UsageError(f"the {candidates[0]} model needs an inhibitor column",
                              "name it with --inhibitor")
         if levels.size < 2:
             raise FitError("a global inhibition fit needs at least two inhibitor levels "
                            f"(found only {levels.size})", "add rates without and with inhibitor")
-        x = np.vstack([data.s, data.i])
-    elif model != "ic50":
-        x = data.s
-        if has_i and levels.size > 1:
-            warn.append("the table has several inhibitor levels but a one-substrate model was "
-                        "asked for; all rows are fitted together")
-    if np.all(data.v == 0):
-        raise FitError("every rate is zero", "check the rate column and the blank subtraction")
+        return candidates, np.vstack([data.s, data.i]), units, []
+    warn = []
+    if has_i and levels.size > 1:
+        warn.append("the table has several inhibitor levels but a one-substrate model was "
+                    "asked for; all rows are fitted together")
+    return candidates, data.s, units, warn
 
+
+def _check_fix_names(fix: dict | None, candidates) -> None:
+    unknown = set(fix or {}) - {p for c in candidates for p in SATURATION[c].params}
+    if unknown:
+        raise UsageError(f"--fix names {sorted(unknown)[0]!r}, which no candidate model has",
+                         "check the parameter name (Vmax, Km, S50, n, Ksi, Ki, Kiu, IC50, v_free, "
+                         "v_floor)")
+
+
+def _fit_candidates(candidates, x, data: SaturationData, fix, fit_kw) -> tuple[dict, dict]:
+    """Every candidate fitted (or the reason it could not be)."""
     fits: dict[str, FitResult] = {}
     failed: dict[str, str] = {}
     for name in candidates:
         mdl = SATURATION[name]
         try:
-            fits[name] = fit(mdl, x, data.v, weighting=weighting, sd=data.sd,
+            fits[name] = fit(mdl, x, data.v, weighting=fit_kw["weighting"], sd=data.sd,
                              fix={k: v for k, v in (fix or {}).items() if k in mdl.params},
-                             ci=ci, level=level, n_boot=n_boot, resample=resample, seed=seed,
-                             units=units)
+                             **{k: v for k, v in fit_kw.items() if k != "weighting"})
         except FitError as exc:
             failed[name] = exc.problem
             continue
@@ -241,20 +243,23 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
                     "concentration, so no decline of the rate is observed"))
     if not fits:
         raise FitError("no model could be fitted", "; ".join(f"{k}: {v}" for k, v in failed.items()))
-    unknown_fix = set(fix or {}) - {p for c in candidates for p in SATURATION[c].params}
-    if unknown_fix:
-        raise UsageError(f"--fix names {sorted(unknown_fix)[0]!r}, which no candidate model has",
-                         "check the parameter name (Vmax, Km, S50, n, Ksi, Ki, Kiu, IC50, v_free...)")
-    if len(candidates) > 1:
-        comp = compare(fits, NESTED, failed)
-        chosen = comp.chosen
-    else:
-        comp = None
-        chosen = candidates[0]
-        if not fits[chosen].success:
-            warn.append(f"{chosen}: {fits[chosen].message}")
+    return fits, failed
 
-    derived = {}
+
+def _mixed_alpha(r: FitResult, level: float) -> Param:
+    """alpha = Kiu / Ki of the mixed model, its interval on the log scale (delta method)."""
+    a = r.params["Kiu"].value / r.params["Ki"].value
+    rel = math.hypot(r.params["Kiu"].se / r.params["Kiu"].value,
+                     r.params["Ki"].se / r.params["Ki"].value)
+    zq = stats.norm.ppf(0.5 + level / 2)
+    spread = math.exp(min(zq * rel, 700.0)) if np.isfinite(rel) else float("nan")
+    return Param("alpha", a, a * rel, a / spread, a * spread, "delta-method (log scale)", "")
+
+
+def _derived(fits: dict, chosen: str, data: SaturationData, level: float, enzyme_M, cp: dict
+             ) -> tuple[dict, list]:
+    """kcat and kcat/Km, the mixed model's alpha and the Cheng–Prusoff Ki, per fit."""
+    derived, warn = {}, []
     for name, r in fits.items():
         d = {}
         if enzyme_M is not None and name != "ic50":
@@ -263,46 +268,70 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
             if why and name == chosen:
                 warn.append(why)
         if name == "mixed":
-            a = r.params["Kiu"].value / r.params["Ki"].value
-            rel = math.hypot(r.params["Kiu"].se / r.params["Kiu"].value,
-                             r.params["Ki"].se / r.params["Ki"].value)
-            zq = stats.norm.ppf(0.5 + level / 2)
-            spread = math.exp(min(zq * rel, 700.0)) if np.isfinite(rel) else float("nan")
-            d["alpha"] = Param("alpha", a, a * rel, a / spread, a * spread,
-                               "delta-method (log scale)", "")
-        if name == "ic50" and mode and substrate is not None and km is not None:
-            d["Ki"] = cheng_prusoff(r.params["IC50"], mode, substrate, km)
+            d["alpha"] = _mixed_alpha(r, level)
+        if name == "ic50" and cp.get("mode") and cp.get("substrate") is not None and (
+                cp.get("km") is not None):
+            d["Ki"] = cheng_prusoff(r.params["IC50"], cp["mode"], cp["substrate"], cp["km"])
         derived[name] = d
+    return derived, warn
 
+
+def _design_checks(data: SaturationData, best: FitResult, chosen: str) -> tuple[dict, list]:
+    """The direct-linear-plot cross-check and warnings about the range of [S] and the residuals."""
+    has_i = data.i is not None
+    cross, warn = {}, []
+    base = data.i == np.min(data.i) if has_i else np.ones(data.s.size, bool)
+    if np.unique(data.s[base]).size >= 2:
+        vm, kmd = direct_linear_plot(data.s[base], data.v[base])
+        cross = {"method": "direct linear plot medians (Eisenthal & Cornish-Bowden 1974)",
+                 "Vmax": vm, "Km": kmd, "subset": "lowest inhibitor level" if has_i else "all"}
+    kname = "Km" if "Km" in best.params else ("S50" if "S50" in best.params else None)
+    if kname:
+        kval = best.params[kname].value
+        smax = float(np.max(data.s))
+        smin = float(np.min(data.s[data.s > 0])) if np.any(data.s > 0) else 0.0
+        if smax < 2.5 * kval:
+            warn.append(f"the highest substrate concentration is only {smax / kval:.2g} x "
+                        f"{kname}: Vmax is poorly determined; extend the series to 3 {kname} "
+                        "or more")
+        if smin > kval:
+            warn.append(f"the lowest substrate concentration is above {kname} "
+                        f"({smin:g} > {kval:.3g}): {kname} is poorly determined; add lower "
+                        "concentrations")
+    if np.isfinite(best.runs_p) and best.runs_p < 0.05:
+        warn.append(f"{chosen}: residuals are not random (runs test p = {best.runs_p:.2g}); "
+                    "the model may not describe these data")
+    return cross, warn
+
+
+def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic",
+            level: float = 0.95, weighting: str = "none", fix: dict | None = None,
+            enzyme_M: float | None = None, n_boot: int = 2000, resample: str = "residual",
+            seed: int = 0, mode: str | None = None, substrate: float | None = None,
+            km: float | None = None) -> SaturationAnalysis:
+    """Fit the requested model (or every candidate for ``auto``) and derive constants."""
+    candidates, x, units, warn = _candidates(data, model)
+    _check_fix_names(fix, candidates)
+    if np.all(data.v == 0):
+        raise FitError("every rate is zero", "check the rate column and the blank subtraction")
+    fits, failed = _fit_candidates(candidates, x, data, fix, {
+        "weighting": weighting, "ci": ci, "level": level, "n_boot": n_boot,
+        "resample": resample, "seed": seed, "units": units})
+    comp = compare(fits, NESTED, failed) if len(candidates) > 1 else None
+    chosen = comp.chosen if comp is not None else candidates[0]
+    if comp is None and not fits[chosen].success:
+        warn.append(f"{chosen}: {fits[chosen].message}")
+    derived, more = _derived(fits, chosen, data, level, enzyme_M,
+                             {"mode": mode, "substrate": substrate, "km": km})
     cross = {}
     if model != "ic50":
-        base = data.i == np.min(data.i) if has_i else np.ones(data.s.size, bool)
-        if np.unique(data.s[base]).size >= 2:
-            vm, kmd = direct_linear_plot(data.s[base], data.v[base])
-            cross = {"method": "direct linear plot medians (Eisenthal & Cornish-Bowden 1974)",
-                     "Vmax": vm, "Km": kmd, "subset": "lowest inhibitor level" if has_i else "all"}
-        best = fits[chosen]
-        kname = "Km" if "Km" in best.params else ("S50" if "S50" in best.params else None)
-        if kname:
-            kval = best.params[kname].value
-            smax, smin = float(np.max(data.s)), float(np.min(data.s[data.s > 0]) if np.any(
-                data.s > 0) else 0)
-            if smax < 2.5 * kval:
-                warn.append(f"the highest substrate concentration is only {smax / kval:.2g} x "
-                            f"{kname}: Vmax is poorly determined; extend the series to 3 {kname} "
-                            "or more")
-            if smin > kval:
-                warn.append(f"the lowest substrate concentration is above {kname} "
-                            f"({smin:g} > {kval:.3g}): {kname} is poorly determined; add lower "
-                            "concentrations")
-        if np.isfinite(best.runs_p) and best.runs_p < 0.05:
-            warn.append(f"{chosen}: residuals are not random (runs test p = {best.runs_p:.2g}); "
-                        "the model may not describe these data")
-    return SaturationAnalysis(fits, comp, chosen, derived, cross, warn, data)
+        cross, checks = _design_checks(data, fits[chosen], chosen)
+        more += checks
+    return SaturationAnalysis(fits, comp, chosen, derived, cross, warn + more, data)
 
 
 def results_json(a: SaturationAnalysis) -> list[dict]:
-    """One JSON result per fitted model (fields of design.md §5)."""
+    """One JSON result per fitted model (fields listed in docs/formats.md)."""
     out = []
     rows = {r["model"]: r for r in (a.comparison.rows if a.comparison else [])}
     for name, r in a.fits.items():

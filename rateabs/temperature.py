@@ -22,6 +22,7 @@ from .errors import AnalysisError, InputError
 from .fitting import FitResult, Param, fit
 from .io import number_column, pick_column
 from .models import LINE
+from .units import celsius_to_kelvin
 
 R = constants.R
 KB = constants.k
@@ -91,7 +92,7 @@ def read_temperature_table(df: pd.DataFrame, *, temp_col=None, k_col=None, se_co
             raise InputError("cannot tell whether the temperatures are in C or K",
                              "put the unit in the header, e.g. 'T (C)', or give --temp-unit",
                              file=path, column=tc)
-    T_K = T + 273.15 if unit == "C" else T
+    T_K = celsius_to_kelvin(T) if unit == "C" else T
     if np.any(T_K <= 0):
         i = int(np.argmax(T_K <= 0))
         raise InputError(f"temperature {T[i]:g} {unit} is not above absolute zero",

@@ -5,10 +5,16 @@ pathlength in cm, molar absorptivity in L mol^-1 cm^-1, temperature in K, mass c
 mg/mL. Users write quantities as strings ("6.22 mM^-1 cm^-1", "200 uL", "30 s", "25 C"); the
 parsers here turn them into base-unit floats. A bare number takes the documented default unit.
 
+:func:`quantity` only converts; the ``parse_*`` functions add the physical limits of their kind
+(a pathlength and a molar absorptivity are positive, a temperature is above absolute zero). The
+ranges of command options are checked in :mod:`rateabs.options`.
+
 >>> parse_time("2 min")
 120.0
 >>> parse_epsilon("6.22 mM^-1 cm^-1")
 6220.0
+>>> quantity("2 mL", "volume")
+0.002
 """
 
 from __future__ import annotations
@@ -17,8 +23,8 @@ import re
 
 from .errors import UnitError
 
-_NUMBER = r"[-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?"
-_QUANTITY = re.compile(rf"^\s*(?P<num>{_NUMBER})\s*(?P<unit>.*?)\s*$")
+_NUMBER = r"[-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?|[-+]?(?:nan|inf(?:inity)?)"
+_QUANTITY = re.compile(rf"^\s*(?P<num>{_NUMBER})\s*(?P<unit>.*?)\s*$", re.IGNORECASE)
 
 #: SI-style prefixes in the spellings people type (u and µ and μ for micro).
 PREFIX = {"": 1.0, "k": 1e3, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "n": 1e-9, "p": 1e-12}
@@ -29,6 +35,32 @@ TIME_UNITS = {
     "h": 3600.0, "hr": 3600.0, "hrs": 3600.0, "hour": 3600.0, "hours": 3600.0,
     "d": 86400.0, "day": 86400.0, "days": 86400.0,
 }
+
+#: 0 °C in kelvin, exact by the definition of the Celsius scale (BIPM, The International System
+#: of Units, SI Brochure, 9th edition 2019, section 2.3.1).
+ZERO_CELSIUS_K = 273.15
+
+EXAMPLES = {
+    "time": "30 s", "volume": "200 uL", "concentration": "50 uM", "pathlength": "1 cm",
+    "molar absorptivity": "6220 M^-1 cm^-1", "temperature": "25 C",
+    "mass concentration": "0.5 mg/mL",
+}
+
+#: The default unit of a bare number, per kind of quantity.
+DEFAULT_UNITS = {
+    "time": "s", "volume": "uL", "concentration": "uM", "pathlength": "cm",
+    "molar absorptivity": "M^-1 cm^-1", "temperature": "C", "mass concentration": "mg/mL",
+}
+
+
+def celsius_to_kelvin(t_c):
+    """Temperature in kelvin from degrees Celsius (works on numbers and arrays)."""
+    return t_c + ZERO_CELSIUS_K
+
+
+def kelvin_to_celsius(t_k):
+    """Temperature in degrees Celsius from kelvin (works on numbers and arrays)."""
+    return t_k - ZERO_CELSIUS_K
 
 
 def _split(text: str | float | int, what: str) -> tuple[float, str]:
@@ -41,50 +73,27 @@ def _split(text: str | float | int, what: str) -> tuple[float, str]:
     return float(m.group("num").replace(",", ".")), m.group("unit").strip()
 
 
-EXAMPLES = {
-    "time": "30 s", "volume": "200 uL", "concentration": "50 uM", "pathlength": "1 cm",
-    "molar absorptivity": "6220 M^-1 cm^-1", "temperature": "25 C",
-    "mass concentration": "0.5 mg/mL", "amount": "10 nM",
-}
-
-
 def _fail(what: str, text: str, unit: str, known: str) -> UnitError:
     return UnitError(f"unknown {what} unit {unit!r} in {text!r}",
                      f"use one of {known}, e.g. {EXAMPLES[what]!r}")
-
-
-def parse_time(text: str | float, default: str = "s") -> float:
-    """Parse a duration such as ``"30 s"``, ``"2 min"``, ``"1.5 h"``; returns seconds."""
-    value, unit = _split(text, "time")
-    unit = (unit or default).lower()
-    if unit not in TIME_UNITS:
-        raise _fail("time", str(text), unit, "s, min, h")
-    return value * TIME_UNITS[unit]
 
 
 def _prefixed(unit: str, base: str) -> float | None:
     """Factor of a prefixed unit such as ``uL`` relative to ``base`` (``L``), or None."""
     if not unit.endswith(base):
         return None
-    prefix = unit[: -len(base)]
-    return PREFIX.get(prefix)
+    return PREFIX.get(unit[: -len(base)])
 
 
-def parse_volume(text: str | float, default: str = "uL") -> float:
-    """Parse a volume such as ``"200 uL"`` or ``"1 mL"``; returns litres."""
-    value, unit = _split(text, "volume")
-    unit = unit or default
+def time_factor(unit: str) -> float | None:
+    """Seconds per ``unit`` (s, min, h, d and their spellings), or None."""
+    return TIME_UNITS.get(unit.lower())
+
+
+def volume_factor(unit: str) -> float | None:
+    """Litres per ``unit`` (L, mL, uL, nL), or None."""
     unit = unit.replace("l", "L") if unit.lower().endswith("l") else unit
-    factor = _prefixed(unit, "L")
-    if factor is None:
-        raise _fail("volume", str(text), unit, "L, mL, uL, nL")
-    return value * factor
-
-
-def parse_concentration(text: str | float, default: str = "uM") -> float:
-    """Parse a molar concentration such as ``"50 uM"``, ``"1 mM"``, ``"2 mol/L"``; returns mol/L."""
-    value, unit = _split(text, "concentration")
-    return value * concentration_factor(unit or default, str(text))
+    return _prefixed(unit, "L")
 
 
 def concentration_factor(unit: str, text: str | None = None) -> float:
@@ -100,51 +109,110 @@ def concentration_factor(unit: str, text: str | None = None) -> float:
     raise _fail("concentration", text or unit, unit, "M, mM, uM, nM")
 
 
+def pathlength_factor(unit: str) -> float | None:
+    """Centimetres per ``unit`` (cm, mm, m, um), or None."""
+    return {"cm": 1.0, "mm": 0.1, "m": 100.0, "um": 1e-4, "µm": 1e-4}.get(unit)
+
+
+_EPSILON_FORMS = {
+    "M^-1cm^-1": 1.0, "1/(M*cm)": 1.0, "/M/cm": 1.0, "L/(mol*cm)": 1.0, "Lmol^-1cm^-1": 1.0,
+    "L/mol/cm": 1.0, "mM^-1cm^-1": 1e3, "1/(mM*cm)": 1e3, "/mM/cm": 1e3,
+    "uM^-1cm^-1": 1e6, "/uM/cm": 1e6, "cm^-1M^-1": 1.0, "cm^-1mM^-1": 1e3,
+}
+
+
+def epsilon_factor(unit: str) -> float | None:
+    """L mol^-1 cm^-1 per ``unit`` ("M^-1 cm^-1", "mM^-1 cm^-1", "L/(mol*cm)", ...), or None."""
+    u = unit.replace(" ", "").replace("⁻¹", "^-1").replace("−", "-").replace("**", "^")
+    return _EPSILON_FORMS.get(u)
+
+
+def mass_concentration_factor(unit: str) -> float | None:
+    """mg/mL per ``unit`` (mg/mL, ug/mL, g/L...), or None."""
+    u = unit.replace(" ", "")
+    m = re.fullmatch(r"([kmuµμn]?)g/([mun]?)L", u) or re.fullmatch(r"([kmuµμn]?)g/([mun]?)l", u)
+    if not m:
+        return None
+    return (PREFIX[m.group(1)] / 1e-3) / (PREFIX[m.group(2)] / 1e-3)
+
+
+def _temperature_k(value: float, unit: str, text: str) -> float:
+    u = unit.replace("°", "").replace("deg", "").strip().upper()
+    if u in ("C", "CELSIUS"):
+        return celsius_to_kelvin(value)
+    if u in ("K", "KELVIN"):
+        return value
+    raise _fail("temperature", text, unit, "C or K")
+
+
+_FACTORS = {"time": (time_factor, "s, min, h"), "volume": (volume_factor, "L, mL, uL, nL"),
+            "pathlength": (pathlength_factor, "cm, mm"),
+            "molar absorptivity": (epsilon_factor, "M^-1 cm^-1 or mM^-1 cm^-1"),
+            "mass concentration": (mass_concentration_factor, "mg/mL, ug/mL, g/L")}
+
+
+def quantity(text: str | float, kind: str, default: str | None = None) -> float:
+    """A quantity string of ``kind`` (a key of :data:`EXAMPLES`) in its base unit, unchecked.
+
+    A Python number is returned as it is (taken to be in the base unit already); a bare number in
+    a string takes ``default`` (else the kind's :data:`DEFAULT_UNITS`).
+    """
+    if isinstance(text, (int, float)) and not isinstance(text, bool):
+        return float(text)
+    value, unit = _split(text, kind)
+    unit = unit or default or DEFAULT_UNITS[kind]
+    if kind == "temperature":
+        return _temperature_k(value, unit, str(text))
+    if kind == "concentration":
+        return value * concentration_factor(unit, str(text))
+    factor_of, known = _FACTORS[kind]
+    factor = factor_of(unit)
+    if factor is None:
+        raise _fail(kind, str(text), unit, known)
+    return value * factor
+
+
+def _positive(value: float, what: str, text, fix: str) -> float:
+    if not value > 0:
+        raise UnitError(f"{what} {text!r} must be positive", fix)
+    return value
+
+
+def parse_time(text: str | float, default: str = "s") -> float:
+    """Parse a duration such as ``"30 s"``, ``"2 min"``, ``"1.5 h"``; returns seconds."""
+    return quantity(text, "time", default)
+
+
+def parse_volume(text: str | float, default: str = "uL") -> float:
+    """Parse a volume such as ``"200 uL"`` or ``"1 mL"``; returns litres."""
+    return quantity(text, "volume", default)
+
+
+def parse_concentration(text: str | float, default: str = "uM") -> float:
+    """Parse a molar concentration such as ``"50 uM"``, ``"1 mM"``, ``"2 mol/L"``; returns mol/L."""
+    return quantity(text, "concentration", default)
+
+
 def parse_pathlength(text: str | float, default: str = "cm") -> float:
-    """Parse a pathlength such as ``"1"``, ``"1 cm"``, ``"10 mm"``; returns cm."""
-    value, unit = _split(text, "pathlength")
-    unit = unit or default
-    factors = {"cm": 1.0, "mm": 0.1, "m": 100.0, "um": 1e-4, "µm": 1e-4}
-    if unit not in factors:
-        raise _fail("pathlength", str(text), unit, "cm, mm")
-    if value <= 0:
-        raise UnitError(f"pathlength {text!r} must be positive", "give it in cm, e.g. '1 cm'")
-    return value * factors[unit]
+    """Parse a pathlength such as ``"1"``, ``"1 cm"``, ``"10 mm"``; returns cm (positive)."""
+    return _positive(quantity(text, "pathlength", default), "pathlength", text,
+                     "give it in cm, e.g. '1 cm'")
 
 
 def parse_epsilon(text: str | float, default: str = "M^-1 cm^-1") -> float:
-    """Parse a molar absorptivity; returns L mol^-1 cm^-1.
+    """Parse a molar absorptivity; returns L mol^-1 cm^-1 (positive).
 
     Accepted spellings: ``"6220"``, ``"6220 M^-1 cm^-1"``, ``"6.22 mM^-1 cm^-1"``,
     ``"6220 L/(mol*cm)"``, ``"6.22 /mM/cm"``.
     """
-    value, unit = _split(text, "molar absorptivity")
-    u = (unit or default).replace(" ", "").replace("⁻¹", "^-1").replace("−", "-")
-    u = u.replace("**", "^")
-    forms = {
-        "M^-1cm^-1": 1.0, "1/(M*cm)": 1.0, "/M/cm": 1.0, "L/(mol*cm)": 1.0, "Lmol^-1cm^-1": 1.0,
-        "L/mol/cm": 1.0, "mM^-1cm^-1": 1e3, "1/(mM*cm)": 1e3, "/mM/cm": 1e3,
-        "uM^-1cm^-1": 1e6, "/uM/cm": 1e6, "cm^-1M^-1": 1.0, "cm^-1mM^-1": 1e3,
-    }
-    if u not in forms:
-        raise _fail("molar absorptivity", str(text), unit, "M^-1 cm^-1 or mM^-1 cm^-1")
-    if value <= 0:
-        raise UnitError(f"molar absorptivity {text!r} must be positive",
-                        "give it in M^-1 cm^-1, e.g. '6220 M^-1 cm^-1'")
-    return value * forms[u]
+    return _positive(quantity(text, "molar absorptivity", default), "molar absorptivity", text,
+                     "give it in M^-1 cm^-1, e.g. '6220 M^-1 cm^-1'")
 
 
 def parse_temperature(text: str | float, default: str = "C") -> float:
     """Parse a temperature such as ``"25 C"``, ``"25 °C"``, ``"298.15 K"``; returns kelvin."""
-    value, unit = _split(text, "temperature")
-    u = (unit or default).replace("°", "").replace("deg", "").strip().upper()
-    if u in ("C", "CELSIUS"):
-        kelvin = value + 273.15
-    elif u in ("K", "KELVIN"):
-        kelvin = value
-    else:
-        raise _fail("temperature", str(text), unit, "C or K")
-    if kelvin <= 0:
+    kelvin = quantity(text, "temperature", default)
+    if not kelvin > 0:
         raise UnitError(f"temperature {text!r} is not above absolute zero",
                         "give it in C or K, e.g. '25 C'")
     return kelvin
@@ -152,23 +220,7 @@ def parse_temperature(text: str | float, default: str = "C") -> float:
 
 def parse_mass_concentration(text: str | float, default: str = "mg/mL") -> float:
     """Parse a protein concentration such as ``"0.5 mg/mL"``, ``"200 ug/mL"``; returns mg/mL."""
-    value, unit = _split(text, "mass concentration")
-    u = (unit or default).replace(" ", "")
-    m = re.fullmatch(r"([kmuµμn]?)g/([mun]?)L", u, flags=0) or re.fullmatch(
-        r"([kmuµμn]?)g/([mun]?)l", u)
-    if not m:
-        raise _fail("mass concentration", str(text), unit, "mg/mL, ug/mL, g/L")
-    mass = PREFIX[m.group(1)] / 1e-3       # in mg
-    vol = PREFIX[m.group(2)] / 1e-3        # in mL
-    return value * mass / vol
-
-
-def parse_number(text: str | float, what: str = "number") -> float:
-    """Parse a plain number (decimal point or comma)."""
-    try:
-        return float(str(text).strip().replace(",", "."))
-    except ValueError:
-        raise UnitError(f"cannot read {what} {text!r} as a number", "write a plain number") from None
+    return quantity(text, "mass concentration", default)
 
 
 def unit_from_header(header: str) -> str:
@@ -181,7 +233,3 @@ def unit_from_header(header: str) -> str:
     if m:
         return m.group(1).replace("_per_", "/")
     return ""
-
-
-#: Display names and factors of concentration units for output, base mol/L.
-CONC_DISPLAY = {"M": 1.0, "mM": 1e-3, "uM": 1e-6, "nM": 1e-9}

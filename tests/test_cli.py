@@ -64,3 +64,13 @@ def test_public_api_names_resolve():
 
     for name in rateabs.__all__:
         assert getattr(rateabs, name) is not None, name
+
+
+def test_csv_numbers_are_plain_numbers():
+    """numpy 2 writes repr(np.float64(x)) as 'np.float64(x)': CSV cells must be plain numbers."""
+    r = CliRunner().invoke(main, ["ratelaw", str(SAMPLES / "process_kestrel_red_probe.csv"),
+                                  "--format", "csv", "--no-plots"])
+    assert r.exit_code == 0, r.output
+    header, row = r.stdout.splitlines()[:2]
+    assert "temperature_K" in header and "np." not in row
+    assert float(row.split(",")[header.split(",").index("temperature_K")]) > 273

@@ -1,16 +1,15 @@
-"""Views: turn command options into analysis settings (units parsed once, at the boundary) and
-analysis results into the JSON document, the table for a person, CSV and plots.
+"""Views: run a command from its settings object (:mod:`rateabs.options`) and present the
+analysis results as the JSON document, the table for a person, CSV, plots and a report.
 
-The CLI and the demo both call the ``run_*`` functions; the analyses below never print or read
-options. One module per command; shared helpers here.
+The CLI and the demo both call the ``run_*`` functions with a settings object; ``compute_*``
+returns the :class:`View` without printing. The analyses below never print or read options. One
+module per command; shared helpers here.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
 from pathlib import Path
-
-import numpy as np
 
 from ..errors import UsageError
 from ..output import write_text
@@ -24,8 +23,6 @@ class View:
     table: str
     csv: str
     analysis: object = None
-
-
 
 
 def write_outputs(doc: dict, csv_text: str, out, name: str) -> None:
@@ -42,61 +39,65 @@ def write_only(fmt, doc, table_text, csv_text, out, name) -> None:
     write_outputs(doc, csv_text, out, name)
 
 
-def deliver(o: dict, emit, view: View, name: str, plot=None) -> list[Path]:
+def deliver(o, emit, view: View, name: str, plot=None) -> list[Path]:
     """Print the view, write --out files and plots, and the --report page; returns the plots.
 
-    ``plot(folder)`` draws the command's figures into a folder and returns their paths; with
-    --report but no --out they are drawn into a temporary folder and embedded in the page.
+    ``o`` is the command's settings (its ``output`` part is used). ``plot(folder)`` draws the
+    command's figures into a folder and returns their paths; with --report but no --out they are
+    drawn into a temporary folder and embedded in the page.
     """
     import tempfile
 
     from ..files import write_atomic
 
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), name)
+    out = o.output
+    emit(out.fmt, view.doc, view.table, view.csv, out.out, name)
     pics: list[Path] = []
     with tempfile.TemporaryDirectory() as tmp:
-        target = Path(o["out"]) if o.get("out") else Path(tmp)
-        if plot is not None and o.get("plots", True) and (o.get("out") or o.get("report")):
+        target = Path(out.out) if out.out else Path(tmp)
+        if plot is not None and out.plots and (out.out or out.report):
             target.mkdir(parents=True, exist_ok=True)
             pics = list(plot(target) or [])
-        if o.get("report"):
+        if out.report:
             from ..report import document_page
 
-            write_atomic(o["report"], document_page(view.doc, pics))
-    return pics if o.get("out") else []
+            write_atomic(out.report, document_page(view.doc, pics))
+    return pics if out.out else []
 
 
-def _pm(v, se, digits):
-    if v is None or not np.isfinite(v):
-        return "-"
-    if se is None or not np.isfinite(se):
-        return f"{v:.{digits}g}"
-    return f"{v:.{digits}g} ± {se:.2g}"
+def check_reader_use(o, ts) -> None:
+    """Refuse reader options the file made moot (an accepted option is used or refused)."""
+    info = ts.info
+    if o.reader.i0 is not None and info.get("signal_kind") != "intensity":
+        raise UsageError(f"--i0 applies to raw intensities; {o.file} holds "
+                         f"{info.get('signal_kind')}", "leave --i0 out, or give --signal "
+                         "intensity if the readings are intensities")
+    if o.reader.time_unit is not None and info.get("time_unit_source") == "clock":
+        raise UsageError(f"--time-unit applies to a numeric time column; {o.file} gives clock "
+                         "times (h:mm:ss)", "leave --time-unit out")
 
 
-def _ci(p):
-    if not p or p.get("ci_low") is None or p.get("ci_high") is None:
-        return "-"
-    return f"[{p['ci_low']:.4g}, {p['ci_high']:.4g}]"
-
-
-def _traces_for(o: dict):
+def read_for(o, linear_limit: float | None = None, partial: bool = False):
+    """The command's traces (reader options applied, readings above the linear limit masked)
+    and the names of the traces to analyse (``--trace`` where the command has it)."""
     from ..io import read_traces
+    from ..options import DEFAULT_LINEAR_LIMIT
 
-    ts = read_traces(o["file"], time_unit=o.get("time_unit"), signal=o.get("signal"),
-                     i0=o.get("i0"), sheet=o.get("sheet"), partial=o.get("partial", False))
-    ts = ts.mask_above(o.get("linear_limit") or 2.0)
+    ts = read_traces(o.file, partial=partial, **o.reader.read_kwargs())
+    check_reader_use(o, ts)
+    ts = ts.mask_above(DEFAULT_LINEAR_LIMIT if linear_limit is None else linear_limit)
     names = ts.names
-    if o.get("trace"):
-        missing = [n for n in o["trace"] if n not in names]
+    chosen = getattr(o, "trace", ())
+    if chosen:
+        missing = [n for n in chosen if n not in names]
         if missing:
-            raise UsageError(f"no trace named {missing[0]!r} in {o['file']}",
+            raise UsageError(f"no trace named {missing[0]!r} in {o.file}",
                              f"use one of {', '.join(names[:12])}")
-        names = list(o["trace"])
+        names = list(chosen)
     return ts, names
 
 
-def each_trace(o: dict, ts, names, fn) -> list[tuple]:
+def each_trace(file: str, ts, names, fn) -> list[tuple]:
     """``fn(name, t, y)`` on each named trace's usable readings: [(name, result, why_not)].
 
     With one trace its failure is the command's error; with several it costs that trace only.
@@ -112,21 +113,26 @@ def each_trace(o: dict, ts, names, fn) -> list[tuple]:
             out.append((name, fn(name, g.times[i][ok], g.values[i][ok]), None))
         except AnalysisError as exc:
             if len(names) == 1:
-                raise exc.located(o["file"]) from None
+                raise exc.located(file) from None
             out.append((name, None, exc.one_line()))
     return out
 
 
-def _photometry(o: dict):
-    from ..photometry import resolve_epsilon
-    from ..ratelaws import Photometry
-    from ..units import parse_concentration, parse_epsilon, parse_pathlength
+def check_rate_law_fix(fix: dict, orders) -> None:
+    """Refuse a --fix name that none of the rate laws to be fitted has."""
+    from ..models import RATE_LAWS
 
-    eps = resolve_epsilon(o.get("epsilon"), o.get("chromophore"))
-    epp = parse_epsilon(o["epsilon_product"]) if o.get("epsilon_product") else None
-    b = parse_pathlength(o["pathlength"]) if o.get("pathlength") else 1.0
-    c0 = parse_concentration(o["c0"], default="uM") if o.get("c0") else None
-    return Photometry(eps, epp, b, c0)
+    known = sorted({p for o in orders if o in RATE_LAWS for p in RATE_LAWS[o].params}
+                   | ({"A0", "Ainf", "k"} if "mixed" in orders else set()))
+    for name in fix:
+        if name not in known:
+            raise UsageError(f"--fix {name}: no rate law fitted here has such a parameter",
+                             f"its parameters are {', '.join(known)}")
+
+
+def rate_law_orders(order: str) -> tuple[str, ...]:
+    """The orders a --order choice fits (auto: 0, 1 and 2)."""
+    return ("0", "1", "2") if order == "auto" else (order,)
 
 
 def __getattr__(name):

@@ -2,74 +2,74 @@
 
 from __future__ import annotations
 
+from ..fitting import fmt_pm
+from ..options import CompletionOptions
 from ..output import document, rows_to_csv, safe_filename
-from . import View, _photometry, _traces_for, deliver, each_trace
+from . import View, check_rate_law_fix, deliver, each_trace, rate_law_orders, read_for
 
 
-def compute_completion(o: dict) -> View:
-    """The ``completion`` command's results (one per trace)."""
-    from ..completion import CAUTION, assess
-
-    ts, names = _traces_for(o)
-    ph = _photometry(o)
-
-    def one(name, t, y):
-        return assess(t, y, name, target=o["target"] / 100, order=o.get("order", "1"),
-                      level=o.get("level", 0.95), photometry=ph, fix=o.get("fix"))
-
-    results, warnings, done = [], list(ts.info.get("warnings", [])), {}
-    for name, c, why in each_trace(o, ts, names, one):
-        if c is None:
-            results.append({"trace": name, "status": f"not assessed: {why}"})
-            continue
-        done[name] = c
-        d = c.to_dict()
-        d["status"] = "ok"
-        results.append(d)
-    warnings.append(CAUTION)
-    settings = {"target": o["target"] / 100, "order": o.get("order", "1"),
-                "level": o.get("level", 0.95),
-                "interval": "profile-likelihood interval of k mapped through t(k)",
-                "rule": "complete when the lower bound of the conversion at the last reading "
-                        "reaches the target"}
-    doc = document("completion", [o["file"]], settings, results, warnings)
-    lines = []
-    for name, c in done.items():
-        t = c.t_target
-        lines.append(
-            f"{name}: order {c.law.order}, k = {c.law.fit.params['k'].value:.4g} ± "
-            f"{c.law.fit.params['k'].se:.2g} 1/s\n"
+def _describe(name: str, c) -> str:
+    """One trace's forecast for a person."""
+    t, k = c.t_target, c.law.fit.params["k"]
+    return (f"{name}: order {c.law.order}, k = {fmt_pm(k.value, k.se, unit='1/s')}\n"
             f"  conversion at the last reading ({c.t_now / 60:.1f} min): "
             f"{100 * c.conversion.value:.2f} % [{100 * c.conversion.ci_low:.2f}, "
             f"{100 * c.conversion.ci_high:.2f}] %\n"
             f"  time to {100 * c.target:g} %: {t.value / 60:.1f} min "
             f"[{t.ci_low / 60:.1f}, {t.ci_high / 60:.1f}] min "
             f"({max(t.value - c.t_now, 0) / 60:.1f} min from the last reading)\n"
-            f"  predicted end absorbance: {c.end_absorbance.value:.4f} ± "
-            f"{c.end_absorbance.se:.2g} A\n"
+            f"  predicted end absorbance: "
+            f"{fmt_pm(c.end_absorbance.value, c.end_absorbance.se, 4, 'A')}\n"
             f"  {'COMPLETE' if c.complete else 'NOT YET COMPLETE'}: {c.rule}")
-    for r in results:
-        if r.get("status", "ok") != "ok":
-            lines.append(f"{r['trace']}: {r['status']}")
-    table = "\n".join(lines) + f"\n\n{CAUTION}\n"
-    flat = []
-    for r in results:
-        if r.get("status") != "ok":
-            flat.append({"trace": r["trace"], "status": r["status"]})
+
+
+def _flat(r: dict) -> dict:
+    if r.get("status") != "ok":
+        return {"trace": r["trace"], "status": r["status"]}
+    return {"trace": r["trace"], "order": r["order"], "target": r["target"],
+            "conversion": r["conversion"]["value"],
+            "conversion_ci_low": r["conversion"]["ci_low"],
+            "conversion_ci_high": r["conversion"]["ci_high"],
+            "t_target_s": r["t_target_s"]["value"],
+            "t_target_s_ci_low": r["t_target_s"]["ci_low"],
+            "t_target_s_ci_high": r["t_target_s"]["ci_high"],
+            "complete": r["complete"], "status": "ok"}
+
+
+def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
+    """The ``completion`` command's results (one per trace); ``partial`` leaves out a
+    half-written last line (for --follow)."""
+    from ..completion import CAUTION, assess
+
+    check_rate_law_fix(o.fix, rate_law_orders(o.order))
+    ts, names = read_for(o, partial=partial)
+
+    def one(name, t, y):
+        return assess(t, y, name, target=o.target / 100, order=o.order, level=o.level,
+                      fix=o.fix)
+
+    results, warnings, done = [], list(ts.info.get("warnings", [])), {}
+    for name, c, why in each_trace(o.file, ts, names, one):
+        if c is None:
+            results.append({"trace": name, "status": f"not assessed: {why}"})
             continue
-        flat.append({"trace": r["trace"], "order": r["order"], "target": r["target"],
-                     "conversion": r["conversion"]["value"],
-                     "conversion_ci_low": r["conversion"]["ci_low"],
-                     "conversion_ci_high": r["conversion"]["ci_high"],
-                     "t_target_s": r["t_target_s"]["value"],
-                     "t_target_s_ci_low": r["t_target_s"]["ci_low"],
-                     "t_target_s_ci_high": r["t_target_s"]["ci_high"],
-                     "complete": r["complete"], "status": "ok"})
+        done[name] = c
+        results.append({**c.to_dict(), "status": "ok"})
+    warnings.append(CAUTION)
+    settings = {"target": o.target / 100, "order": o.order, "level": o.level, "fixed": o.fix,
+                "interval": "profile-likelihood interval of k mapped through t(k)",
+                "rule": "complete when the lower bound of the conversion at the last reading "
+                        "reaches the target"}
+    doc = document("completion", [o.file], settings, results, warnings)
+    lines = [_describe(name, c) for name, c in done.items()]
+    lines += [f"{r['trace']}: {r['status']}" for r in results if r.get("status", "ok") != "ok"]
+    table = "\n".join(lines) + f"\n\n{CAUTION}\n"
+    flat = [_flat(r) for r in results]
     cols = list(dict.fromkeys(k for f in flat for k in f))
     return View(doc, table, rows_to_csv(flat, cols), {"traces": ts, "done": done})
 
 
-def run_completion(o: dict, emit) -> View:
+def run_completion(o: CompletionOptions, emit) -> View:
     """The ``completion`` command (one assessment)."""
     from ..plots import completion_plot
 
@@ -81,10 +81,18 @@ def run_completion(o: dict, emit) -> View:
     return view
 
 
-def follow_completion(o: dict, every: float, max_updates, echo, emit, sleep=None) -> View | None:
-    """Re-read a file an instrument is still writing; print an updated forecast each time.
+def _progress_line(stamp: str, name: str, c) -> str:
+    return (f"[{stamp}] {name}: {100 * c.conversion.value:.1f} % at {c.t_now / 60:.1f} min; "
+            f"{100 * c.target:g} % at {c.t_target.value / 60:.1f} min "
+            f"[{c.t_target.ci_low / 60:.1f}, {c.t_target.ci_high / 60:.1f}]"
+            + ("; COMPLETE" if c.complete else ""))
 
-    Stops when every trace is complete, after ``max_updates`` reads, or on Ctrl-C, then prints
+
+def follow_completion(o: CompletionOptions, echo, emit, sleep=None) -> View | None:
+    """Re-read a file an instrument is still writing every ``o.follow`` seconds; print an
+    updated forecast each time.
+
+    Stops when every trace is complete, after ``o.max_updates`` reads, or on Ctrl-C, then prints
     the final summary. A half-written last line is left out; a read that cannot yet support a
     fit says why and waits for more data.
     """
@@ -95,32 +103,28 @@ def follow_completion(o: dict, every: float, max_updates, echo, emit, sleep=None
 
     sleep = sleep or _time.sleep
     view, n = None, 0
-    echo(f"following {o['file']} every {every:g} s (Ctrl-C stops); {CAUTION}")
+    echo(f"following {o.file} every {o.follow:g} s (Ctrl-C stops); {CAUTION}")
     try:
         while True:
             n += 1
             stamp = _time.strftime("%H:%M:%S")
             try:
-                view = compute_completion(dict(o, partial=True))
+                view = compute_completion(o, partial=True)
                 done = view.analysis["done"]
                 for name, c in done.items():
-                    echo(f"[{stamp}] {name}: {100 * c.conversion.value:.1f} % at "
-                         f"{c.t_now / 60:.1f} min; {100 * c.target:g} % at "
-                         f"{c.t_target.value / 60:.1f} min [{c.t_target.ci_low / 60:.1f}, "
-                         f"{c.t_target.ci_high / 60:.1f}]"
-                         + ("; COMPLETE" if c.complete else ""))
+                    echo(_progress_line(stamp, name, c))
                 if done and all(c.complete for c in done.values()):
                     break
             except (InputError, AnalysisError) as exc:
                 echo(f"[{stamp}] waiting for data: {exc.one_line()}")
-            if max_updates and n >= max_updates:
+            if o.max_updates and n >= o.max_updates:
                 break
-            sleep(every)
+            sleep(o.follow)
     except KeyboardInterrupt:
         echo("stopped (Ctrl-C)")
     if view is None:
         echo("no forecast could be made from the data read")
         return None
     echo("final summary:")
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "completion")
+    emit(o.output.fmt, view.doc, view.table, view.csv, o.output.out, "completion")
     return view

@@ -6,18 +6,13 @@ from pathlib import Path
 
 import numpy as np
 
+from ..fitting import fmt_pm
+from ..options import GradeOptions
 from ..output import document, render_table, rows_to_csv, write_text
 from . import View
 
 
-def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
-    """Gradebook CSV, one feedback page per student and the class summary, into ``out``."""
-    from ..output import safe_filename
-    from ..plots import class_summary_plot
-    from ..report import esc, img, kv, notes, page, table
-
-    out = Path(out)
-    (out / "feedback").mkdir(parents=True, exist_ok=True)
+def _gradebook(results: list[dict]) -> list[dict]:
     extra_cols = list(dict.fromkeys(k for r in results for k in r.get("extra", {})))
     book = []
     for r in results:
@@ -29,40 +24,42 @@ def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
                "diagnosis": " | ".join(r["diagnosis"])}
         row.update({c: r.get("extra", {}).get(c) for c in extra_cols})
         book.append(row)
-    files = [write_text(out, "gradebook.csv", rows_to_csv(book, list(book[0])))]
-    used = set()
-    for r in results:
-        name = safe_filename(r["student"], 40)
-        while name in used:
-            name += "_"
-        used.add(name)
-        r["page"] = f"feedback/{name}.html"
-        parts = r["parts"]
-        sections = [("Your result", kv([
-            ("assignment", rubric.title), ("quantity", f"{rubric.quantity} ({rubric.unit})"),
-            ("your data give", f"{r['value']:.4g} ± {r.get('value_se', float('nan')):.2g} "
-                               f"{rubric.unit}" if r["value"] is not None else "-"),
-            ("you reported", r["reported"]), ("class reference", f"{rubric.reference:g} "
-                                                                  f"{rubric.unit}"),
-            ("score", f"{r['score']:.1f} / 100")]))]
-        if parts:
-            sections.append(("How the score is built", table(
-                [{"part": k, "marks": f"{100 * parts[k]:.0f} %", "weight": rubric.weights[k]}
-                 for k in ("data", "report", "reference")],
-                [("part", "part"), ("marks", "marks"), ("weight", "weight")], text_cols=("part",))
-                + "<p>data: relative SE of your value (full marks at 2 % or better); report: "
-                  "your number against your own data; reference: your data against the class "
-                  f"reference; each within {rubric.tolerance_pct:g} % for full marks, none "
-                  f"beyond {5 * rubric.tolerance_pct:g} %.</p>"))
-        ok = r["status"] == "graded" and parts.get("report", 0) == 1
-        sections.append(("What we found", notes(r["diagnosis"], "ok" if ok else "note")))
-        if r.get("png"):
-            sections.append(("Your data and the fit", img(r["png"], "readings and the fitted "
-                                                          "model used to check your number")))
-        html_text = page(f"Feedback for {r['student']}", f"{rubric.title}: {rubric.quantity}",
-                         sections, cautions=())
-        files.append(write_text(out, r["page"], html_text))
-    png = class_summary_plot(results, rubric, out / "class_summary.png")
+    return book
+
+
+def _feedback_page(r: dict, rubric) -> str:
+    """One student's page: their result, how the score is built, what we found, the figure."""
+    from ..report import img, kv, notes, page, table
+
+    parts = r["parts"]
+    sections = [("Your result", kv([
+        ("assignment", rubric.title), ("quantity", f"{rubric.quantity} ({rubric.unit})"),
+        ("your data give", fmt_pm(r["value"], r.get("value_se"), unit=rubric.unit)),
+        ("you reported", r["reported"]),
+        ("class reference", f"{rubric.reference:g} {rubric.unit}"),
+        ("score", f"{r['score']:.1f} / 100")]))]
+    if parts:
+        sections.append(("How the score is built", table(
+            [{"part": k, "marks": f"{100 * parts[k]:.0f} %", "weight": rubric.weights[k]}
+             for k in ("data", "report", "reference")],
+            [("part", "part"), ("marks", "marks"), ("weight", "weight")], text_cols=("part",))
+            + "<p>data: relative SE of your value (full marks at 2 % or better); report: "
+              "your number against your own data; reference: your data against the class "
+              f"reference; each within {rubric.tolerance_pct:g} % for full marks, none "
+              f"beyond {5 * rubric.tolerance_pct:g} %.</p>"))
+    ok = r["status"] == "graded" and parts.get("report", 0) == 1
+    sections.append(("What we found", notes(r["diagnosis"], "ok" if ok else "note")))
+    if r.get("png"):
+        sections.append(("Your data and the fit", img(r["png"], "readings and the fitted "
+                                                      "model used to check your number")))
+    return page(f"Feedback for {r['student']}", f"{rubric.title}: {rubric.quantity}", sections,
+                cautions=())
+
+
+def _class_page(results: list[dict], rubric, png) -> str:
+    """The class summary page: statistics, the distribution and links to every student."""
+    from ..report import esc, img, kv, page, table
+
     graded = [r for r in results if r["value"] is not None]
     vals = np.array([r["value"] for r in graded]) if graded else np.array([])
     rows = [{"student": f'<a href="{esc(r["page"])}">{esc(r["student"])}</a>',
@@ -81,50 +78,86 @@ def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
                     "-"), ("reference", f"{rubric.reference:g} {rubric.unit} ± "
                                          f"{rubric.tolerance_pct:g} %"),
                    ("median score", f"{np.median([r['score'] for r in results]):.1f}")])
-    summary = page(f"Class summary: {rubric.title}", f"{rubric.quantity} in {rubric.unit}",
-                   [("Class", stats_kv), ("Distribution", img(png, "each student's own value "
-                                                         "against the reference and tolerance "
-                                                         "band")),
-                    ("Students", body)], cautions=())
-    files.append(write_text(out, "class_summary.html", summary))
+    return page(f"Class summary: {rubric.title}", f"{rubric.quantity} in {rubric.unit}",
+                [("Class", stats_kv), ("Distribution", img(png, "each student's own value "
+                                                      "against the reference and tolerance "
+                                                      "band")),
+                 ("Students", body)], cautions=())
+
+
+def draw_figures(results: list[dict], executor=None) -> None:
+    """Each graded student's figure as PNG bytes (``png``), drawn on the executor if given."""
+    from ..plots import student_plot
+
+    todo = [r for r in results if r.get("figure")]
+    figures = [r["figure"] for r in todo]
+    pngs = executor.map(student_plot, figures) if executor is not None else map(student_plot,
+                                                                                 figures)
+    for r, png in zip(todo, pngs, strict=True):
+        r["png"] = png
+
+
+def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
+    """Gradebook CSV, one feedback page per student and the class summary, into ``out``."""
+    from ..output import safe_filename
+    from ..plots import class_summary_plot
+
+    out = Path(out)
+    (out / "feedback").mkdir(parents=True, exist_ok=True)
+    book = _gradebook(results)
+    files = [write_text(out, "gradebook.csv", rows_to_csv(book, list(book[0])))]
+    used = set()
+    for r in results:
+        name = safe_filename(r["student"], 40)
+        while name in used:
+            name += "_"
+        used.add(name)
+        r["page"] = f"feedback/{name}.html"
+        files.append(write_text(out, r["page"], _feedback_page(r, rubric)))
+    png = class_summary_plot(results, rubric, out / "class_summary.png")
+    files.append(write_text(out, "class_summary.html", _class_page(results, rubric, png)))
     return files
 
 
-def run_grade(o: dict, emit, progressbar=None) -> View:
+def _text(public: list[dict], rubric) -> str:
+    rows = [{"student": r["student"], "score": r["score"], "value": r["value"],
+             "reported": r["reported"], "diag": r["diagnosis"][0][:90] + (
+                 "..." if len(r["diagnosis"][0]) > 90 else "")} for r in public]
+    return render_table(rows, [("student", "student"), ("score", "score"),
+                               ("value", f"own ({rubric.unit})"),
+                               ("reported", f"reported ({rubric.unit})"), ("diag", "finding")],
+                        title=f"{rubric.title}: {rubric.quantity}, reference "
+                              f"{rubric.reference:g} {rubric.unit} ± {rubric.tolerance_pct:g} %")
+
+
+def run_grade(o: GradeOptions, emit, progressbar=None) -> View:
     """The ``grade`` command: grade in parallel, print the gradebook, write the pages."""
     from concurrent.futures import ProcessPoolExecutor
 
     from ..grade import check_jobs, grade_class, read_rubric
 
-    rubric = read_rubric(o["rubric"])
-    jobs = check_jobs(o.get("jobs"))
+    rubric = read_rubric(o.rubric)
+    jobs = check_jobs(o.jobs)
     executor = ProcessPoolExecutor(max_workers=jobs) if jobs > 1 else None
     try:
-        results = grade_class(o["folder"], rubric, executor=executor,
-                              progress=progressbar, plots=bool(o.get("out")))
+        results = grade_class(o.folder, rubric, executor=executor,
+                              progress=progressbar, plots=bool(o.out))
+        if o.out:
+            draw_figures(results, executor)
     finally:
         if executor is not None:
             executor.shutdown()
-    if o.get("out"):
-        grade_pages(results, rubric, Path(o["out"]))
-    public = [{k: v for k, v in r.items() if k not in ("png",)} for r in results]
+    if o.out:
+        grade_pages(results, rubric, Path(o.out))
+    public = [{k: v for k, v in r.items() if k not in ("png", "figure")} for r in results]
     settings = {"rubric": rubric.to_dict(), "jobs": jobs,
                 "score": "100 x sum(weight x part) / sum(weights); parts data, report, "
                          "reference (see docs/formats.md)"}
-    doc = document("grade", [o["folder"], o["rubric"]], settings, public, [])
-    table_rows = [{"student": r["student"], "score": r["score"], "value": r["value"],
-                   "reported": r["reported"], "diag": r["diagnosis"][0][:90] + (
-                       "..." if len(r["diagnosis"][0]) > 90 else "")} for r in public]
-    text = render_table(table_rows, [("student", "student"), ("score", "score"),
-                                     ("value", f"own ({rubric.unit})"),
-                                     ("reported", f"reported ({rubric.unit})"),
-                                     ("diag", "finding")],
-                        title=f"{rubric.title}: {rubric.quantity}, reference {rubric.reference:g} "
-                              f"{rubric.unit} ± {rubric.tolerance_pct:g} %")
+    doc = document("grade", [o.folder, o.rubric], settings, public, [])
     flat = [{"student": r["student"], "file": r["file"], "value": r["value"],
              "reported": r["reported"], "reference": r["reference"], "unit": r["unit"],
              "score": r["score"], "status": r["status"], "diagnosis": r["diagnosis"]}
             for r in public]
-    view = View(doc, text, rows_to_csv(flat, list(flat[0])), results)
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "grade")
+    view = View(doc, _text(public, rubric), rows_to_csv(flat, list(flat[0])), results)
+    emit(o.fmt, view.doc, view.table, view.csv, o.out, "grade")
     return view

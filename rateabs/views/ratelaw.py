@@ -3,71 +3,54 @@
 from __future__ import annotations
 
 from ..errors import UsageError
-from ..output import document, render_table, rows_to_csv
-from . import View, _ci, _photometry, _pm, _traces_for, deliver, each_trace
+from ..fitting import fmt_interval, fmt_pm
+from ..options import RatelawOptions
+from ..output import document, flatten_params, render_table, rows_to_csv
+from . import View, check_rate_law_fix, deliver, each_trace, rate_law_orders, read_for
 
 
-def compute_ratelaw(o: dict) -> View:
-    """The ``ratelaw`` command's results."""
-    from ..ratelaws import fit_trace, guggenheim, pseudo_first_order
-    from ..units import parse_concentration
-
-    ts, names = _traces_for(o)
-    ph = _photometry(o)
-    a0 = parse_concentration(o["a0"], default="uM") if o.get("a0") else None
-    b0 = parse_concentration(o["b0"], default="uM") if o.get("b0") else None
-    if o.get("order") == "mixed" and (a0 is None or b0 is None):
-        raise UsageError("--order mixed needs --a0 and --b0", "e.g. --a0 '50 uM' --b0 '120 uM'")
-    level = o.get("level", 0.95)
+def _fit_one(o: RatelawOptions, ph):
+    """The per-trace analysis: the rate law, and Guggenheim's k when asked for."""
+    from ..ratelaws import fit_trace, guggenheim
 
     def one(name, t, y):
-        law = fit_trace(t, y, name, order=o.get("order", "auto"), photometry=ph, fix=o.get("fix"),
-                        ci=o.get("ci", "profile"), level=level, expect=o.get("expect", "any"),
-                        a0=a0, b0=b0)
+        law = fit_trace(t, y, name, order=o.order, photometry=ph, fix=o.fix, ci=o.ci,
+                        level=o.level, expect=o.expect, a0=o.a0, b0=o.b0)
         gg = None
-        if o.get("guggenheim") is not None:
-            gg = guggenheim(t, y, None if o["guggenheim"] == 0 else o["guggenheim"], level=level)
+        if o.guggenheim is not None:
+            gg = guggenheim(t, y, None if o.guggenheim == 0 else o.guggenheim, level=o.level)
         return law, gg
 
-    results, warnings, laws = [], list(ts.info.get("warnings", [])), {}
-    for name, res, why in each_trace(o, ts, names, one):
-        if res is None:
-            results.append({"trace": name, "order": None, "params": {}, "half_life_s": None,
-                            "status": f"not fitted: {why}"})
-            warnings.append(f"{name}: {why}")
-            continue
-        law, gg = res
-        laws[name] = law
-        d = law.to_dict()
-        d["status"] = "ok"
-        if "temperature_K" in ts.meta.columns and name in ts.meta.index:
-            d["temperature_K"] = ts.meta.loc[name, "temperature_K"]
-        if gg is not None:
-            d["guggenheim"] = {"k": gg["k"].to_dict(), "half_life_s": gg["half_life"].to_dict(),
-                               "delta_s": gg["delta_s"], "n_pairs": gg["n_pairs"]}
-        results.append(d)
-        warnings += [f"{name}: {n}" for n in law.notes]
-    series = None
-    if o.get("excess"):
-        series = _pseudo_series(o, laws, pseudo_first_order)
-    settings = {"order": o.get("order", "auto"), "ci": o.get("ci", "profile"),
-                "level": o.get("level", 0.95), "epsilon": ph.epsilon,
-                "epsilon_product": ph.epsilon_product, "pathlength_cm": ph.pathlength_cm,
-                "c0_M": ph.c0_M, "fixed": o.get("fix") or {}, "time_unit": ts.info["time_unit"],
-                "pseudo_first_order": series}
-    doc = document("ratelaw", [o["file"]], settings, results, warnings)
-    rows = []
-    for r in results:
-        p = r.get("params", {})
-        k = p.get("k") or {}
-        hl = r.get("half_life_s") or {}
-        kc = r.get("k_conc") or {}
-        rows.append({"trace": r["trace"], "order": r.get("order") or "-",
-                     "k": _pm(k.get("value"), k.get("se"), 4), "k_unit": k.get("unit", ""),
-                     "ci": _ci(k), "kc": (_pm(kc.get("value"), kc.get("se"), 4) + " "
-                                          + kc.get("unit", "")) if kc else "-",
-                     "half": _pm(hl.get("value"), hl.get("se"), 4), "hci": _ci(hl),
-                     "status": r.get("status", "ok"), "next": _runner_up(r)})
+    return one
+
+
+def _result(name, law, gg, ts) -> dict:
+    d = law.to_dict()
+    d["status"] = "ok"
+    if "temperature_K" in ts.meta.columns and name in ts.meta.index:
+        d["temperature_K"] = float(ts.meta.loc[name, "temperature_K"])
+    if gg is not None:
+        d["guggenheim"] = {"k": gg["k"].to_dict(), "half_life_s": gg["half_life"].to_dict(),
+                           "delta_s": gg["delta_s"], "n_pairs": gg["n_pairs"]}
+    return d
+
+
+def _row(r: dict) -> dict:
+    """One table row for a person."""
+    k = (r.get("params") or {}).get("k") or {}
+    hl = r.get("half_life_s") or {}
+    kc = r.get("k_conc") or {}
+    return {"trace": r["trace"], "order": r.get("order") or "-",
+            "k": fmt_pm(k.get("value"), k.get("se")), "k_unit": k.get("unit", ""),
+            "ci": fmt_interval(k.get("ci_low"), k.get("ci_high")),
+            "kc": fmt_pm(kc.get("value"), kc.get("se"), unit=kc.get("unit", "")) if kc else "-",
+            "half": fmt_pm(hl.get("value"), hl.get("se")),
+            "hci": fmt_interval(hl.get("ci_low"), hl.get("ci_high")),
+            "status": r.get("status", "ok"), "next": _runner_up(r)}
+
+
+def _text(results, laws, series) -> str:
+    rows = [_row(r) for r in results]
     table = render_table(rows, [("trace", "trace"), ("order", "order"), ("k", "k"),
                                 ("k_unit", "unit"), ("ci", "k interval"),
                                 ("kc", "k (concentration units)"), ("half", "half-life (s)"),
@@ -79,38 +62,66 @@ def compute_ratelaw(o: dict) -> View:
         if law.comparison is not None:
             table += "\norder chosen by evidence\n" + law.comparison.report() + "\n"
     if series:
-        table += (f"\npseudo-first-order series: k2 = {series['k2']['value']:.4g} ± "
-                  f"{series['k2']['se']:.2g} L/(mol s) [{series['k2']['ci_low']:.4g}, "
-                  f"{series['k2']['ci_high']:.4g}], intercept k0 = {series['k0']['value']:.3g} ± "
-                  f"{series['k0']['se']:.2g} 1/s\n")
-    flat = []
-    for r in results:
-        f = {"trace": r["trace"], "order": r.get("order"), "status": r.get("status")}
-        for name, p in (r.get("params") or {}).items():
-            f[name], f[f"{name}_se"], f[f"{name}_ci_low"], f[f"{name}_ci_high"] = (
-                p["value"], p["se"], p["ci_low"], p["ci_high"])
-            f[f"{name}_unit"] = p["unit"]
-        hl = r.get("half_life_s") or {}
-        f["half_life_s"], f["half_life_s_ci_low"], f["half_life_s_ci_high"] = (
-            hl.get("value"), hl.get("ci_low"), hl.get("ci_high"))
-        if r.get("temperature_K") is not None:
-            f["temperature_K"] = r["temperature_K"]
-        flat.append(f)
+        k2, k0 = series["k2"], series["k0"]
+        table += (f"\npseudo-first-order series: k2 = {fmt_pm(k2['value'], k2['se'])} L/(mol s) "
+                  f"{fmt_interval(k2['ci_low'], k2['ci_high'])}, intercept k0 = "
+                  f"{fmt_pm(k0['value'], k0['se'], 3)} 1/s\n")
+    return table
+
+
+def _flat(r: dict) -> dict:
+    """One CSV row: parameters flattened, the half-life with its interval."""
+    f = {"trace": r["trace"], "order": r.get("order"), "status": r.get("status")}
+    f.update({k: v for k, v in flatten_params(r.get("params") or {}).items()})
+    hl = r.get("half_life_s") or {}
+    f["half_life_s"], f["half_life_s_ci_low"], f["half_life_s_ci_high"] = (
+        hl.get("value"), hl.get("ci_low"), hl.get("ci_high"))
+    if r.get("temperature_K") is not None:
+        f["temperature_K"] = r["temperature_K"]
+    return f
+
+
+def compute_ratelaw(o: RatelawOptions) -> View:
+    """The ``ratelaw`` command's results."""
+    from ..ratelaws import Photometry
+
+    check_rate_law_fix(o.fix, rate_law_orders(o.order))
+    ts, names = read_for(o)
+    ph = Photometry(**o.photometry_values())
+    results, warnings, laws = [], list(ts.info.get("warnings", [])), {}
+    for name, res, why in each_trace(o.file, ts, names, _fit_one(o, ph)):
+        if res is None:
+            results.append({"trace": name, "order": None, "params": {}, "half_life_s": None,
+                            "status": f"not fitted: {why}"})
+            warnings.append(f"{name}: {why}")
+            continue
+        laws[name] = res[0]
+        results.append(_result(name, *res, ts))
+        warnings += [f"{name}: {n}" for n in res[0].notes]
+    series = _pseudo_series(o, laws) if o.excess else None
+    settings = {"order": o.order, "ci": o.ci, "level": o.level, "epsilon": ph.epsilon,
+                "epsilon_product": ph.epsilon_product, "pathlength_cm": ph.pathlength_cm,
+                "c0_M": ph.c0_M, "fixed": o.fix, "time_unit": ts.info["time_unit"],
+                "expect": o.expect, "guggenheim_delta_s": o.guggenheim,
+                "pseudo_first_order": series}
+    doc = document("ratelaw", [o.file], settings, results, warnings)
+    flat = [_flat(r) for r in results]
     cols = list(dict.fromkeys(k for f in flat for k in f))
-    return View(doc, table, rows_to_csv(flat, cols), {"traces": ts, "laws": laws,
-                                                       "series": series})
+    return View(doc, _text(results, laws, series), rows_to_csv(flat, cols),
+                {"traces": ts, "laws": laws, "series": series})
 
 
-def _pseudo_series(o, laws, pseudo_first_order):
+def _pseudo_series(o: RatelawOptions, laws):
     from ..io import read_table
     from ..layout import conc_column, parse_conc_cells
+    from ..ratelaws import pseudo_first_order
 
-    df = read_table(o["excess"])
+    df = read_table(o.excess)
     lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
     cols = {c.lower(): c for c in df.columns}
     tcol = cols.get("trace") or cols.get("well") or df.columns[0]
     ccol = conc_column(df, "conc") or conc_column(df, "excess") or df.columns[-1]
-    conc = parse_conc_cells(df, ccol, o["excess"], lines)
+    conc = parse_conc_cells(df, ccol, o.excess, lines)
     kobs, x = [], []
     for name, c in zip(df[tcol], conc, strict=True):
         law = laws.get(str(name).strip())
@@ -121,7 +132,7 @@ def _pseudo_series(o, laws, pseudo_first_order):
     if len(kobs) < 2:
         raise UsageError("the pseudo-first-order series needs first-order kobs for at least two "
                          "runs named in --excess", "use --order 1 and name the traces")
-    s = pseudo_first_order(kobs, x, level=o.get("level", 0.95))
+    s = pseudo_first_order(kobs, x, level=o.level)
     return {"k2": s["k2"].to_dict(), "k0": s["k0"].to_dict(), "n_runs": len(kobs),
             "weighting": s["weighting"], "conc_M": list(map(float, x)),
             "kobs_per_s": [p.value for p in kobs]}
@@ -135,7 +146,7 @@ def _runner_up(result: dict) -> str:
     return f"{rows[1]['model']} (+{rows[1]['delta_aicc']:.1f})"
 
 
-def run_ratelaw(o: dict, emit) -> View:
+def run_ratelaw(o: RatelawOptions, emit) -> View:
     """The ``ratelaw`` command."""
     from ..plots import ratelaw_plots
 

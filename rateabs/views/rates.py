@@ -7,9 +7,10 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import UsageError
+from ..fitting import fmt_pm
+from ..options import RatesOptions
 from ..output import document, render_table, rows_to_csv, write_text
-from . import View, _pm, deliver
+from . import View, deliver, read_for
 
 RATE_FIELDS = ["trace", "role", "sample", "group", "method", "slope_A_per_min",
                "slope_A_per_min_se", "rate_uM_per_min", "rate_uM_per_min_se",
@@ -21,80 +22,49 @@ RATE_FIELDS = ["trace", "role", "sample", "group", "method", "slope_A_per_min",
                "inhibitor_uM", "enzyme_nM", "flags"]
 
 
-def rate_settings(o: dict):
-    """RateSettings from command options (quantities parsed with their units)."""
-    from ..photometry import pathlength_from_volume, resolve_epsilon
-    from ..rates import RateSettings
-    from ..units import parse_epsilon, parse_mass_concentration, parse_pathlength, parse_volume
-
-    eps = resolve_epsilon(o.get("epsilon"), o.get("chromophore"))
-    eps_se = parse_epsilon(o["epsilon_se"]) if o.get("epsilon_se") else 0.0
-    if o.get("pathlength") and o.get("well_volume"):
-        raise UsageError("both --pathlength and --well-volume given", "give only one of them")
-    if o.get("well_volume"):
-        b = pathlength_from_volume(o["well_volume"], o.get("plate", 96))
-    elif o.get("pathlength"):
-        b = parse_pathlength(o["pathlength"])
-    else:
-        b = 1.0
-    tv = parse_volume(o["total_volume"]) if o.get("total_volume") else None
-    sv = parse_volume(o["sample_volume"]) if o.get("sample_volume") else None
-    if (tv is None) != (sv is None):
-        raise UsageError("activity needs both --total-volume and --sample-volume",
-                         "give both, e.g. --total-volume '200 uL' --sample-volume '20 uL'")
-    if tv is not None and sv > tv:
-        raise UsageError("the sample volume is larger than the total volume",
-                         "check --sample-volume and --total-volume")
-    prot = parse_mass_concentration(o["protein"]) if o.get("protein") else None
-    if o.get("dilution", 1.0) <= 0:
-        raise UsageError("--dilution must be positive", "e.g. --dilution 10 for 1:10")
-    return RateSettings(epsilon=eps, epsilon_se=eps_se, pathlength_cm=b, total_volume_L=tv,
-                        sample_volume_L=sv, protein_mg_per_mL=prot,
-                        dilution=o.get("dilution", 1.0), window=o.get("window", "auto"),
-                        min_points=o.get("min_points"), blank=o.get("blank", "auto"),
-                        direction=o.get("direction", "auto"),
-                        linear_limit=o.get("linear_limit", 2.0),
-                        noisy_rel_se=o.get("noisy_limit", 0.10), katal=o.get("katal", False),
-                        slope_from=o.get("slope_from", "window"),
-                        calibrate=o.get("calibrate", "auto"), curve=o.get("curve", True))
+def _plate_warning(o: RatesOptions, ts, settings) -> list[str]:
+    """A 1 cm pathlength assumed for what look like plate wells is said out loud."""
+    plate_like = len(ts.names) >= 8 and all(re.fullmatch(r"[A-Pa-p]\d{1,2}", n)
+                                            for n in ts.names)
+    if plate_like and o.pathlength is None and o.well_volume is None and settings.epsilon:
+        return ["the traces look like plate wells but no --pathlength or --well-volume was "
+                "given: a 1 cm pathlength is assumed"]
+    return []
 
 
-def compute_rates(o: dict) -> View:
-    """Read, analyse and present one rates run (options as the ``rates`` command takes)."""
+def _settings_json(o: RatesOptions, st, a, ts) -> dict:
+    return {"epsilon_M_per_cm": st.epsilon, "epsilon_se": st.epsilon_se,
+            "pathlength_cm": st.pathlength_cm, "pathlength_source": o.pathlength_source(),
+            "total_volume_L": st.total_volume_L, "sample_volume_L": st.sample_volume_L,
+            "protein_mg_per_mL": st.protein_mg_per_mL, "dilution": st.dilution,
+            "window": st.window if st.window == "auto" else list(st.window),
+            "min_points": st.min_points, "blank": a.blank_info,
+            "linear_limit": st.linear_limit, "noisy_rel_se": st.noisy_rel_se,
+            "slope_from": st.slope_from, "curve_fit": st.curve, "calibrate": st.calibrate,
+            "katal": st.katal, "layout": o.layout_file,
+            "time_unit": ts.info.get("time_unit"), "signal_kind": ts.info.get("signal_kind"),
+            "replicates": a.replicates.to_dict("records"), "z_prime": a.zprime,
+            "flag_meanings": _flag_meanings()}
 
-    from ..io import read_traces
+
+def compute_rates(o: RatesOptions) -> View:
+    """Read, analyse and present one rates run."""
     from ..layout import check_against, read_layout
     from ..rates import analyse_plate
 
-    st = rate_settings(o)
-    ts = read_traces(o["file"], time_unit=o.get("time_unit"), signal=o.get("signal"),
-                     i0=o.get("i0"), sheet=o.get("sheet"))
+    st = o.rate_settings()
+    ts, _ = read_for(o, st.linear_limit)
     warnings = list(ts.info.get("warnings", []))
     layout = None
-    if o.get("layout_file"):
-        layout = read_layout(o["layout_file"])
-        warnings += check_against(layout, ts.names, o["file"])
-    plate_like = len(ts.names) >= 8 and all(re.fullmatch(r"[A-Pa-p]\d{1,2}", n)
-                                            for n in ts.names)
-    if plate_like and not (o.get("pathlength") or o.get("well_volume")) and st.epsilon:
-        warnings.append("the traces look like plate wells but no --pathlength or --well-volume "
-                        "was given: a 1 cm pathlength is assumed")
+    if o.layout_file:
+        layout = read_layout(o.layout_file)
+        warnings += check_against(layout, ts.names, o.file)
+    warnings += _plate_warning(o, ts, st)
     a = analyse_plate(ts, layout, st)
     warnings += a.warnings
-    results = []
-    for rec in a.table.to_dict("records"):
-        results.append({k: rec[k] for k in RATE_FIELDS if k in rec})
-    settings = {"epsilon_M_per_cm": st.epsilon, "epsilon_se": st.epsilon_se,
-                "pathlength_cm": st.pathlength_cm, "total_volume_L": st.total_volume_L,
-                "sample_volume_L": st.sample_volume_L, "protein_mg_per_mL": st.protein_mg_per_mL,
-                "dilution": st.dilution, "window": st.window if st.window == "auto" else
-                list(st.window), "blank": a.blank_info, "linear_limit": st.linear_limit,
-                "noisy_rel_se": st.noisy_rel_se, "slope_from": st.slope_from, "layout": o.get("layout_file"),
-                "time_unit": ts.info.get("time_unit"), "signal_kind": ts.info.get("signal_kind"),
-                "replicates": a.replicates.to_dict("records"), "z_prime": a.zprime,
-                "flag_meanings": _flag_meanings()}
-    doc = document("rates", [o["file"]] + ([o["layout_file"]] if o.get("layout_file") else []),
-                   settings, results, warnings)
+    results = [{k: rec[k] for k in RATE_FIELDS if k in rec} for rec in a.table.to_dict("records")]
+    doc = document("rates", [o.file] + ([o.layout_file] if o.layout_file else []),
+                   _settings_json(o, st, a, ts), results, warnings)
     return View(doc, rates_table(a), rows_to_csv(results, [f for f in RATE_FIELDS if any(
         f in r for r in results)]), a)
 
@@ -113,16 +83,16 @@ def rates_table(a) -> str:
     rows = []
     for r in t.to_dict("records"):
         row = {"trace": r["trace"], "role": r["role"], "sample": r["sample"] or "-",
-               "slope": _pm(r["slope_A_per_min"], r["slope_A_per_min_se"], 5),
+               "slope": fmt_pm(r["slope_A_per_min"], r["slope_A_per_min_se"], 5),
                "window": (f"{r['window_start_s']:g}-{r['window_end_s']:g}"
                           if np.isfinite(r["window_start_s"]) else "-"),
                "n": r["n_points"], "r2": r["r2"], "flags": ",".join(r["flags"]) or "-"}
         if conc:
-            row["rate"] = _pm(r["rate_uM_per_min"], r["rate_uM_per_min_se"], 4)
+            row["rate"] = fmt_pm(r["rate_uM_per_min"], r["rate_uM_per_min_se"], 4)
         if "activity_U_per_mL" in r and np.isfinite(r.get("activity_U_per_mL", np.nan)):
-            row["act"] = _pm(r["activity_U_per_mL"], r["activity_U_per_mL_se"], 4)
+            row["act"] = fmt_pm(r["activity_U_per_mL"], r["activity_U_per_mL_se"], 4)
         if np.isfinite(r.get("specific_activity_U_per_mg", np.nan)):
-            row["spec"] = _pm(r["specific_activity_U_per_mg"], r["specific_activity_U_per_mg_se"], 4)
+            row["spec"] = fmt_pm(r["specific_activity_U_per_mg"], r["specific_activity_U_per_mg_se"], 4)
         rows.append(row)
     cols = [("trace", "trace"), ("role", "role"), ("sample", "sample"),
             ("slope", "slope (A/min)")]
@@ -145,14 +115,14 @@ def rates_table(a) -> str:
     b = a.blank_info
     if b.get("wells"):
         text += (f"\nblanks: {len(b['wells'])} wells, mean slope "
-                 f"{b.get('slope_A_per_min', float('nan')):.3g} ± "
-                 f"{b.get('slope_A_per_min_se', float('nan')):.2g} A/min, subtracted as "
-                 f"{b['mode']}\n")
+                 f"{fmt_pm(b.get('slope_A_per_min'), b.get('slope_A_per_min_se'), 3, 'A/min')}"
+                 f", subtracted as {b['mode']}\n")
     text += f"assay direction: signal goes {b.get('direction')}\n"
     if b.get("calibration"):
         c = b["calibration"]
-        text += (f"standard curve: {c['n_standards']} standards, {c['slope_A_per_M'] * 1e-6:.4g} ± "
-                 f"{c['slope_se'] * 1e-6:.2g} A per uM (epsilon x b), used to convert slopes\n")
+        text += (f"standard curve: {c['n_standards']} standards, "
+                 f"{fmt_pm(c['slope_A_per_M'] * 1e-6, c['slope_se'] * 1e-6, 4, 'A per uM')} "
+                 "(epsilon x b), used to convert slopes\n")
     if a.zprime:
         z = a.zprime
         text += (f"Z' = {z['value']:.3f} ({z['verdict']}; {z['n_positive']} positive, "
@@ -185,10 +155,10 @@ def rate_plots(view: View, out: str | Path, stem: str = "rates") -> list[Path]:
     return files
 
 
-def run_rates(o: dict, emit) -> View:
+def run_rates(o: RatesOptions, emit) -> View:
     """The ``rates`` command: compute, print in the chosen format, write files into --out."""
     view = compute_rates(o)
-    if o.get("out"):
-        write_replicates(view, o["out"])
+    if o.output.out:
+        write_replicates(view, o.output.out)
     deliver(o, emit, view, "rates", lambda folder: rate_plots(view, folder))
     return view

@@ -7,6 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import UsageError
+from ..options import SaturationOptions
 from ..output import document, render_table, rows_to_csv
 from . import View, deliver
 
@@ -23,60 +24,57 @@ def _keep_rows(df, keep):
 
 
 def _select_rows(df, select):
-    for item in select or ():
-        col, sep, val = item.partition("=")
-        if not sep or col.strip() not in df.columns:
-            raise UsageError(f"--select {item!r} does not name a column of the table",
+    for col, val in select:
+        if col not in df.columns:
+            raise UsageError(f"--select {col}={val}: the table has no column {col!r}",
                              f"use COL=VALUE with one of {', '.join(map(str, df.columns))}")
-        df = _keep_rows(df, df[col.strip()].astype(str).str.strip() == val.strip())
+        df = _keep_rows(df, df[col].astype(str).str.strip() == val.strip())
         if df.empty:
-            raise UsageError(f"--select {item!r} keeps no rows", "check the value")
+            raise UsageError(f"--select {col}={val} keeps no rows", "check the value")
     return df
 
 
-def compute_saturation(o: dict) -> View:
-    """The ``saturation`` command's results."""
+def _table(o: SaturationOptions):
+    """The rate table: sample rows only (of a rates.csv), then --select."""
     from ..io import read_table
-    from ..output import flatten_params
-    from ..saturation import analyse, results_json, table_data
-    from ..units import parse_concentration
 
-    df = read_table(o["file"])
+    df = read_table(o.file)
     if "role" in df.columns:
         df = _keep_rows(df, df["role"].astype(str).str.strip().str.lower() == "sample")
-    df = _select_rows(df, o.get("select"))
-    df.attrs["source"] = o["file"]
-    bent = []
-    if "flags" in df.columns:           # a table written by `rateabs rates`
-        method = df["method"] if "method" in df.columns else ["window"] * len(df)
-        bent = [f for f, m in zip(df["flags"].astype(str), method, strict=True)
-                if m == "window" and any(w in f for w in ("over-10pct", "curved"))]
-    model = o.get("model", "auto")
-    data = table_data(df, conc=o.get("conc"), rate=o.get("rate"), inhibitor=o.get("inhibitor"),
-                      sd=o.get("sd"), conc_unit=o.get("conc_unit"), rate_unit=o.get("rate_unit"),
-                      inhib_unit=o.get("inhibitor_unit"), need_inhibitor=model == "ic50")
-    enzyme_m = parse_concentration(o["enzyme"], default="nM") if o.get("enzyme") else None
-    level = o.get("level", 0.95)
-    a = analyse(data, model=model, ci=o.get("ci", "asymptotic"), level=level,
-                weighting=o.get("weighting", "none"), fix=o.get("fix"), enzyme_M=enzyme_m,
-                n_boot=o.get("resamples", 2000), resample=o.get("resample", "residual"),
-                seed=o.get("seed", 0), mode=o.get("mode"), substrate=o.get("substrate"),
-                km=o.get("km"))
-    results = results_json(a)
-    if bent:
-        a.warnings.append(f"{len(bent)} of {len(df)} rates come from wells flagged over-10pct or "
-                          "curved: window slopes there underestimate the initial rate; consider "
-                          "`rateabs rates --slope-from curve`")
-    settings = {"model": model, "ci": o.get("ci", "asymptotic"), "level": level,
-                "weighting": o.get("weighting", "none"), "fixed": o.get("fix") or {},
-                "columns": data.columns, "conc_unit": data.conc_unit,
+    df = _select_rows(df, o.select)
+    df.attrs["source"] = o.file
+    return df
+
+
+def _bent_warning(df) -> list[str]:
+    """Rates from a rates.csv whose window slopes are bent by depletion, said out loud."""
+    if "flags" not in df.columns:
+        return []
+    method = df["method"] if "method" in df.columns else ["window"] * len(df)
+    bent = [f for f, m in zip(df["flags"].astype(str), method, strict=True)
+            if m == "window" and any(w in f for w in ("over-10pct", "curved"))]
+    if not bent:
+        return []
+    return [f"{len(bent)} of {len(df)} rates come from wells flagged over-10pct or curved: "
+            "window slopes there underestimate the initial rate; consider "
+            "`rateabs rates --slope-from curve`"]
+
+
+def _settings_json(o: SaturationOptions, data) -> dict:
+    settings = {"model": o.model, "ci": o.ci, "level": o.level, "weighting": o.weighting,
+                "fixed": o.fix, "columns": data.columns, "conc_unit": data.conc_unit,
                 "rate_unit": data.rate_unit, "inhibitor_unit": data.inhib_unit,
-                "enzyme_M": enzyme_m, "n_points": int(data.v.size),
-                "selected": list(o.get("select") or [])}
-    if o.get("ci") == "bootstrap":
-        settings.update(resamples=o.get("resamples", 2000), resample=o.get("resample"),
-                        seed=o.get("seed", 0))
-    doc = document("saturation", [o["file"]], settings, results, a.warnings)
+                "enzyme_M": o.enzyme, "n_points": int(data.v.size),
+                "selected": [f"{c}={v}" for c, v in o.select]}
+    if o.ci == "bootstrap":
+        b = o.bootstrap()
+        settings.update(resamples=b["n_boot"], resample=b["resample"], seed=b["seed"])
+    if o.model == "ic50" and o.mode:
+        settings.update(cheng_prusoff={"mode": o.mode, "substrate": o.substrate, "km": o.km})
+    return settings
+
+
+def _text(a, data, results, level: float) -> str:
     chosen = next(r for r in results if r.get("chosen"))
     prow = [{"param": k, **v} for k, v in chosen["params"].items()]
     table = render_table(prow, [("param", "parameter"), ("value", "value"), ("se", "SE"),
@@ -92,13 +90,31 @@ def compute_saturation(o: dict) -> View:
         cc = a.cross_check
         table += (f"\ncross-check, {cc['method']}: Vmax = {cc['Vmax']:.4g} {data.rate_unit}, "
                   f"Km = {cc['Km']:.4g} {data.conc_unit}\n")
+    return table
+
+
+def compute_saturation(o: SaturationOptions) -> View:
+    """The ``saturation`` command's results."""
+    from ..output import flatten_params
+    from ..saturation import analyse, results_json, table_data
+
+    df = _table(o)
+    data = table_data(df, conc=o.conc, rate=o.rate, inhibitor=o.inhibitor, sd=o.sd,
+                      conc_unit=o.conc_unit, rate_unit=o.rate_unit, inhib_unit=o.inhibitor_unit,
+                      need_inhibitor=o.model == "ic50")
+    boot = o.bootstrap() if o.ci == "bootstrap" else {}
+    a = analyse(data, model=o.model, ci=o.ci, level=o.level, weighting=o.weighting, fix=o.fix,
+                enzyme_M=o.enzyme, mode=o.mode, substrate=o.substrate, km=o.km, **boot)
+    a.warnings.extend(_bent_warning(df))
+    results = results_json(a)
+    doc = document("saturation", [o.file], _settings_json(o, data), results, a.warnings)
     flat = [flatten_params({"model": r["model"], "chosen": r["chosen"], "aicc": r.get("aicc"),
                             "status": r.get("status"), "params": r["params"]}) for r in results]
     cols = list(dict.fromkeys(k for f in flat for k in f))
-    return View(doc, table, rows_to_csv(flat, cols), a)
+    return View(doc, _text(a, data, results, o.level), rows_to_csv(flat, cols), a)
 
 
-def run_saturation(o: dict, emit) -> View:
+def run_saturation(o: SaturationOptions, emit) -> View:
     """The ``saturation`` command."""
     view = compute_saturation(o)
     a = view.analysis
@@ -106,7 +122,7 @@ def run_saturation(o: dict, emit) -> View:
     def plot(folder):
         from ..plots import linearised, saturation_fit
 
-        files = [saturation_fit(a, folder / "saturation_fit.png", title=Path(o["file"]).stem)]
+        files = [saturation_fit(a, folder / "saturation_fit.png", title=Path(o.file).stem)]
         if a.chosen != "ic50":
             files.append(linearised(a, folder / "saturation_linearised.png"))
         return files

@@ -1,0 +1,528 @@
+"""Every command's options, end to end with click's test runner.
+
+A bad value is refused with exit code 2 and one line on stderr that names the option; every
+option a command accepts either changes what the command reports or is refused with a reason
+(a coverage test walks the settings classes, so a new option needs a case here).
+"""
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+
+from rateabs import options as opts
+from rateabs import rules
+from rateabs.cli import main
+from rateabs.errors import UsageError
+
+SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
+CUV = SAMPLES / "cuvettes_kbap_405nm_messy.csv"
+PLATE = SAMPLES / "plate_kbdh_340nm.csv"
+MAP = SAMPLES / "plate_kbdh_map.csv"
+SAT = SAMPLES / "inhibition_kbdh_rates.csv"
+PROBE = SAMPLES / "process_kestrel_red_probe.csv"
+RUNS = SAMPLES / "pseudo_first_order_runs.csv"
+EXCESS = SAMPLES / "pseudo_first_order_excess.csv"
+TEMP = SAMPLES / "temperature_kestrel_red.csv"
+PROG = SAMPLES / "progress_kbap_405nm.csv"
+TUBES = SAMPLES / "tubes_tnb_412nm_counts.tsv"
+CLASS = SAMPLES / "class_kestrel_red"
+
+
+def run(*args):
+    return CliRunner().invoke(main, [str(a) for a in args])
+
+
+def doc(*args) -> dict:
+    r = run(*args, "--format", "json", "--no-plots")
+    assert r.exit_code == 0, r.output
+    return json.loads(r.stdout)
+
+
+# --------------------------------------------------------------------------- bad values
+
+PROG_ARGS = [PROG, "--s0-column", "S0 (uM)", "--chromophore", "pnp"]
+BAD = [
+    # issue 17's list: crashes and silent acceptance
+    (["saturation", SAT, "--ci", "bootstrap", "--resamples", "-5"], "--resamples"),
+    (["saturation", SAT, "--ci", "bootstrap", "--resamples", "0"], "--resamples"),
+    (["saturation", SAT, "--enzyme", "0 nM"], "--enzyme"),
+    (["ratelaw", PROBE, "--fix", "k=-1"], "--fix"),
+    (["ratelaw", PROBE, "--fix", "kk=1"], "--fix"),
+    (["completion", PROBE, "--fix", "k=-1"], "--fix"),
+    (["saturation", SAT, "--fix", "Km=-3"], "--fix"),
+    (["saturation", SAT, "--fix", "Km=abc"], "--fix"),
+    (["rates", CUV, "--linear-limit", "-1"], "--linear-limit"),
+    (["inspect", CUV, "--linear-limit", "-1"], "--linear-limit"),
+    (["rates", CUV, "--noisy-limit", "nan"], "--noisy-limit"),
+    (["rates", CUV, "--noisy-limit", "inf"], "--noisy-limit"),
+    (["rates", CUV, "--min-points", "0"], "--min-points"),
+    (["rates", CUV, "--min-points", "1"], "--min-points"),
+    (["rates", CUV, "--min-points", "2"], "--min-points"),
+    (["rates", CUV, "--min-points", "5.5"], "--min-points"),
+    (["ratelaw", PROBE, "--c0", "0 uM"], "--c0"),
+    (["rates", CUV, "--well-volume", "5 mL", "--epsilon", "18000"], "--well-volume"),
+    (["rates", CUV, "--well-volume", "150 uL", "--plate", "384"], "--well-volume"),
+    # ranges, finiteness and choices of the other numeric options
+    (["saturation", SAT, "--level", "1"], "--level"),
+    (["ratelaw", PROBE, "--level", "nan"], "--level"),
+    (["rates", CUV, "--dilution", "0"], "--dilution"),
+    (["rates", CUV, "--window", "300-30"], "--window"),
+    (["rates", CUV, "--direction", "Up"], "--direction"),
+    (["rates", CUV, "--blank", "both"], "--blank"),
+    (["rates", CUV, "--plate", "48"], "--plate"),
+    (["rates", CUV, "--epsilon", "-6220"], "--epsilon"),
+    (["rates", CUV, "--epsilon", "18000", "--epsilon-se", "-5"], "--epsilon-se"),
+    (["rates", CUV, "--epsilon", "18000", "--pathlength", "0 cm"], "--pathlength"),
+    (["rates", CUV, "--chromophore", "NADX"], "--chromophore"),
+    (["rates", CUV, "--total-volume", "0 uL", "--sample-volume", "20 uL"], "--total-volume"),
+    (["inspect", TUBES, "--i0", "-1"], "--i0"),
+    (["inspect", TUBES, "--time-unit", "fortnight"], "--time-unit"),
+    (["inspect", CUV, "--format", "xml"], "--format"),
+    (["saturation", SAT, "--ci", "bootstrap", "--seed", "-1"], "--seed"),
+    (["saturation", SAT, "--model", "ic50", "--substrate", "0", "--km", "5", "--mode",
+      "competitive"], "--substrate"),
+    (["saturation", SAT, "--conc-unit", "mg/mL"], "--conc-unit"),
+    (["ratelaw", PROBE, "--guggenheim", "-1"], "--guggenheim"),
+    (["ratelaw", PROBE, "--order", "3"], "--order"),
+    (["completion", PROBE, "--target", "100"], "--target"),
+    (["completion", PROBE, "--target", "nan"], "--target"),
+    (["completion", PROBE, "--follow", "0", "--max-updates", "1"], "--follow"),
+    (["completion", PROBE, "--follow", "1", "--max-updates", "0"], "--max-updates"),
+    (["temperature", TEMP, "--at", "-300 C"], "--at"),
+    (["temperature", TEMP, "--level", "0"], "--level"),
+    (["progress", *PROG_ARGS, "--level", "2"], "--level"),
+    (["grade", CLASS, "--rubric", CLASS / "rubric.toml", "--jobs", "0"], "--jobs"),
+    (["grade", CLASS, "--rubric", CLASS / "rubric.toml", "--jobs", "1.5"], "--jobs"),
+    # accepted and then ignored before: now refused with the reason
+    (["rates", CUV, "--plate", "384"], "--plate"),
+    (["rates", CUV, "--katal"], "--katal"),
+    (["rates", CUV, "--protein", "0.8 mg/mL"], "--protein"),
+    (["rates", CUV, "--dilution", "10"], "--dilution"),
+    (["rates", CUV, "--epsilon-se", "100"], "--epsilon-se"),
+    (["rates", CUV, "--window", "0-300", "--min-points", "5"], "--min-points"),
+    (["rates", CUV, "--time-unit", "min"], "--time-unit"),
+    (["rates", CUV, "--i0", "1000"], "--i0"),
+    (["rates", CUV, "--sheet", "Sheet1"], "--sheet"),
+    (["saturation", SAT, "--resamples", "500"], "--resamples"),
+    (["saturation", SAT, "--seed", "3"], "--seed"),
+    (["saturation", SAT, "--resample", "case"], "--resample"),
+    (["saturation", SAT, "--km", "120"], "--km"),
+    (["saturation", SAT, "--model", "ic50", "--km", "120"], "--mode"),
+    (["saturation", SAT, "--model", "ic50", "--enzyme", "1 nM"], "--enzyme"),
+    (["saturation", SAT, "--sd", "rate_uM_per_min"], "--sd"),
+    (["saturation", SAT, "--weighting", "sd"], "--weighting"),
+    (["ratelaw", PROBE, "--a0", "50 uM"], "--a0"),
+    (["ratelaw", PROBE, "--order", "mixed", "--a0", "50 uM"], "--b0"),
+    (["ratelaw", PROBE, "--pathlength", "0.5 cm"], "--pathlength"),
+    (["completion", PROBE, "--max-updates", "3"], "--max-updates"),
+    (["completion", PROBE, "--c0", "50 uM"], "--c0"),
+    (["completion", PROBE, "--epsilon", "6220"], "--epsilon"),
+    (["completion", PROBE, "--epsilon-product", "6220"], "--epsilon-product"),
+    (["completion", PROBE, "--chromophore", "NADH"], "--chromophore"),
+    (["completion", PROBE, "--pathlength", "1 cm"], "--pathlength"),
+    (["progress", PROG, "--s0-column", "S0 (uM)"], "--epsilon"),
+    (["progress", *PROG_ARGS, "--s0", "100 uM"], "--s0"),
+    (["progress", *PROG_ARGS, "--epsilon", "18000"], "--epsilon"),
+    # click's own usage errors are one line as well
+    (["rates", CUV, "--no-such-option"], "--no-such-option"),
+    (["saturation", SAT, "--model"], "--model"),
+    (["grade", CLASS], "--rubric"),
+]
+
+
+@pytest.mark.parametrize("args,flag", BAD, ids=[" ".join(map(str, a[2:])) + f" [{a[0]}]"
+                                                for a, _ in BAD])
+def test_a_bad_option_is_one_line_naming_it_and_exit_2(args, flag):
+    r = run(*args)
+    assert r.exit_code == 2, r.output
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1, r.stderr
+    assert lines[0].startswith("rateabs: ") and flag in lines[0], lines[0]
+    assert "Traceback" not in r.output and "internal error" not in r.output
+
+
+def test_an_error_says_what_to_type_instead():
+    r = run("rates", CUV, "--noisy-limit", "nan")
+    assert r.stderr.strip() == ("rateabs: --noisy-limit nan is not a finite number; give a number "
+                                "above 0 and at most 1 (relative SE of the slope), e.g. "
+                                "--noisy-limit 0.1")
+    r = run("rates", CUV, "--well-volume", "5 mL", "--epsilon", "18000")
+    # typical capacity of a 96-well well, about 0.36 mL (from memory)
+    assert "360 uL" in r.stderr and "96-well" in r.stderr
+
+
+def test_the_settings_objects_check_with_the_same_rules():
+    with pytest.raises(UsageError, match="--direction 'Up' is not one of auto, up, down"):
+        opts.RateSettings(direction="Up")
+    with pytest.raises(UsageError, match="--blank 'Slope' is not one of"):
+        opts.RateSettings(blank="Slope")
+    with pytest.raises(UsageError, match="--noisy-limit nan is not a finite number"):
+        opts.RateSettings(noisy_rel_se=float("nan"))
+    with pytest.raises(UsageError, match="--min-points 2 is out of range"):
+        opts.RatesOptions("x.csv", min_points=2)
+    with pytest.raises(UsageError, match="--resamples 5 is out of range"):
+        opts.SaturationOptions("x.csv", ci="bootstrap", resamples=5)
+
+
+def test_quantities_are_parsed_once_into_base_units():
+    o = opts.RatesOptions("x.csv", epsilon="6.22 mM^-1 cm^-1", well_volume="200 uL",
+                          total_volume="0.2 mL", sample_volume="20 uL", protein="800 ug/mL")
+    assert o.epsilon == pytest.approx(6220)            # L mol^-1 cm^-1
+    assert o.total_volume == pytest.approx(2e-4) and o.sample_volume == pytest.approx(2e-5)
+    assert o.protein == pytest.approx(0.8)              # mg/mL
+    st = o.rate_settings()
+    # b = V / A with a 96-well bottom of 0.32 cm2 (typical, from memory): 0.2 cm3 / 0.32 cm2
+    assert st.pathlength_cm == pytest.approx(0.2 / 0.32)
+    assert opts.TemperatureOptions("t.csv", at=["25 C", "300 K"]).at == pytest.approx(
+        (298.15, 300.0))                                 # 0 C = 273.15 K (SI Brochure)
+    assert opts.RatelawOptions("r.csv", guggenheim="5 min").guggenheim == 300.0
+    assert opts.SaturationOptions("s.csv", enzyme="2").enzyme == pytest.approx(2e-9)  # bare: nM
+
+
+def test_the_numeric_rule_refuses_what_is_not_a_finite_number_in_range():
+    rule = rules.Number(0, 1, lo_open=True)
+    for bad in ("nan", "inf", "-inf", "abc", "", True, None, "1.5", 0):
+        with pytest.raises(UsageError):
+            rule.check(bad, "--x")
+    assert rule.check("1e-3", "--x") == 1e-3 and rule.check(1, "--x") == 1.0
+    whole = rules.Number(3, math.inf, integer=True)
+    assert whole.check("7", "--n") == 7 and isinstance(whole.check(7.0, "--n"), int)
+    with pytest.raises(UsageError, match="not a whole number"):
+        whole.check("7.5", "--n")
+
+
+# --------------------------------------------------------------------------- options are used
+
+
+def _rates(*extra, file=CUV):
+    return {r["trace"]: r for r in doc("rates", file, *extra)["results"]}
+
+
+def _params(d):
+    """The parameters of the chosen model (or of the first result)."""
+    return next((x for x in d["results"] if x.get("chosen")), d["results"][0])["params"]
+
+
+@pytest.fixture(scope="module")
+def tables(tmp_path_factory):
+    """Small tables made from a known truth (Michaelis–Menten, Vmax 10 and 20 uM/min,
+    Km 50 uM; k of two runs at three temperatures) to show that column options are used."""
+    d = tmp_path_factory.mktemp("tables")
+    s = np.array([5, 10, 20, 50, 100, 200, 400, 800.0])
+    rng = np.random.default_rng(7)
+    v = 10 * s / (50 + s) * (1 + 0.02 * rng.standard_normal(s.size))
+    lines = ["sample,S (uM),S_mM,v (uM/min),v_fast,sd"]
+    for name, f in (("A", 1), ("B", 3)):
+        lines += [f"{name},{a:g},{a / 1000:g},{f * b:.5g},{2 * f * b:.5g},{0.02 * f * b:.4g}"
+                  for a, b in zip(s, v, strict=True)]
+    (d / "sat.csv").write_text("\n".join(lines) + "\n")
+    sat = SAT.read_text().replace("inhibitor_uM", "KB17 uM")
+    (d / "inhib.csv").write_text(sat)
+    (d / "temp.csv").write_text("T (C),k (1/s),k_se,k_alt (1/s),k_se_alt\n"
+                                "15,3.12e-4,7.8e-6,6.2e-4,1.0e-5\n25,8.0e-4,2.0e-5,1.6e-3,4e-5\n"
+                                "35,1.9e-3,5.0e-5,3.9e-3,9e-5\n40,2.9e-3,8.0e-5,5.7e-3,2e-4\n")
+    return d
+
+
+def test_reader_options_are_used(tmp_path):
+    base = doc("inspect", PROBE)["results"][0]
+    assert doc("inspect", PROBE, "--time-unit", "s")["results"][0]["t_end_s"] == pytest.approx(
+        base["t_end_s"] / 60)
+    assert doc("inspect", PROBE, "--signal", "percent")["results"][0]["A_first"] != pytest.approx(
+        base["A_first"])
+    tubes = doc("inspect", TUBES)["results"][0]["A_last"]
+    assert doc("inspect", TUBES, "--i0", "1e7")["results"][0]["A_last"] != pytest.approx(tubes)
+    # the same reader options through a command that reads with read_for
+    k = _params(doc("ratelaw", PROBE, "--order", "1", "--ci", "asymptotic"))["k"]["value"]
+    k_s = _params(doc("ratelaw", PROBE, "--order", "1", "--ci", "asymptotic", "--time-unit",
+                      "s"))["k"]["value"]
+    assert k_s == pytest.approx(60 * k, rel=1e-6)      # minutes read as seconds: k x 60
+    openpyxl = pytest.importorskip("openpyxl")
+    wb = openpyxl.Workbook()
+    wb.active.title = "first"
+    wb.active.append(["Time (s)", "A1"])
+    for i in range(8):
+        wb.active.append([30 * i, 0.1 + 0.01 * i])
+    second = wb.create_sheet("second")
+    second.append(["Time (s)", "B1"])
+    for i in range(8):
+        second.append([30 * i, 0.5 - 0.02 * i])
+    wb.save(tmp_path / "two.xlsx")
+    assert doc("inspect", tmp_path / "two.xlsx", "--sheet", "second")["results"][0]["trace"] == "B1"
+
+
+def test_output_options_are_used(tmp_path):
+    r = run("temperature", TEMP, "--format", "csv")
+    assert r.stdout.startswith("parameter,value,se")
+    r = run("temperature", TEMP)
+    assert "Arrhenius and Eyring" in r.stdout
+    run("temperature", TEMP, "--out", tmp_path / "a", "--report", tmp_path / "r.html")
+    assert (tmp_path / "a" / "temperature.json").exists()
+    assert (tmp_path / "a" / "temperature_arrhenius.png").exists()
+    assert (tmp_path / "r.html").read_text().startswith("<!DOCTYPE html>")
+    run("temperature", TEMP, "--out", tmp_path / "b", "--no-plots")
+    assert not (tmp_path / "b" / "temperature_arrhenius.png").exists()
+
+
+def test_rates_conversion_options_are_used():
+    base = _rates("--epsilon", "18000")
+    w = "K1"
+    assert "rate_uM_per_min" not in _rates()[w]
+    assert _rates("--chromophore", "pnp")[w]["rate_uM_per_min"] == pytest.approx(
+        base[w]["rate_uM_per_min"])                     # p-nitrophenolate: 18000 M^-1 cm^-1
+    assert _rates("--epsilon", "18000", "--pathlength", "0.5 cm")[w]["rate_uM_per_min"] == (
+        pytest.approx(2 * base[w]["rate_uM_per_min"]))
+    assert _rates("--epsilon", "18000", "--epsilon-se", "1800")[w]["rate_uM_per_min_se"] > (
+        base[w]["rate_uM_per_min_se"])
+    b96 = _rates("--epsilon", "18000", "--well-volume", "50 uL")[w]["rate_uM_per_min"]
+    b384 = _rates("--epsilon", "18000", "--well-volume", "50 uL", "--plate", "384")[w]
+    # same volume, a 384-well bottom is 0.10 cm2 against 0.32 cm2 (typical, from memory)
+    assert b384["rate_uM_per_min"] == pytest.approx(b96 * 0.10 / 0.32, rel=1e-9)
+    act = _rates("--epsilon", "18000", "--total-volume", "200 uL", "--sample-volume", "20 uL")[w]
+    assert act["activity_U_per_mL"] == pytest.approx(base[w]["rate_uM_per_min"] * 10 / 1000)
+    more = _rates("--epsilon", "18000", "--total-volume", "200 uL", "--sample-volume", "20 uL",
+                  "--dilution", "10", "--protein", "0.5 mg/mL", "--katal")[w]
+    assert more["activity_U_per_mL"] == pytest.approx(10 * act["activity_U_per_mL"])
+    assert more["specific_activity_U_per_mg"] == pytest.approx(more["activity_U_per_mL"] / 0.5)
+    assert more["activity_nkat_per_mL"] == pytest.approx(more["activity_U_per_mL"] * 1e3 / 60)
+
+
+def test_rates_window_and_flag_options_are_used():
+    base = _rates()
+    w = "K1"
+    assert _rates("--window", "60-240")[w]["window_start_s"] >= 60
+    assert base["K6"]["n_points"] == 8              # K6 overflows after eight readings
+    assert "no-linear" in _rates("--min-points", "15")["K6"]["flags"]
+    assert sum("noisy" in r["flags"] for r in _rates("--noisy-limit", "0.0001").values()) > sum(
+        "noisy" in r["flags"] for r in base.values())
+    assert sum("past-linear" in r["flags"] for r in _rates("--linear-limit", "0.5").values()) > (
+        sum("past-linear" in r["flags"] for r in base.values()))
+    assert _rates("--no-curve")[w]["curve_slope_A_per_min"] is None
+    assert base[w]["curve_slope_A_per_min"] is not None
+    assert {r["method"] for r in _rates("--slope-from", "curve").values()} >= {"curve"}
+    up = _rates("--direction", "down")
+    assert sum("reversed" in r["flags"] for r in up.values()) > sum(
+        "reversed" in r["flags"] for r in base.values())
+
+
+def test_rates_plate_map_options_are_used():
+    plain = _rates(file=PLATE)
+    mapped = _rates("--layout", MAP, file=PLATE)
+    assert plain["A9"]["role"] == "sample" and mapped["A9"]["role"] == "blank"
+    none = _rates("--layout", MAP, "--blank", "none", file=PLATE)
+    assert none["A1"]["slope_A_per_min"] != pytest.approx(mapped["A1"]["slope_A_per_min"])
+    r = run("rates", PLATE, "--layout", MAP, "--calibrate", "standards")
+    assert r.exit_code == 3 and "standard" in r.stderr     # asked for, and no standard wells
+
+
+def test_saturation_options_are_used(tables):
+    t = tables / "sat.csv"
+    base = doc("saturation", t, "--model", "mm")
+    p = _params(base)
+    assert p["Km"]["unit"] == "uM"
+    assert _params(doc("saturation", t, "--model", "mm", "--conc", "S_mM"))["Km"]["value"] == (
+        pytest.approx(p["Km"]["value"] / 1000, rel=1e-4))
+    assert _params(doc("saturation", t, "--model", "mm", "--rate", "v_fast"))["Vmax"]["value"] == (
+        pytest.approx(2 * p["Vmax"]["value"], rel=1e-4))
+    assert _params(doc("saturation", t, "--model", "mm", "--select", "sample=B"))["Vmax"][
+        "value"] == pytest.approx(3 * _params(doc("saturation", t, "--model", "mm", "--select",
+                                                  "sample=A"))["Vmax"]["value"], rel=1e-4)
+    sd = _params(doc("saturation", t, "--model", "mm", "--weighting", "sd", "--sd", "sd"))
+    rel = _params(doc("saturation", t, "--model", "mm", "--weighting", "relative"))
+    assert sd["Km"]["value"] != pytest.approx(p["Km"]["value"]) and rel["Km"]["value"] != (
+        pytest.approx(p["Km"]["value"]))
+    assert _params(doc("saturation", t, "--model", "mm", "--fix", "Km=60"))["Km"]["value"] == 60
+    assert "kcat" in _params(doc("saturation", t, "--model", "mm", "--enzyme", "1 nM"))
+    assert _params(doc("saturation", t, "--model", "mm", "--conc-unit", "mM"))["Km"]["unit"] == "mM"
+    assert _params(doc("saturation", t, "--model", "mm", "--rate-unit", "uM/s"))["Vmax"][
+        "unit"] == "uM/s"
+    assert len(base["results"]) == 1 and len(doc("saturation", t)["results"]) == 3
+    prof = _params(doc("saturation", t, "--model", "mm", "--ci", "profile"))
+    assert prof["Km"]["ci_method"] == "profile"
+    narrow = _params(doc("saturation", t, "--model", "mm", "--level", "0.5"))
+    assert narrow["Km"]["ci_high"] - narrow["Km"]["ci_low"] < p["Km"]["ci_high"] - p["Km"]["ci_low"]
+
+
+def test_saturation_bootstrap_and_inhibition_options_are_used(tables):
+    t = tables / "sat.csv"
+    boot = ["saturation", t, "--model", "mm", "--ci", "bootstrap", "--select", "sample=A"]
+    a = _params(doc(*boot, "--resamples", "200"))["Km"]
+    b = _params(doc(*boot, "--resamples", "200", "--seed", "5"))["Km"]
+    c = _params(doc(*boot, "--resamples", "200", "--resample", "case"))["Km"]
+    assert a["ci_method"] == "bootstrap-residual" and c["ci_method"] == "bootstrap-case"
+    assert a["ci_low"] != b["ci_low"]
+    d = doc(*boot, "--resamples", "300")
+    assert d["settings"]["resamples"] == 300
+    inhib = tables / "inhib.csv"
+    assert _params(doc("saturation", inhib)).keys() <= {"Vmax", "Km", "S50", "n", "Ksi"}
+    named = _params(doc("saturation", inhib, "--inhibitor", "KB17 uM"))
+    assert "Ki" in named
+    assert _params(doc("saturation", inhib, "--inhibitor", "KB17 uM", "--inhibitor-unit",
+                       "mM"))["Ki"]["unit"] == "mM"
+    ic = ["saturation", SAT, "--model", "ic50", "--select", "substrate_uM=120"]
+    assert "Ki" not in _params(doc(*ic))
+    ki = _params(doc(*ic, "--mode", "competitive", "--substrate", "120", "--km", "120"))["Ki"]
+    # Cheng & Prusoff (1973): competitive Ki = IC50 / (1 + [S]/Km) = IC50 / 2 here
+    assert ki["value"] == pytest.approx(_params(doc(*ic))["IC50"]["value"] / 2)
+
+
+def test_ratelaw_options_are_used():
+    one = ["ratelaw", PROBE, "--order", "1"]
+    base = doc(*one)["results"][0]
+    assert doc("ratelaw", PROBE, "--order", "2")["results"][0]["order"] == "2"
+    assert doc(*one, "--ci", "asymptotic")["results"][0]["params"]["k"]["ci_method"] == (
+        "asymptotic")
+    assert base["params"]["k"]["ci_method"] == "profile"
+    assert doc(*one, "--fix", "Ainf=0.06")["results"][0]["params"]["Ainf"]["value"] == 0.06
+    lvl = doc(*one, "--level", "0.5")["results"][0]["params"]["k"]
+    assert lvl["ci_high"] - lvl["ci_low"] < base["params"]["k"]["ci_high"] - base["params"]["k"][
+        "ci_low"]
+    c0 = doc(*one, "--epsilon", "30000")["results"][0]["c0_M"]["value"]
+    assert base["c0_M"] is None and c0 == pytest.approx(
+        abs(base["params"]["A0"]["value"] - base["params"]["Ainf"]["value"]) / 30000, rel=1e-6)
+    assert doc(*one, "--epsilon", "30000", "--pathlength", "0.5 cm")["results"][0]["c0_M"][
+        "value"] == pytest.approx(2 * c0)
+    assert doc(*one, "--chromophore", "NADH")["results"][0]["c0_M"]["value"] == pytest.approx(
+        c0 * 30000 / 6220)
+    assert doc(*one, "--epsilon", "30000", "--epsilon-product", "10000")["results"][0]["c0_M"][
+        "value"] == pytest.approx(c0 * 30000 / 20000)
+    assert doc(*one, "--c0", "50 uM")["results"][0]["c0_M"]["value"] == pytest.approx(5e-5)
+    assert doc(*one, "--guggenheim", "10 min")["results"][0]["guggenheim"]["delta_s"] == 600
+    r = run(*one, "--expect", "rise")
+    assert r.exit_code == 4 and "rise was expected" in r.stderr
+    mixed = doc("ratelaw", PROBE, "--order", "mixed", "--a0", "50 uM", "--b0", "120 uM")
+    assert mixed["results"][0]["order"] == "mixed"
+    runs = doc("ratelaw", RUNS, "--order", "1", "--trace", "run 2")
+    assert [r["trace"] for r in runs["results"]] == ["run 2"]
+    series = doc("ratelaw", RUNS, "--order", "1", "--excess", EXCESS)["settings"]
+    assert series["pseudo_first_order"]["n_runs"] == 5
+
+
+def test_completion_options_are_used():
+    base = doc("completion", PROBE)
+    r0 = base["results"][0]
+    r95 = doc("completion", PROBE, "--target", "95")["results"][0]
+    assert r95["t_target_s"]["value"] < r0["t_target_s"]["value"]
+    assert doc("completion", PROBE, "--order", "2")["results"][0]["order"] == "2"
+    lvl = doc("completion", PROBE, "--level", "0.5")["results"][0]["t_target_s"]
+    assert lvl["ci_high"] - lvl["ci_low"] < r0["t_target_s"]["ci_high"] - r0["t_target_s"]["ci_low"]
+    assert doc("completion", PROBE, "--fix", "Ainf=0.06")["results"][0]["end_absorbance"][
+        "value"] == 0.06
+    assert [r["trace"] for r in doc("completion", RUNS, "--trace", "run 3")["results"]] == [
+        "run 3"]
+    r = run("completion", PROBE, "--follow", "0.01", "--max-updates", "1", "--no-plots")
+    assert r.exit_code == 0 and r.stdout.startswith("following") and "final summary" in r.stdout
+
+
+def test_temperature_options_are_used(tables):
+    t = tables / "temp.csv"
+    base = doc("temperature", t)
+    ea = base["results"][0]["params"]["Ea"]
+    assert doc("temperature", t, "--k-column", "k_alt (1/s)")["results"][0]["params"]["Ea"][
+        "value"] != pytest.approx(ea["value"])
+    assert doc("temperature", t, "--se-column", "k_se_alt")["results"][0]["params"]["Ea"][
+        "se"] != pytest.approx(ea["se"])
+    assert doc("temperature", t, "--temp-column", "T (C)", "--temp-unit", "K")["results"][0][
+        "params"]["Ea"]["value"] != pytest.approx(ea["value"])
+    pred = doc("temperature", t, "--at", "25 C")["results"][-1]["predictions"][0]
+    assert pred["T_K"] == pytest.approx(298.15)
+    assert pred["k"]["value"] == pytest.approx(8.0e-4, rel=0.1)
+    lvl = doc("temperature", t, "--level", "0.5")["results"][0]["params"]["Ea"]
+    assert lvl["ci_high"] - lvl["ci_low"] < ea["ci_high"] - ea["ci_low"]
+
+
+def test_progress_options_are_used():
+    base = doc("progress", *PROG_ARGS)
+    km = base["results"][0]["params"]["Km"]
+    assert doc("progress", *PROG_ARGS, "--trace", "c1", "--trace", "c3", "--trace", "c5")[
+        "results"][0]["n_curves"] == 3
+    eps = doc("progress", PROG, "--s0-column", "S0 (uM)", "--epsilon", "9000")
+    half = doc("progress", *PROG_ARGS, "--pathlength", "0.5 cm")
+    vmax = base["results"][0]["params"]["Vmax"]["value"]
+    # Beer–Lambert: only epsilon x b matters, 9000 x 1 cm = 18000 (p-nitrophenolate) x 0.5 cm
+    assert eps["results"][0]["params"]["Vmax"]["value"] == pytest.approx(
+        half["results"][0]["params"]["Vmax"]["value"], rel=1e-6)
+    assert half["results"][0]["params"]["Vmax"]["value"] != pytest.approx(vmax)
+    s0 = doc("progress", PROG, "--s0", "0.1 mM", "--chromophore", "pnp", "--trace", "c4",
+             "--trace", "c5", "--trace", "c6")
+    assert s0["results"][0]["params"]["Km"]["unit"] == "mM"
+    assert "Kp" in doc("progress", *PROG_ARGS, "--product-inhibition")["results"][0]["params"]
+    assert any(r.get("test") == "selwyn" for r in doc("progress", *PROG_ARGS, "--selwyn",
+                                                       "enzyme (nM)")["results"])
+    assert doc("progress", *PROG_ARGS, "--ci", "profile")["results"][0]["params"]["Km"][
+        "ci_method"] == "profile" != km["ci_method"]
+    lvl = doc("progress", *PROG_ARGS, "--level", "0.5")["results"][0]["params"]["Km"]
+    assert lvl["ci_high"] - lvl["ci_low"] < km["ci_high"] - km["ci_low"]
+    # the product's rise read as substrate: the fit says it cannot describe the curves
+    flipped = doc("progress", *PROG_ARGS, "--species", "substrate")
+    assert flipped["results"][0]["params"]["Km"]["value"] != pytest.approx(km["value"])
+    assert any("not reliable" in w for w in flipped["warnings"])
+
+
+def test_progress_layout_gives_s0(tmp_path):
+    curves = {"c1": 20, "c2": 50, "c3": 100, "c4": 200}
+    (tmp_path / "map.csv").write_text("well,role,substrate_uM\n" + "".join(
+        f"{k},sample,{v}\n" for k, v in curves.items()))
+    d = doc("progress", PROG, "--layout", tmp_path / "map.csv", "--chromophore", "pnp",
+            *sum((["--trace", k] for k in curves), []))
+    assert [c["S0_uM"] for c in d["results"][0]["curves"]] == pytest.approx(list(curves.values()))
+    assert d["settings"]["s0_source"] == "plate map"
+
+
+def test_grade_options_are_used(tmp_path):
+    args = ["grade", CLASS, "--rubric", CLASS / "rubric.toml"]
+    r = run(*args, "--jobs", "1", "--format", "json", "--out", tmp_path)
+    assert r.exit_code == 0, r.output
+    assert json.loads(r.stdout)["settings"]["jobs"] == 1
+    assert (tmp_path / "gradebook.csv").exists() and (tmp_path / "class_summary.html").exists()
+    page = next((tmp_path / "feedback").glob("Ada*.html")).read_text()
+    assert "data:image/png;base64," in page        # the student's figure, drawn by the views
+
+
+# --------------------------------------------------------------------------- coverage
+
+#: Where each option of each command is shown to be used (or refused); shared parts once.
+USED = {
+    "shared": {"--time-unit", "--signal", "--i0", "--sheet", "--format", "--out", "--report",
+               "--plots/--no-plots"},
+    "InspectOptions": {"--linear-limit"},
+    "RatesOptions": {"--layout", "--epsilon", "--epsilon-se", "--chromophore", "--pathlength",
+                     "--well-volume", "--plate", "--total-volume", "--sample-volume", "--protein",
+                     "--dilution", "--window", "--min-points", "--blank", "--direction",
+                     "--linear-limit", "--noisy-limit", "--katal", "--calibrate",
+                     "--curve/--no-curve", "--slope-from"},
+    "SaturationOptions": {"--conc", "--rate", "--inhibitor", "--sd", "--model", "--ci", "--level",
+                          "--weighting", "--fix", "--enzyme", "--conc-unit", "--rate-unit",
+                          "--inhibitor-unit", "--mode", "--substrate", "--km", "--resamples",
+                          "--resample", "--seed", "--select"},
+    "RatelawOptions": {"--level", "--fix", "--trace", "--epsilon", "--chromophore",
+                       "--epsilon-product", "--pathlength", "--c0", "--order", "--a0", "--b0",
+                       "--ci", "--expect", "--guggenheim", "--excess"},
+    "CompletionOptions": {"--level", "--fix", "--trace", "--target", "--order", "--follow",
+                          "--max-updates"},
+    "TemperatureOptions": {"--temp-column", "--k-column", "--se-column", "--temp-unit", "--at",
+                           "--level"},
+    "ProgressOptions": {"--s0", "--s0-column", "--layout", "--epsilon", "--chromophore",
+                        "--pathlength", "--species", "--product-inhibition", "--selwyn",
+                        "--trace", "--ci", "--level"},
+    "GradeOptions": {"--rubric", "--jobs", "--format", "--out"},
+}
+REFUSED = {"CompletionOptions": {"--c0", "--epsilon", "--epsilon-product", "--chromophore",
+                                 "--pathlength"}}
+
+
+@pytest.mark.parametrize("cls", [opts.InspectOptions, opts.RatesOptions, opts.SaturationOptions,
+                                 opts.RatelawOptions, opts.CompletionOptions,
+                                 opts.TemperatureOptions, opts.ProgressOptions,
+                                 opts.GradeOptions], ids=lambda c: c.__name__)
+def test_every_option_is_shown_used_or_refused(cls):
+    flags = {f.metadata["flag"] for f in rules.flat_fields(cls) if "argument" not in f.metadata}
+    covered = USED["shared"] | USED.get(cls.__name__, set()) | REFUSED.get(cls.__name__, set())
+    assert flags <= covered, flags - covered
+    for flag in REFUSED.get(cls.__name__, ()):
+        assert any(a[0] == cls.__name__.removesuffix("Options").lower() and flag == f
+                   for a, f in BAD)
