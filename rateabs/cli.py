@@ -13,6 +13,7 @@ import click
 
 from . import __version__
 from .errors import RateabsError
+from .files import notices
 
 FORMATS = click.Choice(["table", "csv", "json"])
 CAUTION = ("Results are for research and teaching, not for clinical diagnosis; follow local "
@@ -27,14 +28,15 @@ def _guarded(fn):
         ctx = click.get_current_context()
         debug = ctx.find_root().params.get("debug", False)
         try:
-            return fn(*args, **kwargs)
+            with notices(lambda line: click.echo(f"rateabs: {line}", err=True)):
+                return fn(*args, **kwargs)
         except RateabsError as exc:
             if debug:
                 raise
             click.echo(f"rateabs: {exc.one_line()}", err=True)
             sys.exit(exc.exit_code)
-        except KeyboardInterrupt:
-            click.echo("rateabs: interrupted", err=True)
+        except KeyboardInterrupt as exc:
+            click.echo(f"rateabs: interrupted{': ' + str(exc) if str(exc) else ''}", err=True)
             sys.exit(130)
         except (click.exceptions.Exit, click.ClickException, SystemExit):
             raise

@@ -13,17 +13,20 @@ from __future__ import annotations
 import time
 from pathlib import Path
 
-from .files import write_atomic
+from .files import RunOutputs, write_atomic
 from .io import sample_path
 from .report import esc, notes, page, table
 
 
 def run_demo(out: str | Path, echo=print) -> str:
     """Run every demo step into ``out``; returns a short summary for the terminal."""
+    with RunOutputs("demo", out=out, planned=["index.html", "summary.txt"]):
+        return _steps(Path(out), echo)
+
+
+def _steps(out: Path, echo) -> str:
     from . import views
 
-    out = Path(out)
-    out.mkdir(parents=True, exist_ok=True)
     t0 = time.perf_counter()
     steps = []
 

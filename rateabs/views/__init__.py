@@ -26,6 +26,8 @@ class View:
     analysis: object = None
 
 
+#: Option keys that name input files or folders (never written over; see files.RunOutputs).
+INPUT_KEYS = ("file", "layout_file", "excess", "folder", "rubric")
 
 
 def write_outputs(doc: dict, csv_text: str, out, name: str) -> None:
@@ -42,27 +44,38 @@ def write_only(fmt, doc, table_text, csv_text, out, name) -> None:
     write_outputs(doc, csv_text, out, name)
 
 
-def deliver(o: dict, emit, view: View, name: str, plot=None) -> list[Path]:
+def run_outputs(o: dict, command: str, planned=()):
+    """The run's :class:`~rateabs.files.RunOutputs` (``--out`` folder, ``--report`` file),
+    guarding every input file the options name; use it as ``with run_outputs(o, name):``."""
+    from ..files import RunOutputs
+
+    return RunOutputs(command, [o[k] for k in INPUT_KEYS if o.get(k)], out=o.get("out"),
+                      report=o.get("report"), planned=planned if o.get("out") else ())
+
+
+def deliver(o: dict, emit, view: View, name: str, plot=None, data=None) -> list[Path]:
     """Print the view, write --out files and plots, and the --report page; returns the plots.
 
     ``plot(folder)`` draws the command's figures into a folder and returns their paths; with
     --report but no --out they are drawn into a temporary folder and embedded in the page.
+    ``data(folder)`` writes any further data files into --out. Everything is written through
+    one :func:`run_outputs` for the run.
     """
     import tempfile
 
-    from ..files import write_atomic
-
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), name)
-    pics: list[Path] = []
-    with tempfile.TemporaryDirectory() as tmp:
+    with run_outputs(o, name, [f"{name}.json", f"{name}.csv"]) as run, \
+            tempfile.TemporaryDirectory() as tmp:
+        emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), name)
+        if data is not None and o.get("out"):
+            data(Path(o["out"]))
+        pics: list[Path] = []
         target = Path(o["out"]) if o.get("out") else Path(tmp)
         if plot is not None and o.get("plots", True) and (o.get("out") or o.get("report")):
-            target.mkdir(parents=True, exist_ok=True)
             pics = list(plot(target) or [])
         if o.get("report"):
             from ..report import document_page
 
-            write_atomic(o["report"], document_page(view.doc, pics))
+            run.write(o["report"], document_page(view.doc, pics))
     return pics if o.get("out") else []
 
 

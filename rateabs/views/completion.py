@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from ..output import document, rows_to_csv, safe_filename
-from . import View, _photometry, _traces_for, deliver, each_trace
+from . import View, _photometry, _traces_for, deliver, each_trace, run_outputs
 
 
 def compute_completion(o: dict) -> View:
@@ -122,5 +122,6 @@ def follow_completion(o: dict, every: float, max_updates, echo, emit, sleep=None
         echo("no forecast could be made from the data read")
         return None
     echo("final summary:")
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "completion")
+    with run_outputs(o, "completion", ["completion.json", "completion.csv"]):
+        emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "completion")
     return view

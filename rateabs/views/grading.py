@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from ..output import document, render_table, rows_to_csv, write_text
-from . import View
+from . import View, run_outputs
 
 
 def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
@@ -92,23 +92,17 @@ def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
 
 def run_grade(o: dict, emit, progressbar=None) -> View:
     """The ``grade`` command: grade in parallel, print the gradebook, write the pages."""
-    from concurrent.futures import ProcessPoolExecutor
-
     from ..grade import check_jobs, grade_class, read_rubric
+    from ..parallel import describe, open_executor
 
     rubric = read_rubric(o["rubric"])
-    jobs = check_jobs(o.get("jobs"))
-    executor = ProcessPoolExecutor(max_workers=jobs) if jobs > 1 else None
-    try:
+    jobs = check_jobs(o.get("jobs")) if not o.get("scheduler") else None
+    with open_executor(jobs, o.get("scheduler")) as executor:
+        where = describe(executor)
         results = grade_class(o["folder"], rubric, executor=executor,
                               progress=progressbar, plots=bool(o.get("out")))
-    finally:
-        if executor is not None:
-            executor.shutdown()
-    if o.get("out"):
-        grade_pages(results, rubric, Path(o["out"]))
     public = [{k: v for k, v in r.items() if k not in ("png",)} for r in results]
-    settings = {"rubric": rubric.to_dict(), "jobs": jobs,
+    settings = {"rubric": rubric.to_dict(), "jobs": jobs, "ran_on": where,
                 "score": "100 x sum(weight x part) / sum(weights); parts data, report, "
                          "reference (see docs/formats.md)"}
     doc = document("grade", [o["folder"], o["rubric"]], settings, public, [])
@@ -126,5 +120,8 @@ def run_grade(o: dict, emit, progressbar=None) -> View:
              "score": r["score"], "status": r["status"], "diagnosis": r["diagnosis"]}
             for r in public]
     view = View(doc, text, rows_to_csv(flat, list(flat[0])), results)
-    emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "grade")
+    with run_outputs(o, "grade", ["grade.json", "grade.csv", "gradebook.csv"]):
+        if o.get("out"):
+            grade_pages(results, rubric, Path(o["out"]))
+        emit(o["fmt"], view.doc, view.table, view.csv, o.get("out"), "grade")
     return view
