@@ -316,6 +316,9 @@ class RunOutputs:
         path = Path(path)
         real = Path(os.path.realpath(path))
         rel = self._relative(path)
+        if rel in (MANIFEST, LOCK):
+            raise UsageError("is rateabs's own record of the --out folder", "choose another "
+                             "name", file=str(path))
         if rel is not None:
             self._make_parents(real.parent)
         elif not real.parent.is_dir():
@@ -366,7 +369,7 @@ class RunOutputs:
         if not os.access(real.parent, os.W_OK):
             raise UsageError(f"the folder of --report ({real.parent}) is not writable",
                              "choose a folder you can write to", file=str(path))
-        self._check_target(path, real, self._relative(path))
+        self._check_target(path, real, None)
 
     def _relative(self, path: Path) -> str | None:
         """``path`` relative to the --out folder (posix), or None when outside it."""
@@ -375,8 +378,7 @@ class RunOutputs:
         parent = Path(os.path.realpath(path.parent))
         if not parent.is_relative_to(self._real_out):
             return None
-        rel = (parent / path.name).relative_to(self._real_out).as_posix()
-        return None if rel in (MANIFEST, LOCK, ".") else rel
+        return (parent / path.name).relative_to(self._real_out).as_posix()
 
     def _make_parents(self, folder: Path) -> None:
         try:

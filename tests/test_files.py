@@ -327,6 +327,14 @@ def test_a_file_changed_since_is_kept_and_said(tmp_path):
     assert any("kept 1 file(s)" in t and "changed since" in t for t in told)
 
 
+def test_the_manifest_and_lock_are_not_outputs(tmp_path):
+    with RunOutputs("rates", out=tmp_path) as run:
+        for name in (MANIFEST, LOCK):
+            with pytest.raises(UsageError, match="own record"):
+                run.write_in(name, "x")
+    assert read_manifest(tmp_path)["status"] == "complete"
+
+
 def test_a_hostile_manifest_removes_nothing_outside(tmp_path):
     out = tmp_path / "out"
     out.mkdir()
