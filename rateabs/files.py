@@ -359,7 +359,11 @@ class RunOutputs:
     def _check_report(self) -> None:
         path = self.report
         real = Path(os.path.realpath(path))
-        if self.out is not None and real.parent.is_relative_to(os.path.realpath(self.out)):
+        out = Path(os.path.realpath(self.out)) if self.out is not None else None
+        if out is not None and real.parent.is_relative_to(out):
+            if real.relative_to(out).as_posix() in self.planned:
+                raise UsageError("--report names one of the run's own outputs in --out",
+                                 "give the report another name", file=str(path))
             return                     # inside --out: checked when written, folders made then
         if not real.parent.is_dir():
             what = "is a file, not a folder" if real.parent.exists() else "does not exist"

@@ -397,6 +397,12 @@ def test_report_inside_a_new_out_folder(tmp_path):
     assert "pages/report.html" in listed(out) and listed(out) == present(out)
 
 
+def test_report_onto_the_runs_own_output_is_refused(tmp_path):
+    g = small_run(tmp_path / "g.csv")
+    r = cli("rates", g, "--out", tmp_path / "o", "--report", tmp_path / "o" / "rates.json")
+    assert r.exit_code == 2 and "own outputs" in one_error_line(r)
+
+
 def test_out_that_is_a_file_is_refused(tmp_path):
     (tmp_path / "plain.txt").write_text("x")
     with pytest.raises(UsageError, match="is a file, not a folder"):
