@@ -21,6 +21,7 @@ import click
 from . import __version__, rules
 from . import options as opts
 from .errors import AnalysisError, RateabsError
+from .files import notices
 
 NO_ARGS = getattr(click.exceptions, "NoArgsIsHelpError", ())
 CAUTION = ("Results are for research and teaching, not for clinical diagnosis; follow local "
@@ -95,7 +96,8 @@ def _guarded(fn):
         ctx = click.get_current_context()
         debug = ctx.find_root().params.get("debug", False)
         try:
-            with warnings.catch_warnings():
+            with warnings.catch_warnings(), notices(
+                    lambda line: click.echo(f"rateabs: {line}", err=True)):
                 if not debug:
                     warnings.simplefilter("ignore")
                 return fn(*args, **kwargs)
@@ -106,8 +108,8 @@ def _guarded(fn):
                 raise
             click.echo(f"rateabs: {exc.one_line()}", err=True)
             sys.exit(exc.exit_code)
-        except KeyboardInterrupt:
-            click.echo("rateabs: interrupted", err=True)
+        except KeyboardInterrupt as exc:
+            click.echo(f"rateabs: interrupted{': ' + str(exc) if str(exc) else ''}", err=True)
             sys.exit(130)
         except (click.exceptions.Exit, click.ClickException, SystemExit):
             raise

@@ -13,7 +13,7 @@ from __future__ import annotations
 import time
 from pathlib import Path
 
-from .files import write_atomic
+from .files import RunOutputs, write_atomic
 from .fitting import fmt_pm
 from .io import sample_path
 from .report import esc, notes, page, table
@@ -99,11 +99,14 @@ def _key_numbers(v: dict, gview) -> list[str]:
 
 def run_demo(out: str | Path, echo=print) -> str:
     """Run every demo step into ``out``; returns a short summary for the terminal."""
+    with RunOutputs("demo", out=out, planned=["index.html", "summary.txt"]):
+        return _run_all(Path(out), echo)
+
+
+def _run_all(out: Path, echo) -> str:
     from . import views
     from .options import GradeOptions
 
-    out = Path(out)
-    out.mkdir(parents=True, exist_ok=True)
     t0 = time.perf_counter()
     steps = []
 

@@ -12,8 +12,8 @@ likely slip is named with its evidence, and a score from 0 to 100 is built from 
 An agreement part is 1 within ``tolerance_pct``, falls linearly to 0 at five times the
 tolerance. The score is 100 x sum(weight x part) / sum(weights); default weights 20/50/30.
 
-Batch work goes through one executor seam (:func:`grade_class` takes any
-``concurrent.futures.Executor``), so a cluster's executor can replace the local process pool.
+Batch work goes through the one executor seam, :mod:`rateabs.parallel` (:func:`grade_class`
+takes any ``concurrent.futures.Executor``: local processes, a Dask cluster's, or none).
 """
 
 from __future__ import annotations
@@ -24,7 +24,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError, RateabsError, UsageError
+from .errors import InputError, RateabsError
+from .parallel import check_jobs  # noqa: F401  (the rule lives in parallel)
 
 QUANTITIES = {
     # quantity: (model it needs, base unit, allowed report units -> factor from base)
@@ -390,46 +391,26 @@ def grade_one(task: Task, rubric: dict, plots: bool = True) -> dict:
 def grade_class(folder, rubric: Rubric, executor=None, progress=None, plots: bool = True) -> list:
     """Grade every student of the roster; results in roster order.
 
-    ``executor`` is any ``concurrent.futures.Executor`` (a local process pool, or a cluster's);
-    without one the work runs here, in order. ``progress`` is called once per finished student.
+    ``executor`` is any ``concurrent.futures.Executor`` (``parallel.open_executor`` gives local
+    processes or a Dask cluster's); without one the work runs here, in order. Workers receive
+    each run's path, never its bytes. ``progress`` is called once per finished student; a
+    student whose worker failed gets a "not analysed" row, the class goes on.
     """
+    from functools import partial
+
+    from .parallel import run
+
     tasks = read_roster(folder)
     rd = rubric.to_dict()
-    if executor is None:
-        out = []
-        for t in tasks:
-            out.append(grade_one(t, rd, plots))
-            if progress:
-                progress(1)
-        return out
-    futures = [executor.submit(grade_one, t, rd, plots) for t in tasks]
-    from concurrent.futures import as_completed
-
-    index = {f: i for i, f in enumerate(futures)}
-    results = [None] * len(tasks)
-    for f in as_completed(futures):
-        i = index[f]
-        try:
-            results[i] = f.result()
-        except Exception as exc:  # a crashed worker costs one student, not the class
-            t = tasks[i]
-            results[i] = {"student": t.student, "file": t.file, "reported": t.reported,
-                          "reference": rd["reference"], "unit": rd["unit"], "extra": t.extra,
-                          "value": None, "score": 0.0, "parts": {}, "status": "not analysed",
-                          "diagnosis": [f"could not be analysed: the worker failed "
-                                        f"({type(exc).__name__})"], "png": None}
-        if progress:
-            progress(1)
-    return results
+    return [done.value if done.ok else _worker_failed(tasks[done.index], rd, done.error)
+            for done in run(partial(grade_one, rubric=rd, plots=plots), tasks, executor,
+                            progress)]
 
 
-def check_jobs(jobs: int | None) -> int:
-    """Number of worker processes: default all cores."""
-    import os
-
-    n = os.cpu_count() or 1
-    if jobs is None:
-        return n
-    if jobs < 1:
-        raise UsageError("--jobs must be at least 1", f"use 1 to {n}")
-    return jobs
+def _worker_failed(t: Task, rd: dict, exc: BaseException) -> dict:
+    """The row of a student whose grading crashed (on a worker, or here)."""
+    return {"student": t.student, "file": t.file, "reported": t.reported,
+            "reference": rd["reference"], "unit": rd["unit"], "extra": t.extra, "value": None,
+            "score": 0.0, "parts": {}, "status": "not analysed",
+            "diagnosis": [f"could not be analysed: grading this run failed ({type(exc).__name__})"],
+            "png": None}

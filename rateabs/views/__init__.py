@@ -25,6 +25,10 @@ class View:
     analysis: object = None
 
 
+#: Settings fields that name input files or folders (never written over; see files.RunOutputs).
+INPUT_KEYS = ("file", "layout_file", "excess", "folder", "rubric")
+
+
 def write_outputs(doc: dict, csv_text: str, out, name: str) -> None:
     """``NAME.json`` and ``NAME.csv`` into the --out folder (nothing without one)."""
     from ..output import to_json
@@ -39,29 +43,46 @@ def write_only(fmt, doc, table_text, csv_text, out, name) -> None:
     write_outputs(doc, csv_text, out, name)
 
 
-def deliver(o, emit, view: View, name: str, plot=None) -> list[Path]:
+def _output_part(o):
+    """The --out folder and --report file of a command's settings (grade has no report)."""
+    out = getattr(o, "output", o)
+    return getattr(out, "out", None), getattr(out, "report", None)
+
+
+def run_outputs(o, command: str, planned=()):
+    """The run's :class:`~rateabs.files.RunOutputs` (``--out`` folder, ``--report`` file),
+    guarding every input file the settings name; use it as ``with run_outputs(o, name):``."""
+    from ..files import RunOutputs
+
+    out, report = _output_part(o)
+    inputs = [getattr(o, k) for k in INPUT_KEYS if getattr(o, k, None)]
+    return RunOutputs(command, inputs, out=out, report=report, planned=planned if out else ())
+
+
+def deliver(o, emit, view: View, name: str, plot=None, data=None) -> list[Path]:
     """Print the view, write --out files and plots, and the --report page; returns the plots.
 
     ``o`` is the command's settings (its ``output`` part is used). ``plot(folder)`` draws the
     command's figures into a folder and returns their paths; with --report but no --out they are
-    drawn into a temporary folder and embedded in the page.
+    drawn into a temporary folder and embedded in the page. ``data(folder)`` writes any further
+    data files into --out. Everything is written through one :func:`run_outputs` for the run.
     """
     import tempfile
 
-    from ..files import write_atomic
-
     out = o.output
-    emit(out.fmt, view.doc, view.table, view.csv, out.out, name)
-    pics: list[Path] = []
-    with tempfile.TemporaryDirectory() as tmp:
+    with run_outputs(o, name, [f"{name}.json", f"{name}.csv"]) as run, \
+            tempfile.TemporaryDirectory() as tmp:
+        emit(out.fmt, view.doc, view.table, view.csv, out.out, name)
+        if data is not None and out.out:
+            data(Path(out.out))
+        pics: list[Path] = []
         target = Path(out.out) if out.out else Path(tmp)
         if plot is not None and out.plots and (out.out or out.report):
-            target.mkdir(parents=True, exist_ok=True)
             pics = list(plot(target) or [])
         if out.report:
             from ..report import document_page
 
-            write_atomic(out.report, document_page(view.doc, pics))
+            run.write(out.report, document_page(view.doc, pics))
     return pics if out.out else []
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 from ..fitting import fmt_pm
 from ..options import CompletionOptions
 from ..output import document, rows_to_csv, safe_filename
-from . import View, check_rate_law_fix, deliver, each_trace, rate_law_orders, read_for
+from . import View, check_rate_law_fix, deliver, each_trace, rate_law_orders, read_for, run_outputs
 
 
 def _describe(name: str, c) -> str:
@@ -126,5 +126,6 @@ def follow_completion(o: CompletionOptions, echo, emit, sleep=None) -> View | No
         echo("no forecast could be made from the data read")
         return None
     echo("final summary:")
-    emit(o.output.fmt, view.doc, view.table, view.csv, o.output.out, "completion")
+    with run_outputs(o, "completion", ["completion.json", "completion.csv"]):
+        emit(o.output.fmt, view.doc, view.table, view.csv, o.output.out, "completion")
     return view

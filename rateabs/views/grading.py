@@ -9,7 +9,7 @@ import numpy as np
 from ..fitting import fmt_pm
 from ..options import GradeOptions
 from ..output import document, render_table, rows_to_csv, write_text
-from . import View
+from . import View, run_outputs
 
 
 def _gradebook(results: list[dict]) -> list[dict]:
@@ -132,25 +132,20 @@ def _text(public: list[dict], rubric) -> str:
 
 def run_grade(o: GradeOptions, emit, progressbar=None) -> View:
     """The ``grade`` command: grade in parallel, print the gradebook, write the pages."""
-    from concurrent.futures import ProcessPoolExecutor
-
     from ..grade import check_jobs, grade_class, read_rubric
+    from ..parallel import describe, open_executor
 
     rubric = read_rubric(o.rubric)
-    jobs = check_jobs(o.jobs)
-    executor = ProcessPoolExecutor(max_workers=jobs) if jobs > 1 else None
-    try:
+    scheduler = getattr(o, "scheduler", None)
+    jobs = check_jobs(o.jobs) if not scheduler else None
+    with open_executor(jobs, scheduler) as executor:
+        where = describe(executor)
         results = grade_class(o.folder, rubric, executor=executor,
                               progress=progressbar, plots=bool(o.out))
         if o.out:
             draw_figures(results, executor)
-    finally:
-        if executor is not None:
-            executor.shutdown()
-    if o.out:
-        grade_pages(results, rubric, Path(o.out))
     public = [{k: v for k, v in r.items() if k not in ("png", "figure")} for r in results]
-    settings = {"rubric": rubric.to_dict(), "jobs": jobs,
+    settings = {"rubric": rubric.to_dict(), "jobs": jobs, "ran_on": where,
                 "score": "100 x sum(weight x part) / sum(weights); parts data, report, "
                          "reference (see docs/formats.md)"}
     doc = document("grade", [o.folder, o.rubric], settings, public, [])
@@ -159,5 +154,8 @@ def run_grade(o: GradeOptions, emit, progressbar=None) -> View:
              "score": r["score"], "status": r["status"], "diagnosis": r["diagnosis"]}
             for r in public]
     view = View(doc, _text(public, rubric), rows_to_csv(flat, list(flat[0])), results)
-    emit(o.fmt, view.doc, view.table, view.csv, o.out, "grade")
+    with run_outputs(o, "grade", ["grade.json", "grade.csv", "gradebook.csv"]):
+        if o.out:
+            grade_pages(results, rubric, Path(o.out))
+        emit(o.fmt, view.doc, view.table, view.csv, o.out, "grade")
     return view

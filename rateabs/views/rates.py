@@ -158,7 +158,6 @@ def rate_plots(view: View, out: str | Path, stem: str = "rates") -> list[Path]:
 def run_rates(o: RatesOptions, emit) -> View:
     """The ``rates`` command: compute, print in the chosen format, write files into --out."""
     view = compute_rates(o)
-    if o.output.out:
-        write_replicates(view, o.output.out)
-    deliver(o, emit, view, "rates", lambda folder: rate_plots(view, folder))
+    deliver(o, emit, view, "rates", lambda folder: rate_plots(view, folder),
+            data=lambda folder: write_replicates(view, folder))
     return view
