@@ -1,0 +1,105 @@
+"""Figures of ``rateabs saturation``: the fit with residuals and the linearised views."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..fitting import fmt_pm
+from .style import GRID, INK, PALETTE, house_style, save
+
+
+def _level_groups(data):
+    if data.i is None:
+        return [(None, np.ones(data.v.size, bool))]
+    return [(lv, data.i == lv) for lv in np.unique(data.i)]
+
+
+def _curve_x(s, log=False):
+    s = np.asarray(s, float)
+    pos = s[s > 0]
+    lo = pos.min() * 0.5 if pos.size else 1e-3
+    hi = s.max() * 1.08
+    return np.geomspace(lo, hi, 200) if log else np.linspace(0, hi, 200)
+
+
+def saturation_fit(analysis, path, title: str = "rate vs substrate"):
+    """Data (per inhibitor level), the chosen fit and residuals underneath."""
+    d = analysis.data
+    best = analysis.best
+    vals = list(best.values().values())
+    func = best.func
+    xu = d.conc_unit or "conc."
+    yu = d.rate_unit or "rate"
+    with house_style() as plt:
+        fig, (ax, axr) = plt.subplots(2, 1, figsize=(6.4, 5.2), sharex=True,
+                                      gridspec_kw={"height_ratios": [3, 1.2]})
+        if best.model == "ic50":
+            xs = d.i
+            xc = _curve_x(xs, log=True)
+            ax.plot(xs[xs > 0], d.v[xs > 0], "o", color=PALETTE[0], label="data")
+            ax.plot(xc, func(xc, *vals), color=PALETTE[1], label="4-parameter logistic")
+            ax.set_xscale("log")
+            axr.plot(xs[xs > 0], (d.v - best.fitted)[xs > 0], "o", color=PALETTE[0])
+            axr.set_xlabel(f"[inhibitor] ({d.inhib_unit or 'conc.'}, log scale; zero dose "
+                           "not shown)")
+        else:
+            xc = _curve_x(d.s)
+            for k, (lv, sel) in enumerate(_level_groups(d)):
+                col = PALETTE[k % len(PALETTE)]
+                lab = "data" if lv is None else f"[I] = {lv:g} {d.inhib_unit}"
+                ax.plot(d.s[sel], d.v[sel], "o", color=col, label=lab)
+                xx = xc if lv is None else np.vstack([xc, np.full_like(xc, lv)])
+                ax.plot(xc, func(xx, *vals), color=col, lw=1.4)
+                axr.plot(d.s[sel], (d.v - best.fitted)[sel], "o", color=col)
+            axr.set_xlabel(f"[S] ({xu})")
+        axr.axhline(0, color=INK, lw=0.8)
+        axr.set_ylabel(f"residual ({yu})")
+        ax.set_ylabel(f"rate ({yu})")
+        ax.set_title(f"{title}: {best.model} fit (chosen)")
+        ax.legend(loc="center right")
+        txt = "\n".join(f"{p.name} = {fmt_pm(p.value, p.se, unit=p.unit)}"
+                        for p in best.params.values())
+        ax.text(0.98, 0.04, txt, transform=ax.transAxes, ha="right", va="bottom", fontsize=8,
+                bbox={"boxstyle": "round", "fc": "white", "ec": GRID})
+        return save(fig, path)
+
+
+def linearised(analysis, path):
+    """Lineweaver–Burk, Eadie–Hofstee and Hanes–Woolf views, with the nonlinear fit carried on.
+
+    For inspection only: the estimates come from the nonlinear fit, never from these lines.
+    """
+    d = analysis.data
+    best = analysis.best
+    vals = list(best.values().values())
+    xu, yu = d.conc_unit or "conc.", d.rate_unit or "rate"
+    with house_style() as plt:
+        fig, axes = plt.subplots(1, 3, figsize=(11.5, 3.8), layout="constrained")
+        xc = _curve_x(d.s, log=True)
+        for k, (lv, sel) in enumerate(_level_groups(d)):
+            col = PALETTE[k % len(PALETTE)]
+            s, v = d.s[sel], d.v[sel]
+            ok = (s > 0) & (v > 0)
+            xx = xc if lv is None else np.vstack([xc, np.full_like(xc, lv)])
+            vc = best.func(xx, *vals)
+            lab = None if lv is None else f"[I] = {lv:g}"
+            axes[0].plot(1 / s[ok], 1 / v[ok], "o", color=col, label=lab)
+            axes[0].plot(1 / xc, 1 / vc, color=col, lw=1.2)
+            axes[1].plot(v[ok] / s[ok], v[ok], "o", color=col)
+            axes[1].plot(vc / xc, vc, color=col, lw=1.2)
+            axes[2].plot(s[ok], s[ok] / v[ok], "o", color=col)
+            axes[2].plot(xc, xc / vc, color=col, lw=1.2)
+        axes[0].set(xlabel=f"1/[S] (1/{xu})", ylabel=f"1/v (1/({yu}))", title="Lineweaver–Burk")
+        axes[1].set(xlabel=f"v/[S] (({yu})/{xu})", ylabel=f"v ({yu})", title="Eadie–Hofstee")
+        axes[2].set(xlabel=f"[S] ({xu})", ylabel=f"[S]/v ({xu}/({yu}))", title="Hanes–Woolf")
+        s_max = np.max(d.s[d.s > 0]) if np.any(d.s > 0) else 1
+        axes[0].set_xlim(0, 1.1 / np.min(d.s[d.s > 0]) if np.any(d.s > 0) else 1)
+        axes[2].set_xlim(0, s_max * 1.1)
+        axes[0].set_ylim(bottom=0)
+        axes[1].set_xlim(left=0)
+        axes[2].set_ylim(bottom=0)
+        if d.i is not None:
+            axes[0].legend(loc="upper left")
+        fig.suptitle(f"linearised views for inspection only; lines are the nonlinear {best.model} "
+                     "fit, not regressions", fontsize=9)
+        return save(fig, path)
