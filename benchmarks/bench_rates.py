@@ -17,7 +17,8 @@ sys.path.insert(0, str(Path(__file__).parent))
 from common import timed, write_plate  # noqa: E402
 
 from rateabs.io import read_traces  # noqa: E402
-from rateabs.rates import RateSettings, analyse_plate, find_windows  # noqa: E402
+from rateabs.rates import RateSettings, analyse_plate  # noqa: E402
+from rateabs.slopes import find_windows  # noqa: E402
 
 
 def main() -> None:

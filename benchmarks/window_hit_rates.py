@@ -10,8 +10,8 @@ import sys
 
 import numpy as np
 
-from rateabs.rates import find_windows
 from rateabs.simulate import rate_traces as simulate
+from rateabs.slopes import find_windows
 
 
 def main(n: int = 1000) -> None:

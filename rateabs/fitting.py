@@ -73,15 +73,33 @@ def fmt_p(p) -> str:
 
 
 def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
-    """A value and its SE for a person: ``12.3 ± 0.45 uM``; '-' when the value is missing.
+    """A value and its SE for a person, the value rounded to the SE's two significant digits:
+    ``12.35 ± 0.46 uM``; ``digits`` significant digits without an SE; '-' when missing.
+
+    Rounding to the uncertainty is common practice (e.g. the JCGM 100:2008 Guide to the
+    expression of uncertainty in measurement, 7.2.6: an uncertainty to at most two significant
+    digits, the value rounded to match).
 
     >>> fmt_pm(12.3456, 0.4567, unit="uM")
     '12.35 ± 0.46 uM'
+    >>> fmt_pm(0.00080642, 4.7e-06)
+    '8.064e-04 ± 4.7e-06'
+    >>> fmt_pm(1234.5678, 12.3)
+    '1235 ± 12'
     """
     v, e = finite_or_none(value), finite_or_none(se)
     if v is None:
         return "-"
-    text = f"{v:.{digits}g}" if e is None else f"{v:.{digits}g} ± {e:.2g}"
+    if e is None or e <= 0:
+        text = f"{v:.{digits}g}"
+    else:
+        last = math.floor(math.log10(e)) - 1          # place of the SE's second digit
+        if 1e-3 <= abs(v) < 1e6 or (v == 0 and 1e-3 <= e < 1e6):
+            dec = max(0, -last)
+            text = f"{v:.{dec}f} ± {e:.{dec}f}"
+        else:
+            lead = math.floor(math.log10(abs(v))) if v else last + 1
+            text = f"{v:.{max(0, lead - last)}e} ± {e:.1e}"
     return f"{text} {unit}" if unit else text
 
 

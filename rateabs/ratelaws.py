@@ -24,7 +24,7 @@ from .errors import AnalysisError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, fd_step, fit
 from .models import LINE, RATE_LAWS, Model, guess_decay, mixed2
 from .options import ORDERS
-from .rates import noise_sigma
+from .slopes import noise_sigma
 from .traces import Grid
 
 LN2 = math.log(2.0)

@@ -9,8 +9,9 @@ from click.testing import CliRunner
 from scipy import optimize, stats
 
 from rateabs.cli import main
-from rateabs.rates import RateSettings, analyse_plate, find_windows, grubbs_outlier, z_factor
+from rateabs.rates import RateSettings, analyse_plate, grubbs_outlier, z_factor
 from rateabs.simulate import rate_traces
+from rateabs.slopes import find_windows
 from rateabs.traces import TraceSet
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"

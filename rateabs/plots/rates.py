@@ -53,7 +53,7 @@ def rate_traces(analysis, out, stem: str = "rates", per_page: int = 24) -> list:
                     ts0 = w.t_start[i] if np.isfinite(w.t_start[i]) else 0.0
                     y0 = y[ok][0] if ok.any() else 0.0
                     tau = np.linspace(0, np.nanmax(g.times[i][ok]) - ts0, 60)
-                    from ..rates import rate_curve
+                    from ..slopes import rate_curve
                     base = y0 - g.values[i][ok][0] if ok.any() else 0.0
                     ax.plot((tau + ts0) / 60, y0 + rate_curve(tau, c, v0, kk) - base, ":", lw=1.0,
                             color=INK)
