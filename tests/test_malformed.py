@@ -37,7 +37,7 @@ CASES = {
     "mixed clock and numbers": ("mix.csv", b"Time,A1\n0:00:00,0.1\n10,0.2\n0:00:20,0.3\n",
                                 "mixes with clock times"),
     "single column": ("sc.csv", b"0.1\n0.2\n0.3\n", "single field"),
-    "intensity without I0": ("i.csv", b"Time (s),counts A1\n0,100\n10,90\n", "I0"),
+    "intensity without I0": ("i.csv", b"Time (s),counts A1\n0,100\n10,90\n20,80\n", "I0"),
     "long layout without values": ("lv.csv", b"well,Time (s)\nA1,0\nA1,10\nA2,0\n",
                                    "no value column"),
     "plate block without a time": ("pb.csv", b"Plate export\nfirst read\n,1,2,3\nA,0.1,0.2,0.3\n"
