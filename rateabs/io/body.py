@@ -226,7 +226,8 @@ class ChunkTable:
         """Column ``j`` as readings and flag codes."""
         nums = self._numbers(j)
         if nums is not None:
-            return nums, float_flags(nums)
+            flags = float_flags(nums)          # an infinite reading is an overflow, not a number
+            return (np.where(flags != 0, np.nan, nums) if flags.any() else nums), flags
         return parse_values(self.cells(j), self.decimal, self.nos, label)
 
     def times(self, j: int, tu: TimeUnit) -> np.ndarray:
@@ -238,7 +239,8 @@ class ChunkTable:
             tu.decide(False)
         if tu.clock:
             return tu.seconds(self.cells(j), self.decimal, self.nos)
-        return nums * tu.factor
+        with np.errstate(over="ignore"):         # beyond float range: refused as implausible
+            return nums * tu.factor
 
     def lenient(self, j: int) -> np.ndarray:
         """Column ``j`` as floats, NaN where a cell is not a number (set-aside columns)."""

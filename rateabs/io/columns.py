@@ -72,7 +72,8 @@ class Sample:
         if self.frac(j, ("clock",)) > 0.5:
             return np.array([clock_seconds(c) if k == "clock" else np.nan
                              for c, k in zip(self.cells[j], self.kinds[j], strict=True)])
-        return self.numbers(j) * TIME_UNITS.get(unit or "s", 1.0)
+        with np.errstate(over="ignore"):
+            return self.numbers(j) * TIME_UNITS.get(unit or "s", 1.0)
 
     def rises(self, j: int) -> bool:
         """True when the numbers of column ``j`` rise strictly."""

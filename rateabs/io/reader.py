@@ -78,10 +78,8 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
     warnings, looks_like = plausibility(kind, parsed.values, signal is not None)
     conv = to_absorbance(kind, parsed.names, parsed.values, parsed.flags, meta, i0)
     check_magnitude(conv.values, conv.names, looks_like)
-    usable = np.isfinite(conv.values) & (conv.flags == 0)
-    few = _few_readings(conv.names, usable)
-    ts = TraceSet.from_arrays(conv.names, parsed.times, conv.values, usable=usable,
-                              flags=conv.flags)
+    ts = TraceSet.from_arrays(conv.names, parsed.times, conv.values, flags=conv.flags)
+    few = _few_readings(conv.names, ts.grid().usable)
     plate = parsed.plate if parsed.plate[0] else plate_format(conv.names)
     facts, said = file_facts(meta)
     ts.info.update(

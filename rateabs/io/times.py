@@ -91,7 +91,8 @@ class TimeUnit:
                              "write every time the same way", row=lines[bad], column=self.label)
         if self.clock:
             return np.array([clock_seconds(c) for c in cells], dtype=float)
-        return np.array([to_float(c, decimal) for c in cells], dtype=float) * self.factor
+        with np.errstate(over="ignore"):         # beyond float range: refused as implausible
+            return np.array([to_float(c, decimal) for c in cells], dtype=float) * self.factor
 
     @property
     def factor(self) -> float:

@@ -22,8 +22,9 @@ OVERFLOW = re.compile(
     r"^(over(flow)?|ovrflw|sat(urated)?|\*+|>\s*[-+]?[\d.,]+([eE][-+]?\d+)?|oor|out of range|"
     r"range\?|hi(gh)?|[-+]?inf(inity)?)$", re.IGNORECASE)
 
-NUM_DOT = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?$")
-NUM_COMMA = re.compile(r"^[-+]?(\d+,?\d*|,\d+)([eE][-+]?\d+)?$")
+# (written so that no cell, however long, makes the regular expressions backtrack)
+NUM_DOT = re.compile(r"^[-+]?(\d+(\.\d*)?|\.\d+)([eE][-+]?\d+)?$")
+NUM_COMMA = re.compile(r"^[-+]?(\d+(,\d*)?|,\d+)([eE][-+]?\d+)?$")
 #: Clock times h:mm:ss and mm:ss, and times written with their unit ("30 s", "1.5 min").
 CLOCK3 = re.compile(r"^(\d+):([0-5]?\d):([0-5]?\d(?:[.,]\d+)?)$")
 CLOCK2 = re.compile(r"^(\d+):([0-5]?\d(?:[.,]\d+)?)$")
