@@ -63,6 +63,12 @@ CASES = {
     "superscript in a column-number row": (
         "sup.csv", "Time: 0 s\n,1,2,3\nA,0.1,0.2,0.3\n\nTime: 30 s\n,1,2,3\u00b2\nA,0.2,0.3,0.4\n"
         .encode(), "number the columns 1, 2, 3"),
+    "a 140,000-digit column number": (
+        "hb.csv", b"Time: 0 s\n,1,2\nA,0.1,0.2\n\nTime: 30 s\n,1," + b"7" * 140_000 + b"\nA,0.2,0.3\n"
+        b"\nTime: 60 s\n,1,2\nA,0.3,0.4\n", "number the columns 1, 2, 3"),
+    "plate row without its column row": (
+        "nc.csv", b"Time: 0 s\n,1,2\nA,0.1,0.2\n\nTime: 30 s\n,1,2\nA,0.2,0.3\n\nTime: 60 s\n"
+        b"A,0.3,0.4\n", "no row of column numbers above it"),
     "plate row twice in a block": ("pr.csv", b"Time: 0 s\n,1,2\nA,0.1,0.2\nA,0.1,0.2\n\nTime: 30 s"
                                    b"\n,1,2\nA,0.2,0.3\n", "row A appears twice"),
     "I0 line without a number": ("i0.csv", b"I0: n/a\nTime (s),counts A1\n0,100\n10,90\n20,80\n",

@@ -56,10 +56,14 @@ def read_blocks(src: Source, start: int, decimal: str, option: str | None, log: 
             blocks.append(cur)
             recent.clear()
         elif looks_like_column_numbers(r):
+            shown = ", ".join(c.strip() for c in r[1:width(r)])
             raise InputError(f"the column numbers of this plate block read "
-                             f"{', '.join(c.strip() for c in r[1:width(r)])!r}",
+                             f"{shown if len(shown) <= 60 else shown[:57] + '...'!r}",
                              "number the columns 1, 2, 3, ... in plain digits", row=no)
-        elif cur is not None and r and WELL_ROW.match(r[0].strip()):
+        elif r and WELL_ROW.match(r[0].strip()) and width(r) > 1 and (cur or blocks):
+            if cur is None:
+                raise InputError(f"plate row {r[0].strip()} has no row of column numbers "
+                                 "above it", "give each block its row ',1,2,3,...'", row=no)
             _grid_row(cur, no, r, decimal)
         else:
             cur = None

@@ -33,9 +33,6 @@ from .source import Line, Source
 from .times import TimeUnit
 from .values import cell_kind, decimals, float_flags, parse_values, to_float
 
-CHUNK_CHARS = 4_000_000
-CHUNK_LINES = 50_000
-
 #: Why a row was left out, by reason code.
 DROP_REASONS = {
     "half-written": "the file ends in the middle of this line (a write that was cut short)",
@@ -105,55 +102,80 @@ def torn(src: Source, cells: list[str], before: list[str] | None) -> bool:
 
 @dataclass
 class Chunk:
-    """Consecutive body rows: their line numbers and lines (each with the header's width)."""
+    """Consecutive body rows: their line numbers and lines (each with the header's width),
+    and the lines joined, when they were taken whole from the file."""
 
-    nos: list[int]
+    nos: np.ndarray
     lines: list[Line]
+    text: str | None = None
 
 
 class Body:
-    """Iterate the rows below a header in :class:`Chunk` s, applying the module's rules."""
+    """Iterate the rows below a header in :class:`Chunk` s, applying the module's rules.
+
+    A block of lines that all have the header's number of fields (no blank line, no quotes, not
+    the unfinished end of the file) is taken whole; any other block line by line.
+    """
 
     def __init__(self, src: Source, start: int, ncols: int, header_len: int, log: RowLog,
                  partial: bool = False) -> None:
         self.src, self.start, self.ncols, self.header_len = src, start, ncols, header_len
         self.log, self.partial = log, partial
         self.rows = 0
+        self.ended = False
         self._prev: tuple[int, Line] | None = None
 
     def __iter__(self) -> Iterator[Chunk]:
-        nos: list[int] = []
-        lines: list[Line] = []
-        chars = 0
-        pairs = with_last(self.src.lines_from(self.start))
-        for (no, line), last in pairs:
-            if is_blank(line):
-                if self.rows or nos:
-                    self._after_table(pairs)
-                    break
+        for (first, block), last in with_last(self.src.blocks_from(self.start)):
+            if self.ended:
+                self._after_table(first, block)
                 continue
-            kept = self._row(no, line, last)
-            if kept is None:
-                continue
-            self._prev = (no, kept)
-            nos.append(no)
-            lines.append(kept)
-            chars += len(kept) if isinstance(kept, str) else sum(map(len, kept))
-            if chars >= CHUNK_CHARS or len(nos) >= CHUNK_LINES:
-                self.rows += len(nos)
-                yield Chunk(nos, lines)
-                nos, lines, chars = [], [], 0
-        if nos:
-            self.rows += len(nos)
-            yield Chunk(nos, lines)
+            text = self._whole(block, last)
+            chunk = Chunk(np.arange(first, first + len(block)), block, text) if text else (
+                self._line_by_line(first, block, last))
+            if chunk is not None and len(chunk.nos):
+                self.rows += len(chunk.nos)
+                self._prev = (int(chunk.nos[-1]), chunk.lines[-1])
+                yield chunk
         if not self.rows:
             raise InputError("the header has no data rows below it", "export the readings too",
                              row=self.src.head_nos[self.start - 1])
 
-    def _after_table(self, pairs) -> None:
-        for (no, line), _ in pairs:
+    def _whole(self, block: list[Line], last: bool) -> str | None:
+        """The block's text when every line passes without a closer look, else None."""
+        if not block or not isinstance(block[0], str) or (last and not self.src.terminated):
+            return None
+        d = self.src.delimiter
+        if d == " ":
+            ok = all(len(ln.split()) == self.ncols for ln in block)
+        else:
+            want = self.ncols - 1
+            ok = all(ln.count(d) == want for ln in block)
+        text = "\n".join(block) if ok else ""
+        return text if ok and '"' not in text else None
+
+    def _line_by_line(self, first: int, block: list[Line], last: bool) -> Chunk | None:
+        nos: list[int] = []
+        lines: list[Line] = []
+        for k, line in enumerate(block):
+            no = first + k
+            if is_blank(line):
+                if self.rows or nos:
+                    self.ended = True
+                    self._after_table(no + 1, block[k + 1:])
+                    break
+                continue
+            kept = self._row(no, line, last and k == len(block) - 1)
+            if kept is not None:
+                self._prev = (no, kept)
+                nos.append(no)
+                lines.append(kept)
+        return Chunk(np.asarray(nos, dtype=np.int64), lines)
+
+    def _after_table(self, first: int, block: list[Line]) -> None:
+        for k, line in enumerate(block):
             if not is_blank(line):
-                self.log.drop("after-table", no)
+                self.log.drop("after-table", first + k)
 
     def _row(self, no: int, line: Line, last: bool) -> Line | None:
         """The line trimmed to the header's width, or None when it is left out."""
@@ -264,9 +286,10 @@ def _fast_frame(chunk: Chunk, src: Source, ncols: int, decimal: str,
     if not src.text or not all(isinstance(ln, str) for ln in chunk.lines):
         return None
     sep = r"\s+" if src.delimiter == " " else src.delimiter
+    text = chunk.text if chunk.text is not None else "\n".join(chunk.lines)
     try:
         frame = pd.read_csv(
-            io.StringIO("\n".join(chunk.lines)), sep=sep, header=None, names=range(ncols),
+            io.StringIO(text), sep=sep, header=None, names=range(ncols),
             index_col=False, decimal=decimal, na_values=[""], keep_default_na=False,
             dtype={j: object for j in text_cols}, skip_blank_lines=False, engine="c",
             quoting=csv.QUOTE_MINIMAL, low_memory=False)

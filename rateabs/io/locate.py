@@ -35,16 +35,16 @@ def is_column_numbers(cells: list[str]) -> bool:
     if len(cells) < 3 or cells[0].strip():
         return False
     nums = [c.strip() for c in cells[1:width(cells)]]
-    return len(nums) >= 2 and all(re.fullmatch(r"[0-9]+", c) for c in nums) and [
+    return len(nums) >= 2 and all(re.fullmatch(r"[0-9]{1,6}", c) for c in nums) and [
         int(c) for c in nums] == list(range(1, len(nums) + 1))
 
 
 def looks_like_column_numbers(cells: list[str]) -> bool:
-    """An empty corner then short cells starting with a digit (``1, 2, 3²``): a column row,
-    maybe a damaged one."""
+    """An empty corner then cells starting with a digit, without a decimal mark
+    (``1, 2, 3²``): a column row, maybe a damaged one."""
     nums = [c.strip() for c in cells[1:width(cells)]]
     return bool(cells) and not cells[0].strip() and len(nums) >= 2 and all(
-        0 < len(c) <= 4 and c[0].isdigit() and not re.search(r"[.,]", c) for c in nums)
+        c[:1].isdigit() and not re.search(r"[.,]", c) for c in nums)
 
 
 def locate(rows: list[list[str]], decimal: str) -> Located:
@@ -70,7 +70,10 @@ def locate(rows: list[list[str]], decimal: str) -> Located:
 
 
 class _Kinds:
-    """Cell kinds of the rows, classified when first asked for (headers sit near the top)."""
+    """Cell kinds of the rows' first cells (enough to tell a header), classified when first
+    asked for (headers sit near the top)."""
+
+    CELLS = 256
 
     def __init__(self, rows: list[list[str]], decimal: str) -> None:
         self.rows, self.decimal = rows, decimal
@@ -79,10 +82,12 @@ class _Kinds:
 
     def __getitem__(self, i: int) -> list[str]:
         if i not in self.cache:
-            self.cache[i] = [cell_kind(c, self.decimal) for c in self.rows[i][:self.widths[i]]]
+            cells = self.rows[i][:min(self.widths[i], self.CELLS)]
+            self.cache[i] = [cell_kind(c, self.decimal) for c in cells]
         return self.cache[i]
 
     def texty(self, i: int) -> bool:
+        """Row ``i`` has two or more filled cells, at least half of them words."""
         ks = [k for k in self[i] if k != "empty"]
         return len(ks) >= 2 and sum(k == "text" for k in ks) >= len(ks) / 2
 

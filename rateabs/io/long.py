@@ -35,13 +35,13 @@ def read_long(src: Source, body: Body, cols: Columns, decimal: str, tu: TimeUnit
         code = _codes(table, cols.trace_name, header, index)
         v, f = table.readings(vj, header[vj])
         for key, arr in (("code", code), ("t", table.times(cols.time, tu)), ("v", v), ("f", f),
-                         ("line", np.asarray(table.nos))):
+                         ("line", np.asarray(table.nos, dtype=np.int32))):
             parts[key].append(arr)
         for j in others:
             seen[j].append(pd.DataFrame({"code": code, "cell": [c.strip() for c in
                                                                  table.cells(j)]}
                                         ).drop_duplicates())
-    arrays = {k: np.concatenate(v) for k, v in parts.items()}
+    arrays = {key: np.concatenate(parts.pop(key)) for key in list(parts)}
     names = list(index)
     t, values, flags = _to_grid(arrays, names)
     per_trace, set_aside, notes = _other_columns(header, others, seen, names, decimal, vj)
@@ -54,36 +54,41 @@ def read_long(src: Source, body: Body, cols: Columns, decimal: str, tu: TimeUnit
 
 
 def _codes(table: ChunkTable, j: int, header: list[str], index: dict[str, int]) -> np.ndarray:
-    names = [c.strip() for c in table.cells(j)]
-    for i, name in enumerate(names):
-        if not name:
-            raise InputError("the trace name is empty", "name the trace of every reading",
-                             row=table.nos[i], column=header[j])
-    return np.fromiter((index.setdefault(n, len(index)) for n in names), dtype=np.int64,
-                       count=len(names))
+    """Trace numbers of a chunk's rows (new names numbered as met); empty names refused."""
+    names = pd.Series(table.cells(j), dtype=object).str.strip()
+    empty = (names == "").to_numpy()
+    if empty.any():
+        raise InputError("the trace name is empty", "name the trace of every reading",
+                         row=table.nos[int(np.argmax(empty))], column=header[j])
+    local, uniques = pd.factorize(names)
+    to_global = np.array([index.setdefault(n, len(index)) for n in uniques], dtype=np.int32)
+    return to_global[local]
 
 
 def _to_grid(a: dict[str, np.ndarray], names: list[str]):
-    """Traces x times arrays (NaN padding), each trace sorted by time; duplicates refused."""
+    """Traces x times arrays (NaN padding), each trace sorted by time; duplicates refused.
+    The arrays of ``a`` are replaced as they are reordered, so that each is held once."""
     check_plausible(a["t"], a["line"])
     order = np.lexsort((a["t"], a["code"]))
-    code, t = a["code"][order], a["t"][order]
+    for key in a:
+        a[key] = a[key][order]
+    del order
+    code, t = a["code"], a["t"]
     same = (np.diff(code) == 0) & (np.diff(t) == 0)
     if same.any():
         i = int(np.argmax(same)) + 1
         raise InputError(f"time {t[i]:g} s appears twice in trace {names[code[i]]}",
-                         "remove the duplicated reading or fix the time",
-                         row=int(a["line"][order][i]))
+                         "remove the duplicated reading or fix the time", row=int(a["line"][i]))
     counts = np.bincount(code, minlength=len(names))
     m = int(counts.max())
-    need_time_points(m, int(a["line"][order][0]))
+    need_time_points(m, int(a["line"][0]))
     pos = np.arange(code.size) - np.repeat(np.cumsum(counts) - counts, counts)
     times = np.full((len(names), m), np.nan)
-    values = np.full((len(names), m), np.nan)
-    flags = np.full((len(names), m), MISSING, dtype=np.int8)
     times[code, pos] = t
-    values[code, pos] = a["v"][order]
-    flags[code, pos] = a["f"][order]
+    values = np.full((len(names), m), np.nan)
+    values[code, pos] = a.pop("v")
+    flags = np.full((len(names), m), MISSING, dtype=np.int8)
+    flags[code, pos] = a.pop("f")
     return times, values, flags
 
 

@@ -20,6 +20,8 @@ from .workbook import Workbook
 
 HEAD_LINES = 2000             # lines examined to find the table, its header and its kinds
 HEAD_CHARS = 4_000_000        # ... or fewer when lines are long
+BLOCK_CHARS = 4_000_000       # text read at a time after the head
+BLOCK_ROWS = 5_000            # workbook rows read at a time
 Line = str | list[str]
 
 
@@ -104,10 +106,26 @@ class Source:
         """The cells of a line."""
         return line if isinstance(line, list) else split_line(line, self.delimiter, line_no)
 
+    def blocks_from(self, k: int) -> Iterator[tuple[int, list[Line]]]:
+        """From head index ``k`` to the end of the file (once), in blocks of consecutive lines:
+        ``(number of the first line, lines)``."""
+        if k < len(self.head_lines):
+            yield self.head_nos[k], self.head_lines[k:]
+        no = self.head_nos[-1] + 1 if self.head_nos else 1
+        while True:
+            if self.text:
+                block = [ln.rstrip("\n") for ln in self._stream.readlines(BLOCK_CHARS)]
+            else:
+                block = [cells for _, cells in itertools.islice(self._lines, BLOCK_ROWS)]
+            if not block:
+                return
+            yield no, block
+            no += len(block)
+
     def lines_from(self, k: int) -> Iterator[tuple[int, Line]]:
         """``(line number, line)`` from head index ``k`` to the end of the file (once)."""
-        return itertools.chain(zip(self.head_nos[k:], self.head_lines[k:], strict=True),
-                               self._lines)
+        for first, block in self.blocks_from(k):
+            yield from zip(itertools.count(first), block)
 
     def rows_from(self, k: int) -> Iterator[tuple[int, list[str]]]:
         """``(line number, cells)`` from head index ``k`` to the end of the file (once)."""

@@ -5,6 +5,8 @@ named like them are set aside, by the same rules as columns of a wide table.
 
 from __future__ import annotations
 
+import itertools
+
 import numpy as np
 
 from ..errors import InputError
@@ -50,7 +52,7 @@ def read_transposed(src: Source, hdr: int, decimal: str, option: str | None, log
     names, values, flags = [], [], []
     out = Parsed("transposed", names, t, np.empty((0, t.size)), np.empty((0, t.size), np.int8),
                  tu)
-    for no, r in [*rows, *rows_below]:
+    for no, r in itertools.chain(rows, rows_below):      # one row of cells at a time
         cells = list(r[1:w]) + [""] * (w - max(len(r), 1))
         name = r[0].strip()
         role = _role(name, cells, decimal, t, out.notes)
@@ -96,6 +98,8 @@ def _role(name: str, cells: list[str], decimal: str, t: np.ndarray, notes: list[
         return "temperature"
     if is_time(name):
         return "time"
+    if not (is_time_unit_word(name) or is_index(name)):
+        return None
     nums = np.array([to_float(c, decimal) if cell_kind(c, decimal) == "num" else np.nan
                      for c in cells])
     ok = np.isfinite(nums)
