@@ -126,6 +126,15 @@ def test_signal_from_metadata_and_intensity_with_i0(tmp_path):
     np.testing.assert_allclose(ts.grid().values[0], [0.30103, 1, 2], atol=1e-5)
 
 
+def test_reference_intensity_from_a_metadata_line_is_recorded(tmp_path):
+    p = tmp_path / "i.csv"
+    p.write_text("I0: 1000\nTime (s),counts tube 1\n0,500\n10,100\n20,10\n")
+    ts = read_traces(p)
+    np.testing.assert_allclose(ts.grid().values[0], [0.30103, 1, 2], atol=1e-5)
+    assert (ts.info["i0"], ts.info["i0_source"]) == (1000, "metadata line 'I0: 1000'")
+    assert read_traces(p, i0=500).info["i0_source"] == "option"
+
+
 def test_absorbance_that_looks_like_percent_t_warns(tmp_path):
     p = tmp_path / "a.csv"
     p.write_text("Time (s),Absorbance\n0,88.1\n10,70.2\n20,55.3\n")

@@ -10,6 +10,7 @@ import itertools
 import numpy as np
 
 from ..errors import InputError
+from ..units import TIME_UNITS
 from .body import RowLog, torn, with_last
 from .headers import is_index, is_temperature, is_time, is_time_unit_word, time_unit_from_header
 from .parsed import Parsed
@@ -104,7 +105,7 @@ def _role(name: str, cells: list[str], decimal: str, t: np.ndarray, notes: list[
                      for c in cells])
     ok = np.isfinite(nums)
     if is_time_unit_word(name):
-        factor = {"s": 1, "ms": 1e-3, "min": 60, "h": 3600}[time_unit_from_header(name)]
+        factor = TIME_UNITS[time_unit_from_header(name)]
         if ok.sum() >= 2 and np.allclose(nums[ok] * factor, t[ok], rtol=1e-3):
             return "time"
         notes.append(f"row {name!r} is named like a unit of time but its values are not the "
