@@ -123,7 +123,6 @@ class Rule:
 
     name: str
     test: Callable[[str], bool]
-    weak: bool = False          # the column's position and values must agree
 
     def __call__(self, header: str) -> bool:
         return self.test(header)
@@ -132,8 +131,8 @@ class Rule:
 RULES = (
     Rule("temperature", is_temperature),
     Rule("time", is_time),
-    Rule("time-unit-word", is_time_unit_word, weak=True),
-    Rule("index", is_index, weak=True),
+    Rule("time-unit-word", is_time_unit_word),
+    Rule("index", is_index),
     Rule("trace-name", is_trace_name),
     Rule("value", is_value),
 )

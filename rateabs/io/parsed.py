@@ -8,20 +8,15 @@ import numpy as np
 
 from .times import TimeUnit
 
-#: Roles of the columns (or rows) the reader sets aside, never read as traces.
-SET_ASIDE_ROLES = {
-    "temperature": "a temperature, kept as metadata",
-    "index": "a counter of reads (cycle, read number)",
-    "time": "another time column (the same times, or clock times of day)",
-    "text": "text that is not a trace name",
-    "numbers": "numbers that are not the chosen readings of a long table",
-    "empty-well": "a well with no reading in any plate block",
-}
-
 
 @dataclass
 class Parsed:
-    """Readings of one table and the decisions taken while reading it."""
+    """Readings of one table and the decisions taken while reading it.
+
+    ``set_aside`` maps each column (or row) kept out of the traces to its role: ``temperature``,
+    ``index`` (a counter of reads), ``time`` (another time column), ``text``, ``numbers``
+    (other numbers of a long table) or ``empty-well`` (a well with no reading in any block).
+    """
 
     layout: str
     names: list[str]
