@@ -63,12 +63,7 @@ def _blank_trace_subtract(ts: TraceSet, blanks: list[str]) -> TraceSet:
     if okb.sum() < 2:
         raise InputError("the blank wells have fewer than two usable readings in common",
                          "check the blanks or use --blank slope")
-    vals = g.values - np.interp(g.times, mean_t[okb], mean_b[okb])
-    d = ts.data.copy()
-    order = pd.Categorical(d["trace"], categories=g.names, ordered=True)
-    pos = d.groupby(order, observed=True).cumcount().to_numpy()
-    d["value"] = vals[order.codes, pos]
-    return replace(ts, data=d)
+    return ts.with_values(g.values - np.interp(g.times, mean_t[okb], mean_b[okb]))
 
 
 def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,

@@ -56,3 +56,147 @@ def write_table(names, times, values, *, layout="wide", delimiter=",", decimal="
     else:
         raise ValueError(layout)
     return newline.join(lines) + newline
+
+
+def write_plate_blocks(times, values, *, rows="ABCDEFGH", cols=12, delimiter=",",
+                       label="Read {k}, elapsed {t:g} s") -> str:
+    """Text of a plate-grid-per-read export: a label line naming each read's time, a row of
+    column numbers, then one lettered row per plate row (values: wells x times, row-major)."""
+    lines = ["Simulated plate read", ""]
+    for k, t in enumerate(times):
+        lines.append(label.format(k=k + 1, t=t))
+        lines.append(delimiter.join([""] + [str(c) for c in range(1, cols + 1)]))
+        for r, letter in enumerate(rows):
+            cells = [repr(float(values[r * cols + c, k])) for c in range(cols)]
+            lines.append(delimiter.join([letter] + cells))
+        lines.append("")
+    return "\n".join(lines) + "\n"
+
+
+# --------------------------------------------------------------------------- fuzzing
+
+def seed_exports(rng: np.random.Generator) -> list[tuple[str, bytes]]:
+    """Exports in every shape the reader claims (names and bytes), made from known values:
+    the seeds that :func:`mutate` damages."""
+    out = []
+    names = ["A1", "A2", "B1", "blank 1"]
+    times = np.arange(8) * 30.0
+    values = 0.1 + 0.002 * np.arange(4)[:, None] * times[None, :] / 30 + rng.normal(
+        0, 0.001, (4, 8))
+    for layout in ("wide", "long", "transposed"):
+        for delimiter, decimal in ((",", "."), (";", ","), ("\t", ".")):
+            for style in ("s", "min", "hms"):
+                text = write_table(names, times, values, layout=layout, delimiter=delimiter,
+                                   decimal=decimal, time_style=style,
+                                   preamble=("Fuzz seed", "Wavelength: 405 nm", ""))
+                for enc in ("utf-8", "utf-16"):
+                    out.append((f"{layout}_{style}_{enc}.csv", text.encode(enc)))
+    grid = 0.2 + rng.normal(0, 0.01, (96, 5))
+    out.append(("blocks.csv", write_plate_blocks(np.arange(5) * 30.0, grid).encode()))
+    return out
+
+
+ODD_CELLS = ["1e308", "inf", "-inf", "nan", "NaN", "1e-320", "-0", "1,5", "\u00b2", "\u0663",
+             "\uff11", "0x10", "1e999", "", "OVER", ">3.5", "9" * 400, "-", "1_000", "n/a",
+             "\ufffd", "0.", ".", "e5", "1e", "--1", "\x00", "30 s", "1:30", "99:99:99"]
+HEADER_WORDS = ["second", "min", "Time", "t", "Temp (C)", "Cycle", "n", "Step", "", "A1",
+                "well", "I0", "%T", "counts", "seconds", "Time (min)", "T [K]"]
+
+
+def _lines(data: bytes) -> list[bytes]:
+    return data.split(b"\n")
+
+
+def _cells_op(rng, data: bytes, op) -> bytes:
+    lines = _lines(data)
+    i = int(rng.integers(len(lines)))
+    delim = next((d for d in (b"\t", b";", b",") if d in lines[i]), b",")
+    cells = lines[i].split(delim)
+    lines[i] = delim.join(op(rng, cells))
+    return b"\n".join(lines)
+
+
+def _replace_cell(rng, cells, pool):
+    j = int(rng.integers(len(cells)))
+    cells[j] = str(pool[int(rng.integers(len(pool)))]).encode("utf-8")
+    return cells
+
+
+def _reencode(rng, data: bytes) -> bytes:
+    text = data.decode("utf-8", errors="replace")
+    enc = ["utf-16", "utf-16-le", "utf-16-be", "latin-1", "utf-8-sig", "cp1252"][
+        int(rng.integers(6))]
+    return text.encode(enc, errors="replace")
+
+
+def _on_header(rng, data: bytes) -> bytes:
+    lines = _lines(data)
+    i = next((k for k, ln in enumerate(lines) if ln.count(b",") + ln.count(b";")
+              + ln.count(b"\t") >= 1 and not ln[:1].isdigit()), 0)
+    i = min(i + int(rng.integers(0, 4)), len(lines) - 1)
+    delim = next((d for d in (b"\t", b";", b",") if d in lines[i]), b",")
+    lines[i] = delim.join(_replace_cell(rng, lines[i].split(delim), HEADER_WORDS))
+    return b"\n".join(lines)
+
+
+def _dup_column(rng, data: bytes) -> bytes:
+    lines = _lines(data)
+    delim = next((d for d in (b"\t", b";", b",") if d in data), b",")
+    j = int(rng.integers(0, 4))
+    return b"\n".join(delim.join((c := ln.split(delim))[:j + 1] + c[j:j + 1] + c[j + 1:])
+                      for ln in lines)
+
+
+def _lines_op(rng, data: bytes, what: str) -> bytes:
+    lines = _lines(data)
+    i = int(rng.integers(len(lines)))
+    if what == "dup":
+        lines.insert(i, lines[i])
+    elif what == "drop" and len(lines) > 1:
+        lines.pop(i)
+    elif what == "swap":
+        k = int(rng.integers(len(lines)))
+        lines[i], lines[k] = lines[k], lines[i]
+    elif what == "blank":
+        lines.insert(i, b"")
+    return b"\n".join(lines)
+
+
+MUTATIONS = {
+    "flip byte": lambda rng, d: _at(rng, d, lambda b: bytes([int(rng.integers(256))])),
+    "flip bit": lambda rng, d: _at(rng, d, lambda b: bytes([b[0] ^ (1 << int(rng.integers(8)))])),
+    "insert NUL": lambda rng, d: _at(rng, d, lambda b: b + b"\x00"),
+    "truncate": lambda rng, d: d[:int(rng.integers(len(d) + 1))],
+    "cut last line end": lambda rng, d: d.rstrip(b"\r\n\x00"),
+    "duplicate line": lambda rng, d: _lines_op(rng, d, "dup"),
+    "remove line": lambda rng, d: _lines_op(rng, d, "drop"),
+    "swap lines": lambda rng, d: _lines_op(rng, d, "swap"),
+    "blank line": lambda rng, d: _lines_op(rng, d, "blank"),
+    "duplicate cell": lambda rng, d: _cells_op(rng, d, lambda r, c: c + c[-1:]),
+    "remove cell": lambda rng, d: _cells_op(rng, d, lambda r, c: c[:-1] or c),
+    "odd number": lambda rng, d: _cells_op(rng, d, lambda r, c: _replace_cell(r, c, ODD_CELLS)),
+    "header word": _on_header,
+    "duplicate column": _dup_column,
+    "long field": lambda rng, d: _cells_op(rng, d, lambda r, c: c + [b"7" * 140_000]),
+    "superscript digit": lambda rng, d: d.replace(b"3", "\u00b3".encode(), 1),
+    "encoding": _reencode,
+    "line ends": lambda rng, d: d.replace(b"\n", [b"\r\n", b"\r"][int(rng.integers(2))]),
+}
+
+
+def _at(rng, data: bytes, change) -> bytes:
+    if not data:
+        return data
+    i = int(rng.integers(len(data)))
+    return data[:i] + change(data[i:i + 1]) + data[i + 1:]
+
+
+def mutate(rng: np.random.Generator, data: bytes, n: int | None = None) -> tuple[bytes, list[str]]:
+    """``data`` damaged by 1-3 random mutations (or ``n``), and their names."""
+    names = list(MUTATIONS)
+    done = []
+    for _ in range(n or int(rng.integers(1, 4))):
+        name = names[int(rng.integers(len(names)))]
+        data = MUTATIONS[name](rng, data)
+        done.append(name)
+    return data, done

@@ -122,7 +122,8 @@ def test_cli_sample_set(tmp_path):
      ["--chromophore", "pnp", "--s0", "50"], "single short curve", 4),
     ("curve,time (s),A405\n" + "".join(f"c1,{10 * i},0.2\n" for i in range(20)),
      ["--chromophore", "pnp", "--s0", "50"], "flat", 4),
-    ("curve,time (s),A405\nc1,0,0.1\nc1,10,0.2\n", ["--s0", "50"], "molar absorptivity", 2),
+    ("curve,time (s),A405\nc1,0,0.1\nc1,10,0.2\nc1,20,0.3\n", ["--s0", "50"], "molar absorptivity",
+     2),
 ])
 def test_bad_input(tmp_path, content, args, words, code):
     f = tmp_path / "p.csv"

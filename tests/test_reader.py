@@ -8,7 +8,8 @@ from helpers import write_table
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from rateabs.io import read_traces, sample_path
+from rateabs.errors import InputError
+from rateabs.io import read_traces, sample_path, time_unit_from_header
 from rateabs.photometry import absorbance_from_percent_t
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
@@ -17,7 +18,7 @@ SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 @st.composite
 def tables(draw):
     n = draw(st.integers(1, 5))
-    m = draw(st.integers(2, 12))
+    m = draw(st.integers(3, 12))      # kinetics needs three time points (two: the catalogue)
     style = draw(st.sampled_from(["s", "min", "h", "hms", "ms"]))
     step = draw(st.sampled_from([1, 15, 30, 60])) if style in ("hms", "ms") else draw(
         st.floats(0.5, 120, allow_nan=False))
@@ -90,14 +91,15 @@ def test_overflow_markers_masked_never_numbers(tmp_path):
     assert over["value"].isna().all() and not over["usable"].any()
 
 
-def test_temperature_and_cycle_columns_are_metadata(tmp_path):
+def test_temperature_and_counter_columns_are_set_aside(tmp_path):
     p = tmp_path / "m.csv"
-    p.write_text("Cycle,Time [s],Temp. [°C],A1,A2\n1,0,30.1,0.1,0.2\n2,30,30.0,0.2,0.3\n"
-                 "3,60,29.9,0.3,0.4\n")
+    p.write_text("Read no,Elapsed (s),Block temperature (C),A1,A2\n1,0,30.1,0.1,0.2\n"
+                 "2,30,30.0,0.2,0.3\n3,60,29.9,0.3,0.4\n")
     ts = read_traces(p)
     assert ts.names == ["A1", "A2"]
     assert ts.info["temperature_K"] == pytest.approx(303.15)
-    assert set(ts.info["extra_columns"]) == {"Cycle", "Temp. [°C]"}
+    assert ts.info["set_aside"] == {"Read no": "index", "Block temperature (C)": "temperature"}
+    assert set(ts.info["extra_columns"]) == {"Read no", "Block temperature (C)"}
 
 
 @pytest.mark.parametrize("header,values,expected", [
@@ -124,6 +126,15 @@ def test_signal_from_metadata_and_intensity_with_i0(tmp_path):
     np.testing.assert_allclose(ts.grid().values[0], [0.30103, 1, 2], atol=1e-5)
 
 
+def test_reference_intensity_from_a_metadata_line_is_recorded(tmp_path):
+    p = tmp_path / "i.csv"
+    p.write_text("I0: 1000\nTime (s),counts tube 1\n0,500\n10,100\n20,10\n")
+    ts = read_traces(p)
+    np.testing.assert_allclose(ts.grid().values[0], [0.30103, 1, 2], atol=1e-5)
+    assert (ts.info["i0"], ts.info["i0_source"]) == (1000, "metadata line 'I0: 1000'")
+    assert read_traces(p, i0=500).info["i0_source"] == "option"
+
+
 def test_absorbance_that_looks_like_percent_t_warns(tmp_path):
     p = tmp_path / "a.csv"
     p.write_text("Time (s),Absorbance\n0,88.1\n10,70.2\n20,55.3\n")
@@ -147,7 +158,7 @@ def test_xlsx_with_time_cells(tmp_path):
     ws = wb.active
     ws.append(["Plate read, 405 nm"])
     ws.append([])
-    ws.append(["Time", "T° read", "A1", "A2"])
+    ws.append(["Time", "Stage °C", "A1", "A2"])
     for k in range(5):
         ws.append([dt.time(0, k // 2, (k % 2) * 30), 25.0, 0.1 + 0.01 * k, "OVER" if k == 2 else 0.2])
     p = tmp_path / "plate.xlsx"
@@ -187,7 +198,7 @@ def test_transposed_counts_sample():
 
 def test_input_file_never_written(tmp_path):
     p = tmp_path / "x.csv"
-    p.write_text("Time (s),A1\n0,0.1\n10,0.2\n")
+    p.write_text("Time (s),A1\n0,0.1\n10,0.2\n20,0.3\n")
     before = (p.read_bytes(), p.stat().st_mtime_ns)
     read_traces(p)
     assert (p.read_bytes(), p.stat().st_mtime_ns) == before
@@ -197,14 +208,16 @@ def test_percent_helper_consistent():
     assert absorbance_from_percent_t(100.0) == 0.0
 
 
-def test_transposed_with_cycle_time_and_temperature_rows(tmp_path):
+def test_transposed_with_counter_time_and_temperature_rows(tmp_path):
     p = tmp_path / "t.csv"
-    p.write_text("Cycle Nr.,1,2,3,4\nTime [s],0,30,60,90\nTemp. [°C],25.0,25.1,25.0,25.1\n"
-                 "A1,0.10,0.12,0.14,0.16\nA2,0.20,0.21,0.22,0.23\n")
+    p.write_text("Read #,1,2,3,4\nElapsed [s],0,30,60,90\nHolder temperature (C),25.0,25.1,"
+                 "25.0,25.1\nA1,0.10,0.12,0.14,0.16\nA2,0.20,0.21,0.22,0.23\n")
     ts = read_traces(p)
     assert ts.names == ["A1", "A2"] and ts.info["layout"] == "transposed"
     np.testing.assert_allclose(ts.grid().times[0], [0, 30, 60, 90])
     assert ts.info["temperature_K"] == pytest.approx(298.2, abs=0.1)
+    assert ts.info["set_aside"] == {"Read #": "index", "Holder temperature (C)": "temperature"}
+    assert "Read #" not in ts.info["metadata"]
 
 
 def test_times_written_with_units_in_the_cells(tmp_path):
@@ -213,9 +226,9 @@ def test_times_written_with_units_in_the_cells(tmp_path):
     np.testing.assert_allclose(read_traces(p).grid().times[0], [0, 30, 60, 90])
 
 
-@pytest.mark.parametrize("labels", [["Read 1, time 0:00:00", "Read 2, time 0:00:30",
-                                     "Read 3, time 0:01:00"], ["Time: 0 s", "Time: 30 s",
-                                                                "Time: 1 min"]])
+@pytest.mark.parametrize("labels", [["Scan 1 at 0:00:00", "Scan 2 at 0:00:30",
+                                     "Scan 3 at 0:01:00"], ["Time: 0 s", "Time: 30 s",
+                                                            "Time: 1 min"]])
 def test_plate_grid_per_read(tmp_path, labels):
     lines = ["Kinetic read, 340 nm", ""]
     for k, label in enumerate(labels):
@@ -228,6 +241,7 @@ def test_plate_grid_per_read(tmp_path, labels):
     p.write_text("\n".join(lines) + "\n")
     ts = read_traces(p)
     assert ts.info["layout"] == "plate-blocks" and len(ts) == 96
+    assert ts.info["plate_format"] == 96
     np.testing.assert_allclose(ts.grid().times[0], [0, 30, 60])
     np.testing.assert_allclose(ts.grid().values[ts.names.index("A2")], [0.5, 0.48, 0.46])
     assert "overflow" in ts.reading_flags()["H12"]
@@ -239,3 +253,207 @@ def test_packaged_samples_equal_sample_runs():
     assert len(files) >= 25
     for p in files:
         assert p.read_bytes() == sample_path(str(p.relative_to(SAMPLES))).read_bytes(), p
+
+
+# --------------------------------------------------------------------------- header rules
+
+@pytest.mark.parametrize("rule,yes,no", [
+    ("temperature", ["Temperature", "Temp (C)", "T [°C]", "T (K)", "plate temp", "deg C",
+                     "Kelvin", "Stage °C", "Temperatur"],
+     ["Time (s)", "Temps (s)", "A1", "Template", "sample c"]),
+    ("time", ["Time", "Time (s)", "time_min", "Zeit [s]", "t", "t [min]", "t/s", "Elapsed",
+              "Reading time [min]", "minutes since mixing"],
+     ["Temp (C)", "seconds", "min", "A1", "tube 2", "T [°C]", "trace"]),
+    ("time-unit-word", ["second", "seconds", "min", "Minutes", "h", "(s)", "hrs"],
+     ["Time (s)", "minutes since mixing", "A1", "max"]),
+    ("index", ["Cycle", "cycle no.", "Cycle Nr.", "Read #", "read no", "Index", "No.", "#",
+               "Step", "n", "Kinetic read"], ["A1", "Reading", "Time", "sample n1"]),
+    ("trace-name", ["Well", "well id", "Sample ID", "trace", "Cuvette", "name"],
+     ["A1", "Time", "well volume (uL)"]),
+    ("value", ["Absorbance", "A340", "OD405", "abs", "%T", "counts", "value", "A (AU)"],
+     ["Time (s)", "well", "S0 (uM)"]),
+])
+def test_header_rules(rule, yes, no):
+    from rateabs.io.headers import RULES
+    test = next(r for r in RULES if r.name == rule)
+    assert [h for h in yes if not test(h)] == []
+    assert [h for h in no if test(h)] == []
+
+
+@pytest.mark.parametrize("header,unit", [("Time (min)", "min"), ("time_min", "min"),
+                                         ("t [h]", "h"), ("Time/sec", "s"), ("Zeit", None),
+                                         ("Elapsed [ms]", "ms"), ("hours", "h")])
+def test_time_unit_named_by_a_header(header, unit):
+    assert time_unit_from_header(header) == unit
+
+
+# --------------------------------------------------------------------------- decisions stated
+
+def test_a_trace_named_like_a_unit_of_time_stays_a_trace(tmp_path):
+    p = tmp_path / "s.csv"
+    p.write_text("Time (s),second,first,min\n0,0.10,0.2,0.05\n10,0.12,0.3,0.06\n"
+                 "20,0.14,0.4,0.07\n")
+    ts = read_traces(p)
+    assert ts.names == ["second", "first", "min"]
+    assert ts.info["set_aside"] == {}
+    assert sum("'second' is named like a unit of time" in w for w in ts.info["warnings"]) == 1
+
+
+def test_a_second_time_column_in_its_own_unit_is_set_aside(tmp_path):
+    p = tmp_path / "s.csv"
+    p.write_text("Time (s),minutes,A1\n0,0,0.1\n30,0.5,0.2\n60,1,0.3\n")
+    ts = read_traces(p)
+    assert ts.names == ["A1"] and ts.info["set_aside"] == {"minutes": "time"}
+
+
+def test_a_unit_word_first_column_with_rising_values_is_the_time(tmp_path):
+    p = tmp_path / "s.csv"
+    p.write_text("min,A1,A2\n0,0.1,0.2\n0.5,0.2,0.3\n1,0.3,0.4\n")
+    ts = read_traces(p)
+    assert ts.names == ["A1", "A2"] and ts.info["time_unit"] == "min"
+    assert ts.info["time_unit_source"] == "header" and ts.grid().times[0, 2] == 60
+
+
+def test_a_trace_named_like_a_counter_stays_a_trace(tmp_path):
+    p = tmp_path / "s.csv"
+    p.write_text("Time (s),Step,Cycle,A1\n0,0.31,1,0.1\n10,0.35,2,0.2\n20,0.38,3,0.3\n")
+    ts = read_traces(p)
+    assert ts.names == ["Step", "A1"] and ts.info["set_aside"] == {"Cycle": "index"}
+    assert any("'Step' is named like a counter" in w for w in ts.info["warnings"])
+
+
+def test_bare_time_that_looks_like_minutes_says_so(tmp_path):
+    t = np.arange(30) * 0.5                   # 30 readings, steps of 0.5, last 14.5
+    p = tmp_path / "t.csv"
+    p.write_text("Time,A1\n" + "".join(f"{x:g},{0.1 + 0.01 * x:.4f}\n" for x in t))
+    info = read_traces(p).info
+    assert (info["time_unit"], info["time_unit_source"], info["time_looks_like"]) == (
+        "s", "assumed", "min")
+    text = " ".join(info["warnings"])
+    assert "read as seconds (assumed)" in text and "--time-unit min" in text
+    assert "step by 0.5 and end at 14.5, which looks like minutes" in text
+    stated = read_traces(p, time_unit="min").info
+    assert stated["time_unit_source"] == "option" and stated["warnings"] == []
+
+
+def test_stated_time_unit_beats_the_header_with_a_warning(tmp_path):
+    p = tmp_path / "t.csv"
+    p.write_text("Time (s),A1\n0,0.1\n1,0.2\n2,0.3\n")
+    ts = read_traces(p, time_unit="min")
+    assert ts.grid().times[0, 2] == 120
+    assert (ts.info["time_unit"], ts.info["time_unit_source"], ts.info["time_unit_header"]) == (
+        "min", "option", "s")
+    assert ts.info["warnings"] == ["--time-unit min overrides the header 'Time (s)', which "
+                                   "names s"]
+    assert read_traces(p, time_unit="s").info["warnings"] == []
+
+
+def test_stated_time_unit_is_not_used_on_clock_times_and_says_so(tmp_path):
+    p = tmp_path / "t.csv"
+    p.write_text("Time,A1\n0:00:00,0.1\n0:00:30,0.2\n0:01:00,0.3\n")
+    ts = read_traces(p, time_unit="min")
+    assert ts.info["time_unit_source"] == "clock" and ts.grid().times[0, 2] == 60
+    assert "--time-unit min is not used" in ts.info["warnings"][0]
+
+
+def test_facts_from_metadata_lines_name_their_line(tmp_path):
+    p = tmp_path / "m.csv"
+    p.write_text("Wavelength: 405 nm\nPath length: 5.6 mm\nRead interval: 0.5 min\n"
+                 "Time (s),A1\n0,0.1\n30,0.2\n60,0.3\n")
+    info = read_traces(p).info
+    assert (info["wavelength_nm"], info["pathlength_cm"], info["read_interval_s"]) == (
+        405, pytest.approx(0.56), 30)
+    assert info["metadata_facts"]["pathlength_cm"] == "Path length: 5.6 mm"
+
+
+def test_info_records_format_plate_and_sources(tmp_path):
+    p = tmp_path / "p.csv"
+    wells = [f"{r}{c}" for r in "ABCD" for c in range(1, 7)]
+    p.write_bytes(("Zeit;" + ";".join(wells) + "\n" + "".join(
+        f"{k};" + ";".join(f"0,{10 + k}" for _ in wells) + "\n" for k in range(4))
+                   ).encode("latin-1"))
+    info = read_traces(p).info
+    assert (info["format"], info["delimiter"], info["decimal"], info["encoding"]) == (
+        "semicolon", ";", ",", "utf-8")
+    assert (info["plate_format"], info["plate_format_source"]) == (24, "well names A1..D6")
+    assert (info["signal_kind"], info["signal_source"]) == ("absorbance", "assumed")
+    assert info["dropped_rows"] == {} and info["file_ends_mid_line"] is False
+
+
+# --------------------------------------------------------------------------- half-written lines
+
+@pytest.mark.parametrize("tail,why", [("30,0.4", "fewer fields"), ("30,0.4000,0.5", "cut number"),
+                                      ("30,0.4000,0.", "cut number")])
+def test_half_written_last_line_is_left_out_with_a_note(tmp_path, tail, why):
+    p = tmp_path / "torn.csv"
+    p.write_text("Time (s),A1,A2\n0,0.1000,0.2000\n10,0.2000,0.3000\n20,0.3000,0.4000\n" + tail)
+    ts = read_traces(p)
+    assert ts.grid().times.shape[1] == 3, why
+    assert ts.info["dropped_rows"]["half-written"]["lines"] == [5]
+    assert ts.info["file_ends_mid_line"] is True
+    assert any(w.startswith("left out 1 row (line 5)") for w in ts.info["warnings"])
+
+
+def test_complete_last_line_without_line_end_is_read(tmp_path):
+    p = tmp_path / "t.csv"
+    p.write_text("Time (s),A1\n0,0.1000\n10,0.2000\n20,0.3000\n30,0.4000")
+    ts = read_traces(p)
+    assert ts.grid().values.shape == (1, 4) and ts.info["dropped_rows"] == {}
+    assert read_traces(p, partial=True).info["dropped_rows"]["unfinished"]["count"] == 1
+
+
+@pytest.mark.parametrize("layout", ["wide", "long", "transposed"])
+def test_truncated_utf16_export_loses_only_its_torn_line(tmp_path, layout):
+    times = np.arange(6) * 10.0
+    values = np.array([[0.1, 0.2, 0.3, 0.4, 0.5, 0.6], [0.2, 0.3, 0.4, 0.5, 0.6, 0.7]])
+    text = write_table(["A1", "A2"], times, values, layout=layout)
+    raw = text.encode("utf-16")
+    p = tmp_path / "cut.csv"
+    p.write_bytes(raw[:-5])                  # an odd number of bytes: cut inside a character
+    ts = read_traces(p)
+    assert ts.info["encoding"] == "utf-16" and len(ts.info["dropped_rows"]) == 1
+    g = ts.grid()
+    assert np.isfinite(g.values).sum() == values.size - (1 if layout == "long" else (
+        2 if layout == "wide" else 6))
+
+
+def test_plate_blocks_with_a_well_missing_from_one_block(tmp_path):
+    from helpers import write_plate_blocks
+    text = write_plate_blocks([0, 30, 60], np.full((96, 3), 0.2)).splitlines()
+    row_h_second = [i for i, ln in enumerate(text) if ln.startswith("H,")][1]
+    text.pop(row_h_second)
+    p = tmp_path / "b.csv"
+    p.write_text("\n".join(text) + "\n")
+    ts = read_traces(p)
+    assert len(ts) == 96 and ts.reading_flags()["H5"] == ["missing"]
+    assert any("12 well(s) are missing from some plate blocks" in w for w in ts.info["warnings"])
+
+
+# --------------------------------------------------------------------------- large files
+
+def test_a_file_of_many_chunks_reads_like_a_small_one(tmp_path):
+    n = 120_000                              # more rows than one chunk and than the head
+    t = np.arange(n) * 0.5
+    rows = [f"{x:.1f},{0.1 + 1e-6 * k:.6f},{0.2:.4f}" for k, x in enumerate(t)]
+    rows[100_000] = f"{t[100_000]:.1f},OVER,0.2"
+    p = tmp_path / "big.csv"
+    p.write_text("Long read\n" + "x" * 5000 + "\nTime (s),A1,A2\n" + "\n".join(rows) + "\n")
+    ts = read_traces(p)
+    g = ts.grid()
+    assert g.values.shape == (2, n) and g.times[1, -1] == t[-1]
+    assert g.values[0, 99_999] == pytest.approx(0.1 + 1e-6 * 99_999)
+    assert ts.reading_flags()["A1"] == ["overflow"] and not g.usable[0, 100_000]
+    rows[110_000] = f"{t[110_000]:.1f},abc,0.2"
+    p.write_text("Time (s),A1,A2\n" + "\n".join(rows) + "\n")
+    with pytest.raises(InputError, match="row 110002, column A1: 'abc' is not a reading"):
+        read_traces(p)
+
+
+def test_readings_are_held_once_as_floats(tmp_path):
+    p = tmp_path / "p.csv"
+    p.write_text("Time (s),A1,A2\n" + "".join(f"{k},{0.1 * k},0.5\n" for k in range(50)))
+    ts = read_traces(p)
+    g = ts.grid()
+    assert g.values.dtype == float and g.flags.dtype == np.int8
+    assert g.times.strides[0] == 0           # one row of times shared by every trace
+    assert ts.data["time_s"].iloc[50] == 0.0 and len(ts.data) == 100

@@ -1,0 +1,113 @@
+"""What the lines above a table say: key/value metadata, and the facts the reader takes from
+them (wavelength, temperature, read interval, pathlength, reference intensity), each recorded
+with the line it came from. Also the plate format that the trace names show.
+
+>>> meta = preamble([["Wavelength: 340 nm"], ["Pathlength", "0.56 cm"]], 2, ",")
+>>> facts, said = file_facts(meta)
+>>> facts, said["pathlength_cm"]
+({'wavelength_nm': 340.0, 'pathlength_cm': 0.56}, 'Pathlength: 0.56 cm')
+>>> plate_format(["A1", "B7", "H12"])
+(96, 'well names A1..H12')
+"""
+
+from __future__ import annotations
+
+import re
+
+from ..errors import InputError
+from ..units import TIME_UNITS
+
+_KEY_VALUE = re.compile(r"^([^:=]{1,60}?)\s*[:=]\s*(.+)$")
+_NUMBER = re.compile(r"[-+]?\d+(?:[.,]\d+)?")
+_WELL = re.compile(r"^([A-Z]{1,2})0*([1-9]\d?)$")
+#: Standard microplates: wells -> (rows, columns).
+PLATES = {6: (2, 3), 12: (3, 4), 24: (4, 6), 48: (6, 8), 96: (8, 12), 384: (16, 24),
+          1536: (32, 48)}
+I0_KEY = re.compile(r"i0|i_0|reference.*", re.IGNORECASE)
+
+
+def preamble(rows: list[list[str]], upto: int, delimiter: str | None) -> dict[str, str]:
+    """Key/value metadata from the lines above the header (``Wavelength: 340 nm``, ``k;v``);
+    a cell longer than 500 characters is cut there (with an ellipsis)."""
+    meta: dict[str, str] = {}
+    joiner = f"{delimiter} " if delimiter in (",", ";") else " "
+    for r in rows[:upto]:
+        cells = [_cut(c.strip()) for c in r if c.strip()]
+        if not cells:
+            continue
+        m = _KEY_VALUE.match(cells[0])
+        if m:
+            meta[m.group(1).strip()] = joiner.join([m.group(2).strip()] + cells[1:])
+        elif len(cells) == 1:
+            meta.setdefault("title", cells[0])
+        else:
+            meta[cells[0]] = " ".join(cells[1:])
+    return meta
+
+
+def _cut(cell: str, limit: int = 500) -> str:
+    return cell if len(cell) <= limit else cell[:limit - 1] + "…"
+
+
+def file_facts(meta: dict[str, str]) -> tuple[dict[str, float], dict[str, str]]:
+    """Wavelength (nm), temperature (K), read interval (s) and pathlength (cm) found in the
+    metadata, and for each the line it was read from."""
+    facts: dict[str, float] = {}
+    said: dict[str, str] = {}
+    for key, val in meta.items():
+        k = key.lower()
+        num = _NUMBER.search(val)
+        if not num:
+            continue
+        x = float(num.group(0).replace(",", "."))
+        rest = val[num.end():].strip().lower()
+        if "wavelength" in k or k in ("lambda", "wl", "λ"):
+            name, value = "wavelength_nm", x
+        elif "temp" in k:
+            name, value = "temperature_K", x if rest.startswith("k") else x + 273.15
+        elif "interval" in k:
+            unit = rest.split()[0].rstrip(".") if rest else "s"
+            name, value = "read_interval_s", x * TIME_UNITS.get(unit, 1.0)
+        elif "path" in k:
+            name, value = "pathlength_cm", x * (0.1 if rest.startswith("mm") else 1.0)
+        else:
+            continue
+        facts[name], said[name] = value, f"{key}: {val}"
+    return facts, said
+
+
+def reference_intensity(meta: dict[str, str]) -> tuple[float, str] | None:
+    """The reference intensity I0 of an ``I0: 52000`` line and the line, or None."""
+    key = next((k for k in meta if I0_KEY.fullmatch(k)), None)
+    if key is None:
+        return None
+    num = _NUMBER.search(meta[key])
+    if num is None:
+        raise InputError(f"the metadata line '{key}: {meta[key][:40]}' gives no number for the "
+                         "reference intensity I0", "write a number there, or give --i0")
+    return float(num.group(0).replace(",", ".")), f"{key}: {meta[key]}"
+
+
+def well_position(name: str) -> tuple[int, int] | None:
+    """(row, column), both from 0, of a well name such as ``B7`` or ``AF48``; else None."""
+    m = _WELL.match(name.strip().upper())
+    if not m:
+        return None
+    letters, col = m.group(1), int(m.group(2))
+    row = ord(letters[-1]) - 65 + (26 * (ord(letters[0]) - 64) if len(letters) == 2 else 0)
+    return row, col - 1
+
+
+def plate_format(names: list[str]) -> tuple[int | None, str | None]:
+    """The smallest standard plate holding every trace name as a well, and the evidence."""
+    pos = [well_position(n) for n in names]
+    if not names or any(p is None for p in pos):
+        return None, None
+    rows = max(p[0] for p in pos) + 1
+    cols = max(p[1] for p in pos) + 1
+    wells = next((w for w, (r, c) in PLATES.items() if rows <= r and cols <= c), None)
+    if wells is None:
+        return None, None
+    first = min(names, key=lambda n: well_position(n))
+    last = max(names, key=lambda n: well_position(n))
+    return wells, f"well names {first}..{last}"

@@ -1,0 +1,148 @@
+"""``read_traces``: an export file in, a :class:`~rateabs.traces.TraceSet` of absorbance traces
+out, with every decision the reader took recorded in ``TraceSet.info`` as fields."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputError, UsageError
+from ..traces import TraceSet
+from ..units import TIME_UNITS
+from .blocks import read_blocks
+from .body import RowLog
+from .headers import temperature_unit
+from .locate import locate
+from .metadata import file_facts, plate_format, preamble
+from .parsed import Parsed
+from .signal import SIGNAL_KINDS, check_magnitude, decide_kind, plausibility, to_absorbance
+from .sniffing import sniff_decimal
+from .source import Source
+from .times import MIN_TIME_POINTS
+from .transposed import label_rows_above, read_transposed
+from .wide import read_normal
+
+
+def read_traces(path: str | Path, *, time_unit: str | None = None, signal: str | None = None,
+                i0: float | None = None, sheet: str | None = None,
+                partial: bool = False) -> TraceSet:
+    """Read a kinetic export into a :class:`TraceSet` of absorbance traces.
+
+    Parameters: ``time_unit`` overrides the detected unit of a numeric time column (s, min, h);
+    ``signal`` overrides the detected signal kind (absorbance, transmittance, percent,
+    intensity); ``i0`` is the reference intensity for raw intensities when the file has no
+    ``I0`` trace or metadata line; ``sheet`` picks an .xlsx sheet; ``partial`` leaves out an
+    unfinished last line (a file an instrument is still appending to). A half-written last line
+    is left out in every mode, with a warning.
+
+    Raises :class:`~rateabs.errors.InputError` with file, row and column for anything it cannot
+    read. Input files are only read, never written. ``TraceSet.info`` records how each thing
+    was decided (``time_unit`` and ``time_unit_source``, ``signal_kind`` and
+    ``signal_source``, ``set_aside``, ``dropped_rows``, ``plate_format``...).
+
+    >>> ts = read_traces("plate.csv")            # doctest: +SKIP
+    >>> ts.info["layout"], ts.names[:3]          # doctest: +SKIP
+    ('wide', ['A1', 'A2', 'A3'])
+    """
+    path = str(path)
+    if time_unit is not None and time_unit not in TIME_UNITS:
+        raise UsageError(f"unknown time unit {time_unit!r}", "use s, min or h")
+    if signal is not None and signal not in SIGNAL_KINDS:
+        raise UsageError(f"unknown signal kind {signal!r}", f"use one of {', '.join(SIGNAL_KINDS)}")
+    try:
+        with Source(path, sheet) as src:
+            return _read(src, time_unit, signal, i0, partial)
+    except InputError as exc:
+        raise exc.located(path) from None
+
+
+def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
+    decimal = sniff_decimal(src.head, src.delimiter)
+    loc = locate(src.head, decimal)
+    log = RowLog()
+    if loc.shape == "blocks":
+        parsed = read_blocks(src, loc.index, decimal, time_unit, log, partial)
+        top = max(loc.index - 1, 0)
+    elif loc.shape == "transposed":
+        parsed = read_transposed(src, loc.index, decimal, time_unit, log, partial)
+        top = label_rows_above(src, loc.index, decimal)
+    else:
+        parsed = read_normal(src, loc.index, decimal, time_unit, log, partial)
+        top = loc.index
+    if not parsed.names:
+        raise InputError("no trace columns were found next to the time column",
+                         "export one column (or row) of readings per well or sample")
+    meta = preamble(src.head, top, src.delimiter)
+    kind, kind_source = decide_kind(signal, parsed.header_words, meta)
+    warnings, looks_like = plausibility(kind, parsed.values, signal is not None)
+    conv = to_absorbance(kind, parsed.names, parsed.values, parsed.flags, meta, i0)
+    check_magnitude(conv.values, conv.names, looks_like)
+    ts = TraceSet.from_arrays(conv.names, parsed.times, conv.values, flags=conv.flags)
+    few = _few_readings(conv.names, ts.grid().usable)
+    plate = parsed.plate if parsed.plate[0] else plate_format(conv.names)
+    facts, said = file_facts(meta)
+    ts.info.update(
+        source=src.path, format=src.fmt, delimiter=src.delimiter, decimal=decimal,
+        encoding=src.encoding, layout=parsed.layout, header_row=src.head_nos[loc.index],
+        time_column=parsed.time.label, time_unit=parsed.time.unit,
+        time_unit_source=parsed.time.source, time_unit_header=parsed.time.header_unit,
+        time_looks_like=parsed.time.looks_like, signal_kind=kind, signal_source=kind_source,
+        looks_like=looks_like, plate_format=plate[0], plate_format_source=plate[1],
+        metadata=meta, metadata_facts=said, set_aside=parsed.set_aside,
+        extra_columns=parsed.extra, dropped_rows=log.summary(), few_readings=few,
+        file_ends_mid_line=not src.terminated, **{k: v for k, v in conv.facts.items()},
+        warnings=(parsed.time.warnings + parsed.notes + warnings + log.warnings()
+                  + _few_warning(few)),
+    )
+    _trace_meta(ts, parsed, facts)
+    return ts
+
+
+def _few_readings(names: list[str], usable: np.ndarray) -> list[str]:
+    """Traces with fewer usable readings than a slope with an uncertainty needs."""
+    counts = usable.sum(axis=1)
+    if not usable.any():
+        raise InputError("no usable readings: every value is missing or over range",
+                         "export the readings again")
+    return [n for n, c in zip(names, counts, strict=True) if c < MIN_TIME_POINTS]
+
+
+def _few_warning(few: list[str]) -> list[str]:
+    if not few:
+        return []
+    shown = ", ".join(few[:8]) + (", ..." if len(few) > 8 else "")
+    return [f"{len(few)} trace(s) have fewer than {MIN_TIME_POINTS} usable readings ({shown}): "
+            "flagged, no rate can be trusted from them"]
+
+
+def _trace_meta(ts: TraceSet, parsed: Parsed, facts: dict[str, float]) -> None:
+    """Per-trace columns, file facts and the mean of a temperature column into ``meta``."""
+    for col, vals in parsed.per_trace.items():
+        ts.meta[col] = [vals.get(n) for n in ts.meta.index]
+    ts.info["per_trace_columns"] = list(parsed.per_trace)
+    ts.info.update(facts)
+    for key, val in facts.items():
+        ts.meta[key] = val
+    for col, role in parsed.set_aside.items():
+        arr = parsed.extra.get(col)
+        if role != "temperature" or arr is None or not np.isfinite(arr).any():
+            continue
+        kelvin, note = _kelvin(col, float(np.nanmean(arr)))
+        ts.meta["temperature_K"] = kelvin
+        ts.info["temperature_K"] = kelvin
+        if note:
+            ts.info["warnings"].append(note)
+
+
+def _kelvin(col: str, mean: float) -> tuple[float, str | None]:
+    """The mean of a temperature column in K; values that contradict the header's unit are read
+    in the unit they fit, with a warning."""
+    said = temperature_unit(col)
+    fits = "K" if mean > 200 else "C" if mean < 150 else said
+    if fits == said:
+        return (mean if said == "K" else mean + 273.15), None
+    name = {"K": "kelvin", "C": "degrees Celsius"}
+    note = (f"the temperature column {col!r} names {name[said]} but its values (mean {mean:.4g}) "
+            f"are only plausible in {name[fits]}; read as {name[fits]}")
+    return (mean if fits == "K" else mean + 273.15), note
