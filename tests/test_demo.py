@@ -6,6 +6,11 @@ import re
 from html.parser import HTMLParser
 from pathlib import Path
 
+import pytest
+
+#: The demo folder is made once per session; its tests share one worker (pytest-xdist).
+pytestmark = pytest.mark.xdist_group("demo")
+
 
 class _Collect(HTMLParser):
     def __init__(self):

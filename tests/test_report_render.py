@@ -16,8 +16,9 @@ LAPTOP = 1366
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
-pytestmark = pytest.mark.skipif(CHROMIUM is None and not os.environ.get("CI"),
-                                reason="Chromium is not installed here (.ci/run installs it)")
+pytestmark = [pytest.mark.skipif(CHROMIUM is None and not os.environ.get("CI"),
+                                 reason="Chromium is not installed here (.ci/run installs it)"),
+              pytest.mark.xdist_group("demo"), pytest.mark.slow]
 
 #: One page holds every report page in a frame of laptop width and measures each once loaded
 #: (file:// frames may be read by their parent with --allow-file-access-from-files).
