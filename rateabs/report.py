@@ -115,7 +115,7 @@ def _num(x: float, digits: int = 4) -> str:
         return "0"
     if abs(x) >= 1e6 or abs(x) < 1e-3:
         return f"{x:.{digits - 1}e}"
-    return f"{x:.{digits}g}"
+    return f"{float(f'{x:.{digits}g}'):g}"            # 18000, not 1.8e+04
 
 
 def words(x) -> str:
@@ -272,7 +272,8 @@ def settings_table(settings, skip=("fmt", "out", "report", "plots")) -> str:
     for f, value in _flat_fields(settings):
         meta = f.metadata
         rule = meta.get("rule")
-        if (rule is None or meta.get("hidden") or meta.get("argument") or f.name in skip
+        if (rule is None or meta.get("hidden") or meta.get("argument") or meta.get("derived")
+                or f.name in skip
                 or value in (None, (), {}) or _is_file_rule(rule, Text)):
             continue
         flag = meta.get("flag", "").split("/")[0]
@@ -367,6 +368,8 @@ def decided_table(doc_settings: dict, settings=None, inputs=()) -> str:
             continue                        # stated with the options
         if isinstance(value, str) and value in inputs:
             continue                        # an input file, named with the inputs
+        if f is not None and f.name == key and not isinstance(value, (dict, list)):
+            value = setting_value(f.metadata.get("rule"), value)     # with the option's unit
         pairs.append((label(key), value))
     return kv(pairs) if pairs else ""
 
@@ -527,5 +530,5 @@ def document_page(doc: dict, pictures: list[Path | tuple], title: str | None = N
         sections.append(("Plots", "".join(figs)))
     heading = TITLES.get(cmd, f"rateabs {cmd}")
     first = Path(doc["inputs"][0]).name if doc["inputs"] else ""
-    return page(title or (f"{heading}: {first}" if first else heading),
+    return page(title or (f"{heading} — {first}" if first else heading),
                 f"rateabs {cmd} {' '.join(doc['inputs'])}", sections)
