@@ -61,25 +61,47 @@ def _steps(run, s, out: Path) -> dict:
     }
 
 
+def _flag_words(table) -> str:
+    """Which flags the plate's wells carry, most common first (meanings on the plate's page)."""
+    from collections import Counter
+
+    counts = Counter(f for flags in table["flags"] for f in flags)
+    flagged = int(sum(bool(f) for f in table["flags"]))
+    if not flagged:
+        return "no well carries a flag"
+    top = ", ".join(f"{word} {n}" for word, n in counts.most_common(4))
+    return f"wells with a flag: {flagged} of {len(table)} ({top}; meanings on the plate's page)"
+
+
+def _selwyn_words(selwyn: dict) -> str:
+    return ("enzyme stable (the curves superimpose)" if selwyn["enzyme_stable"] else
+            "enzyme not stable (the curves do not superimpose)")
+
+
+def _pm(p, digits: int = 3) -> str:
+    """A fitted parameter as value ± SE with its unit, as a person reads it."""
+    from .plots.style import unit_text
+
+    return fmt_pm(p.value, p.se, digits, unit_text(p.unit))
+
+
 def _key_numbers(v: dict, gview) -> list[str]:
     """The headline figure of every step, for the terminal and the index page."""
     t = v["plate"].analysis.table
     lysate = t[t["sample"].astype(str).str.startswith("lysate")]
     zp = v["plate"].analysis.zprime
-    lines = [f"  plate: {len(t)} wells, {int(sum(bool(f) for f in t['flags']))} flagged, "
-             f"Z' = {zp['value']:.2f}; lysate activities "
-             + ", ".join(f"{g}: {d['activity_U_per_mL'].mean():.3g} U/mL"
-                         for g, d in lysate.groupby("sample"))]
+    lines = [f"  plate: {len(t)} wells, Z′ = {zp['value']:.2f} ({zp['verdict']}); "
+             + "lysate activities " + ", ".join(f"{g}: {d['activity_U_per_mL'].mean():.3g} U/mL"
+                                                for g, d in lysate.groupby("sample"))
+             + f"; {_flag_words(t)}"]
     sat = v["sat"].analysis
     p = sat.best.params
-    lines.append(f"  inhibition: chosen {sat.chosen}; Km = {fmt_pm(p['Km'].value, p['Km'].se, 3)}"
-                 f" uM, Ki = {fmt_pm(p['Ki'].value, p['Ki'].se, 3)} uM"
+    lines.append(f"  inhibition: chosen {sat.chosen}; Km = {_pm(p['Km'])}, Ki = {_pm(p['Ki'])}"
                  if "Ki" in p else f"  saturation: chosen {sat.chosen}")
     pp = v["prog"].analysis.params
-    lines.append(f"  progress curves: Km = {fmt_pm(pp['Km'].value, pp['Km'].se, 3, 'uM')}, "
-                 f"Vmax = {fmt_pm(pp['Vmax'].value, pp['Vmax'].se, 3, pp['Vmax'].unit)}; "
-                 f"Selwyn: stable = {v['prog'].analysis.selwyn['enzyme_stable']}, decaying set: "
-                 f"stable = {v['unst'].analysis.selwyn['enzyme_stable']}")
+    lines.append(f"  progress curves: Km = {_pm(pp['Km'])}, Vmax = {_pm(pp['Vmax'])}; "
+                 f"Selwyn's test: {_selwyn_words(v['prog'].analysis.selwyn)}; on the decaying "
+                 f"enzyme: {_selwyn_words(v['unst'].analysis.selwyn)}")
     lw = next(iter(v["law"].analysis["laws"].values()))
     k = lw.fit.params["k"]
     lines.append(f"  process run: order {lw.order}, k = {fmt_pm(k.value, k.se, unit='1/s')}, "
@@ -121,12 +143,14 @@ def _run_all(out: Path, echo) -> str:
         return view
 
     def s(name):
-        return str(sample_path(name))
+        return str(inputs / name)
 
     echo(f"rateabs demo: writing into {out}/")
+    inputs = _copy_samples(out)
     v = _steps(run, s, out)
-    cls = sample_path("class_kestrel_red")
-    gview = views.run_grade(GradeOptions(str(cls), str(cls / "rubric.toml"),
+    cls = inputs / "class_kestrel_red"
+    # 15 runs grade faster in this process than worker processes start
+    gview = views.run_grade(GradeOptions(str(cls), str(cls / "rubric.toml"), jobs=1,
                                          out=str(out / "9_class")), views.write_only)
     steps.append({"key": "9_class", "title": "Teaching lab: the class's Kestrel Red runs graded",
                   "who": "teaching-lab instructor", "view": gview,
@@ -138,6 +162,24 @@ def _run_all(out: Path, echo) -> str:
     _index(out, steps, lines)
     write_atomic(out / "summary.txt", "\n".join(lines) + "\n")
     return "\n".join(lines)
+
+
+#: The embedded sample runs the demo uses, copied beside its results so that every page names
+#: its input as a file the user has (not a path inside the installed package).
+SAMPLES = ("cuvettes_kbap_405nm_messy.csv", "plate_kbdh_340nm.csv", "plate_kbdh_map.csv",
+           "progress_kbap_405nm.csv", "progress_kbap_unstable.csv",
+           "process_kestrel_red_probe.csv", "temperature_kestrel_red.csv", "class_kestrel_red")
+
+
+def _copy_samples(out: Path) -> Path:
+    """The sample runs copied into ``out/inputs`` (through the run's outputs); their folder."""
+    inputs = out / "inputs"
+    for name in SAMPLES:
+        src = sample_path(name)
+        files = sorted(src.iterdir()) if src.is_dir() else [src]
+        for f in files:
+            write_atomic(inputs / f.relative_to(src.parent), f.read_bytes())
+    return inputs
 
 
 def _index(out: Path, steps: list, lines: list) -> None:

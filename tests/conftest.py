@@ -1,7 +1,76 @@
+"""Shared fixtures. Expensive things are made once per session and shared: the demo folder
+(the README's first command, run once in a subprocess) and a small seeded plate. A test takes
+under a second unless the process boundary or a real study is its point (DEVELOPERS.md)."""
+
+import subprocess
 import sys
 from pathlib import Path
 
 import matplotlib
+import numpy as np
+import pytest
 
 matplotlib.use("Agg")
 sys.path.insert(0, str(Path(__file__).parent))
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def readme_demo_command() -> str:
+    """The README's first set-up command, minus the install step CI has already done."""
+    import re
+
+    text = (ROOT / "README.md").read_text()
+    blocks = re.findall(r"```\n(.*?)\n```", text, flags=re.S)
+    first = blocks[0].strip()
+    assert first.startswith("pip install . && rateabs demo")
+    return first.split("&&", 1)[1].strip()
+
+
+@pytest.fixture(scope="session")
+def demo_run(tmp_path_factory):
+    """The demo as a newcomer runs it (README's command, own process): (folder, stdout)."""
+    import os
+
+    cwd = tmp_path_factory.mktemp("newcomer")
+    cmd = readme_demo_command().split()
+    assert cmd[0] == "rateabs"
+    # `rateabs` is this checkout's module (an installed script may belong to another checkout)
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(ROOT), os.environ.get("PYTHONPATH",
+                                                                                   "")]))
+    r = subprocess.run([sys.executable, "-m", "rateabs.cli", *cmd[1:]], cwd=cwd, env=env,
+                       capture_output=True, text=True, timeout=600)
+    assert r.returncode == 0, r.stderr
+    return cwd / cmd[cmd.index("--out") + 1], r.stdout
+
+
+@pytest.fixture(scope="session")
+def demo_dir(demo_run):
+    """The folder the demo wrote (made once per session)."""
+    return demo_run[0]
+
+
+#: The small shared plate: wells, their true slopes (absorbance per minute) and roles.
+SMALL_PLATE = {"A1": (0.020, "sample"), "A2": (0.040, "sample"), "A3": (0.060, "sample"),
+               "B1": (0.021, "sample"), "B2": (0.041, "sample"), "B3": (0.059, "sample"),
+               "C1": (0.0, "blank"), "C2": (0.0, "blank"), "C3": (0.0, "blank")}
+
+
+@pytest.fixture(scope="session")
+def small_plate(tmp_path_factory):
+    """A small seeded plate (9 wells x 16 reads, straight lines, noise 0.001 AU) and its map,
+    written once per session: {"data": path, "layout": path, "truth": {well: slope A/min}}.
+    Use it where a plate is needed but its size is not the point."""
+    folder = tmp_path_factory.mktemp("small_plate")
+    rng = np.random.default_rng(20261202)
+    t = np.arange(16) * 15.0
+    lines = ["Time (s)," + ",".join(SMALL_PLATE)]
+    cols = {w: 0.1 + s * t / 60 + rng.normal(0, 0.001, t.size) for w, (s, _) in SMALL_PLATE.items()}
+    lines += [f"{t[j]:g}," + ",".join(f"{cols[w][j]:.5f}" for w in SMALL_PLATE)
+              for j in range(t.size)]
+    (folder / "plate.csv").write_text("\n".join(lines) + "\n")
+    (folder / "map.csv").write_text("well,role,sample\n" + "".join(
+        f"{w},{role},{'buffer' if role == 'blank' else 'S' + w[1]}\n"
+        for w, (_, role) in SMALL_PLATE.items()))
+    return {"data": folder / "plate.csv", "layout": folder / "map.csv",
+            "truth": {w: s for w, (s, _) in SMALL_PLATE.items()}}

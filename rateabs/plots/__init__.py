@@ -9,10 +9,25 @@ from .laws import arrhenius_plot, completion_plot, ratelaw_plots
 from .progress import progress_plots
 from .rates import plate_heatmap, rate_traces, replicate_plot
 from .saturation import linearised, saturation_fit
-from .style import GRID, INK, PALETTE, RC, SHADE, house_style, save
+from .style import (
+    GRID,
+    INK,
+    MILLI_ABSORBANCE,
+    PALETTE,
+    RC,
+    RESIDUAL_MAU,
+    SHADE,
+    drawable,
+    fixed_axes,
+    house_style,
+    png_bytes,
+    save,
+    unit_text,
+)
 
 __all__ = [
-    "PALETTE", "INK", "GRID", "SHADE", "RC", "house_style", "save", "traces_overview",
+    "PALETTE", "INK", "GRID", "SHADE", "RC", "MILLI_ABSORBANCE", "RESIDUAL_MAU", "house_style",
+    "fixed_axes", "save", "png_bytes", "drawable", "unit_text", "traces_overview",
     "saturation_fit", "linearised", "rate_traces", "plate_heatmap", "replicate_plot",
     "ratelaw_plots", "completion_plot", "arrhenius_plot", "progress_plots", "class_summary_plot",
     "student_plot",

@@ -1,62 +1,94 @@
-"""Figures of ``rateabs progress``: the integrated fit and Selwyn's overlay."""
+"""Figures of ``rateabs progress``: the integrated fit and Selwyn's overlay.
+
+Concentrations are drawn in the unit Km and Vmax are reported in (the fit works in µM), so the
+picture and the numbers beside it agree; legends stand beside the axes, off the curves.
+"""
 
 from __future__ import annotations
 
 import numpy as np
 
 from ..fitting import fmt_pm
-from .style import INK, PALETTE, house_style, save
+from .style import INK, PALETTE, drawable, fixed_axes, house_style, save, unit_text
+
+#: Right margin (inches) that holds a legend beside the axes.
+LEGEND_ROOM = 2.1
+
+
+def _report_unit(a) -> tuple[str, float]:
+    """The concentration unit Km is reported in, and the factor from µM to it."""
+    from ..units import concentration_factor
+
+    unit = a.params["Km"].unit
+    return unit, 1e-6 / concentration_factor(unit)
+
+
+def _fit_figure(plt, a):
+    """Curves (product formed since the fitted baseline), the global fit and the residuals."""
+    c, r = a.curves, a.fit
+    unit, f = _report_unit(a)
+    u = unit_text(unit)
+    fig, (ax, axr) = fixed_axes(plt, (8.6, 5.6), 2, 1, margins=(0.8, LEGEND_ROOM, 0.55, 0.6),
+                                height_ratios=[3, 1.1], hspace=0.08, sharex=True)
+    start = 0
+    for i, n in enumerate(c.names):
+        col = PALETTE[i % len(PALETTE)]
+        t, p = c.t[i] / 60, c.p[i]
+        k = slice(start, start + c.t[i].size)
+        start += c.t[i].size
+        base = r.value(f"base_{i}")
+        lab = f"{drawable(n, f'curve {i + 1}')[:14]}: S0 {c.s0[i] * f:.3g} {u}"
+        if c.enzyme is not None:
+            lab += f", E {c.enzyme[i]:g}"
+        ax.plot(t, (p - base) * f, "o", ms=2.2, color=col, alpha=0.7, label=lab)
+        ax.plot(t, (r.fitted[k] - base) * f, color=col, lw=1.3)
+        axr.plot(t, (p - r.fitted[k]) * f, ".", ms=2.5, color=col)
+    axr.axhline(0, color=INK, lw=0.7)
+    ax.set_ylabel(f"product formed ({u})")
+    axr.set_ylabel(f"residual ({u})")
+    axr.set_xlabel("time (min)")
+    km, vm = a.params["Km"], a.params["Vmax"]
+    ax.set_title("integrated Michaelis–Menten, one global fit\n"
+                 f"Km = {fmt_pm(km.value, km.se, unit=unit_text(km.unit))},  "
+                 f"Vmax = {fmt_pm(vm.value, vm.se, unit=unit_text(vm.unit))}", fontsize=9.5,
+                 loc="left")
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0, fontsize=7.5)
+    return fig
+
+
+def _selwyn_figure(plt, a):
+    """Product formed against enzyme amount x time: curves of one S0 superimpose when the
+    enzyme is stable (Selwyn 1965)."""
+    c = a.curves
+    unit, f = _report_unit(a)
+    u = unit_text(unit)
+    fig, ax = fixed_axes(plt, (8.2, 4.3), margins=(0.8, LEGEND_ROOM, 0.55, 0.4))
+    s0_sets: dict = {}
+    for i in range(len(c.names)):
+        s0_sets.setdefault(c.s0[i], []).append(i)
+    for s0, members in s0_sets.items():
+        if len({c.enzyme[i] for i in members}) < 2:
+            continue
+        for j, i in enumerate(sorted(members, key=lambda m: c.enzyme[m])):
+            # model-free: product formed since the first reading
+            ax.plot(c.enzyme[i] * c.t[i] / 60, (c.p[i] - c.p[i][0]) * f, "o", ms=2.5,
+                    color=PALETTE[j % len(PALETTE)],
+                    label=f"E = {c.enzyme[i]:g} (S0 {s0 * f:.3g} {u})")
+    ax.set_xlabel("enzyme amount × time (enzyme unit × min)")
+    ax.set_ylabel(f"product formed since the first reading ({u})")
+    stable = (a.selwyn or {}).get("enzyme_stable")
+    verdict = ("enzyme stable: the curves superimpose" if stable else
+               "enzyme not stable: the curves do not superimpose")
+    ax.set_title(f"Selwyn's test: {verdict}", loc="left")
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0, fontsize=7.5)
+    return fig
 
 
 def progress_plots(a, out):
     """Curves with the global fit and residuals; the Selwyn overlay when enzyme amounts vary."""
     c = a.curves
-    r = a.fit
-    files = []
     with house_style() as plt:
-        fig, (ax, axr) = plt.subplots(2, 1, figsize=(7, 5.6), sharex=True,
-                                      gridspec_kw={"height_ratios": [3, 1.1]})
-        start = 0
-        for i, n in enumerate(c.names):
-            col = PALETTE[i % len(PALETTE)]
-            t, p = c.t[i], c.p[i]
-            k = slice(start, start + t.size)
-            start += t.size
-            base = r.value(f"base_{i}")
-            lab = f"{n}: S0 {c.s0[i]:g} µM" + ("" if c.enzyme is None else f", E {c.enzyme[i]:g}")
-            ax.plot(t / 60, p - base, "o", ms=2.2, color=col, alpha=0.7, label=lab)
-            ax.plot(t / 60, r.fitted[k] - base, color=col, lw=1.3)
-            axr.plot(t / 60, (p - r.fitted[k]), ".", ms=2.5, color=col)
-        axr.axhline(0, color=INK, lw=0.7)
-        ax.set_ylabel("product formed (µM)")
-        axr.set_ylabel("residual (µM)")
-        axr.set_xlabel("time (min)")
-        km, vm = a.params["Km"], a.params["Vmax"]
-        ax.set_title(f"integrated Michaelis–Menten, global fit: Km = "
-                     f"{fmt_pm(km.value, km.se, 3, km.unit)}, Vmax = "
-                     f"{fmt_pm(vm.value, vm.se, 3, vm.unit)}", fontsize=9)
-        ax.legend(loc="upper left", fontsize=7)
-        files.append(save(fig, out / "progress_fit.png"))
-    if c.enzyme is not None and np.unique(c.enzyme).size > 1:
-        with house_style() as plt:
-            fig, ax = plt.subplots(figsize=(6.4, 4.2))
-            s0_sets = {}
-            for i in range(len(c.names)):
-                s0_sets.setdefault(c.s0[i], []).append(i)
-            for s0, members in s0_sets.items():
-                if len({c.enzyme[i] for i in members}) < 2:
-                    continue
-                for j, i in enumerate(sorted(members, key=lambda m: c.enzyme[m])):
-                    # model-free: product formed since the first reading
-                    ax.plot(c.enzyme[i] * c.t[i] / 60, c.p[i] - c.p[i][0], "o", ms=2.5,
-                            color=PALETTE[j % len(PALETTE)],
-                            label=f"E = {c.enzyme[i]:g} (S0 {s0:g} µM)")
-            ax.set_xlabel("enzyme amount x time (enzyme unit x min)")
-            ax.set_ylabel("product formed since the first reading (µM)")
-            s = a.selwyn or {}
-            verdict = "stable: curves superimpose" if s.get("enzyme_stable") else (
-                "not stable: curves do not superimpose")
-            ax.set_title(f"Selwyn's test: {verdict}")
-            ax.legend(loc="lower right")
-            files.append(save(fig, out / "progress_selwyn.png"))
+        files = [save(_fit_figure(plt, a), out / "progress_fit.png", tight=False)]
+        if c.enzyme is not None and np.unique(c.enzyme).size > 1:
+            files.append(save(_selwyn_figure(plt, a), out / "progress_selwyn.png", tight=False))
     return files

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..fitting import fmt_pm
-from .style import GRID, INK, PALETTE, house_style, save
+from .style import GRID, INK, PALETTE, drawable, fixed_axes, house_style, save, unit_text
 
 
 def _level_groups(data):
@@ -23,16 +23,17 @@ def _curve_x(s, log=False):
 
 
 def saturation_fit(analysis, path, title: str = "rate vs substrate"):
-    """Data (per inhibitor level), the chosen fit and residuals underneath."""
+    """Data (per inhibitor level), the chosen fit and residuals underneath; the legend and the
+    parameters beside the axes, off the data."""
     d = analysis.data
     best = analysis.best
     vals = list(best.values().values())
     func = best.func
-    xu = d.conc_unit or "conc."
-    yu = d.rate_unit or "rate"
+    xu = unit_text(d.conc_unit or "conc.")
+    yu = unit_text(d.rate_unit or "rate")
     with house_style() as plt:
-        fig, (ax, axr) = plt.subplots(2, 1, figsize=(6.4, 5.2), sharex=True,
-                                      gridspec_kw={"height_ratios": [3, 1.2]})
+        fig, (ax, axr) = fixed_axes(plt, (8.8, 5.2), 2, 1, margins=(0.8, 2.4, 0.55, 0.4),
+                                    height_ratios=[3, 1.2], hspace=0.08, sharex=True)
         if best.model == "ic50":
             xs = d.i
             xc = _curve_x(xs, log=True)
@@ -40,13 +41,13 @@ def saturation_fit(analysis, path, title: str = "rate vs substrate"):
             ax.plot(xc, func(xc, *vals), color=PALETTE[1], label="4-parameter logistic")
             ax.set_xscale("log")
             axr.plot(xs[xs > 0], (d.v - best.fitted)[xs > 0], "o", color=PALETTE[0])
-            axr.set_xlabel(f"[inhibitor] ({d.inhib_unit or 'conc.'}, log scale; zero dose "
-                           "not shown)")
+            axr.set_xlabel(f"[inhibitor] ({unit_text(d.inhib_unit or 'conc.')}, log scale; "
+                           "zero dose not shown)")
         else:
             xc = _curve_x(d.s)
             for k, (lv, sel) in enumerate(_level_groups(d)):
                 col = PALETTE[k % len(PALETTE)]
-                lab = "data" if lv is None else f"[I] = {lv:g} {d.inhib_unit}"
+                lab = "data" if lv is None else f"[I] = {lv:g} {unit_text(d.inhib_unit)}"
                 ax.plot(d.s[sel], d.v[sel], "o", color=col, label=lab)
                 xx = xc if lv is None else np.vstack([xc, np.full_like(xc, lv)])
                 ax.plot(xc, func(xx, *vals), color=col, lw=1.4)
@@ -55,13 +56,13 @@ def saturation_fit(analysis, path, title: str = "rate vs substrate"):
         axr.axhline(0, color=INK, lw=0.8)
         axr.set_ylabel(f"residual ({yu})")
         ax.set_ylabel(f"rate ({yu})")
-        ax.set_title(f"{title}: {best.model} fit (chosen)")
-        ax.legend(loc="center right")
-        txt = "\n".join(f"{p.name} = {fmt_pm(p.value, p.se, unit=p.unit)}"
+        ax.set_title(f"{drawable(title)}: {best.model} fit (chosen)", loc="left")
+        ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
+        txt = "\n".join(f"{p.name} = {fmt_pm(p.value, p.se, unit=unit_text(p.unit))}"
                         for p in best.params.values())
-        ax.text(0.98, 0.04, txt, transform=ax.transAxes, ha="right", va="bottom", fontsize=8,
-                bbox={"boxstyle": "round", "fc": "white", "ec": GRID})
-        return save(fig, path)
+        ax.annotate(txt, xy=(1.02, 0.0), xycoords="axes fraction", ha="left", va="bottom",
+                    fontsize=8, bbox={"boxstyle": "round", "fc": "white", "ec": GRID})
+        return save(fig, path, tight=False)
 
 
 def linearised(analysis, path):
@@ -72,9 +73,10 @@ def linearised(analysis, path):
     d = analysis.data
     best = analysis.best
     vals = list(best.values().values())
-    xu, yu = d.conc_unit or "conc.", d.rate_unit or "rate"
+    xu, yu = unit_text(d.conc_unit or "conc."), unit_text(d.rate_unit or "rate")
     with house_style() as plt:
-        fig, axes = plt.subplots(1, 3, figsize=(11.5, 3.8), layout="constrained")
+        fig, axes = fixed_axes(plt, (11.5, 4.2), 1, 3, margins=(0.75, 0.2, 0.55, 0.95),
+                               wspace=0.32)
         xc = _curve_x(d.s, log=True)
         for k, (lv, sel) in enumerate(_level_groups(d)):
             col = PALETTE[k % len(PALETTE)]
@@ -82,7 +84,7 @@ def linearised(analysis, path):
             ok = (s > 0) & (v > 0)
             xx = xc if lv is None else np.vstack([xc, np.full_like(xc, lv)])
             vc = best.func(xx, *vals)
-            lab = None if lv is None else f"[I] = {lv:g}"
+            lab = None if lv is None else f"[I] = {lv:g} {unit_text(d.inhib_unit or '')}"
             axes[0].plot(1 / s[ok], 1 / v[ok], "o", color=col, label=lab)
             axes[0].plot(1 / xc, 1 / vc, color=col, lw=1.2)
             axes[1].plot(v[ok] / s[ok], v[ok], "o", color=col)
@@ -99,7 +101,9 @@ def linearised(analysis, path):
         axes[1].set_xlim(left=0)
         axes[2].set_ylim(bottom=0)
         if d.i is not None:
-            axes[0].legend(loc="upper left")
-        fig.suptitle(f"linearised views for inspection only; lines are the nonlinear {best.model} "
-                     "fit, not regressions", fontsize=9)
-        return save(fig, path)
+            fig.legend(*axes[0].get_legend_handles_labels(), loc="upper left", ncol=8,
+                       bbox_to_anchor=(0.75 / 11.5, 1 - 0.28 / 4.2), borderaxespad=0,
+                       fontsize=7.5)
+        fig.text(0.75 / 11.5, 0.985, "linearised views for inspection only; lines are the "
+                 f"nonlinear {best.model} fit, not regressions", fontsize=9, va="top")
+        return save(fig, path, tight=False)

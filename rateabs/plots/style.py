@@ -1,13 +1,29 @@
-"""The one house style of every rateabs figure, and how figures are saved.
+"""The one house style of every rateabs figure, and how figures are laid out and saved.
 
 The palette is the Okabe–Ito colour-blind-safe set (Okabe & Ito 2008, "Color Universal
 Design"); every axis carries its unit; figures are written atomically as PNG.
+
+Speed: the style is a plain ``rc_context`` around the drawing (measured at under 1 ms a figure,
+against 100 ms and more for the drawing itself, so it is kept per figure and never changes a
+caller's own matplotlib settings); :func:`fixed_axes` lays a figure out once, in inches, so
+:func:`save` needs neither constrained layout nor a tight bounding box (each costs a further pass
+over every artist).
+
+Names in other scripts: the house font (DejaVu Sans, shipped with matplotlib) draws Latin, Greek,
+Cyrillic, and, where matplotlib shapes text (libraqm, matplotlib 3.11 on), Arabic and Hebrew. Text
+it cannot draw (Chinese, Japanese, Korean, Devanagari, ...) is kept out of the raster image:
+:func:`save` replaces each such run of characters by :data:`NOT_DRAWN`, and the report page shows
+the name in full, in the reader's browser fonts. No font is packaged, so the wheel stays small,
+and no warning is printed per missing glyph.
 """
 
 from __future__ import annotations
 
 import io
+import re
+import unicodedata
 from contextlib import contextmanager
+from functools import lru_cache
 from pathlib import Path
 
 PALETTE = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442",
@@ -22,6 +38,8 @@ GRID = "#d9d9d9"
 
 SHADE = "#0072B2"
 
+#: The house font: ships with matplotlib, so every installation has it.
+FONT = "DejaVu Sans"
 
 RC = {
     "figure.dpi": 110, "savefig.dpi": 110, "font.size": 9.5, "axes.titlesize": 10.5,
@@ -29,8 +47,21 @@ RC = {
     "axes.spines.top": False, "axes.spines.right": False, "axes.grid": True,
     "grid.color": GRID, "grid.linewidth": 0.6, "xtick.color": INK, "ytick.color": INK,
     "legend.frameon": False, "legend.fontsize": 8.5, "lines.linewidth": 1.6,
-    "lines.markersize": 4, "axes.prop_cycle": None, "font.family": "DejaVu Sans",
+    "lines.markersize": 4, "axes.prop_cycle": None, "font.family": FONT,
 }
+
+#: The unit of residuals in thousandths of an absorbance unit. Written "mAU", never "mA", which
+#: reads as milliampere (mAU, milli-absorbance unit: common practice in spectrophotometry).
+MILLI_ABSORBANCE = "mAU"
+
+#: Axis label of absorbance residuals shown in thousandths.
+RESIDUAL_MAU = "residual (mAU, 0.001 absorbance)"
+
+#: What stands in a figure for text the house font cannot draw (the report shows it in full).
+NOT_DRAWN = "[…]"
+
+#: Scripts that need shaping and right-to-left layout (drawn only where matplotlib shapes text).
+_SHAPED = re.compile("[\u0590-\u08ff\ufb1d-\ufdff\ufe70-\ufeff]")
 
 
 @contextmanager
@@ -47,14 +78,123 @@ def house_style():
         yield plt
 
 
-def save(fig, path: str | Path) -> Path:
-    """Write a figure as PNG atomically and close it."""
-    from ..files import write_atomic
+def fixed_axes(plt, size: tuple[float, float], rows: int = 1, cols: int = 1, *,
+               margins: tuple[float, float, float, float] = (0.75, 0.2, 0.5, 0.4),
+               **grid):
+    """A figure of ``size`` inches and its grid of axes, laid out once with fixed margins.
 
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", bbox_inches="tight")
+    ``margins`` are (left, right, bottom, top) in inches, so labels keep their room whatever the
+    figure's size; ``grid`` goes to the gridspec (``height_ratios``, ``hspace``, ``wspace``...)
+    and to ``subplots`` (``sharex``, ``squeeze``). Returns (figure, axes) as ``plt.subplots``.
+    """
+    w, h = size
+    left, right, bottom, top = margins
+    share = {k: grid.pop(k) for k in ("sharex", "sharey", "squeeze") if k in grid}
+    fig = plt.figure(figsize=size)
+    axes = fig.subplots(rows, cols, gridspec_kw={"left": left / w, "right": 1 - right / w,
+                                                 "bottom": bottom / h, "top": 1 - top / h,
+                                                 **grid}, **share)
+    return fig, axes
+
+
+_UNIT_TEXT = (("^-1", "⁻¹"), ("^-2", "⁻²"), ("^2", "²"), ("^3", "³"))
+
+
+def unit_text(unit: str) -> str:
+    """A unit as a figure writes it: ``uM`` as ``µM``, ``M^-1 cm^-1`` as ``M⁻¹ cm⁻¹``.
+
+    >>> unit_text("uM/min per enzyme unit"), unit_text("M^-1 cm^-1")
+    ('µM/min per enzyme unit', 'M⁻¹ cm⁻¹')
+    """
+    words = []
+    for w in str(unit).split(" "):
+        if re.fullmatch(r"u(M|L|g|mol|m|s)(/\w+)?", w):
+            w = "µ" + w[1:]
+        for a, b in _UNIT_TEXT:
+            w = w.replace(a, b)
+        words.append(w)
+    return " ".join(words)
+
+
+@lru_cache(maxsize=1)
+def _font_chars() -> frozenset[int]:
+    """Code points the house font has a glyph for."""
+    from matplotlib import font_manager
+    from matplotlib.ft2font import FT2Font
+
+    path = font_manager.findfont(font_manager.FontProperties(family=FONT),
+                                 fallback_to_default=True)
+    return frozenset(FT2Font(path).get_charmap())
+
+
+@lru_cache(maxsize=1)
+def _shapes_text() -> bool:
+    """Whether this matplotlib shapes complex scripts (it lays text out with libraqm)."""
+    import matplotlib
+
+    return "text.language" in matplotlib.rcParams
+
+
+def _char_ok(c: str) -> bool:
+    if ord(c) < 0x250 or unicodedata.category(c).startswith(("Z", "C")):
+        return True
+    if _SHAPED.match(c) and not _shapes_text():
+        return False
+    return ord(c) in _font_chars()
+
+
+def drawable(text: str, fallback: str | None = None) -> str:
+    """``text`` as a figure may show it: unchanged where the house font draws every character;
+    otherwise ``fallback``, or (without one) the text with each run it cannot draw replaced by
+    :data:`NOT_DRAWN`.
+
+    >>> drawable("KbDH1 Иванов"), drawable("样品 1"), drawable("王", "trace 3")
+    ('KbDH1 Иванов', '[…] 1', 'trace 3')
+    """
+    text = str(text)
+    if all(_char_ok(c) for c in text):
+        return text
+    if fallback is not None:
+        return fallback
+    out, run = [], False
+    for c in text:
+        ok = _char_ok(c)
+        if ok:
+            out.append(c)
+        elif not run:
+            out.append(NOT_DRAWN)
+        run = not ok
+    return "".join(out)
+
+
+def _keep_drawable(fig) -> None:
+    """Every text of a figure made drawable by the house font (see :func:`drawable`)."""
+    from matplotlib.text import Text
+
+    for t in fig.findobj(Text):
+        s = t.get_text()
+        if s and not s.isascii():
+            t.set_text(drawable(s))
+
+
+def png_bytes(fig, tight: bool = True, dpi: float | None = None) -> bytes:
+    """A figure as PNG bytes, closed afterwards; text the house font cannot draw is replaced
+    first (see :func:`drawable`). ``tight=False`` keeps the figure's own layout (one drawing pass
+    instead of two): use it with :func:`fixed_axes`."""
     import matplotlib.pyplot as plt
 
-    plt.close(fig)
-    write_atomic(path, buf.getvalue())
+    _keep_drawable(fig)
+    buf = io.BytesIO()
+    try:
+        fig.savefig(buf, format="png", bbox_inches="tight" if tight else None, dpi=dpi)
+    finally:
+        plt.close(fig)
+    return buf.getvalue()
+
+
+def save(fig, path: str | Path, tight: bool = True) -> Path:
+    """Write a figure as PNG atomically and close it (see :func:`png_bytes`)."""
+    from ..files import write_atomic
+
+    write_atomic(path, png_bytes(fig, tight))
     return Path(path)

@@ -82,7 +82,8 @@ def deliver(o, emit, view: View, name: str, plot=None, data=None) -> list[Path]:
         if out.report:
             from ..report import document_page
 
-            run.write(out.report, document_page(view.doc, pics))
+            run.write(out.report, document_page(view.doc, pics, settings=o, csv_text=view.csv,
+                                                csv_name=f"{name}.csv"))
     return pics if out.out else []
 
 

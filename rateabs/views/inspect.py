@@ -46,8 +46,9 @@ def run_inspect(o: InspectOptions, emit) -> View:
     def plot(folder):
         from ..plots import traces_overview
 
+        flagged = [bool(r["flags"]) for r in view.analysis.results]
         return [traces_overview(view.analysis.traces, folder / "inspect_traces.png",
-                                Path(o.file).name, "absorbance (AU)")]
+                                Path(o.file).name, "absorbance (AU)", flagged=flagged)]
 
     deliver(o, emit, view, "inspect", plot)
     return view

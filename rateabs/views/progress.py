@@ -112,7 +112,9 @@ def _text(a, res, rows, level: float) -> str:
                                                  ("conversion", "conversion reached")])
     if a.selwyn:
         s = a.selwyn
-        table += f"\nSelwyn's test: enzyme_stable = {s['enzyme_stable']}\n  {s['reason']}\n"
+        verdict = ("the enzyme is stable: the curves superimpose" if s["enzyme_stable"] else
+                   "the enzyme is not stable: the curves do not superimpose")
+        table += f"\nSelwyn's test: {verdict}\n  {s['reason']}\n"
     return table
 
 
