@@ -32,7 +32,7 @@ from __future__ import annotations
 import glob
 import os
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 from .errors import InputError, UsageError
@@ -73,7 +73,7 @@ class Inputs:
 
     files: tuple[str, ...]
     left_out: tuple[str, ...] = ()
-    notes: tuple[str, ...] = field(default=())
+    notes: tuple[str, ...] = ()
 
 
 def _from_folder(folder: str) -> tuple[list[str], list[str]]:

@@ -244,7 +244,7 @@ class WhereOptions(Checked):
 
 def _more_files():
     return field(default=(), metadata={
-        "argument": "FILE", "nargs": -1, "rule": Many(Text("file name")), "flag": "FILE",
+        "argument": "[FILE]...", "nargs": -1, "rule": Many(Text("file name")), "flag": "FILE",
         "help": "More exports, folders or quoted glob patterns: one combined table whose rows "
                 "each carry their file (rateabs.batch)."})
 
