@@ -6,11 +6,12 @@ cluster with 2 workers, beside the speed-up the machine itself gives a pure CPU 
 Each plate is a simulated 96-well kinetic read (61 reads, 10 s apart; straight, bending and
 lagging traces from benchmarks/common.py). Each mode runs the whole many-file ``rates`` run
 (``rateabs.views.batch.run_plates``: plan, workers reading their own files, rows streamed, the
-JSON document assembled), printing nothing; the local processes are started inside the timing,
-as a user's command starts them, while the Dask cluster exists beforehand with its workers
-warmed, as a lab's cluster would. The machine's own speed-up is the same pure-Python task run
-4 times in this process and then on 2 warm worker processes. Rounds are interleaved and the
-best time of each mode is kept, so that other work on a shared machine touches every mode
+JSON document assembled), printing nothing. The local processes are started inside the timing,
+as a user's command starts them. The Dask cluster (a ``dask scheduler`` and a ``dask worker
+--nworkers 2``, each its own process on 127.0.0.1, as a user starts them) exists beforehand with
+its workers warmed, as a lab's cluster would. The machine's own speed-up is the same pure-Python
+task run 4 times in this process and then on 2 warm worker processes. Rounds are interleaved and
+the best time of each mode is kept, so that other work on a shared machine touches every mode
 alike; the load average is printed beside the figures.
 
 Goals (issue 15): the 2-process speed-up is at least 0.8 of the machine's; Dask costs at most
@@ -19,12 +20,14 @@ Goals (issue 15): the 2-process speed-up is at least 0.8 of the machine's; Dask 
 
 from __future__ import annotations
 
-import logging
 import os
+import signal
+import subprocess
 import sys
 import tempfile
 import time
 from concurrent.futures import ProcessPoolExecutor
+from contextlib import contextmanager
 from pathlib import Path
 
 sys.path[:0] = [str(Path(__file__).parent), str(Path(__file__).parents[1])]   # this checkout
@@ -81,32 +84,61 @@ def warm_worker() -> str:
     return "ready"
 
 
-def main(n: int = 24, rounds: int = 2) -> None:
-    from distributed import Client, LocalCluster
+@contextmanager
+def dask_cluster(folder: Path, n_workers: int = 2):
+    """A Dask scheduler and workers in their own processes on 127.0.0.1, started as a user
+    would (``dask scheduler``, ``dask worker --nworkers 2``), warmed, and always stopped."""
+    from distributed import Client
 
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join(sys.path[:2])}   # this checkout
+    info = folder / "scheduler.json"
+    argv = [sys.executable, "-m", "distributed.cli.dask_scheduler", "--host", "127.0.0.1",
+            "--port", "0", "--no-dashboard", "--scheduler-file", str(info)]
+    procs = [subprocess.Popen(argv, env=env, start_new_session=True,
+                              stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)]
+    try:
+        procs.append(subprocess.Popen(
+            [sys.executable, "-m", "distributed.cli.dask_worker", "--scheduler-file", str(info),
+             "--nworkers", str(n_workers), "--nthreads", "1", "--no-dashboard", "--host",
+             "127.0.0.1"], env=env, start_new_session=True, stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL))
+        with Client(scheduler_file=str(info), timeout=120) as c:
+            c.wait_for_workers(n_workers, timeout=120)
+            c.run(warm_worker)
+            address = c.scheduler.address
+        yield address
+    finally:
+        for p in reversed(procs):                    # the workers, then the scheduler
+            os.killpg(p.pid, signal.SIGTERM)
+            try:
+                p.wait(timeout=30)
+            except subprocess.TimeoutExpired:
+                os.killpg(p.pid, signal.SIGKILL)
+                p.wait(timeout=30)
+
+
+def main(n: int = 24, rounds: int = 2) -> None:
     best = {"serial": float("inf"), "local": float("inf"), "dask": float("inf"),
             "cpu1": float("inf"), "cpu2": float("inf")}
-    with tempfile.TemporaryDirectory() as d, ProcessPoolExecutor(2) as pool, LocalCluster(
-            n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-            dashboard_address=None, silence_logs=logging.ERROR) as cluster:
-        folder = Path(d)
+    with tempfile.TemporaryDirectory() as d, ProcessPoolExecutor(2) as pool:
+        plates = Path(d) / "plates"
+        plates.mkdir()
         for k in range(n):
-            write_plate(folder / f"plate{k + 1:03d}.csv", n_rows=8, n_cols=12, n_reads=61,
+            write_plate(plates / f"plate{k + 1:03d}.csv", n_rows=8, n_cols=12, n_reads=61,
                         seed=k)
         list(pool.map(spin, [10, 10]))                          # start the pool's workers
-        with Client(cluster.scheduler_address) as c:
-            c.run(warm_worker)
-        run_once(folder, jobs=1)                                # warm this process's imports
-        reference = None
-        for _ in range(rounds):
-            cpu1, cpu2 = machine_speedup(pool)
-            best["cpu1"], best["cpu2"] = min(best["cpu1"], cpu1), min(best["cpu2"], cpu2)
-            for mode, where in (("serial", {"jobs": 1}), ("local", {"jobs": 2}),
-                                ("dask", {"scheduler": cluster.scheduler_address})):
-                elapsed, rows = run_once(folder, **where)
-                reference = reference or rows
-                assert rows == reference, f"{mode} gave other numbers"
-                best[mode] = min(best[mode], elapsed)
+        with dask_cluster(Path(d)) as scheduler:
+            run_once(plates, jobs=1)                            # warm this process's imports
+            reference = None
+            for _ in range(rounds):
+                cpu1, cpu2 = machine_speedup(pool)
+                best["cpu1"], best["cpu2"] = min(best["cpu1"], cpu1), min(best["cpu2"], cpu2)
+                for mode, where in (("serial", {"jobs": 1}), ("local", {"jobs": 2}),
+                                    ("dask", {"scheduler": scheduler})):
+                    elapsed, rows = run_once(plates, **where)
+                    reference = reference or rows
+                    assert rows == reference, f"{mode} gave other numbers"
+                    best[mode] = min(best[mode], elapsed)
     report(n, rounds, best)
 
 
