@@ -327,7 +327,7 @@ def test_serial_two_processes_and_dask_give_identical_documents(screen, tmp_path
     folder, _ = screen
     broken = tmp_path / "P11.csv"
     broken.write_text("not, a plate\n1,2\n")
-    args = [folder, broken, "--layout", folder, *FIXED]
+    args = [folder / "P1.csv", folder / "P10.csv", broken, "--layout", folder, *FIXED]
     serial, c1 = rates_json(*args, "--jobs", "1")
     local, c2 = rates_json(*args, "--jobs", "2")
     dask, c3 = rates_json(*args, "--scheduler", dask_scheduler)
