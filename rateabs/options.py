@@ -212,9 +212,9 @@ class SchedulerAddress(Rule):
         return check_scheduler(str(value))
 
 
-def _jobs(help: str = "Worker processes on this machine (default: one per CPU; 1 runs the "
-          "files here, one after another)."):
-    return option("--jobs", JOBS, help)
+def _jobs():
+    return option("--jobs", JOBS, "Worker processes on this machine (default: one per CPU; 1 "
+                  "runs the files here, one after another).")
 
 
 def _scheduler():
