@@ -128,7 +128,8 @@ def _click_param(f):
     meta = f.metadata
     rule = meta["rule"]
     if "argument" in meta:
-        return click.Argument([f.name], metavar=meta["argument"], type=click.Path())
+        return click.Argument([f.name], metavar=meta["argument"], type=click.Path(),
+                              nargs=meta.get("nargs", 1))
     flags = [meta["flag"], f.name]
     default = f.default_factory() if f.default_factory is not MISSING else f.default
     kw = {"help": meta["help"], "hidden": meta.get("hidden", False)}
@@ -199,20 +200,46 @@ def inspect(**values):
 @_with_options(opts.RatesOptions)
 @_guarded
 def rates(**values):
-    """Initial rate of each trace in FILE, converted to concentration and activity."""
-    from .views import run_rates
+    """Initial rate of each trace in FILE, converted to concentration and activity.
 
-    run_rates(opts.RatesOptions.build(**values), _emit)
+    Several files, a folder or a quoted glob pattern give one combined table whose rows carry
+    their file, run on --jobs local processes or on a Dask cluster (--scheduler); exit code 5
+    when some files failed (their rows say why, the rest are written).
+    """
+    from .views import run_rates
+    from .views.batch import one_file, plan_plates, run_plates
+
+    o = opts.RatesOptions.build(**values)
+    single = one_file(o)
+    if single is not None:
+        run_rates(single, _emit)
+        return 0
+    done = run_plates(plan_plates(o), click.echo, progress=lambda n: click.progressbar(
+        length=n, label="plates", file=sys.stderr))
+    if done.failed:
+        click.echo(f"rateabs: {done.summary()}", err=True)
+    return done.exit_code
 
 
 @main.command()
 @_with_options(opts.SaturationOptions)
 @_guarded
 def saturation(**values):
-    """Michaelis-Menten family and inhibition fits of rate vs concentration in FILE."""
+    """Michaelis-Menten family and inhibition fits of rate vs concentration in FILE.
+
+    With --each COLUMN every group of rows (each sample, each plate...) is fitted on its own;
+    exit code 5 when some groups could not be fitted (their results say why).
+    """
+    from .errors import SOME_FAILED
     from .views import run_saturation
 
-    run_saturation(opts.SaturationOptions.build(**values), _emit)
+    doc = run_saturation(opts.SaturationOptions.build(**values), _emit).doc
+    failed = doc["settings"].get("failed")
+    if failed:
+        click.echo(f"rateabs: {failed} of {doc['settings']['groups']} group(s) could not be "
+                   "fitted (their results say why); the others were written", err=True)
+        return SOME_FAILED
+    return 0
 
 
 @main.command()

@@ -4,10 +4,16 @@ Every error the user can cause maps to one exit code of the command-line tool, a
 enough context (file, row, column, what to do) to be printed as a single line.
 
 Exit codes: 0 success, 1 internal error, 2 usage error (bad option), 3 bad input file,
-4 analysis not possible (no fit could be made from the data).
+4 analysis not possible (no fit could be made from the data), 5 a run over many files (or
+groups) finished but some of them failed: their rows say why, the others were written
+(:data:`SOME_FAILED`).
 """
 
 from __future__ import annotations
+
+#: Exit code of a many-file (or many-group) run in which some items failed and the rest were
+#: written; each failed item has a row that says why.
+SOME_FAILED = 5
 
 
 class RateabsError(Exception):

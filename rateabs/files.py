@@ -14,6 +14,9 @@ need not carry it). The rules, in one place:
   the target and are renamed into place; a failed write (full disk, Ctrl-C, any exception)
   removes its temporary file, and a run into a folder first removes the temporary files that
   killed runs left there.
+* **Streamed files too.** ``run.stream(path)`` takes a file piece by piece as results arrive
+  (a many-file run's combined table), with the same checks; it is listed and renamed into place
+  only when complete.
 * **A manifest per folder.** ``--out`` holds ``.rateabs-manifest.json`` (docs/formats.md) listing
   the run's command, inputs, times and files; each file is listed *before* it is renamed into
   place, so a killed run leaves nothing unlisted. A rerun first removes the files its
@@ -127,10 +130,36 @@ def _tmp_path(real: Path) -> Path:
     return real.with_name(f".{real.name[:100]}.{os.getpid()}.{secrets.token_hex(4)}{TMP_SUFFIX}")
 
 
-def _replace_file(path: Path, real: Path, data: bytes, old: os.stat_result | None) -> None:
-    """Write ``data`` to a fresh temporary name beside ``real`` and rename it into place.
+class Sink:
+    """Where a streamed output goes (:meth:`RunOutputs.stream`): ``write`` text or bytes as
+    they come; it counts and hashes what it is given for the manifest."""
 
-    The temporary file is removed whatever goes wrong (an OSError, Ctrl-C, anything else).
+    def __init__(self, fh, path: Path) -> None:
+        self._fh, self._path = fh, path
+        self._sha = hashlib.sha256()
+        self.size = 0
+
+    def write(self, data: str | bytes) -> None:
+        """Append ``data`` (str as UTF-8); a full disk is a one-line UsageError."""
+        blob = _as_bytes(data)
+        try:
+            self._fh.write(blob)
+        except OSError as exc:
+            raise _fail(self._path, exc) from None
+        self.size += len(blob)
+        self._sha.update(blob)
+
+    def sha256(self) -> str:
+        """Hex digest of everything written so far."""
+        return self._sha.hexdigest()
+
+
+@contextmanager
+def _temporary(path: Path, real: Path, old: os.stat_result | None) -> Iterator[Sink]:
+    """A fresh temporary file beside ``real``, renamed into place when the block ends.
+
+    The temporary file is removed whatever goes wrong (an OSError, Ctrl-C, anything else); an
+    error of the block itself passes through unchanged.
     """
     while True:
         tmp = _tmp_path(real)
@@ -142,9 +171,11 @@ def _replace_file(path: Path, real: Path, data: bytes, old: os.stat_result | Non
             continue
         except OSError as exc:
             raise _fail(path, exc) from None
+    finishing = False
     try:
         with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
+            yield Sink(fh, path)
+            finishing = True
         if old is not None:
             os.chmod(tmp, stat.S_IMODE(old.st_mode))
         os.replace(tmp, real)
@@ -153,9 +184,15 @@ def _replace_file(path: Path, real: Path, data: bytes, old: os.stat_result | Non
             os.unlink(tmp)
         except FileNotFoundError:
             pass
-        if isinstance(exc, OSError):
+        if finishing and isinstance(exc, OSError):
             raise _fail(path, exc) from None
         raise
+
+
+def _replace_file(path: Path, real: Path, data: bytes, old: os.stat_result | None) -> None:
+    """Write ``data`` to a fresh temporary name beside ``real`` and rename it into place."""
+    with _temporary(path, real, old) as sink:
+        sink.write(data)
 
 
 def _as_bytes(data: str | bytes) -> bytes:
@@ -314,6 +351,29 @@ class RunOutputs:
     def write(self, path: str | Path, data: str | bytes) -> Path:
         """Write one whole file atomically, after every check; returns the path as given."""
         path = Path(path)
+        real, rel, old = self._prepare(path)
+        blob = _as_bytes(data)
+        self._list(path, rel, old, len(blob), _digest(blob))     # listed before it appears
+        _replace_file(path, real, blob, old)
+        return path
+
+    @contextmanager
+    def stream(self, path: str | Path) -> Iterator[Sink]:
+        """Write one file piece by piece, as results arrive, with the checks of :meth:`write`.
+
+        ``with run.stream(out / "rates.csv") as sink: sink.write(line)``: the pieces go to a
+        temporary file beside the target, which is listed in the manifest and renamed into
+        place when the block ends; an error or Ctrl-C inside the block removes it, so the
+        target never holds a part.
+        """
+        path = Path(path)
+        real, rel, old = self._prepare(path)
+        with _temporary(path, real, old) as sink:
+            yield sink
+            self._list(path, rel, old, sink.size, sink.sha256())
+
+    def _prepare(self, path: Path) -> tuple[Path, str | None, os.stat_result | None]:
+        """Check a target before it is written; its resolved path, name in --out and stat."""
         real = Path(os.path.realpath(path))
         rel = self._relative(path)
         if rel in (MANIFEST, LOCK):
@@ -324,19 +384,19 @@ class RunOutputs:
         elif not real.parent.is_dir():
             raise UsageError("the folder to write this file into does not exist",
                              "create it first or choose another path", file=str(path))
-        old = self._check_target(path, real, rel)
+        return real, rel, self._check_target(path, real, rel)
+
+    def _list(self, path: Path, rel: str | None, old, size: int, sha256: str) -> None:
+        """Record a file in the manifest (inside --out) and note what it replaces."""
         fresh = rel is None or rel not in self._files       # not written before by this run
-        blob = _as_bytes(data)
-        if rel is not None:                                 # listed before it appears
-            self._files[rel] = {"name": rel, "bytes": len(blob), "sha256": _digest(blob)}
+        if rel is not None:
+            self._files[rel] = {"name": rel, "bytes": size, "sha256": sha256}
             self._save_manifest("writing")
         if old is not None and fresh:
             if rel is None:
                 self.tell(f"replacing {path}")
             else:
                 self._replaced.append(rel)
-        _replace_file(path, real, blob, old)
-        return path
 
     # ------------------------------------------------------------------ checks
 

@@ -27,6 +27,7 @@ import math
 from dataclasses import MISSING, dataclass, field
 from pathlib import Path
 
+from .batch import is_pattern
 from .errors import RateabsError, UsageError
 from .rules import (
     Checked,
@@ -164,6 +165,8 @@ class OutputOptions(Checked):
 
 
 def _check_sheet(file: str, reader: ReaderOptions) -> None:
+    if Path(file).is_dir() or is_pattern(file):       # a many-file run: checked file by file
+        return
     if reader.sheet is not None and Path(file).suffix.lower() not in (".xlsx", ".xlsm"):
         raise refusal("--sheet", f"applies to .xlsx workbooks only; {file} is not one",
                       "leave --sheet out")
@@ -185,6 +188,65 @@ class InspectOptions(Checked):
     def check_together(self) -> None:
         """--sheet only for workbooks."""
         _check_sheet(self.file, self.reader)
+
+
+# --------------------------------------------------------------------------- many files
+
+JOBS = Number(1, 4096, integer=True, unit="worker processes", example="2")
+
+
+@dataclass(frozen=True)
+class SchedulerAddress(Rule):
+    """The address of a running Dask scheduler, ``tcp://HOST:PORT`` (``HOST:PORT`` too)."""
+
+    example: str = "tcp://10.0.0.5:8786"
+
+    def describe(self) -> str:
+        """What the option takes."""
+        return "a Dask scheduler address tcp://HOST:PORT"
+
+    def check(self, value, option: str) -> str:
+        """The address as ``tcp://host:port`` (the rule of :mod:`rateabs.parallel`)."""
+        from .parallel import check_scheduler
+
+        return check_scheduler(str(value))
+
+
+def _jobs():
+    return option("--jobs", JOBS, "Worker processes on this machine (default: one per CPU; 1 "
+                  "runs the files here, one after another).")
+
+
+def _scheduler():
+    return option("--scheduler", SchedulerAddress(), "Run on an existing Dask cluster instead: "
+                  "its scheduler's address, e.g. tcp://10.0.0.5:8786 (needs pip install "
+                  "\".[cluster]\"; the workers must see the same paths).")
+
+
+def check_where(jobs: int | None, scheduler: str | None) -> None:
+    """Local processes or a cluster, not both."""
+    if jobs is not None and scheduler is not None:
+        raise UsageError("--jobs and --scheduler were both given", "give --scheduler to run on "
+                         "the cluster, or --jobs for local processes")
+
+
+@dataclass(frozen=True)
+class WhereOptions(Checked):
+    """Where the files of a many-file run are analysed: local processes or a Dask cluster."""
+
+    jobs: int | None = _jobs()
+    scheduler: str | None = _scheduler()
+
+    def check_together(self) -> None:
+        """Not both."""
+        check_where(self.jobs, self.scheduler)
+
+
+def _more_files():
+    return field(default=(), metadata={
+        "argument": "[FILE]...", "nargs": -1, "rule": Many(Text("file name")), "flag": "FILE",
+        "help": "More exports, folders or quoted glob patterns: one combined table whose rows "
+                "each carry their file (rateabs.batch)."})
 
 
 # --------------------------------------------------------------------------- rates
@@ -336,6 +398,8 @@ class RatesOptions(Checked):
     curve: bool = _curve()
     slope_from: str = _slope_from()
     output: OutputOptions = part(OutputOptions)
+    more_files: tuple = _more_files()
+    where: WhereOptions = part(WhereOptions)
 
     def check_together(self) -> None:
         """Refuse options that would be ignored; build the analysis settings once to check."""
@@ -459,6 +523,9 @@ class SaturationOptions(Checked):
     select: tuple = option("--select", Many(Pair(Text("value", "KbDH1"), "sample=KbDH1")),
                            "Use only rows whose COL equals VALUE (repeatable), e.g. "
                            "sample=KbDH1.", ())
+    each: str | None = option("--each", Text("column name", "sample"), "Fit each group of rows "
+                              "that share a value of this column on its own, e.g. sample (or "
+                              "file, of a many-file rates table): one result per group.")
     output: OutputOptions = part(OutputOptions)
 
     def check_together(self) -> None:
@@ -697,7 +764,12 @@ class GradeOptions(Checked):
                          MISSING)
     jobs: int | None = option("--jobs", Number(1, 4096, integer=True, example="2"),
                               "Worker processes (default: all cores).")
+    scheduler: str | None = _scheduler()
     fmt: str = option("--format", OneOf(FORMATS, "json"), "table for a person, csv, or one json "
                       "document.", "table")
     out: str | None = option("--out", Text("folder", "grades"), "Folder for the gradebook, "
                              "feedback pages and class summary.")
+
+    def check_together(self) -> None:
+        """Local processes or a cluster, not both."""
+        check_where(self.jobs, self.scheduler)

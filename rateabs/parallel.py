@@ -49,7 +49,8 @@ DEFAULT_AHEAD = 256
 WATCH_INTERVAL_S = 0.2
 #: How long to wait for a Dask scheduler to answer (seconds).
 CONNECT_TIMEOUT_S = 10.0
-INSTALL_HINT = 'install it with: pip install "rateabs[cluster]" (or pip install "dask[distributed]")'
+INSTALL_HINT = ('install it with: pip install "rateabs[cluster]" (in a rateabs checkout: pip install '
+                '".[cluster]"; or pip install "dask[distributed]")')
 ADDRESS_EXAMPLE = "e.g. --scheduler tcp://10.0.0.5:8786 or --scheduler 10.0.0.5:8786"
 _PR_SET_PDEATHSIG = 1
 
@@ -116,6 +117,18 @@ def describe(executor: Executor | None) -> str:
     if isinstance(executor, ClusterExecutor):
         return f"Dask cluster at {executor.address}"
     return type(executor).__name__
+
+
+def slots(executor: Executor | None) -> int:
+    """How many items the executor runs at once: 1 here, the pool's processes, or the threads
+    of the cluster's workers (at least 1; ``os.cpu_count()`` for another executor)."""
+    if executor is None:
+        return 1
+    if isinstance(executor, LocalPool):
+        return executor.jobs
+    if isinstance(executor, ClusterExecutor):
+        return max(1, sum(executor.client.nthreads().values()))
+    return os.cpu_count() or 1
 
 
 # --------------------------------------------------------------------------- executors

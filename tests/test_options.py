@@ -97,6 +97,12 @@ BAD = [
     (["progress", *PROG_ARGS, "--level", "2"], "--level"),
     (["grade", CLASS, "--rubric", CLASS / "rubric.toml", "--jobs", "0"], "--jobs"),
     (["grade", CLASS, "--rubric", CLASS / "rubric.toml", "--jobs", "1.5"], "--jobs"),
+    (["grade", CLASS, "--rubric", CLASS / "rubric.toml", "--scheduler", "10.0.0.5"],
+     "--scheduler"),
+    (["rates", CUV, PLATE, "--jobs", "0"], "--jobs"),
+    (["rates", CUV, PLATE, "--scheduler", "http://10.0.0.5:8786"], "--scheduler"),
+    (["rates", CUV, "--jobs", "2"], "--jobs"),
+    (["saturation", SAT, "--each", "plate"], "--each"),
     # accepted and then ignored before: now refused with the reason
     (["rates", CUV, "--plate", "384"], "--plate"),
     (["rates", CUV, "--katal"], "--katal"),
@@ -486,6 +492,7 @@ def test_grade_options_are_used(tmp_path):
 # --------------------------------------------------------------------------- coverage
 
 #: Where each option of each command is shown to be used (or refused); shared parts once.
+#: --jobs, --scheduler (rates, grade) and --each (saturation): tests/test_batch.py.
 USED = {
     "shared": {"--time-unit", "--signal", "--i0", "--sheet", "--format", "--out", "--report",
                "--plots/--no-plots"},
@@ -494,11 +501,11 @@ USED = {
                      "--well-volume", "--plate", "--total-volume", "--sample-volume", "--protein",
                      "--dilution", "--window", "--min-points", "--blank", "--direction",
                      "--linear-limit", "--noisy-limit", "--katal", "--calibrate",
-                     "--curve/--no-curve", "--slope-from"},
+                     "--curve/--no-curve", "--slope-from", "--jobs", "--scheduler"},
     "SaturationOptions": {"--conc", "--rate", "--inhibitor", "--sd", "--model", "--ci", "--level",
                           "--weighting", "--fix", "--enzyme", "--conc-unit", "--rate-unit",
                           "--inhibitor-unit", "--mode", "--substrate", "--km", "--resamples",
-                          "--resample", "--seed", "--select"},
+                          "--resample", "--seed", "--select", "--each"},
     "RatelawOptions": {"--level", "--fix", "--trace", "--epsilon", "--chromophore",
                        "--epsilon-product", "--pathlength", "--c0", "--order", "--a0", "--b0",
                        "--ci", "--expect", "--guggenheim", "--excess"},
@@ -509,7 +516,7 @@ USED = {
     "ProgressOptions": {"--s0", "--s0-column", "--layout", "--epsilon", "--chromophore",
                         "--pathlength", "--species", "--product-inhibition", "--selwyn",
                         "--trace", "--ci", "--level"},
-    "GradeOptions": {"--rubric", "--jobs", "--format", "--out"},
+    "GradeOptions": {"--rubric", "--jobs", "--scheduler", "--format", "--out"},
 }
 REFUSED = {"CompletionOptions": {"--c0", "--epsilon", "--epsilon-product", "--chromophore",
                                  "--pathlength"}}

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import UsageError
+from ..errors import RateabsError, UsageError
 from ..options import SaturationOptions
 from ..output import document, render_table, rows_to_csv
 from . import View, deliver
@@ -44,6 +44,18 @@ def _table(o: SaturationOptions):
     df = _select_rows(df, o.select)
     df.attrs["source"] = o.file
     return df
+
+
+def _without_empty_columns(df, named):
+    """The table without columns that hold no value in any row (a many-plate rates table has
+    every column, e.g. an empty inhibitor_uM), unless an option names them."""
+    empty = [c for c in df.columns if c not in named
+             and df[c].astype(str).str.strip().isin(["", "nan", "None"]).all()]
+    if not empty:
+        return df
+    out = df.drop(columns=empty)
+    out.attrs = dict(df.attrs)
+    return out
 
 
 def _bent_warning(df) -> list[str]:
@@ -94,11 +106,17 @@ def _text(a, data, results, level: float) -> str:
 
 
 def compute_saturation(o: SaturationOptions) -> View:
-    """The ``saturation`` command's results."""
+    """The ``saturation`` command's results (one result per group with ``--each``)."""
+    df = _table(o)
+    return each_group(o, df) if o.each else fit_table(o, df)
+
+
+def fit_table(o: SaturationOptions, df) -> View:
+    """The fits of one table of rates: the whole file, or one group of ``--each``."""
     from ..output import flatten_params
     from ..saturation import analyse, results_json, table_data
 
-    df = _table(o)
+    df = _without_empty_columns(df, (o.conc, o.rate, o.inhibitor, o.sd))
     data = table_data(df, conc=o.conc, rate=o.rate, inhibitor=o.inhibitor, sd=o.sd,
                       conc_unit=o.conc_unit, rate_unit=o.rate_unit, inhib_unit=o.inhibitor_unit,
                       need_inhibitor=o.model == "ic50")
@@ -117,6 +135,9 @@ def compute_saturation(o: SaturationOptions) -> View:
 def run_saturation(o: SaturationOptions, emit) -> View:
     """The ``saturation`` command."""
     view = compute_saturation(o)
+    if o.each:
+        deliver(o, emit, view, "saturation", lambda folder: group_plots(view, folder))
+        return view
     a = view.analysis
 
     def plot(folder):
@@ -129,3 +150,84 @@ def run_saturation(o: SaturationOptions, emit) -> View:
 
     deliver(o, emit, view, "saturation", plot)
     return view
+
+
+# --------------------------------------------------------------------------- --each
+
+
+def _groups(df, column: str) -> tuple[list[tuple[str, object]], int]:
+    """The table's groups by ``column`` in order of first appearance, and the rows without a
+    value there (left out)."""
+    if column not in df.columns:
+        raise UsageError(f"--each {column}: the table has no column {column!r}",
+                         f"use one of {', '.join(map(str, df.columns))}")
+    keys = df[column].astype(str).str.strip()
+    keys = keys.where(~df[column].isna(), "")
+    groups = [(k, _keep_rows(df, (keys == k).to_numpy())) for k in dict.fromkeys(keys) if k]
+    return groups, int((keys == "").sum())
+
+
+def _group_result(o: SaturationOptions, name: str, df) -> tuple[dict, list[str], object]:
+    """One group's result (its chosen model, or why it failed), its warnings and analysis."""
+    try:
+        view = fit_table(o, df)
+    except RateabsError as exc:
+        return ({"group": name, "model": None, "params": {}, "chosen": False,
+                 "status": "failed", "error": exc.one_line()}, [exc.one_line()], None)
+    chosen = next(r for r in view.doc["results"] if r.get("chosen"))
+    return ({"group": name, "n_points": view.doc["settings"]["n_points"], **chosen},
+            view.doc["warnings"], view.analysis)
+
+
+def each_group(o: SaturationOptions, df) -> View:
+    """``--each COLUMN``: every group of rows fitted on its own; a group that cannot be fitted
+    costs that group only (its result says why; the command exits with
+    :data:`rateabs.errors.SOME_FAILED`)."""
+    from ..output import flatten_params
+
+    groups, unnamed = _groups(df, o.each)
+    results, warnings, fits = [], [], {}
+    if unnamed:
+        warnings.append(f"{unnamed} row(s) have no {o.each}: left out")
+    for name, rows in groups:
+        result, said, analysis = _group_result(o, name, rows)
+        results.append(result)
+        warnings += [f"{o.each} {name}: {w}" for w in said]
+        if analysis is not None:
+            fits[name] = analysis
+    settings = {"model": o.model, "ci": o.ci, "level": o.level, "weighting": o.weighting,
+                "fixed": o.fix, "each": o.each, "groups": len(groups),
+                "failed": sum(r["status"] == "failed" for r in results),
+                "selected": [f"{c}={v}" for c, v in o.select]}
+    if o.ci == "bootstrap":
+        b = o.bootstrap()
+        settings.update(resamples=b["n_boot"], resample=b["resample"], seed=b["seed"])
+    doc = document("saturation", [o.file], settings, results, warnings)
+    flat = [flatten_params({k: r.get(k) for k in ("group", "model", "n_points", "aicc",
+                                                  "status", "error", "params")})
+            for r in results]
+    cols = list(dict.fromkeys(k for f in flat for k in f))
+    return View(doc, _each_text(results, o.each), rows_to_csv(flat, cols), fits)
+
+
+def _each_text(results: list[dict], column: str) -> str:
+    from ..fitting import fmt_pm
+
+    rows = []
+    for r in results:
+        params = "; ".join(f"{k} = {fmt_pm(p['value'], p['se'], unit=p.get('unit') or '')}"
+                           for k, p in r["params"].items() if p.get("value") is not None)
+        rows.append({"group": r["group"], "model": r["model"] or "-",
+                     "n": r.get("n_points"), "params": params or r.get("error") or "-"})
+    return render_table(rows, [("group", column), ("model", "model"), ("n", "n"),
+                               ("params", "parameters (value ± SE)")],
+                        title=f"one fit per {column}")
+
+
+def group_plots(view: View, folder: Path) -> list[Path]:
+    """One saturation plot per fitted group of ``--each``."""
+    from ..output import safe_filename
+    from ..plots import saturation_fit
+
+    return [saturation_fit(a, folder / f"saturation_fit_{safe_filename(name, 40)}.png",
+                           title=str(name)) for name, a in view.analysis.items()]
