@@ -293,7 +293,7 @@ def forecast_curve(r: FitResult, order: str, target: float, t_now: float, level:
     else:
         fc.t_target = map_param(rate, _time_to(order, target), "t_target", "s",
                                 decreasing=True)
-        if "drift" not in r.params:
+        if "drift" not in r.params and fc.t_target.value > t_now:       # still ahead
             fc.drift_for_one_se = drift_sensitivity(r, order, fc.t_target, _time_to(order, target))
     return fc
 
@@ -432,11 +432,12 @@ def _envelope(params: list, main: Param, n: int) -> Param:
 
 
 def _charge_conversion(r: FitResult, charge: Charge, t_now: float) -> Param:
-    """|A(t_now) - A0| / ΔA_charge from the chosen fit (drift removed), with its interval."""
+    """|A(t_now) - A0| / ΔA_charge from the chosen fit at the last reading, with its interval:
+    the change the readings show, a fitted drift included (a drift term may stand for an
+    instrument's drift or for a shape the law misses; the readings are what was seen)."""
 
     def g(p):
-        vals = {k: (0.0 if k == "drift" else v) for k, v in p.items()}
-        a_now = float(r.func(np.array([t_now]), *vals.values())[0])
+        a_now = float(r.func(np.array([t_now]), *p.values())[0])
         return abs(a_now - p["A0"]) / charge.change(p["A0"])
 
     val, se = g(r.values()), delta_se(r, g)
@@ -482,10 +483,10 @@ def _verdict(law, forecasts, target, t_now, charge, level) -> Completion:
         flags.append("extrapolated")
         notes.append(f"the forecast reaches {extrapolation:.1f} times the observed span "
                      f"({t_now / 60:.3g} min): it assumes the rate law holds that far")
-    if basis_conv is not None and math.isfinite(basis_conv.value) and (
-            basis_conv.value < LOW_CONVERSION):
+    seen = conv if math.isfinite(conv.value) else basis_conv
+    if seen is not None and math.isfinite(seen.value) and seen.value < LOW_CONVERSION:
         flags.append("low_conversion")
-        notes.append(f"the run has covered {100 * basis_conv.value:.0f} % of the change: below "
+        notes.append(f"the run has covered {100 * seen.value:.0f} % of its change: below "
                      f"{100 * LOW_CONVERSION:g} % orders 1 and 2 are seldom told apart and the "
                      "end point is poorly known")
     if math.isfinite(end.ci_high) and end.ci_high < NEGATIVE_END:

@@ -266,8 +266,8 @@ def fit_quality(r: FitResult, noise: float) -> dict:
     ratio = r.sigma / noise if noise > 0 and math.isfinite(r.sigma) else float("nan")
     why = []
     if math.isfinite(r.runs_p) and r.runs_p < RUNS_ALPHA:
-        why.append(f"the residuals run in long stretches of one sign (runs test p = "
-                   f"{fmt_p(r.runs_p)})")
+        why.append(f"the residuals run in long stretches of one sign (runs test "
+                   f"{p_is(r.runs_p)})")
     if r.n >= LACK_OF_FIT_MIN_N and math.isfinite(ratio) and ratio > LACK_OF_FIT:
         why.append(f"the residual SD is {ratio:.2g} times the readings' noise")
     return {"fits": not why, "runs_test_p": r.runs_p, "sigma_over_noise": ratio,
@@ -457,9 +457,15 @@ def _explain(law: RateLawResult) -> None:
     """A note on the drift term when one was fitted."""
     if law.drift is not None:
         d = law.drift
-        law.notes.append(f"a linear baseline drift of {fmt_pm(d.value * 60, d.se * 60)} AU/min "
-                         "was fitted with the rate law (F-test against no drift, p = "
-                         f"{fmt_p(law.drift_test['p']) if law.drift_test else '-'})")
+        test = f"; F-test against no drift: {p_is(law.drift_test['p'])}" if law.drift_test else ""
+        law.notes.append(f"a linear baseline drift of {fmt_pm(d.value * 6e4, d.se * 6e4)} "
+                         f"mAU/min was fitted with the rate law{test}")
+
+
+def p_is(p: float) -> str:
+    """'p = 0.003' or 'p < 1e-16' for a sentence."""
+    text = fmt_p(p)
+    return f"p {text}" if text.startswith("<") else f"p = {text}"
 
 
 #: Flag words of ``ratelaw`` results and what each means.
