@@ -95,6 +95,7 @@ BAD = [
     (["completion", PROBE, "--target", "-5%"], "--target"),
     (["completion", PROBE, "--end-absorbance", "nan"], "--end-absorbance"),
     (["completion", PROBE, "--drift", "maybe"], "--drift"),
+    (["completion", PROBE, "--c0", "0 uM", "--epsilon", "1e4"], "--c0"),
     (["completion", PROBE, "--target", "nan"], "--target"),
     (["completion", PROBE, "--follow", "0", "--max-updates", "1"], "--follow"),
     (["completion", PROBE, "--follow", "1", "--max-updates", "0"], "--max-updates"),

@@ -128,6 +128,8 @@ def completion_plot(c, ts, path):
                     ls="-" if f.model == c.model else "--",
                     label=f"order {f.model} forecast (AICc weight {f.weight:.2f})")
             _target_marks(ax, c, f, r, PALETTE[1 + n % 6], horizon)
+        if c.charge is not None:
+            _charge_marks(ax, c)
         ax.axvline(c.t_now / 60, color=GRID, lw=1)
         ax.set_xlabel("time (min)")
         ax.set_ylabel("absorbance (AU)")
@@ -142,14 +144,27 @@ def completion_plot(c, ts, path):
         return save(fig, path)
 
 
+def _charge_marks(ax, c) -> None:
+    """The absorbance of the full charge and of the target share of it."""
+    r = c.law.fits[c.model]
+    a0 = r.value("A0")
+    sign = np.sign(r.value("Ainf") - a0) if "Ainf" in r.params else np.sign(r.value("k"))
+    full = c.charge.change(a0)
+    for share, ls, what in ((1.0, "-.", "full charge"),
+                            (c.target, "--", f"{100 * c.target:g} % of the charge")):
+        level = a0 + sign * share * full
+        ax.axhline(level, color=INK, ls=ls, lw=1, label=f"{what} (A = {level:.3f} AU)")
+
+
 def _target_marks(ax, c, f, r, color, horizon) -> None:
     """The target level of one order's fit and its forecast time with the interval."""
     vals = r.values()
     if "Ainf" not in vals:
         return
-    a_target = vals["A0"] + (vals["Ainf"] - vals["A0"]) * c.target
-    ax.axhline(a_target, color=color, ls=":", lw=1,
-               label=f"{100 * c.target:g} % of order {f.model}'s change (A = {a_target:.3f} AU)")
+    if c.charge is None:
+        a_target = vals["A0"] + (vals["Ainf"] - vals["A0"]) * c.target
+        ax.axhline(a_target, color=color, ls=":", lw=1, label=f"{100 * c.target:g} % of order "
+                   f"{f.model}'s change (A = {a_target:.3f} AU)")
     tt = f.t_target
     if tt is None or not np.isfinite(tt.value) or tt.value > horizon:
         return
@@ -193,16 +208,22 @@ def pseudo_first_order_plot(series: dict, path):
         return save(fig, path)
 
 
-def arrhenius_plot(a, path):
-    """ln k vs 1/T with the fitted line and its confidence band; the Eyring view beside it."""
+def arrhenius_plot(a, path, predictions=()):
+    """ln k vs 1/T with the fitted line and its confidence band; the Eyring view beside it.
+    Predictions (``{"T_K", "k"}`` as the view makes them) are drawn with their intervals, the
+    line's band reaching out to them, so an extrapolation shows as one. Parameters sit in the
+    titles and legends below the axes."""
     from scipy import stats
 
     with house_style() as plt:
-        fig, axes = plt.subplots(1, 2, figsize=(10, 4), layout="constrained")
+        fig, axes = plt.subplots(1, 2, figsize=(10, 4.6), layout="constrained")
         x = 1000.0 / a.T
+        px = np.array([1000.0 / pr["T_K"] for pr in predictions])
+        lo, hi = min(x.min(), *px) if px.size else x.min(), max(x.max(), *px) if px.size else (
+            x.max())
         for ax, r, y, lab in ((axes[0], a.arrhenius, np.log(a.k), f"ln(k / ({a.k_unit}))"),
                               (axes[1], a.eyring, np.log(a.k / a.T), "ln((k/T) / (1/(s K)))")):
-            xs = np.linspace(x.min() * 0.98, x.max() * 1.02, 100)
+            xs = np.linspace(lo - 0.02 * (hi - lo), hi + 0.02 * (hi - lo), 100)
             v = r.values()
             fit_y = v["intercept"] + v["slope"] * xs / 1000
             G = np.vstack([np.ones_like(xs), xs / 1000]).T
@@ -216,12 +237,26 @@ def arrhenius_plot(a, path):
             else:
                 ax.plot(x, y, "o", ms=4, color=PALETTE[0], label="measured")
             ax.plot(xs, fit_y, color=PALETTE[1], label="fit")
+            if r is a.arrhenius and predictions:
+                _predictions(ax, predictions)
             ax.set_xlabel("1000 / T (1/K)")
             ax.set_ylabel(lab)
-            ax.legend(loc="best")
+            ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, fontsize=7.5)
         p = a.params
-        axes[0].set_title(f"Arrhenius: Ea = {p['Ea'].value:.1f} [{p['Ea'].ci_low:.1f}, "
-                          f"{p['Ea'].ci_high:.1f}] kJ/mol")
-        axes[1].set_title(f"Eyring: dH = {p['dH'].value:.1f} kJ/mol, dS = {p['dS'].value:.0f} "
-                          "J/(mol K)")
+        axes[0].set_title(f"Arrhenius: Ea = {fmt_pm(p['Ea'].value, p['Ea'].se)} kJ/mol\n"
+                          f"A = {fmt_pm(p['A'].value, p['A'].se)} {p['A'].unit}", fontsize=9.5)
+        axes[1].set_title(f"Eyring: ΔH‡ = {fmt_pm(p['dH'].value, p['dH'].se)} kJ/mol\n"
+                          f"ΔS‡ = {fmt_pm(p['dS'].value, p['dS'].se)} J/(mol K)", fontsize=9.5)
         return save(fig, path)
+
+
+def _predictions(ax, predictions) -> None:
+    """Predicted ln k with its interval; open markers, marked where extrapolated."""
+    for pr in predictions:
+        k = pr["k"]
+        xx = 1000.0 / pr["T_K"]
+        yy = np.log(k["value"])
+        err = [[yy - np.log(k["ci_low"])], [np.log(k["ci_high"]) - yy]]
+        what = "extrapolated" if pr.get("extrapolated") else "predicted"
+        ax.errorbar([xx], [yy], yerr=err, fmt="s", mfc="white", ms=5, color=PALETTE[3],
+                    label=f"{what} at {pr['T_K'] - 273.15:.0f} C")

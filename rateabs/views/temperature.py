@@ -98,6 +98,7 @@ def run_temperature(o: TemperatureOptions, emit) -> View:
     from ..plots.laws import arrhenius_plot
 
     view = compute_temperature(o)
+    preds = (view.doc["results"][-1].get("predictions") or []) if view.doc["results"] else []
     deliver(o, emit, view, "temperature", lambda folder: [
-        arrhenius_plot(view.analysis, folder / "temperature_arrhenius.png")])
+        arrhenius_plot(view.analysis, folder / "temperature_arrhenius.png", preds)])
     return view
