@@ -100,7 +100,7 @@ def one_run(item: tuple[str, int]) -> dict:
         gap = max(tt.ci_low - truth["t"], truth["t"] - tt.ci_high, 0.0)
         out["t_far"] = (not math.isfinite(truth["t"])) or (
             gap > 3 * tt.se if math.isfinite(tt.se) else gap > 0)
-        k = c.law.fits[c.model].params["k"]
+        k = c.k
         same = truth["order"] is not None and c.model.split("+")[0] == truth["order"]
         out["k_covered"] = bool(same and k.ci_low <= truth["k"] <= k.ci_high)
     return out

@@ -80,8 +80,6 @@ FLAGS = {
     "short_run": "the run covers less than one half-life",
     "drift_fitted": "a baseline drift was fitted: an instrument drift, or a reaction the law "
                     "does not quite describe; the forecast leans on the drift staying linear",
-    "drift_sensitive": "a baseline drift smaller than the noise over the run would move the "
-                       "forecast by more than its SE",
 }
 
 
@@ -169,6 +167,15 @@ class Completion:
     extrapolation: float | None = None
     model: str = ""
 
+    @property
+    def k(self) -> Param:
+        """The rate constant of the chosen order: for order 1 the forecast's own k (profile
+        interval, widened for an unseen drift where allowed), else the fit's k."""
+        main = next((f for f in self.forecasts if f.model == self.model), None)
+        if main is not None and main.order == "1" and main.rate is not None:
+            return main.rate
+        return self.law.fits.get(self.model, self.law.fit).params["k"]
+
     def to_dict(self) -> dict:
         """JSON result: ``trace``, ``conversion``, ``target``, ``t_target_s``, ``complete``."""
         no = Param("t_target", math.nan, math.nan, math.nan, math.nan, "no forecast", "s")
@@ -186,7 +193,7 @@ class Completion:
                 "complete": self.complete, "verdict": self.verdict, "rule": self.rule,
                 "end_absorbance": shown(self.end_absorbance),
                 "charge": self.charge.source if self.charge else None,
-                "k": shown(fit.params["k"]),
+                "k": shown(self.k),
                 "k_conc": shown(self.law.k_conc) if self.law.k_conc is not None and (
                     self.model == self.law.model) else None,
                 "drift_A_per_s": shown(fit.params["drift"]) if "drift" in fit.params else None,
@@ -276,9 +283,16 @@ def _end_check(ratio: Param) -> str:
 
 
 def forecast_curve(r: FitResult, order: str, target: float, t_now: float, level: float,
-                   charge: Charge | None) -> Forecast:
-    """Forecast under one fitted first- or second-order model (with or without drift)."""
+                   charge: Charge | None, allow_drift: bool = True) -> Forecast:
+    """Forecast under one fitted first- or second-order model (with or without drift).
+
+    With ``allow_drift`` and no drift term in the model, the rate's interval is widened for a
+    baseline drift the readings cannot show (:func:`drift_shift`)."""
     rate = rate_parameter(r, order, level)
+    shift = None
+    if allow_drift and "drift" not in r.params and math.isfinite(rate.ci_low):
+        shift = drift_shift(r, order)
+        rate = widened(rate, shift, r.dof, level)
     conv = map_param(rate, lambda th: 1 - float(_shape(order)(th, t_now)), "conversion", "")
     ratio = _ratio_to_charge(r, charge) if charge else None
     fc = Forecast(r.model, order, 0.0, rate, conv, None, end_vs_charge=ratio)
@@ -291,22 +305,26 @@ def forecast_curve(r: FitResult, order: str, target: float, t_now: float, level:
         fc.why = (f"the fitted end point is {100 * ratio.value:.0f} % of the charge, more change "
                   "than the charge can give")
     else:
-        fc.t_target = map_param(rate, _time_to(order, target), "t_target", "s",
-                                decreasing=True)
-        if "drift" not in r.params and fc.t_target.value > t_now:       # still ahead
-            fc.drift_for_one_se = drift_sensitivity(r, order, fc.t_target, _time_to(order, target))
+        time_of = _time_to(order, target)
+        fc.t_target = map_param(rate, time_of, "t_target", "s", decreasing=True)
+        th = rate.value
+        if shift and fc.t_target.value > t_now:                      # still ahead
+            moved = abs(time_of(th + shift) - time_of(max(th - shift, th / 2))) / 2
+            trial = r.sigma / max(float(np.ptp(r.x)), 1e-300)
+            fc.drift_for_one_se = float(trial * fc.t_target.se / moved) if moved > 0 else None
     return fc
 
 
-def drift_sensitivity(r: FitResult, order: str, t_target: Param, time_of) -> float | None:
-    """The baseline drift (AU/s) that would move the forecast by its own SE: the forecast of a
-    law without a drift term assumes a stable baseline, and at partial conversion a drift too
-    small to detect is taken up by the end point. Found by refitting the rate (variable
-    projection) after removing a trial drift of one noise SD over the run."""
+def drift_shift(r: FitResult, order: str) -> float:
+    """How far the rate parameter moves when a baseline drift of one noise SD over the run is
+    taken out of the readings (half the difference between the two signs).
+
+    At partial conversion a drift that small cannot be seen in the readings (its F-test has no
+    power: the end point takes it up), yet it moves a long forecast; completion widens the
+    rate's interval by it, adding it in quadrature, so that the forecast holds for a baseline
+    stable to within the noise over the run. The rate is refitted by variable projection."""
     from scipy.optimize import minimize_scalar
 
-    if not (math.isfinite(t_target.se) and t_target.se > 0):
-        return None
     t, w = r.x, r.weights
     shape = _shape(order)
     theta0 = rate_parameter_value(r, order)
@@ -323,8 +341,20 @@ def drift_sensitivity(r: FitResult, order: str, t_target: Param, time_of) -> flo
         return math.exp(minimize_scalar(rss, bounds=(u0 - 1, u0 + 1), method="bounded",
                                         options={"xatol": 1e-9}).x)
 
-    moved = abs(time_of(best_theta(r.y - trial * t)) - time_of(best_theta(r.y + trial * t))) / 2
-    return float(trial * t_target.se / moved) if moved > 0 else None
+    return abs(best_theta(r.y - trial * t) - best_theta(r.y + trial * t)) / 2
+
+
+def widened(rate: Param, shift: float, dof: int, level: float) -> Param:
+    """The rate with ``shift`` (an SE-like spread) added in quadrature to its SE and to each
+    side of its interval (t quantile of the fit's degrees of freedom); never below zero."""
+    if not shift > 0:
+        return rate
+    tq = float(stats.t.ppf(0.5 + level / 2, max(dof, 1)))
+    v = rate.value
+    lo = v - math.hypot(v - rate.ci_low, tq * shift)
+    hi = v + math.hypot(rate.ci_high - v, tq * shift) if math.isfinite(rate.ci_high) else math.inf
+    return Param(rate.name, v, math.hypot(rate.se, shift), max(lo, 0.0), hi,
+                 f"{rate.ci_method}, widened for a drift within the noise", rate.unit)
 
 
 def rate_parameter_value(r: FitResult, order: str) -> float:
@@ -379,7 +409,7 @@ def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "aut
         r = law.fits[m]
         o = m.split("+")[0]
         fc = (forecast_line(r, target, t_now, charge) if o == "0"
-              else forecast_curve(r, o, target, t_now, level, charge))
+              else forecast_curve(r, o, target, t_now, level, charge, drift == "auto"))
         fc.weight = float(weights.get(m, 1.0))
         forecasts.append(fc)
     notes = []
@@ -499,10 +529,9 @@ def _verdict(law, forecasts, target, t_now, charge, level) -> Completion:
     main = next(f for f in forecasts if f.model == chosen)
     if main.drift_for_one_se is not None:
         d = main.drift_for_one_se * 60e3
-        notes.append(f"the forecast assumes a stable baseline: a drift of {d:.2g} mAU/min "
-                     f"({d * t_now / 60:.2g} mAU over the run) would move it by its own SE")
-        if main.drift_for_one_se * np.ptp(r.x) < r.sigma:
-            flags.append("drift_sensitive")
+        notes.append(f"the forecast allows for a baseline stable to within the noise over the "
+                     f"run; a drift of {d:.2g} mAU/min ({d * t_now / 60:.2g} mAU over the run) "
+                     "would move it by its own SE")
     complete, verdict = _call(forecasts, flags, law.quality, target, c_conv)
     rule = (f"complete when the lower {100 * level:g} % bound of the conversion at the last "
             f"reading reaches the target ({target:g}) under every order that carries weight"
