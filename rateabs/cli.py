@@ -264,7 +264,7 @@ def completion(**values):
 
     o = opts.CompletionOptions.build(**values)
     if o.follow is not None:
-        follow_completion(o, click.echo, _emit)
+        follow_completion(o, click.echo, _emit, progress=lambda line: click.echo(line, err=True))
     else:
         run_completion(o, _emit)
 

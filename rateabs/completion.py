@@ -1,15 +1,35 @@
 """Reaction completion: conversion now, time to a target conversion, complete or not.
 
-The trace is fitted with an integrated rate law (first order unless told otherwise, see
-:mod:`rateabs.ratelaws`). Conversion is X(t) = (A(t) - A0) / (Ainf - A0) = 1 - f(t), so for first
-order X = 1 - exp(-k t) and the time to a target X* is t* = -ln(1 - X*) / k; for second order
-t* = X* / (k |A0 - Ainf| (1 - X*)). Both depend on k alone, a decreasing function, so the
-interval of t* is the profile-likelihood interval of k carried through that function (profile
-intervals are invariant under monotone maps; Bates & Watts 1988). ``benchmarks/completion_coverage.py``
-checks by simulation that the 95 % interval covers the true t* about 95 % of the time.
+The order is chosen as ``ratelaw`` chooses it (AICc over orders 0, 1 and 2, a linear baseline
+drift where the F-test supports it; :func:`rateabs.ratelaws.fit_trace`) unless the user fixes
+it. Every order within ΔAICc :data:`~rateabs.ratelaws.EVIDENCE_DELTA` of the best carries
+weight: each gets its own forecast, the headline interval spans them all, and the run is called
+complete only when it is complete under every one of them.
 
-Rule for ``complete``: the reaction is called complete when the lower confidence bound of the
-conversion at the last reading has reached the target.
+Conversion against the fitted end point is X(t) = 1 - f(t): first order X = 1 - exp(-k t),
+t* = -ln(1 - X*)/k; second order X = 1 - 1/(1 + q t) with q = k |A0 - Ainf| (1/s),
+t* = X*/(q (1 - X*)). Both depend on one rate parameter alone, for which the model is linear in
+every other parameter (A0, Ainf, drift), so its profile-likelihood interval is exact and cheap
+(:func:`rateabs.fitting.separable_profile`); t* and X are monotone in it, so their intervals
+are that interval mapped (profile intervals are invariant under monotone maps; Bates & Watts
+1988).
+
+With the charge (``c0`` with an epsilon and the pathlength, or an expected end absorbance) the
+conversion is also measured against the charge, |A(t) - A0| / |ΔA_charge|, and the fitted end
+point is checked against it: short of the charge by more than 3 SE and
+:data:`CHARGE_TOLERANCE` it is a stall (the reaction stops early: a dead catalyst, a lost
+reagent), beyond it a mismatch (epsilon, c0 or pathlength wrong, or a side reaction). A straight
+trace (order 0) has an end point only through the charge.
+
+Rule for ``complete``: the lower confidence bound of the conversion at the last reading has
+reached the target under every order that carries weight, against the charge as well when it
+is given; the fit passes the quality gate (:func:`rateabs.ratelaws.fit_quality`); and the fitted
+end point neither stalls short of the charge nor lies below zero absorbance.
+
+A forecast reaching beyond :data:`EXTRAPOLATION_LIMIT` times the observed span is flagged
+``extrapolated`` with its multiple; a run below :data:`LOW_CONVERSION` is flagged
+``low_conversion``: there the orders are seldom told apart (``benchmarks/completion_coverage.py``
+measures how seldom).
 
 A predicted end point is no process-safety assessment: runaway, sampling and mixing hazards
 follow the site's own rules.
@@ -18,16 +38,109 @@ follow the site's own rules.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import stats
 
-from .errors import AnalysisError, UsageError
-from .fitting import Param
-from .ratelaws import Photometry, RateLawResult, fit_trace, map_param
+from .errors import UsageError
+from .fitting import FitResult, Param, fd_step, fmt_pm, separable_profile
+from .ratelaws import Photometry, RateLawResult, fit_trace, identifiable, map_param, shown
 
 CAUTION = ("A predicted end point is no process-safety assessment: runaway, sampling and mixing "
            "hazards follow the site's own rules.")
+
+#: Observed conversion below which the run is flagged ``low_conversion``.
+LOW_CONVERSION = 0.5
+#: A forecast further than this multiple of the observed span (from the reaction's zero time to
+#: the last reading) is flagged ``extrapolated``.
+EXTRAPOLATION_LIMIT = 3.0
+#: The fitted end point agrees with the charge within 3 SE or this fraction of the charge,
+#: whichever is larger (epsilon, c0 and the pathlength carry a few per cent that users seldom
+#: state; common practice).
+CHARGE_TOLERANCE = 0.05
+#: A fitted end absorbance whose upper bound lies below this is impossible (AU).
+NEGATIVE_END = -0.01
+
+#: Flag words of a completion result and what each means ("this may be wrong because ...").
+FLAGS = {
+    "orders_not_told_apart": "more than one order carries weight: a forecast under each, the "
+                             "headline interval spans them",
+    "low_conversion": f"the run has covered less than {100 * LOW_CONVERSION:g} % of the change; "
+                      "orders are seldom told apart there",
+    "extrapolated": f"the forecast reaches beyond {EXTRAPOLATION_LIMIT:g} times the observed "
+                    "span",
+    "misfit": "the rate law does not describe the trace (fit-quality gate)",
+    "stall": "the fitted end point falls short of the charge",
+    "charge_mismatch": "the fitted end point lies beyond the charge",
+    "not_identifiable": "a parameter the forecast needs is not determined by the data",
+    "no_end_point": "a straight line (order 0) carries weight and the charge is not given",
+    "open_interval": "the data do not bound the rate away from zero: no upper time bound",
+    "end_below_zero": "the fitted end absorbance lies below zero, which is impossible",
+    "short_run": "the run covers less than one half-life",
+    "drift_fitted": "a baseline drift was fitted: an instrument drift, or a reaction the law "
+                    "does not quite describe; the forecast leans on the drift staying linear",
+}
+
+
+@dataclass(frozen=True)
+class Charge:
+    """The absorbance change the full charge gives: ``delta_A`` = |Δε| b c0, or an expected end
+    absorbance ``end_A`` (the change is then |end_A - A0|, with the fitted A0)."""
+
+    delta_A: float | None = None
+    end_A: float | None = None
+    source: str = ""
+
+    def change(self, a0: float) -> float:
+        """|ΔA| of the full charge for a trace starting at ``a0``."""
+        return self.delta_A if self.delta_A is not None else abs(self.end_A - a0)
+
+
+def charge_of(photometry: Photometry | None, end_absorbance: float | None,
+              rising: bool = True) -> Charge | None:
+    """The charge from c0 with an epsilon (and the pathlength), or from an end absorbance."""
+    ph = photometry or Photometry()
+    if end_absorbance is not None:
+        if ph.c0_M is not None:
+            raise UsageError("both an end absorbance and c0 give the charge",
+                             "give only one of --end-absorbance and --c0")
+        return Charge(end_A=float(end_absorbance), source=f"expected end absorbance "
+                      f"{end_absorbance:g} AU")
+    if ph.c0_M is None:
+        return None
+    deps = ph.delta_eps(rising)
+    if not deps:
+        raise UsageError("c0 gives the charge only with an epsilon",
+                         "give --epsilon (or --chromophore, --epsilon-product) with --c0")
+    da = deps * ph.pathlength_cm * ph.c0_M
+    return Charge(delta_A=da, source=f"c0 {ph.c0_M * 1e6:.4g} uM x |Δε| {deps:.5g} M^-1 cm^-1 "
+                  f"x {ph.pathlength_cm:g} cm = {da:.4g} AU")
+
+
+@dataclass
+class Forecast:
+    """The forecast under one model (an order, with or without drift)."""
+
+    model: str
+    order: str
+    weight: float
+    rate: Param | None
+    conversion: Param | None
+    t_target: Param | None
+    why: str = ""
+    end_vs_charge: Param | None = None
+    drift_for_one_se: float | None = None
+
+    def to_dict(self) -> dict:
+        """JSON form of one model's forecast."""
+        return {"model": self.model, "order": self.order, "aicc_weight": self.weight,
+                "drift_moving_it_one_se_A_per_s": self.drift_for_one_se,
+                "rate": shown(self.rate) if self.rate else None,
+                "conversion": shown(self.conversion) if self.conversion else None,
+                "t_target_s": shown(self.t_target) if self.t_target else None,
+                "end_over_charge": shown(self.end_vs_charge) if self.end_vs_charge else None,
+                "no_forecast_because": self.why or None}
 
 
 @dataclass
@@ -38,63 +151,444 @@ class Completion:
     target: float
     t_now: float
     conversion: Param
-    t_target: Param
+    t_target: Param | None
     complete: bool
     rule: str
     end_absorbance: Param
     law: RateLawResult
+    forecasts: list = field(default_factory=list)
+    basis: str = "fitted end point"
+    charge: Charge | None = None
+    charge_conversion: Param | None = None
+    verdict: str = ""
+    why_no_forecast: str = ""
+    flags: list = field(default_factory=list)
+    notes: list = field(default_factory=list)
+    extrapolation: float | None = None
+    model: str = ""
+
+    @property
+    def k(self) -> Param:
+        """The rate constant of the chosen order: for order 1 the forecast's own k (profile
+        interval, widened for an unseen drift where allowed), else the fit's k."""
+        main = next((f for f in self.forecasts if f.model == self.model), None)
+        if main is not None and main.order == "1" and main.rate is not None:
+            return main.rate
+        return self.law.fits.get(self.model, self.law.fit).params["k"]
 
     def to_dict(self) -> dict:
         """JSON result: ``trace``, ``conversion``, ``target``, ``t_target_s``, ``complete``."""
-        return {"trace": self.trace, "order": self.law.order, "target": self.target,
-                "t_now_s": self.t_now, "conversion": self.conversion.to_dict(),
-                "t_target_s": self.t_target.to_dict(),
-                "t_remaining_s": max(self.t_target.value - self.t_now, 0.0),
-                "complete": self.complete, "rule": self.rule,
-                "end_absorbance": self.end_absorbance.to_dict(),
-                "k": self.law.fit.params["k"].to_dict(),
-                "half_life_s": self.law.half_life.to_dict() if self.law.half_life else None,
-                "notes": self.law.notes + list(self.law.fit.notes)}
+        no = Param("t_target", math.nan, math.nan, math.nan, math.nan, "no forecast", "s")
+        tt = self.t_target or no
+        fit = self.law.fits.get(self.model, self.law.fit)
+        return {"trace": self.trace, "order": self.model.split("+")[0], "model": self.model,
+                "target": self.target, "t_now_s": self.t_now,
+                "conversion": shown(self.conversion), "conversion_basis": self.basis,
+                "conversion_of_charge": shown(self.charge_conversion)
+                if self.charge_conversion else None,
+                "t_target_s": shown(tt),
+                "no_forecast_because": self.why_no_forecast or None,
+                "t_remaining_s": max(tt.value - self.t_now, 0.0) if self.t_target else None,
+                "extrapolation_multiple": self.extrapolation,
+                "complete": self.complete, "verdict": self.verdict, "rule": self.rule,
+                "end_absorbance": shown(self.end_absorbance),
+                "charge": self.charge.source if self.charge else None,
+                "k": shown(self.k),
+                "k_conc": shown(self.law.k_conc) if self.law.k_conc is not None and (
+                    self.model == self.law.model) else None,
+                "drift_A_per_s": shown(fit.params["drift"]) if "drift" in fit.params else None,
+                "half_life_s": shown(self.law.half_life) if self.law.half_life else None,
+                "forecasts": [f.to_dict() for f in self.forecasts],
+                "orders_not_told_apart": [f.model for f in self.forecasts]
+                if len(self.forecasts) > 1 else [],
+                "quality": self.law.quality, "flags": list(self.flags),
+                "notes": list(self.notes)}
 
 
-def _times(order: str, k: float, d_a: float, x: float) -> float:
-    if k <= 0:
-        return float("inf")
+# --------------------------------------------------------------------------- one model
+
+
+def _shape(order: str):
+    """f(theta, t), the fraction of the change still to come, for the rate parameter theta."""
     if order == "1":
-        return -math.log(1 - x) / k
-    return x / (k * d_a * (1 - x))
+        return lambda th, t: np.exp(-th * t)
+    return lambda th, t: 1.0 / (1.0 + th * t)
 
 
-def _conversion(order: str, k: float, d_a: float, t: float) -> float:
-    k = max(k, 0.0)
+def _time_to(order: str, x: float):
+    """t*(theta) for target conversion x of the fitted change."""
     if order == "1":
-        return 1 - math.exp(-k * t)
-    return 1 - 1 / (1 + k * d_a * t)
+        return lambda th: -math.log(1 - x) / th
+    return lambda th: x / ((1 - x) * th)
 
 
-def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "1",
-           level: float = 0.95, photometry: Photometry | None = None, fix=None) -> Completion:
-    """Fit the trace and forecast the time to ``target`` conversion (a fraction, 0-1)."""
+def delta_se(r: FitResult, g) -> float:
+    """SE of g(values) by the delta method with the fit's covariance (central differences)."""
+    if r.cov is None:
+        return float("nan")
+    vals = r.values()
+    grad = []
+    for nm in r.free:
+        h = float(fd_step(vals[nm], 1e-9))
+        up, dn = dict(vals), dict(vals)
+        up[nm] += h
+        dn[nm] -= h
+        grad.append((g(up) - g(dn)) / (2 * h))
+    grad = np.array(grad)
+    return float(math.sqrt(max(grad @ r.cov @ grad, 0.0)))
+
+
+def rate_parameter(r: FitResult, order: str, level: float) -> Param:
+    """The rate parameter the forecast depends on, with its exact profile interval: k (1/s) for
+    order 1, q = k |A0 - Ainf| (1/s, the initial first-order rate) for order 2."""
+    theta = rate_parameter_value(r, order)
+    name = "k" if order == "1" else "q"
+    if r.params["k"].fixed:
+        return Param(name, theta, 0.0, theta, theta, "fixed", "1/s", fixed=True)
+    se = delta_se(r, lambda p: p["k"] if order == "1" else p["k"] * abs(p["A0"] - p["Ainf"]))
+    shape = _shape(order)
+    t, w = r.x, r.weights
+    cols = {"A0": lambda f: f, "Ainf": lambda f: 1 - f, "drift": lambda f: t}
+    free = [nm for nm in cols if nm in r.params and not r.params[nm].fixed]
+    y = r.y - sum(r.params[nm].value * cols[nm](shape(theta, t)) for nm in cols
+                  if nm in r.params and r.params[nm].fixed)
+    if not free or not theta > 0:
+        return Param(name, theta, se, math.nan, math.nan, "not identifiable", "1/s")
+    lo, hi = separable_profile(lambda th: np.column_stack([cols[nm](shape(th, t))
+                                                           for nm in free]),
+                               y, theta, r.dof, level, w)
+    return Param(name, theta, se, lo, hi, "profile", "1/s")
+
+
+def _ratio_to_charge(r: FitResult, charge: Charge) -> Param:
+    """|Ainf - A0| / ΔA_charge with its SE and t interval."""
+    v = r.values()
+
+    def g(p):
+        return abs(p["Ainf"] - p["A0"]) / charge.change(p["A0"])
+
+    val, se = g(v), delta_se(r, g)
+    tq = stats.t.ppf(0.5 + r.level / 2, max(r.dof, 1))
+    return Param("end_over_charge", val, se, val - tq * se, val + tq * se, "asymptotic", "")
+
+
+def _end_check(ratio: Param) -> str:
+    """"agrees", "stall" or "mismatch" for the fitted end over the charge."""
+    room = max(3 * ratio.se if math.isfinite(ratio.se) else 0.0, CHARGE_TOLERANCE)
+    if ratio.value < 1 - room:
+        return "stall"
+    if ratio.value > 1 + room:
+        return "mismatch"
+    return "agrees"
+
+
+def forecast_curve(r: FitResult, order: str, target: float, t_now: float, level: float,
+                   charge: Charge | None, allow_drift: bool = True) -> Forecast:
+    """Forecast under one fitted first- or second-order model (with or without drift).
+
+    With ``allow_drift`` and no drift term in the model, the rate's interval is widened for a
+    baseline drift the readings cannot show (:func:`drift_shift`)."""
+    rate = rate_parameter(r, order, level)
+    shift = None
+    if allow_drift and "drift" not in r.params and math.isfinite(rate.ci_low):
+        shift = drift_shift(r, order)
+        rate = widened(rate, shift, r.dof, level)
+    conv = map_param(rate, lambda th: 1 - float(_shape(order)(th, t_now)), "conversion", "")
+    ratio = _ratio_to_charge(r, charge) if charge else None
+    fc = Forecast(r.model, order, 0.0, rate, conv, None, end_vs_charge=ratio)
+    if not identifiable(r.params["k"]) or not math.isfinite(rate.ci_low):
+        fc.why = "the rate constant is not identifiable from these data"
+    elif ratio is not None and _end_check(ratio) == "stall":
+        fc.why = (f"the fitted end point is {100 * ratio.value:.0f} % of the charge: "
+                  f"{100 * target:g} % of the charge is never reached")
+    elif ratio is not None and _end_check(ratio) == "mismatch":
+        fc.why = (f"the fitted end point is {100 * ratio.value:.0f} % of the charge, more change "
+                  "than the charge can give")
+    else:
+        time_of = _time_to(order, target)
+        fc.t_target = map_param(rate, time_of, "t_target", "s", decreasing=True)
+        th = rate.value
+        if shift and fc.t_target.value > t_now:                      # still ahead
+            moved = abs(time_of(th + shift) - time_of(max(th - shift, th / 2))) / 2
+            trial = r.sigma / max(float(np.ptp(r.x)), 1e-300)
+            fc.drift_for_one_se = float(trial * fc.t_target.se / moved) if moved > 0 else None
+    return fc
+
+
+def drift_shift(r: FitResult, order: str) -> float:
+    """How far the rate parameter moves when a baseline drift of one noise SD over the run is
+    taken out of the readings (half the difference between the two signs).
+
+    At partial conversion a drift that small cannot be seen in the readings (its F-test has no
+    power: the end point takes it up), yet it moves a long forecast; completion widens the
+    rate's interval by it, adding it in quadrature, so that the forecast holds for a baseline
+    stable to within the noise over the run. The rate is refitted by variable projection."""
+    from scipy.optimize import minimize_scalar
+
+    t, w = r.x, r.weights
+    shape = _shape(order)
+    theta0 = rate_parameter_value(r, order)
+    trial = r.sigma / max(float(np.ptp(t)), 1e-300)
+
+    def best_theta(y):
+        def rss(u):
+            f = shape(math.exp(u), t)
+            B = np.column_stack([f, 1 - f]) * w[:, None]
+            c = np.linalg.lstsq(B, y * w, rcond=None)[0]
+            res = y * w - B @ c
+            return float(res @ res)
+        u0 = math.log(theta0)
+        return math.exp(minimize_scalar(rss, bounds=(u0 - 1, u0 + 1), method="bounded",
+                                        options={"xatol": 1e-9}).x)
+
+    return abs(best_theta(r.y - trial * t) - best_theta(r.y + trial * t)) / 2
+
+
+def widened(rate: Param, shift: float, dof: int, level: float) -> Param:
+    """The rate with ``shift`` (an SE-like spread) added in quadrature to its SE and to each
+    side of its interval (t quantile of the fit's degrees of freedom); never below zero."""
+    if not shift > 0:
+        return rate
+    tq = float(stats.t.ppf(0.5 + level / 2, max(dof, 1)))
+    v = rate.value
+    lo = v - math.hypot(v - rate.ci_low, tq * shift)
+    hi = v + math.hypot(rate.ci_high - v, tq * shift) if math.isfinite(rate.ci_high) else math.inf
+    return Param(rate.name, v, math.hypot(rate.se, shift), max(lo, 0.0), hi,
+                 f"{rate.ci_method}, widened for a drift within the noise", rate.unit)
+
+
+def rate_parameter_value(r: FitResult, order: str) -> float:
+    """k (order 1) or q = k |A0 - Ainf| (order 2) at the fit."""
+    v = r.values()
+    return v["k"] if order == "1" else v["k"] * abs(v["A0"] - v["Ainf"])
+
+
+def forecast_line(r: FitResult, target: float, t_now: float, charge: Charge | None) -> Forecast:
+    """Forecast under zero order: only through the charge (a straight line has no end)."""
+    k = r.params["k"]
+    if charge is None:
+        return Forecast(r.model, "0", 0.0, None, None, None,
+                        "a straight line has no end point of its own: give the charge "
+                        "(--c0 with --epsilon, or --end-absorbance)")
+    da = charge.change(r.value("A0"))
+    lo, hi = sorted((abs(k.ci_low), abs(k.ci_high)))
+    if k.ci_low <= 0 <= k.ci_high:
+        lo = 0.0
+    rate = Param("k", abs(k.value), k.se, lo, hi, k.ci_method, "AU/s")
+    conv = map_param(rate, lambda x: x * t_now / da, "conversion", "")
+    tt = map_param(rate, lambda x: target * da / x, "t_target", "s", decreasing=True)
+    return Forecast(r.model, "0", 0.0, rate, conv, tt)
+
+
+# --------------------------------------------------------------------------- the trace
+
+
+def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "auto",
+           level: float = 0.95, photometry: Photometry | None = None, fix=None,
+           end_absorbance: float | None = None, drift: str = "auto") -> Completion:
+    """Fit the trace and forecast the time to ``target`` conversion (a fraction, 0-1).
+
+    ``order`` is ``auto`` (chosen by evidence, as ``ratelaw`` does), "0", "1" or "2";
+    ``photometry`` with ``c0_M`` and an epsilon, or ``end_absorbance``, gives the charge.
+    """
     if not 0 < target < 1:
         raise UsageError(f"target {target:g} must lie between 0 and 1 (as a fraction)",
                          "give --target as a percentage, e.g. 99")
-    if order not in ("1", "2", "auto"):
-        raise UsageError("completion forecasts need a first- or second-order law",
-                         "use --order 1, 2 or auto")
-    law = fit_trace(t, y, name, order=order, photometry=photometry, fix=fix, ci="profile",
-                    level=level)
-    if law.order not in ("1", "2"):
-        raise AnalysisError(f"trace {name} follows order {law.order}, which has no end point to "
-                            "forecast from the trace alone", "use --order 1 or 2")
-    r = law.fit
-    k = r.params["k"]
-    d_a = abs(r.value("A0") - r.value("Ainf"))
+    if order not in ("0", "1", "2", "auto"):
+        raise UsageError("completion forecasts need order 0, 1, 2 or auto",
+                         "use --order auto, 0, 1 or 2")
+    law = fit_trace(t, y, name, order=order, photometry=photometry, fix=fix, ci="asymptotic",
+                    level=level, drift=drift)
+    rising = law.fit.value("A0") < law.fit.predict(np.max(t))
+    charge = charge_of(photometry, end_absorbance, bool(rising))
     t_now = float(np.max(t))
-    conv = map_param(k, lambda kk: _conversion(law.order, kk, d_a, t_now), "conversion", "")
-    t_t = replace(map_param(k, lambda kk: _times(law.order, kk, d_a, target), "t_target", "s",
-                            decreasing=True), ci_method=f"{k.ci_method} interval of k mapped")
-    complete = bool(conv.ci_low >= target)
+    weights = {row["model"]: row["weight"] for row in law.comparison.rows} if (
+        law.comparison) else {law.model: 1.0}
+    forecasts = []
+    for m in law.plausible:
+        r = law.fits[m]
+        o = m.split("+")[0]
+        fc = (forecast_line(r, target, t_now, charge) if o == "0"
+              else forecast_curve(r, o, target, t_now, level, charge, drift == "auto"))
+        fc.weight = float(weights.get(m, 1.0))
+        forecasts.append(fc)
+    notes = []
+    if charge is not None:
+        forecasts, notes = _consistent_with_charge(forecasts, law.model)
+    c = _verdict(law, forecasts, target, t_now, charge, level)
+    c.notes[:0] = notes
+    return c
+
+
+def _consistent_with_charge(forecasts: list, chosen: str) -> tuple[list, list]:
+    """With the charge, the models whose end point disagrees with it are set aside when another
+    model that carries weight agrees (the charge is evidence too); the chosen model stays first
+    among what is left."""
+    def agrees(f):
+        return f.end_vs_charge is None or _end_check(f.end_vs_charge) == "agrees"
+
+    keep = [f for f in forecasts if agrees(f)]
+    if not keep or len(keep) == len(forecasts):
+        return forecasts, []
+    dropped = [f for f in forecasts if not agrees(f)]
+    notes = [f"order {f.model} set aside: its fitted end point is "
+             f"{100 * f.end_vs_charge.value:.0f} % of the charge" for f in dropped]
+    return keep, notes
+
+
+def _headline(forecasts: list, chosen: str) -> tuple[Param | None, Param | None, str]:
+    """The headline time and conversion: the chosen model's values with intervals spanning
+    every model that carries weight; no time when any of them has no forecast."""
+    main = next(f for f in forecasts if f.model == chosen)
+    missing = [f for f in forecasts if f.t_target is None]
+    conv = None
+    if all(f.conversion is not None for f in forecasts):
+        conv = _envelope([f.conversion for f in forecasts], main.conversion, len(forecasts))
+    if missing:
+        why = "; ".join(f"order {f.model}: {f.why}" for f in missing)
+        return None, conv, why
+    tt = _envelope([f.t_target for f in forecasts], main.t_target, len(forecasts))
+    return tt, conv, ""
+
+
+def _envelope(params: list, main: Param, n: int) -> Param:
+    """``main`` with the interval spanning every parameter's interval."""
+    if n == 1:
+        return main
+    lo = min(p.ci_low for p in params)
+    hi = max(p.ci_high for p in params)
+    return Param(main.name, main.value, main.se, lo, hi,
+                 f"envelope of {n} orders' {main.ci_method} intervals", main.unit)
+
+
+def _charge_conversion(r: FitResult, charge: Charge, t_now: float) -> Param:
+    """|A(t_now) - A0| / ΔA_charge from the chosen fit at the last reading, with its interval:
+    the change the readings show, a fitted drift included (a drift term may stand for an
+    instrument's drift or for a shape the law misses; the readings are what was seen)."""
+
+    def g(p):
+        a_now = float(r.func(np.array([t_now]), *p.values())[0])
+        return abs(a_now - p["A0"]) / charge.change(p["A0"])
+
+    val, se = g(r.values()), delta_se(r, g)
+    tq = stats.t.ppf(0.5 + r.level / 2, max(r.dof, 1))
+    return Param("conversion", val, se, val - tq * se, val + tq * se, "asymptotic", "")
+
+
+def _end_absorbance(r: FitResult, charge: Charge | None) -> Param:
+    """The predicted end absorbance: Ainf (drift excluded), or A0 plus the charge for order 0."""
+    if "Ainf" in r.params:
+        return r.params["Ainf"]
+    a0 = r.params["A0"]
+    if charge is None:
+        return Param("Ainf", math.nan, math.nan, math.nan, math.nan, "no end point", "AU")
+    sign = 1.0 if r.value("k") > 0 else -1.0
+    end = a0.value + sign * charge.change(a0.value)
+    return Param("Ainf", end, a0.se, end - (a0.value - a0.ci_low), end + (a0.ci_high - a0.value),
+                 "A0's interval plus the charge", "AU")
+
+
+def _verdict(law, forecasts, target, t_now, charge, level) -> Completion:
+    """Headline numbers, flags and the complete / not complete call."""
+    chosen = law.model if any(f.model == law.model for f in forecasts) else forecasts[0].model
+    r = law.fits[chosen]
+    tt, conv, why = _headline(forecasts, chosen)
+    flags = [f for f in law.flags if f in FLAGS]
+    notes = list(law.notes) + list(law.fit.notes)
+    c_conv = _charge_conversion(r, charge, t_now) if charge and conv is not None else None
+    basis_conv = c_conv or conv
+    if conv is None:
+        conv = Param("conversion", math.nan, math.nan, math.nan, math.nan, "no end point", "")
+    end = _end_absorbance(r, charge)
+    _charge_flags(next(f for f in forecasts if f.model == chosen), r, flags, notes, charge)
+    if any(f.order == "0" and f.t_target is None for f in forecasts):
+        flags.append("no_end_point")
+    if any(f.t_target is None and "not identifiable" in f.why for f in forecasts) and (
+            "not_identifiable" not in flags):
+        flags.append("not_identifiable")
+    if tt is not None and not math.isfinite(tt.ci_high):
+        flags.append("open_interval")
+    extrapolation = tt.value / t_now if tt is not None and t_now > 0 else None
+    if extrapolation is not None and extrapolation > EXTRAPOLATION_LIMIT:
+        flags.append("extrapolated")
+        notes.append(f"the forecast reaches {extrapolation:.1f} times the observed span "
+                     f"({t_now / 60:.3g} min): it assumes the rate law holds that far")
+    seen = conv if math.isfinite(conv.value) else basis_conv
+    if seen is not None and math.isfinite(seen.value) and seen.value < LOW_CONVERSION:
+        flags.append("low_conversion")
+        notes.append(f"the run has covered {100 * seen.value:.0f} % of its change: below "
+                     f"{100 * LOW_CONVERSION:g} % orders 1 and 2 are seldom told apart and the "
+                     "end point is poorly known")
+    if math.isfinite(end.ci_high) and end.ci_high < NEGATIVE_END:
+        flags.append("end_below_zero")
+        notes.append(f"the fitted end absorbance {fmt_pm(end.value, end.se)} AU lies below zero, "
+                     "which no absorbance can: the forecast is not physical")
+    if charge is None:
+        notes.append("conversion is measured against the fitted end point: without the charge "
+                     "(--c0 with --epsilon, or --end-absorbance) a stall looks like completion")
+    main = next(f for f in forecasts if f.model == chosen)
+    if main.drift_for_one_se is not None:
+        d = main.drift_for_one_se * 60e3
+        notes.append(f"the forecast allows for a baseline stable to within the noise over the "
+                     f"run; a drift of {d:.2g} mAU/min ({d * t_now / 60:.2g} mAU over the run) "
+                     "would move it by its own SE")
+    complete, verdict = _call(forecasts, flags, law.quality, target, c_conv)
     rule = (f"complete when the lower {100 * level:g} % bound of the conversion at the last "
-            f"reading ({conv.ci_low:.4f}) reaches the target ({target:g})")
-    ainf = r.params["Ainf"]
-    return Completion(name, target, t_now, conv, t_t, complete, rule, ainf, law)
+            f"reading reaches the target ({target:g}) under every order that carries weight"
+            + (", against the charge too," if charge else ",")
+            + " the fit passes the quality gate and the end point is neither short of the charge "
+              "nor below zero")
+    return Completion(law.trace, target, t_now, basis_conv or conv, tt, complete, rule, end, law,
+                      forecasts, "charge" if c_conv else "fitted end point", charge, c_conv,
+                      verdict, why, list(dict.fromkeys(flags)), notes, extrapolation, chosen)
+
+
+def _charge_flags(main: Forecast, r: FitResult, flags, notes, charge) -> None:
+    """Stall or mismatch of the chosen model's end point against the charge, both numbers."""
+    if charge is None:
+        return
+    ratio = main.end_vs_charge
+    if ratio is None:
+        if main.conversion is not None and main.conversion.ci_low > 1 + CHARGE_TOLERANCE:
+            flags.append("charge_mismatch")
+            notes.append(f"the change so far is {100 * main.conversion.value:.0f} % of the "
+                         "charge: check epsilon, c0 and the pathlength")
+        return
+    fitted = abs(r.value("Ainf") - r.value("A0"))
+    state = _end_check(ratio)
+    both = (f"fitted change {fitted:.4g} AU, charge {charge.change(r.value('A0')):.4g} AU "
+            f"({charge.source})")
+    if state == "stall":
+        flags.append("stall")
+        notes.append(f"STALL: the fitted end point is {100 * ratio.value:.0f} % "
+                     f"[{100 * ratio.ci_low:.0f}, {100 * ratio.ci_high:.0f}] % of the charge; "
+                     f"{both}. The reaction stops short (dead catalyst, lost reagent?), or "
+                     "epsilon, c0 or the pathlength is wrong")
+    elif state == "mismatch":
+        flags.append("charge_mismatch")
+        notes.append(f"the fitted end point is {100 * ratio.value:.0f} % of the charge; {both}: "
+                     "check epsilon, c0 and the pathlength, or a side reaction")
+
+
+def _call(forecasts, flags, quality: dict, target, c_conv) -> tuple[bool, str]:
+    """The complete / not complete call and the verdict in words."""
+    blockers = [f for f in ("misfit", "stall", "charge_mismatch", "end_below_zero",
+                            "not_identifiable", "no_end_point") if f in flags]
+    if blockers:
+        reasons = {"misfit": "the rate law does not fit the trace",
+                   "stall": "the reaction stalls short of the charge",
+                   "charge_mismatch": "the change does not match the charge",
+                   "end_below_zero": "the end point is not physical",
+                   "not_identifiable": "the data do not determine the rate",
+                   "no_end_point": "the trace shows no end point yet"}
+        if "misfit" in blockers and quality["reason"]:
+            reasons["misfit"] += f" ({quality['reason']})"
+        return False, "NOT COMPLETE: " + "; ".join(reasons[b] for b in blockers)
+    lows = [f.conversion.ci_low for f in forecasts if f.conversion is not None]
+    if c_conv is not None:
+        lows.append(c_conv.ci_low)
+    if lows and min(lows) >= target:
+        return True, ("COMPLETE" if c_conv is not None else "END POINT REACHED: the reaction "
+                      "has stopped changing; without the charge this cannot say the charge is "
+                      "consumed (a stall looks the same)")
+    return False, "NOT YET COMPLETE"

@@ -31,6 +31,10 @@ class Model:
     units: dict = field(default_factory=dict)   # name -> unit kind
     equation: str = ""
     source: str = ""
+    #: Parameters measured from an arbitrary zero (absorbance levels, a baseline drift): their
+    #: size relative to their SE means nothing, so the engine's "poorly determined" rule (SE
+    #: over 10 times the value) passes them by.
+    offsets: tuple = ()
 
     def __call__(self, x, *params):
         return self.func(x, *params)
@@ -290,9 +294,8 @@ def _guess_order0(t, y):
     return {"A0": float(a), "k": float(b)}
 
 
-def guess_decay(t, y, order):
-    """Starting A0, Ainf and k of a first- or second-order approach to an end value."""
-    t, y = np.asarray(t, float), np.asarray(y, float)
+def _rough_decay(t, y, order):
+    """Rough A0, Ainf, k from the head, the tail and the time to half the change."""
     n = y.size
     tail = y[-max(2, n // 10):]
     head = y[:max(2, n // 10)]
@@ -311,15 +314,59 @@ def guess_decay(t, y, order):
     return {"A0": a0, "Ainf": ainf, "k": float(k)}
 
 
+def decay_shape(order: int, theta, t):
+    """The fraction of the change still to come: exp(-theta t) (first order) or
+    1/(1 + theta t) (second order, theta = k |A0 - Ainf|, the initial first-order rate)."""
+    return np.exp(-theta * t) if order == 1 else 1.0 / (1.0 + theta * t)
+
+
+def guess_decay(t, y, order, drift: bool = False):
+    """Starting A0, Ainf and k (and a drift) of a first- or second-order approach to an end value.
+
+    For a given rate the law is linear in A0, Ainf (and the drift), so the best of them follow
+    by least squares and the residual depends on the rate alone (variable projection, Golub &
+    Pereyra 1973); the rate is found by a bounded one-dimensional search on its logarithm,
+    from 1/1000 to 1000 times the rough rate of the time to half the change. The start is then
+    the optimum (or close to it) whatever the conversion, which keeps the solver from wandering.
+    """
+    from scipy.optimize import minimize_scalar
+
+    t, y = np.asarray(t, float), np.asarray(y, float)
+    rough = _rough_decay(t, y, order)
+    theta0 = rough["k"] * (abs(rough["A0"] - rough["Ainf"]) if order == 2 else 1.0)
+    if not (np.isfinite(theta0) and theta0 > 0) or y.size < 4:
+        return {**rough, "drift": 0.0} if drift else rough
+
+    def solve(u):
+        f = decay_shape(order, np.exp(u), t)
+        cols = [f, 1 - f] + ([t] if drift else [])
+        B = np.column_stack(cols)
+        c, *_ = np.linalg.lstsq(B, y, rcond=None)
+        r = y - B @ c
+        return float(r @ r), c
+
+    u0 = np.log(theta0)
+    best = minimize_scalar(lambda u: solve(u)[0], bounds=(u0 - 7, u0 + 7), method="bounded",
+                           options={"xatol": 1e-6})
+    _, c = solve(best.x)
+    a0, ainf = float(c[0]), float(c[1])
+    theta = float(np.exp(best.x))
+    k = theta / abs(a0 - ainf) if order == 2 and a0 != ainf else theta
+    out = {"A0": a0, "Ainf": ainf, "k": k}
+    return {**out, "drift": float(c[2])} if drift else out
+
+
 RATE_LAWS = {
-    "0": Model("0", order0, ("A0", "k"), _guess_order0, {}, {}, {"A0": "A", "k": "A/s"},
-               "A = A0 + k t", "Atkins, Physical Chemistry"),
+    "0": Model("0", order0, ("A0", "k"), _guess_order0, {}, {}, {"A0": "AU", "k": "AU/s"},
+               "A = A0 + k t", "Atkins, Physical Chemistry", ("A0",)),
     "1": Model("1", order1, ("A0", "Ainf", "k"), lambda t, y: guess_decay(t, y, 1),
-               {"k": 0.0}, {}, {"A0": "A", "Ainf": "A", "k": "1/s"},
-               "A = Ainf + (A0 - Ainf) exp(-k t)", "Atkins, Physical Chemistry"),
+               {"k": 0.0}, {}, {"A0": "AU", "Ainf": "AU", "k": "1/s"},
+               "A = Ainf + (A0 - Ainf) exp(-k t)", "Atkins, Physical Chemistry",
+               ("A0", "Ainf")),
     "2": Model("2", order2, ("A0", "Ainf", "k"), lambda t, y: guess_decay(t, y, 2),
-               {"k": 0.0}, {}, {"A0": "A", "Ainf": "A", "k": "1/(A s)"},
-               "A = Ainf + (A0 - Ainf) / (1 + k |A0 - Ainf| t)", "Atkins, Physical Chemistry"),
+               {"k": 0.0}, {}, {"A0": "AU", "Ainf": "AU", "k": "1/(AU s)"},
+               "A = Ainf + (A0 - Ainf) / (1 + k |A0 - Ainf| t)", "Atkins, Physical Chemistry",
+               ("A0", "Ainf")),
 }
 
 LINE = Model("line", line, ("intercept", "slope"),

@@ -39,7 +39,6 @@ from .rules import (
     Pair,
     Pairs,
     Quantity,
-    Refused,
     Rule,
     Text,
     Window,
@@ -559,6 +558,79 @@ class SaturationOptions(Checked):
 # --------------------------------------------------------------------------- rate laws
 
 ORDERS = ("0", "1", "2", "auto", "mixed")
+#: A linear baseline drift with the rate law: auto (fitted where an F-test supports it), on, off.
+DRIFT_CHOICES = ("auto", "off", "on")
+
+
+class Percent(float):
+    """A conversion already read as a percentage (so reading it again changes nothing)."""
+
+
+@dataclass(frozen=True)
+class TargetConversion(Rule):
+    """A target conversion, one rule for every way of writing it.
+
+    * with a per-cent sign it is a percentage: ``99%``, ``0.5%``;
+    * a bare number above 1 is a percentage: ``99``, ``99.5``;
+    * a bare number below 1 is a fraction: ``0.99`` is 99 %;
+    * a bare ``1`` could be either (1 % or 100 %) and is refused, as are 0 % and 100 % (a first-
+      or second-order law reaches 100 % only at infinite time) and anything outside them.
+
+    >>> TargetConversion().check("0.99", "--target"), TargetConversion().check("99%", "--target")
+    (99.0, 99.0)
+    """
+
+    example: str = "99"
+
+    def describe(self) -> str:
+        """What the option takes."""
+        return ("a conversion above 0 and below 100 %: '99' or '99%' (per cent), or '0.99' "
+                "(a fraction below 1)")
+
+    def check(self, value, option: str) -> Percent:
+        """The target in per cent."""
+        if isinstance(value, Percent):
+            return value
+        text = value.strip() if isinstance(value, str) else value
+        percent = isinstance(text, str) and text.endswith("%")
+        x = Number(example=self.example).read(text[:-1] if percent else text, option)
+        if not percent:
+            if x == 1:
+                raise UsageError(f"{option} 1 could mean 1 % or 100 %",
+                                 f"write {option} 1% or, for a fraction, a number below 1 such "
+                                 "as 0.99")
+            x = x * 100 if x < 1 else x
+        if x >= 100:
+            raise self._bad(option, value, "is not reached in finite time by a first- or "
+                            "second-order law (100 % only at infinite time)")
+        if x <= 0:
+            raise self._bad(option, value, "is out of range")
+        return Percent(x)
+
+
+def _drift():
+    return option("--drift", OneOf(DRIFT_CHOICES, "on"), "Linear baseline drift with the rate "
+                  "law: auto (fitted where an F-test supports it), on or off.", "auto")
+
+
+def _photometry_values(o) -> dict:
+    """epsilon, epsilon_product, pathlength_cm and c0_M of a rate-law command's settings."""
+    from .photometry import resolve_epsilon
+
+    return {"epsilon": resolve_epsilon(o.epsilon, o.chromophore),
+            "epsilon_product": o.epsilon_product,
+            "pathlength_cm": 1.0 if o.pathlength is None else o.pathlength, "c0_M": o.c0}
+
+
+def _check_photometry(o) -> None:
+    """One epsilon source; a pathlength only with an epsilon."""
+    if o.epsilon is not None and o.chromophore is not None:
+        raise UsageError("both --epsilon and --chromophore given", "give only one of them")
+    has_eps = any(getattr(o, n) is not None for n in ("epsilon", "chromophore",
+                                                      "epsilon_product"))
+    if o.pathlength is not None and not has_eps:
+        raise refusal("--pathlength", "converts absorbance with an epsilon only",
+                      "give --epsilon, --epsilon-product or --chromophore too")
 
 
 def _conc(flag: str, help: str, example: str = "'50 uM'"):
@@ -596,13 +668,13 @@ class RatelawOptions(Checked):
         "this interval (a bare number is s; 0: half the run).")
     excess: str | None = option("--excess", Text("file name", "excess.csv"), "CSV trace,conc of "
                                 "a pseudo-first-order series: k2 from kobs vs [excess].")
+    drift: str = _drift()
     output: OutputOptions = part(OutputOptions)
 
     def check_together(self) -> None:
         """Mixed order needs both concentrations; nothing given is left unused."""
         _check_sheet(self.file, self.reader)
-        if self.epsilon is not None and self.chromophore is not None:
-            raise UsageError("both --epsilon and --chromophore given", "give only one of them")
+        _check_photometry(self)
         mixed = [n for n in ("a0", "b0") if getattr(self, n) is not None]
         if self.order == "mixed" and len(mixed) < 2:
             raise UsageError("--order mixed needs --a0 and --b0", "e.g. --a0 '50 uM' --b0 "
@@ -610,28 +682,14 @@ class RatelawOptions(Checked):
         if mixed and self.order != "mixed":
             raise refusal(f"--{mixed[0]}", "is used with --order mixed only",
                           "add --order mixed, or leave it out")
-        has_eps = any(getattr(self, n) is not None for n in
-                      ("epsilon", "chromophore", "epsilon_product"))
-        if self.pathlength is not None and not has_eps:
-            raise refusal("--pathlength", "converts absorbance with an epsilon only",
-                          "give --epsilon, --epsilon-product or --chromophore too")
+        if self.drift == "on" and self.order in ("0", "mixed"):
+            raise refusal("--drift on", f"applies to orders 1 and 2; order {self.order} has no "
+                          "drift term (a drift is inseparable from a zero-order slope)",
+                          "leave --drift out")
 
     def photometry_values(self) -> dict:
         """epsilon, epsilon_product, pathlength_cm and c0_M for :class:`rateabs.ratelaws.Photometry`."""
-        from .photometry import resolve_epsilon
-
-        return {"epsilon": resolve_epsilon(self.epsilon, self.chromophore),
-                "epsilon_product": self.epsilon_product,
-                "pathlength_cm": 1.0 if self.pathlength is None else self.pathlength,
-                "c0_M": self.c0}
-
-
-_NOT_FOR_COMPLETION = ("completion computes conversion from the absorbance alone for now",
-                       "leave it out (ratelaw reports k and c0 in concentration units)")
-
-
-def _refused(flag: str):
-    return option(flag, Refused(*_NOT_FOR_COMPLETION), "Not used by completion.", hidden=True)
+        return _photometry_values(self)
 
 
 @dataclass(frozen=True)
@@ -643,11 +701,12 @@ class CompletionOptions(Checked):
     level: float = _level()
     fix: dict = _fix("Ainf=0.05")
     trace: tuple = _traces()
-    target: float = option("--target", Number(0, 100, lo_open=True, hi_open=True,
-                                              unit="percent conversion", example="99"),
-                           "Target conversion in percent.", 99.0)
-    order: str = option("--order", OneOf(("1", "2", "auto"), "2"), "Rate-law order of the "
-                        "forecast.", "1")
+    target: float = option("--target", TargetConversion(), "Target conversion: '99' or '99%' "
+                           "is per cent, a bare number below 1 ('0.99') a fraction; a bare 1 "
+                           "is refused as ambiguous.", Percent(99.0))
+    order: str = option("--order", OneOf(("0", "1", "2", "auto"), "2"), "Rate-law order of the "
+                        "forecast (auto: chosen by evidence, as ratelaw does).", "auto")
+    drift: str = _drift()
     follow: float | None = option("--follow", Quantity("time", "s", Number(0, math.inf,
                                                                            lo_open=True),
                                                        "30"),
@@ -656,18 +715,43 @@ class CompletionOptions(Checked):
     max_updates: int | None = option("--max-updates", Number(1, math.inf, integer=True,
                                                              example="60"),
                                      "With --follow: stop after N reads.")
-    c0: None = _refused("--c0")
-    epsilon: None = _refused("--epsilon")
-    epsilon_product: None = _refused("--epsilon-product")
-    chromophore: None = _refused("--chromophore")
-    pathlength: None = _refused("--pathlength")
+    c0: float | None = _conc("--c0", "The charge: initial reactant concentration, e.g. '50 uM' "
+                             "(a bare number is uM; with an epsilon). Conversion is then measured "
+                             "against it and a stall is told from completion.")
+    epsilon: float | None = _epsilon("Molar absorptivity of the reactant (or of the one "
+                                     "absorbing species): with --c0 the charge; alone, k in "
+                                     "concentration units.")
+    epsilon_product: float | None = option("--epsilon-product", EPSILON, "Molar absorptivity of "
+                                           "the product when both species absorb.")
+    chromophore: str | None = _chromophore()
+    pathlength: float | None = _pathlength("Pathlength, e.g. '1 cm' (default 1 cm; with an "
+                                           "epsilon).")
+    end_absorbance: float | None = option("--end-absorbance", Number(
+        -1, 10, unit="absorbance, AU", example="0.06"), "The charge as the absorbance expected "
+        "at full conversion (instead of --c0 with an epsilon).")
     output: OutputOptions = part(OutputOptions)
 
     def check_together(self) -> None:
-        """--max-updates only with --follow."""
+        """--max-updates only with --follow; the charge from one source, c0 with an epsilon."""
         _check_sheet(self.file, self.reader)
+        _check_photometry(self)
         if self.max_updates is not None and self.follow is None:
             raise refusal("--max-updates", "limits --follow only", "add --follow SECONDS")
+        has_eps = any(getattr(self, n) is not None for n in ("epsilon", "chromophore",
+                                                             "epsilon_product"))
+        if self.c0 is not None and not has_eps:
+            raise refusal("--c0", "gives the charge as an absorbance change only with an epsilon",
+                          "give --epsilon (or --chromophore) too, or --end-absorbance instead")
+        if self.c0 is not None and self.end_absorbance is not None:
+            raise UsageError("both --c0 and --end-absorbance give the charge",
+                             "give only one of them")
+        if self.drift == "on" and self.order == "0":
+            raise refusal("--drift on", "applies to orders 1 and 2; a drift is inseparable "
+                          "from a zero-order slope", "leave --drift out")
+
+    def photometry_values(self) -> dict:
+        """epsilon, epsilon_product, pathlength_cm and c0_M for :class:`rateabs.ratelaws.Photometry`."""
+        return _photometry_values(self)
 
 
 # --------------------------------------------------------------------------- temperature

@@ -21,9 +21,9 @@ import numpy as np
 from scipy import stats
 
 from .errors import AnalysisError, UsageError
-from .fitting import Comparison, FitResult, Param, compare, fd_step, fit
+from .fitting import Comparison, FitResult, Param, compare, f_test, fd_step, fit, fmt_p, fmt_pm
 from .models import LINE, RATE_LAWS, Model, guess_decay, mixed2
-from .options import ORDERS
+from .options import DRIFT_CHOICES, ORDERS
 from .slopes import noise_sigma
 from .traces import Grid
 
@@ -53,9 +53,35 @@ class Photometry:
         return self.epsilon if self.epsilon is not None else self.epsilon_product
 
 
+#: Beyond this ΔAICc an order has essentially no support (Burnham & Anderson 2002, Model
+#: Selection and Multimodel Inference, 2nd edn, section 2.6: Δ > 10 "essentially none"); orders
+#: within it carry weight and are shown as not told apart.
+EVIDENCE_DELTA = 10.0
+#: A linear baseline drift is fitted when the extra-sum-of-squares F-test supports it at this
+#: level (the nested-model rule of :func:`rateabs.fitting.compare`).
+DRIFT_ALPHA = 0.05
+#: Fewest readings for a drift term (four parameters and room for the test).
+DRIFT_MIN_READINGS = 12
+#: Fit-quality gate: the model does not describe the trace when the runs test of the residual
+#: signs gives p below RUNS_ALPHA, or the residual SD exceeds the noise SD of the readings
+#: (from their second differences, as in :func:`rateabs.slopes.noise_sigma`) by LACK_OF_FIT
+#: times with at least LACK_OF_FIT_MIN_N readings. Their false-alarm rates on correct models are
+#: measured in benchmarks/completion_coverage.py.
+RUNS_ALPHA = 1e-3
+LACK_OF_FIT = 1.5
+LACK_OF_FIT_MIN_N = 20
+
+
 @dataclass
 class RateLawResult:
-    """One trace's rate-law analysis."""
+    """One trace's rate-law analysis.
+
+    ``order`` is the rate law's order ("0", "1", "2", "mixed"); ``model`` adds "+drift" when a
+    linear baseline drift was fitted with it. ``plausible`` lists the models (one per order,
+    with or without drift) whose ΔAICc is within :data:`EVIDENCE_DELTA` of the best: more than
+    one means the data do not tell the orders apart. ``quality`` is the fit-quality gate
+    (:func:`fit_quality`); ``flags`` are short words, ``notes`` sentences for a person.
+    """
 
     trace: str
     order: str
@@ -66,42 +92,144 @@ class RateLawResult:
     comparison: Comparison | None = None
     fits: dict = field(default_factory=dict)
     notes: list = field(default_factory=list)
+    model: str = ""
+    plausible: tuple = ()
+    quality: dict = field(default_factory=dict)
+    drift_test: dict | None = None
+    flags: list = field(default_factory=list)
+
+    @property
+    def drift(self) -> Param | None:
+        """The fitted baseline drift (AU/s), or None without a drift term."""
+        return self.fit.params.get("drift")
 
     def to_dict(self) -> dict:
         """JSON result with the fixed fields ``trace``, ``order``, ``params``, ``half_life_s``."""
-        d = {"trace": self.trace, "order": self.order,
-             "params": {k: p.to_dict() for k, p in self.fit.params.items()},
-             "half_life_s": self.half_life.to_dict() if self.half_life else None,
-             "k_conc": self.k_conc.to_dict() if self.k_conc else None,
+        d = {"trace": self.trace, "order": self.order, "model": self.model or self.order,
+             "params": {k: shown(p) for k, p in self.fit.params.items()},
+             "half_life_s": shown(self.half_life) if self.half_life else None,
+             "k_conc": shown(self.k_conc) if self.k_conc else None,
              "c0_M": self.c0.to_dict() if self.c0 else None,
              "aicc": self.fit.aicc, "n": self.fit.n, "sigma_A": self.fit.sigma,
-             "runs_test_p": self.fit.runs_p, "notes": self.notes + list(self.fit.notes)}
+             "runs_test_p": self.fit.runs_p, "quality": self.quality,
+             "orders_not_told_apart": list(self.plausible) if len(self.plausible) > 1 else [],
+             "drift_test": self.drift_test, "flags": list(self.flags),
+             "notes": self.notes + list(self.fit.notes)}
         if self.comparison is not None:
             d["evidence"] = self.comparison.to_dict()
         return d
 
 
+#: Absorbance levels and the drift: measured from an arbitrary zero, so no relative-SE rule.
+OFFSETS = ("A0", "Ainf", "drift")
+
+
+def identifiable(p: Param | None) -> bool:
+    """Whether a parameter is determined by the data: a fixed value, or a finite value and SE
+    with (for a rate, time or other scale; not for an absorbance level, :data:`OFFSETS`) the SE
+    at most 10 times the value, the engine's own limit."""
+    if p is None:
+        return False
+    if p.fixed:
+        return True
+    if not (math.isfinite(p.value) and math.isfinite(p.se)):
+        return False
+    return p.name in OFFSETS or not (p.value != 0 and p.se / abs(p.value) > 10)
+
+
+def shown(p: Param) -> dict:
+    """The JSON parameter object, with value, SE and interval null and ``ci_method`` "not
+    identifiable" when the data do not determine it (never a bare number without its
+    uncertainty); reversed or non-finite bounds become null."""
+    d = p.to_dict()
+    if not identifiable(p):
+        d.update(value=None, se=None, ci_low=None, ci_high=None, ci_method="not identifiable")
+    elif d["ci_low"] is not None and d["ci_high"] is not None and d["ci_low"] > d["ci_high"]:
+        d.update(ci_low=None, ci_high=None)
+    return d
+
+
 def map_param(p: Param, fn, name: str, unit: str, decreasing: bool = False) -> Param:
-    """A parameter through a monotone function; the interval maps exactly, SE by the delta rule."""
+    """A parameter through a monotone function; the interval maps exactly, SE by the delta rule.
+
+    A decreasing map of a positive parameter whose interval reaches 0 has an open upper bound;
+    the bounds always come out in order."""
     v = fn(p.value)
     h = float(fd_step(p.value, 1e-300))
-    deriv = (fn(p.value + h) - fn(p.value - h)) / (2 * h)
-    with np.errstate(divide="ignore"):
+    with np.errstate(all="ignore"):
+        deriv = (fn(p.value + h) - fn(p.value - h)) / (2 * h)
         lo, hi = fn(p.ci_low), fn(p.ci_high)
     if decreasing:
         lo, hi = hi, lo
         if p.ci_low <= 0:           # a positive parameter not bounded away from zero
             hi = float("inf")
-    return Param(name, float(v), float(abs(deriv) * p.se), float(lo), float(hi), p.ci_method, unit,
-                 p.fixed)
+    lo, hi = float(lo), float(hi)
+    if lo > hi:
+        lo, hi = hi, lo
+    return Param(name, float(v), float(abs(deriv) * p.se), lo, hi, p.ci_method, unit, p.fixed)
 
 
-def _check_trace(t, y, name, expect):
+def magnitude(p: Param, name: str, unit: str) -> Param:
+    """|p| with its interval: the interval of |x| over [low, high] (from 0 when it spans 0)."""
+    lo, hi = sorted((abs(p.ci_low), abs(p.ci_high)))
+    if p.ci_low <= 0 <= p.ci_high:
+        lo = 0.0
+    return Param(name, abs(p.value), p.se, lo, hi, p.ci_method, unit, p.fixed)
+
+
+def with_drift(model: Model) -> Model:
+    """``model`` plus a linear baseline drift, A(t) + drift t (drift in absorbance per second)."""
+    base = model.func
+
+    def func(t, *p):
+        return base(t, *p[:-1]) + p[-1] * t
+
+    order = {"1": 1, "2": 2}.get(model.name)
+    guess = ((lambda t, y: guess_decay(t, y, order, drift=True)) if order
+             else (lambda t, y: {**model.guess(t, y), "drift": 0.0}))
+    return Model(f"{model.name}+drift", func, model.params + ("drift",), guess, model.lower,
+                 model.upper,
+                 {**model.units, "drift": "AU/s"}, f"{model.equation} + drift t", model.source,
+                 model.offsets + ("drift",))
+
+
+def overshoot(t, y, sigma: float) -> tuple[str, float] | None:
+    """("rises then falls" or "falls then rises", time of the turn) when the trace passes
+    through an interior extreme beyond both of its ends, by more than 6 noise SDs of a moving
+    mean and more than a fifth of its excursion; else None. No single integrated rate law
+    (a monotone approach to an end value) can describe such a trace."""
+    m = max(3, y.size // 15)
+    if y.size < 3 * m:
+        return None
+    sm = np.convolve(y, np.ones(m) / m, mode="valid")
+    ts = np.convolve(t, np.ones(m) / m, mode="valid")
+    start, end = sm[0], sm[-1]
+    limit = 6 * sigma / math.sqrt(m)
+    for kind, i in (("rises then falls", int(np.argmax(sm))), ("falls then rises",
+                                                               int(np.argmin(sm)))):
+        peak = sm[i]
+        beyond = min(abs(peak - start), abs(peak - end))
+        excursion = max(abs(peak - start), abs(peak - end))
+        inside = (peak - max(start, end) > 0) if kind == "rises then falls" else (
+            min(start, end) - peak > 0)
+        if inside and beyond > limit and beyond > 0.2 * excursion:
+            return kind, float(ts[i])
+    return None
+
+
+def _check_trace(t, y, name, expect) -> tuple[bool, float]:
+    """Whether the trace rises, and its noise SD; refuses traces no rate law can describe."""
     if t.size < 4:
         raise AnalysisError(f"trace {name} has only {t.size} usable readings",
                             "a rate law needs at least 4 (more is better)")
     g = Grid([name], t[None], y[None], np.ones((1, t.size), bool))
     sigma = float(noise_sigma(g)[0])
+    turn = overshoot(t, y, sigma)
+    if turn is not None:
+        raise AnalysisError(f"trace {name} {turn[0]} (turning near {turn[1] / 60:.3g} min): no "
+                            "single integrated rate law describes it",
+                            "fit the part before or after the turn (an intermediate that forms "
+                            "and decays needs a consecutive-reaction model)")
     change = float(np.mean(y[-3:]) - np.mean(y[:3]))
     if abs(change) < 3 * sigma:
         raise AnalysisError(f"trace {name} is flat: its change ({change:+.3g} A) is within the "
@@ -113,7 +241,7 @@ def _check_trace(t, y, name, expect):
     if expect == "rise" and not rising:
         raise AnalysisError(f"trace {name} falls ({change:+.3g} A) but a rise was expected",
                             "check the trace, or drop --expect rise")
-    return rising
+    return rising, sigma
 
 
 def mixed_model(a0: float, b0: float) -> Model:
@@ -128,87 +256,229 @@ def mixed_model(a0: float, b0: float) -> Model:
         return {"A0": g["A0"], "Ainf": g["Ainf"], "k": g["k"] / min(a0, b0)}
 
     return Model("mixed", partial(mixed2, a0=a0, b0=b0), ("A0", "Ainf", "k"), guess,
-                 {"k": 0.0}, {}, {"A0": "A", "Ainf": "A", "k": "L/(mol s)"},
-                 "A + B -> P, [A]0 != [B]0", "Atkins, Physical Chemistry")
+                 {"k": 0.0}, {}, {"A0": "AU", "Ainf": "AU", "k": "L/(mol s)"},
+                 "A + B -> P, [A]0 != [B]0", "Atkins, Physical Chemistry", ("A0", "Ainf"))
+
+
+def fit_quality(r: FitResult, noise: float) -> dict:
+    """The fit-quality gate: runs test of the residual signs and the residual SD against the
+    readings' own noise SD. ``fits`` is False with the ``reason`` when either fails."""
+    ratio = r.sigma / noise if noise > 0 and math.isfinite(r.sigma) else float("nan")
+    why = []
+    if math.isfinite(r.runs_p) and r.runs_p < RUNS_ALPHA:
+        why.append(f"the residuals run in long stretches of one sign (runs test "
+                   f"{p_is(r.runs_p)})")
+    if r.n >= LACK_OF_FIT_MIN_N and math.isfinite(ratio) and ratio > LACK_OF_FIT:
+        why.append(f"the residual SD is {ratio:.2g} times the readings' noise")
+    return {"fits": not why, "runs_test_p": r.runs_p, "sigma_over_noise": ratio,
+            "noise_A": noise, "reason": "; ".join(why)}
+
+
+def _fit_candidates(t, y, orders, fix, drift, level, a0, b0):
+    """Every candidate model fitted with asymptotic intervals: {name: FitResult}, {name: why}."""
+    fits, failed = {}, {}
+    if drift == "on" and t.size < DRIFT_MIN_READINGS:
+        raise AnalysisError(f"a drift term needs at least {DRIFT_MIN_READINGS} readings; this "
+                            f"trace has {t.size}", "leave --drift at auto or off")
+    for o in orders:
+        base = mixed_model(a0 or 0, b0 or 0) if o == "mixed" else RATE_LAWS[o]
+        can_drift = o not in ("0", "mixed") and t.size >= DRIFT_MIN_READINGS
+        models = [] if drift == "on" and can_drift else [base]
+        if drift != "off" and can_drift:
+            models.append(with_drift(base))
+        for model in models:
+            f = {k: v for k, v in (fix or {}).items() if k in model.params}
+            try:
+                fits[model.name] = fit(model, t, y, fix=f, ci="asymptotic", level=level)
+            except AnalysisError as exc:
+                failed[model.name] = exc.problem
+    return fits, failed
+
+
+def _with_drift_if_supported(fits: dict, o: str, drift: str) -> tuple[str, dict | None]:
+    """The model of order ``o`` to use: with the drift term where the F-test supports it
+    (``auto``) or always (``on``); and the drift test."""
+    plain, drifted = fits.get(o), fits.get(f"{o}+drift")
+    if drifted is None or not drifted.success:
+        return o, None
+    if plain is None or drift == "on":
+        return drifted.model, None
+    test = f_test(plain, drifted)
+    use = test["p"] < DRIFT_ALPHA and drifted.aicc < plain.aicc
+    return (drifted.model if use else o), test
+
+
+def _choose(name, fits, failed, orders, drift):
+    """The chosen model, the comparison (auto), the plausible models and the drift test.
+
+    Orders are compared without the drift term (a drift lets a wrong order mimic the right
+    one); the drift is then tested within each order that carries weight."""
+    if drift == "on":
+        base = {o: fits.get(f"{o}+drift", fits.get(o)) for o in orders}
+    else:
+        base = {o: fits.get(o) for o in orders}
+    base = {o: r for o, r in base.items() if r is not None}
+    if not base:
+        raise AnalysisError(f"no rate law could be fitted to trace {name}",
+                            "; ".join(f"order {k}: {v}" for k, v in failed.items()))
+    if len(orders) == 1:
+        model, test = _with_drift_if_supported(fits, orders[0], drift)
+        return model, None, (model,), test
+    undefined = [o for o, r in base.items() if not math.isfinite(r.aicc)]
+    if undefined:
+        raise AnalysisError(
+            f"trace {name}: the orders cannot be compared: with {base[undefined[0]].n} readings "
+            f"AICc is undefined for order {' and '.join(undefined)} (n - k - 1 <= 0)",
+            "measure more readings, fix a parameter (e.g. --fix Ainf=0), or choose --order")
+    comp = compare({r.model: r for r in base.values()}, (),
+                   {o: w for o, w in failed.items() if "+" not in o})
+    plausible_orders = [row["model"].split("+")[0] for row in comp.rows
+                        if row["delta_aicc"] <= EVIDENCE_DELTA]
+    chosen_order = comp.chosen.split("+")[0]
+    picks = {o: _with_drift_if_supported(fits, o, drift) for o in plausible_orders}
+    if chosen_order not in picks:
+        picks[chosen_order] = _with_drift_if_supported(fits, chosen_order, drift)
+    chosen, test = picks[chosen_order]
+    plausible = tuple(picks[o][0] for o in plausible_orders)
+    return chosen, comp, plausible, test
 
 
 def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Photometry = None,
               fix: dict | None = None, ci: str = "profile", level: float = 0.95,
-              expect: str = "any", a0: float | None = None, b0: float | None = None
-              ) -> RateLawResult:
-    """Fit one trace's integrated rate law (or every order, for ``auto``)."""
+              expect: str = "any", a0: float | None = None, b0: float | None = None,
+              drift: str = "off") -> RateLawResult:
+    """Fit one trace's integrated rate law (or every order, for ``auto``, chosen by AICc).
+
+    ``drift`` adds a linear baseline drift to orders 1 and 2 when the F-test supports it
+    (``auto``, the commands' default), always (``on``) or never (``off``, the default here, so
+    that callers such as ``grade`` keep the plain laws). Refuses (AnalysisError) a trace that is too
+    short, flat, moves against ``expect``, or rises then falls; and an ``auto`` choice the data
+    cannot make because AICc is undefined (too few readings).
+    """
     if order not in ORDERS:
         raise UsageError(f"unknown order {order!r}", f"use one of {', '.join(ORDERS)}")
+    if drift not in DRIFT_CHOICES:
+        raise UsageError(f"unknown drift choice {drift!r}", f"use one of {', '.join(DRIFT_CHOICES)}")
     ph = photometry or Photometry()
     t = np.asarray(t, float)
     y = np.asarray(y, float)
-    rising = _check_trace(t, y, name, expect)
+    rising, noise = _check_trace(t, y, name, expect)
     orders = ["0", "1", "2"] if order == "auto" else [order]
-    fits, failed = {}, {}
-    for o in orders:
-        model = mixed_model(a0 or 0, b0 or 0) if o == "mixed" else RATE_LAWS[o]
+    fits, failed = _fit_candidates(t, y, orders, fix, drift, level, a0, b0)
+    chosen, comp, plausible, drift_test = _choose(name, fits, failed, orders, drift)
+    if ci != "asymptotic":        # intervals of the chosen model by the method asked for
+        model = _model_named(chosen, a0, b0)
         f = {k: v for k, v in (fix or {}).items() if k in model.params}
-        try:
-            fits[o] = fit(model, t, y, fix=f, ci=ci if order != "auto" else "asymptotic",
-                          level=level)
-        except AnalysisError as exc:
-            failed[o] = exc.problem
-    if not fits:
-        raise AnalysisError(f"no rate law could be fitted to trace {name}",
-                            "; ".join(f"order {k}: {v}" for k, v in failed.items()))
-    comp = None
-    chosen = orders[0]
-    if order == "auto":
-        comp = compare(fits, (), failed)
-        chosen = comp.chosen
-        if ci != "asymptotic":        # intervals of the chosen order by the method asked for
-            f = {k: v for k, v in (fix or {}).items() if k in RATE_LAWS[chosen].params}
-            fits[chosen] = fit(RATE_LAWS[chosen], t, y, fix=f, ci=ci, level=level)
+        fits[chosen] = fit(model, t, y, fix=f, ci=ci, level=level)
     r = fits[chosen]
+    base = chosen.split("+")[0]
+    k_conc, half, c0, notes = _derived(r, base, ph, rising, level)
+    quality = fit_quality(r, noise)
+    flags = _flags(r, quality, plausible, notes, t, half)
+    law = RateLawResult(name, base, r, k_conc, half, c0, comp, fits, notes, chosen, plausible,
+                        quality, drift_test, flags)
+    _explain(law)
+    return law
+
+
+def _model_named(name: str, a0, b0) -> Model:
+    base_name, _, extra = name.partition("+")
+    base = mixed_model(a0 or 0, b0 or 0) if base_name == "mixed" else RATE_LAWS[base_name]
+    return with_drift(base) if extra else base
+
+
+def _derived(r: FitResult, order: str, ph: Photometry, rising: bool, level: float):
+    """Rate constant in concentration units, half-life and [A]0 where the photometry allows."""
     notes = []
-    if not r.success:
-        notes.append(f"fit not reliable: {r.message}")
     k = r.params["k"]
     deps = ph.delta_eps(rising)
     b = ph.pathlength_cm
     c0 = None
-    if chosen != "0":
-        d_a = abs(r.value("A0") - r.value("Ainf"))
-        if ph.c0_M is not None:
-            c0 = Param("c0", ph.c0_M, 0.0, ph.c0_M, ph.c0_M, "given", "mol/L", fixed=True)
-        elif deps:
-            se = math.hypot(r.params["A0"].se, r.params["Ainf"].se) / (deps * b)
-            tq = stats.t.ppf(0.5 + level / 2, max(r.dof, 1))
-            c0 = Param("c0", d_a / (deps * b), se, d_a / (deps * b) - tq * se,
-                       d_a / (deps * b) + tq * se, "asymptotic", "mol/L")
-    elif ph.c0_M is not None:
+    if ph.c0_M is not None:
         c0 = Param("c0", ph.c0_M, 0.0, ph.c0_M, ph.c0_M, "given", "mol/L", fixed=True)
-    k_conc = None
-    half = None
-    if chosen == "1":
+    elif order != "0" and deps:
+        d_a = abs(r.value("A0") - r.value("Ainf"))
+        se = math.hypot(r.params["A0"].se, r.params["Ainf"].se) / (deps * b)
+        tq = stats.t.ppf(0.5 + level / 2, max(r.dof, 1))
+        c0 = Param("c0", d_a / (deps * b), se, max(d_a / (deps * b) - tq * se, 0.0),
+                   d_a / (deps * b) + tq * se, "asymptotic", "mol/L")
+    k_conc = half = None
+    if order == "1":
         k_conc = k
         half = map_param(k, lambda x: LN2 / x, "half_life", "s", decreasing=True)
-    elif chosen == "2":
+    elif order == "2":
         if deps:
             k_conc = map_param(k, lambda x: x * deps * b, "k", "L/(mol s)")
         d_a = abs(r.value("A0") - r.value("Ainf"))
         half = map_param(k, lambda x: 1.0 / (x * d_a), "half_life", "s", decreasing=True)
-    elif chosen == "0":
+    elif order == "0":
         if deps:
-            k_conc = map_param(k, lambda x: abs(x) / (deps * b), "k", "mol/(L s)")
+            k_conc = magnitude(map_param(k, lambda x: x / (deps * b), "k", "mol/(L s)"), "k",
+                               "mol/(L s)")
         if c0 is not None and k_conc is not None:
             half = map_param(k_conc, lambda x: c0.value / (2 * x), "half_life", "s",
-                              decreasing=True)
+                             decreasing=True)
         else:
             notes.append("zero-order half-life needs [A]0: give --c0 with --epsilon")
-    elif chosen == "mixed":
+    elif order == "mixed":
         k_conc = k
         notes.append("mixed second order has no single half-life")
+    return k_conc, half, c0, notes
+
+
+def _flags(r: FitResult, quality: dict, plausible, notes: list, t, half) -> list:
+    """Flag words of a rate-law result, each explained by a note (see :data:`FLAGS`)."""
+    flags = []
+    if not r.success:
+        flags.append("not_identifiable")
+        notes.append(f"fit not reliable: {r.message}")
+    elif not all(identifiable(p) for p in r.params.values()):
+        flags.append("not_identifiable")
+        notes.append("a parameter is not determined by these data (its SE is not finite or "
+                     "over 10 times its value)")
+    if not quality["fits"]:
+        flags.append("misfit")
+        notes.append(f"the rate law does not describe the trace: {quality['reason']}")
+    if len(plausible) > 1:
+        flags.append("orders_not_told_apart")
+        notes.append(f"the data do not tell apart {', '.join(plausible)} (each within ΔAICc "
+                     f"{EVIDENCE_DELTA:g} of the best); the order is uncertain")
     if half is not None and not np.isfinite(half.ci_high):
         notes.append("the half-life's upper bound is open: the data do not bound k away from 0")
-    if t[-1] - t[0] < (half.value if half else 0):
+    if "drift" in r.params:
+        flags.append("drift_fitted")
+    if half is not None and t[-1] - t[0] < half.value:
+        flags.append("short_run")
         notes.append("the run covers less than one half-life: k and Ainf are poorly determined")
-    return RateLawResult(name, chosen, r, k_conc, half, c0, comp, fits, notes)
+    return flags
+
+
+def _explain(law: RateLawResult) -> None:
+    """A note on the drift term when one was fitted."""
+    if law.drift is not None:
+        d = law.drift
+        test = f"; F-test against no drift: {p_is(law.drift_test['p'])}" if law.drift_test else ""
+        law.notes.append(f"a linear baseline drift of {fmt_pm(d.value * 6e4, d.se * 6e4)} "
+                         f"mAU/min was fitted with the rate law{test}")
+
+
+def p_is(p: float) -> str:
+    """'p = 0.003' or 'p < 1e-16' for a sentence."""
+    text = fmt_p(p)
+    return f"p {text}" if text.startswith("<") else f"p = {text}"
+
+
+#: Flag words of ``ratelaw`` results and what each means.
+FLAGS = {
+    "not_identifiable": "a parameter is not determined by the data; it is shown as not "
+                        "identifiable, not as a number",
+    "misfit": "the rate law does not describe the trace (runs test or residual SD against the "
+              "noise)",
+    "orders_not_told_apart": f"more than one order lies within ΔAICc {EVIDENCE_DELTA:g} of the "
+                             "best",
+    "short_run": "the run covers less than one half-life",
+    "drift_fitted": "a linear baseline drift was fitted with the rate law",
+}
 
 
 def guggenheim(t, y, delta: float | None = None, level: float = 0.95) -> dict:

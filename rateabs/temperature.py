@@ -46,6 +46,17 @@ class TemperatureAnalysis:
     k_unit: str
     warnings: list
 
+    def extrapolation(self, T_K: float) -> dict:
+        """Where T lies against the measured range: inside or not, how far beyond it (K) and
+        the distance as a multiple of the measured span in 1/T (the Arrhenius line's axis)."""
+        lo, hi = float(self.T.min()), float(self.T.max())
+        inside = lo <= T_K <= hi
+        beyond = 0.0 if inside else (T_K - hi if T_K > hi else T_K - lo)
+        edge = hi if T_K > hi else lo
+        span = 1 / lo - 1 / hi
+        multiple = 0.0 if inside else abs(1 / T_K - 1 / edge) / span
+        return {"inside": inside, "beyond_K": beyond, "multiple_of_span": multiple}
+
     def predict(self, T_K: float, level: float = 0.95) -> Param:
         """k at another temperature with the confidence interval of the Arrhenius line."""
         r = self.arrhenius
@@ -77,21 +88,7 @@ def read_temperature_table(df: pd.DataFrame, *, temp_col=None, k_col=None, se_co
             i = int(np.argmax(~np.isfinite(arr)))
             raise InputError("a cell is empty", "fill it or remove the row", file=path,
                              row=lines[i], column=col)
-    unit = temp_unit
-    if unit is None:
-        h = str(tc).lower()
-        if re.search(r"\(k\)|\[k\]|_k$|kelvin|\bk\b", h):
-            unit = "K"
-        elif re.search(r"°|\(c\)|\[c\]|_c$|celsius|\bc\b", h):
-            unit = "C"
-        elif np.all(T > 200):
-            unit = "K"
-        elif np.all(T < 150):
-            unit = "C"
-        else:
-            raise InputError("cannot tell whether the temperatures are in C or K",
-                             "put the unit in the header, e.g. 'T (C)', or give --temp-unit",
-                             file=path, column=tc)
+    unit, source, notes = temperature_unit_of(T, str(tc), temp_unit, path)
     T_K = celsius_to_kelvin(T) if unit == "C" else T
     if np.any(T_K <= 0):
         i = int(np.argmax(T_K <= 0))
@@ -107,7 +104,47 @@ def read_temperature_table(df: pd.DataFrame, *, temp_col=None, k_col=None, se_co
         kunit = m.group(1)
     elif str(kc).lower().endswith("_per_s"):
         kunit = "1/s"
-    return T_K, k, se, {"temperature": tc, "k": kc, "se": sc, "temp_unit": unit}, kunit
+    unused = [str(c) for c in df.columns if c not in (tc, kc, sc)]
+    return T_K, k, se, {"temperature": tc, "k": kc, "se": sc, "temp_unit": unit,
+                        "temp_unit_source": source, "not_used": unused, "notes": notes}, kunit
+
+
+#: Values that only kelvin (all above) or only degrees Celsius (all below) can hold for a
+#: reaction in a liquid (common practice): water freezes at 273 K and boils at 100 C.
+KELVIN_ABOVE = 200.0
+CELSIUS_BELOW = 150.0
+NAMES = {"K": "kelvin", "C": "degrees Celsius"}
+
+
+def temperature_unit_of(T, header: str, given: str | None, path: str = "table"
+                        ) -> tuple[str, str, list]:
+    """The unit of a temperature column: given, or from the header, or from the values; a
+    header whose unit the values contradict (kelvin values under 'T (C)') is refused with the
+    fix. Returns the unit, where it came from and notes."""
+    h = header.lower()
+    said = ("K" if re.search(r"\(k\)|\[k\]|_k$|kelvin|\bk\b", h) else
+            "C" if re.search(r"°|\(c\)|\[c\]|_c$|celsius|\bc\b", h) else None)
+    fits = "K" if np.all(T > KELVIN_ABOVE) else "C" if np.all(T < CELSIUS_BELOW) else None
+    span = f"{np.min(T):g} to {np.max(T):g}"
+    if given is not None:
+        notes = [] if fits in (None, given) else [
+            f"temperatures {span} read in {NAMES[given]} as --temp-unit says, though they look "
+            f"like {NAMES[fits]}"]
+        return given, "--temp-unit", notes
+    if said is not None:
+        if fits is not None and fits != said:
+            raise InputError(f"the column {header!r} names {NAMES[said]} but its values "
+                             f"({span}) look like {NAMES[fits]}",
+                             f"give --temp-unit {fits} to read them as {NAMES[fits]} (or "
+                             f"--temp-unit {said} if they really are {NAMES[said]})",
+                             file=path, column=header)
+        return said, "header", []
+    if fits is None:
+        raise InputError("cannot tell whether the temperatures are in C or K",
+                         "put the unit in the header, e.g. 'T (C)', or give --temp-unit",
+                         file=path, column=header)
+    return fits, "values", [f"the header {header!r} names no unit; temperatures {span} read "
+                            f"as {NAMES[fits]}"]
 
 
 def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s") -> TemperatureAnalysis:

@@ -89,6 +89,13 @@ BAD = [
     (["ratelaw", PROBE, "--guggenheim", "-1"], "--guggenheim"),
     (["ratelaw", PROBE, "--order", "3"], "--order"),
     (["completion", PROBE, "--target", "100"], "--target"),
+    (["completion", PROBE, "--target", "100%"], "--target"),
+    (["completion", PROBE, "--target", "1"], "--target"),
+    (["completion", PROBE, "--target", "0"], "--target"),
+    (["completion", PROBE, "--target", "-5%"], "--target"),
+    (["completion", PROBE, "--end-absorbance", "nan"], "--end-absorbance"),
+    (["completion", PROBE, "--drift", "maybe"], "--drift"),
+    (["completion", PROBE, "--c0", "0 uM", "--epsilon", "1e4"], "--c0"),
     (["completion", PROBE, "--target", "nan"], "--target"),
     (["completion", PROBE, "--follow", "0", "--max-updates", "1"], "--follow"),
     (["completion", PROBE, "--follow", "1", "--max-updates", "0"], "--max-updates"),
@@ -126,10 +133,13 @@ BAD = [
     (["ratelaw", PROBE, "--pathlength", "0.5 cm"], "--pathlength"),
     (["completion", PROBE, "--max-updates", "3"], "--max-updates"),
     (["completion", PROBE, "--c0", "50 uM"], "--c0"),
-    (["completion", PROBE, "--epsilon", "6220"], "--epsilon"),
-    (["completion", PROBE, "--epsilon-product", "6220"], "--epsilon-product"),
-    (["completion", PROBE, "--chromophore", "NADH"], "--chromophore"),
     (["completion", PROBE, "--pathlength", "1 cm"], "--pathlength"),
+    (["completion", PROBE, "--c0", "100 uM", "--epsilon", "1e4", "--end-absorbance", "0.06"],
+     "--end-absorbance"),
+    (["completion", PROBE, "--epsilon", "1e4", "--chromophore", "NADH"], "--chromophore"),
+    (["completion", PROBE, "--order", "0", "--drift", "on"], "--drift"),
+    (["ratelaw", PROBE, "--order", "mixed", "--a0", "50 uM", "--b0", "90 uM", "--drift", "on"],
+     "--drift"),
     (["progress", PROG, "--s0-column", "S0 (uM)"], "--epsilon"),
     (["progress", *PROG_ARGS, "--s0", "100 uM"], "--s0"),
     (["progress", *PROG_ARGS, "--epsilon", "18000"], "--epsilon"),
@@ -406,6 +416,7 @@ def test_ratelaw_options_are_used():
     assert [r["trace"] for r in runs["results"]] == ["run 2"]
     series = doc("ratelaw", RUNS, "--order", "1", "--excess", EXCESS)["settings"]
     assert series["pseudo_first_order"]["n_runs"] == 5
+    assert doc(*one, "--drift", "on")["results"][0]["model"] == "1+drift" != base["model"]
 
 
 def test_completion_options_are_used():
@@ -421,7 +432,25 @@ def test_completion_options_are_used():
     assert [r["trace"] for r in doc("completion", RUNS, "--trace", "run 3")["results"]] == [
         "run 3"]
     r = run("completion", PROBE, "--follow", "0.01", "--max-updates", "1", "--no-plots")
-    assert r.exit_code == 0 and r.stdout.startswith("following") and "final summary" in r.stdout
+    assert r.exit_code == 0 and "following" in r.stderr and "final summary" in r.stderr
+    assert "following" not in r.stdout and "A520" in r.stdout
+    # the charge: c0 with an epsilon (or a chromophore, or both species' epsilons and the
+    # pathlength) measures conversion against it; an end absorbance does the same
+    charged = doc("completion", PROBE, "--c0", "119 uM", "--epsilon", "1e4")["results"][0]
+    assert charged["conversion_basis"] == "charge" != r0["conversion_basis"]
+    assert charged["charge"].startswith("c0 119 uM")
+    for extra in (["--chromophore", "NADH"], ["--epsilon", "1e4", "--epsilon-product", "2000"],
+                  ["--epsilon", "1e4", "--pathlength", "0.5 cm"]):
+        other = doc("completion", PROBE, "--c0", "119 uM", *extra)["results"][0]
+        assert other["conversion"]["value"] != pytest.approx(charged["conversion"]["value"])
+    ends = doc("completion", PROBE, "--end-absorbance", "0.06")["results"][0]
+    assert ends["conversion_basis"] == "charge" and "0.06" in ends["charge"]
+    # an epsilon alone converts k (here order 2's) to concentration units
+    k2 = doc("completion", PROBE, "--order", "2", "--epsilon", "1e4")["results"][0]
+    assert k2["k_conc"]["unit"] == "L/(mol s)"
+    drift = doc("completion", PROBE, "--drift", "on")["results"][0]
+    assert drift["model"] == "1+drift" and base["results"][0]["model"] == "1"
+    assert doc("completion", PROBE, "--drift", "off")["settings"]["drift"] == "off"
 
 
 def test_temperature_options_are_used(tables):
@@ -508,9 +537,10 @@ USED = {
                           "--resample", "--seed", "--select", "--each"},
     "RatelawOptions": {"--level", "--fix", "--trace", "--epsilon", "--chromophore",
                        "--epsilon-product", "--pathlength", "--c0", "--order", "--a0", "--b0",
-                       "--ci", "--expect", "--guggenheim", "--excess"},
+                       "--ci", "--expect", "--guggenheim", "--excess", "--drift"},
     "CompletionOptions": {"--level", "--fix", "--trace", "--target", "--order", "--follow",
-                          "--max-updates"},
+                          "--max-updates", "--c0", "--epsilon", "--epsilon-product",
+                          "--chromophore", "--pathlength", "--end-absorbance", "--drift"},
     "TemperatureOptions": {"--temp-column", "--k-column", "--se-column", "--temp-unit", "--at",
                            "--level"},
     "ProgressOptions": {"--s0", "--s0-column", "--layout", "--epsilon", "--chromophore",
@@ -518,8 +548,7 @@ USED = {
                         "--trace", "--ci", "--level"},
     "GradeOptions": {"--rubric", "--jobs", "--scheduler", "--format", "--out"},
 }
-REFUSED = {"CompletionOptions": {"--c0", "--epsilon", "--epsilon-product", "--chromophore",
-                                 "--pathlength"}}
+REFUSED: dict = {}
 
 
 @pytest.mark.parametrize("cls", [opts.InspectOptions, opts.RatesOptions, opts.SaturationOptions,

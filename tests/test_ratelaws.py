@@ -150,6 +150,26 @@ def test_guggenheim_without_end_value():
     assert g["half_life"].value == pytest.approx(math.log(2) / g["k"].value)
 
 
+def test_guggenheim_on_a_run_with_an_unknown_end_point():
+    # Guggenheim (1926), Phil. Mag. 2:538: the method needs no end value, so a run stopped at
+    # 60 % conversion on a baseline nobody knows gives k all the same. The run (solve_ivp,
+    # first order, k = 3e-4 1/s, 50 min) sits on an undisclosed 0.37 AU; delta = 25 min is a
+    # whole number of readings, so the pairs need no interpolation and the method is typed here
+    # with numpy.polyfit (reference library) on ln|A(t) - A(t + delta)|.
+    t = np.arange(0, 50 * 60 + 1, 30.0)
+    k = 3e-4
+    y = _noisy(0.37 + beer_lambert(first_order_decay(t, 8e-5, k), EPS), 6, 0.001)
+    g = guggenheim(t, y, delta=25 * 60.0)
+    step = 50                                               # 25 min of 30-s readings
+    slope = np.polyfit(t[:-step], np.log(np.abs(y[:-step] - y[step:])), 1)[0]
+    assert g["k"].value == pytest.approx(-slope, rel=1e-9)
+    assert abs(g["k"].value - k) < stats.t.ppf(1 - 5e-5, g["n_pairs"] - 2) * g["k"].se
+    # the integrated law with a free end value on the same run agrees with it
+    law = fit_trace(t, y, order="1")
+    assert abs(law.fit.value("k") - g["k"].value) < 3 * math.hypot(law.fit.params["k"].se,
+                                                                   g["k"].se)
+
+
 def test_pseudo_first_order_series():
     # kobs = k2 [B] + k0 exactly (hand-made, no noise): the line returns k2 and k0
     conc = np.array([1, 2, 4, 6, 8.0]) * 1e-3

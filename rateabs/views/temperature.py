@@ -2,10 +2,15 @@
 
 from __future__ import annotations
 
+from ..fitting import fmt_pm
 from ..options import TemperatureOptions
 from ..output import document, render_table, rows_to_csv
 from ..units import kelvin_to_celsius
 from . import View, deliver
+from .ratelaw import warning_block
+
+SOURCES = {"header": "from the header", "--temp-unit": "from --temp-unit",
+           "values": "from the values"}
 
 
 def _results(a, preds) -> list[dict]:
@@ -20,19 +25,26 @@ def _results(a, preds) -> list[dict]:
     return results
 
 
-def _text(a, rows, preds, level: float) -> str:
+def _prediction_line(pr: dict) -> str:
+    kk, T = pr["k"], pr["T_K"]
+    line = (f"k at {kelvin_to_celsius(T):.2f} C ({T:.2f} K): {kk['value']:.4g} "
+            f"[{kk['ci_low']:.4g}, {kk['ci_high']:.4g}] {kk['unit']}")
+    if pr["extrapolated"]:
+        side = "above the highest" if pr["beyond_K"] > 0 else "below the lowest"
+        line += (f"  EXTRAPOLATED: {abs(pr['beyond_K']):.1f} K {side} measured temperature, "
+                 f"{pr['multiple_of_span']:.2g} times the measured span in 1/T")
+    return line
+
+
+def _text(a, rows, preds, level: float, head: list[str], warnings: list[str]) -> str:
     T = a.T
-    table = render_table(rows, [("p", "parameter"), ("v", "value"), ("se", "SE"),
-                                ("lo", f"{100 * level:g}% low"),
-                                ("hi", f"{100 * level:g}% high"), ("u", "unit")],
-                         title=f"Arrhenius and Eyring from {T.size} temperatures "
-                               f"({kelvin_to_celsius(T.min()):.1f} to "
-                               f"{kelvin_to_celsius(T.max()):.1f} C)")
-    for pr in preds:
-        kk = pr["k"]
-        table += (f"k at {kelvin_to_celsius(pr['T_K']):.2f} C ({pr['T_K']:.2f} K): "
-                  f"{kk['value']:.4g} [{kk['ci_low']:.4g}, {kk['ci_high']:.4g}] {kk['unit']}\n")
-    return table
+    table = "\n".join(head) + "\n\n" + render_table(
+        rows, [("p", "parameter"), ("v", "value ± SE"), ("lo", f"{100 * level:g} % low"),
+               ("hi", f"{100 * level:g} % high"), ("u", "unit")],
+        title=f"Arrhenius and Eyring from {T.size} temperatures "
+              f"({kelvin_to_celsius(T.min()):.1f} to {kelvin_to_celsius(T.max()):.1f} C)")
+    table += "".join(_prediction_line(pr) + "\n" for pr in preds)
+    return table + "\n" + warning_block(warnings)
 
 
 def compute_temperature(o: TemperatureOptions) -> View:
@@ -45,23 +57,48 @@ def compute_temperature(o: TemperatureOptions) -> View:
                                                    k_col=o.k_column, se_col=o.se_column,
                                                    temp_unit=o.temp_unit)
     a = analyse(T, k, se, level=o.level, k_unit=kunit)
-    preds = [{"T_K": tk, "k": a.predict(tk, o.level).to_dict()} for tk in o.at]
+    warnings = list(cols["notes"]) + list(a.warnings)
+    preds = []
+    for tk in o.at:
+        ex = a.extrapolation(tk)
+        preds.append({"T_K": tk, "k": a.predict(tk, o.level).to_dict(),
+                      "extrapolated": not ex["inside"], "beyond_K": ex["beyond_K"],
+                      "multiple_of_span": ex["multiple_of_span"]})
+        if not ex["inside"]:
+            warnings.append(f"k at {kelvin_to_celsius(tk):.1f} C is extrapolated "
+                            f"{abs(ex['beyond_K']):.1f} K beyond the measured "
+                            f"{kelvin_to_celsius(T.min()):.1f} to "
+                            f"{kelvin_to_celsius(T.max()):.1f} C: it assumes Ea stays constant "
+                            "and no other step takes over")
     settings = {"columns": cols, "n": int(T.size), "T_range_K": [float(T.min()), float(T.max())],
                 "weighting": a.arrhenius.weighting, "level": o.level,
                 "constants": "scipy.constants (CODATA)"}
-    doc = document("temperature", [o.file], settings, _results(a, preds), a.warnings)
-    rows = [{"p": n, "v": p.value, "se": p.se, "lo": p.ci_low, "hi": p.ci_high, "u": p.unit}
+    doc = document("temperature", [o.file], settings, _results(a, preds), warnings)
+    rows = [{"p": n, "v": fmt_pm(p.value, p.se), "lo": p.ci_low, "hi": p.ci_high, "u": p.unit}
             for n, p in a.params.items()]
-    flat = [{"parameter": r["p"], "value": r["v"], "se": r["se"], "ci_low": r["lo"],
-             "ci_high": r["hi"], "unit": r["u"]} for r in rows]
-    return View(doc, _text(a, rows, preds, o.level), rows_to_csv(flat, list(flat[0])), a)
+    head = [f"temperature: {o.file}",
+            f"columns: temperature {cols['temperature']!r} in "
+            f"{'kelvin' if cols['temp_unit'] == 'K' else 'degrees Celsius'} "
+            f"({SOURCES.get(cols['temp_unit_source'], cols['temp_unit_source'])}), "
+            f"k {cols['k']!r} in {kunit}"
+            + (f", SE {cols['se']!r} (weights 1/SE(ln k)^2)" if cols["se"] else ", unweighted")]
+    if cols["not_used"]:
+        head.append("columns not used: " + ", ".join(repr(c) for c in cols["not_used"]))
+    flat = [{"parameter": n, "value": p.value, "se": p.se, "ci_low": p.ci_low,
+             "ci_high": p.ci_high, "unit": p.unit} for n, p in a.params.items()]
+    flat += [{"parameter": f"k at {pr['T_K']:.2f} K", "value": pr["k"]["value"],
+              "se": pr["k"]["se"], "ci_low": pr["k"]["ci_low"], "ci_high": pr["k"]["ci_high"],
+              "unit": pr["k"]["unit"], "extrapolated": pr["extrapolated"]} for pr in preds]
+    return View(doc, _text(a, rows, preds, o.level, head, doc["warnings"]),
+                rows_to_csv(flat, list(dict.fromkeys(k for f in flat for k in f))), a)
 
 
 def run_temperature(o: TemperatureOptions, emit) -> View:
     """The ``temperature`` command."""
-    from ..plots import arrhenius_plot
+    from ..plots.laws import arrhenius_plot
 
     view = compute_temperature(o)
+    preds = (view.doc["results"][-1].get("predictions") or []) if view.doc["results"] else []
     deliver(o, emit, view, "temperature", lambda folder: [
-        arrhenius_plot(view.analysis, folder / "temperature_arrhenius.png")])
+        arrhenius_plot(view.analysis, folder / "temperature_arrhenius.png", preds)])
     return view
