@@ -313,30 +313,41 @@ class RunOutputs:
 
     def write(self, path: str | Path, data: str | bytes) -> Path:
         """Write one whole file atomically, after every check; returns the path as given."""
-        path = Path(path)
-        real = Path(os.path.realpath(path))
-        rel = self._relative(path)
-        if rel in (MANIFEST, LOCK):
-            raise UsageError("is rateabs's own record of the --out folder", "choose another "
-                             "name", file=str(path))
-        if rel is not None:
-            self._make_parents(real.parent)
-        elif not real.parent.is_dir():
-            raise UsageError("the folder to write this file into does not exist",
-                             "create it first or choose another path", file=str(path))
-        old = self._check_target(path, real, rel)
-        fresh = rel is None or rel not in self._files       # not written before by this run
-        blob = _as_bytes(data)
-        if rel is not None:                                 # listed before it appears
-            self._files[rel] = {"name": rel, "bytes": len(blob), "sha256": _digest(blob)}
-            self._save_manifest("writing")
-        if old is not None and fresh:
-            if rel is None:
-                self.tell(f"replacing {path}")
-            else:
-                self._replaced.append(rel)
-        _replace_file(path, real, blob, old)
-        return path
+        return self.write_many([(path, data)])[0]
+
+    def write_many(self, items) -> list[Path]:
+        """Write several whole files (``(path, data)`` pairs), each atomically after every
+        check, with one manifest update: all are listed before the first appears, so a run
+        writing hundreds of pages does not rewrite the manifest per page."""
+        staged = []
+        for path, data in items:
+            path = Path(path)
+            real = Path(os.path.realpath(path))
+            rel = self._relative(path)
+            if rel in (MANIFEST, LOCK):
+                raise UsageError("is rateabs's own record of the --out folder", "choose "
+                                 "another name", file=str(path))
+            if rel is not None:
+                self._make_parents(real.parent)
+            elif not real.parent.is_dir():
+                raise UsageError("the folder to write this file into does not exist",
+                                 "create it first or choose another path", file=str(path))
+            old = self._check_target(path, real, rel)
+            fresh = rel is None or rel not in self._files    # not written before by this run
+            blob = _as_bytes(data)
+            if rel is not None:
+                self._files[rel] = {"name": rel, "bytes": len(blob), "sha256": _digest(blob)}
+            staged.append((path, real, rel, blob, old, fresh))
+        if any(rel is not None for _, _, rel, _, _, _ in staged):
+            self._save_manifest("writing")                  # listed before they appear
+        for path, real, rel, blob, old, fresh in staged:
+            if old is not None and fresh:
+                if rel is None:
+                    self.tell(f"replacing {path}")
+                else:
+                    self._replaced.append(rel)
+            _replace_file(path, real, blob, old)
+        return [path for path, *_ in staged]
 
     # ------------------------------------------------------------------ checks
 
