@@ -121,12 +121,13 @@ def formula_safe(cell: str) -> str:
 
 def rows_to_csv(rows: Sequence[dict], columns: Sequence[str], safe: bool = False) -> str:
     """Tidy CSV text; lists are joined with ';'. With ``safe``, every cell (the header too) is
-    made formula-safe for spreadsheets (:func:`formula_safe`)."""
+    made formula-safe for spreadsheets (:func:`formula_safe`) and lines end in CR LF as RFC 4180
+    writes them, so that a cell holding a CR or LF is quoted."""
     import csv
     import io
 
     buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
+    w = csv.writer(buf, lineterminator="\r\n" if safe else "\n")
     w.writerow([formula_safe(str(c)) for c in columns] if safe else columns)
     for r in rows:
         out = []

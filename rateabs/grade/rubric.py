@@ -166,6 +166,7 @@ class RubricCheck:
     def __init__(self, source: str) -> None:
         self.source = source
         self.problems: list[InputError] = []
+        self.pointed: set[str] = set()      # keys a misspelt or misplaced key already points to
 
     def fail(self, problem: str, fix: str) -> None:
         """Note one problem (a line naming the key and what to do)."""
@@ -221,6 +222,7 @@ class RubricCheck:
         where = f"[{section}] {key}" if section else key
         home = [s for s, keys in KEYS.items() if key in keys and s != section]
         if home:
+            self.pointed.add(key)
             self.fail(f"{where} is in the wrong place" if section else
                       f"{where} stands outside any table", f"move it to the [{home[0]}] table")
             return
@@ -230,6 +232,7 @@ class RubricCheck:
             difflib.get_close_matches(key, every, n=1, cutoff=0.6)
         hint = f"did you mean {close[0]!r}?" if close else \
             f"known keys here: {', '.join(known)}"
+        self.pointed.update(close[:1])
         self.fail(f"{where} is not a rubric key", f"{hint} (see docs/formats.md)")
 
     def value(self, table: dict, section: str, key: str, rule: Rule, default=None,
@@ -237,7 +240,7 @@ class RubricCheck:
         """One key checked by ``rule`` (its type first: TOML numbers for numbers)."""
         label = f"[{section}] {key}"
         if key not in table:
-            if required:
+            if required and key not in self.pointed:
                 self.fail(f"{label} is missing", f"add it, e.g. {key} = {EXAMPLES[key]}")
             return default
         v = table[key]
