@@ -16,6 +16,8 @@ honest reports left alone.
 
 from __future__ import annotations
 
+import os
+import resource
 import sys
 import tempfile
 import time
@@ -33,11 +35,19 @@ from rateabs.views import write_only  # noqa: E402
 from rateabs.views.grading import run_grade  # noqa: E402
 
 
-def _grade(folder: Path, rubric: Path, out: Path, jobs: int) -> float:
-    t0 = time.perf_counter()
+def _cpu() -> float:
+    """CPU seconds of this process and of its finished workers."""
+    me, kids = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(
+        resource.RUSAGE_CHILDREN)
+    return me.ru_utime + me.ru_stime + kids.ru_utime + kids.ru_stime
+
+
+def _grade(folder: Path, rubric: Path, out: Path, jobs: int) -> tuple[float, float]:
+    """(wall seconds, CPU seconds) of one graded class with its pages, as the command runs."""
+    t0, c0 = time.perf_counter(), _cpu()
     run_grade(GradeOptions(str(folder), rubric=str(rubric), jobs=jobs, fmt="json",
                            out=str(out)), write_only)
-    return time.perf_counter() - t0
+    return time.perf_counter() - t0, _cpu() - c0
 
 
 def throughput(n: int) -> None:
@@ -48,17 +58,19 @@ def throughput(n: int) -> None:
         rubric = folder / "rubric.toml"
         warm = simulate.first_order_class(Path(d) / "warm", 3)
         _grade(warm, warm / "rubric.toml", Path(d) / "warm-out", 1)      # imports, once
+        print(f"load average before: {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores")
         for jobs in (1, 2):
             out = Path(d) / f"out{jobs}"
-            first = _grade(folder, rubric, out, jobs)
+            first, cpu = _grade(folder, rubric, out, jobs)
             changed = Path(d) / f"rubric{jobs}.toml"
             changed.write_text(rubric.read_text().replace("tolerance_pct = 5",
                                                           "tolerance_pct = 8")
                                + "\n[weights]\ndata = 10\nreport = 60\nreference = 30\n")
-            again = _grade(folder, changed, out, jobs)
+            again, cpu2 = _grade(folder, changed, out, jobs)
             print(f"{n} students with feedback pages, {jobs} process(es): first grade "
-                  f"{first:6.2f} s ({n / first:5.1f} students/s); regrade after a scoring "
-                  f"change {again:5.2f} s ({n / again:6.1f} students/s)")
+                  f"{first:6.2f} s ({n / first:5.1f} students/s, {1e3 * cpu / n:.0f} ms of CPU "
+                  f"per student); regrade after a scoring change {again:5.2f} s "
+                  f"({n / again:6.1f} students/s, {cpu2:.1f} s of CPU)")
 
 
 def precision() -> None:

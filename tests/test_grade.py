@@ -31,11 +31,18 @@ EXPECT = {
 }
 
 
-def test_sample_class_every_planted_mistake_named(tmp_path):
+@pytest.fixture(scope="module")
+def sample_graded(tmp_path_factory):
+    """The sample class graded once by the command, on two processes, with pages."""
+    out = tmp_path_factory.mktemp("sample") / "out"
     r = CliRunner().invoke(main, ["grade", str(CLASS), "--rubric", str(CLASS / "rubric.toml"),
-                                  "--format", "json", "--jobs", "2", "--out", str(tmp_path)])
+                                  "--format", "json", "--jobs", "2", "--out", str(out)])
     assert r.exit_code == 0, r.output
-    doc = json.loads(r.stdout)
+    return json.loads(r.stdout), out
+
+
+def test_sample_class_every_planted_mistake_named(sample_graded):
+    doc, out = sample_graded
     roster = [ln.split(",") for ln in (CLASS / "roster.csv").read_text().splitlines()[1:]]
     planted = {row[0].strip('"'): row[-1] for row in roster}
     res = doc["results"]
@@ -48,20 +55,26 @@ def test_sample_class_every_planted_mistake_named(tmp_path):
     sound = [x["score"] for x in res if planted[x["student"]] == "sound"]
     assert min(sound) >= 95
     assert all(x["score"] <= 50 for x in res if planted[x["student"]] in ("minutes", "sign"))
-    book = (tmp_path / "gradebook.csv").read_text()
+    book = (out / "gradebook.csv").read_text()
     assert "bench" in book.splitlines()[0]                       # extra roster columns carried
-    assert (tmp_path / "class_summary.html").exists()
+    assert (out / "class_summary.html").exists()
 
 
-def test_html_is_escaped(tmp_path):
-    CliRunner().invoke(main, ["grade", str(CLASS), "--rubric", str(CLASS / "rubric.toml"),
-                              "--jobs", "1", "--out", str(tmp_path)])
-    pages = list((tmp_path / "feedback").glob("*.html")) + [tmp_path / "class_summary.html"]
+def test_html_is_escaped(sample_graded):
+    _, out = sample_graded
+    pages = list((out / "feedback").glob("*.html")) + [out / "class_summary.html"]
     assert len(pages) == 16
     for p in pages:
         text = p.read_text()
         assert "<script>x" not in text and "<b>Nils" not in text
-    assert "&lt;script&gt;x&lt;/script&gt;" in (tmp_path / "class_summary.html").read_text()
+    assert "&lt;script&gt;x&lt;/script&gt;" in (out / "class_summary.html").read_text()
+
+
+def test_students_who_could_not_be_graded_are_listed(sample_graded):
+    _, out = sample_graded
+    text = (out / "class_summary.html").read_text()
+    section = text[text.index("Could not be graded"):]
+    assert "Liam O&#x27;Shea" in section and "Mara Quist" in section
 
 
 def test_hand_worked_score(tmp_path):

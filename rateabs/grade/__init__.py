@@ -26,7 +26,6 @@ from __future__ import annotations
 from collections import defaultdict
 from collections.abc import Callable
 from functools import partial
-from pathlib import Path
 
 from ..parallel import check_jobs, run
 from .analysis import analyse_run, analysis_settings
@@ -129,7 +128,3 @@ def mark_late(rows: list[dict], tasks: list[Task], rubric: Rubric) -> None:
         if note:
             r["diagnosis"].append(note)
 
-
-def cache_path(out: str | Path) -> Path:
-    """Where the command keeps its analyses in an ``--out`` folder."""
-    return Path(out) / CACHE_FILE

@@ -100,7 +100,8 @@ def choose_trace(names: list[str], wanted: str | None) -> dict:
     if len(names) == 1:
         return {"trace": names[0], "trace_reason": "only", "traces": shown}
     samples = [n for n in names if not BLANK_NAME.search(n)]
-    return {"trace": (samples or names)[0], "trace_reason": "first-not-blank", "traces": shown}
+    return {"trace": (samples or names)[0], "trace_reason": "first-not-blank", "traces": shown,
+            "blanks": [n for n in names if BLANK_NAME.search(n)][:12]}
 
 
 def trace_readings(ts, facts: dict) -> tuple[np.ndarray, np.ndarray]:
@@ -216,7 +217,8 @@ def initial_rate(path: str, settings: dict) -> dict:
         raw = np.polyfit(t[inside], recorded(y[inside], facts["signal"]), 1)[0] * 60
         scale = 1e6 / (settings["epsilon"] * settings["pathlength_cm"]) if settings["epsilon"] \
             else 1.0
-        alt = {"v0": [abs(raw) * scale, value[1] / abs(slope) * abs(raw) if slope else math.nan]}
+        alt = {"v0": [abs(raw) * scale, abs(raw) * scale * value[1] / value[0]
+                      if value[0] else math.nan]}
     facts.update(window=[t0, t1], window_source="rubric" if win != "auto" else "auto",
                  method=str(row["method"]), flags=list(row["flags"]),
                  direction="down" if falling else "up", slope_A_per_min=slope)

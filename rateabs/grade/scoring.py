@@ -195,6 +195,9 @@ def assumptions(facts: dict, rubric: Rubric, reading: dict, unit_note: str | Non
            "first-not-blank": f"the first of {', '.join(traces)} not named as a blank; the "
                               "rubric can name another ([runs] trace)"}[facts["trace_reason"]]
     out.append(f"trace graded: {facts['trace']!r} ({why})")
+    if facts.get("blanks"):
+        out.append(f"not subtracted: the blank trace(s) {', '.join(facts['blanks'])} (the "
+                   "graded trace is analysed as it was read)")
     sig = facts.get("signal")
     if sig in ("percent", "transmittance"):
         out.append(f"readings converted from {'%T' if sig == 'percent' else 'transmittance'} to "
