@@ -208,6 +208,10 @@ def assumptions(facts: dict, rubric: Rubric, reading: dict, unit_note: str | Non
         how = "set by the rubric ([runs] window)" if facts["window_source"] == "rubric" else \
             "chosen automatically by the rates estimator"
         out.append(f"initial-rate window: {a:g}-{b:g} s ({how}; estimate: {facts['method']})")
+        if rubric.epsilon:
+            out.append(f"rate in concentration by Beer-Lambert with the rubric's epsilon "
+                       f"{rubric.epsilon:g} L mol^-1 cm^-1 and pathlength "
+                       f"{rubric.pathlength_cm:g} cm")
     else:
         a, b = (w * x for w in facts["span_s"])
         out.append(f"first-order fit A = Ainf + (A0 - Ainf) exp(-k t) over {a:g}-{b:g} s, "
