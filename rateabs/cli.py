@@ -77,6 +77,8 @@ class Main(click.Group):
             if "--debug" in (sys.argv[1:] if args is None else args):
                 raise
             click.echo(f"rateabs: {exc.one_line()}", err=True)
+            for line in getattr(exc, "also", ()):   # further problems of the same input
+                click.echo(f"rateabs: {line}", err=True)
             sys.exit(exc.exit_code)
         except click.exceptions.Abort:
             click.echo("rateabs: interrupted", err=True)
@@ -107,6 +109,8 @@ def _guarded(fn):
             if debug:
                 raise
             click.echo(f"rateabs: {exc.one_line()}", err=True)
+            for line in getattr(exc, "also", ()):   # further problems of the same input
+                click.echo(f"rateabs: {line}", err=True)
             sys.exit(exc.exit_code)
         except KeyboardInterrupt as exc:
             click.echo(f"rateabs: interrupted{': ' + str(exc) if str(exc) else ''}", err=True)
@@ -294,10 +298,11 @@ def progress(**values):
 @_guarded
 def grade(**values):
     """Batch-grade a class's runs in FOLDER (roster.csv plus one file per student)."""
-    from .grade import read_roster
+    from .grade import read_roster, read_rubric
     from .views import run_grade
 
     o = opts.GradeOptions.build(**values)
+    read_rubric(o.rubric)                   # a bad rubric is refused before anything starts
     n = len(read_roster(o.folder))
     with click.progressbar(length=n, label="grading", file=sys.stderr) as bar:
         run_grade(o, _emit, progressbar=bar.update)

@@ -350,12 +350,25 @@ class RunOutputs:
 
     def write(self, path: str | Path, data: str | bytes) -> Path:
         """Write one whole file atomically, after every check; returns the path as given."""
-        path = Path(path)
-        real, rel, old = self._prepare(path)
-        blob = _as_bytes(data)
-        self._list(path, rel, old, len(blob), _digest(blob))     # listed before it appears
-        _replace_file(path, real, blob, old)
-        return path
+        return self.write_many([(path, data)])[0]
+
+    def write_many(self, items) -> list[Path]:
+        """Write several whole files (``(path, data)`` pairs), each atomically after every
+        check, with one manifest update: all are listed before the first appears, so a run
+        writing hundreds of pages does not rewrite the manifest per page."""
+        staged = []
+        for path, data in items:
+            path = Path(path)
+            real, rel, old = self._prepare(path)
+            blob = _as_bytes(data)
+            fresh = self._record(rel, len(blob), _digest(blob))
+            staged.append((path, real, rel, blob, old, fresh))
+        if any(rel is not None for _, _, rel, *_ in staged):
+            self._save_manifest("writing")                  # listed before they appear
+        for path, real, rel, blob, old, fresh in staged:
+            self._note_replaced(path, rel, old, fresh)
+            _replace_file(path, real, blob, old)
+        return [path for path, *_ in staged]
 
     @contextmanager
     def stream(self, path: str | Path) -> Iterator[Sink]:
@@ -370,7 +383,10 @@ class RunOutputs:
         real, rel, old = self._prepare(path)
         with _temporary(path, real, old) as sink:
             yield sink
-            self._list(path, rel, old, sink.size, sink.sha256())
+            fresh = self._record(rel, sink.size, sink.sha256())
+            if rel is not None:
+                self._save_manifest("writing")
+            self._note_replaced(path, rel, old, fresh)
 
     def _prepare(self, path: Path) -> tuple[Path, str | None, os.stat_result | None]:
         """Check a target before it is written; its resolved path, name in --out and stat."""
@@ -386,12 +402,16 @@ class RunOutputs:
                              "create it first or choose another path", file=str(path))
         return real, rel, self._check_target(path, real, rel)
 
-    def _list(self, path: Path, rel: str | None, old, size: int, sha256: str) -> None:
-        """Record a file in the manifest (inside --out) and note what it replaces."""
-        fresh = rel is None or rel not in self._files       # not written before by this run
+    def _record(self, rel: str | None, size: int, sha256: str) -> bool:
+        """List a file of --out in the manifest's table (saved by the caller); True when this
+        run had not written it before."""
+        fresh = rel is None or rel not in self._files
         if rel is not None:
             self._files[rel] = {"name": rel, "bytes": size, "sha256": sha256}
-            self._save_manifest("writing")
+        return fresh
+
+    def _note_replaced(self, path: Path, rel: str | None, old, fresh: bool) -> None:
+        """Say (outside --out) or remember (inside) that a file of an earlier run is replaced."""
         if old is not None and fresh:
             if rel is None:
                 self.tell(f"replacing {path}")

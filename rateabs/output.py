@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -98,14 +99,36 @@ def _numeric_cell(s: str) -> bool:
         return False
 
 
-def rows_to_csv(rows: Sequence[dict], columns: Sequence[str]) -> str:
-    """Tidy CSV text; lists are joined with ';'."""
+#: First characters that make a spreadsheet read a cell as a formula (OWASP, "CSV Injection",
+#: owasp.org/www-community/attacks/CSV_Injection: =, +, -, @, tab 0x09, carriage return 0x0D;
+#: line feed 0x0A added to that list in 2025).
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "\n")
+_PLAIN_NUMBER = re.compile(r"-?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?")
+
+
+def formula_safe(cell: str) -> str:
+    """A CSV cell no spreadsheet runs as a formula: text starting with one of
+    :data:`FORMULA_START` gets a leading single quote (OWASP's advice); a plain number such as
+    ``-3.2`` stays a number.
+
+    >>> formula_safe("=HYPERLINK(1)"), formula_safe("-3.2"), formula_safe("-2+3")
+    ("'=HYPERLINK(1)", '-3.2', "'-2+3")
+    """
+    if cell and cell[0] in FORMULA_START and not _PLAIN_NUMBER.fullmatch(cell):
+        return "'" + cell
+    return cell
+
+
+def rows_to_csv(rows: Sequence[dict], columns: Sequence[str], safe: bool = False) -> str:
+    """Tidy CSV text; lists are joined with ';'. With ``safe``, every cell (the header too) is
+    made formula-safe for spreadsheets (:func:`formula_safe`) and lines end in CR LF as RFC 4180
+    writes them, so that a cell holding a CR or LF is quoted."""
     import csv
     import io
 
     buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(columns)
+    w = csv.writer(buf, lineterminator="\r\n" if safe else "\n")
+    w.writerow([formula_safe(str(c)) for c in columns] if safe else columns)
     for r in rows:
         out = []
         for c in columns:
@@ -116,15 +139,13 @@ def rows_to_csv(rows: Sequence[dict], columns: Sequence[str]) -> str:
                 v = "" if not math.isfinite(v) else repr(float(v))
             elif v is None:
                 v = ""
-            out.append(v)
+            out.append(formula_safe(str(v)) if safe else v)
         w.writerow(out)
     return buf.getvalue()
 
 
 def safe_filename(name: str, limit: int = 60) -> str:
     """A file-name stem from any label (a trace, a student): letters, digits, '_', '-', '.'."""
-    import re
-
     return re.sub(r"[^A-Za-z0-9._-]+", "_", str(name)).strip("_.")[:limit] or "item"
 
 

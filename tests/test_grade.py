@@ -17,47 +17,64 @@ from rateabs.simulate import first_order_class
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 CLASS = SAMPLES / "class_kestrel_red"
 
-EXPECT = {  # planted slip -> words the diagnosis must hold (ground truth in roster 'planted')
-    "sound": "no slip found", "noisy": "no slip found", "warm-bath": "class reference",
-    "minutes": "factor of 60", "log10": "2.303", "half-life": "half-life",
-    "sign": "sign is wrong", "recorded-%T": "percent transmittance",
-    "analysed-%T": "analysed as if they were absorbance", "time-constant": "time constant",
-    "missing-file": "missing", "path-escape": "leaves the class folder",
-    "minutes+log10": "two slips",
+#: planted slip (the roster's 'planted' column, ground truth of sample_runs/generate.py) ->
+#: the slip the grader must name (None: none), and words a finding must hold
+EXPECT = {
+    "sound": (None, "no slip found"), "noisy": (None, "no slip found"),
+    "warm-bath": (None, "class reference"), "minutes": ("time-unit", "per min"),
+    "log10": ("log10", "2.303"), "half-life": ("half-life", "half-life"),
+    "sign": ("sign", "sign is wrong"), "recorded-%T": (None, "percent transmittance"),
+    "analysed-%T": ("percent-T", "as if they were absorbance"),
+    "time-constant": ("time-constant", "time constant"),
+    "missing-file": (None, "missing"), "path-escape": (None, "leaves the class folder"),
+    "minutes+log10": ("time-unit+log10", "two slips"),
 }
 
 
-def test_sample_class_every_planted_mistake_named(tmp_path):
+@pytest.fixture(scope="module")
+def sample_graded(tmp_path_factory):
+    """The sample class graded once by the command, on two processes, with pages."""
+    out = tmp_path_factory.mktemp("sample") / "out"
     r = CliRunner().invoke(main, ["grade", str(CLASS), "--rubric", str(CLASS / "rubric.toml"),
-                                  "--format", "json", "--jobs", "2", "--out", str(tmp_path)])
+                                  "--format", "json", "--jobs", "2", "--out", str(out)])
     assert r.exit_code == 0, r.output
-    doc = json.loads(r.stdout)
+    return json.loads(r.stdout), out
+
+
+def test_sample_class_every_planted_mistake_named(sample_graded):
+    doc, out = sample_graded
     roster = [ln.split(",") for ln in (CLASS / "roster.csv").read_text().splitlines()[1:]]
     planted = {row[0].strip('"'): row[-1] for row in roster}
     res = doc["results"]
     assert [x["student"] for x in res] == list(planted)          # roster order kept
-    hits = 0
     for x in res:
-        words = EXPECT[planted[x["student"]]]
-        hits += any(words in d for d in x["diagnosis"])
-        assert {"student", "score", "diagnosis"} <= set(x)
-    assert hits == len(res)
+        slip, words = EXPECT[planted[x["student"]]]
+        assert x["slip"] == slip, (x["student"], x["diagnosis"])
+        assert any(words in d for d in x["diagnosis"]), (x["student"], x["diagnosis"])
+        assert {"student", "score", "diagnosis", "assumptions"} <= set(x)
     sound = [x["score"] for x in res if planted[x["student"]] == "sound"]
     assert min(sound) >= 95
     assert all(x["score"] <= 50 for x in res if planted[x["student"]] in ("minutes", "sign"))
-    book = (tmp_path / "gradebook.csv").read_text()
+    book = (out / "gradebook.csv").read_text()
     assert "bench" in book.splitlines()[0]                       # extra roster columns carried
-    assert (tmp_path / "class_summary.html").exists()
+    assert (out / "class_summary.html").exists()
 
 
-def test_html_is_escaped(tmp_path):
-    CliRunner().invoke(main, ["grade", str(CLASS), "--rubric", str(CLASS / "rubric.toml"),
-                              "--jobs", "1", "--out", str(tmp_path)])
-    pages = list((tmp_path / "feedback").glob("*.html")) + [tmp_path / "class_summary.html"]
+def test_html_is_escaped(sample_graded):
+    _, out = sample_graded
+    pages = list((out / "feedback").glob("*.html")) + [out / "class_summary.html"]
+    assert len(pages) == 16
     for p in pages:
         text = p.read_text()
         assert "<script>x" not in text and "<b>Nils" not in text
-    assert "&lt;script&gt;x&lt;/script&gt;" in (tmp_path / "class_summary.html").read_text()
+    assert "&lt;script&gt;x&lt;/script&gt;" in (out / "class_summary.html").read_text()
+
+
+def test_students_who_could_not_be_graded_are_listed(sample_graded):
+    _, out = sample_graded
+    text = (out / "class_summary.html").read_text()
+    section = text[text.index("Could not be graded"):]
+    assert "Liam O&#x27;Shea" in section and "Mara Quist" in section
 
 
 def test_hand_worked_score(tmp_path):
@@ -80,10 +97,12 @@ def test_hand_worked_score(tmp_path):
     assert res["score"] == 87.6
     assert res["parts"] == pytest.approx({"data": 1.0, "report": 0.875, "reference": 0.79545},
                                          abs=5e-5)
+    # 7.5 % off with a 5 % tolerance: a difference, no cause invented
+    assert res["slip"] is None and "cause not identified" in res["diagnosis"][0]
 
 
 def test_agreement_and_data_quality_parts_by_hand():
-    # agreement: 1 within the tolerance, linear to 0 at five times it (grade.py docstring)
+    # agreement: 1 within the tolerance, linear to 0 at five times it (grade.scoring docstring)
     assert agreement(1.04, 1.0, 5) == 1.0                  # 4 % off, within the tolerance
     assert agreement(1.15, 1.0, 5) == pytest.approx(0.5)   # 15 %: 1 - 10/20
     assert agreement(1.30, 1.0, 5) == 0.0                  # 30 %: past 25 %
@@ -92,23 +111,19 @@ def test_agreement_and_data_quality_parts_by_hand():
     assert data_quality(0.01, 3) == pytest.approx(0.8)     # full marks x 0.8
 
 
-def _make_class(folder: Path, n: int):
-    return first_order_class(folder, n)
-
-
-def test_class_of_300_in_parallel_keeps_order(tmp_path):
-    _make_class(tmp_path / "c", 300)
+def test_class_in_parallel_keeps_order(tmp_path):
+    first_order_class(tmp_path / "c", 120)
     r = CliRunner().invoke(main, ["grade", str(tmp_path / "c"), "--rubric",
                                   str(tmp_path / "c" / "rubric.toml"), "--jobs", "2",
                                   "--format", "json"])
     assert r.exit_code == 0, r.output
     res = json.loads(r.stdout)["results"]
-    assert [x["student"] for x in res] == [f"s{i:03d}" for i in range(300)]
+    assert [x["student"] for x in res] == [f"s{i:03d}" for i in range(120)]
     assert np.mean([x["score"] for x in res]) > 90
 
 
 def test_executor_seam_accepts_any_executor(tmp_path):
-    _make_class(tmp_path / "c", 6)
+    first_order_class(tmp_path / "c", 6)
     rub = read_rubric(tmp_path / "c" / "rubric.toml")
     with ThreadPoolExecutor(2) as ex:
         a = grade_class(tmp_path / "c", rub, executor=ex, plots=False)
@@ -117,7 +132,8 @@ def test_executor_seam_accepts_any_executor(tmp_path):
 
 
 def test_v0_assignment_concentration_and_pathlength_slips(tmp_path):
-    # initial rate in uM/min with epsilon 6220 and 1 cm: mM/uM slip (1000) and mm/cm slip (10)
+    # initial rate in uM/min with epsilon 6220 and 1 cm: mM/uM slip (1000) and mm/cm slip (10);
+    # Beer–Lambert A = epsilon b c (IUPAC, "molar absorption coefficient")
     f = tmp_path / "v"
     f.mkdir()
     t = np.arange(0, 301, 15.0)
@@ -130,14 +146,15 @@ def test_v0_assignment_concentration_and_pathlength_slips(tmp_path):
     (f / "rubric.toml").write_text('[assignment]\nquantity = "v0"\nmodel = "initial-rate"\n'
                                    'unit = "uM/min"\nreference = 5.0\ntolerance_pct = 5\n'
                                    'epsilon = "6220"\npathlength = "1 cm"\n')
-    res = grade_class(f, read_rubric(f / "rubric.toml"), plots=False)
-    d = {x["student"]: " ".join(x["diagnosis"]) for x in res}
-    assert "no slip" in d["ok"] and "1000" in d["milli"] and "pathlength" in d["path"]
+    res = {x["student"]: x for x in grade_class(f, read_rubric(f / "rubric.toml"), plots=False)}
+    assert res["ok"]["slip"] is None and "no slip" in res["ok"]["diagnosis"][0]
+    assert res["milli"]["slip"] == "conc-unit" and "mM" in res["milli"]["diagnosis"][0]
+    assert res["path"]["slip"] == "pathlength"
 
 
 @pytest.mark.parametrize("fname", ["../x.csv", "/etc/passwd", "sub/../../x.csv", "~/x.csv"])
 def test_path_escape_rejected(tmp_path, fname):
-    _make_class(tmp_path / "c", 1)
+    first_order_class(tmp_path / "c", 1)
     roster = tmp_path / "c" / "roster.csv"
     roster.write_text(f"student,file,reported\nmallory,{fname},1e-3\n")
     (tmp_path / "x.csv").write_text("time (s),A\n0,1\n")
@@ -147,7 +164,7 @@ def test_path_escape_rejected(tmp_path, fname):
 
 
 def test_symlink_out_of_folder_rejected(tmp_path):
-    _make_class(tmp_path / "c", 1)
+    first_order_class(tmp_path / "c", 1)
     outside = tmp_path / "secret.csv"
     shutil.copy(tmp_path / "c" / "r0.csv", outside)
     (tmp_path / "c" / "link.csv").symlink_to(outside)
@@ -157,26 +174,10 @@ def test_symlink_out_of_folder_rejected(tmp_path):
 
 
 def test_broken_student_file_gets_a_row(tmp_path):
-    _make_class(tmp_path / "c", 3)
+    first_order_class(tmp_path / "c", 3)
     (tmp_path / "c" / "r1.csv").write_text("this is not data\n")
     res = grade_class(tmp_path / "c", read_rubric(tmp_path / "c" / "rubric.toml"), plots=False)
     assert res[1]["status"] == "not analysed" and res[0]["status"] == res[2]["status"] == "graded"
-
-
-@pytest.mark.parametrize("text,words", [
-    ('[assignment]\nquantity = "q"\nunit = "1/s"\nreference = 1\ntolerance_pct = 5\n',
-     "unknown quantity"),
-    ('[assignment]\nquantity = "k"\nunit = "furlong"\nreference = 1\ntolerance_pct = 5\n',
-     "does not fit"),
-    ('[assignment]\nquantity = "k"\nunit = "1/s"\ntolerance_pct = 5\n', "no 'reference'"),
-    ("not [toml", "not valid TOML"),
-])
-def test_bad_rubric(tmp_path, text, words):
-    _make_class(tmp_path / "c", 1)
-    (tmp_path / "c" / "rubric.toml").write_text(text)
-    r = CliRunner().invoke(main, ["grade", str(tmp_path / "c"), "--rubric",
-                                  str(tmp_path / "c" / "rubric.toml")])
-    assert r.exit_code == 3 and words in r.output
 
 
 def test_rubric_defaults():
@@ -202,7 +203,12 @@ def test_km_and_half_life_assignments(tmp_path):
                                    'unit = "uM"\nreference = 40\ntolerance_pct = 5\n')
     res = {x["student"]: x for x in grade_class(f, read_rubric(f / "rubric.toml"), plots=False)}
     assert res["ok"]["value"] == pytest.approx(40, rel=0.05) and res["ok"]["score"] > 90
-    assert any("1000" in d for d in res["mm"]["diagnosis"])
+    assert res["mm"]["slip"] == "conc-unit" and "mM" in res["mm"]["diagnosis"][0]
+    # the same table graded in mM: the table's uM header is converted (1 mM = 1000 uM)
+    (f / "rubric.toml").write_text('[assignment]\nquantity = "Km"\nunit = "mM"\n'
+                                   'reference = 0.040\ntolerance_pct = 5\n')
+    res = {x["student"]: x for x in grade_class(f, read_rubric(f / "rubric.toml"), plots=False)}
+    assert res["mm"]["value"] == pytest.approx(0.040, rel=0.05) and res["mm"]["slip"] is None
     # half-life in min; a student who reports k instead is named
     g = tmp_path / "hl"
     first_order_class(g, 2)
@@ -213,4 +219,4 @@ def test_km_and_half_life_assignments(tmp_path):
                                    'reference = 14.44\ntolerance_pct = 5\n')
     res = {x["student"]: x for x in grade_class(g, read_rubric(g / "rubric.toml"), plots=False)}
     assert "no slip" in res["ok"]["diagnosis"][0]
-    assert "rate constant" in " ".join(res["swap"]["diagnosis"])
+    assert res["swap"]["slip"] == "rate-constant" and "1/min" in res["swap"]["diagnosis"][0]

@@ -3,7 +3,7 @@
 Matplotlib is imported inside the drawing functions, so importing this package stays light.
 """
 
-from .grade import class_summary_plot, student_plot
+from .grade import class_summary_plot, student_svg
 from .inspect import traces_overview
 from .laws import arrhenius_plot, completion_plot, ratelaw_plots
 from .progress import progress_plots
@@ -30,5 +30,5 @@ __all__ = [
     "fixed_axes", "save", "png_bytes", "drawable", "unit_text", "traces_overview",
     "saturation_fit", "linearised", "rate_traces", "plate_heatmap", "replicate_plot",
     "ratelaw_plots", "completion_plot", "arrhenius_plot", "progress_plots", "class_summary_plot",
-    "student_plot",
+    "student_svg",
 ]

@@ -1,43 +1,95 @@
-"""The ``grade`` command's view: gradebook, feedback pages, class summary."""
+"""The ``grade`` command's view: gradebook, feedback pages, class summary.
+
+Every file goes through the run's :class:`~rateabs.files.RunOutputs`, whose manifest lets a
+rerun remove exactly the pages the previous run wrote (no stale page is left beside new ones).
+Feedback pages are named ``feedback/NNN-HASH.html`` (roster number and a short hash of the
+name): stable, unique and the same in any script; the readable name is in the page and in the
+gradebook's ``feedback_page`` column. CSV cells are formula-safe for spreadsheets.
+"""
 
 from __future__ import annotations
 
+import datetime as dt
+import hashlib
 from pathlib import Path
 
 import numpy as np
 
 from ..fitting import fmt_pm
 from ..options import GradeOptions
-from ..output import document, render_table, rows_to_csv, write_text
+from ..output import document, render_table, rows_to_csv
 from . import View, run_outputs
 
+#: Row fields left out of the JSON document and the CSV (internal or bulky).
+PRIVATE = ("figure", "path", "readings", "extra")
 
-def _gradebook(results: list[dict]) -> list[dict]:
+
+def page_name(index: int, student: str) -> str:
+    """``feedback/007-1a2b3c4d.html``: the roster number and a hash of the name (any script).
+
+    >>> page_name(7, "李明")
+    'feedback/007-6d6a8b59.html'
+    """
+    digest = hashlib.sha256(student.encode("utf-8")).hexdigest()[:8]
+    return f"feedback/{index:03d}-{digest}.html"
+
+
+def _reported_cell(r: dict):
+    return r["reported"] if r["reported"] is not None else r["reported_text"]
+
+
+def gradebook(results: list[dict]) -> list[dict]:
+    """One row per student for the gradebook CSV (extra roster columns at the end)."""
     extra_cols = list(dict.fromkeys(k for r in results for k in r.get("extra", {})))
     book = []
     for r in results:
-        row = {"student": r["student"], "file": r["file"], "value": r["value"],
-               "unit": r["unit"], "reported": r["reported"], "reference": r["reference"],
-               "score": r["score"], "status": r["status"],
+        row = {"#": r["index"], "student": r["student"], "file": r["file"],
+               "feedback_page": r.get("page"), "score": r["score"], "status": r["status"],
+               "slip": r["slip"], "value": r["value"], "value_se": r["value_se"],
+               "unit": r["unit"], "reported": _reported_cell(r), "reference": r["reference"],
                "part_data": r["parts"].get("data"), "part_report": r["parts"].get("report"),
-               "part_reference": r["parts"].get("reference"),
-               "diagnosis": " | ".join(r["diagnosis"])}
+               "part_reference": r["parts"].get("reference"), "submitted": r["submitted"],
+               "late": {True: "yes", False: "no"}.get(r["late"], ""),
+               "shared_with": r["shared_with"], "findings": " | ".join(r["diagnosis"]),
+               "assumptions": " | ".join(r["assumptions"])}
         row.update({c: r.get("extra", {}).get(c) for c in extra_cols})
         book.append(row)
     return book
 
 
-def _feedback_page(r: dict, rubric) -> str:
-    """One student's page: their result, how the score is built, what we found, the figure."""
-    from ..report import img, kv, notes, page, table
+def _you_reported(r: dict, rubric) -> str:
+    if r["reported"] is not None:
+        return f"{r['reported']:g} {rubric.unit}"
+    return f"{r['reported_text']!r} (not a number)" if r["reported_text"] else "nothing"
+
+
+def feedback_page(r: dict, rubric, today: str) -> str:
+    """One student's page: their result, what was found, how the run was read, the figure."""
+    from ..plots import student_svg
+    from ..report import esc, kv, notes, page, table
 
     parts = r["parts"]
-    sections = [("Your result", kv([
-        ("assignment", rubric.title), ("quantity", f"{rubric.quantity} ({rubric.unit})"),
-        ("your data give", fmt_pm(r["value"], r.get("value_se"), unit=rubric.unit)),
-        ("you reported", r["reported"]),
-        ("class reference", f"{rubric.reference:g} {rubric.unit}"),
-        ("score", f"{r['score']:.1f} / 100")]))]
+    facts = [("assignment", rubric.title), ("graded on", today),
+             ("quantity", f"{rubric.quantity} ({rubric.unit})"),
+             ("your data give", fmt_pm(r["value"], r.get("value_se"), unit=rubric.unit)),
+             ("you reported", _you_reported(r, rubric)),
+             ("class reference", f"{rubric.reference:g} {rubric.unit} ± "
+                                 f"{rubric.tolerance_pct:g} %"),
+             ("score", f"{r['score']:.1f} / 100")]
+    if r["submitted"]:
+        facts.append(("submitted", r["submitted"] + (" (late)" if r["late"] else "")))
+    ok = r["status"] == "graded" and r["verdict"] == "agrees"
+    sections = [("Your result", kv(facts)),
+                ("What we found", notes(r["diagnosis"], "ok" if ok else "note"))]
+    if r["assumptions"]:
+        sections.append(("How your run was read", "<ul>" + "".join(
+            f"<li>{esc(a)}</li>" for a in r["assumptions"]) + "</ul>"))
+    if r.get("figure"):
+        what = "the initial slope over its window (shaded)" if r["figure"].get("window") else \
+            "the fitted model"
+        sections.append(("Your data and the fit", f"<figure>{student_svg(r['figure'])}"
+                         f"<figcaption>{esc(f'your readings, {what}, and the residuals below')}"
+                         "</figcaption></figure>"))
     if parts:
         sections.append(("How the score is built", table(
             [{"part": k, "marks": f"{100 * parts[k]:.0f} %", "weight": rubric.weights[k]}
@@ -47,115 +99,159 @@ def _feedback_page(r: dict, rubric) -> str:
               "your number against your own data; reference: your data against the class "
               f"reference; each within {rubric.tolerance_pct:g} % for full marks, none "
               f"beyond {5 * rubric.tolerance_pct:g} %.</p>"))
-    ok = r["status"] == "graded" and parts.get("report", 0) == 1
-    sections.append(("What we found", notes(r["diagnosis"], "ok" if ok else "note")))
-    if r.get("png"):
-        sections.append(("Your data and the fit", img(r["png"], "readings and the fitted "
-                                                      "model used to check your number")))
-    return page(f"Feedback for {r['student']}", f"{rubric.title}: {rubric.quantity}", sections,
-                cautions=())
+    return page(f"Feedback for {r['student']}", f"{rubric.title}: {rubric.quantity} in "
+                f"{rubric.unit}, graded on {today}", sections, cautions=())
 
 
-def _class_page(results: list[dict], rubric, png) -> str:
-    """The class summary page: statistics, the distribution and links to every student."""
-    from ..report import esc, img, kv, page, table
+def verdict_words(r: dict) -> str:
+    """The verdict on a student's report in a few words (the page gives the sentence)."""
+    if r["status"] != "graded":
+        return "not graded"
+    if r["slip"] and r["verdict"] == "slip":
+        return f"slip: {r['slip']}"
+    return {"agrees": "agrees", "unexplained": "differs, cause not identified",
+            "sign": "sign wrong, and differs", "unchecked": "not checked (no number)"}.get(
+        r["verdict"], r["verdict"] or "")
+
+
+def class_page(results: list[dict], rubric, png, today: str) -> str:
+    """The class summary: statistics, own and reported values, every student linked, the
+    students who could not be graded, shared and late work, the rubric."""
+    from ..report import esc, img, kv, notes, page, table
 
     graded = [r for r in results if r["value"] is not None]
-    vals = np.array([r["value"] for r in graded]) if graded else np.array([])
-    rows = [{"student": f'<a href="{esc(r["page"])}">{esc(r["student"])}</a>',
-             "score": r["score"], "value": r["value"], "reported": r["reported"],
-             "diagnosis": r["diagnosis"][0] if r["diagnosis"] else ""} for r in results]
-    body = table([{k: (v if k != "student" else "@@" + str(i)) for k, v in row.items()}
-                  for i, row in enumerate(rows)],
-                 [("student", "student"), ("score", "score (/100)"),
-                  ("value", f"own value ({rubric.unit})"),
-                  ("reported", f"reported ({rubric.unit})"), ("diagnosis", "first finding")],
-                 text_cols=("student", "diagnosis"))
-    for i, row in enumerate(rows):            # links are built here, names escaped above
-        body = body.replace(f">@@{i}<", f">{row['student']}<", 1)
-    stats_kv = kv([("students", len(results)), ("analysed", len(graded)),
-                   ("median own value", f"{np.median(vals):.4g} {rubric.unit}" if vals.size else
-                    "-"), ("reference", f"{rubric.reference:g} {rubric.unit} ± "
-                                         f"{rubric.tolerance_pct:g} %"),
-                   ("median score", f"{np.median([r['score'] for r in results]):.1f}")])
-    return page(f"Class summary: {rubric.title}", f"{rubric.quantity} in {rubric.unit}",
-                [("Class", stats_kv), ("Distribution", img(png, "each student's own value "
-                                                      "against the reference and tolerance "
-                                                      "band")),
-                 ("Students", body)], cautions=())
+    vals = np.array([r["value"] for r in graded], float)
+    rows = [{"#": r["index"], "student": f"@@{i}@@", "score": r["score"],
+             "value": f"{r['value']:.4g}" if r["value"] is not None else "-",
+             "reported": r["reported_text"] or "-", "verdict": verdict_words(r),
+             "late": {True: "late", False: ""}.get(r["late"], ""),
+             "shared": ", ".join(r["shared_with"])}
+            for i, r in enumerate(results)]
+    body = table(rows, [("#", "#"), ("student", "student"), ("score", "score (/100)"),
+                        ("value", f"own value ({rubric.unit})"),
+                        ("reported", f"reported ({rubric.unit})"), ("verdict", "report"),
+                        ("late", "late"), ("shared", "same data as")],
+                 text_cols=("student", "verdict", "late", "shared"))
+    for i, r in enumerate(results):            # links are built here, names escaped
+        body = body.replace(f">@@{i}@@<", f'><a href="{esc(r["page"])}">{esc(r["student"])}'
+                            "</a><", 1)
+    missing = [f"#{r['index']} {r['student']}: {r['diagnosis'][0]}" for r in results
+               if r["status"] != "graded"]
+    stats = kv([("graded on", today), ("students", len(results)), ("graded", len(graded)),
+                ("could not be graded", len(missing)),
+                ("slips named", sum(1 for r in results if r["slip"])),
+                ("late", sum(1 for r in results if r["late"])),
+                ("sharing data", sum(1 for r in results if r["shared_with"])),
+                ("median own value", f"{np.median(vals):.4g} {rubric.unit}" if vals.size
+                 else "-"),
+                ("reference", f"{rubric.reference:g} {rubric.unit} ± {rubric.tolerance_pct:g} %"),
+                ("median score", f"{np.median([r['score'] for r in results]):.1f}")])
+    sections = [("Class", stats)]
+    if png is not None:
+        sections.append(("Own and reported values", img(png, "each row is one student, by "
+                         "roster number (#, as in the table below): own value filled, reported "
+                         "value open; reported values far off the scale sit at the edge with "
+                         "their ratio to the own value")))
+    sections.append(("Students", body))
+    if missing:
+        sections.append(("Could not be graded", notes(missing)))
+    sections.append(("Rubric", kv(_rubric_facts(rubric))))
+    return page(f"Class summary: {rubric.title}", f"{rubric.quantity} in {rubric.unit}, graded "
+                f"on {today}", sections, cautions=())
 
 
-def draw_figures(results: list[dict], executor=None) -> None:
-    """Each graded student's figure as PNG bytes (``png``), drawn on the executor if given."""
-    from ..plots import student_plot
+def _rubric_facts(rubric) -> list[tuple[str, object]]:
+    win = rubric.window
+    out = [("file", rubric.source), ("quantity", f"{rubric.quantity} ({rubric.model})"),
+           ("weights", ", ".join(f"{k} {v:g}" for k, v in rubric.weights.items())),
+           ("deadline", rubric.deadline.isoformat() if rubric.deadline else "none"),
+           ("time unit of the runs", rubric.time_unit or "from each file's header (a bare "
+                                                          "column: seconds, or minutes where "
+                                                          "that fits the reference)"),
+           ("trace graded", rubric.trace or "the only one, or the first not named a blank")]
+    if rubric.quantity == "v0":
+        out += [("initial-rate window", "automatic" if win == "auto" else
+                 f"{win[0]:g}-{win[1]:g} s"), ("epsilon", f"{rubric.epsilon:g} L/(mol cm)"
+                                                  if rubric.epsilon else "none (A/min)"),
+                ("pathlength", f"{rubric.pathlength_cm:g} cm")]
+    return out
 
-    todo = [r for r in results if r.get("figure")]
-    figures = [r["figure"] for r in todo]
-    pngs = executor.map(student_plot, figures) if executor is not None else map(student_plot,
-                                                                                 figures)
-    for r, png in zip(todo, pngs, strict=True):
-        r["png"] = png
 
-
-def grade_pages(results: list[dict], rubric, out: Path) -> list[Path]:
-    """Gradebook CSV, one feedback page per student and the class summary, into ``out``."""
-    from ..output import safe_filename
+def grade_pages(results: list[dict], rubric, out: Path, today: str, run) -> None:
+    """Gradebook CSV, one feedback page per student and the class summary, into ``out``
+    through the run's outputs (``run``, a :class:`~rateabs.files.RunOutputs`)."""
     from ..plots import class_summary_plot
 
     out = Path(out)
-    (out / "feedback").mkdir(parents=True, exist_ok=True)
-    book = _gradebook(results)
-    files = [write_text(out, "gradebook.csv", rows_to_csv(book, list(book[0])))]
-    used = set()
     for r in results:
-        name = safe_filename(r["student"], 40)
-        while name in used:
-            name += "_"
-        used.add(name)
-        r["page"] = f"feedback/{name}.html"
-        files.append(write_text(out, r["page"], _feedback_page(r, rubric)))
-    png = class_summary_plot(results, rubric, out / "class_summary.png")
-    files.append(write_text(out, "class_summary.html", _class_page(results, rubric, png)))
-    return files
+        r["page"] = r.get("page") or page_name(r["index"], r["student"])
+    book = gradebook(results)
+    pages = [(out / r["page"], feedback_page(r, rubric, today)) for r in results]
+    run.write_many([(out / "gradebook.csv", rows_to_csv(book, list(book[0]), safe=True)),
+                    *pages])
+    png = class_summary_plot(results, rubric, out / "class_summary.png") if any(
+        r["value"] is not None for r in results) else None
+    run.write(out / "class_summary.html", class_page(results, rubric, png, today))
 
 
 def _text(public: list[dict], rubric) -> str:
-    rows = [{"student": r["student"], "score": r["score"], "value": r["value"],
-             "reported": r["reported"], "diag": r["diagnosis"][0][:90] + (
+    rows = [{"#": r["index"], "student": r["student"], "score": r["score"], "value": r["value"],
+             "reported": _reported_cell(r), "diag": r["diagnosis"][0][:90] + (
                  "..." if len(r["diagnosis"][0]) > 90 else "")} for r in public]
-    return render_table(rows, [("student", "student"), ("score", "score"),
+    return render_table(rows, [("#", "#"), ("student", "student"), ("score", "score"),
                                ("value", f"own ({rubric.unit})"),
                                ("reported", f"reported ({rubric.unit})"), ("diag", "finding")],
                         title=f"{rubric.title}: {rubric.quantity}, reference "
                               f"{rubric.reference:g} {rubric.unit} ± {rubric.tolerance_pct:g} %")
 
 
+def _warnings(results: list[dict], rubric) -> list[str]:
+    out = []
+    bad = [r["student"] for r in results if r["status"] != "graded"]
+    if bad:
+        out.append(f"{len(bad)} student(s) could not be graded: {', '.join(bad[:5])}"
+                   + (" ..." if len(bad) > 5 else ""))
+    if rubric.deadline is not None and not any(r["submitted"] for r in results):
+        out.append("the rubric gives a deadline but the roster has no 'submitted' times: "
+                   "lateness was not checked")
+    return out
+
+
 def run_grade(o: GradeOptions, emit, progressbar=None) -> View:
-    """The ``grade`` command: grade in parallel, print the gradebook, write the pages."""
-    from ..grade import check_jobs, grade_class, read_rubric
+    """The ``grade`` command: grade in parallel (reusing the analyses kept in --out), print the
+    gradebook, write the pages."""
+    from ..grade import AnalysisCache, check_jobs, grade_class, read_rubric
+    from ..grade.cache import CACHE_FILE
     from ..parallel import describe, open_executor
 
     rubric = read_rubric(o.rubric)
+    cache = AnalysisCache.load(Path(o.out) / CACHE_FILE) if o.out else None
     scheduler = getattr(o, "scheduler", None)
     jobs = check_jobs(o.jobs) if not scheduler else None
     with open_executor(jobs, scheduler) as executor:
         where = describe(executor)
-        results = grade_class(o.folder, rubric, executor=executor,
-                              progress=progressbar, plots=bool(o.out))
-        if o.out:
-            draw_figures(results, executor)
-    public = [{k: v for k, v in r.items() if k not in ("png", "figure")} for r in results]
-    settings = {"rubric": rubric.to_dict(), "jobs": jobs, "ran_on": where,
+        results = grade_class(o.folder, rubric, executor=executor, progress=progressbar,
+                              plots=bool(o.out), cache=cache)
+    today = dt.date.today().isoformat()
+    for r in results:
+        r["page"] = page_name(r["index"], r["student"]) if o.out else None
+    reused = cache.reused if cache is not None else 0
+    settings = {"rubric": rubric.to_dict(), "jobs": jobs, "ran_on": where, "graded_on": today,
+                "analyses": {"kept_in": str(Path(o.out) / CACHE_FILE) if o.out else None,
+                             "reused": reused},
                 "score": "100 x sum(weight x part) / sum(weights); parts data, report, "
                          "reference (see docs/formats.md)"}
-    doc = document("grade", [o.folder, o.rubric], settings, public, [])
-    flat = [{"student": r["student"], "file": r["file"], "value": r["value"],
-             "reported": r["reported"], "reference": r["reference"], "unit": r["unit"],
-             "score": r["score"], "status": r["status"], "diagnosis": r["diagnosis"]}
-            for r in public]
-    view = View(doc, _text(public, rubric), rows_to_csv(flat, list(flat[0])), results)
-    with run_outputs(o, "grade", ["grade.json", "grade.csv", "gradebook.csv"]):
+    public = [{k: v for k, v in r.items() if k not in PRIVATE} for r in results]
+    doc = document("grade", [o.folder, o.rubric], settings, public, _warnings(results, rubric))
+    flat = [{k: r[k] for k in ("index", "student", "file", "value", "reported", "reference",
+                               "unit", "score", "status", "slip", "late", "shared_with",
+                               "diagnosis")} for r in public]
+    view = View(doc, _text(public, rubric), rows_to_csv(flat, list(flat[0]), safe=True), results)
+    planned = ["grade.json", "grade.csv", "gradebook.csv", "class_summary.html",
+               "class_summary.png", CACHE_FILE]
+    with run_outputs(o, "grade", planned) as run:
         if o.out:
-            grade_pages(results, rubric, Path(o.out))
+            grade_pages(results, rubric, Path(o.out), today, run)
+            run.write_in(CACHE_FILE, cache.dumps())
         emit(o.fmt, view.doc, view.table, view.csv, o.out, "grade")
     return view

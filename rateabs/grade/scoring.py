@@ -1,0 +1,256 @@
+"""One student's grade from the analysis of their run: the value in the rubric's unit, the
+three parts of the score, the verdict on the reported number, every finding and every
+assumption the grader made.
+
+Score = 100 x sum(weight x part) / sum(weights), parts:
+
+* ``data``: quality of the data and the fit (relative SE of the value: full marks at 2 % or
+  better, none at 20 % or worse; x 0.8 when readings had to be left out; x 0.5 when %T was
+  recorded as absorbance);
+* ``report``: agreement of the reported number with the student's own data;
+* ``reference``: closeness of the student's own value to the class reference.
+
+An agreement part is 1 within ``tolerance_pct`` and falls linearly to 0 at five times it.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .diagnosis import TIME_WORDS, Context, judge
+from .roster import Task, rounding
+from .rubric import NAMES, Rubric, parse_unit
+
+#: How far (in powers of 60) a bare time column's reading scales each quantity.
+TIME_POWER = {"k": -1, "half_life": 1, "v0": -1}
+
+
+def agreement(value: float, target: float, tol_pct: float) -> float:
+    """1 within the tolerance, falling linearly to 0 at five times the tolerance."""
+    if not (np.isfinite(value) and np.isfinite(target)) or target == 0:
+        return 0.0
+    dev = abs(value / target - 1) * 100
+    if dev <= tol_pct:
+        return 1.0
+    return float(max(0.0, 1 - (dev - tol_pct) / (4 * tol_pct)))
+
+
+def data_quality(rel_se: float, masked: int) -> float:
+    """1 at a relative SE of 2 % or better, 0 at 20 % or worse; x 0.8 when readings were masked."""
+    if not np.isfinite(rel_se):
+        return 0.0
+    s = float(np.clip(1 - (rel_se - 0.02) / 0.18, 0, 1))
+    return s * (0.8 if masked else 1.0)
+
+
+def base_row(t: Task, rubric: Rubric) -> dict:
+    """The fields every student's row has, graded or not."""
+    return {"student": t.student, "index": t.index, "row": t.row, "file": t.file,
+            "path": t.path, "reported": t.reported, "reported_text": t.reported_text,
+            "unit": rubric.unit, "reference": rubric.reference, "value": None, "value_se": None,
+            "score": 0.0, "parts": {}, "status": "not analysed", "slip": None,
+            "verdict": None, "diagnosis": [], "assumptions": [], "submitted": t.submitted,
+            "late": None, "shared_with": [], "extra": t.extra, "readings": None,
+            "figure": None}
+
+
+def not_analysed(row: dict, why: str, reported_problem: str | None = None) -> dict:
+    """The row of a student whose run could not be analysed."""
+    row["diagnosis"] = [f"could not be analysed: {why}"] + (
+        [reported_problem] if reported_problem else [])
+    return row
+
+
+def assess(t: Task, analysis: dict | None, rubric: Rubric, plots: bool = True) -> dict:
+    """One student's grade from their roster row and the analysis of their run."""
+    row = base_row(t, rubric)
+    if t.problem or analysis is None:
+        return not_analysed(row, t.problem or "no analysis", t.reported_problem)
+    if not analysis["ok"]:
+        return not_analysed(row, analysis["problem"], t.reported_problem)
+    q, facts = rubric.quantity, analysis["facts"]
+    row["readings"] = analysis["readings"]
+    scale, unit_note = unit_scale(rubric, facts)
+    base, base_se = analysis["values"][q]
+    reading = time_reading(q, facts, base * scale, rubric)
+    v, se = base * scale * reading["factor"], abs(base_se * scale * reading["factor"])
+    if not (math.isfinite(v) and v > 0):
+        return not_analysed(row, f"no positive {NAMES[q]} could be taken from the run",
+                            t.reported_problem)
+    sigma = se / v if math.isfinite(se) else math.inf
+    recorded_pt = bool(facts.get("recorded_pt"))
+    parts = {"data": data_quality(sigma, facts.get("masked", 0)) * (0.5 if recorded_pt else 1),
+             "report": agreement(t.reported, v, rubric.tolerance_pct)
+             if t.reported is not None else 0.0,
+             "reference": agreement(v, rubric.reference, rubric.tolerance_pct)}
+    w = rubric.weights
+    ctx = context(rubric, v, analysis, scale * reading["factor"], reading)
+    verdict = report_verdict(t, ctx, rubric, sigma)
+    row.update(value=v, value_se=se, status="graded", parts=parts,
+               score=round(100 * sum(w[k] * parts[k] for k in parts) / sum(w.values()), 1),
+               slip=verdict[0], verdict=verdict[1],
+               diagnosis=[verdict[2]] + findings(v, facts, rubric, recorded_pt),
+               assumptions=assumptions(facts, rubric, reading, unit_note))
+    if plots:
+        row["figure"] = figure(analysis["figure"], reading["times"], facts)
+    return row
+
+
+def unit_scale(rubric: Rubric, facts: dict) -> tuple[float, str | None]:
+    """Factor from the analysis's values to the rubric's unit, and a note when the rate
+    table's own unit was unknown and the rubric's was assumed."""
+    q, u = rubric.quantity, rubric.graded_unit
+    if q not in ("Km", "Vmax"):
+        return u.per_base, None
+    given = facts.get("conc_unit") if q == "Km" else facts.get("rate_unit")
+    own = parse_unit(q, given) if given else None
+    if own is None:
+        return 1.0, (f"the rate table names no {'concentration' if q == 'Km' else 'rate'} "
+                     f"unit{'' if not given else f' the grader knows ({given!r})'}: its "
+                     f"numbers were taken to be in {rubric.unit}, the rubric's unit")
+    return u.per_base / own.per_base, None
+
+
+def time_reading(q: str, facts: dict, value: float, rubric: Rubric) -> dict:
+    """How a time column without a unit is read: as seconds (the reader's assumption) or, when
+    that puts the run far from the class reference and minutes put it near, as minutes."""
+    power = TIME_POWER.get(q)
+    out = {"factor": 1.0, "times": 1.0, "read": None, "other": None}
+    if facts.get("time_source") != "assumed" or power is None:
+        return out
+    as_min = value * 60.0 ** power
+    near = abs(math.log(as_min / rubric.reference)) < abs(math.log(value / rubric.reference)) \
+        if value > 0 else False
+    if near and agreement(as_min, rubric.reference, rubric.tolerance_pct) > 0:
+        return {"factor": 60.0 ** power, "times": 60.0, "read": "min", "other": "s",
+                "other_factor": 60.0 ** -power}
+    return {**out, "read": "s", "other": "min", "other_factor": 60.0 ** power}
+
+
+def context(rubric: Rubric, v: float, analysis: dict, scale: float, reading: dict) -> Context:
+    """The facts the candidate slips are built from."""
+    q = rubric.quantity
+    alt = analysis["alt"].get(q)
+    other = None
+    if reading["other"]:
+        other = (v * reading["other_factor"], reading["read"], reading["other"])
+    spread = abs(alt[1] / alt[0]) if alt and alt[0] else math.nan
+    if not math.isfinite(spread):       # no SE from that fit: it spreads as the own value does
+        value = analysis["values"][q]
+        spread = abs(value[1] / value[0]) if value[0] else 0.0
+    return Context(q, rubric.graded_unit, v, rubric.epsilon, rubric.pathlength_cm,
+                   alt[0] * scale if alt else None, spread,
+                   analysis["facts"].get("signal"), other,
+                   analysis["facts"].get("direction") == "down")
+
+
+def report_verdict(t: Task, ctx: Context, rubric: Rubric, sigma: float) -> tuple:
+    """(slip, verdict status, the sentence) on the reported number."""
+    if t.reported is None:
+        return None, "unchecked", f"{t.reported_problem}: your report cannot be checked"
+    if t.reported == 0:
+        return None, "unchecked", (f"you reported 0 {rubric.unit}: a {NAMES[ctx.quantity]} of "
+                                   "zero cannot be checked against your data; report the value "
+                                   "your fit gives")
+    s = math.hypot(sigma, rounding(t.reported_text))
+    v = judge(t.reported, ctx, rubric.tolerance_pct, s)
+    return v.slip, v.status, v.finding
+
+
+def findings(v: float, facts: dict, rubric: Rubric, recorded_pt: bool) -> list[str]:
+    """What else the grader found: %T recorded, far from the reference, readings left out,
+    flags of the initial rate."""
+    out = []
+    if recorded_pt:
+        out.append("the readings in your file are percent transmittance (values 10-100) "
+                   "recorded under an absorbance header: record absorbance, or convert with "
+                   "A = 2 - log10(%T)")
+    if agreement(v, rubric.reference, rubric.tolerance_pct) < 1:
+        off = 100 * (v / rubric.reference - 1)
+        out.append(f"your own data give {v:.4g} {rubric.unit}, {off:+.0f} % from the class "
+                   f"reference {rubric.reference:g}: check the temperature, the concentrations "
+                   "and the blank of your run")
+    if facts.get("masked"):
+        out.append(f"{facts['masked']} reading(s) were unusable (over range or missing) and were "
+                   "left out")
+    flags = [f for f in facts.get("flags", []) if f not in ("past-linear", "overflow")]
+    if flags:
+        out.append(f"the initial rate carries the flag(s) {', '.join(flags)} (see the rates "
+                   "flags in docs/formats.md)")
+    return out
+
+
+def assumptions(facts: dict, rubric: Rubric, reading: dict, unit_note: str | None) -> list[str]:
+    """Every assumption the grader made reading and analysing the run, one sentence each."""
+    out = [unit_note] if unit_note else []
+    if rubric.quantity in ("Km", "Vmax"):
+        return out + [f"{facts.get('n_used')} rows of your rate table fitted with "
+                      "the Michaelis-Menten equation"]
+    out.append(_time_sentence(facts, reading, rubric))
+    traces = facts.get("traces", [])
+    why = {"only": "the only trace in the file",
+           "rubric": "named by the rubric ([runs] trace)",
+           "first-not-blank": f"the first of {', '.join(traces)} not named as a blank; the "
+                              "rubric can name another ([runs] trace)"}[facts["trace_reason"]]
+    out.append(f"trace graded: {facts['trace']!r} ({why})")
+    if facts.get("blanks"):
+        out.append(f"not subtracted: the blank trace(s) {', '.join(facts['blanks'])} (the "
+                   "graded trace is analysed as it was read)")
+    sig = facts.get("signal")
+    if sig in ("percent", "transmittance"):
+        out.append(f"readings converted from {'%T' if sig == 'percent' else 'transmittance'} to "
+                   f"absorbance ({'A = 2 - log10(%T)' if sig == 'percent' else 'A = -log10 T'})")
+    x = reading["times"]
+    if "window" in facts:
+        a, b = (w * x for w in facts["window"])
+        how = "set by the rubric ([runs] window)" if facts["window_source"] == "rubric" else \
+            "chosen automatically by the rates estimator"
+        out.append(f"initial-rate window: {a:g}-{b:g} s ({how}; estimate: {facts['method']})")
+        if rubric.epsilon:
+            out.append(f"rate in concentration by Beer-Lambert with the rubric's epsilon "
+                       f"{rubric.epsilon:g} L mol^-1 cm^-1 and pathlength "
+                       f"{rubric.pathlength_cm:g} cm")
+    else:
+        a, b = (w * x for w in facts["span_s"])
+        out.append(f"first-order fit A = Ainf + (A0 - Ainf) exp(-k t) over {a:g}-{b:g} s, "
+                   "every usable reading")
+    out.append(f"{facts['n_used']} readings used, {facts.get('masked', 0)} left out (over range "
+               "or missing)")
+    return out + [f"the reader: {n}" for n in facts.get("reader_notes", [])]
+
+
+def _time_sentence(facts: dict, reading: dict, rubric: Rubric) -> str:
+    col, src = facts.get("time_column") or "time", facts.get("time_source")
+    if src == "clock":
+        return f"time: clock times (h:mm:ss) in column {col!r}"
+    if src == "rubric":
+        return (f"time: column {col!r} names no unit; read in {TIME_WORDS[rubric.time_unit]} "
+                "as the rubric says ([runs] time_unit)")
+    if src == "assumed" and reading["read"] == "min":
+        return (f"time: column {col!r} names no unit; read in minutes, because in seconds your "
+                "data would be 60 times faster than the class reference and in minutes they "
+                "are near it (the rubric can state the unit: [runs] time_unit)")
+    if src == "assumed":
+        return (f"time: column {col!r} names no unit; read in seconds (assumed; the rubric can "
+                "state the unit: [runs] time_unit)")
+    unit = facts.get("time_unit")
+    return f"time: column {col!r} in {TIME_WORDS.get(unit, unit)} (from its header)"
+
+
+def figure(fig: dict, times: float, facts: dict) -> dict:
+    """The figure's data with the time reading applied, and its axis labels."""
+    out = dict(fig)
+    if fig["kind"] == "time" and times != 1.0:
+        for k in ("x", "fit_x", "resid_x"):
+            out[k] = [x * times for x in fig[k]]
+        if fig.get("window"):
+            out["window"] = [x * times for x in fig["window"]]
+    if fig["kind"] == "table":
+        out["xlabel"] = f"[S] ({facts.get('conc_unit') or 'table units'})"
+        out["ylabel"] = f"rate ({facts.get('rate_unit') or 'table units'})"
+    else:
+        out["ylabel"] = "absorbance (AU)"
+    return out
+
