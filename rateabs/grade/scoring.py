@@ -129,6 +129,12 @@ def time_reading(q: str, facts: dict, value: float, rubric: Rubric) -> dict:
     return {**out, "read": "s", "other": "min", "other_factor": 60.0 ** power}
 
 
+#: The log-ratio spread given to a slip's value that its own fit does not determine (a factor
+#: of 2 either way): wide enough for any optimiser's stopping point, narrow beside the factors
+#: (60, 2.303, 1000, ...) the other slips are told apart by.
+UNDETERMINED_SPREAD = math.log(2.0)
+
+
 def context(rubric: Rubric, v: float, analysis: dict, scale: float, reading: dict) -> Context:
     """The facts the candidate slips are built from."""
     q = rubric.quantity
@@ -137,7 +143,12 @@ def context(rubric: Rubric, v: float, analysis: dict, scale: float, reading: dic
     if reading["other"]:
         other = (v * reading["other_factor"], reading["read"], reading["other"])
     spread = abs(alt[1] / alt[0]) if alt and alt[0] else math.nan
-    if not math.isfinite(spread):       # no SE from that fit: it spreads as the own value does
+    if alt and not math.isfinite(spread):
+        # that fit has no SE: the readings do not determine its value (an exponential over a
+        # nearly straight stretch of %T), so any optimiser's answer, the student's included,
+        # is as good as the grader's within its order of magnitude
+        spread = UNDETERMINED_SPREAD
+    elif not math.isfinite(spread):
         value = analysis["values"][q]
         spread = abs(value[1] / value[0]) if value[0] else 0.0
     return Context(q, rubric.graded_unit, v, rubric.epsilon, rubric.pathlength_cm,
