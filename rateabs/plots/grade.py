@@ -96,7 +96,8 @@ def nice_ticks(lo: float, hi: float, n: int = 5) -> list[float]:
     mag = 10 ** math.floor(math.log10(raw))
     step = next(m * mag for m in (1, 2, 2.5, 5, 10) if m * mag >= 0.75 * raw)
     first = math.ceil(lo / step - 1e-9) * step
-    return [round(first + i * step, 12) for i in range(int((hi - first) / step + 1e-9) + 1)]
+    return [float(round(first + i * step, 12))
+            for i in range(int((hi - first) / step + 1e-9) + 1)]
 
 
 def _label(v: float, ticks: list[float]) -> str:

@@ -28,7 +28,7 @@ def page_name(index: int, student: str) -> str:
     """``feedback/007-1a2b3c4d.html``: the roster number and a hash of the name (any script).
 
     >>> page_name(7, "李明")
-    'feedback/007-6d6a8b59.html'
+    'feedback/007-aa227102.html'
     """
     digest = hashlib.sha256(student.encode("utf-8")).hexdigest()[:8]
     return f"feedback/{index:03d}-{digest}.html"
