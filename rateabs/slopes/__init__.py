@@ -27,9 +27,9 @@ from enum import IntEnum
 import numpy as np
 from scipy import stats
 
-from .errors import UsageError
-from .fitting import batch_lm
-from .traces import Grid
+from ..errors import UsageError
+from ..fitting import batch_lm
+from ..traces import Grid
 
 
 class WindowEnd(IntEnum):
