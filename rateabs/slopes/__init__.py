@@ -1,35 +1,43 @@
-"""Initial rates: the longest early straight stretch of every trace, in one vectorised pass.
+"""Initial rates of many traces in one vectorised pass, with the estimate chosen by evidence.
 
-For each trace the automatic window is the longest stretch, starting as early as the data allow,
-that a straight line describes within the trace's own noise:
+Each trace gets two estimates of its initial slope, and the reported one is chosen per trace:
 
-* the noise sigma of each trace comes from its second differences (robust to a smooth trend);
-* for each candidate start (the first reading, or later ones to skip a lag phase), the window
-  grows until the residual sum of squares of the line exceeds the chi-square bound
-  (``alpha`` = 0.001) for that many points: there curvature begins;
-* among the candidate starts, the earliest whose slope is within 2 SE of the steepest is taken
-  (after a lag the steady-state slope is the steepest; with depletion the first one is).
+* the **straight window**: a least-squares line from the first usable reading (or from three
+  time constants into a lag, when the enzyme is 95 % active) to the last, or, where the trace
+  is evidently curved, to the end that best trades its noise against its curvature bias
+  (:mod:`rateabs.slopes.windows`);
+* the **whole curve**: the initial slope of one family of progress curves, the integrated
+  Michaelis–Menten equation (Schnell & Mendoza 1997) with an exponential limit and an optional
+  first-order lag (:mod:`rateabs.slopes.curves`), fitted to every trace at once.
 
-Window sums come from cumulative sums over the traces x times array, so a plate costs a few array
-passes per candidate start, never a Python loop over wells. A whole-curve estimate
-(y = c + v0 (1 - exp(-k t)) / k, slope v0 at the window start, fitted by the batched solver)
-backs up traces with no straight stretch and is compared with the window slope everywhere.
+Under ``estimator="auto"`` the whole curve is reported when the window's slope differs from it
+by more than two SEs of the difference (the window carries curvature bias: substrate depletion,
+product inhibition, enzyme loss) and the trace moves; otherwise the window, whose SE then also
+counts that difference (:mod:`rateabs.slopes.choice`). Noise comes from second differences;
+single-reading spikes are set aside first (:mod:`rateabs.slopes.prepare`). ``Windows.method``
+and ``Windows.choice`` say which estimate each trace reports and why; ``Windows.flags`` say
+where the number may still be wrong (:data:`TRACE_FLAGS`).
 """
 
 from __future__ import annotations
 
-import math
-import warnings
-from contextlib import contextmanager
 from dataclasses import dataclass
 from enum import IntEnum
 
 import numpy as np
-from scipy import stats
 
 from ..errors import UsageError
-from ..fitting import batch_lm
 from ..traces import Grid
+from . import windows as wn
+from .choice import choose
+from .curves import CURVED_CHI2, Curves, fit_curves, merge, progress, slope_at
+from .flags import TRACE_FLAGS, trace_flags
+from .prepare import Prepared, noise_sigma, outliers, prepare, quiet_numpy
+
+__all__ = ["TRACE_FLAGS", "WindowEnd", "Windows", "find_windows", "noise_sigma", "quiet_numpy",
+           "rate_curve", "window_min_points"]
+
+ESTIMATORS = ("auto", "window", "curve")
 
 
 class WindowEnd(IntEnum):
@@ -66,30 +74,26 @@ def window_min_points(n_times: int, min_points: int | None = None) -> int:
 
 
 def rate_curve(t, c, v0, k):
-    """y = c + v0 (1 - exp(-k t)) / k, with the straight line as the k -> 0 limit."""
-    kt = k * t
-    small = np.abs(kt) < 1e-8
-    with np.errstate(all="ignore"):
-        frac = np.where(small, t * (1 - kt / 2), -np.expm1(-kt) / np.where(k == 0, 1.0, k))
-    return c + v0 * frac
-
-
-def _curve_jac(t, c, v0, k):
-    """Partial derivatives of :func:`rate_curve` with respect to (c, v0, k); shape (B, n, 3)."""
-    kt = k * t
-    small = np.abs(kt) < 1e-6
-    kk = np.where(k == 0, 1.0, k)
-    with np.errstate(all="ignore"):
-        e = np.exp(-kt)
-        frac = np.where(small, t * (1 - kt / 2), -np.expm1(-kt) / kk)
-        dfrac = np.where(small, -t * t / 2 + k * t**3 / 3, (t * e - frac) / kk)
-    frac, dfrac = np.broadcast_arrays(frac, dfrac)
-    return np.stack([np.ones_like(frac), frac, v0 * dfrac], axis=-1)
+    """y = c + v0 (1 - exp(-k t)) / k, with the straight line as the k -> 0 limit (the
+    exponential member of :func:`rateabs.slopes.curves.progress`)."""
+    return progress(np.asarray(t, float), c, v0, k, 0.0, 0.0)
 
 
 @dataclass(frozen=True)
 class Windows:
-    """Per-trace window results (arrays of length n_traces); slopes in signal units per s."""
+    """Per-trace results (arrays of length n_traces); slopes in signal units per s.
+
+    ``slope``/``slope_se``: the reported initial slope and its SE (``method`` says which
+    estimate: "window", "curve" or "none"; ``choice`` says why). ``window_slope``/
+    ``window_slope_se``: the straight window's slope and its regression SE, over readings
+    ``start``..``end`` (times ``t_start``..``t_end``, ``n`` readings, ``r2``; ``intercept`` is
+    the window line's value at time zero of the file). ``curve_slope``/``curve_slope_se``: the
+    whole curve's initial slope; ``curve_model`` its member ("exp", "mm", "lag"), and
+    ``curve_params`` (c, v, k, rho, L) its parameters relative to the trace's first usable
+    reading (:meth:`curve_values` evaluates it). ``lag_s``: the lag time where a lag was fitted.
+    ``sigma``: noise SD; ``spikes``: readings set aside as spikes; ``flags``: trace flags
+    (:data:`TRACE_FLAGS`).
+    """
 
     names: list
     start: np.ndarray
@@ -108,283 +112,168 @@ class Windows:
     curve_slope_se: np.ndarray
     curve_params: np.ndarray
     method: np.ndarray
+    window_slope: np.ndarray
+    window_slope_se: np.ndarray
+    choice: np.ndarray
+    flags: list
+    curve_model: np.ndarray
+    spikes: np.ndarray
+    t_first: np.ndarray
+    y_first: np.ndarray
 
-
-def _sums(T, Y, W):
-    z = np.zeros((T.shape[0], 1))
-    T2 = T * T
-    return {k: np.concatenate([z, np.cumsum(v, axis=1)], axis=1)
-            for k, v in (("w", W), ("t", W * T), ("y", W * Y), ("tt", W * T2),
-                         ("ty", W * T * Y), ("yy", W * Y * Y), ("t3", W * T2 * T),
-                         ("t4", W * T2 * T2), ("tty", W * T2 * Y))}
-
-
-def _window_sums(C, s, e):
-    """Sums over readings s..e (inclusive) from cumulative sums, shape (N, E) or (N, 1).
-
-    ``s`` is one start for all traces with an array of ends ``e`` (or, as a speed-up, ``e`` may
-    be a dict of the cumulative sums already taken at the ends), or one start and one end per
-    trace.
-    """
-    if isinstance(e, dict):
-        return {k: e[k] - C[k][:, [s]] for k in e}
-    if np.ndim(s) == 0:
-        return {k: v[:, e + 1] - v[:, [s]] for k, v in C.items()}
-    rows = np.arange(len(s))
-    return {k: (v[rows, np.asarray(e) + 1] - v[rows, s])[:, None] for k, v in C.items()}
-
-
-def _quadratic(C, s, e, sigma, scale):
-    """Quadratic fit of windows s..e from cumulative sums, the noise sigma known.
-
-    ``s`` is one start for all traces (with ``e`` an array of ends) or one start per trace
-    (with ``e`` one end per trace). Returns (t statistic of the quadratic term, its coefficient
-    c, the slope b at the window's mean time and that mean time, all in unscaled time units).
-    Moments are about the window's mean time; time is divided by ``scale`` for conditioning.
-    """
-    g = _window_sums(C, s, e)
-    n = g["w"]
-    sc = scale[:, None]
-    with np.errstate(all="ignore"):
-        t1, t2, t3, t4 = (g["t"] / n / sc, g["tt"] / n / sc**2, g["t3"] / n / sc**3,
-                          g["t4"] / n / sc**4)
-        ym, ty, tty = g["y"] / n, g["ty"] / n / sc, g["tty"] / n / sc**2
-        m2 = t2 - t1 * t1
-        m3 = t3 - 3 * t1 * t2 + 2 * t1**3
-        m4 = t4 - 4 * t1 * t3 + 6 * t1 * t1 * t2 - 3 * t1**4
-        c1 = ty - t1 * ym
-        c2 = tty - 2 * t1 * ty + t1 * t1 * ym - m2 * ym
-        det = m2 * (m4 - m2 * m2) - m3 * m3
-        c = (m2 * c2 - m3 * c1) / det
-        b = ((m4 - m2 * m2) * c1 - m3 * c2) / det
-        var_c = sigma[:, None] ** 2 / n * m2 / det
-        tq = c / np.sqrt(var_c)
-    return np.where(np.isfinite(tq), tq, 0.0), c / sc**2, b / sc, t1 * sc
-
-
-def _line(C, s, e):
-    """Least-squares line over readings s..e (inclusive) from cumulative sums; arrays (N, E).
-
-    ``s`` is one start for all traces with an array of ends, or one start and end per trace.
-    """
-    g = _window_sums(C, s, e)
-    n = g["w"]
-    with np.errstate(all="ignore"):
-        stt = g["tt"] - g["t"] ** 2 / n
-        sty = g["ty"] - g["t"] * g["y"] / n
-        syy = g["yy"] - g["y"] ** 2 / n
-        b = sty / stt
-        a = (g["y"] - b * g["t"]) / n
-        sse = np.maximum(syy - b * sty, 0.0)
-        se = np.sqrt(sse / (n - 2) / stt)
-        r2 = np.where(syy > 0, 1 - sse / syy, 1.0)
-    return n, a, b, se, sse, r2
-
-
-def noise_sigma(grid: Grid, floor: float = 1e-4) -> np.ndarray:
-    """Per-trace noise SD from second differences: 1.4826 MAD(d2) / sqrt(6), at least ``floor``."""
-    Y, U = grid.values, grid.usable
-    d2 = Y[:, 2:] - 2 * Y[:, 1:-1] + Y[:, :-2]
-    ok = U[:, 2:] & U[:, 1:-1] & U[:, :-2]
-    d2 = np.where(ok, d2, np.nan)
-    with np.errstate(all="ignore"), quiet_numpy():
-        med = np.nanmedian(d2, axis=1, keepdims=True)
-        dev = np.abs(d2 - med)
-        mad = 1.4826 * np.nanmedian(dev, axis=1, keepdims=True)
-        # efficient and robust: RMS of the second differences within 3.5 robust SDs
-        keep = dev <= 3.5 * mad
-        rms = np.sqrt(np.nansum(np.where(keep, dev**2, 0), axis=1)
-                      / np.maximum(np.sum(keep & np.isfinite(dev), axis=1), 1))
-    sig = rms / math.sqrt(6) / 0.9865          # 0.9865: RMS of a normal truncated at 3.5 SD
-    return np.where(np.isfinite(sig), np.maximum(sig, floor), floor)
-
-
-@contextmanager
-def quiet_numpy():
-    """Silence numpy's RuntimeWarnings (all-NaN slices of padded traces are expected here)."""
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        yield
+    def curve_values(self, i: int, t) -> np.ndarray:
+        """The whole curve of trace ``i`` at times ``t`` (s on the file's clock); NaN without
+        a curve."""
+        t = np.asarray(t, float)
+        p = self.curve_params[i]
+        if not np.all(np.isfinite(p)):
+            return np.full(t.shape, np.nan)
+        return self.y_first[i] + progress(t - self.t_first[i], *p)
 
 
 def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
-                 alpha: float = 0.001, max_lag_fraction: float = 0.4,
-                 noise_floor: float = 1e-4, curve: bool = True,
-                 curvature_z: float = 3.5) -> Windows:
-    """Find every trace's window and slope at once (see the module docstring).
+                 noise_floor: float = 1e-4, curve: bool = True, estimator: str = "auto",
+                 noisy_limit: float = 0.10) -> Windows:
+    """Initial slope of every trace at once, chosen by evidence (module docstring).
 
-    ``window`` is ``"auto"`` or a (start_s, end_s) pair applied to every trace.
+    ``window`` is ``"auto"`` or a (start_s, end_s) pair applied to every trace (the window's
+    slope is then reported unless ``estimator="curve"``). ``estimator`` is ``"auto"``,
+    ``"window"`` or ``"curve"``. ``curve=False`` skips the whole-curve estimate (the window is
+    then reported, its SE without the curvature term). ``noisy_limit`` is the relative SE above
+    which a rate is flagged ``noisy``.
     """
-    T, Y, U = grid.times, grid.values, grid.usable
-    N, M = Y.shape
-    W = U.astype(float)
-    first = np.argmax(U, axis=1)
-    t0 = np.take_along_axis(np.nan_to_num(T), first[:, None], axis=1)
-    y0 = np.take_along_axis(np.nan_to_num(Y), first[:, None], axis=1)
-    Tc = np.where(U, T - t0, 0.0)
-    Yc = np.where(U, Y - y0, 0.0)
-    C = _sums(Tc, Yc, W)
-    n_use = U.sum(axis=1)
-    sigma = noise_sigma(grid, noise_floor)
-    span = np.maximum(np.max(Tc, axis=1), 1e-12)
-    mp = window_min_points(M, min_points)
-    out = {k: np.full(N, np.nan) for k in ("slope", "se", "a", "n", "r2")}
-    start = np.zeros(N, dtype=int)
-    end = np.full(N, -1, dtype=int)
-    reason = np.full(N, WindowEnd.NO_WINDOW, dtype=int)
+    if estimator not in ESTIMATORS:
+        raise UsageError(f"unknown estimator {estimator!r}", f"use one of {', '.join(ESTIMATORS)}")
+    if estimator == "curve" and not curve:
+        raise UsageError("the curve estimator needs the whole-curve fit", "drop --no-curve")
+    prep, curves = _fit_stage(grid, noise_floor)
+    mp = window_min_points(grid.values.shape[1], min_points)
+    win = _window_stage(prep, curves, window, mp)
+    # a curve that speeds up is no initial rate (see curves._lags): never reported
+    eligible = ~((curves.member == "exp") & (curves.params[:, 2] < 0))
+    method, slope, se, why = choose(estimator if curve else "window", win.line.b, win.line.se,
+                                    win.weights, curves, eligible & curve)
+    if window != "auto":
+        se = np.where(method == "window", win.line.se, se)
+        why = np.where(method == "window", "window: fixed window", why)
+        why = np.where((method == "none") & (win.end < 0), "no rate: no readings in the window",
+                       why)
+    flags = trace_flags(prep, curves, win, method, slope, se, mp, noisy_limit,
+                        fixed=window != "auto")
+    return _assemble(prep, curves, win, method, slope, se, why, flags, curve)
 
+
+def _fit_stage(grid: Grid, noise_floor: float) -> tuple[Prepared, Curves]:
+    """The prepared readings and the whole curves; readings far off a trace's curve are set
+    aside as spikes and those traces fitted again."""
+    prep = prepare(grid, noise_floor)
+    curves = fit_curves(prep)
+    bad = outliers(prep, curves.fitted, prep.sigma)
+    if not bad.any():
+        return prep, curves
+    prep = prepare(grid, noise_floor, prep.spikes | bad)
+    rows = np.nonzero(bad.any(axis=1))[0]
+    return prep, merge(curves, fit_curves(_rows(prep, rows)), rows)
+
+
+@dataclass(frozen=True)
+class _Window:
+    """The window stage's result: start/end indices, reason, its line and slope weights."""
+
+    start: np.ndarray
+    end: np.ndarray
+    reason: np.ndarray
+    line: wn.Line
+    weights: np.ndarray
+    lag: np.ndarray
+
+
+def _window_stage(prep: Prepared, curves: Curves, window, mp: int) -> _Window:
+    """Where each straight window starts and ends (module docstring), and its line."""
+    N = prep.W.shape[0]
+    C = wn.cumulative(prep.Tc, prep.Yc, prep.W)
+    lag = np.where(np.char.startswith(curves.member, "lag"), curves.params[:, 4], 0.0)
     if window != "auto":
         lo_t, hi_t = window
         if not hi_t > lo_t:
             raise UsageError(f"window end {hi_t} s is not after its start {lo_t} s",
                              "give --window START-END in seconds, e.g. 30-300")
-        inside = U & (T >= lo_t) & (T <= hi_t)
-        C2 = _sums(Tc, Yc, inside.astype(float))
-        n, a, b, se, sse, r2 = _line(C2, 0, np.array([M - 1]))
-        for k, v in (("slope", b), ("se", se), ("a", a), ("n", n), ("r2", r2)):
-            out[k] = v[:, 0]
-        has = inside.any(axis=1)
-        start = np.where(has, np.argmax(inside, axis=1), 0)
-        end = np.where(has, M - 1 - np.argmax(inside[:, ::-1], axis=1), -1)
-        reason[:] = WindowEnd.FIXED
+        start, end = wn.fixed(prep, lo_t, hi_t)
+        reason = np.where(end >= 0, WindowEnd.FIXED, WindowEnd.NO_WINDOW)
     else:
-        lim = int(max_lag_fraction * M)
-        step = max(1, math.ceil((lim + 1) / 16))
-        starts = list(range(0, lim + 1, step))
-        cand = {k: np.full((len(starts), N), np.nan) for k in ("b", "se", "a", "n", "r2")}
-        cand_end = np.full((len(starts), N), -1, dtype=int)
-        e_idx = np.arange(0, M, max(1, M // 80))       # ends tested: at most ~80 per start
-        if e_idx[-1] != M - 1:
-            e_idx = np.append(e_idx, M - 1)
-        chi = stats.chi2.ppf(1 - alpha, np.maximum(np.arange(M + 1) - 2, 1))
-        c_end = {k: v[:, e_idx + 1] for k, v in C.items()}       # taken once for every start
-        for si, s in enumerate(starts):
-            n, a, b, se, sse, r2 = _line(C, s, c_end)
-            valid = (e_idx[None, :] >= s) & (n >= mp)
-            tq = _quadratic(C, s, c_end, sigma, span)[0]
-            fail = valid & ((sse / sigma[:, None] ** 2 > chi[np.minimum(n, M).astype(int)])
-                            | (np.abs(tq) > curvature_z))
-            # a window ends just before the first failing one; windows beyond it are not used
-            # a failure counts when the next window fails too (one noisy reading is no bend)
-            fail = fail & np.concatenate([fail[:, 1:], fail[:, -1:]], axis=1)
-            n_e = e_idx.size
-            ff = np.where(fail.any(axis=1), np.argmax(fail, axis=1), n_e)   # positions in e_idx
-            lp = np.clip(ff - 1, 0, n_e - 1)
-            rows = np.arange(N)
-            ok = (ff >= 1) & valid[rows, lp] & (s < n_use)
-            for k, v in (("b", b), ("se", se), ("a", a), ("n", n), ("r2", r2)):
-                cand[k][si] = np.where(ok, v[rows, lp], np.nan)
-            cand_end[si] = np.where(ok, e_idx[lp], -1)
-        absb = np.abs(cand["b"])
-        has = np.isfinite(absb).any(axis=0)
-        best = np.where(has, np.nanargmax(np.where(np.isfinite(absb), absb, -1), axis=0), 0)
-        rows = np.arange(N)
-        thresh = absb[best, rows] - 2 * cand["se"][best, rows]
-        good = np.isfinite(absb) & (absb >= thresh[None, :])
-        pick = np.where(has, np.argmax(good, axis=0), 0)
-        for k, key in (("slope", "b"), ("se", "se"), ("a", "a"), ("n", "n"), ("r2", "r2")):
-            out[k] = np.where(has, cand[key][pick, rows], np.nan)
-        start = np.where(has, np.asarray(starts)[pick], 0)
-        end = np.where(has, cand_end[pick, rows], -1)
-        # limit the curvature bias: where the window still bends (|t| > 2), shorten it so that
-        # its mean slope stays within 10 % of the slope at its start
-        ok_w = end >= start + 1
-        tq, cq, bq, tm = _quadratic(C, start, np.maximum(end, start + 1), sigma, span)
-        tq, cq, bq, tm = tq[:, 0], cq[:, 0], bq[:, 0], tm[:, 0]
-        ts_c = np.take_along_axis(Tc, start[:, None], 1)[:, 0]
-        b_start = bq + 2 * cq * (ts_c - tm)
-        with np.errstate(all="ignore"):
-            l_max = 0.1 * np.abs(b_start) / np.abs(cq)
-        t_end_c = np.take_along_axis(Tc, np.clip(end, 0, M - 1)[:, None], 1)[:, 0]
-        last_u = M - 1 - np.argmax(U[:, ::-1], axis=1)
-        slows = np.sign(cq) == -np.sign(b_start)
-        bend = has & ok_w & (end < last_u) & slows & (np.abs(tq) > 3) & (t_end_c - ts_c > l_max)
-        if bend.any():
-            limit = ts_c + l_max
-            within = U & (Tc <= limit[:, None]) & (np.arange(M)[None, :] >= start[:, None])
-            new_end = M - 1 - np.argmax(within[:, ::-1], axis=1)
-            nth = np.cumsum(U & (np.arange(M)[None, :] >= start[:, None]), axis=1)
-            min_end = np.argmax(nth >= mp, axis=1)
-            new_end = np.maximum(new_end, min_end)
-            end = np.where(bend, np.minimum(new_end, end), end)
-            n1, a1, b1, se1, _, r21 = _line(C, start, end)
-            for k, v in (("n", n1), ("a", a1), ("slope", b1), ("se", se1), ("r2", r21)):
-                out[k] = np.where(bend, v[:, 0], out[k])
-        # why the window ends
-        last_usable = last_u
-        after = np.arange(M)[None, :] > end[:, None]
-        usable_after = (U & after).any(axis=1)
-        masked_after = (~U & after & np.isfinite(T)).any(axis=1)
-        # the bend's direction: the quadratic term from the window start to the last reading
-        ext = np.maximum(last_usable, start + 2)
-        _, c_ext, b_ext, tm_ext = (a[:, 0] for a in _quadratic(C, start, ext, sigma, span))
-        # starting values for the whole-curve fit: slope and curvature at the window start
-        ts_c = np.take_along_axis(Tc, start[:, None], 1)[:, 0]
-        v_start = b_ext + 2 * c_ext * (ts_c - tm_ext)
-        with np.errstate(all="ignore"):
-            k_start = -2 * c_ext / v_start
-        slowing = np.sign(c_ext) == -np.sign(out["slope"])
-        reason = np.where(~has, WindowEnd.NO_WINDOW, np.where(
-            end >= last_usable, WindowEnd.END_OF_READ,
-            np.where(~usable_after & masked_after, WindowEnd.UNUSABLE_FOLLOW,
-                     np.where(slowing, WindowEnd.SLOWS, WindowEnd.SPEEDS_UP))))
-    t_start = np.take_along_axis(T, np.clip(start, 0, M - 1)[:, None], 1)[:, 0]
-    t_end = np.take_along_axis(T, np.clip(end, 0, M - 1)[:, None], 1)[:, 0]
-    t_first = t0[:, 0]
-    lag = np.where(start > first, t_start - t_first, 0.0)
-    t_start = np.where(end >= 0, t_start, np.nan)
-    t_end = np.where(end >= 0, t_end, np.nan)
-
-    cs = np.full(N, np.nan)
-    cse = np.full(N, np.nan)
-    cp = np.full((N, 3), np.nan)
-    if curve:
-        guess = (v_start, k_start) if window == "auto" else (out["slope"], None)
-        cs, cse, cp = _whole_curve(Tc, Yc, U, start, *guess)
-    method = np.where(np.isfinite(out["slope"]), "window", np.where(np.isfinite(cs), "curve",
-                                                                     "none"))
-    return Windows(list(grid.names), start, end, out["slope"], out["se"], out["a"] + y0[:, 0]
-                   - out["slope"] * t0[:, 0], out["n"], out["r2"], t_start, t_end, lag, reason,
-                   sigma, cs, cse, cp, method)
+        start = _start_after_lag(prep, lag, mp)
+        end = _end(prep, curves, start, mp)
+        reason = _end_reason(prep, curves, start, end)
+    ln = wn.line(C, start, np.maximum(end, start))
+    has = (end >= start) & (ln.n >= (3 if window != "auto" else max(mp, 3)))
+    end = np.where(has, end, -1)
+    ln = wn.Line(*(np.where(has, x, np.nan) for x in (ln.n, ln.a, ln.b, ln.se, ln.sse, ln.r2)))
+    reason = np.where(has, reason, WindowEnd.NO_WINDOW)
+    weights = wn.weights(prep, start, end) if N else np.zeros_like(prep.W)
+    return _Window(start, end, reason, ln, weights, lag)
 
 
-def _whole_curve(Tc, Yc, U, start, slope, k_guess=None):
-    """Vectorised fit of c + v0 (1 - exp(-k tau)) / k from each trace's window start onwards.
+def _start_after_lag(prep: Prepared, lag, mp: int) -> np.ndarray:
+    """The first usable reading three lag time constants in (95 % active), leaving ``mp``
+    readings for the window where the trace has them; the first usable reading without a lag."""
+    M = prep.W.shape[1]
+    late = prep.usable & (prep.Tc >= 3 * lag[:, None])
+    start = np.where(late.any(axis=1), np.argmax(late, axis=1), prep.last)
+    room = wn.nth_usable(prep, prep.first, np.maximum(prep.n_use - mp + 1, 1))
+    start = np.where(lag > 0, np.minimum(start, room), prep.first)
+    return np.clip(start, 0, M - 1)
 
-    ``slope`` and ``k_guess`` (from the quadratic over the same readings) start the solver near
-    the answer, which saves most of its iterations.
-    """
-    N, M = Yc.shape
-    ts = np.take_along_axis(Tc, np.clip(start, 0, M - 1)[:, None], 1)
-    tau = np.where(U, Tc - ts, 0.0)
-    w = (U & (np.arange(M)[None, :] >= start[:, None]) & (tau >= 0)).astype(float)
-    enough = w.sum(axis=1) >= 5
-    span = np.maximum(np.max(np.where(w > 0, tau, 0), axis=1), 1e-9)
-    ys = np.take_along_axis(Yc, np.clip(start, 0, M - 1)[:, None], 1)[:, 0]
-    with quiet_numpy():
-        rise = np.nanmax(np.where(w > 0, Yc, np.nan), axis=1) - np.nanmin(
-            np.where(w > 0, Yc, np.nan), axis=1)
-    v_guess = np.where(np.isfinite(slope), slope, np.nan_to_num(rise) / span)
-    lo = [-np.inf, -np.inf, -2.0 / float(np.max(span))]
-    hi = [np.inf, np.inf, 20.0 / float(np.min(span))]
-    k0 = np.full(N, np.nan) if k_guess is None else np.asarray(k_guess, float)
-    k0 = np.where(np.isfinite(k0), np.clip(k0, 0.9 * lo[2], 0.9 * hi[2]), 0.5 / span)
-    p0 = np.column_stack([ys, v_guess, k0])
-    rows = np.nonzero(enough)[0]
-    cs = np.full(N, np.nan)
-    cse = np.full(N, np.nan)
-    cp = np.full((N, 3), np.nan)
-    if rows.size == 0:
-        return cs, cse, cp
-    with quiet_numpy():
-        r = batch_lm(rate_curve, tau[rows], np.where(w[rows] > 0, Yc[rows], 0.0), w[rows],
-                     p0[rows], lower=lo, upper=hi, max_iter=100, want_cov=True, xtol=1e-7,
-                     ftol=1e-9,
-                     jac=_curve_jac)
-    se_v0 = np.sqrt(np.maximum(r.cov[:, 1, 1], 0))
-    # an initial slope the curve does not determine (flat or very noisy trace) is not reported
-    okr = r.converged & np.all(np.isfinite(r.params), axis=1) & (se_v0 < 0.5 * np.abs(r.params[:, 1]))
-    cs[rows] = np.where(okr, r.params[:, 1], np.nan)
-    cse[rows] = np.where(okr, se_v0, np.nan)
-    cp[rows] = np.where(okr[:, None], r.params, np.nan)
-    return cs, cse, cp
+
+def _end(prep: Prepared, curves: Curves, start, mp: int) -> np.ndarray:
+    """The window's last reading: the trace's last, unless it evidently slows."""
+    with np.errstate(all="ignore"):
+        curved = ((curves.line_rss - curves.rss) > CURVED_CHI2 * curves.sigma ** 2) & (
+            curves.params[:, 2] > 0)
+    end = prep.last.copy()
+    if curved.any():
+        rows = np.nonzero(curved)[0]
+        ts = prep.Tc[rows, start[rows]]
+        slope0 = slope_at(curves.params[rows], ts)
+        sub = _rows(prep, rows)
+        end[rows] = wn.best_end(sub, start[rows], mp, curves.fitted[rows], slope0,
+                                curves.sigma[rows])
+    return end
+
+
+def _rows(prep: Prepared, rows) -> Prepared:
+    """The prepared readings of some traces."""
+    pick = {k: getattr(prep, k)[rows] for k in ("Tc", "Yc", "W", "usable", "first", "last",
+                                                "t0", "y0", "sigma", "spikes")}
+    return Prepared(prep.grid, span=prep.span, times=prep.times, **pick)
+
+
+def _end_reason(prep: Prepared, curves: Curves, start, end) -> np.ndarray:
+    """Why each window ends where it does."""
+    M = prep.W.shape[1]
+    after = np.arange(M)[None, :] > end[:, None]
+    masked_after = (~prep.grid.usable & after & np.isfinite(prep.grid.times)).any(axis=1)
+    k = curves.params[:, 2]
+    return np.where(end >= prep.last, np.where(masked_after, WindowEnd.UNUSABLE_FOLLOW,
+                                               WindowEnd.END_OF_READ),
+                    np.where(k < 0, WindowEnd.SPEEDS_UP, WindowEnd.SLOWS))
+
+
+def _assemble(prep: Prepared, curves: Curves, win: _Window, method, slope, se, why, flags,
+              curve: bool) -> Windows:
+    """The :class:`Windows` of the traces."""
+    T = prep.grid.times
+    M = T.shape[1]
+    rows = np.arange(T.shape[0])
+    has = win.end >= 0
+    t_start = np.where(has, T[rows, np.clip(win.start, 0, M - 1)], np.nan)
+    t_end = np.where(has, T[rows, np.clip(win.end, 0, M - 1)], np.nan)
+    b = win.line.b
+    intercept = win.line.a + prep.y0 - b * prep.t0
+    keep = curve & np.isfinite(curves.v)
+    cs = np.where(keep, curves.v, np.nan)
+    cse = np.where(keep, curves.se, np.nan)
+    cp = np.where(keep[:, None], curves.params, np.nan)
+    return Windows(list(prep.grid.names), np.where(has, win.start, 0), win.end, slope, se,
+                   intercept, win.line.n, win.line.r2, t_start, t_end, win.lag, win.reason,
+                   prep.sigma, cs, cse, cp, method, b, win.line.se, why, flags,
+                   np.where(keep, curves.member, ""), prep.spikes.sum(axis=1), prep.t0, prep.y0)
