@@ -146,7 +146,7 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
         raise UsageError(f"unknown estimator {estimator!r}", f"use one of {', '.join(ESTIMATORS)}")
     if estimator == "curve" and not curve:
         raise UsageError("the curve estimator needs the whole-curve fit", "drop --no-curve")
-    prep, curves = _fit_stage(grid, noise_floor)
+    prep, curves = _fit_stage(grid, noise_floor, curve)
     mp = window_min_points(grid.values.shape[1], min_points)
     win = _window_stage(prep, curves, window, mp)
     # a curve that speeds up is no initial rate (see curves._lags): never reported
@@ -163,17 +163,17 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
     return _assemble(prep, curves, win, method, slope, se, why, flags, curve)
 
 
-def _fit_stage(grid: Grid, noise_floor: float) -> tuple[Prepared, Curves]:
-    """The prepared readings and the whole curves; readings far off a trace's curve are set
-    aside as spikes and those traces fitted again."""
+def _fit_stage(grid: Grid, noise_floor: float, rich: bool) -> tuple[Prepared, Curves]:
+    """The prepared readings and the whole curves (the exponential alone without ``rich``);
+    readings far off a trace's curve are set aside as spikes and those traces fitted again."""
     prep = prepare(grid, noise_floor)
-    curves = fit_curves(prep)
+    curves = fit_curves(prep, rich=rich)
     bad = outliers(prep, curves.fitted, prep.sigma)
     if not bad.any():
         return prep, curves
     prep = prepare(grid, noise_floor, prep.spikes | bad)
     rows = np.nonzero(bad.any(axis=1))[0]
-    return prep, merge(curves, fit_curves(_rows(prep, rows)), rows)
+    return prep, merge(curves, fit_curves(_rows(prep, rows), rich=rich), rows)
 
 
 @dataclass(frozen=True)

@@ -33,8 +33,10 @@ fit in tests/test_slopes_curves.py). The analytic Jacobian there gives the SE of
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 
 import numpy as np
+from scipy import stats
 
 from ..fitting import batch_lm
 
@@ -46,7 +48,7 @@ MEMBERS = {"line": (0, 1), "exp": (0, 1, 2), "mm": (0, 1, 2, 3), "lag": (0, 1, 4
 #: above 0.97 the curve is a straight line with a corner, which a window describes better.
 RHO_RANGE = (-1.0, 0.97)
 
-_NEWTON_STEPS = 6           # converged from the bound for every rho < 0 (tests/test_slopes_curves.py)
+_HALLEY_STEPS = 3           # reach rounding for every (k t, rho) in range (tests/test_slopes_curves.py)
 _SERIES = 1e-3              # below this |k phi| the Taylor series of F is exact to 1e-9
 
 
@@ -54,31 +56,21 @@ def mm_conversion(theta, rho):
     """z and q = -ln(1 - z) with rho z - (1 - rho) ln(1 - z) = theta, elementwise (theta >= 0
     where rho != 0, see :func:`shape_of`).
 
-    In q the equation reads (1 - rho) q + rho (1 - exp(-q)) = theta. For 0 < rho < 1 its
-    solution is q = a + W(rho/(1 - rho) exp(-a)) with a = (theta - rho)/(1 - rho), W the
-    Lambert function (computed as scipy's Wright omega, W(exp(x)), which cannot overflow); for
-    rho < 0 the function of q is increasing and convex, and Newton's method from the upper bound
-    min(theta, a) converges from above. One last Newton step polishes both.
+    In q the equation reads g(q) = (1 - rho) q + rho (1 - exp(-q)) - theta = 0, with g
+    increasing; g is concave for rho > 0 and convex for rho < 0, and a = (theta - rho)/(1 - rho)
+    and theta bound the root (from below for rho > 0, from above for rho < 0). Halley's method
+    from the bound reaches the rounding of g in three steps for every rho in range.
     """
-    from scipy.special import wrightomega
-
     theta, rho = np.broadcast_arrays(np.asarray(theta, float), np.asarray(rho, float))
     if not np.any(rho):
         return -np.expm1(-theta), theta
     a = (theta - rho) / (1 - rho)
-    q = np.array(theta, dtype=float)
-    up = rho > 0
-    if up.any():
-        r = rho[up]
-        q[up] = a[up] + wrightomega(np.log(r / (1 - r)) - a[up])
-    down = rho < 0
-    if down.any():
-        qd, rd, td = np.minimum(theta[down], a[down]), rho[down], theta[down]
-        for _ in range(_NEWTON_STEPS):
-            qd = qd - ((1 - rd) * qd + rd * (-np.expm1(-qd)) - td) / ((1 - rd) + rd * np.exp(-qd))
-        q[down] = qd
-    e = np.exp(-q)
-    q = q - ((1 - rho) * q + rho * (1 - e) - theta) / ((1 - rho) + rho * e)
+    q = np.where(rho >= 0, np.maximum(theta, a), np.minimum(theta, a))
+    for _ in range(_HALLEY_STEPS):
+        e = rho * np.exp(-q)
+        g = (1 - rho) * q - rho * np.expm1(-q) - theta
+        g1 = (1 - rho) + e
+        q = q - 2 * g * g1 / (2 * g1 * g1 + g * e)
     return -np.expm1(-q), q
 
 
@@ -119,25 +111,33 @@ def progress(t, c, v, k, rho, lag):
     return c + v * F
 
 
-def progress_jac(t, c, v, k, rho, lag):
-    """d y / d(c, v, k, rho, L) of :func:`progress`, shape (B, n, 5)."""
+def progress_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
+    """d y / d(c, v, k, rho, L) of :func:`progress`, shape (B, n, 5); only the columns in
+    ``want`` are computed (the others are 0)."""
     phi, dphi = lag_clock(t, lag)
     theta = k * phi
     rho = shape_of(k, rho)
     small = np.abs(theta) < _SERIES
     kk = np.where(k == 0, 1.0, k)
+    out = np.zeros(np.broadcast_shapes(theta.shape, np.shape(v)) + (5,))
+    out[..., 0] = 1.0
     with np.errstate(all="ignore"):
         z, q = mm_conversion(theta, rho)
         d = 1 - rho * z
         z_theta = (1 - z) / d
         a, b = _series(rho)
-        F = np.where(small, phi * (1 + a * theta + b * theta * theta), z / kk)
-        dk = np.where(small, a * phi * phi + 2 * b * k * phi ** 3, (z_theta * theta - z) / (kk * kk))
-        drho = np.where(k < 0, 0.0, np.where(
-            small, phi * (theta / 2 + (6 * rho - 4) / 6 * theta * theta), (q - z) * (1 - z) / d / kk))
-        dlag = np.where(small, 1 + 2 * a * theta + 3 * b * theta * theta, z_theta) * dphi
-    F, dk, drho, dlag = np.broadcast_arrays(F, dk, drho, dlag)
-    return np.stack([np.ones_like(F), F, v * dk, v * drho, v * dlag], axis=-1)
+        out[..., 1] = np.where(small, phi * (1 + a * theta + b * theta * theta), z / kk)
+        if 2 in want:
+            out[..., 2] = v * np.where(small, a * phi * phi + 2 * b * k * phi ** 3,
+                                       (z_theta * theta - z) / (kk * kk))
+        if 3 in want:
+            out[..., 3] = v * np.where(k < 0, 0.0, np.where(
+                small, phi * (theta / 2 + (6 * rho - 4) / 6 * theta * theta),
+                (q - z) * (1 - z) / d / kk))
+        if 4 in want:
+            out[..., 4] = v * np.where(small, 1 + 2 * a * theta + 3 * b * theta * theta,
+                                       z_theta) * dphi
+    return out
 
 
 # --------------------------------------------------------------------------- the grid
@@ -258,30 +258,35 @@ def _polish(member, T, Y, W, start, span):
     """Levenberg–Marquardt from ``start`` (R, 5), within the family's bounds."""
     lo = np.array([-np.inf, -np.inf, 0.0, RHO_RANGE[0], 0.0])
     hi = np.array([np.inf, np.inf, 25.0 / span, RHO_RANGE[1], 0.5 * span])
-    r = batch_lm(progress, T, Y, W, start, free=list(MEMBERS[member]), lower=lo, upper=hi,
-                 max_iter=15, xtol=1e-6, ftol=1e-9, jac=progress_jac)
+    free = MEMBERS[member]
+    r = batch_lm(progress, T, Y, W, start, free=list(free), lower=lo, upper=hi, max_iter=10,
+                 xtol=1e-6, ftol=1e-7, jac=partial(progress_jac, want=free))
     better = np.isfinite(r.rss) & np.all(np.isfinite(r.params), axis=1)
     return np.where(better[:, None], r.params, start)
 
 
-def fit_member(member: str, rows, T, Y, W, times, span: float) -> MemberFit:
+def fit_member(member: str, rows, T, Y, W, times, span: float, start=None) -> MemberFit:
     """Fit ``member`` to the traces ``rows`` of T, Y, W (times from each trace's first reading,
     readings relative to it, weights 0 or 1, ``times`` representative of the columns): from
-    the grid (:func:`grid_optimum`), polished where the member has two shape parameters; c and
-    v by least squares at the shape found, and v's weights from the Jacobian there."""
+    the grid (:func:`grid_optimum`) or the shapes ``start`` (R, 3: k, rho, L), polished where
+    the member has two shape parameters; c and v by least squares at the shape found, and v's
+    weights from the Jacobian there."""
     rows = np.asarray(rows, dtype=int)
     T, Y, W = T[rows], Y[rows], W[rows]
     R = rows.size
     one = np.ones((R, 1))
     if member == "line":
         shape = np.zeros((R, 3))
+    elif start is not None:
+        shape = np.asarray(start, float)
     else:
         shape, _ = grid_optimum(member, times, Y, W, span)
     if len(MEMBERS[member]) == 4 and R:
         F = progress(T, 0.0, 1.0, *(shape[:, j:j + 1] for j in range(3)))
         start = np.column_stack([*_line_in_f(F, Y, W), shape])
         shape = _polish(member, T, Y, W, start, span)[:, 2:]
-    J = progress_jac(T, 0 * one, one, *(shape[:, j:j + 1] for j in range(3)))
+    J = progress_jac(T, 0 * one, one, *(shape[:, j:j + 1] for j in range(3)),
+                     want=MEMBERS[member])
     F = J[:, :, 1]
     c, v = _line_in_f(F, Y, W)
     fitted = c[:, None] + v[:, None] * F
@@ -311,8 +316,10 @@ LAG_SCREEN = 4.0
 CURVED_CHI2 = 10.83
 #: The Michaelis–Menten shape is tried where the exponential converts this much by the end
 #: (below it the exponential's initial slope is off by under 0.5 % for any rho in range,
-#: tests/test_slopes_curves.py).
+#: tests/test_slopes_curves.py), always fitted from MM_SURE on (where the exponential may be
+#: 1 % off), below it where a grid point already beats the exponential.
 MM_FROM = 0.2
+MM_SURE = 0.4
 
 
 @dataclass(frozen=True)
@@ -388,12 +395,24 @@ def _lags(prep, out: dict, exp: MemberFit, line_rss, sigma2) -> np.ndarray:
         sigma2[rows], exp.rss / np.maximum(exp.dof, 1)))
     gain = exp.rss - lag.rss
     take = ((gain > LAG_CHI2 * s2) | (speeds & (gain >= 0))) & (lag.params[:, 4] > 0)
-    _, grid_le = grid_optimum("lag-exp", prep.times, prep.Yc[rows], prep.W[rows], prep.span)
-    try_le = take | ((exp.rss - grid_le) > (LAG_CHI2 + CURVED_CHI2 - LAG_SCREEN) * s2)
+    # a lag followed by a slowing rate: looked for where a lag is taken, or where neither the
+    # exponential nor the straight lag follows the readings within their noise
+    misfit = np.minimum(exp.rss, lag.rss) > stats.chi2.ppf(0.99, np.maximum(exp.dof, 1)) * (
+        sigma2[rows])
+    look = take | misfit
+    try_le = look.copy()
+    start = np.array(lag.params[:, 2:])
+    if look.any():
+        shape, grid_le = grid_optimum("lag-exp", prep.times, prep.Yc[rows[look]],
+                                      prep.W[rows[look]], prep.span)
+        try_le[look] = take[look] | ((exp.rss[look] - grid_le) > (
+            LAG_CHI2 + CURVED_CHI2 - LAG_SCREEN) * s2[look])
+        start[look] = np.where((grid_le < lag.rss[look])[:, None], shape, start[look])
     spread = np.zeros(rows.size)
     if try_le.any():
         sel = np.nonzero(try_le)[0]
-        le = fit_member("lag-exp", rows[sel], prep.Tc, prep.Yc, prep.W, prep.times, prep.span)
+        le = fit_member("lag-exp", rows[sel], prep.Tc, prep.Yc, prep.W, prep.times, prep.span,
+                        start[sel])
         evident, spread[sel] = _richer(lag, le, sel, sigma2[rows[sel]])
         evident &= (le.params[:, 2] > 0) & (le.params[:, 4] > 0) & (
             take[sel] | ((exp.rss[sel] - le.rss) > (LAG_CHI2 + CURVED_CHI2) * s2[sel]))
@@ -412,16 +431,26 @@ def _mm(prep, out: dict, exp: MemberFit, sigma2, exclude) -> None:
     sel = np.nonzero((conv >= MM_FROM) & ~np.isin(exp.rows, exclude))[0]
     if not sel.size:
         return
-    mm = fit_member("mm", exp.rows[sel], prep.Tc, prep.Yc, prep.W, prep.times, prep.span)
+    # polished where some grid shape already does better than the exponential, or where the
+    # exponential converts so much that its initial slope may be off by 1 % or more
+    shape, grid_mm = grid_optimum("mm", prep.times, prep.Yc[exp.rows[sel]],
+                                  prep.W[exp.rows[sel]], prep.span)
+    better = grid_mm < exp.rss[sel]
+    keep = better | (conv[sel] > MM_SURE)
+    start = np.where(better[:, None], shape, exp.params[sel, 2:])[keep]
+    sel = sel[keep]
+    if not sel.size:
+        return
+    mm = fit_member("mm", exp.rows[sel], prep.Tc, prep.Yc, prep.W, prep.times, prep.span, start)
     evident, spread = _richer(exp, mm, sel, sigma2[exp.rows[sel]])
     out["spread"][exp.rows[sel]] = spread
     _store(out, _subset(mm, evident))
 
 
-def fit_curves(prep, min_readings: int = 5) -> Curves:
+def fit_curves(prep, min_readings: int = 5, rich: bool = True) -> Curves:
     """The family's member for every trace with ``min_readings`` usable readings: the
     exponential, a lag where one is taken (:func:`_lags`), or the Michaelis–Menten shape where
-    the reaction goes far enough (:func:`_mm`)."""
+    the reaction goes far enough (:func:`_mm`); the exponential alone without ``rich``."""
     N, M = prep.Yc.shape
     rows = np.nonzero(prep.W.sum(axis=1) >= min_readings)[0]
     out = {"member": np.full(N, "", dtype=object), "params": np.full((N, 5), np.nan),
@@ -434,8 +463,9 @@ def fit_curves(prep, min_readings: int = 5) -> Curves:
         exp = fit_member("exp", rows, prep.Tc, prep.Yc, prep.W, prep.times, prep.span)
         _store(out, exp)
         sigma2 = prep.sigma ** 2
-        lagged = _lags(prep, out, exp, line_rss, sigma2)
-        _mm(prep, out, exp, sigma2, lagged)
+        if rich:
+            lagged = _lags(prep, out, exp, line_rss, sigma2)
+            _mm(prep, out, exp, sigma2, lagged)
     sigma = np.maximum(prep.sigma, np.sqrt(np.nan_to_num(out["rss"] / np.maximum(out["dof"],
                                                                                   1))))
     return Curves(out["member"].astype(str), out["params"], out["rss"], out["dof"],
