@@ -151,8 +151,11 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
     win = _window_stage(prep, curves, window, mp)
     # a curve that speeds up is no initial rate (see curves._lags): never reported
     eligible = ~((curves.member == "exp") & (curves.params[:, 2] < 0))
+    # where the curve speeds up, its slope at the last reading (choice.choose counts it)
+    t_last = prep.Tc[np.arange(prep.W.shape[0]), prep.last]
+    late = np.where(eligible, np.nan, slope_at(curves.params, t_last)) if curve else None
     method, slope, se, why = choose(estimator if curve else "window", win.line.b, win.line.se,
-                                    win.weights, curves, eligible & curve)
+                                    win.weights, curves, eligible & curve, late)
     if window != "auto":
         se = np.where(method == "window", win.line.se, se)
         why = np.where(method == "window", "window: fixed window", why)

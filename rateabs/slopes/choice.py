@@ -13,7 +13,7 @@ CHOICE_Z = 2.0
 MOVING_Z = 4.0
 
 
-def choose(estimator: str, win_b, win_se, win_weights, curves, eligible):
+def choose(estimator: str, win_b, win_se, win_weights, curves, eligible, late=None):
     """Per trace: method ("window", "curve" or "none"), the reported slope and SE, and why.
 
     ``curves`` is the whole-curve estimate (:class:`rateabs.slopes.curves.Curves`); only the
@@ -22,8 +22,11 @@ def choose(estimator: str, win_b, win_se, win_weights, curves, eligible):
     A window slope shallower than the curve's initial slope by d may carry that much curvature
     bias (substrate depletion, product inhibition and enzyme loss all slow a reaction down), so
     the window's SE is sqrt(SE^2 + d^2 + spread^2), spread being the curve's model uncertainty;
-    a window steeper than the curve carries no such bias (a rate that speeds up is a lag's
-    business), nor does a flat trace (no product, no depletion).
+    a window steeper than the curve carries no such bias, nor does a flat trace (no product,
+    no depletion). Where the curve speeds up and no lag was taken (not ``eligible``), the
+    window may lie anywhere between the curve's initial and final slopes: its SE counts the
+    difference from the final slope ``late`` (the rate that a lag not yet over may reach, or a
+    depletion the noise hid).
     """
     has_w = np.isfinite(win_b)
     v, spread = curves.v, curves.spread
@@ -46,13 +49,16 @@ def choose(estimator: str, win_b, win_se, win_weights, curves, eligible):
     with np.errstate(invalid="ignore"):
         flows = np.abs(win_b) > MOVING_Z * win_se           # the window itself is not flat
     slow = np.where(flows, np.minimum(d * np.sign(v), 0.0), 0.0)
-    win_total = np.sqrt(win_se ** 2 + slow ** 2 + np.where(has_c & flows, spread, 0.0) ** 2)
+    fast = np.zeros_like(slow) if late is None else np.where(
+        flows & ~eligible & np.isfinite(late), np.abs(np.nan_to_num(late) - win_b), 0.0)
+    win_total = np.sqrt(win_se ** 2 + slow ** 2 + fast ** 2
+                        + np.where(has_c & flows, spread, 0.0) ** 2)
     se = np.where(use_c, curves.se, np.where(use_w, win_total, np.nan))
-    why = _reasons(estimator, method, has_w, ok_c, h, moving)
+    why = _reasons(estimator, method, has_w, ok_c, h, moving, has_c & ~eligible)
     return method, slope, se, why
 
 
-def _reasons(estimator, method, has_w, has_c, h, moving) -> np.ndarray:
+def _reasons(estimator, method, has_w, has_c, h, moving, speeds) -> np.ndarray:
     """The choice in words, one short phrase per trace."""
     off = np.char.mod("%.1f", np.round(h, 1))
     if estimator != "auto":
@@ -62,11 +68,12 @@ def _reasons(estimator, method, has_w, has_c, h, moving) -> np.ndarray:
             method == "curve",
             np.char.add(np.char.add("curve: the window slope is ", off),
                         " SE off the curve's initial slope"),
+            np.where(speeds, "window: the curve speeds up (its final slope counted in the SE)",
             np.where(~has_c, "window: no whole-curve fit",
                      np.where((h > CHOICE_Z) & ~moving,
                               "window: the trace is flat (no curvature to correct)",
                               np.char.add(np.char.add("window: within ", off),
-                                          " SE of the curve's initial slope"))))
+                                          " SE of the curve's initial slope")))))
     base = np.where((method == "curve") & ~has_w,
                     "curve: too few readings for a straight window", base)
     return np.where(method == "none", "no rate: too few usable readings", base)

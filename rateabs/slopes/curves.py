@@ -259,7 +259,7 @@ def _polish(member, T, Y, W, start, span):
     lo = np.array([-np.inf, -np.inf, 0.0, RHO_RANGE[0], 0.0])
     hi = np.array([np.inf, np.inf, 25.0 / span, RHO_RANGE[1], 0.5 * span])
     free = MEMBERS[member]
-    r = batch_lm(progress, T, Y, W, start, free=list(free), lower=lo, upper=hi, max_iter=10,
+    r = batch_lm(progress, T, Y, W, start, free=list(free), lower=lo, upper=hi, max_iter=15,
                  xtol=1e-6, ftol=1e-7, jac=partial(progress_jac, want=free))
     better = np.isfinite(r.rss) & np.all(np.isfinite(r.params), axis=1)
     return np.where(better[:, None], r.params, start)
