@@ -154,8 +154,10 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
     # where the curve speeds up, its slope at the last reading (choice.choose counts it)
     t_last = prep.Tc[np.arange(prep.W.shape[0]), prep.last]
     late = np.where(eligible, np.nan, slope_at(curves.params, t_last)) if curve else None
-    method, slope, se, why = choose(estimator if curve else "window", win.line.b, win.line.se,
-                                    win.weights, curves, eligible & curve, late)
+    # a fixed window is reported unless the curve is asked for (docstring)
+    est = "window" if not curve or (window != "auto" and estimator == "auto") else estimator
+    method, slope, se, why = choose(est, win.line.b, win.line.se, win.weights, curves,
+                                    eligible & curve, late)
     if window != "auto":
         se = np.where(method == "window", win.line.se, se)
         why = np.where(method == "window", "window: fixed window", why)

@@ -491,3 +491,21 @@ def slope_at(params, t) -> np.ndarray:
     with np.errstate(all="ignore"):
         on = np.where(lag > 0, -np.expm1(-t / np.where(lag > 0, lag, 1.0)), 1.0)
     return v * (1 - z) / (1 - rho * z) * on
+
+
+def without_start(prep, curves: Curves, skip: int) -> tuple[np.ndarray, np.ndarray]:
+    """The initial slope (still at the first reading's time) and its SE of every trace's
+    member ("exp" or "mm"; NaN for the others) fitted again without its first ``skip`` used
+    readings: a check that the start of the read follows the same curve as the rest."""
+    N = prep.W.shape[0]
+    v, se = np.full(N, np.nan), np.full(N, np.nan)
+    W = prep.W * (np.cumsum(prep.W, axis=1) > skip)
+    for member in ("exp", "mm"):
+        rows = np.nonzero((curves.member == member) & (W.sum(axis=1) >= 5 + skip))[0]
+        if not rows.size:
+            continue
+        start = curves.params[rows, 2:] if member == "mm" else None
+        fit = fit_member(member, rows, prep.Tc, prep.Yc, W, prep.times, prep.span, start)
+        v[rows] = fit.params[:, 1]
+        se[rows] = curves.sigma[rows] * np.sqrt(np.sum(fit.v_weights ** 2, axis=1))
+    return v, se

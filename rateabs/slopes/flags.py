@@ -10,7 +10,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import stats
 
-from .curves import CURVED_CHI2
+from .choice import MOVING_Z
+from .curves import CURVED_CHI2, without_start
 
 #: Trace flags of the initial-rate estimator; each says why the reported number may be wrong.
 TRACE_FLAGS = {
@@ -22,10 +23,13 @@ TRACE_FLAGS = {
               "their noise (a jump, drift or mixing artefact?): the rate may be off",
     "speeds-up": "the rate speeds up through the read and no lag fits it: the final rate may "
                  "be higher than the one reported",
-    "noisy": "the readings are far noisier than the plate's usual (over three times its median "
-             "noise) and the rate's SE is large against the plate's rates (over the noisy limit "
-             "times the larger of the rate and the plate's typical rate): a bubble, a "
-             "precipitate or a lamp fault?",
+    "start": "the first readings do not follow the curve of the rest (mixing, a settling "
+             "baseline or temperature): the initial slope changes beyond its SE when they are "
+             "left out",
+    "noisy": "the rate's SE is large against the plate's rates (over the noisy limit times the "
+             "larger of the rate and the plate's typical rate) because the readings are far "
+             "noisier than the plate's usual (three times its median noise: a bubble, a "
+             "precipitate, a lamp fault?), or ten times larger than that whatever the noise",
 }
 
 #: A lag is long when its time constant exceeds this fraction of the read (three time
@@ -35,6 +39,10 @@ LONG_LAG = 0.25
 #: and by this factor in variance.
 MISFIT_P = 1e-4
 MISFIT_RATIO = 1.5
+#: The start check leaves out this fraction of the readings (at least 3) and marks a trace whose
+#: initial slope then moves by more than START_Z SEs of the change and by 5 % of the slope.
+START_SKIP = 0.1
+START_Z = 4.0
 #: The plate's typical rate, for ``noisy``: this quantile of the traces' absolute rates.
 TYPICAL_QUANTILE = 0.9
 #: A trace is noisy when its noise SD exceeds this many times the plate's median noise SD (the
@@ -43,6 +51,8 @@ NOISE_EXCESS = 3.0
 #: ... or this absolute SD in signal units (absorbance: an ordinary reader stays well below it,
 #: common practice), which also covers a single trace.
 NOISE_ABSOLUTE = 0.02
+#: Whatever the noise, a rate whose SE exceeds this many times the noisy limit is noisy.
+NOISY_HOPELESS = 10.0
 
 
 def trace_flags(prep, curves, win, method, slope, se, min_points: int, noisy_limit: float,
@@ -62,8 +72,10 @@ def trace_flags(prep, curves, win, method, slope, se, min_points: int, noisy_lim
     sigma = prep.sigma
     loud = (sigma > NOISE_EXCESS * np.median(sigma)) | (sigma > NOISE_ABSOLUTE) if sigma.size \
         else np.zeros(0, bool)
-    noisy = loud & np.isfinite(se) & (se > noisy_limit * np.maximum(np.abs(slope), typical))
-    marks = np.column_stack([few, lag, misfit, speeds, noisy])
+    scale = noisy_limit * np.maximum(np.abs(slope), typical)
+    noisy = np.isfinite(se) & (((se > scale) & loud) | (se > NOISY_HOPELESS * scale))
+    start = _start(prep, curves, method)
+    marks = np.column_stack([few, lag, misfit, speeds, start, noisy])
     words = list(TRACE_FLAGS)
     return [[words[j] for j in np.flatnonzero(row)] for row in marks]
 
@@ -75,3 +87,20 @@ def _misfit(rss, dof, sigma) -> np.ndarray:
         ratio = rss / np.maximum(dof, 1) / sigma ** 2
         p = stats.chi2.sf(rss / sigma ** 2, np.maximum(dof, 1))
     return (dof > 0) & np.isfinite(rss) & (p < MISFIT_P) & (ratio > MISFIT_RATIO)
+
+
+def _start(prep, curves, method) -> np.ndarray:
+    """The ``start`` rule: the whole curve's initial slope moves when the first START_SKIP of
+    the readings are left out, by more than START_Z SEs of the change (the SE of an estimate
+    from fewer readings minus that from all, in quadrature) and by 5 % of the slope, where the
+    trace moves (its initial slope MOVING_Z SEs from zero)."""
+    skip = max(3, int(round(START_SKIP * prep.W.shape[1])))
+    v_late, se_late = without_start(prep, curves, skip)
+    v = curves.v
+    with np.errstate(all="ignore"):
+        sd = np.sqrt(np.maximum(se_late ** 2 - (curves.sigma * np.sqrt(np.sum(
+            curves.v_weights ** 2, axis=1))) ** 2, 0.0))
+        d = np.abs(v_late - v)
+        moves = np.abs(v) > MOVING_Z * curves.se            # a flat trace has no shape
+        return ((method != "none") & moves & np.isfinite(d) & (d > START_Z * sd)
+                & (d > 0.05 * np.abs(v)))
