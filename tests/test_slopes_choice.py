@@ -158,11 +158,13 @@ def test_contract_fields_and_flag_meanings():
     assert all(isinstance(m, str) and m for m in TRACE_FLAGS.values())
 
 
-def test_flag_calibration_goals_on_seeded_plates():
-    """The calibration benchmark (benchmarks/flag_calibration.py) in small: two seeded plates;
-    good wells (within 5 % or 3 SE of the solve_ivp truth) rarely flagged, wells that need a
-    look mostly flagged. The bounds leave room for the seeds, not for the goals' failure: the
-    full figures are in the benchmark's output."""
+def test_flag_calibration_on_seeded_plates():
+    """The calibration benchmark (benchmarks/flag_calibration.py) in small: two seeded plates,
+    truth by solve_ivp. Good wells (within 5 % or 3 SE of the truth) are flagged at most 10 %
+    of the time (the issue's goal; 7 % here). Wells that need a look are flagged 64 % of the
+    time here, short of the goal of 90 % (lags with depletion and a settling baseline escape):
+    the bound guards what the flags reach now, and the benchmark prints the full figures."""
     cal = calibrate([simulate_plate(seed) for seed in (101, 102)])
+    assert cal.n_bad >= 5
     assert cal.good_flagged <= 0.10
-    assert cal.bad_flagged >= 0.3
+    assert cal.bad_flagged >= 0.5
