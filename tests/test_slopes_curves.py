@@ -67,3 +67,23 @@ def test_whole_curve_matches_curve_fit_on_the_integrated_equation(kappa, u, memb
         assert abs(w.curve_slope[0] - ref) < w.curve_slope_se[0]
     # and the slope is right: within 3 SE of the truth
     assert abs(w.curve_slope[0] - 0.8 * u / (1 + kappa)) < 3 * w.curve_slope_se[0]
+
+
+def first_order_approach(t, c, v, k):
+    """y = c + v (1 - exp(-k t)) / k: a first-order approach with initial slope v (product of
+    a first-order reaction, or enzyme lost at first order, Selwyn 1965)."""
+    return c + v * -np.expm1(-k * np.asarray(t, float)) / k
+
+
+@pytest.mark.parametrize("k", [1e-3, 3e-3, 6e-3])
+def test_exponential_from_the_grid_matches_curve_fit(k):
+    """Outside reference: scipy.optimize.curve_fit on the first-order approach; the package's
+    exponential member (grid and parabola, no iteration) reaches its initial slope within
+    0.02 of its SE."""
+    rng = np.random.default_rng(12)
+    t = np.arange(0, 601, 10.0)
+    y = first_order_approach(t, 0.2, 2e-4, k) + rng.normal(0, 0.002, t.size)
+    p, cov = curve_fit(first_order_approach, t, y, p0=(0.2, 2e-4, k))
+    w = find_windows(TraceSet.from_arrays(["A1"], t, y[None, :]).grid(), estimator="curve")
+    assert w.curve_model[0] == "exp"
+    assert abs(w.curve_slope[0] - p[1]) < 0.02 * w.curve_slope_se[0]

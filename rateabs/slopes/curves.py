@@ -26,8 +26,9 @@ Members: ``line`` (k = 0), ``exp`` (rho = 0), ``mm`` (rho free), ``lag`` (k = 0,
 The fit is separable: for fixed (k, rho, L) the curve is a straight line in F, so c and v follow
 from sums. Every trace is first fitted on a grid of (k, rho, L) at once (three matrix products
 over the traces x times array), and the optimum between grid points is found by parabolas
-through the best point and its neighbours (within 0.02 SE of a converged Levenberg–Marquardt
-fit in tests/test_slopes_curves.py). The analytic Jacobian there gives the SE of v.
+through the best point and its neighbours (the exponential's initial slope within 0.02 SE of
+scipy's curve_fit, tests/test_slopes_curves.py); members with two shape parameters are then
+polished by Levenberg–Marquardt. The analytic Jacobian there gives the SE of v.
 """
 
 from __future__ import annotations
@@ -314,10 +315,11 @@ LAG_SCREEN = 4.0
 #: A shape is evident when it lowers the simpler shape's residual sum of squares by this many
 #: noise variances (chi-square, 1 degree of freedom, p = 0.001).
 CURVED_CHI2 = 10.83
-#: The Michaelis–Menten shape is tried where the exponential converts this much by the end
-#: (below it the exponential's initial slope is off by under 0.5 % for any rho in range,
-#: tests/test_slopes_curves.py), always fitted from MM_SURE on (where the exponential may be
-#: 1 % off), below it where a grid point already beats the exponential.
+#: The Michaelis–Menten shape is tried where the exponential converts this much by the end,
+#: always fitted from MM_SURE on, below it where a grid point already beats the exponential.
+#: (A trace with S0 well above Km runs nearly straight until late: the exponential may then
+#: convert little yet start a few per cent low; benchmarks/flag_calibration.py finds about one
+#: such well in a hundred off by more than 3 SE.)
 MM_FROM = 0.2
 MM_SURE = 0.4
 
