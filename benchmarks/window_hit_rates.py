@@ -16,13 +16,13 @@ from rateabs.slopes import find_windows
 
 def main(n: int = 1000) -> None:
     print(f"{n} traces per case, 61 reads over 10 min, seeds 0..")
-    print("case        noise  whole-read  lag found  bend found  |err| window  within 3SE  "
+    print("case        noise  whole-read  lag found  bend found  |err| report  within 3SE  "
           "|err| curve")
     for noise in (0.001, 0.004):
         for seed, kind in enumerate(("linear", "lag", "depletion")):
             ts, truth = simulate(kind, n, 1000 + seed, noise=noise)
             w = find_windows(ts.grid())
-            err = np.abs(w.slope / truth - 1)
+            err = np.abs(w.slope / truth - 1)           # the reported slope (auto)
             cerr = np.abs(w.curve_slope / truth - 1)
             print(f"{kind:<11} {noise:5.3f}  {np.mean(w.end_reason == 0):10.2f} "
                   f"{np.mean(w.lag_s > 0):10.2f} {np.mean(np.isin(w.end_reason, [2, 3])):11.2f} "

@@ -90,7 +90,7 @@ MIN_POINTS = Number(3, math.inf, integer=True, unit="readings", example="5")
 DILUTION = Number(1, math.inf, unit="fold; 10 for a 1:10 dilution", example="10")
 BLANK_MODES = ("auto", "slope", "trace", "none")
 DIRECTIONS = ("auto", "up", "down")
-SLOPE_SOURCES = ("window", "curve")
+SLOPE_SOURCES = ("auto", "window", "curve")
 CALIBRATION = ("auto", "standards", "none")
 FIX = Pairs(Pair(Number(example="120"), example="Km=120"))
 
@@ -282,9 +282,9 @@ def _katal():
 
 
 def _slope_from():
-    return option("--slope-from", OneOf(SLOPE_SOURCES, "curve"), "Report the straight-window "
-                  "slope, or the initial slope of the whole-curve fit (better when substrate "
-                  "depletion bends every trace).", "window")
+    return option("--slope-from", OneOf(SLOPE_SOURCES, "auto"), "Which initial slope to "
+                  "report: auto (per trace, by evidence: the whole-curve fit where the trace "
+                  "bends, else the straight window), or always the window or the curve.", "auto")
 
 
 def _curve():

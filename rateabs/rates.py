@@ -5,29 +5,26 @@ concentration and activity, replicates, Z' and the plate-level flags.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 from scipy import stats
 
-from .errors import InputError, UsageError
+from .errors import InputError
 from .options import RateSettings
-from .slopes import WindowEnd, Windows, find_windows, quiet_numpy, window_min_points
+from .slopes import TRACE_FLAGS, WindowEnd, Windows, find_windows, quiet_numpy
 from .traces import TraceSet
 
-#: Per-trace flags: short words of our own, documented in docs/formats.md.
+#: Flags of a well: the trace flags of the initial-rate estimator (:data:`slopes.TRACE_FLAGS`)
+#: and the plate-level ones; short words of our own, documented in docs/formats.md.
 FLAGS = {
-    "lag": "the window starts after a lag phase",
-    "curved": "curvature ends the straight stretch before the end of the read",
-    "no-linear": "no straight stretch was found; the whole-curve estimate is reported",
-    "few-points": "too few usable readings for a rate",
+    **TRACE_FLAGS,
     "past-linear": "readings above the linear absorbance limit were masked",
     "overflow": "the instrument marked readings as over range; they were masked",
-    "noisy": "the slope's relative standard error is above the threshold",
-    "over-10pct": "more than 10 % of the substrate was used within the window",
+    "over-10pct": "more than 10 % of the substrate was used within the straight window whose "
+                  "slope is reported",
     "blank-drift": "a blank well changes significantly over the read",
-    "disagree": "window slope and whole-curve initial slope disagree",
     "reversed": "the signal moves opposite to the plate's assay direction",
     "outlier": "the well is an outlier among its replicates (Grubbs test)",
 }
@@ -111,20 +108,14 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
 
     analysed = _blank_trace_subtract(ts, blanks) if mode == "trace" else ts
     g = analysed.grid()
-    if st.slope_from == "curve" and not st.curve:
-        raise UsageError("--slope-from curve needs the whole-curve fit", "drop --no-curve")
-    win = find_windows(g, window=st.window, min_points=st.min_points, curve=st.curve)
+    win = find_windows(g, window=st.window, min_points=st.min_points, curve=st.curve,
+                       estimator=st.slope_from, noisy_limit=st.noisy_rel_se)
     raw_g = ts.grid() if mode == "trace" else g
     raw_win = find_windows(raw_g, window=st.window, min_points=st.min_points, curve=False) if (
         mode == "trace") else win
 
-    window_found = np.isfinite(win.slope)
-    if st.slope_from == "curve":
-        win = replace(win, method=np.where(np.isfinite(win.curve_slope), "curve", "none"))
-    elif st.slope_from != "window":
-        raise UsageError(f"unknown slope source {st.slope_from!r}", "use window or curve")
-    slope = np.where(win.method == "curve", win.curve_slope, win.slope) * 60.0   # per min
-    slope_se = np.where(win.method == "curve", win.curve_slope_se, win.slope_se) * 60.0
+    slope = win.slope * 60.0                                       # per min
+    slope_se = win.slope_se * 60.0
     raw_slope = raw_win.slope * 60.0
     is_blank = np.array([n in blanks for n in g.names])
     blank_slope = blank_se = np.nan
@@ -152,37 +143,23 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
         direction = 1.0 if st.direction == "up" else -1.0
     blank_info["direction"] = "up" if direction > 0 else "down"
 
-    # per-trace columns and flags, as whole arrays (no per-trace arithmetic in Python)
+    # per-trace columns and the plate-level flags, as whole arrays
     m = meta.loc[g.names]
-    n_use = g.usable.sum(axis=1)
-    min_n = window_min_points(g.values.shape[1], st.min_points)
     method = np.asarray(win.method).astype(str)
     cs, cse = win.curve_slope * 60, win.curve_slope_se * 60
-    raw_b, raw_se = win.slope * 60, win.slope_se * 60
-    not_ctrl = ~np.isin(roles, ["blank", "negative", "standard"])
     with np.errstate(all="ignore"), quiet_numpy():     # no usable sample slope: med is NaN
-        rel = slope_se / np.abs(slope)
-        diff = np.abs(cs - raw_b)
         med = np.nanmedian(np.abs(slope[sample_like])) if sample_like.any() else np.nan
         blank_sig = np.abs(raw_slope) > 3 * raw_win.slope_se * 60
     masks = {
-        "few-points": (method == "none") & (n_use < min_n),
-        "no-linear": ((method == "none") & (n_use >= min_n))
-                     | ((method == "curve") & ~window_found),
-        "lag": win.lag_s > 0,
-        "curved": np.isin(win.end_reason, [WindowEnd.SLOWS, WindowEnd.SPEEDS_UP]),
-        "noisy": np.isfinite(rel) & (rel > st.noisy_rel_se) & not_ctrl,
-        "disagree": (method == "window") & not_ctrl & np.isfinite(cs) & np.isfinite(cse)
-                    & (diff > 3 * np.hypot(cse, raw_se)) & (diff > 0.15 * np.abs(raw_b)),
         "blank-drift": (roles == "blank") & np.nan_to_num(blank_sig)
                        & (~np.isfinite(med) | (np.abs(raw_slope) > 0.05 * med)),
         "reversed": sample_like & np.isfinite(slope) & (slope * direction < 0)
                     & (np.abs(slope) > 3 * slope_se),
     }
     cols = {"trace": g.names, "role": roles, "sample": m["sample"].fillna("").to_numpy(),
-            "group": m["group"].to_numpy(), "method": method,
+            "group": m["group"].to_numpy(), "method": method, "choice": win.choice,
             "slope_A_per_min": slope, "slope_A_per_min_se": slope_se,
-            "slope_raw_A_per_min": np.where(method == "window", raw_b, cs),
+            "slope_raw_A_per_min": win.slope * 60,
             "window_start_s": win.t_start, "window_end_s": win.t_end,
             "n_points": np.nan_to_num(win.n).astype(int), "r2": win.r2, "lag_s": win.lag_s,
             "window_end_reason": [WindowEnd(int(r)).text for r in win.end_reason],
@@ -206,7 +183,8 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
         s0 = cols["substrate_uM"]
         dur = (win.t_end - win.t_start) / 60.0
         with np.errstate(invalid="ignore"):
-            masks["over-10pct"] = (roles == "sample") & (s0 > 0) & (np.abs(rate) * dur > 0.1 * s0)
+            masks["over-10pct"] = ((roles == "sample") & (s0 > 0) & (method == "window")
+                                   & (np.abs(rate) * dur > 0.1 * s0))
         if st.total_volume_L and st.sample_volume_L:
             dil = m["dilution"].fillna(st.dilution).to_numpy(float)
             scale = np.where(roles != "blank", st.total_volume_L / (st.sample_volume_L * 1e3) * dil,
@@ -223,14 +201,13 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
                 cols["specific_activity_U_per_mg"] = np.where(ok_p, rate * scale / prot, np.nan)
                 cols["specific_activity_U_per_mg_se"] = np.where(ok_p, rate_se * scale / prot,
                                                                   np.nan)
-    # reading flags (overflow, past-linear), then the trace flags in a fixed order
+    # reading flags (overflow, past-linear), the trace flags, then the plate-level ones
     per = {n: [f for f in fl if f != "missing"] for n, fl in analysed.reading_flags().items()}
-    order = ["few-points", "no-linear", "lag", "curved", "noisy", "disagree", "blank-drift",
-             "reversed", "over-10pct"]
+    order = ["blank-drift", "reversed", "over-10pct"]
     stacked = np.column_stack([masks[k] for k in order if k in masks])
     names_ = [k for k in order if k in masks]
-    cols["flags"] = [per.get(n, []) + [names_[j] for j in np.nonzero(row)[0]]
-                     for n, row in zip(g.names, stacked, strict=True)]
+    cols["flags"] = [per.get(n, []) + tf + [names_[j] for j in np.nonzero(row)[0]]
+                     for n, tf, row in zip(g.names, win.flags, stacked, strict=True)]
     table = pd.DataFrame(cols)
     value_col = "rate_uM_per_min" if eps else "slope_A_per_min"
     reps, outliers = replicate_summary(table, value_col)

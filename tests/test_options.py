@@ -311,8 +311,8 @@ def test_rates_window_and_flag_options_are_used():
     base = _rates()
     w = "K1"
     assert _rates("--window", "60-240")[w]["window_start_s"] >= 60
-    assert base["K6"]["n_points"] == 8              # K6 overflows after eight readings
-    assert "no-linear" in _rates("--min-points", "15")["K6"]["flags"]
+    assert base["K6"]["n_points"] < 15              # K6 bends and overflows early
+    assert _rates("--min-points", "15")["K6"]["n_points"] >= 15
     assert sum("noisy" in r["flags"] for r in _rates("--noisy-limit", "0.0001").values()) > sum(
         "noisy" in r["flags"] for r in base.values())
     assert sum("past-linear" in r["flags"] for r in _rates("--linear-limit", "0.5").values()) > (

@@ -31,9 +31,9 @@ def test_window_slopes_equal_polyfit_and_linregress():
         sel = slice(w.start[i], w.end[i] + 1)
         t, y = g.times[i][sel], g.values[i][sel]
         assert w.n[i] == t.size
-        assert w.slope[i] == pytest.approx(np.polyfit(t, y, 1)[0], rel=1e-9)
+        assert w.window_slope[i] == pytest.approx(np.polyfit(t, y, 1)[0], rel=1e-9)
         lr = stats.linregress(t, y)
-        assert w.slope_se[i] == pytest.approx(lr.stderr, rel=1e-7)
+        assert w.window_slope_se[i] == pytest.approx(lr.stderr, rel=1e-7)
         assert w.r2[i] == pytest.approx(lr.rvalue ** 2, rel=1e-7)
 
 

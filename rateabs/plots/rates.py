@@ -43,20 +43,15 @@ def rate_traces(analysis, out, stem: str = "rates", per_page: int = 24) -> list:
                     t0, t1 = w.t_start[i] / 60, w.t_end[i] / 60
                     ax.axvspan(t0, t1, color=SHADE, alpha=0.12, lw=0)
                     tt = np.linspace(t0, t1, 2)
-                    ax.plot(tt, w.intercept[i] + w.slope[i] * tt * 60, color=PALETTE[1], lw=1.3)
-                    res = y - (w.intercept[i] + w.slope[i] * g.times[i])
+                    ax.plot(tt, w.intercept[i] + w.window_slope[i] * tt * 60, color=PALETTE[1],
+                            lw=1.3)
+                    res = y - (w.intercept[i] + w.window_slope[i] * g.times[i])
                     inside = ok & (g.times[i] >= w.t_start[i]) & (g.times[i] <= w.t_end[i])
                     axr.plot(t[inside], res[inside] * 1e3, ".", ms=2.5, color=PALETTE[0])
                     axr.plot(t[ok & ~inside], res[ok & ~inside] * 1e3, ".", ms=2.5, color=GRID)
-                if np.isfinite(w.curve_slope[i]):
-                    c, v0, kk = w.curve_params[i]
-                    ts0 = w.t_start[i] if np.isfinite(w.t_start[i]) else 0.0
-                    y0 = y[ok][0] if ok.any() else 0.0
-                    tau = np.linspace(0, np.nanmax(g.times[i][ok]) - ts0, 60)
-                    from ..slopes import rate_curve
-                    base = y0 - g.values[i][ok][0] if ok.any() else 0.0
-                    ax.plot((tau + ts0) / 60, y0 + rate_curve(tau, c, v0, kk) - base, ":", lw=1.0,
-                            color=INK)
+                if np.isfinite(w.curve_slope[i]) and ok.any():
+                    tc = np.linspace(np.nanmin(g.times[i][ok]), np.nanmax(g.times[i][ok]), 60)
+                    ax.plot(tc / 60, w.curve_values(i, tc), ":", lw=1.0, color=INK)
                 axr.axhline(0, color=INK, lw=0.6)
                 role = table.loc[name, "role"]
                 ax.set_title(f"{name} ({role})" + (f"\n{','.join(flags)}" if flags else ""),

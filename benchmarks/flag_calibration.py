@@ -1,0 +1,158 @@
+"""Calibration of the trace flags on simulated plates with known truth.
+
+Each plate mixes the conditions a bench scientist meets: enzyme wells converting 1 % to 80 % of
+their substrate by the last reading (S0 from Km/5 to 5 Km), hysteretic lags, a straight
+baseline drift, a baseline that settles in the first minute, single-reading spikes, three
+ordinary noise levels (0.001, 0.002, 0.005 A) and a few very noisy wells (0.02 A), flat blanks
+and near-zero controls. The truth is the initial rate of the fully active enzyme, from
+Michaelis–Menten turnover integrated with scipy.integrate.solve_ivp (tests/kinetics_truth.py,
+independent of the package), plus the straight drift where there is one: a straight drift is
+part of the trace's own initial slope, and taking it out is the plate's business (the blanks'
+slope, rates.py), not something one trace can tell from its readings. Every plate is seeded.
+
+The rule: a well **needs a look** when its reported rate is off the truth by more than 5 % of
+the truth AND by more than 3 of its reported SEs; every other well is **good**. For each flag
+the benchmark prints how many wells carry it, its precision (the share of them that need a
+look) and its recall (the share of the wells that need a look that carry it), then the two goals
+of the flags: among good wells at most 10 % carry any flag; among wells that need a look at
+least 90 % carry one.
+
+    python benchmarks/flag_calibration.py [n_plates]
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path[:0] = [str(ROOT), str(ROOT / "tests")]
+from kinetics_truth import mm_progress  # noqa: E402
+
+from rateabs.slopes import TRACE_FLAGS, find_windows  # noqa: E402
+from rateabs.traces import TraceSet  # noqa: E402
+
+#: The conditions of a plate and how many wells of 96 each gets.
+CONDITIONS = {"clean": 40, "lag": 10, "drift": 8, "settle": 8, "spikes": 10, "very-noisy": 4,
+              "blank": 10, "near-zero": 6}
+TIMES = np.arange(0.0, 601.0, 10.0)
+
+
+@dataclass(frozen=True)
+class Plate:
+    """A simulated plate: its traces, the true initial rates (A/s), each well's condition, and
+    the fraction of substrate the fully active enzyme converts by the last reading."""
+
+    traces: TraceSet
+    truth: np.ndarray
+    condition: np.ndarray
+    depletion: np.ndarray
+
+
+def simulate_plate(seed: int, times=TIMES) -> Plate:
+    """One seeded 96-well plate of :data:`CONDITIONS` (module docstring)."""
+    rng = np.random.default_rng(seed)
+    cond = np.repeat(list(CONDITIONS), list(CONDITIONS.values()))
+    ys, truth, conv = [], [], []
+    for c in cond:
+        depletion = np.exp(rng.uniform(np.log(0.01), np.log(0.8)))
+        s0_km = np.exp(rng.uniform(np.log(0.2), np.log(5.0)))
+        v0 = rng.uniform(0.5, 3.0) * 1e-4 if c != "near-zero" else rng.uniform(2, 6) * 1e-6
+        v0 = 0.0 if c == "blank" else v0
+        lag = rng.uniform(20, 150) if c == "lag" else 0.0
+        noise = rng.choice([0.001, 0.002, 0.005]) if c != "very-noisy" else 0.02
+        kappa = 1.0 / s0_km
+        u = (depletion - kappa * np.log1p(-depletion)) / times[-1]     # V/S0 reaching it
+        x = mm_progress(times, u, kappa, lag)
+        y = 0.2 + v0 / (u / (1 + kappa)) * x if v0 else np.full(times.size, 0.2)
+        if c == "drift":
+            drift = rng.choice([-1, 1]) * rng.uniform(0.05, 0.3) * v0
+            y = y + drift * times
+            v0 = v0 + drift
+        if c == "settle":
+            y = y + rng.choice([-1, 1]) * rng.uniform(0.005, 0.03) * np.exp(-times / 40.0)
+        y = y + rng.normal(0, noise, times.size)
+        if c == "spikes":
+            at = rng.choice(times.size, size=rng.integers(1, 3), replace=False)
+            y[at] += rng.choice([-1, 1], at.size) * rng.uniform(10, 30, at.size) * noise
+        ys.append(y)
+        truth.append(v0)
+        conv.append(depletion * (c not in ("blank", "near-zero")))
+    names = [f"{chr(65 + i // 12)}{i % 12 + 1}" for i in range(cond.size)]
+    return Plate(TraceSet.from_arrays(names, times, np.array(ys)), np.array(truth), cond, np.array(conv))
+
+
+def needs_a_look(slope, se, truth) -> np.ndarray:
+    """The rule of the module docstring: off by more than 5 % and more than 3 SE (a rate that
+    is missing needs a look too)."""
+    err = np.abs(slope - truth)
+    with np.errstate(invalid="ignore"):
+        return ~np.isfinite(slope) | ((err > 0.05 * np.abs(truth)) & (err > 3 * se))
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """Per-flag counts, precision and recall, and the two goal figures."""
+
+    per_flag: dict
+    n_good: int
+    n_bad: int
+    good_flagged: float
+    bad_flagged: float
+    by_condition: dict
+
+
+def calibrate(plates: list[Plate]) -> Calibration:
+    """Run the auto estimator on every plate and score its flags (module docstring)."""
+    bad, flags, cond = [], [], []
+    for p in plates:
+        w = find_windows(p.traces.grid())
+        bad.append(needs_a_look(w.slope, w.slope_se, p.truth))
+        flags.extend(w.flags)
+        cond.append(p.condition)
+    bad, cond = np.concatenate(bad), np.concatenate(cond)
+    flagged = np.array([bool(f) for f in flags])
+    per_flag = {}
+    for word in TRACE_FLAGS:
+        has = np.array([word in f for f in flags])
+        per_flag[word] = (int(has.sum()), float(np.mean(bad[has])) if has.any() else np.nan,
+                          float(np.mean(has[bad])) if bad.any() else np.nan)
+    by_condition = {c: (int(np.sum(cond == c)), int(np.sum(bad & (cond == c))),
+                        int(np.sum(flagged & (cond == c))),
+                        int(np.sum(flagged & bad & (cond == c)))) for c in CONDITIONS}
+    return Calibration(per_flag, int((~bad).sum()), int(bad.sum()),
+                       float(np.mean(flagged[~bad])) if (~bad).any() else 0.0,
+                       float(np.mean(flagged[bad])) if bad.any() else 1.0, by_condition)
+
+
+def main(n_plates: int = 20) -> None:
+    """Print the calibration figures over ``n_plates`` seeded plates."""
+    plates = [simulate_plate(seed) for seed in range(n_plates)]
+    t0 = time.perf_counter()
+    cal = calibrate(plates)
+    t_auto = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    for p in plates:
+        find_windows(p.traces.grid(), curve=False)
+    t_window = time.perf_counter() - t0
+    print(f"{n_plates} plates x 96 wells, 61 readings over 10 min, seeds 0..{n_plates - 1}")
+    print("needs a look: off the truth by more than 5 % AND more than 3 SE")
+    print(f"{'flag':<12} {'count':>6} {'precision':>10} {'recall':>8}")
+    for word, (count, prec, rec) in cal.per_flag.items():
+        print(f"{word:<12} {count:6d} {prec:10.2f} {rec:8.2f}")
+    print(f"{'condition':<12} {'wells':>6} {'need look':>10} {'flagged':>8} {'both':>6}")
+    for c, (n, nb, nf, both) in cal.by_condition.items():
+        print(f"{c:<12} {n:6d} {nb:10d} {nf:8d} {both:6d}")
+    print(f"good wells: {cal.n_good}, flagged {cal.good_flagged:.1%} (goal: at most 10 %)")
+    print(f"wells that need a look: {cal.n_bad}, flagged {cal.bad_flagged:.1%} "
+          f"(goal: at least 90 %)")
+    print(f"time: auto estimator {t_auto:.2f} s, straight window alone {t_window:.2f} s "
+          f"(ratio {t_auto / max(t_window, 1e-9):.1f})")
+
+
+if __name__ == "__main__":
+    main(int(sys.argv[1]) if len(sys.argv) > 1 else 20)

@@ -1,0 +1,79 @@
+"""The estimator's choice between the straight window and the whole curve, and the SE it
+reports."""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: The whole curve replaces the straight window when the two initial slopes differ by more
+#: than this many SEs of their difference (the window then carries curvature bias) ...
+CHOICE_Z = 2.0
+#: ... and the curve's initial slope is this many of its SEs away from zero (a flat trace has
+#: no curvature to correct, so its window slope stands).
+MOVING_Z = 4.0
+
+
+def choose(estimator: str, win_b, win_se, win_weights, curves, eligible, late=None):
+    """Per trace: method ("window", "curve" or "none"), the reported slope and SE, and why.
+
+    ``curves`` is the whole-curve estimate (:class:`rateabs.slopes.curves.Curves`); only the
+    ``eligible`` ones may be reported. Under ``auto`` the curve is taken when the window slope
+    is CHOICE_Z SEs off its initial slope and the trace moves (MOVING_Z); otherwise the window.
+    A window slope shallower than the curve's initial slope by d may carry that much curvature
+    bias (substrate depletion, product inhibition and enzyme loss all slow a reaction down), so
+    the window's SE is sqrt(SE^2 + d^2 + spread^2), spread being the curve's model uncertainty;
+    a window steeper than the curve carries no such bias, nor does a flat trace (no product,
+    no depletion). Where the curve speeds up and no lag was taken (not ``eligible``), the
+    window may lie anywhere between the curve's initial and final slopes: its SE counts the
+    difference from the final slope ``late`` (the rate that a lag not yet over may reach, or a
+    depletion the noise hid).
+    """
+    has_w = np.isfinite(win_b)
+    v, spread = curves.v, curves.spread
+    has_c = np.isfinite(v) & np.isfinite(curves.se)
+    d = np.where(has_w & has_c, win_b - v, 0.0)
+    sd = curves.sigma * np.sqrt(np.sum((win_weights - curves.v_weights) ** 2, axis=1))
+    with np.errstate(all="ignore"):
+        h = np.where(sd > 0, np.abs(d) / sd, 0.0)
+        moving = np.abs(v) > MOVING_Z * curves.se
+    ok_c = has_c & eligible
+    if estimator == "window":
+        use_c = ~has_w & ok_c
+    elif estimator == "curve":
+        use_c = ok_c
+    else:
+        use_c = ok_c & (~has_w | ((h > CHOICE_Z) & moving))
+    use_w = ~use_c & has_w
+    method = np.where(use_c, "curve", np.where(use_w, "window", "none"))
+    slope = np.where(use_c, v, np.where(use_w, win_b, np.nan))
+    with np.errstate(invalid="ignore"):
+        flows = np.abs(win_b) > MOVING_Z * win_se           # the window itself is not flat
+    slow = np.where(flows, np.minimum(d * np.sign(v), 0.0), 0.0)
+    fast = np.zeros_like(slow) if late is None else np.where(
+        flows & ~eligible & np.isfinite(late), np.abs(np.nan_to_num(late) - win_b), 0.0)
+    win_total = np.sqrt(win_se ** 2 + slow ** 2 + fast ** 2
+                        + np.where(has_c & flows, spread, 0.0) ** 2)
+    se = np.where(use_c, curves.se, np.where(use_w, win_total, np.nan))
+    why = _reasons(estimator, method, has_w, ok_c, h, moving, has_c & ~eligible)
+    return method, slope, se, why
+
+
+def _reasons(estimator, method, has_w, has_c, h, moving, speeds) -> np.ndarray:
+    """The choice in words, one short phrase per trace."""
+    off = np.char.mod("%.1f", np.round(h, 1))
+    if estimator != "auto":
+        base = np.where(method == "curve", "curve: asked for", "window: asked for")
+    else:
+        base = np.where(
+            method == "curve",
+            np.char.add(np.char.add("curve: the window slope is ", off),
+                        " SE off the curve's initial slope"),
+            np.where(speeds, "window: the curve speeds up (its final slope counted in the SE)",
+            np.where(~has_c, "window: no whole-curve fit",
+                     np.where((h > CHOICE_Z) & ~moving,
+                              "window: the trace is flat (no curvature to correct)",
+                              np.char.add(np.char.add("window: within ", off),
+                                          " SE of the curve's initial slope")))))
+    base = np.where((method == "curve") & ~has_w,
+                    "curve: too few readings for a straight window", base)
+    return np.where(method == "none", "no rate: too few usable readings", base)

@@ -1,0 +1,513 @@
+"""The whole-curve family of initial slopes and its batched fit.
+
+One family of progress curves, each member a special case with a name::
+
+    y(t) = c + v F(t),   F = z(k phi(t), rho) / k    (F = phi(t) in the limit k -> 0)
+
+* ``z`` is the fraction of the signal's full change reached, from the integrated
+  Michaelis–Menten equation (Schnell & Mendoza 1997, J. Theor. Biol. 187:207:
+  S = Km W[(S0/Km) exp((S0 - V t)/Km)]) written with rho = S0/(Km + S0) and k = V/(Km + S0):
+  rho z - (1 - rho) ln(1 - z) = k t. ``rho = 0`` is the exponential approach (substrate far
+  below Km, or first-order loss of enzyme at saturating substrate, Selwyn 1965, Biochim.
+  Biophys. Acta 105:193); ``rho`` near 1 runs straight until the substrate is nearly gone;
+  ``rho < 0`` is the same integrated form with competitive product inhibition
+  (t = a P + b ln(S0/(S0 - P)), the integrated rate equation with product inhibition, e.g.
+  Cornish-Bowden, Fundamentals of Enzyme Kinetics; from memory).
+* ``phi(t) = t - L (1 - exp(-t/L))`` switches the rate on with a first-order lag of time
+  constant ``L`` (a hysteretic enzyme, Frieden 1970, J. Biol. Chem. 245:5788; a coupled assay
+  whose coupling step is first order, McClure 1969, Biochemistry 8:2782); the final straight
+  part extrapolates to the time axis at t = L, the lag time. ``phi = t`` without a lag.
+* ``v`` is the initial slope: dy/dt at t = 0 without a lag; with a lag, the slope the fully
+  active enzyme has at the initial substrate, the number a lag-phase assay reports.
+
+Members: ``line`` (k = 0), ``exp`` (rho = 0), ``mm`` (rho free), ``lag`` (k = 0, L free) and
+``lag-exp`` (rho = 0, k and L free).
+
+The fit is separable: for fixed (k, rho, L) the curve is a straight line in F, so c and v follow
+from sums. Every trace is first fitted on a grid of (k, rho, L) at once (three matrix products
+over the traces x times array), and the optimum between grid points is found by parabolas
+through the best point and its neighbours (the exponential's initial slope within 0.02 SE of
+scipy's curve_fit, tests/test_slopes_curves.py); members with two shape parameters are then
+polished by Levenberg–Marquardt. The analytic Jacobian there gives the SE of v.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import partial
+
+import numpy as np
+from scipy import stats
+
+from ..fitting import batch_lm
+
+#: The members of the family and the parameters each one fits (of c, v, k, rho, L).
+MEMBERS = {"line": (0, 1), "exp": (0, 1, 2), "mm": (0, 1, 2, 3), "lag": (0, 1, 4),
+           "lag-exp": (0, 1, 2, 4)}
+
+#: Bounds of rho: below -1 the product would inhibit more strongly than any assay worth a rate;
+#: above 0.97 the curve is a straight line with a corner, which a window describes better.
+RHO_RANGE = (-1.0, 0.97)
+
+_HALLEY_STEPS = 3           # reach rounding for every (k t, rho) in range (tests/test_slopes_curves.py)
+_SERIES = 1e-3              # below this |k phi| the Taylor series of F is exact to 1e-9
+
+
+def mm_conversion(theta, rho):
+    """z and q = -ln(1 - z) with rho z - (1 - rho) ln(1 - z) = theta, elementwise (theta >= 0
+    where rho != 0, see :func:`shape_of`).
+
+    In q the equation reads g(q) = (1 - rho) q + rho (1 - exp(-q)) - theta = 0, with g
+    increasing; g is concave for rho > 0 and convex for rho < 0, and a = (theta - rho)/(1 - rho)
+    and theta bound the root (from below for rho > 0, from above for rho < 0). Halley's method
+    from the bound reaches the rounding of g in three steps for every rho in range.
+    """
+    theta, rho = np.broadcast_arrays(np.asarray(theta, float), np.asarray(rho, float))
+    if not np.any(rho):
+        return -np.expm1(-theta), theta
+    a = (theta - rho) / (1 - rho)
+    q = np.where(rho >= 0, np.maximum(theta, a), np.minimum(theta, a))
+    for _ in range(_HALLEY_STEPS):
+        e = rho * np.exp(-q)
+        g = (1 - rho) * q - rho * np.expm1(-q) - theta
+        g1 = (1 - rho) + e
+        q = q - 2 * g * g1 / (2 * g1 * g1 + g * e)
+    return -np.expm1(-q), q
+
+
+def lag_clock(t, lag):
+    """phi = t - L (1 - exp(-t/L)) and d(phi)/dL; phi = t where L = 0."""
+    t = np.asarray(t, float)
+    lag = np.asarray(lag, float)
+    if not np.any(lag):
+        return t + 0 * lag, np.zeros(np.broadcast_shapes(t.shape, lag.shape))
+    safe = np.where(lag > 0, lag, 1.0)
+    with np.errstate(over="ignore"):
+        e = np.exp(-t / safe)
+    phi = np.where(lag > 0, t + safe * np.expm1(-t / safe), t)
+    dphi = np.where(lag > 0, -(1 - e) + t / safe * e, 0.0)
+    return phi, dphi
+
+
+def shape_of(k, rho):
+    """rho where k >= 0; 0 where k < 0 (a rate that speeds up has no substrate shape)."""
+    return np.where(k < 0, 0.0, rho) if np.any(rho) else rho
+
+
+def _series(rho):
+    """Taylor coefficients of F/phi in theta = k phi: 1 + a theta + b theta^2."""
+    return -(1 - rho) / 2, (1 - rho) * (1 - 3 * rho) / 6
+
+
+def progress(t, c, v, k, rho, lag):
+    """The family's curve y = c + v F(t) (module docstring); broadcasts like batch_lm asks."""
+    phi, _ = lag_clock(t, lag)
+    theta = k * phi
+    rho = shape_of(k, rho)
+    with np.errstate(all="ignore"):
+        z, _ = mm_conversion(theta, rho)
+        a, b = _series(rho)
+        F = np.where(np.abs(theta) < _SERIES, phi * (1 + a * theta + b * theta * theta),
+                     z / np.where(k == 0, 1.0, k))
+    return c + v * F
+
+
+def progress_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
+    """d y / d(c, v, k, rho, L) of :func:`progress`, shape (B, n, 5); only the columns in
+    ``want`` are computed (the others are 0)."""
+    phi, dphi = lag_clock(t, lag)
+    theta = k * phi
+    rho = shape_of(k, rho)
+    small = np.abs(theta) < _SERIES
+    kk = np.where(k == 0, 1.0, k)
+    out = np.zeros(np.broadcast_shapes(theta.shape, np.shape(v)) + (5,))
+    out[..., 0] = 1.0
+    with np.errstate(all="ignore"):
+        z, q = mm_conversion(theta, rho)
+        d = 1 - rho * z
+        z_theta = (1 - z) / d
+        a, b = _series(rho)
+        out[..., 1] = np.where(small, phi * (1 + a * theta + b * theta * theta), z / kk)
+        if 2 in want:
+            out[..., 2] = v * np.where(small, a * phi * phi + 2 * b * k * phi ** 3,
+                                       (z_theta * theta - z) / (kk * kk))
+        if 3 in want:
+            out[..., 3] = v * np.where(k < 0, 0.0, np.where(
+                small, phi * (theta / 2 + (6 * rho - 4) / 6 * theta * theta),
+                (q - z) * (1 - z) / d / kk))
+        if 4 in want:
+            out[..., 4] = v * np.where(small, 1 + 2 * a * theta + 3 * b * theta * theta,
+                                       z_theta) * dphi
+    return out
+
+
+# --------------------------------------------------------------------------- the grid
+
+#: The grid each member is searched on: k x span (inner axis), and rho or L / span (outer axis).
+_KAPPA = np.geomspace(0.02, 20.0, 40)
+_LAGS = np.geomspace(0.01, 0.5, 24)
+GRID = {
+    "exp": (np.concatenate([-np.array([1.5, 1.0, 0.6, 0.35, 0.2, 0.1, 0.05]), [0.0], _KAPPA]),
+            "rho", np.zeros(1)),
+    "mm": (_KAPPA, "rho", np.array([-1.0, -0.6, -0.3, 0.2, 0.4, 0.55, 0.67, 0.77, 0.85, 0.91,
+                                    0.95, 0.97])),
+    "lag": (np.zeros(1), "lag", _LAGS),
+    "lag-exp": (np.concatenate([[0.0], _KAPPA[:28]]), "lag", _LAGS[::2]),
+}
+
+
+def _parabola_min(x, r):
+    """Vertex of the parabola through the lowest point of each row of ``r`` (on the grid ``x``,
+    increasing) and its two neighbours, within them; the lowest point itself at an edge or
+    where the three do not curve upwards. Returns (x at the vertex, r there)."""
+    rows = np.arange(r.shape[0])
+    i = np.argmin(r, axis=1)
+    if x.size < 3:
+        return x[i], r[rows, i]
+    j = np.clip(i, 1, x.size - 2)
+    x0, x1, x2 = x[j - 1], x[j], x[j + 1]
+    y0, y1, y2 = r[rows, j - 1], r[rows, j], r[rows, j + 1]
+    with np.errstate(all="ignore"):
+        d01 = (y1 - y0) / (x1 - x0)
+        c2 = ((y2 - y1) / (x2 - x1) - d01) / (x2 - x0)
+        xv = np.clip((x0 + x1) / 2 - d01 / (2 * c2), x0, x2)
+        yv = y0 + d01 * (xv - x0) + c2 * (xv - x0) * (xv - x1)
+    ok = (i == j) & np.isfinite(yv) & (c2 > 0)
+    return np.where(ok, xv, x[i]), np.where(ok, np.minimum(yv, y1), r[rows, i])
+
+
+def grid_rss(times, Y, W, k, rho, lag) -> np.ndarray:
+    """Weighted RSS of the best straight line of Y in F(t; k, rho, L), for every trace (rows of
+    ``Y``, ``W``) and every grid point (the arrays ``k``, ``rho``, ``lag``): shape (N, G).
+
+    ``times`` (n,) are representative times of the columns: F is tabulated once per grid point
+    and the sums come from three matrix products.
+    """
+    F = progress(np.asarray(times, float)[None, :], 0.0, 1.0, k[:, None], rho[:, None],
+                 lag[:, None])
+    F = np.where(np.isfinite(F), F, 0.0)
+    sw = W.sum(axis=1)[:, None]
+    wy = W * Y
+    sy = wy.sum(axis=1)[:, None]
+    sf, sff, sfy = W @ F.T, W @ (F * F).T, wy @ F.T
+    with np.errstate(all="ignore"):
+        var_f = sff - sf * sf / sw
+        cov = sfy - sf * sy / sw
+        rss = (wy * Y).sum(axis=1)[:, None] - sy * sy / sw - cov * cov / var_f
+    return np.where(np.isfinite(rss) & (var_f > 1e-12 * np.maximum(sff, 1e-300)), rss, np.inf)
+
+
+def grid_optimum(member: str, times, Y, W, span: float) -> tuple[np.ndarray, np.ndarray]:
+    """(k, rho, L) of every trace for ``member`` from the grid, and the RSS there.
+
+    Along one axis (``exp``: k; ``lag``: L) the optimum comes from a parabola through the best
+    point and its neighbours; a member with two axes starts the polish (:func:`fit_member`)
+    from its best grid point.
+    """
+    kappa, outer_name, outer = GRID[member]
+    kk, oo = np.meshgrid(kappa, outer, indexing="xy")               # (n_outer, n_kappa)
+    rho = oo if outer_name == "rho" else np.zeros_like(oo)
+    lag = oo * span if outer_name == "lag" else np.zeros_like(oo)
+    rss = grid_rss(times, Y, W, kk.ravel() / span, rho.ravel(), lag.ravel())
+    zero = np.zeros(Y.shape[0])
+    if outer.size == 1:
+        kap, best = _parabola_min(kappa, rss)
+        return np.column_stack([kap / span, zero, zero]), best
+    if kappa.size == 1:
+        o, best = _parabola_min(outer, rss)
+        return np.column_stack([zero, o * (outer_name == "rho"), o * span * (
+            outer_name == "lag")]), best
+    i = np.argmin(rss, axis=1)
+    shape = np.column_stack([kk.ravel()[i] / span, rho.ravel()[i], lag.ravel()[i]])
+    return shape, rss[np.arange(Y.shape[0]), i]
+
+
+# --------------------------------------------------------------------------- one member
+
+
+@dataclass(frozen=True)
+class MemberFit:
+    """One member fitted to some traces.
+
+    ``rows`` index the traces; ``params`` (R, 5) are c, v, k, rho, L; ``rss`` the weighted RSS
+    and ``dof`` its degrees of freedom; ``v_weights`` (R, n) turn the readings into v (to first
+    order v is their dot product with the readings, so covariances with other estimates
+    follow); ``fitted`` (R, n) the curve at the readings.
+    """
+
+    member: str
+    rows: np.ndarray
+    params: np.ndarray
+    rss: np.ndarray
+    dof: np.ndarray
+    v_weights: np.ndarray
+    fitted: np.ndarray
+
+
+def _line_in_f(F, Y, W):
+    """c and v of the least-squares line Y = c + v F per row (weights W)."""
+    sw = W.sum(axis=1)
+    with np.errstate(all="ignore"):
+        fm = (W * F).sum(axis=1) / sw
+        ym = (W * Y).sum(axis=1) / sw
+        v = (W * (F - fm[:, None]) * (Y - ym[:, None])).sum(axis=1) / (
+            W * (F - fm[:, None]) ** 2).sum(axis=1)
+    return ym - v * fm, v
+
+
+def _polish(member, T, Y, W, start, span):
+    """Levenberg–Marquardt from ``start`` (R, 5), within the family's bounds."""
+    lo = np.array([-np.inf, -np.inf, 0.0, RHO_RANGE[0], 0.0])
+    hi = np.array([np.inf, np.inf, 25.0 / span, RHO_RANGE[1], 0.5 * span])
+    free = MEMBERS[member]
+    r = batch_lm(progress, T, Y, W, start, free=list(free), lower=lo, upper=hi, max_iter=15,
+                 xtol=1e-6, ftol=1e-7, jac=partial(progress_jac, want=free))
+    better = np.isfinite(r.rss) & np.all(np.isfinite(r.params), axis=1)
+    return np.where(better[:, None], r.params, start)
+
+
+def fit_member(member: str, rows, T, Y, W, times, span: float, start=None) -> MemberFit:
+    """Fit ``member`` to the traces ``rows`` of T, Y, W (times from each trace's first reading,
+    readings relative to it, weights 0 or 1, ``times`` representative of the columns): from
+    the grid (:func:`grid_optimum`) or the shapes ``start`` (R, 3: k, rho, L), polished where
+    the member has two shape parameters; c and v by least squares at the shape found, and v's
+    weights from the Jacobian there."""
+    rows = np.asarray(rows, dtype=int)
+    T, Y, W = T[rows], Y[rows], W[rows]
+    R = rows.size
+    one = np.ones((R, 1))
+    if member == "line":
+        shape = np.zeros((R, 3))
+    elif start is not None:
+        shape = np.asarray(start, float)
+    else:
+        shape, _ = grid_optimum(member, times, Y, W, span)
+    if len(MEMBERS[member]) == 4 and R:
+        F = progress(T, 0.0, 1.0, *(shape[:, j:j + 1] for j in range(3)))
+        start = np.column_stack([*_line_in_f(F, Y, W), shape])
+        shape = _polish(member, T, Y, W, start, span)[:, 2:]
+    J = progress_jac(T, 0 * one, one, *(shape[:, j:j + 1] for j in range(3)),
+                     want=MEMBERS[member])
+    F = J[:, :, 1]
+    c, v = _line_in_f(F, Y, W)
+    fitted = c[:, None] + v[:, None] * F
+    free = list(MEMBERS[member])
+    Jf = J[:, :, free] * W[:, :, None]
+    Jf[:, :, 2:] *= v[:, None, None]
+    JT = Jf.transpose(0, 2, 1)
+    with np.errstate(all="ignore"):
+        Ainv = np.linalg.pinv(JT @ Jf)
+    v_weights = (Ainv @ JT)[:, 1, :] * W
+    resid = (Y - fitted) * W
+    dof = np.sum(W > 0, axis=1) - len(free)
+    return MemberFit(member, rows, np.column_stack([c, v, shape]),
+                     np.sum(resid * resid, axis=1), dof, v_weights, fitted)
+
+
+# --------------------------------------------------------------------------- the family's choice
+
+#: A lag is taken when the straight lag lowers the exponential's residual sum of squares by
+#: this many noise variances (about one straight trace in 300 by chance, tests) ...
+LAG_CHI2 = 6.0
+#: ... and a lag followed by a slowing rate is polished where its grid point comes within
+#: this many noise variances of what it needs.
+LAG_SCREEN = 4.0
+#: A shape is evident when it lowers the simpler shape's residual sum of squares by this many
+#: noise variances (chi-square, 1 degree of freedom, p = 0.001).
+CURVED_CHI2 = 10.83
+#: The Michaelis–Menten shape is tried where the exponential converts this much by the end,
+#: always fitted from MM_SURE on, below it where a grid point already beats the exponential.
+#: (A trace with S0 well above Km runs nearly straight until late: the exponential may then
+#: convert little yet start a few per cent low; benchmarks/flag_calibration.py finds about one
+#: such well in a hundred off by more than 3 SE.)
+MM_FROM = 0.2
+MM_SURE = 0.4
+
+
+@dataclass(frozen=True)
+class Curves:
+    """The whole-curve estimate of every trace.
+
+    ``member``: the member used ("exp", "mm", "lag", "lag-exp", or "" where too few
+    readings); ``params`` (N, 5: c, v, k, rho, L); weighted ``rss`` and ``dof``; v's reading
+    weights (N, M); the curve at the readings (N, M); ``line_rss``: the straight line's RSS over
+    the same readings; ``sigma``: the noise SD the SEs use (the larger of the trace's noise and
+    the fit's residual SD); ``spread``: where a richer member was fitted but not evident, the
+    difference of its initial slope from the reported one (a model uncertainty the SE counts).
+    """
+
+    member: np.ndarray
+    params: np.ndarray
+    rss: np.ndarray
+    dof: np.ndarray
+    v_weights: np.ndarray
+    fitted: np.ndarray
+    line_rss: np.ndarray
+    sigma: np.ndarray
+    spread: np.ndarray
+
+    @property
+    def v(self) -> np.ndarray:
+        """The initial slope of every trace (NaN where none)."""
+        return self.params[:, 1]
+
+    @property
+    def se(self) -> np.ndarray:
+        """The SE of :attr:`v`: the noise and the model uncertainty (:attr:`spread`)."""
+        return np.hypot(self.sigma * np.sqrt(np.sum(self.v_weights ** 2, axis=1)),
+                        self.spread)
+
+
+def _store(out: dict, fit: MemberFit, spread=0.0) -> None:
+    for key, value in (("member", fit.member), ("params", fit.params), ("rss", fit.rss),
+                       ("dof", fit.dof), ("v_weights", fit.v_weights), ("fitted", fit.fitted),
+                       ("spread", spread)):
+        out[key][fit.rows] = value
+
+
+def _subset(fit: MemberFit, keep) -> MemberFit:
+    return MemberFit(fit.member, fit.rows[keep], fit.params[keep], fit.rss[keep], fit.dof[keep],
+                     fit.v_weights[keep], fit.fitted[keep])
+
+
+def _richer(simple: MemberFit, rich: MemberFit, sel, sigma2, force=False):
+    """Whether the richer fit (of the traces ``sel`` of the simpler one) is evident
+    (:data:`CURVED_CHI2`, against the larger of the noise and the richer fit's residual
+    variance) or forced, and the simpler one's spread where it is not."""
+    s2 = np.maximum(sigma2, rich.rss / np.maximum(rich.dof, 1))
+    evident = force | ((simple.rss[sel] - rich.rss) > CURVED_CHI2 * s2)
+    evident &= np.all(np.isfinite(rich.params), axis=1)
+    return evident, np.where(evident, 0.0, np.abs(simple.params[sel, 1] - rich.params[:, 1]))
+
+
+def _lags(prep, out: dict, exp: MemberFit, line_rss, sigma2) -> np.ndarray:
+    """Store the lag members where a lag is taken; return those rows.
+
+    A lag is taken when the straight lag (``lag``) beats the exponential by :data:`LAG_CHI2`
+    noise variances, or fits at least as well where the rate evidently speeds up (a rate that
+    speeds up is taken as a lag not yet over, whose final rate is the one to report, never as
+    the start of an ever faster curve). A lag followed by a slowing rate (``lag-exp``) must be
+    evident over the straight lag (and over the exponential by both margins where the straight
+    lag was not taken).
+    """
+    rows = exp.rows
+    lag = fit_member("lag", rows, prep.Tc, prep.Yc, prep.W, prep.times, prep.span)
+    s2 = np.maximum(sigma2[rows], np.minimum(lag.rss, exp.rss) / np.maximum(lag.dof, 1))
+    speeds = (exp.params[:, 2] < 0) & ((line_rss[rows] - exp.rss) > CURVED_CHI2 * np.maximum(
+        sigma2[rows], exp.rss / np.maximum(exp.dof, 1)))
+    gain = exp.rss - lag.rss
+    take = ((gain > LAG_CHI2 * s2) | (speeds & (gain >= 0))) & (lag.params[:, 4] > 0)
+    # a lag followed by a slowing rate: looked for where a lag is taken, or where neither the
+    # exponential nor the straight lag follows the readings within their noise
+    misfit = np.minimum(exp.rss, lag.rss) > stats.chi2.ppf(0.99, np.maximum(exp.dof, 1)) * (
+        sigma2[rows])
+    look = take | misfit
+    try_le = look.copy()
+    start = np.array(lag.params[:, 2:])
+    if look.any():
+        shape, grid_le = grid_optimum("lag-exp", prep.times, prep.Yc[rows[look]],
+                                      prep.W[rows[look]], prep.span)
+        try_le[look] = take[look] | ((exp.rss[look] - grid_le) > (
+            LAG_CHI2 + CURVED_CHI2 - LAG_SCREEN) * s2[look])
+        start[look] = np.where((grid_le < lag.rss[look])[:, None], shape, start[look])
+    spread = np.zeros(rows.size)
+    if try_le.any():
+        sel = np.nonzero(try_le)[0]
+        le = fit_member("lag-exp", rows[sel], prep.Tc, prep.Yc, prep.W, prep.times, prep.span,
+                        start[sel])
+        evident, spread[sel] = _richer(lag, le, sel, sigma2[rows[sel]])
+        evident &= (le.params[:, 2] > 0) & (le.params[:, 4] > 0) & (
+            take[sel] | ((exp.rss[sel] - le.rss) > (LAG_CHI2 + CURVED_CHI2) * s2[sel]))
+        take[sel[evident]] = False
+        _store(out, _subset(le, evident))
+    _store(out, _subset(lag, take), spread[take])
+    return np.nonzero(np.isin(out["member"], ["lag", "lag-exp"]))[0]
+
+
+def _mm(prep, out: dict, exp: MemberFit, sigma2, exclude) -> None:
+    """Store the Michaelis–Menten member where it is evident over the exponential (tried from
+    MM_FROM on), and the exponential's spread where it was tried but not evident."""
+    k = exp.params[:, 2]
+    dur = prep.Tc[exp.rows].max(axis=1)
+    conv = np.where(k > 0, -np.expm1(-k * dur), 0.0)
+    sel = np.nonzero((conv >= MM_FROM) & ~np.isin(exp.rows, exclude))[0]
+    if not sel.size:
+        return
+    # polished where some grid shape already does better than the exponential, or where the
+    # exponential converts so much that its initial slope may be off by 1 % or more
+    shape, grid_mm = grid_optimum("mm", prep.times, prep.Yc[exp.rows[sel]],
+                                  prep.W[exp.rows[sel]], prep.span)
+    better = grid_mm < exp.rss[sel]
+    keep = better | (conv[sel] > MM_SURE)
+    start = np.where(better[:, None], shape, exp.params[sel, 2:])[keep]
+    sel = sel[keep]
+    if not sel.size:
+        return
+    mm = fit_member("mm", exp.rows[sel], prep.Tc, prep.Yc, prep.W, prep.times, prep.span, start)
+    evident, spread = _richer(exp, mm, sel, sigma2[exp.rows[sel]])
+    out["spread"][exp.rows[sel]] = spread
+    _store(out, _subset(mm, evident))
+
+
+def fit_curves(prep, min_readings: int = 5, rich: bool = True) -> Curves:
+    """The family's member for every trace with ``min_readings`` usable readings: the
+    exponential, a lag where one is taken (:func:`_lags`), or the Michaelis–Menten shape where
+    the reaction goes far enough (:func:`_mm`); the exponential alone without ``rich``."""
+    N, M = prep.Yc.shape
+    rows = np.nonzero(prep.W.sum(axis=1) >= min_readings)[0]
+    out = {"member": np.full(N, "", dtype=object), "params": np.full((N, 5), np.nan),
+           "rss": np.full(N, np.nan), "dof": np.zeros(N, dtype=int),
+           "v_weights": np.zeros((N, M)), "fitted": np.zeros((N, M)), "spread": np.zeros(N)}
+    line_rss = np.full(N, np.nan)
+    if rows.size:
+        line_rss[rows] = fit_member("line", rows, prep.Tc, prep.Yc, prep.W, prep.times,
+                                    prep.span).rss
+        exp = fit_member("exp", rows, prep.Tc, prep.Yc, prep.W, prep.times, prep.span)
+        _store(out, exp)
+        sigma2 = prep.sigma ** 2
+        if rich:
+            lagged = _lags(prep, out, exp, line_rss, sigma2)
+            _mm(prep, out, exp, sigma2, lagged)
+    sigma = np.maximum(prep.sigma, np.sqrt(np.nan_to_num(out["rss"] / np.maximum(out["dof"],
+                                                                                  1))))
+    return Curves(out["member"].astype(str), out["params"], out["rss"], out["dof"],
+                  out["v_weights"], out["fitted"], line_rss, sigma, out["spread"])
+
+
+def merge(curves: Curves, sub: Curves, rows) -> Curves:
+    """``curves`` with the traces ``rows`` replaced by ``sub`` (fitted to those traces)."""
+    parts = {}
+    for name in Curves.__dataclass_fields__:
+        whole = np.array(getattr(curves, name), copy=True)
+        whole[rows] = getattr(sub, name)
+        parts[name] = whole
+    return Curves(**parts)
+
+
+def slope_at(params, t) -> np.ndarray:
+    """dy/dt of each trace's curve (rows of ``params``: c, v, k, rho, L) at its time ``t``."""
+    c, v, k, rho, lag = (params[:, j] for j in range(5))
+    phi, _ = lag_clock(t, lag)
+    rho = shape_of(k, rho)
+    z, _ = mm_conversion(k * phi, rho)
+    with np.errstate(all="ignore"):
+        on = np.where(lag > 0, -np.expm1(-t / np.where(lag > 0, lag, 1.0)), 1.0)
+    return v * (1 - z) / (1 - rho * z) * on
+
+
+def without_start(prep, curves: Curves, skip: int) -> tuple[np.ndarray, np.ndarray]:
+    """The initial slope (still at the first reading's time) and its SE of every trace's
+    member ("exp" or "mm"; NaN for the others) fitted again without its first ``skip`` used
+    readings: a check that the start of the read follows the same curve as the rest."""
+    N = prep.W.shape[0]
+    v, se = np.full(N, np.nan), np.full(N, np.nan)
+    W = prep.W * (np.cumsum(prep.W, axis=1) > skip)
+    for member in ("exp", "mm"):
+        rows = np.nonzero((curves.member == member) & (W.sum(axis=1) >= 5 + skip))[0]
+        if not rows.size:
+            continue
+        start = curves.params[rows, 2:] if member == "mm" else None
+        fit = fit_member(member, rows, prep.Tc, prep.Yc, W, prep.times, prep.span, start)
+        v[rows] = fit.params[:, 1]
+        se[rows] = curves.sigma[rows] * np.sqrt(np.sum(fit.v_weights ** 2, axis=1))
+    return v, se

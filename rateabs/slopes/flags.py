@@ -1,0 +1,114 @@
+"""Trace flags: each one a written rule and a meaning, "this number may be wrong, and why".
+
+The rules are calibrated on simulated plates with known truth (benchmarks/flag_calibration.py):
+a flag should mark the wells whose reported rate is off by more than 5 % and 3 SE, and leave
+the others alone. On 20 seeded plates there about 6 % of the good wells carry a flag (goal: at
+most 10 %) and about two thirds of the wells that need a look do (goal: 90 %; a lag together
+with substrate depletion, a settling baseline and slight curvature the noise hides escape).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import stats
+
+from .choice import MOVING_Z
+from .curves import CURVED_CHI2, without_start
+
+#: Trace flags of the initial-rate estimator; each says why the reported number may be wrong.
+TRACE_FLAGS = {
+    "few-points": "too few usable readings for a dependable rate (fewer than the window's "
+                  "minimum, or none in a fixed window); with fewer than three there is none",
+    "lag": "a long lag (the enzyme is 95 % active only in the last quarter of the read, or "
+           "the last half where the rate also slows): the rate rests on few readings after "
+           "it and on the lag model",
+    "misfit": "the whole-curve model, or the straight window reported, does not follow the "
+              "readings within their noise (a jump, drift or mixing artefact?): the rate may "
+              "be off",
+    "speeds-up": "the rate speeds up through the read and no lag fits it: the final rate may "
+                 "be higher than the one reported",
+    "start": "the first readings do not follow the curve of the rest (mixing, a settling "
+             "baseline or temperature): the initial slope changes beyond its SE when they are "
+             "left out",
+    "noisy": "the rate's SE is large against the plate's rates (over the noisy limit times the "
+             "larger of the rate and the plate's typical rate) because the readings are far "
+             "noisier than the plate's usual (three times its median noise: a bubble, a "
+             "precipitate, a lamp fault?), or ten times larger than that whatever the noise",
+}
+
+#: A lag is long when its time constant exceeds this fraction of the read (three time
+#: constants, 95 % active, then fall in the last quarter of the read).
+LONG_LAG = 0.25
+#: A lag followed by a slowing rate ("lag-exp") is long from this fraction on: the lag and the
+#: slowing trade off against each other, so the initial slope rests on the model.
+LONG_LAG_SLOWING = 0.15
+#: The reported model misfits when its residuals exceed the noise at this p value (chi-square)
+#: and by this factor in variance.
+MISFIT_P = 1e-4
+MISFIT_RATIO = 1.5
+#: The start check leaves out this fraction of the readings (at least 3) and marks a trace whose
+#: initial slope then moves by more than START_Z SEs of the change and by 5 % of the slope.
+START_SKIP = 0.1
+START_Z = 3.0
+#: The plate's typical rate, for ``noisy``: this quantile of the traces' absolute rates.
+TYPICAL_QUANTILE = 0.9
+#: A trace is noisy when its noise SD exceeds this many times the plate's median noise SD (the
+#: noise of the readings, not the SE relative to a rate that may be near zero) ...
+NOISE_EXCESS = 3.0
+#: ... or this absolute SD in signal units (absorbance: a plate reader's noise is a few mA,
+#: from memory), which also covers a single trace.
+NOISE_ABSOLUTE = 0.02
+#: Whatever the noise, a rate whose SE exceeds this many times the noisy limit is noisy.
+NOISY_HOPELESS = 10.0
+
+
+def trace_flags(prep, curves, win, method, slope, se, min_points: int, noisy_limit: float,
+                fixed: bool) -> list[list[str]]:
+    """The flags of every trace, in the order of :data:`TRACE_FLAGS`."""
+    n_use = prep.n_use
+    few = (method == "none") | (n_use < min_points) | (fixed & (win.end < 0))
+    lag = ((win.lag > LONG_LAG * prep.span) | ((curves.member == "lag-exp") & (
+        win.lag > LONG_LAG_SLOWING * prep.span))) & (method != "none")
+    misfit = (method != "none") & (_misfit(curves.rss, curves.dof, prep.sigma) | _misfit(
+        np.where(method == "curve", curves.rss, win.line.sse),
+        np.where(method == "curve", curves.dof, win.line.n - 2), prep.sigma))
+    with np.errstate(all="ignore"):
+        speeds = ((curves.member == "exp") & (curves.params[:, 2] < 0) & (method != "none")
+                  & ((curves.line_rss - curves.rss) > CURVED_CHI2 * curves.sigma ** 2))
+    finite = np.abs(slope[np.isfinite(slope)])
+    typical = float(np.quantile(finite, TYPICAL_QUANTILE)) if finite.size else 0.0
+    sigma = prep.sigma
+    loud = (sigma > NOISE_EXCESS * np.median(sigma)) | (sigma > NOISE_ABSOLUTE) if sigma.size \
+        else np.zeros(0, bool)
+    scale = noisy_limit * np.maximum(np.abs(slope), typical)
+    noisy = np.isfinite(se) & (((se > scale) & loud) | (se > NOISY_HOPELESS * scale))
+    start = _start(prep, curves, method)
+    marks = np.column_stack([few, lag, misfit, speeds, start, noisy])
+    words = list(TRACE_FLAGS)
+    return [[words[j] for j in np.flatnonzero(row)] for row in marks]
+
+
+def _misfit(rss, dof, sigma) -> np.ndarray:
+    """Residuals beyond the noise: chi-square p below MISFIT_P and variance over MISFIT_RATIO
+    times the noise variance."""
+    with np.errstate(all="ignore"):
+        ratio = rss / np.maximum(dof, 1) / sigma ** 2
+        p = stats.chi2.sf(rss / sigma ** 2, np.maximum(dof, 1))
+    return (dof > 0) & np.isfinite(rss) & (p < MISFIT_P) & (ratio > MISFIT_RATIO)
+
+
+def _start(prep, curves, method) -> np.ndarray:
+    """The ``start`` rule: the whole curve's initial slope moves when the first START_SKIP of
+    the readings are left out, by more than START_Z SEs of the change (the SE of an estimate
+    from fewer readings minus that from all, in quadrature) and by 5 % of the slope, where the
+    trace moves (its initial slope MOVING_Z SEs from zero)."""
+    skip = max(3, int(round(START_SKIP * prep.W.shape[1])))
+    v_late, se_late = without_start(prep, curves, skip)
+    v = curves.v
+    with np.errstate(all="ignore"):
+        sd = np.sqrt(np.maximum(se_late ** 2 - (curves.sigma * np.sqrt(np.sum(
+            curves.v_weights ** 2, axis=1))) ** 2, 0.0))
+        d = np.abs(v_late - v)
+        moves = np.abs(v) > MOVING_Z * curves.se            # a flat trace has no shape
+        return ((method != "none") & moves & np.isfinite(d) & (d > START_Z * sd)
+                & (d > 0.05 * np.abs(v)))

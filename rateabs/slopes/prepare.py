@@ -1,0 +1,142 @@
+"""The first stage of the initial-rate estimator: each trace's noise, its spikes set aside, its
+readings taken relative to its first usable reading."""
+
+from __future__ import annotations
+
+import math
+import warnings
+from contextlib import contextmanager
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..traces import Grid
+
+#: A reading is a spike when it stands this many noise SDs off the line through its two
+#: neighbours, and 1.5 times as far off as either neighbour stands off its own: about one such
+#: reading in 10^8 under normal noise (a step or a bend moves neighbours alike and is no spike).
+SPIKE_Z = 5.5
+
+
+#: After the whole-curve fit, a reading this many noise SDs off the curve is set aside as a
+#: spike (a bubble, dust, a jolt), where a trace has at most OUTLIER_MAX such readings (or 5 %).
+OUTLIER_Z = 6.0
+OUTLIER_MAX = 2
+
+
+@contextmanager
+def quiet_numpy():
+    """Silence numpy's RuntimeWarnings (all-NaN slices of padded traces are expected here)."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        yield
+
+
+def noise_sigma(grid: Grid, floor: float = 1e-4, usable: np.ndarray | None = None) -> np.ndarray:
+    """Per-trace noise SD from second differences: the RMS of the second differences within 3.5
+    robust SDs of their median, over sqrt(6) (white noise), at least ``floor``.
+
+    ``usable`` (default the grid's) says which readings count.
+    """
+    Y = grid.values
+    U = grid.usable if usable is None else usable
+    if Y.shape[1] < 3:
+        return np.full(Y.shape[0], float(floor))
+    d2 = Y[:, 2:] - 2 * Y[:, 1:-1] + Y[:, :-2]
+    ok = U[:, 2:] & U[:, 1:-1] & U[:, :-2]
+    d2 = np.where(ok, d2, np.nan)
+    with np.errstate(all="ignore"), quiet_numpy():
+        med = np.nanmedian(d2, axis=1, keepdims=True)
+        dev = np.abs(d2 - med)
+        mad = 1.4826 * np.nanmedian(dev, axis=1, keepdims=True)
+        # efficient and robust: RMS of the second differences within 3.5 robust SDs
+        keep = dev <= 3.5 * mad
+        rms = np.sqrt(np.nansum(np.where(keep, dev**2, 0), axis=1)
+                      / np.maximum(np.sum(keep & np.isfinite(dev), axis=1), 1))
+    sig = rms / math.sqrt(6) / 0.9865          # 0.9865: RMS of a normal truncated at 3.5 SD
+    return np.where(np.isfinite(sig), np.maximum(sig, floor), floor)
+
+
+def outliers(prep: Prepared, fitted: np.ndarray, sigma: np.ndarray) -> np.ndarray:
+    """Readings that stand more than OUTLIER_Z noise SDs off the trace's whole curve, where
+    there are at most OUTLIER_MAX of them (more is a misfit, not a few bad readings)."""
+    z = np.abs(prep.Yc - fitted) / sigma[:, None]
+    big = (prep.W > 0) & np.isfinite(z) & (z > OUTLIER_Z)
+    few = big.sum(axis=1) <= max(OUTLIER_MAX, int(0.05 * prep.W.shape[1]))
+    return big & few[:, None]
+
+
+def find_spikes(grid: Grid, sigma: np.ndarray) -> np.ndarray:
+    """Readings that are single-reading spikes (see :data:`SPIKE_Z`); first and last readings
+    are never called spikes (a fast reaction bends there too)."""
+    T, Y, U = grid.times, grid.values, grid.usable
+    out = np.zeros(Y.shape, dtype=bool)
+    if Y.shape[1] < 5:
+        return out
+    with np.errstate(all="ignore"):
+        frac = (T[:, 1:-1] - T[:, :-2]) / (T[:, 2:] - T[:, :-2])
+        r = Y[:, 1:-1] - (Y[:, :-2] + frac * (Y[:, 2:] - Y[:, :-2]))
+    ok = U[:, 2:] & U[:, 1:-1] & U[:, :-2] & np.isfinite(r)
+    r = np.abs(np.where(ok, r, 0.0))
+    big = r > SPIKE_Z * math.sqrt(1.5) * sigma[:, None]
+    side = np.maximum(np.pad(r, ((0, 0), (1, 0)))[:, :-1], np.pad(r, ((0, 0), (0, 1)))[:, 1:])
+    out[:, 1:-1] = big & (r > 1.5 * side)
+    return out
+
+
+@dataclass(frozen=True)
+class Prepared:
+    """The readings as the later stages use them (arrays traces x times).
+
+    ``Tc``/``Yc``: times and readings relative to each trace's first usable reading (0 where
+    unusable); ``W``: 1.0 for a reading used, else 0 (spikes set aside); ``first``: index of the
+    first usable reading, ``t0``/``y0`` its time and reading; ``sigma``: noise SD; ``spikes``:
+    readings set aside as spikes; ``span``: the longest trace's duration; ``times``: the times
+    of the columns, from the first reading, as most traces have them.
+    """
+
+    grid: Grid
+    Tc: np.ndarray
+    Yc: np.ndarray
+    W: np.ndarray
+    usable: np.ndarray
+    first: np.ndarray
+    last: np.ndarray
+    t0: np.ndarray
+    y0: np.ndarray
+    sigma: np.ndarray
+    spikes: np.ndarray
+    span: float
+    times: np.ndarray
+
+    @property
+    def n_use(self) -> np.ndarray:
+        """Usable readings per trace."""
+        return self.usable.sum(axis=1)
+
+
+def prepare(grid: Grid, noise_floor: float = 1e-4, set_aside=None) -> Prepared:
+    """Noise, spikes and relative readings of every trace (see :class:`Prepared`);
+    ``set_aside`` (traces x times, optional) marks more readings to treat as spikes."""
+    T, Y = grid.times, grid.values
+    N, M = Y.shape
+    sigma = noise_sigma(grid, noise_floor)
+    spikes = find_spikes(grid, sigma)
+    if set_aside is not None:
+        spikes = spikes | (set_aside & grid.usable)
+    U = grid.usable & ~spikes
+    if spikes.any():
+        sigma = noise_sigma(grid, noise_floor, U)
+    rows = np.arange(N)
+    first = np.argmax(U, axis=1)
+    last = M - 1 - np.argmax(U[:, ::-1], axis=1)
+    t0 = np.where(U.any(axis=1), np.nan_to_num(T[rows, first]), 0.0)
+    y0 = np.where(U.any(axis=1), np.nan_to_num(Y[rows, first]), 0.0)
+    Tc = np.where(U, T - t0[:, None], 0.0)
+    Yc = np.where(U, Y - y0[:, None], 0.0)
+    span = float(max(np.max(Tc, initial=0.0), 1e-9))
+    with quiet_numpy():
+        times = np.nanmedian(np.where(U, Tc, np.nan), axis=0)
+    times = np.where(np.isfinite(times), times, np.linspace(0.0, span, M))
+    return Prepared(grid, Tc, Yc, U.astype(float), U, first, last, t0, y0, sigma, spikes, span,
+                    times)

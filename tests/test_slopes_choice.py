@@ -1,0 +1,170 @@
+"""The initial-rate estimator's choice and its trace flags (rateabs.slopes), against truths
+computed without the package: Michaelis–Menten turnover with substrate depletion and a
+hysteretic lag integrated by scipy.integrate.solve_ivp (tests/kinetics_truth.py), seeded."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+from kinetics_truth import mm_progress
+
+from rateabs.errors import UsageError
+from rateabs.slopes import TRACE_FLAGS, find_windows
+from rateabs.traces import TraceSet
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
+from flag_calibration import calibrate, simulate_plate  # noqa: E402
+
+T = np.arange(0.0, 601.0, 10.0)
+SHAPE_FLAGS = {"lag", "misfit", "speeds-up", "start"}
+
+
+def enzyme_plate(seed, n, depletion, s0_km, v0, noise=0.002, lag=0.0, times=T):
+    """``n`` wells from the mechanism (kinetics_truth.mm_progress, solve_ivp): the signal
+    change at full conversion is set so that the true initial slope is ``v0`` (A/s)."""
+    rng = np.random.default_rng(seed)
+    p = [np.broadcast_to(np.asarray(x, float), (n,)) for x in (depletion, s0_km, v0, lag)]
+    ys = []
+    for dep, r, v, tau in zip(*p, strict=True):
+        kappa = 1 / r
+        u = (dep - kappa * np.log1p(-dep)) / times[-1]      # V/S0 converting ``dep`` by the end
+        full = np.concatenate([[0.0], times]) if times[0] > 0 else times
+        x = mm_progress(full, u, kappa, tau)[-times.size:]
+        ys.append(0.3 + v / (u / (1 + kappa)) * x + rng.normal(0, noise, times.size))
+    names = [f"w{i}" for i in range(n)]
+    return TraceSet.from_arrays(names, times, np.array(ys)).grid(), p[2].copy()
+
+
+def test_depleting_plate_rates_right_and_covered():
+    """Truth: solve_ivp on the mechanism (Schnell & Mendoza 1997's integrated equation is its
+    solution). 1 % to 80 % conversion, S0 from Km/5 to 5 Km: at least 90 % of wells within
+    3 SE or 5 % of the true initial rate, and the SE covers (|z| < 2 for about 95 %)."""
+    rng = np.random.default_rng(5)
+    n = 96
+    dep = np.exp(rng.uniform(np.log(0.01), np.log(0.8), n))
+    grid, truth = enzyme_plate(6, n, dep, np.exp(rng.uniform(np.log(0.2), np.log(5), n)),
+                               rng.uniform(0.5, 3, n) * 1e-4)
+    w = find_windows(grid)
+    err = np.abs(w.slope - truth)
+    assert np.mean((err < 3 * w.slope_se) | (err < 0.05 * truth)) >= 0.9
+    assert np.mean(err < 2 * w.slope_se) >= 0.85
+    # the deep-depletion wells too (a short window or the whole curve), and each says which
+    deep = dep > 0.5
+    assert np.mean(((err < 3 * w.slope_se) | (err < 0.05 * truth))[deep]) >= 0.9
+    assert all(c.startswith(m) for c, m in zip(w.choice, w.method, strict=True))
+
+
+def test_straight_slow_trace_keeps_the_whole_read_and_no_flag():
+    """A straight trace at 0.005 A/min with ordinary noise (0.002 A): the window is the whole
+    read, the rate within 3 SE of the truth, no flag (common practice: a straight trace's
+    slope is the least-squares line through all its readings)."""
+    grid, truth = enzyme_plate(21, 40, 1e-4, 1.0, 0.005 / 60)
+    w = find_windows(grid)
+    assert np.all(w.n == T.size)
+    assert np.all(np.abs(w.slope - truth) < 3 * w.slope_se)
+    assert w.flags == [[] for _ in range(40)]
+
+
+@pytest.mark.parametrize("estimator", ["auto", "curve", "window"])
+def test_flat_blanks_never_flagged_for_shape(estimator):
+    """Flat blanks (no enzyme), ordinary noise: no shape flag under any estimator, and no flag
+    at all under the default and the window (their noise is the plate's; common practice).
+    Forced onto the whole curve, a flat trace's extrapolated slope is imprecise and may be
+    called ``noisy``, which is true."""
+    rng = np.random.default_rng(3)
+    y = 0.05 + rng.normal(0, 0.002, (96, T.size))
+    w = find_windows(TraceSet.from_arrays([f"b{i}" for i in range(96)], T, y).grid(),
+                     estimator=estimator)
+    assert not any(SHAPE_FLAGS & set(f) for f in w.flags)
+    if estimator != "curve":
+        assert all(not f for f in w.flags)
+    assert np.mean(np.abs(w.slope) < 3 * w.slope_se) > 0.95
+
+
+def test_no_lag_flag_on_a_straight_cuvette_read_from_10_s():
+    """A straight cuvette trace whose first reading is at 10 s (the reaction began at 0): no
+    lag is fitted and no lag flag (common practice)."""
+    t = np.arange(10.0, 301.0, 10.0)
+    grid, truth = enzyme_plate(8, 20, 0.01, 1.0, 2e-4, times=t)
+    w = find_windows(grid)
+    assert not any("lag" in f for f in w.flags)
+    assert np.all(w.lag_s == 0)
+    assert np.all(np.abs(w.slope - truth) < 3 * w.slope_se)
+
+
+def test_a_real_lag_is_flagged():
+    """A hysteretic lag (Frieden 1970) of time constant 200 s in a 10 min read: the enzyme is
+    95 % active only after the whole read is nearly over, and the rate is flagged ``lag``."""
+    grid, _ = enzyme_plate(9, 10, 0.02, 1.0, 2e-4, lag=200.0)
+    w = find_windows(grid)
+    assert all("lag" in f for f in w.flags)
+
+
+def test_moderate_lag_rate_right():
+    """A lag of 60 s time constant (solve_ivp truth): the rate after the lag is the fully
+    active enzyme's initial rate, within 3 SE or 5 %."""
+    grid, truth = enzyme_plate(10, 20, 0.02, 1.0, 2e-4, lag=60.0)
+    w = find_windows(grid)
+    err = np.abs(w.slope - truth)
+    assert np.mean(w.lag_s > 0) >= 0.9
+    assert np.mean((err < 3 * w.slope_se) | (err < 0.05 * truth)) >= 0.9
+
+
+def test_noisy_judged_on_the_readings_noise_not_a_near_zero_rate():
+    """``noisy`` marks a trace whose readings are far noisier than the plate's, not a
+    near-zero control whose relative SE is large (common practice)."""
+    grid, _ = enzyme_plate(12, 24, 0.05, 1.0, np.r_[np.full(20, 2e-4), np.full(4, 1e-6)])
+    w = find_windows(grid)
+    assert not any("noisy" in f for f in w.flags)
+    y = np.array(grid.values)
+    y[0] += np.random.default_rng(1).normal(0, 0.03, T.size)        # one very noisy well
+    w = find_windows(TraceSet.from_arrays(list(grid.names), T, y).grid())
+    assert "noisy" in w.flags[0]
+    assert not any("noisy" in f for f in w.flags[1:])
+
+
+def test_overrides_window_and_curve_still_work():
+    """``estimator="window"`` reports the straight window, ``"curve"`` the whole curve, each
+    with its own slope and SE; an unknown estimator is a usage error (common practice)."""
+    grid, truth = enzyme_plate(13, 12, 0.6, 0.5, 2e-4)
+    win = find_windows(grid, estimator="window")
+    cur = find_windows(grid, estimator="curve")
+    assert set(win.method) == {"window"} and set(cur.method) == {"curve"}
+    np.testing.assert_array_equal(win.slope, win.window_slope)
+    np.testing.assert_array_equal(cur.slope, cur.curve_slope)
+    np.testing.assert_array_equal(cur.slope_se, cur.curve_slope_se)
+    # the window override reports the same windows the auto estimator measured
+    np.testing.assert_array_equal(win.slope, find_windows(grid).window_slope)
+    # 60 % converted: the whole curve is right
+    assert np.mean(np.abs(cur.slope - truth) < 3 * cur.slope_se) >= 0.9
+    fixed = find_windows(grid, window=(0, 120))
+    assert np.all(fixed.t_end <= 120) and set(fixed.method) == {"window"}
+    with pytest.raises(UsageError):
+        find_windows(grid, estimator="best")
+
+
+def test_contract_fields_and_flag_meanings():
+    """The fields the plate layer reads (PHASE2 contract) are there, one per trace, and every
+    flag word has a meaning."""
+    grid, _ = enzyme_plate(14, 5, 0.3, 1.0, 2e-4)
+    w = find_windows(grid)
+    for name in ("slope", "slope_se", "method", "choice", "window_slope", "window_slope_se",
+                 "curve_slope", "curve_slope_se", "flags"):
+        assert len(getattr(w, name)) == 5
+    assert all(set(f) <= set(TRACE_FLAGS) for f in w.flags)
+    assert all(isinstance(m, str) and m for m in TRACE_FLAGS.values())
+
+
+def test_flag_calibration_on_seeded_plates():
+    """The calibration benchmark (benchmarks/flag_calibration.py) in small: two seeded plates,
+    truth by solve_ivp. Good wells (within 5 % or 3 SE of the truth) are flagged at most 10 %
+    of the time (the issue's goal; 7 % here). Wells that need a look are flagged 64 % of the
+    time here, short of the goal of 90 % (lags with depletion and a settling baseline escape):
+    the bound guards what the flags reach now, and the benchmark prints the full figures."""
+    cal = calibrate([simulate_plate(seed) for seed in (101, 102)])
+    assert cal.n_bad >= 5
+    assert cal.good_flagged <= 0.10
+    assert cal.bad_flagged >= 0.5
