@@ -1,137 +1,362 @@
-"""Figures of ``rateabs rates``: trace pages, the plate map of rates, replicates."""
+"""Figures of ``rateabs rates``: the plate at a glance, pages of single wells, the plate map of
+rates and the replicates.
+
+Drawing costs in proportion to what a person can look at: the overview puts every well's trace
+in plate geometry on one Axes as a few collections (LineCollection, PolyCollection, one scatter),
+so a 1536-well plate costs about what a 96-well one does; single-well pages are drawn only for
+the wells that need a look (up to a cap) unless every well is asked for; layouts are fixed
+numbers computed once, never a constrained layout, and every figure is closed when saved.
+"""
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import numpy as np
 
 from .style import GRID, INK, PALETTE, SHADE, house_style, save
 
+LOOK = "#fbe3cf"          # background of a well that needs a look
+LEFT_OUT = "#eeeeee"      # background of a well left out of the analysis
+WINDOW = PALETTE[2]       # readings inside the window
+LINE = PALETTE[1]         # the reported initial slope
 
-def rate_traces(analysis, out, stem: str = "rates", per_page: int = 24) -> list:
-    """Small multiples of every trace: readings, the window shaded, the line, residuals below."""
+
+def plate_positions(names: list[str], plate_format: int | None):
+    """(rows, columns, row of each trace, column of each trace, row labels, column labels):
+    plate geometry for well names, else a near-square grid in the traces' order."""
+    from ..io.metadata import PLATES, well_position
+
+    pos = [well_position(n) for n in names]
+    if plate_format in PLATES and all(p is not None for p in pos):
+        nrow, ncol = PLATES[plate_format]
+        rows = np.array([p[0] for p in pos])
+        cols = np.array([p[1] for p in pos])
+        letters = [chr(65 + r) if r < 26 else "A" + chr(65 + r - 26) for r in range(nrow)]
+        return nrow, ncol, rows, cols, letters, [str(c + 1) for c in range(ncol)]
+    n = max(len(names), 1)
+    ncol = max(1, math.ceil(math.sqrt(n * 1.5)))
+    nrow = math.ceil(n / ncol)
+    k = np.arange(len(names))
+    return nrow, ncol, k // ncol, k % ncol, [""] * nrow, [""] * ncol
+
+
+def _cell_scale(g, ok):
+    """Per-trace centre and span of the values: each well is scaled on its own, but never to
+    less than a fifth of the plate's typical change, so that a flat well looks flat."""
+    with np.errstate(all="ignore"):
+        v = np.where(ok, g.values, np.nan)
+        lo, hi = np.nanmin(v, axis=1), np.nanmax(v, axis=1)
+    ptp = np.nan_to_num(hi - lo)
+    floor = max(0.2 * float(np.percentile(ptp, 90)) if ptp.size else 0.0, 1e-4)
+    return np.nan_to_num((hi + lo) / 2), np.maximum(ptp, floor) * 1.1
+
+
+def _segments(x, y, keep):
+    """A list of (k, 2) vertex arrays, one per row, of the points where ``keep`` holds."""
+    return [np.column_stack([xi[k], yi[k]]) for xi, yi, k in zip(x, y, keep, strict=True)
+            if k.sum() >= 2]
+
+
+def plate_overview(analysis, path, title: str = ""):
+    """Every well's trace in plate geometry on one Axes: readings, the window (green), the
+    reported initial slope (orange line), masked readings (x), wells that need a look shaded."""
+    from matplotlib.collections import LineCollection, PolyCollection
 
     ts = analysis.traces
     g = ts.grid()
-    w = analysis.windows
-    table = analysis.table.set_index("trace")
-    files = []
-    n = len(g.names)
-    pages = max(1, -(-n // per_page))
-    for page in range(pages):
-        idx = list(range(page * per_page, min(n, (page + 1) * per_page)))
-        cols = 6 if len(idx) > 12 else min(4, len(idx))
-        rows = -(-len(idx) // cols)
-        with house_style() as plt:
-            fig = plt.figure(figsize=(2.35 * cols, 2.3 * rows), layout="constrained")
-            outer = fig.add_gridspec(rows, cols)
-            for k, i in enumerate(idx):
-                sub = outer[k // cols, k % cols].subgridspec(2, 1, height_ratios=[3, 1], hspace=0)
-                ax = fig.add_subplot(sub[0])
-                axr = fig.add_subplot(sub[1], sharex=ax)
-                ok = g.usable[i]
-                t = g.times[i] / 60
-                y = g.values[i]
-                ax.plot(t[ok], y[ok], ".", ms=3, color=PALETTE[0])
-                bad = ~ok & np.isfinite(t) & np.isfinite(y)
-                if bad.any():
-                    ax.plot(t[bad], y[bad], "x", ms=3, color=PALETTE[1])
-                name = g.names[i]
-                flags = table.loc[name, "flags"]
-                if np.isfinite(w.t_start[i]):
-                    t0, t1 = w.t_start[i] / 60, w.t_end[i] / 60
-                    ax.axvspan(t0, t1, color=SHADE, alpha=0.12, lw=0)
-                    tt = np.linspace(t0, t1, 2)
-                    ax.plot(tt, w.intercept[i] + w.slope[i] * tt * 60, color=PALETTE[1], lw=1.3)
-                    res = y - (w.intercept[i] + w.slope[i] * g.times[i])
-                    inside = ok & (g.times[i] >= w.t_start[i]) & (g.times[i] <= w.t_end[i])
-                    axr.plot(t[inside], res[inside] * 1e3, ".", ms=2.5, color=PALETTE[0])
-                    axr.plot(t[ok & ~inside], res[ok & ~inside] * 1e3, ".", ms=2.5, color=GRID)
-                if np.isfinite(w.curve_slope[i]):
-                    c, v0, kk = w.curve_params[i]
-                    ts0 = w.t_start[i] if np.isfinite(w.t_start[i]) else 0.0
-                    y0 = y[ok][0] if ok.any() else 0.0
-                    tau = np.linspace(0, np.nanmax(g.times[i][ok]) - ts0, 60)
-                    from ..slopes import rate_curve
-                    base = y0 - g.values[i][ok][0] if ok.any() else 0.0
-                    ax.plot((tau + ts0) / 60, y0 + rate_curve(tau, c, v0, kk) - base, ":", lw=1.0,
-                            color=INK)
-                axr.axhline(0, color=INK, lw=0.6)
-                role = table.loc[name, "role"]
-                ax.set_title(f"{name} ({role})" + (f"\n{','.join(flags)}" if flags else ""),
-                             fontsize=7.5, color=PALETTE[1] if flags else INK)
-                ax.tick_params(labelsize=6.5, labelbottom=False)
-                axr.tick_params(labelsize=6.5)
-                if k % cols == 0:
-                    ax.set_ylabel("A (AU)", fontsize=7)
-                    axr.set_ylabel("res. (mA)", fontsize=6.5)
-                if k // cols == rows - 1:
-                    axr.set_xlabel("time (min)", fontsize=7)
-            fig.suptitle("shaded: window used for the initial rate; solid: its line; dotted: "
-                         "whole-curve estimate; x: masked readings", fontsize=8.5)
-            files.append(save(fig, Path(out) / f"{stem}_traces_{page + 1}.png"))
-    return files
-
-
-def plate_heatmap(analysis, path):
-    """Plate map of rates (or slopes); flagged wells outlined. None if traces are not wells."""
-    import re
-
     t = analysis.table
-    if len(t) < 8:               # a few cuvettes named like wells are not a plate
-        return None
-    col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
-    unit = "µM/min" if col.startswith("rate") else "A/min"
-    wells = {}
-    for rec in t.to_dict("records"):
-        m = re.fullmatch(r"([A-Pa-p])(\d{1,2})", rec["trace"])
-        if not m:
-            return None
-        wells[(ord(m.group(1).upper()) - 65, int(m.group(2)) - 1)] = rec
-    nrow = 8 if max(r for r, _ in wells) < 8 and max(c for _, c in wells) < 12 else 16
-    ncol = 12 if nrow == 8 else 24
-    grid = np.full((nrow, ncol), np.nan)
-    for (r, c), rec in wells.items():
-        grid[r, c] = rec[col]
+    setup = analysis.setup
+    fmt = setup.plate_format if setup is not None else None
+    left_out = list(setup.skipped_wells) if setup is not None else []
+    names = list(g.names) + left_out
+    nrow, ncol, rows, cols, rlab, clab = plate_positions(names, fmt)
+    cell_in = 1.0 if ncol <= 12 else (0.56 if ncol <= 24 else 0.34)
+    n = len(g.names)
+    ok = g.usable & np.isfinite(g.times)
+    tmin = float(np.nanmin(g.times)) if np.isfinite(g.times).any() else 0.0
+    tspan = max(float(np.nanmax(g.times)) - tmin, 1e-9) if np.isfinite(g.times).any() else 1.0
+    centre, span = _cell_scale(g, ok)
+    pad = 0.1
+    c0, r0 = cols[:n, None].astype(float), rows[:n, None].astype(float)
+    x = c0 + pad + (1 - 2 * pad) * (np.nan_to_num(g.times) - tmin) / tspan
+    y = r0 + 0.5 - (1 - 2 * pad) * (np.nan_to_num(g.values) - centre[:, None]) / span[:, None]
+    y = np.clip(y, r0 + 0.02, r0 + 0.98)
+    t0 = t["window_start_s"].to_numpy(float)[:, None]
+    t1 = t["window_end_s"].to_numpy(float)[:, None]
+    with np.errstate(invalid="ignore"):
+        inside = ok & (g.times >= t0) & (g.times <= t1)
+    flagged = np.array([bool(f) for f in t["flags"]] + [False] * len(left_out))
+    fig_w, fig_h = ncol * cell_in + 1.2, nrow * cell_in + 1.3
     with house_style() as plt:
-        fig, ax = plt.subplots(figsize=(0.62 * ncol + 1.6, 0.55 * nrow + 1.2))
-        im = ax.imshow(grid, cmap="viridis", aspect="equal")
-        ax.grid(False)
-        for (r, c), rec in wells.items():
-            v = rec[col]
-            txt = "-" if not np.isfinite(v) else f"{v:.3g}"
-            ax.text(c, r, txt, ha="center", va="center", fontsize=6.5 if ncol == 12 else 4.5,
-                    color="white" if np.isfinite(v) and v < np.nanmean(grid) else INK)
-            if rec["flags"]:
-                ax.add_patch(plt.Rectangle((c - 0.46, r - 0.46), 0.92, 0.92, fill=False,
-                                           ec=PALETTE[1], lw=1.2))
-        ax.set_xticks(range(ncol), [str(i + 1) for i in range(ncol)], fontsize=7)
-        ax.set_yticks(range(nrow), [chr(65 + i) for i in range(nrow)], fontsize=7)
+        fig = plt.figure(figsize=(fig_w, fig_h))
+        ax = fig.add_axes((0.6 / fig_w, 0.5 / fig_h, ncol * cell_in / fig_w,
+                           nrow * cell_in / fig_h))
+        boxes = [[(c + 0.02, r + 0.02), (c + 0.98, r + 0.02), (c + 0.98, r + 0.98),
+                  (c + 0.02, r + 0.98)] for r, c in zip(rows, cols, strict=True)]
+        face = np.where(flagged, LOOK, "white").astype(object)
+        face[n:] = LEFT_OUT
+        ax.add_collection(PolyCollection(boxes, facecolors=list(face), edgecolors=np.where(
+            flagged, PALETTE[1], GRID).tolist(), linewidths=np.where(flagged, 1.0, 0.5)))
+        lw = 0.7 if ncol <= 12 else 0.45
+        ax.add_collection(LineCollection(_segments(x, y, ok), colors=PALETTE[0], linewidths=lw))
+        ax.add_collection(LineCollection(_segments(x, y, inside), colors=WINDOW,
+                                         linewidths=2.2 * lw))
+        ax.add_collection(LineCollection(_slope_lines(analysis, g, (rows[:n], cols[:n]), tmin,
+                                                      tspan, centre, span, pad), colors=LINE,
+                                         linewidths=1.2 * lw))
+        bad = ~g.usable & np.isfinite(g.times) & np.isfinite(g.values)
+        if bad.any():
+            ax.scatter(x[bad], y[bad], marker="x", s=6 if ncol <= 12 else 2, c=INK, lw=0.5)
+        if ncol <= 12:
+            _cell_labels(ax, t, rows, cols, left_out)
+        ax.set_xlim(0, ncol)
+        ax.set_ylim(nrow, 0)
+        ax.set_xticks(np.arange(ncol) + 0.5, clab, fontsize=7 if ncol <= 24 else 5)
+        ax.set_yticks(np.arange(nrow) + 0.5, rlab, fontsize=7 if ncol <= 24 else 5)
         ax.tick_params(length=0)
-        fig.colorbar(im, ax=ax, label=f"{col.split('_')[0]} ({unit})", shrink=0.8)
-        ax.set_title(f"{col.split('_')[0]} per well ({unit}); orange outline: flagged well")
+        ax.grid(False)
+        for side in ("left", "bottom", "top", "right"):
+            ax.spines[side].set_visible(False)
+        n_look = int(flagged.sum())
+        ax.set_title((f"{title}: " if title else "") + f"{n} wells, time left to right, each "
+                     f"well scaled to its own change; green: window, orange line: initial slope; "
+                     f"shaded: needs a look ({n_look})" + (f"; grey: left out ({len(left_out)})"
+                                                            if left_out else ""),
+                     fontsize=9, loc="left")
         return save(fig, path)
 
 
-def replicate_plot(analysis, path):
-    """Each replicate group's wells as dots with mean ± SD; outliers marked."""
+def _slope_lines(analysis, g, cells, tmin, tspan, centre, span, pad):
+    """The reported initial slope of each well as a line over its window, in cell units.
+
+    The line passes through the mean of the window's readings (or, for a whole-curve estimate
+    without a window, starts at the first usable reading) with the reported raw slope."""
+    r0, c0 = cells
+    t = analysis.table
+    slope = (t["slope_A_per_min"].to_numpy(float) + _blank_offset(analysis)) / 60.0
+    t0, t1 = t["window_start_s"].to_numpy(float), t["window_end_s"].to_numpy(float)
+    ok = g.usable
+    segs = []
+    for i in np.nonzero(np.isfinite(slope) & ok.any(axis=1))[0]:
+        if np.isfinite(t0[i]) and np.isfinite(t1[i]) and t1[i] > t0[i]:
+            sel = ok[i] & (g.times[i] >= t0[i]) & (g.times[i] <= t1[i])
+            tt = np.array([t0[i], t1[i]])
+            tm, ym = float(np.mean(g.times[i][sel])), float(np.mean(g.values[i][sel]))
+        else:
+            tm, ym = float(g.times[i][ok[i]][0]), float(g.values[i][ok[i]][0])
+            tt = np.array([tm, tm + 0.25 * tspan])
+        xs = c0[i] + pad + (1 - 2 * pad) * (tt - tmin) / tspan
+        ys = r0[i] + 0.5 - (1 - 2 * pad) * (ym + slope[i] * (tt - tm) - centre[i]) / span[i]
+        segs.append(np.column_stack([xs, np.clip(ys, r0[i] + 0.02, r0[i] + 0.98)]))
+    return segs
+
+
+def _blank_offset(analysis) -> np.ndarray:
+    """What the blank correction took off each well's slope (A/min), to draw the raw slope."""
+    b = analysis.blank_info
+    t = analysis.table
+    if b.get("mode") != "slope" or b.get("slope_A_per_min") is None:
+        return np.zeros(len(t))
+    return np.where(t["role"].to_numpy() == "blank", 0.0, b["slope_A_per_min"])
+
+
+def _cell_labels(ax, t, rows, cols, left_out) -> None:
+    """Role and flags written small in each cell (96 wells or fewer)."""
+    short = {"blank": "blank", "positive": "+ ctrl", "negative": "- ctrl", "standard": "std"}
+    for k, rec in enumerate(t[["role", "flags"]].itertuples(index=False)):
+        text = short.get(rec.role, "")
+        if rec.flags:
+            text = (text + " " if text else "") + ",".join(rec.flags)
+        if text:
+            ax.text(cols[k] + 0.06, rows[k] + 0.1, text, fontsize=5.2, va="top", ha="left",
+                    color=PALETTE[1] if rec.flags else "#666666")
+    for k in range(len(left_out)):
+        i = len(t) + k
+        ax.text(cols[i] + 0.5, rows[i] + 0.5, "left out", fontsize=6, ha="center",
+                va="center", color="#666666")
+
+
+def well_pages(analysis, out, wells: list[str], stem: str = "rates",
+               per_page: int = 24) -> list[Path]:
+    """Pages of single wells (readings, masked readings, window, the initial slope line, the
+    whole-curve fit, residuals of the window line), ``per_page`` to a page on a fixed grid."""
+    files = []
+    for page, start in enumerate(range(0, len(wells), per_page)):
+        files.append(_well_page(analysis, wells[start:start + per_page],
+                                Path(out) / f"{stem}_wells_{page + 1}.png"))
+    return files
+
+
+def _well_page(analysis, names: list[str], path: Path) -> Path:
+    g = analysis.traces.grid()
+    table = analysis.table.set_index("trace")
+    cols = 6 if len(names) > 12 else min(4, len(names))
+    rows = math.ceil(len(names) / cols)
+    cw, ch = 2.3, 2.1
+    fig_w, fig_h = cols * cw + 0.3, rows * ch + 0.7
+    with house_style() as plt:
+        fig = plt.figure(figsize=(fig_w, fig_h))
+        for k, name in enumerate(names):
+            left = (0.15 + (k % cols) * cw + 0.42) / fig_w
+            bottom = (fig_h - 0.55 - (k // cols + 1) * ch + 0.32) / fig_h
+            w_, h_ = (cw - 0.55) / fig_w, (ch - 0.75) / fig_h
+            ax = fig.add_axes((left, bottom + 0.3 * h_, w_, 0.7 * h_))
+            axr = fig.add_axes((left, bottom, w_, 0.27 * h_), sharex=ax)
+            _one_well(ax, axr, g, g.names.index(name), table.loc[name], analysis)
+            if k % cols == 0:
+                ax.set_ylabel("A", fontsize=7)
+                axr.set_ylabel("res. (mAU)", fontsize=6)
+        fig.suptitle("readings (dots), masked (x), window (shaded), initial slope (orange), "
+                     "whole-curve fit (dotted); residuals of the window line below; time in min",
+                     fontsize=8.5, y=1 - 0.12 / fig_h, va="top")
+        return save(fig, path)
+
+
+def _one_well(ax, axr, g, i, rec, analysis) -> None:
+    ok = g.usable[i]
+    t = g.times[i] / 60
+    y = g.values[i]
+    ax.plot(t[ok], y[ok], ".", ms=2.6, color=PALETTE[0])
+    bad = ~ok & np.isfinite(t) & np.isfinite(y)
+    if bad.any():
+        ax.plot(t[bad], y[bad], "x", ms=3, color=INK)
+    t0, t1 = rec["window_start_s"], rec["window_end_s"]
+    slope = (rec["slope_A_per_min"] + _blank_offset_one(analysis, rec)) / 60.0
+    if np.isfinite(t0) and np.isfinite(t1):
+        ax.axvspan(t0 / 60, t1 / 60, color=SHADE, alpha=0.12, lw=0)
+        sel = ok & (g.times[i] >= t0) & (g.times[i] <= t1)
+        if sel.sum() >= 2 and np.isfinite(slope):
+            tm, ym = g.times[i][sel].mean(), y[sel].mean()
+            ax.plot([t0 / 60, t1 / 60], ym + slope * (np.array([t0, t1]) - tm), color=LINE,
+                    lw=1.2)
+            res = (y - (ym + slope * (g.times[i] - tm))) * 1e3
+            axr.plot(t[sel], res[sel], ".", ms=2.2, color=PALETTE[0])
+            axr.plot(t[ok & ~sel], res[ok & ~sel], ".", ms=2.2, color=GRID)
+    curve = _curve_line(analysis.windows, g, i)
+    if curve is not None:
+        ax.plot(curve[0] / 60, curve[1], ":", lw=1.0, color=INK)
+    axr.axhline(0, color=INK, lw=0.5)
+    flags = list(rec["flags"])
+    ax.set_title(f"{g.names[i]} ({rec['role']}, {rec['method']})" + (
+        f"\n{','.join(flags)}" if flags else ""), fontsize=7,
+        color=PALETTE[1] if flags else INK, pad=2)
+    for a in (ax, axr):
+        a.tick_params(labelsize=6, length=2, pad=1)
+        a.locator_params(nbins=4)
+    ax.tick_params(labelbottom=False)
+
+
+def _blank_offset_one(analysis, rec) -> float:
+    b = analysis.blank_info
+    if b.get("mode") != "slope" or b.get("slope_A_per_min") is None or rec["role"] == "blank":
+        return 0.0
+    return float(b["slope_A_per_min"])
+
+
+def _curve_line(w, g, i):
+    """The whole-curve fit of trace ``i`` as (times s, values), or None.
+
+    Adapter: draws ``slopes.rate_curve`` from ``Windows.curve_params`` (c, v0, k), fitted to
+    the trace minus its first usable reading, from the window start (the first usable reading
+    when the start is masked). Check it against the estimator's curve when slopes changes."""
+    from ..slopes import rate_curve
+
+    p = getattr(w, "curve_params", None)
+    ok = g.usable[i]
+    if p is None or not np.all(np.isfinite(p[i])) or not ok.any():
+        return None
+    first = int(np.argmax(ok))
+    s = int(w.start[i])
+    origin = g.times[i][s] if ok[s] else g.times[i][first]
+    last = float(np.nanmax(g.times[i][ok]))
+    tt = np.linspace(origin, last, 60)
+    return tt, g.values[i][first] + rate_curve(tt - origin, *p[i])
+
+
+def plate_heatmap(analysis, path):
+    """Plate map of rates (or slopes); wells that need a look outlined. Numbers in the cells
+    of a 96-well plate (or smaller); beyond that a colour bar only. None if not a plate."""
+    from matplotlib.collections import PolyCollection
+
+    t = analysis.table
+    setup = analysis.setup
+    fmt = setup.plate_format if setup is not None else None
+    if not fmt or len(t) < 8:
+        return None
+    col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
+    unit = "µM/min" if col.startswith("rate") else "A/min"
+    nrow, ncol, rows, cols, rlab, clab = plate_positions(list(t["trace"]), fmt)
+    grid = np.full((nrow, ncol), np.nan)
+    vals = t[col].to_numpy(float)
+    grid[rows, cols] = vals
+    cell = 0.62 if ncol <= 12 else (0.36 if ncol <= 24 else 0.22)
+    fig_w, fig_h = ncol * cell + 2.2, nrow * cell + 1.1
+    with house_style() as plt:
+        fig = plt.figure(figsize=(fig_w, fig_h))
+        ax = fig.add_axes((0.5 / fig_w, 0.35 / fig_h, ncol * cell / fig_w, nrow * cell / fig_h))
+        cax = fig.add_axes(((0.7 + ncol * cell) / fig_w, 0.35 / fig_h, 0.15 / fig_w,
+                            nrow * cell / fig_h))
+        im = ax.imshow(grid, cmap="viridis", aspect="auto", extent=(0, ncol, nrow, 0),
+                       interpolation="nearest")
+        ax.grid(False)
+        look = np.array([bool(f) for f in t["flags"]])
+        if look.any():
+            m = 0.06
+            boxes = [[(c + m, r + m), (c + 1 - m, r + m), (c + 1 - m, r + 1 - m),
+                      (c + m, r + 1 - m)] for r, c in zip(rows[look], cols[look], strict=True)]
+            ax.add_collection(PolyCollection(boxes, facecolors="none", edgecolors=PALETTE[1],
+                                             linewidths=1.4 if ncol <= 24 else 0.8))
+        if ncol <= 12:
+            mid = np.nanmean(grid)
+            for r, c, v in zip(rows, cols, vals, strict=True):
+                ax.text(c + 0.5, r + 0.5, "-" if not np.isfinite(v) else f"{v:.3g}",
+                        ha="center", va="center", fontsize=6.5,
+                        color="white" if np.isfinite(v) and v < mid else INK)
+        fs = 7 if ncol <= 24 else 5
+        ax.set_xticks(np.arange(ncol) + 0.5, clab, fontsize=fs)
+        ax.set_yticks(np.arange(nrow) + 0.5, rlab, fontsize=fs)
+        ax.tick_params(length=0)
+        fig.colorbar(im, cax=cax).set_label(f"{col.split('_')[0]} ({unit})", fontsize=8)
+        ax.set_title(f"{col.split('_')[0]} per well ({unit}); orange outline: needs a look",
+                     fontsize=9.5, loc="left")
+        return save(fig, path)
+
+
+def replicate_plot(analysis, path, most: int = 60):
+    """Each replicate group's wells as dots with mean ± SD of the wells kept; outliers ringed.
+    None when the plate has more than ``most`` groups (the replicate table says it all)."""
     reps = analysis.replicates
+    if reps.empty or len(reps) > most:
+        return None
     t = analysis.table.set_index("trace")
     col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
     unit = reps["unit"].iloc[0]
     n = len(reps)
+    ks, xs, ring = [], [], []
+    for k, rec in enumerate(reps.itertuples(index=False)):
+        vals = t.loc[rec.wells, col].to_numpy(float)
+        ks += [k] * vals.size
+        xs += list(vals)
+        ring += [w for w in rec.wells if "outlier" in t.loc[w, "flags"]]
+    labels = [f"{g} (1:{d:g})" if d != 1 else str(g) for g, d in zip(reps["group"],
+                                                                     reps["dilution"],
+                                                                     strict=True)]
+    fig_h = max(2.5, 0.2 * n + 1.0)
     with house_style() as plt:
-        fig, ax = plt.subplots(figsize=(7.2, max(2.5, 0.22 * n + 1.0)))
-        for k, rec in enumerate(reps.to_dict("records")):
-            vals = t.loc[rec["wells"], col].to_numpy(dtype=float)
-            ax.plot(vals, np.full(vals.size, k), "o", ms=3.5, color=PALETTE[0], alpha=0.8)
-            if np.isfinite(rec["sd"]):
-                ax.errorbar(rec["mean"], k, xerr=rec["sd"], fmt="|", color=INK, ms=9, lw=1)
-            if rec["outlier"]:
-                ax.plot(t.loc[rec["outlier"], col], k, "o", ms=7, mfc="none", color=PALETTE[1])
-        ax.set_yticks(range(n), list(reps["group"]), fontsize=6.5)
-        ax.invert_yaxis()
+        fig = plt.figure(figsize=(7.4, fig_h))
+        ax = fig.add_axes((2.3 / 7.4, 0.55 / fig_h, 4.9 / 7.4, (fig_h - 0.95) / fig_h))
+        ax.scatter(xs, ks, s=12, color=PALETTE[0], alpha=0.8, lw=0)
+        sd = reps["sd"].to_numpy(float)
+        ax.errorbar(reps["mean"], np.arange(n), xerr=np.where(np.isfinite(sd), sd, 0), fmt="|",
+                    color=INK, ms=9, lw=1)
+        if ring:
+            ax.scatter(t.loc[ring, col], [ks[xs.index(v)] for v in t.loc[ring, col]], s=55,
+                       facecolors="none", edgecolors=PALETTE[1], lw=1.2)
+        ax.set_yticks(range(n), labels, fontsize=6.5)
+        ax.set_ylim(n - 0.5, -0.5)
         ax.set_xlabel(f"{col.split('_')[0]} ({unit})")
-        ax.set_title("replicates: wells (dots), mean ± SD (bars), Grubbs outlier (ring)")
+        ax.set_title("replicates: wells (dots), mean ± SD of the wells kept (bars), outliers "
+                     "(ringed)", fontsize=9, loc="left")
         return save(fig, path)
