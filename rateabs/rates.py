@@ -202,21 +202,22 @@ def _well_table(ts: TraceSet, layout, st: RateSettings, warnings: list):
 
 
 def _dilution_sources(w: pd.DataFrame, layout, st: RateSettings, warnings: list) -> None:
-    """Each well's dilution: the map's cell, else --dilution, else 1 (undiluted)."""
+    """Each well's dilution: the map's cell, else --dilution for a sample well, else 1
+    (undiluted; controls and standards are not taken to be diluted unless the map says so)."""
     from_map = np.isfinite(w["dilution"].to_numpy(float))
-    needs = (w["role"] != "blank").to_numpy()
-    if st.dilution is not None and st.total_volume_L is not None and not (needs & ~from_map).any():
+    fills = (w["role"] == "sample").to_numpy() & ~from_map & (st.dilution is not None)
+    if st.dilution is not None and not fills.any():
         raise UsageError(f"--dilution {st.dilution:g} is not used: the plate map gives a dilution "
-                         "for every well", "leave --dilution out, or empty the map's cells it "
-                         "should fill")
-    fill = 1.0 if st.dilution is None else st.dilution
-    w["dilution_source"] = np.where(from_map, "plate map", "--dilution" if st.dilution is not None
-                                    else "default (undiluted)")
-    w["dilution"] = np.where(from_map, w["dilution"].to_numpy(float), fill)
-    if st.dilution is not None and from_map.any() and st.total_volume_L is not None:
-        warnings.append(f"--dilution {st.dilution:g} fills the {int((needs & ~from_map).sum())} "
-                        f"well(s) whose dilution the plate map leaves empty; the map's own "
-                        f"dilution is used for the other {int((needs & from_map).sum())}")
+                         "for every sample well", "leave --dilution out, or empty the map's "
+                         "cells it should fill")
+    w["dilution_source"] = np.where(from_map, "plate map", np.where(
+        fills, "--dilution", "default (undiluted)"))
+    w["dilution"] = np.where(from_map, w["dilution"].to_numpy(float),
+                             np.where(fills, st.dilution or 1.0, 1.0))
+    if st.dilution is not None and from_map.any():
+        warnings.append(f"--dilution {st.dilution:g} fills the {int(fills.sum())} sample "
+                        "well(s) whose dilution the plate map leaves empty; the map's own "
+                        f"dilution is used for the other {int(from_map.sum())}")
 
 
 def _protein_sources(w: pd.DataFrame, st: RateSettings) -> None:
@@ -289,6 +290,7 @@ class TraceSlopes:
     raw_se: np.ndarray
     window_start_s: np.ndarray
     window_end_s: np.ndarray
+    blank: dict
 
 
 def skip_and_mask(ts: TraceSet, setup: PlateSetup, st: RateSettings) -> TraceSet:
@@ -310,25 +312,26 @@ def skip_and_mask(ts: TraceSet, setup: PlateSetup, st: RateSettings) -> TraceSet
 
 def estimate_slopes(ts: TraceSet, setup: PlateSetup, st: RateSettings,
                     blank_mode: str) -> tuple[TraceSlopes, TraceSet]:
-    """Every trace's slope, one vectorised pass per distinct window (stage 2); with the blank
-    mode ``trace`` the time-matched mean blank trace is subtracted first."""
+    """Every trace's slope, one vectorised pass per distinct window (stage 2), and the blank
+    level (:func:`blank_level`); with the blank mode ``trace`` the time-matched mean of the
+    blanks kept is subtracted and the slopes found again."""
     wells = setup.wells.loc[ts.names]
+    roles, specs = wells["role"].to_numpy(), list(wells["window"])
+    g = ts.grid()
+    win = _windows_by_spec(g, specs, st)
+    rep = _reported(win, g, st, roles)
+    raw_slope, raw_se = rep[0] * 60, rep[1] * 60
+    blank = blank_level(raw_slope, raw_se, roles == "blank")
     analysed = ts
     if blank_mode == "trace":
-        analysed = _blank_trace_subtract(ts, list(wells.index[(wells["role"] == "blank")
-                                                              .to_numpy()]))
-    g = analysed.grid()
-    win = _windows_by_spec(g, list(wells["window"]), st)
-    roles = wells["role"].to_numpy()
-    slope, se, method, choice, tflags = _reported(win, g, st, roles)
-    raw_slope, raw_se = slope, se
-    if blank_mode == "trace":
-        raw = _reported(_windows_by_spec(ts.grid(), list(wells["window"]), st), ts.grid(), st,
-                        roles)
-        raw_slope, raw_se = raw[0], raw[1]
+        analysed = _blank_trace_subtract(ts, [n for n, k in zip(ts.names, blank["kept"],
+                                                                 strict=True) if k])
+        g = analysed.grid()
+        win = _windows_by_spec(g, specs, st)
+        rep = _reported(win, g, st, roles)
     t0, t1 = window_times(g, win)
-    return TraceSlopes(win, slope * 60, se * 60, method, choice, tflags, raw_slope * 60,
-                       raw_se * 60, t0, t1), analysed
+    return TraceSlopes(win, rep[0] * 60, rep[1] * 60, rep[2], rep[3], rep[4], raw_slope,
+                       raw_se, t0, t1, blank), analysed
 
 
 def _blank_trace_subtract(ts: TraceSet, blanks: list[str]) -> TraceSet:
@@ -470,27 +473,51 @@ def blank_mode(roles: pd.Series, st: RateSettings, source: str | None) -> str:
     return st.blank
 
 
-def blank_correction(s: TraceSlopes, is_blank: np.ndarray, mode: str, names: list[str]):
-    """Blank-corrected slopes (A/min) and SEs, and what was subtracted (stage 3).
+def blank_level(slope: np.ndarray, se: np.ndarray, is_blank: np.ndarray) -> dict:
+    """The blank slope (A/min) from the blank wells' own slopes (stage 3).
 
-    The blank slope is the mean of the blank wells' slopes (of their raw traces); its SE is the
-    larger of their scatter (SEM) and their own SEs propagated, so that two flat blanks that
-    happen to agree cannot claim a tighter blank than their fits allow.
+    A blank that differs from the others by more than Z_OUTLIER of their combined SEs is left
+    out (the blanks share no pipetting scatter, so their SEs alone say how far apart they may
+    lie); the others are averaged with weights 1/SE^2, so that a blank with a poorly determined
+    slope moves the level little. Its SE is the larger of the weighted mean's SE and the
+    blanks' weighted scatter. Returns the level, its SE, the blanks kept (a mask over all
+    wells) and those left out.
     """
+    kept = np.zeros(slope.size, dtype=bool)
+    out = {"kept": kept, "left_out": np.zeros(slope.size, dtype=bool)}
+    idx = np.nonzero(is_blank & np.isfinite(slope) & np.isfinite(se))[0]
+    if idx.size == 0:
+        return out
+    s_floor = np.maximum(se[idx], 1e-6 * max(float(np.max(se[idx])), 1e-12))
+    z = np.full(slope.size, np.nan)
+    flag = np.zeros(slope.size, dtype=bool)
+    if idx.size >= 3:
+        _z_test(slope, np.where(is_blank, np.maximum(se, 1e-12), 0.0), idx, 0.0, z, flag)
+    use = idx[~flag[idx]]
+    w = 1 / np.maximum(se[use], s_floor.min()) ** 2
+    level = float(np.sum(w * slope[use]) / np.sum(w))
+    scatter = (math.sqrt(float(np.sum(w * (slope[use] - level) ** 2)) / ((use.size - 1)
+                                                                           * np.sum(w)))
+               if use.size > 1 else 0.0)
+    kept[use] = True
+    out.update(level=level, se=max(1 / math.sqrt(float(np.sum(w))), scatter), left_out=flag)
+    return out
+
+
+def blank_correction(s: TraceSlopes, is_blank: np.ndarray, mode: str, names: list[str]):
+    """Blank-corrected slopes (A/min) and SEs, and what was subtracted (stage 3)."""
     info = {"mode": mode, "wells": [n for n, b in zip(names, is_blank, strict=True) if b]}
     slope, se = s.slope.copy(), s.slope_se.copy()
-    bs = s.raw_slope[is_blank]
-    ok = np.isfinite(bs)
-    if not ok.any():
+    b = s.blank
+    if "level" not in b:
         return slope, se, info
-    b_mean = float(np.mean(bs[ok]))
-    sem = float(np.std(bs[ok], ddof=1) / math.sqrt(ok.sum())) if ok.sum() > 1 else 0.0
-    prop = float(np.sqrt(np.nansum(s.raw_se[is_blank] ** 2)) / ok.sum())
-    b_se = max(sem, prop)
-    info.update(slope_A_per_min=b_mean, slope_A_per_min_se=b_se)
+    info.update(slope_A_per_min=b["level"], slope_A_per_min_se=b["se"],
+                left_out=[n for n, o in zip(names, b["left_out"], strict=True) if o],
+                how="mean of the blanks' slopes weighted by 1/SE^2, blanks more than "
+                    f"{Z_OUTLIER} z from the others left out")
     if mode == "slope":
-        slope = np.where(is_blank, slope, slope - b_mean)
-        se = np.where(is_blank, se, np.hypot(se, b_se))
+        slope = np.where(is_blank, slope, slope - b["level"])
+        se = np.where(is_blank, se, np.hypot(se, b["se"]))
     return slope, se, info
 
 
@@ -890,7 +917,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     z, outlier, how = replicate_outliers(
         np.where(table["role"].isin(["blank", "standard"]), np.nan, table[value_col]),
         table[value_col + "_se"], table["replicate_key"])
-    masks["outlier"] = outlier
+    masks["outlier"] = outlier | s.blank["left_out"]
     table["replicate_z"] = z
     plate = _flag_lists({k: masks[k] for k in PLATE_FLAGS if k in masks}, len(table))
     table["flags"] = [a + b for a, b in zip(s.trace_flags, plate, strict=True)]
