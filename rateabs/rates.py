@@ -766,6 +766,7 @@ def replicate_summary(table: pd.DataFrame, value_col: str) -> pd.DataFrame:
                      "substrate_uM": grp["substrate_uM"].iloc[0],
                      "inhibitor_uM": grp["inhibitor_uM"].iloc[0], "n": len(grp),
                      "n_used": int(v.size), "mean": float(v.mean()), "sd": sd,
+                     "well_se": float(np.nanmedian(kept[value_col + "_se"].to_numpy(float))),
                      "sem": sd / math.sqrt(v.size) if v.size > 1 else np.nan,
                      "cv_pct": 100 * sd / abs(v.mean()) if v.mean() else np.nan,
                      "unit": value_col.split("_", 1)[1].replace("_per_", "/"),
@@ -807,10 +808,12 @@ def activity_summary(table: pd.DataFrame) -> pd.DataFrame:
         for col in ("activity_U_per_mL", "activity_nkat_per_mL", "specific_activity_U_per_mg",
                     "turnover_per_s"):
             if col in grp.columns:
-                v = grp[col].to_numpy(float)[use]
-                v = v[np.isfinite(v)]
-                row[col] = float(v.mean()) if v.size else None
-                row[f"{col}_sd"] = float(np.std(v, ddof=1)) if v.size > 1 else None
+                v, e = grp[col].to_numpy(float)[use], grp[f"{col}_se"].to_numpy(float)[use]
+                row[col] = float(np.mean(v[np.isfinite(v)])) if np.isfinite(v).any() else None
+                row[f"{col}_sd"] = (float(np.std(v[np.isfinite(v)], ddof=1))
+                                    if np.isfinite(v).sum() > 1 else None)
+                row[f"{col}_well_se"] = (float(np.median(e[np.isfinite(e)]))
+                                         if np.isfinite(e).any() else None)
         row.update(dilution_trend(grp["dilution"].to_numpy(float)[use], act[use]))
         rows.append(row)
     return pd.DataFrame(rows)

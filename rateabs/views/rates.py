@@ -26,6 +26,7 @@ RATE_FIELDS = ["trace", "role", "sample", "group", "method", "choice", "slope_A_
                "noise_A", "substrate_uM", "inhibitor_uM", "enzyme_nM", "dilution",
                "dilution_source", "replicate_z", "masked_readings", "skipped_s", "flags"]
 
+SD_NOTE = "* SD of the wells kept, or their typical own SE where that is larger"
 #: How the time unit was decided, in words (``TraceSet.info["time_unit_source"]``).
 _TIME_SOURCE = {"header": "from the header of column {col!r}", "option": "given by --time-unit",
                 "clock": "clock times h:mm:ss in column {col!r}",
@@ -248,10 +249,11 @@ def replicate_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
         return [], []
     unit = reps["unit"].iloc[0]
     rows = [{"group": r["group"], "dil": _dil(r["dilution"]), "n": f"{r['n_used']}/{r['n']}",
-             "mean": fmt_pm(r["mean"], r["sd"]), "cv": _fix(r["cv_pct"], 1),
+             "mean": fmt_pm(r["mean"], _spread(r["sd"], r["well_se"])),
+             "cv": _fix(r["cv_pct"], 1),
              "out": "; ".join(r["left_out"]) or "-"} for r in reps.to_dict("records")]
     return rows, [("group", "replicate group"), ("dil", "dilution"), ("n", "n used"),
-                  ("mean", f"mean ± SD ({unit})"), ("cv", "CV (%)"), ("out", "left out")]
+                  ("mean", f"mean ± SD* ({unit})"), ("cv", "CV (%)"), ("out", "left out")]
 
 
 def activity_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
@@ -272,14 +274,21 @@ def activity_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
                "out": "; ".join(r["left_out"]) or "-"}
         for key, col, _ in opt:
             if col in r:
-                row[key] = fmt_pm(r[col], r.get(f"{col}_sd"))
+                row[key] = fmt_pm(r[col], _spread(r.get(f"{col}_sd"), r.get(f"{col}_well_se")))
         rows.append(row)
     cols = [("sample", "sample"), ("s", "[S] (uM)"), ("i", "[I] (uM)"), ("dil", "dilutions"),
             ("n", "n used")]
-    cols += [(key, f"{head} mean ± SD") for key, col, head in opt if col in act.columns
+    cols += [(key, f"{head} mean ± SD*") for key, col, head in opt if col in act.columns
              and act[col].notna().any()]
     cols += [("check", "dilution linearity"), ("out", "left out")]
     return rows, cols
+
+
+def _spread(sd, well_se):
+    """The ± shown beside a mean: the SD of the wells, or their own typical SE where that is
+    larger (two wells that happen to agree cannot show a spread finer than each was measured)."""
+    vals = [x for x in (sd, well_se) if x is not None and np.isfinite(x)]
+    return max(vals) if vals else None
 
 
 def _dil(d) -> str:
@@ -299,7 +308,7 @@ def rates_table(a) -> str:
                                 ("activity per sample, over replicates and dilutions",
                                  activity_rows(a))):
         if rows:
-            text += f"\n{title}\n" + render_table(rows, cols)
+            text += f"\n{title}\n" + render_table(rows, cols) + SD_NOTE + "\n"
     b = a.blank_info
     if b.get("wells"):
         text += (f"\nblanks: {len(b['wells'])} wells, mean slope "
