@@ -125,7 +125,7 @@ def plate_overview(analysis, path, title: str = ""):
                      f"shaded: needs a look ({n_look})" + (f"; grey: left out ({len(left_out)})"
                                                             if left_out else ""),
                      fontsize=9, loc="left")
-        return save(fig, path)
+        return save(fig, path, tight=False)
 
 
 def _slope_lines(analysis, g, cells, tmin, tspan, centre, span, pad):
@@ -180,8 +180,10 @@ def _cell_labels(ax, t, rows, cols, left_out) -> None:
 
 def well_pages(analysis, out, wells: list[str], stem: str = "rates",
                per_page: int = 24) -> list[Path]:
-    """Pages of single wells (readings, masked readings, window, the initial slope line, the
-    whole-curve fit, residuals of the window line), ``per_page`` to a page on a fixed grid."""
+    """Pages of single wells, ``per_page`` to a page on a fixed grid: readings, masked readings
+    (x), the window (shaded), the reported initial slope (orange line), the whole-curve fit
+    (dotted) and the residuals of the slope line below (mAU), each well on its own scale with
+    its range written beside it. One Axes a page, drawn as collections."""
     files = []
     for page, start in enumerate(range(0, len(wells), per_page)):
         files.append(_well_page(analysis, wells[start:start + per_page],
@@ -189,63 +191,146 @@ def well_pages(analysis, out, wells: list[str], stem: str = "rates",
     return files
 
 
+class _Cells:
+    """Cell geometry of a well page: cell (row, col) spans [col, col+1] x [row, row+1], and
+    within it the main panel and the residual strip, in fractions of the cell."""
+
+    X0, X1 = 0.16, 0.97          # panel left and right
+    MAIN = (0.34, 0.80)          # main panel, bottom and top, from the cell's bottom
+    RES = (0.10, 0.28)           # residual strip
+
+    def __init__(self, row: int, col: int, tspan: tuple[float, float]):
+        self.row, self.col = row, col
+        self.t0, self.t1 = tspan
+
+    def x(self, t):
+        """Times (s) to page x."""
+        f = (np.asarray(t, float) - self.t0) / max(self.t1 - self.t0, 1e-12)
+        return self.col + self.X0 + (self.X1 - self.X0) * f
+
+    def y(self, v, lo: float, hi: float, band) -> np.ndarray:
+        """Values to page y within a band (bottom, top) of the cell, lo..hi spanning it."""
+        f = np.clip((np.asarray(v, float) - lo) / max(hi - lo, 1e-12), -0.02, 1.02)
+        return self.row + 1 - (band[0] + (band[1] - band[0]) * f)
+
+
 def _well_page(analysis, names: list[str], path: Path) -> Path:
+    from matplotlib.collections import LineCollection, PolyCollection
+
     g = analysis.traces.grid()
     table = analysis.table.set_index("trace")
     cols = 6 if len(names) > 12 else min(4, len(names))
     rows = math.ceil(len(names) / cols)
-    cw, ch = 2.3, 2.1
-    fig_w, fig_h = cols * cw + 0.3, rows * ch + 0.7
+    fig_w, fig_h = cols * 2.3, rows * 2.1 + 0.45
+    parts: dict[str, list] = {k: [] for k in ("dots", "grey", "bad", "res", "res_out", "shade",
+                                              "line", "curve", "zero", "frame", "text")}
+    for k, name in enumerate(names):
+        _draw_cell(parts, g, g.names.index(name), table.loc[name], analysis, k // cols,
+                   k % cols)
     with house_style() as plt:
         fig = plt.figure(figsize=(fig_w, fig_h))
-        for k, name in enumerate(names):
-            left = (0.15 + (k % cols) * cw + 0.42) / fig_w
-            bottom = (fig_h - 0.55 - (k // cols + 1) * ch + 0.32) / fig_h
-            w_, h_ = (cw - 0.55) / fig_w, (ch - 0.75) / fig_h
-            ax = fig.add_axes((left, bottom + 0.3 * h_, w_, 0.7 * h_))
-            axr = fig.add_axes((left, bottom, w_, 0.27 * h_), sharex=ax)
-            _one_well(ax, axr, g, g.names.index(name), table.loc[name], analysis)
-            if k % cols == 0:
-                ax.set_ylabel("A", fontsize=7)
-                axr.set_ylabel("res. (mAU)", fontsize=6)
-        fig.suptitle("readings (dots), masked (x), window (shaded), initial slope (orange), "
-                     "whole-curve fit (dotted); residuals of the window line below; time in min",
-                     fontsize=8.5, y=1 - 0.12 / fig_h, va="top")
-        return save(fig, path)
+        ax = fig.add_axes((0, 0, 1, rows * 2.1 / fig_h))
+        ax.set_axis_off()
+        ax.set_xlim(0, cols)
+        ax.set_ylim(rows, 0)
+        ax.add_collection(PolyCollection(parts["shade"], facecolors=SHADE, alpha=0.12, lw=0))
+        ax.add_collection(PolyCollection(parts["frame"], facecolors="none", edgecolors=GRID,
+                                         lw=0.6))
+        ax.add_collection(LineCollection(parts["zero"], colors=INK, lw=0.5))
+        ax.add_collection(LineCollection(parts["curve"], colors=INK, lw=0.9, linestyles=":"))
+        ax.add_collection(LineCollection(parts["line"], colors=LINE, lw=1.2))
+        for key, colour, marker, size in (("dots", PALETTE[0], "o", 2.2),
+                                          ("grey", "#9a9a9a", "o", 2.0), ("res", PALETTE[0], "o", 1.6),
+                                          ("res_out", "#9a9a9a", "o", 1.6), ("bad", INK, "x", 6)):
+            if parts[key]:
+                xy = np.concatenate(parts[key])
+                ax.scatter(xy[:, 0], xy[:, 1], s=size, c=colour, marker=marker, lw=0.6 if
+                           marker == "x" else 0)
+        for x, y, text, kw in parts["text"]:
+            ax.text(x, y, text, **kw)
+        fig.text(0.5, 1 - 0.1 / fig_h, "readings (dots; x masked), window (shaded), initial "
+                 "slope (orange), whole-curve fit (dotted); below: residuals from the slope "
+                 "line (mAU)", ha="center", va="top", fontsize=8.5)
+        return save(fig, path, tight=False)
 
 
-def _one_well(ax, axr, g, i, rec, analysis) -> None:
+def _draw_cell(parts: dict, g, i: int, rec, analysis, row: int, col: int) -> None:
+    """Add one well's pieces to the page's collections (see :func:`well_pages`)."""
     ok = g.usable[i]
-    t = g.times[i] / 60
-    y = g.values[i]
-    ax.plot(t[ok], y[ok], ".", ms=2.6, color=PALETTE[0])
-    bad = ~ok & np.isfinite(t) & np.isfinite(y)
-    if bad.any():
-        ax.plot(t[bad], y[bad], "x", ms=3, color=INK)
+    t, y = g.times[i], g.values[i]
+    real = np.isfinite(t)
+    cell = _Cells(row, col, (float(np.nanmin(t)), float(np.nanmax(t))) if real.any()
+                  else (0.0, 1.0))
+    seen = real & np.isfinite(y)
+    lo, hi = (float(np.min(y[ok])), float(np.max(y[ok]))) if ok.any() else (0.0, 1.0)
+    pad = 0.06 * max(hi - lo, 1e-4)
+    lo, hi = lo - pad, hi + pad
+    main, res_band = _Cells.MAIN, _Cells.RES
+    parts["frame"] += [_box(cell, main), _box(cell, res_band)]
     t0, t1 = rec["window_start_s"], rec["window_end_s"]
+    inside = ok & (t >= t0) & (t <= t1) if np.isfinite(t0) else np.zeros_like(ok)
+    parts["dots"].append(np.column_stack([cell.x(t[ok & inside]), cell.y(y[ok & inside], lo, hi,
+                                                                         main)]))
+    parts["grey"].append(np.column_stack([cell.x(t[ok & ~inside]),
+                                          cell.y(y[ok & ~inside], lo, hi, main)]))
+    bad = seen & ~ok
+    if bad.any():
+        parts["bad"].append(np.column_stack([cell.x(t[bad]), cell.y(y[bad], lo, hi, main)]))
     slope = (rec["slope_A_per_min"] + _blank_offset_one(analysis, rec)) / 60.0
-    if np.isfinite(t0) and np.isfinite(t1):
-        ax.axvspan(t0 / 60, t1 / 60, color=SHADE, alpha=0.12, lw=0)
-        sel = ok & (g.times[i] >= t0) & (g.times[i] <= t1)
-        if sel.sum() >= 2 and np.isfinite(slope):
-            tm, ym = g.times[i][sel].mean(), y[sel].mean()
-            ax.plot([t0 / 60, t1 / 60], ym + slope * (np.array([t0, t1]) - tm), color=LINE,
-                    lw=1.2)
-            res = (y - (ym + slope * (g.times[i] - tm))) * 1e3
-            axr.plot(t[sel], res[sel], ".", ms=2.2, color=PALETTE[0])
-            axr.plot(t[ok & ~sel], res[ok & ~sel], ".", ms=2.2, color=GRID)
+    res_txt = ""
+    if np.isfinite(t0) and np.isfinite(t1) and inside.sum() >= 2 and np.isfinite(slope):
+        parts["shade"].append(_box(cell, main, cell.x(t0), cell.x(t1)))
+        tm, ym = t[inside].mean(), y[inside].mean()
+        tt = np.array([t0, t1])
+        parts["line"].append(np.column_stack([cell.x(tt), cell.y(ym + slope * (tt - tm), lo, hi,
+                                                                  main)]))
+        res = (y - (ym + slope * (t - tm))) * 1e3
+        r_max = max(float(np.max(np.abs(res[inside]))) * 1.15, 1e-3)
+        parts["res"].append(np.column_stack([cell.x(t[inside]),
+                                             cell.y(res[inside], -r_max, r_max, res_band)]))
+        parts["res_out"].append(np.column_stack([cell.x(t[ok & ~inside]), cell.y(
+            res[ok & ~inside], -r_max, r_max, res_band)]))
+        res_txt = f"±{r_max:.2g}"
+    parts["zero"].append(np.column_stack([cell.x([cell.t0, cell.t1]), [cell.row + 1 - sum(
+        res_band) / 2] * 2]))
     curve = _curve_line(analysis.windows, g, i)
     if curve is not None:
-        ax.plot(curve[0] / 60, curve[1], ":", lw=1.0, color=INK)
-    axr.axhline(0, color=INK, lw=0.5)
+        parts["curve"].append(np.column_stack([cell.x(curve[0]), cell.y(curve[1], lo, hi,
+                                                                        main)]))
+    _cell_texts(parts["text"], cell, rec, g.names[i], (lo + pad, hi - pad), res_txt)
+
+
+def _box(cell: _Cells, band, x0=None, x1=None):
+    """The corners of a band of a cell (optionally only from x0 to x1)."""
+    x0 = cell.col + _Cells.X0 if x0 is None else x0
+    x1 = cell.col + _Cells.X1 if x1 is None else x1
+    yb, yt = cell.row + 1 - band[0], cell.row + 1 - band[1]
+    return [(x0, yb), (x1, yb), (x1, yt), (x0, yt)]
+
+
+def _cell_texts(texts: list, cell: _Cells, rec, name: str, yrange, res_txt: str) -> None:
+    """Title, flags and the ranges of one cell, as (x, y, text, keywords)."""
     flags = list(rec["flags"])
-    ax.set_title(f"{g.names[i]} ({rec['role']}, {rec['method']})" + (
-        f"\n{','.join(flags)}" if flags else ""), fontsize=7,
-        color=PALETTE[1] if flags else INK, pad=2)
-    for a in (ax, axr):
-        a.tick_params(labelsize=6, length=2, pad=1)
-        a.locator_params(nbins=4)
-    ax.tick_params(labelbottom=False)
+    left, right = cell.col + _Cells.X0, cell.col + _Cells.X1
+    small = {"fontsize": 5.5, "color": "#555555"}
+    texts.append((left, cell.row + 0.03, f"{name} ({rec['role']}, {rec['method']})",
+                  {"fontsize": 7, "va": "top", "color": PALETTE[1] if flags else INK}))
+    if flags:
+        texts.append((left, cell.row + 0.11, ",".join(flags), {"fontsize": 6, "va": "top",
+                                                                "color": PALETTE[1]}))
+    top, bottom = cell.row + 1 - _Cells.MAIN[1], cell.row + 1 - _Cells.MAIN[0]
+    texts.append((left - 0.015, top, f"{yrange[1]:.3g}", {**small, "ha": "right", "va": "center"}))
+    texts.append((left - 0.015, bottom, f"{yrange[0]:.3g}", {**small, "ha": "right",
+                                                            "va": "center"}))
+    texts.append((left - 0.015, (top + bottom) / 2, "A", {**small, "ha": "right",
+                                                          "va": "center"}))
+    if res_txt:
+        texts.append((left - 0.015, cell.row + 1 - sum(_Cells.RES) / 2, res_txt,
+                      {**small, "ha": "right", "va": "center"}))
+    span = (cell.t1 - cell.t0) / 60
+    texts.append((left, cell.row + 1 - 0.03, "0", {**small, "va": "bottom"}))
+    texts.append((right, cell.row + 1 - 0.03, f"{span:.3g} min", {**small, "ha": "right",
+                                                                   "va": "bottom"}))
 
 
 def _blank_offset_one(analysis, rec) -> float:
@@ -321,7 +406,7 @@ def plate_heatmap(analysis, path):
         fig.colorbar(im, cax=cax).set_label(f"{col.split('_')[0]} ({unit})", fontsize=8)
         ax.set_title(f"{col.split('_')[0]} per well ({unit}); orange outline: needs a look",
                      fontsize=9.5, loc="left")
-        return save(fig, path)
+        return save(fig, path, tight=False)
 
 
 def replicate_plot(analysis, path, most: int = 60):
@@ -359,4 +444,4 @@ def replicate_plot(analysis, path, most: int = 60):
         ax.set_xlabel(f"{col.split('_')[0]} ({unit})")
         ax.set_title("replicates: wells (dots), mean ± SD of the wells kept (bars), outliers "
                      "(ringed)", fontsize=9, loc="left")
-        return save(fig, path)
+        return save(fig, path, tight=False)

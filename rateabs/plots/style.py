@@ -47,12 +47,13 @@ def house_style():
         yield plt
 
 
-def save(fig, path: str | Path) -> Path:
-    """Write a figure as PNG atomically and close it."""
+def save(fig, path: str | Path, tight: bool = True) -> Path:
+    """Write a figure as PNG atomically and close it. ``tight=False`` keeps a layout fixed in
+    advance as it is (the figure is drawn once instead of twice)."""
     from ..files import write_atomic
 
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", bbox_inches="tight")
+    fig.savefig(buf, format="png", bbox_inches="tight" if tight else None)
     import matplotlib.pyplot as plt
 
     plt.close(fig)
