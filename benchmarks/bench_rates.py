@@ -29,6 +29,7 @@ import numpy as np
 from scipy import stats
 
 sys.path.insert(0, str(Path(__file__).parent))
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))      # this checkout's rateabs
 from common import timed, write_plate  # noqa: E402
 
 from rateabs.io import read_traces  # noqa: E402

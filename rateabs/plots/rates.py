@@ -21,6 +21,7 @@ LOOK = "#fbe3cf"          # background of a well that needs a look
 LEFT_OUT = "#eeeeee"      # background of a well left out of the analysis
 WINDOW = PALETTE[2]       # readings inside the window
 LINE = PALETTE[1]         # the reported initial slope
+FAST_PNG = 1              # zlib level of these PNGs: a third of the encoding time, files ~1.3x
 
 
 def plate_positions(names: list[str], plate_format: int | None):
@@ -45,9 +46,10 @@ def plate_positions(names: list[str], plate_format: int | None):
 def _cell_scale(g, ok):
     """Per-trace centre and span of the values: each well is scaled on its own, but never to
     less than a fifth of the plate's typical change, so that a flat well looks flat."""
-    with np.errstate(all="ignore"):
-        v = np.where(ok, g.values, np.nan)
-        lo, hi = np.nanmin(v, axis=1), np.nanmax(v, axis=1)
+    v = np.where(ok, g.values, np.inf)
+    lo = np.min(v, axis=1)
+    hi = np.max(np.where(ok, g.values, -np.inf), axis=1)
+    lo, hi = np.where(ok.any(axis=1), lo, 0.0), np.where(ok.any(axis=1), hi, 0.0)
     ptp = np.nan_to_num(hi - lo)
     floor = max(0.2 * float(np.percentile(ptp, 90)) if ptp.size else 0.0, 1e-4)
     return np.nan_to_num((hi + lo) / 2), np.maximum(ptp, floor) * 1.1
@@ -79,10 +81,10 @@ def plate_overview(analysis, path, title: str = ""):
     tspan = max(float(np.nanmax(g.times)) - tmin, 1e-9) if np.isfinite(g.times).any() else 1.0
     centre, span = _cell_scale(g, ok)
     pad = 0.1
+    band = (0.24, 0.94) if ncol <= 12 else (0.1, 0.9)   # room above the trace for its label
     c0, r0 = cols[:n, None].astype(float), rows[:n, None].astype(float)
     x = c0 + pad + (1 - 2 * pad) * (np.nan_to_num(g.times) - tmin) / tspan
-    y = r0 + 0.5 - (1 - 2 * pad) * (np.nan_to_num(g.values) - centre[:, None]) / span[:, None]
-    y = np.clip(y, r0 + 0.02, r0 + 0.98)
+    y = _cell_y(r0, np.nan_to_num(g.values), centre[:, None], span[:, None], band)
     t0 = t["window_start_s"].to_numpy(float)[:, None]
     t1 = t["window_end_s"].to_numpy(float)[:, None]
     with np.errstate(invalid="ignore"):
@@ -104,8 +106,8 @@ def plate_overview(analysis, path, title: str = ""):
         ax.add_collection(LineCollection(_segments(x, y, inside), colors=WINDOW,
                                          linewidths=2.2 * lw))
         ax.add_collection(LineCollection(_slope_lines(analysis, g, (rows[:n], cols[:n]), tmin,
-                                                      tspan, centre, span, pad), colors=LINE,
-                                         linewidths=1.2 * lw))
+                                                      tspan, (centre, span), pad, band),
+                                         colors=LINE, linewidths=1.2 * lw))
         bad = ~g.usable & np.isfinite(g.times) & np.isfinite(g.values)
         if bad.any():
             ax.scatter(x[bad], y[bad], marker="x", s=6 if ncol <= 12 else 2, c=INK, lw=0.5)
@@ -113,22 +115,41 @@ def plate_overview(analysis, path, title: str = ""):
             _cell_labels(ax, t, rows, cols, left_out)
         ax.set_xlim(0, ncol)
         ax.set_ylim(nrow, 0)
-        ax.set_xticks(np.arange(ncol) + 0.5, clab, fontsize=7 if ncol <= 24 else 5)
-        ax.set_yticks(np.arange(nrow) + 0.5, rlab, fontsize=7 if ncol <= 24 else 5)
-        ax.tick_params(length=0)
-        ax.grid(False)
-        for side in ("left", "bottom", "top", "right"):
-            ax.spines[side].set_visible(False)
+        ax.set_axis_off()
+        _plate_labels(ax, rlab, clab, 7 if ncol <= 24 else 5)
         n_look = int(flagged.sum())
-        ax.set_title((f"{title}: " if title else "") + f"{n} wells, time left to right, each "
-                     f"well scaled to its own change; green: window, orange line: initial slope; "
-                     f"shaded: needs a look ({n_look})" + (f"; grey: left out ({len(left_out)})"
-                                                            if left_out else ""),
-                     fontsize=9, loc="left")
-        return save(fig, path, tight=False)
+        _fig_title(fig, (f"{title}: " if title else "") + f"{n} wells, time left to right, each "
+                   f"well scaled to its own change; green: window, orange line: initial slope; "
+                   f"shaded: needs a look ({n_look})" + (f"; grey: left out ({len(left_out)})"
+                                                          if left_out else ""), 0.6, fig_h - 0.5)
+        return save(fig, path, tight=False, compress_level=FAST_PNG)
 
 
-def _slope_lines(analysis, g, cells, tmin, tspan, centre, span, pad):
+def _plate_labels(ax, rlab: list[str], clab: list[str], size: float) -> None:
+    """Row letters left of the plate and column numbers below it, as plain texts (cheaper
+    than tick labels, which matplotlib measures again and again)."""
+    for r, text in enumerate(rlab):
+        ax.text(-0.15, r + 0.5, text, ha="right", va="center", fontsize=size, clip_on=False)
+    for c, text in enumerate(clab):
+        ax.text(c + 0.5, len(rlab) + 0.08, text, ha="center", va="top", fontsize=size,
+                clip_on=False)
+
+
+def _fig_title(fig, text: str, left_in: float, bottom_in: float) -> None:
+    """A title at a fixed place (inches from the figure's left and bottom)."""
+    w, h = fig.get_size_inches()
+    fig.text(left_in / w, (bottom_in + 0.1) / h, text, fontsize=9, ha="left", va="bottom")
+
+
+def _cell_y(r0, v, centre, span, band):
+    """Values to y within a well's cell: the band (top, bottom) of the cell holds the well's
+    span around its centre, larger values higher."""
+    top, bottom = band
+    y = r0 + (top + bottom) / 2 - (bottom - top) * (v - centre) / span
+    return np.clip(y, r0 + top - 0.04, r0 + min(bottom + 0.04, 0.98))
+
+
+def _slope_lines(analysis, g, cells, tmin, tspan, scale, pad, band):
     """The reported initial slope of each well as a line over its window, in cell units.
 
     The line passes through the mean of the window's readings (or, for a whole-curve estimate
@@ -148,8 +169,8 @@ def _slope_lines(analysis, g, cells, tmin, tspan, centre, span, pad):
             tm, ym = float(g.times[i][ok[i]][0]), float(g.values[i][ok[i]][0])
             tt = np.array([tm, tm + 0.25 * tspan])
         xs = c0[i] + pad + (1 - 2 * pad) * (tt - tmin) / tspan
-        ys = r0[i] + 0.5 - (1 - 2 * pad) * (ym + slope[i] * (tt - tm) - centre[i]) / span[i]
-        segs.append(np.column_stack([xs, np.clip(ys, r0[i] + 0.02, r0[i] + 0.98)]))
+        ys = _cell_y(r0[i], ym + slope[i] * (tt - tm), scale[0][i], scale[1][i], band)
+        segs.append(np.column_stack([xs, ys]))
     return segs
 
 
@@ -251,7 +272,7 @@ def _well_page(analysis, names: list[str], path: Path) -> Path:
         fig.text(0.5, 1 - 0.1 / fig_h, "readings (dots; x masked), window (shaded), initial "
                  "slope (orange), whole-curve fit (dotted); below: residuals from the slope "
                  "line (mAU)", ha="center", va="top", fontsize=8.5)
-        return save(fig, path, tight=False)
+        return save(fig, path, tight=False, compress_level=FAST_PNG)
 
 
 def _draw_cell(parts: dict, g, i: int, rec, analysis, row: int, col: int) -> None:
@@ -313,24 +334,20 @@ def _cell_texts(texts: list, cell: _Cells, rec, name: str, yrange, res_txt: str)
     flags = list(rec["flags"])
     left, right = cell.col + _Cells.X0, cell.col + _Cells.X1
     small = {"fontsize": 5.5, "color": "#555555"}
-    texts.append((left, cell.row + 0.03, f"{name} ({rec['role']}, {rec['method']})",
-                  {"fontsize": 7, "va": "top", "color": PALETTE[1] if flags else INK}))
-    if flags:
-        texts.append((left, cell.row + 0.11, ",".join(flags), {"fontsize": 6, "va": "top",
-                                                                "color": PALETTE[1]}))
+    head = f"{name} ({rec['role']}, {rec['method']})" + ("\n" + ",".join(flags) if flags else "")
+    texts.append((left, cell.row + 0.03, head, {"fontsize": 6.5, "va": "top", "linespacing": 1.1,
+                                                "color": PALETTE[1] if flags else INK}))
     top, bottom = cell.row + 1 - _Cells.MAIN[1], cell.row + 1 - _Cells.MAIN[0]
-    texts.append((left - 0.015, top, f"{yrange[1]:.3g}", {**small, "ha": "right", "va": "center"}))
+    texts.append((left - 0.015, top, f"{yrange[1]:.3g} A", {**small, "ha": "right",
+                                                             "va": "center"}))
     texts.append((left - 0.015, bottom, f"{yrange[0]:.3g}", {**small, "ha": "right",
                                                             "va": "center"}))
-    texts.append((left - 0.015, (top + bottom) / 2, "A", {**small, "ha": "right",
-                                                          "va": "center"}))
     if res_txt:
         texts.append((left - 0.015, cell.row + 1 - sum(_Cells.RES) / 2, res_txt,
                       {**small, "ha": "right", "va": "center"}))
     span = (cell.t1 - cell.t0) / 60
-    texts.append((left, cell.row + 1 - 0.03, "0", {**small, "va": "bottom"}))
-    texts.append((right, cell.row + 1 - 0.03, f"{span:.3g} min", {**small, "ha": "right",
-                                                                   "va": "bottom"}))
+    texts.append((right, cell.row + 1 - 0.03, f"0 to {span:.3g} min", {**small, "ha": "right",
+                                                                        "va": "bottom"}))
 
 
 def _blank_offset_one(analysis, rec) -> float:
@@ -399,14 +416,12 @@ def plate_heatmap(analysis, path):
                 ax.text(c + 0.5, r + 0.5, "-" if not np.isfinite(v) else f"{v:.3g}",
                         ha="center", va="center", fontsize=6.5,
                         color="white" if np.isfinite(v) and v < mid else INK)
-        fs = 7 if ncol <= 24 else 5
-        ax.set_xticks(np.arange(ncol) + 0.5, clab, fontsize=fs)
-        ax.set_yticks(np.arange(nrow) + 0.5, rlab, fontsize=fs)
-        ax.tick_params(length=0)
+        ax.set_axis_off()
+        _plate_labels(ax, rlab, clab, 7 if ncol <= 24 else 5)
         fig.colorbar(im, cax=cax).set_label(f"{col.split('_')[0]} ({unit})", fontsize=8)
-        ax.set_title(f"{col.split('_')[0]} per well ({unit}); orange outline: needs a look",
-                     fontsize=9.5, loc="left")
-        return save(fig, path, tight=False)
+        _fig_title(fig, f"{col.split('_')[0]} per well ({unit}); orange outline: needs a look",
+                   0.5, 0.35 + nrow * cell)
+        return save(fig, path, tight=False, compress_level=FAST_PNG)
 
 
 def replicate_plot(analysis, path, most: int = 60):
@@ -417,14 +432,17 @@ def replicate_plot(analysis, path, most: int = 60):
         return None
     t = analysis.table.set_index("trace")
     col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
-    unit = reps["unit"].iloc[0]
+    unit = reps["unit"].iloc[0].replace("uM", "µM")
     n = len(reps)
+    value = t[col].to_dict()
+    outlier = {w for w, f in t["flags"].items() if "outlier" in f}
     ks, xs, ring = [], [], []
-    for k, rec in enumerate(reps.itertuples(index=False)):
-        vals = t.loc[rec.wells, col].to_numpy(float)
-        ks += [k] * vals.size
-        xs += list(vals)
-        ring += [w for w in rec.wells if "outlier" in t.loc[w, "flags"]]
+    for k, wells in enumerate(reps["wells"]):
+        for w in wells:
+            ks.append(k)
+            xs.append(value[w])
+            if w in outlier:
+                ring.append((value[w], k))
     labels = [f"{g} (1:{d:g})" if d != 1 else str(g) for g, d in zip(reps["group"],
                                                                      reps["dilution"],
                                                                      strict=True)]
@@ -437,11 +455,17 @@ def replicate_plot(analysis, path, most: int = 60):
         ax.errorbar(reps["mean"], np.arange(n), xerr=np.where(np.isfinite(sd), sd, 0), fmt="|",
                     color=INK, ms=9, lw=1)
         if ring:
-            ax.scatter(t.loc[ring, col], [ks[xs.index(v)] for v in t.loc[ring, col]], s=55,
-                       facecolors="none", edgecolors=PALETTE[1], lw=1.2)
-        ax.set_yticks(range(n), labels, fontsize=6.5)
+            rx, ry = zip(*ring, strict=True)
+            ax.scatter(rx, ry, s=55, facecolors="none", edgecolors=PALETTE[1], lw=1.2)
+        ax.set_yticks([])
+        ax.grid(False, axis="y")
+        ax.hlines(np.arange(n), 0, 1, transform=ax.get_yaxis_transform(), colors=GRID,
+                  lw=0.6, zorder=0)
+        for k, text in enumerate(labels):       # plain texts: cheaper than tick labels
+            ax.text(-0.02, k, text, transform=ax.get_yaxis_transform(), ha="right",
+                    va="center", fontsize=6.5)
         ax.set_ylim(n - 0.5, -0.5)
         ax.set_xlabel(f"{col.split('_')[0]} ({unit})")
-        ax.set_title("replicates: wells (dots), mean ± SD of the wells kept (bars), outliers "
-                     "(ringed)", fontsize=9, loc="left")
-        return save(fig, path, tight=False)
+        _fig_title(fig, "replicates: wells (dots), mean ± SD of the wells kept (bars), "
+                   "outliers (ringed)", 0.3, fig_h - 0.4)
+        return save(fig, path, tight=False, compress_level=FAST_PNG)
