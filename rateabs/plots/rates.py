@@ -344,7 +344,8 @@ def _draw_cell(parts: dict, g, i: int, rec, analysis, row: int, col: int) -> Non
     cell = _Cells(row, col, (float(np.nanmin(t)), float(np.nanmax(t))) if real.any()
                   else (0.0, 1.0))
     seen = real & np.isfinite(y)
-    lo, hi = (float(np.min(y[ok])), float(np.max(y[ok]))) if ok.any() else (0.0, 1.0)
+    src = ok if ok.any() else seen          # no usable reading: the masked ones set the scale
+    lo, hi = (float(np.min(y[src])), float(np.max(y[src]))) if src.any() else (0.0, 1.0)
     pad = 0.06 * max(hi - lo, 1e-4)
     lo, hi = lo - pad, hi + pad
     main, res_band = _Cells.MAIN, _Cells.RES
