@@ -14,14 +14,19 @@ A plate map is a CSV (or TSV/.xlsx) with one row per well. Columns (case-insensi
 ``inhibitor``  inhibitor concentration, same rules
 ``standard``   known concentration of the absorbing species in a ``standard`` well (a standard
                curve calibrates absorbance when no epsilon is given)
-``enzyme``     enzyme amount in the well, e.g. ``1 nM`` (kept for kcat)
-``dilution``   dilution factor of the sample before it was added (default 1)
+``enzyme``     enzyme concentration in the well, e.g. ``1 nM`` (gives v/[E], and kcat)
+``dilution``   dilution factor of the sample before it was added; an empty cell (or no column)
+               takes ``--dilution``, else 1
 ``protein``    protein concentration of the undiluted sample, e.g. ``0.8 mg/mL``
-``group``      replicate group (default: sample + substrate + inhibitor)
+``group``      replicate group; an empty cell (or no column) takes the default group, sample +
+               substrate + inhibitor
 ``exclude``    ``yes`` to leave the well out of every analysis
+``window``     the well's own window, ``START-END`` (bare numbers are s) or ``auto``
+``skip``       readings to leave out, by time: ``120`` or ``120; 240`` (bare numbers are s)
 =============  ==============================================================================
 
-Lines starting with ``#`` are comments.
+Lines starting with ``#`` are comments. ``read_layout`` records in ``attrs["columns"]`` which
+optional columns the map has, so that the analysis can say where each value came from.
 """
 
 from __future__ import annotations
@@ -31,14 +36,16 @@ import re
 import numpy as np
 import pandas as pd
 
-from .errors import InputError, UnitError
+from .errors import InputError, UnitError, UsageError
 from .io import read_table
-from .units import parse_concentration, parse_mass_concentration, unit_from_header
+from .rules import Window
+from .units import parse_concentration, parse_mass_concentration, quantity, unit_from_header
 
 ROLES = ("sample", "blank", "standard", "positive", "negative")
 #: Other words of the trade for the same roles (common practice).
 _ROLE_ALIASES = {"buffer": "blank", "background": "blank", "unknown": "sample",
                  "positive control": "positive", "negative control": "negative"}
+_YES = ("yes", "y", "true", "1", "x")
 
 
 def conc_column(df, stem: str):
@@ -67,94 +74,165 @@ def parse_conc_cells(df, col: str, path: str, lines) -> np.ndarray:
     return out
 
 
+class _MapCells:
+    """The cells of one plate map with the file and line numbers for error messages."""
+
+    def __init__(self, df: pd.DataFrame, path: str) -> None:
+        self.df, self.path = df, path
+        self.lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
+
+    def fail(self, k: int, column: str, problem: str, fix: str) -> InputError:
+        """The one-line error for row ``k`` of ``column``."""
+        return InputError(problem, fix, file=self.path, row=self.lines[k], column=column)
+
+    def cells(self, col: str | None):
+        """(row index, stripped text) of every non-empty cell of ``col`` (none without it)."""
+        if col is None or col not in self.df.columns:
+            return []
+        return [(k, str(c).strip()) for k, c in enumerate(self.df[col]) if str(c).strip()]
+
+
 def read_layout(path: str) -> pd.DataFrame:
     """Read and check a plate map; returns a frame indexed by well with normalised columns.
 
-    Columns of the result: role, sample, substrate_M, inhibitor_M, enzyme_M, enzyme, dilution,
-    protein_mg_per_mL, group, exclude.
+    Columns of the result: role, sample, substrate_M, inhibitor_M, standard_M, enzyme,
+    enzyme_M, dilution (NaN where the map gives none), protein_mg_per_mL, group, exclude,
+    window (None, ``"auto"`` or a (start_s, end_s) pair) and skip (times in s, a tuple).
     """
     df = read_table(path)
-    lines = df.attrs.get("lines", list(range(2, len(df) + 2)))
-    lower = {c: str(c).strip().lower() for c in df.columns}
-    df = df.rename(columns=lower)
+    df = df.rename(columns={c: str(c).strip().lower() for c in df.columns})
     for req in ("well", "role"):
         if req not in df.columns:
             raise InputError(f"the plate map has no {req!r} column",
                              "add columns 'well' and 'role' (see docs/formats.md)", file=path,
                              row=df.attrs.get("header_line"))
-    wells = [str(w).strip() for w in df["well"]]
-    seen = {}
-    for k, w in enumerate(wells):
-        if not w:
-            raise InputError("empty well name", "name every well", file=path, row=lines[k],
-                             column="well")
-        if w in seen:
-            raise InputError(f"well {w} appears twice (also on row {seen[w]})",
-                             "give each well one row", file=path, row=lines[k], column="well")
-        seen[w] = lines[k]
-    roles = []
-    for k, r in enumerate(df["role"]):
-        r0 = str(r).strip().lower()
-        r1 = _ROLE_ALIASES.get(r0, r0)
-        if r1 not in ROLES:
-            raise InputError(f"unknown role {str(r).strip()!r} for well {wells[k]}",
-                             f"use one of {', '.join(ROLES)}", file=path, row=lines[k],
-                             column="role")
-        roles.append(r1)
+    m = _MapCells(df, path)
+    wells = _wells(m)
     out = pd.DataFrame(index=pd.Index(wells, name="trace"))
-    out["role"] = roles
+    out["role"] = _roles(m, wells)
     out["sample"] = [str(x).strip() for x in df["sample"]] if "sample" in df.columns else ""
     for stem in ("substrate", "inhibitor", "standard"):
         col = conc_column(df, stem)
-        out[f"{stem}_M"] = parse_conc_cells(df, col, path, lines) if col else np.nan
-    enz = conc_column(df, "enzyme")
-    out["enzyme"] = [str(x).strip() for x in df[enz]] if enz else ""
-    enz_m = np.full(len(df), np.nan)
-    if enz:
-        for k, c in enumerate(out["enzyme"]):
-            try:
-                enz_m[k] = parse_concentration(c, default="nM") if c else np.nan
-            except UnitError:
-                enz_m[k] = np.nan          # an amount that is not molar ("2 ug") is kept as text
-    out["enzyme_M"] = enz_m
-    dil = np.ones(len(df))
-    if "dilution" in df.columns:
-        for k, c in enumerate(df["dilution"]):
-            c = str(c).strip()
-            if not c:
+        out[f"{stem}_M"] = parse_conc_cells(df, col, path, m.lines) if col else np.nan
+    out["enzyme"], out["enzyme_M"] = _enzyme(m)
+    out["dilution"] = _dilutions(m)
+    out["protein_mg_per_mL"] = _protein(m)
+    out["group"] = _groups(m, out)
+    out["exclude"] = ([str(x).strip().lower() in _YES for x in df["exclude"]]
+                      if "exclude" in df.columns else False)
+    out["window"] = _windows(m)
+    out["skip"] = _skips(m)
+    out.attrs["source"] = path
+    out.attrs["columns"] = sorted(c for c in ("dilution", "protein", "group", "window", "skip",
+                                              "exclude", "enzyme")
+                                  if c in df.columns or (c in ("protein", "enzyme")
+                                                         and conc_column(df, c)))
+    return out
+
+
+def _wells(m: _MapCells) -> list[str]:
+    wells = [str(w).strip() for w in m.df["well"]]
+    seen: dict[str, int] = {}
+    for k, w in enumerate(wells):
+        if not w:
+            raise m.fail(k, "well", "empty well name", "name every well")
+        if w in seen:
+            raise m.fail(k, "well", f"well {w} appears twice (also on row {seen[w]})",
+                         "give each well one row")
+        seen[w] = m.lines[k]
+    return wells
+
+
+def _roles(m: _MapCells, wells: list[str]) -> list[str]:
+    roles = []
+    for k, r in enumerate(m.df["role"]):
+        r0 = str(r).strip().lower()
+        r1 = _ROLE_ALIASES.get(r0, r0)
+        if r1 not in ROLES:
+            raise m.fail(k, "role", f"unknown role {str(r).strip()!r} for well {wells[k]}",
+                         f"use one of {', '.join(ROLES)}")
+        roles.append(r1)
+    return roles
+
+
+def _enzyme(m: _MapCells) -> tuple[list[str], np.ndarray]:
+    """The enzyme cells as written, and as mol/L where they are molar (else NaN: an amount
+    such as "2 ug" is kept as text)."""
+    col = conc_column(m.df, "enzyme")
+    text = [str(x).strip() for x in m.df[col]] if col else [""] * len(m.df)
+    molar = np.full(len(m.df), np.nan)
+    for k, c in m.cells(col):
+        try:
+            molar[k] = parse_concentration(c, default="nM")
+        except UnitError:
+            continue
+    return text, molar
+
+
+def _dilutions(m: _MapCells) -> np.ndarray:
+    dil = np.full(len(m.df), np.nan)
+    for k, c in m.cells("dilution"):
+        try:
+            dil[k] = float(c)
+        except ValueError:
+            raise m.fail(k, "dilution", f"dilution {c!r} is not a number",
+                         "write e.g. 10 for 1:10") from None
+        if not (np.isfinite(dil[k]) and dil[k] > 0):
+            raise m.fail(k, "dilution", f"dilution {c!r} must be a positive number",
+                         "write e.g. 10 for 1:10")
+    return dil
+
+
+def _protein(m: _MapCells) -> np.ndarray:
+    col = conc_column(m.df, "protein")
+    prot = np.full(len(m.df), np.nan)
+    for k, c in m.cells(col):
+        try:
+            prot[k] = parse_mass_concentration(c)
+        except UnitError as exc:
+            raise m.fail(k, col, exc.problem, exc.fix) from None
+    return prot
+
+
+def _groups(m: _MapCells, out: pd.DataFrame) -> list[str]:
+    """The map's group where its cell is filled, else the default: sample + substrate +
+    inhibitor for samples, the role for controls and blanks."""
+    default = [f"{s or r}|S={_fmt(sub)}|I={_fmt(inh)}" if r == "sample" else r
+               for s, r, sub, inh in zip(out["sample"], out["role"], out["substrate_M"],
+                                         out["inhibitor_M"], strict=True)]
+    given = dict(m.cells("group"))
+    return [given.get(k, d) for k, d in enumerate(default)]
+
+
+def _windows(m: _MapCells) -> list:
+    wins: list = [None] * len(m.df)
+    for k, c in m.cells("window"):
+        try:
+            wins[k] = Window().check(c, "window")
+        except UsageError:
+            raise m.fail(k, "window", f"window {c!r} is neither 'auto' nor START-END",
+                         "write e.g. 60-300 (seconds) or auto") from None
+    return wins
+
+
+def _skips(m: _MapCells) -> list[tuple]:
+    skips: list[tuple] = [()] * len(m.df)
+    for k, c in m.cells("skip"):
+        times = []
+        for part_ in re.split(r"[;|]", c):
+            if not part_.strip():
                 continue
             try:
-                dil[k] = float(c)
-            except ValueError:
-                raise InputError(f"dilution {c!r} is not a number", "write e.g. 10 for 1:10",
-                                 file=path, row=lines[k], column="dilution") from None
-            if dil[k] <= 0:
-                raise InputError(f"dilution {c!r} must be positive", "write e.g. 10 for 1:10",
-                                 file=path, row=lines[k], column="dilution")
-    out["dilution"] = dil
-    prot = np.full(len(df), np.nan)
-    pcol = conc_column(df, "protein")
-    if pcol:
-        for k, c in enumerate(df[pcol]):
-            c = str(c).strip()
-            if c:
-                try:
-                    prot[k] = parse_mass_concentration(c)
-                except UnitError as exc:
-                    raise InputError(exc.problem, exc.fix, file=path, row=lines[k],
-                                     column=pcol) from None
-    out["protein_mg_per_mL"] = prot
-    if "group" in df.columns and any(str(g).strip() for g in df["group"]):
-        out["group"] = [str(g).strip() or w for g, w in zip(df["group"], wells, strict=True)]
-    else:
-        out["group"] = [
-            f"{s or r}|S={_fmt(sub)}|I={_fmt(inh)}" if r == "sample" else r
-            for s, r, sub, inh in zip(out["sample"], out["role"], out["substrate_M"],
-                                      out["inhibitor_M"], strict=True)]
-    out["exclude"] = ([str(x).strip().lower() in ("yes", "y", "true", "1", "x")
-                       for x in df["exclude"]] if "exclude" in df.columns else False)
-    out.attrs["source"] = path
-    return out
+                t = quantity(part_.strip(), "time", "s")
+            except UnitError:
+                raise m.fail(k, "skip", f"{part_.strip()!r} is not a time", "write the times of "
+                             "the readings to leave out, e.g. 120; 240 (seconds)") from None
+            if not (np.isfinite(t) and t >= 0):
+                raise m.fail(k, "skip", f"{part_.strip()!r} is not a time of a reading",
+                             "write times at or after 0, e.g. 120; 240 (seconds)")
+            times.append(t)
+        skips[k] = tuple(times)
+    return skips
 
 
 def _fmt(m):

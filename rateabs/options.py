@@ -28,7 +28,7 @@ from dataclasses import MISSING, dataclass, field
 from pathlib import Path
 
 from .batch import is_pattern
-from .errors import RateabsError, UsageError
+from .errors import UsageError
 from .rules import (
     Checked,
     ConcUnit,
@@ -91,6 +91,10 @@ DILUTION = Number(1, math.inf, unit="fold; 10 for a 1:10 dilution", example="10"
 BLANK_MODES = ("auto", "slope", "trace", "none")
 DIRECTIONS = ("auto", "up", "down")
 SLOPE_SOURCES = ("auto", "window", "curve")
+PLATE_FORMATS = (96, 384, 1536)
+#: Single-well plot pages: the wells that need a look (at most WELL_PAGE_CAP), all, or none.
+WELL_PAGES = ("flagged", "all", "none")
+WELL_PAGE_CAP = 24
 CALIBRATION = ("auto", "standards", "none")
 FIX = Pairs(Pair(Number(example="120"), example="Km=120"))
 
@@ -278,7 +282,8 @@ def _linear_limit():
 
 
 def _katal():
-    return option("--katal", Flag(), "Also report activity in nkat/mL.", False)
+    return option("--katal", Flag(), "Also report activity in nkat/mL (1 U = 16.67 nkat).",
+                  False)
 
 
 def _slope_from():
@@ -298,8 +303,8 @@ def _calibrate():
 
 
 def _dilution():
-    return option("--dilution", DILUTION, "Dilution factor of the sample (the plate map may give "
-                  "it per well).", 1.0)
+    return option("--dilution", DILUTION, "Dilution factor of the sample, for the wells whose "
+                  "dilution the plate map does not give (default 1).")
 
 
 def _epsilon_se(default=None):
@@ -330,18 +335,50 @@ def _noisy_limit():
                   "flagged noisy.", 0.10)
 
 
+def _well_volume():
+    return option("--well-volume", Quantity("volume", "uL", POSITIVE, "'200 uL'"),
+                  "Liquid volume per well, e.g. '200 uL': pathlength from the plate's well "
+                  "geometry.")
+
+
+def _plate():
+    return option("--plate", OneOf(PLATE_FORMATS, "384"), "Plate format (else read from the "
+                  "well names); checked against them.")
+
+
+def _well_window():
+    return option("--well-window", Many(Pair(Window(), "A1=60-300")), "One well's own window: "
+                  "WELL=START-END or WELL=auto (repeatable; beats the map's window column).", ())
+
+
+def _skip_well():
+    return option("--skip-well", Many(Text("well name", "A1")), "Leave a well out of the "
+                  "analysis (repeatable).", ())
+
+
+def _skip_reading():
+    return option("--skip-reading", Many(Pair(Quantity("time", "s", Number(0, math.inf),
+                                                        "'120 s'"), "A1=120")),
+                  "Leave one reading out: WELL=TIME, e.g. A1=120 (a bare time is s; "
+                  "repeatable).", ())
+
+
 @dataclass(frozen=True)
 class RateSettings(Checked):
     """What the ``rates`` analysis uses, in base units (built from :class:`RatesOptions`, or
-    directly from Python). Every field is checked as the matching option is."""
+    directly from Python). Every field is checked as the matching option is. A pathlength,
+    plate format or dilution left at None is taken from the file or the plate map, or assumed,
+    and the analysis says which (:func:`rateabs.rates.plate_setup`)."""
 
     epsilon: float | None = _epsilon()
     epsilon_se: float = _epsilon_se(0.0)
-    pathlength_cm: float = _pathlength(default=1.0)
+    pathlength_cm: float | None = _pathlength()
+    well_volume_L: float | None = _well_volume()
+    plate: int | None = _plate()
     total_volume_L: float | None = _total_volume()
     sample_volume_L: float | None = _sample_volume()
     protein_mg_per_mL: float | None = _protein()
-    dilution: float = _dilution()
+    dilution: float | None = _dilution()
     window: object = _window()
     min_points: int | None = _min_points()
     blank: str = _blank()
@@ -352,15 +389,21 @@ class RateSettings(Checked):
     slope_from: str = _slope_from()
     curve: bool = _curve()
     calibrate: str = _calibrate()
+    well_windows: tuple = _well_window()
+    skip_wells: tuple = _skip_well()
+    skip_readings: tuple = _skip_reading()
 
     def check_together(self) -> None:
-        """Volumes in pairs, the sample inside the total, a curve for --slope-from curve."""
+        """Volumes in pairs, the sample inside the total, one pathlength, a curve for
+        --slope-from curve."""
         if (self.total_volume_L is None) != (self.sample_volume_L is None):
             raise UsageError("activity needs both --total-volume and --sample-volume",
                              "give both, e.g. --total-volume '200 uL' --sample-volume '20 uL'")
         if self.total_volume_L is not None and self.sample_volume_L > self.total_volume_L:
             raise UsageError("the sample volume is larger than the total volume",
                              "check --sample-volume and --total-volume")
+        if self.pathlength_cm is not None and self.well_volume_L is not None:
+            raise UsageError("both --pathlength and --well-volume given", "give only one of them")
         if self.slope_from == "curve" and not self.curve:
             raise UsageError("--slope-from curve needs the whole-curve fit", "drop --no-curve")
 
@@ -376,17 +419,18 @@ class RatesOptions(Checked):
     epsilon: float | None = _epsilon()
     epsilon_se: float | None = _epsilon_se()
     chromophore: str | None = _chromophore()
-    pathlength: float | None = _pathlength()
-    well_volume: float | None = option("--well-volume", Quantity(
-        "volume", "uL", POSITIVE, "'200 uL'"), "Liquid volume per well, e.g. '200 uL': "
-        "pathlength from the plate's well geometry.")
-    plate: int | None = option("--plate", OneOf((96, 384), "384"), "Plate format for "
-                               "--well-volume (96 when not given).")
+    pathlength: float | None = _pathlength("Optical pathlength, e.g. '1 cm' (default: the "
+                                           "file's, else 1 cm).")
+    well_volume: float | None = _well_volume()
+    plate: int | None = _plate()
     total_volume: float | None = _total_volume()
     sample_volume: float | None = _sample_volume()
     protein: float | None = _protein()
-    dilution: float = _dilution()
+    dilution: float | None = _dilution()
     window: object = _window()
+    well_window: tuple = _well_window()
+    skip_well: tuple = _skip_well()
+    skip_reading: tuple = _skip_reading()
     min_points: int | None = _min_points()
     blank: str = _blank()
     direction: str = _direction()
@@ -396,6 +440,9 @@ class RatesOptions(Checked):
     calibrate: str = _calibrate()
     curve: bool = _curve()
     slope_from: str = _slope_from()
+    well_pages: str = option("--well-pages", OneOf(WELL_PAGES, "all"), "Pages of single-well "
+                             "plots: the wells that need a look (at most "
+                             f"{WELL_PAGE_CAP}), every well, or none.", "flagged")
     output: OutputOptions = part(OutputOptions)
     more_files: tuple = _more_files()
     where: WhereOptions = part(WhereOptions)
@@ -403,11 +450,6 @@ class RatesOptions(Checked):
     def check_together(self) -> None:
         """Refuse options that would be ignored; build the analysis settings once to check."""
         _check_sheet(self.file, self.reader)
-        if self.pathlength is not None and self.well_volume is not None:
-            raise UsageError("both --pathlength and --well-volume given", "give only one of them")
-        if self.plate is not None and self.well_volume is None:
-            raise refusal("--plate", "is used only to turn --well-volume into a pathlength",
-                          "give --well-volume too, or leave --plate out")
         if self.epsilon_se is not None and self.epsilon is None and self.chromophore is None:
             raise refusal("--epsilon-se", "needs an epsilon to qualify",
                           "give --epsilon or --chromophore too")
@@ -420,6 +462,9 @@ class RatesOptions(Checked):
         if self.min_points is not None and self.window != "auto":
             raise refusal("--min-points", "applies to the automatic window only",
                           "leave it out with a fixed --window")
+        if self.well_pages != "flagged" and not self.output.plots:
+            raise refusal("--well-pages", "chooses plots, and --no-plots draws none",
+                          "leave --well-pages out, or drop --no-plots")
         self.rate_settings()
 
     def epsilon_value(self) -> float | None:
@@ -428,35 +473,18 @@ class RatesOptions(Checked):
 
         return resolve_epsilon(self.epsilon, self.chromophore)
 
-    def pathlength_cm(self) -> float:
-        """Pathlength (cm) from --pathlength, or --well-volume in the plate's geometry, else 1."""
-        if self.well_volume is None:
-            return 1.0 if self.pathlength is None else self.pathlength
-        from .photometry import pathlength_from_volume
-
-        try:
-            return pathlength_from_volume(self.well_volume, self.plate or 96)
-        except RateabsError as exc:
-            raise UsageError(f"--well-volume: {exc.problem}", exc.fix) from None
-
-    def pathlength_source(self) -> str:
-        """Where the pathlength came from, stated in the output."""
-        if self.well_volume is not None:
-            how = "given" if self.plate else "assumed, give --plate"
-            return (f"--well-volume {self.well_volume * 1e6:g} uL in a {self.plate or 96}-well "
-                    f"plate ({how}), typical well geometry")
-        return "--pathlength" if self.pathlength is not None else "assumed 1 cm (no option given)"
-
     def rate_settings(self) -> RateSettings:
         """The analysis settings, in base units."""
         return RateSettings(
             epsilon=self.epsilon_value(), epsilon_se=self.epsilon_se or 0.0,
-            pathlength_cm=self.pathlength_cm(), total_volume_L=self.total_volume,
-            sample_volume_L=self.sample_volume, protein_mg_per_mL=self.protein,
-            dilution=self.dilution, window=self.window, min_points=self.min_points,
-            blank=self.blank, direction=self.direction, linear_limit=self.linear_limit,
-            noisy_rel_se=self.noisy_limit, katal=self.katal, slope_from=self.slope_from,
-            curve=self.curve, calibrate=self.calibrate)
+            pathlength_cm=self.pathlength, well_volume_L=self.well_volume, plate=self.plate,
+            total_volume_L=self.total_volume, sample_volume_L=self.sample_volume,
+            protein_mg_per_mL=self.protein, dilution=self.dilution, window=self.window,
+            min_points=self.min_points, blank=self.blank, direction=self.direction,
+            linear_limit=self.linear_limit, noisy_rel_se=self.noisy_limit, katal=self.katal,
+            slope_from=self.slope_from, curve=self.curve, calibrate=self.calibrate,
+            well_windows=self.well_window, skip_wells=self.skip_well,
+            skip_readings=self.skip_reading)
 
 
 # --------------------------------------------------------------------------- saturation

@@ -81,6 +81,7 @@ class Curves:
     p: list            # arrays, µM of product (plus an unknown baseline)
     s0: np.ndarray     # µM
     enzyme: np.ndarray | None = None
+    species: str = "product"       # which species absorbs (how p was made from absorbance)
 
 
 def curves_from_absorbance(names, times, absorbance, s0_uM, enzyme=None, *, epsilon: float,
@@ -96,7 +97,8 @@ def curves_from_absorbance(names, times, absorbance, s0_uM, enzyme=None, *, epsi
     scale = (1.0 if species == "product" else -1.0) * 1e6 / (epsilon * pathlength_cm)
     return Curves(list(names), [np.asarray(t, float) for t in times],
                   [scale * np.asarray(a, float) for a in absorbance],
-                  np.asarray(s0_uM, float), None if enzyme is None else np.asarray(enzyme, float))
+                  np.asarray(s0_uM, float), None if enzyme is None else np.asarray(enzyme, float),
+                  species)
 
 
 def in_unit(params: dict, unit: str) -> dict:
@@ -169,6 +171,36 @@ def _guess(c: Curves, product_inhibition: bool, decay: bool):
     return g
 
 
+def check_direction(c: Curves) -> None:
+    """Refuse curves whose product falls: the absorbing species was given the wrong way round.
+
+    Each curve's straight-line slope of product against time, with its SE (least squares,
+    as ``scipy.stats.linregress``); a curve whose product falls by more than 3 SE contradicts
+    the stated species. When most curves do, the absorbing species is the other one.
+    """
+    falls = []
+    for name, t, p in zip(c.names, c.t, c.p, strict=True):
+        if len(t) < 3 or np.ptp(t) <= 0:
+            continue
+        b, a = np.polyfit(t, p, 1)
+        res = p - (a + b * t)
+        se = math.sqrt(float(res @ res) / (len(t) - 2) / float(np.sum((t - t.mean()) ** 2)))
+        if b < 0 and abs(b) > 3 * se:
+            falls.append(name)
+    if not falls:
+        return
+    other = "substrate" if c.species == "product" else "product"
+    signal = "falls" if c.species == "product" else "rises"
+    shown = ", ".join(falls[:5]) + (" ..." if len(falls) > 5 else "")
+    if len(falls) * 2 >= len(c.names):
+        raise UsageError(f"--species {c.species}, but the signal {signal} in {len(falls)} of "
+                         f"{len(c.names)} curves ({shown}): the {other} is the absorbing "
+                         "species here", f"give --species {other}")
+    raise AnalysisError(f"the signal {signal} in curve(s) {shown}, against the other curves "
+                        f"and --species {c.species}", "leave those curves out with --trace, "
+                        "or check them")
+
+
 @dataclass
 class ProgressAnalysis:
     """The global fit, Selwyn's verdict and the warnings."""
@@ -200,6 +232,7 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
         if np.ptp(p) <= 0 or abs(p[-1] - p[0]) < 1e-9:
             raise AnalysisError(f"curve {name} is flat: no product is formed",
                                 "check the curve, the epsilon and the pathlength")
+    check_direction(c)
     if sum(len(t) for t in c.t) < 8 or (len(c.t) == 1 and len(c.t[0]) < 12):
         raise AnalysisError("a single short curve cannot separate Km from Vmax",
                             "record longer or more curves (several S0)")

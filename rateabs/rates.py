@@ -1,61 +1,335 @@
-"""Initial rates of a plate: per-trace slopes (:mod:`rateabs.slopes`), blanks, conversion to
-concentration and activity, replicates, Z' and the plate-level flags.
+"""Initial rates of a plate: per-trace slopes (:mod:`rateabs.slopes`), then the plate.
+
+:func:`analyse_plate` runs named stages, each a function of its own:
+
+1. **setup** (:func:`plate_setup`): the plate format, the pathlength, each well's role,
+   dilution, protein, window and skipped readings, and where each came from (an option, the
+   file, the plate map, well geometry or a default), so that nothing is assumed silently;
+2. **windows** (:func:`estimate_slopes`): the slope of every trace by the estimator of
+   :mod:`rateabs.slopes`, with a well's own window where one is set;
+3. **blanks** (:func:`blank_correction`): the mean blank slope (or trace) subtracted;
+4. **conversion** (:func:`convert`): Beer–Lambert to concentration per minute, activity in
+   U/mL (1 U = 1 µmol/min, NC-IUB 1979) and nkat/mL, U/mg, and v/[E] where the map gives [E];
+5. **flags** (:func:`plate_flags`, :func:`replicate_outliers`): the plate-level flags;
+6. **activity** (:func:`replicate_summary`, :func:`activity_summary`, :func:`z_prime`):
+   replicates, the per-sample activity with its dilution-linearity check, and Z'.
+
+Trace-level flags (the shape of one trace) come from :mod:`rateabs.slopes`; the plate-level
+ones (:data:`PLATE_FLAGS`) are made here; :data:`FLAGS` holds both with their meanings.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
-from .errors import InputError
+from .errors import InputError, UsageError
 from .options import RateSettings
 from .slopes import TRACE_FLAGS, WindowEnd, Windows, find_windows, quiet_numpy
-from .traces import TraceSet
+from .traces import Grid, TraceSet
 
-#: Flags of a well: the trace flags of the initial-rate estimator (:data:`slopes.TRACE_FLAGS`)
-#: and the plate-level ones; short words of our own, documented in docs/formats.md.
-FLAGS = {
-    **TRACE_FLAGS,
-    "past-linear": "readings above the linear absorbance limit were masked",
-    "overflow": "the instrument marked readings as over range; they were masked",
-    "over-10pct": "more than 10 % of the substrate was used within the straight window whose "
-                  "slope is reported",
-    "blank-drift": "a blank well changes significantly over the read",
+#: Plate-level flags (rates.py), each "this number may be wrong, because ...".
+PLATE_FLAGS = {
+    "outlier": "the rate is more than 3.5 z from its replicates (against the plate's pooled "
+               "replicate scatter and the well's own SE; Grubbs 1969 within the group where too "
+               "few groups have replicates to pool); with two replicates both are flagged, as "
+               "either may be wrong",
     "reversed": "the signal moves opposite to the plate's assay direction",
-    "outlier": "the well is an outlier among its replicates (Grubbs test)",
+    "blank-drift": "a blank well changes significantly over the read, so the blank correction "
+                   "moves every rate",
+    "masked-start": "the first readings were masked (over range, past the linear limit, missing "
+                    "or skipped), so the slope starts later than the reaction: with depletion "
+                    "it reads low",
+    "over-10pct": "more than 10 % of the substrate in the map was used within the straight "
+                  "window, so its slope underestimates the initial rate",
 }
 
+#: Every per-well flag with its meaning (trace-level from slopes, plate-level from here).
+FLAGS = {**TRACE_FLAGS, **PLATE_FLAGS}
+#: Flags of a sample's activity summary (a row of :func:`activity_summary`).
+ACTIVITY_FLAGS = {
+    "dilution-trend": "the activity changes with the dilution (p < 0.05 and 5 % or more per "
+                      "two-fold dilution): the mean over dilutions is not one activity; use the "
+                      "dilutions where it is flat",
+}
 
-# --------------------------------------------------------------------------- the plate
+Z_OUTLIER = 3.5            # |z| above which a replicate is flagged
+POOL_MIN_GROUPS = 4        # replicate groups needed to pool the plate's replicate scatter
+DEPLETION_LIMIT = 0.10     # fraction of the substrate used within a straight window
+NKAT_PER_U = 1e9 / 60e6    # 1 U = 1 umol/min = 1e-6/60 mol/s = 16.67 nkat (NC-IUB 1979)
+TREND_LIMIT = 0.05         # relative change per two-fold dilution that counts as a trend
+
+
+# --------------------------------------------------------------------------- 1. setup
+
+
+@dataclass(frozen=True)
+class PlateSetup:
+    """What the analysis took as given and where each came from, stated in the output.
+
+    ``wells`` (index = trace) holds role, sample, group, dilution and ``dilution_source``,
+    substrate_M, inhibitor_M, standard_M, enzyme_M, protein_mg_per_mL and ``protein_source``,
+    ``window`` and ``window_source``, and ``skip`` (times in s) with ``skip_source``.
+    """
+
+    plate_format: int | None
+    plate_source: str
+    pathlength_cm: float
+    pathlength_source: str
+    wells: pd.DataFrame
+    skipped_wells: dict
+    warnings: list = field(default_factory=list)
+
+
+def plate_setup(ts: TraceSet, layout: pd.DataFrame | None, st: RateSettings) -> PlateSetup:
+    """The plate format, pathlength and per-well settings with their sources (stage 1)."""
+    warnings: list[str] = []
+    fmt, fmt_source = _plate_format(ts, st, warnings)
+    b, b_source = _pathlength(ts, st, fmt, fmt_source, warnings)
+    wells, skipped = _well_table(ts, layout, st, warnings)
+    return PlateSetup(fmt, fmt_source, b, b_source, wells, skipped, warnings)
+
+
+def _plate_format(ts: TraceSet, st: RateSettings, warnings: list) -> tuple[int | None, str]:
+    """The stated --plate checked against the well names, else the format the names show."""
+    from .io.metadata import plate_format
+
+    names_fmt, names_src = ((ts.info["plate_format"], ts.info.get("plate_format_source"))
+                            if ts.info.get("plate_format") else plate_format(ts.names))
+    said = _header_plate(ts.info.get("metadata") or {})
+    if st.plate is not None:
+        if names_fmt is None:
+            raise UsageError(f"--plate {st.plate}: the traces are not named as plate wells "
+                             f"({', '.join(ts.names[:3])}...)", "leave --plate out")
+        if names_fmt > st.plate:
+            raise UsageError(f"--plate {st.plate} contradicts the well names, which need a "
+                             f"{names_fmt}-well plate ({names_src})",
+                             f"give --plate {names_fmt}, or leave --plate out")
+        fmt, source = st.plate, f"--plate {st.plate}"
+    else:
+        fmt, source = names_fmt, (f"from the {names_src}" if names_fmt else "")
+    if fmt and said and said[0] != fmt:
+        warnings.append(f"the plate is taken as {fmt}-well ({source}), but the file header says "
+                        f"'{said[1]}'")
+    return fmt, source
+
+
+def _header_plate(meta: dict) -> tuple[int, str] | None:
+    """A plate format named in a header line such as 'Plate: 96 flat'."""
+    import re
+
+    for key, val in meta.items():
+        m = re.search(r"\b(96|384|1536)\b", str(val))
+        if "plate" in str(key).lower() and m:
+            return int(m.group(1)), f"{key}: {val}"
+    return None
+
+
+def _pathlength(ts: TraceSet, st: RateSettings, fmt, fmt_source: str,
+                warnings: list) -> tuple[float, str]:
+    """Pathlength (cm) and its source: --pathlength, --well-volume in the plate's geometry,
+    the file's header, else 1 cm. An option beats the file, and a disagreement is said."""
+    from .photometry import pathlength_from_volume
+
+    file_b = ts.info.get("pathlength_cm")
+    file_line = (ts.info.get("metadata_facts") or {}).get("pathlength_cm", "")
+    if st.pathlength_cm is not None:
+        b, source = st.pathlength_cm, f"--pathlength {st.pathlength_cm:g} cm"
+    elif st.well_volume_L is not None:
+        wells = fmt or 96
+        try:
+            b = pathlength_from_volume(st.well_volume_L, wells)
+        except UsageError as exc:
+            raise UsageError(f"--well-volume: {exc.problem}", exc.fix) from None
+        how = fmt_source if fmt else "assumed: the traces are not named as wells"
+        source = (f"--well-volume {st.well_volume_L * 1e6:g} uL in a {wells}-well plate "
+                  f"({how}), typical well geometry")
+    elif file_b:
+        return float(file_b), f"the file header ('{file_line}')"
+    else:
+        return 1.0, "assumed 1 cm (no --pathlength, --well-volume or pathlength in the file)"
+    if file_b and abs(b / file_b - 1) > 0.005:
+        warnings.append(f"the pathlength {b:.4g} cm from {source.split(' (')[0]} is used; the file "
+                        f"header says '{file_line}' ({file_b:g} cm): the option wins")
+    return b, source
+
+
+def _well_table(ts: TraceSet, layout, st: RateSettings, warnings: list):
+    """Per-well roles, concentrations, dilution, protein, window and skips with sources."""
+    names = ts.names
+    w = pd.DataFrame(index=pd.Index(names, name="trace"))
+    if layout is not None:
+        w = w.join(layout, how="left")
+    defaults = {"role": "sample", "sample": "", "substrate_M": np.nan, "inhibitor_M": np.nan,
+                "standard_M": np.nan, "enzyme_M": np.nan, "protein_mg_per_mL": np.nan,
+                "dilution": np.nan, "exclude": False, "window": None, "skip": ()}
+    for col, default in defaults.items():
+        if col not in w.columns:
+            w[col] = [default] * len(w)
+        elif col in ("role", "sample"):
+            w[col] = w[col].fillna(default)
+    own = pd.Series(w.index, index=w.index)            # a well the map does not name: alone
+    w["group"] = w["group"].where(w["group"].notna(), own) if "group" in w.columns else own
+    w["exclude"] = w["exclude"].fillna(False).astype(bool)
+    w["window"] = [x if (isinstance(x, tuple) or x == "auto") else None for x in w["window"]]
+    w["skip"] = [x if isinstance(x, tuple) else () for x in w["skip"]]
+    _dilution_sources(w, layout, st, warnings)
+    _protein_sources(w, st)
+    _window_sources(w, st, warnings)
+    _skip_sources(ts, w, st)
+    skipped = {n: "the plate map (exclude)" for n in w.index[w["exclude"].to_numpy()]}
+    for n in st.skip_wells:
+        if n not in w.index:
+            raise UsageError(f"--skip-well {n}: no such well in the data",
+                             f"use one of {', '.join(names[:12])}")
+        skipped[n] = "--skip-well"
+    return w, skipped
+
+
+def _dilution_sources(w: pd.DataFrame, layout, st: RateSettings, warnings: list) -> None:
+    """Each well's dilution: the map's cell, else --dilution for a sample well, else 1
+    (undiluted; controls and standards are not taken to be diluted unless the map says so)."""
+    from_map = np.isfinite(w["dilution"].to_numpy(float))
+    fills = (w["role"] == "sample").to_numpy() & ~from_map & (st.dilution is not None)
+    if st.dilution is not None and not fills.any():
+        raise UsageError(f"--dilution {st.dilution:g} is not used: the plate map gives a dilution "
+                         "for every sample well", "leave --dilution out, or empty the map's "
+                         "cells it should fill")
+    w["dilution_source"] = np.where(from_map, "plate map", np.where(
+        fills, "--dilution", "default (undiluted)"))
+    w["dilution"] = np.where(from_map, w["dilution"].to_numpy(float),
+                             np.where(fills, st.dilution or 1.0, 1.0))
+    if st.dilution is not None and from_map.any():
+        warnings.append(f"--dilution {st.dilution:g} fills the {int(fills.sum())} sample "
+                        "well(s) whose dilution the plate map leaves empty; the map's own "
+                        f"dilution is used for the other {int(from_map.sum())}")
+
+
+def _protein_sources(w: pd.DataFrame, st: RateSettings) -> None:
+    prot = w["protein_mg_per_mL"].to_numpy(float)
+    from_map = np.isfinite(prot)
+    if st.protein_mg_per_mL is not None:
+        prot = np.where(from_map, prot, st.protein_mg_per_mL)
+    w["protein_mg_per_mL"] = prot
+    w["protein_source"] = np.where(from_map, "plate map", np.where(np.isfinite(prot),
+                                                                    "--protein", ""))
+
+
+def _window_sources(w: pd.DataFrame, st: RateSettings, warnings: list) -> None:
+    """Each well's window: --well-window, else the map's window column, else --window."""
+    wins = list(w["window"])
+    src = ["plate map" if x is not None else "" for x in wins]
+    for name, spec in st.well_windows:
+        if name not in w.index:
+            raise UsageError(f"--well-window {name}: no such well in the data",
+                             f"use one of {', '.join(list(w.index)[:12])}")
+        k = w.index.get_loc(name)
+        if wins[k] is not None and wins[k] != spec:
+            warnings.append(f"--well-window {name}={_win_text(spec)} beats the plate map's "
+                            f"window {_win_text(wins[k])} for {name}")
+        wins[k], src[k] = spec, "--well-window"
+    plate = "--window" if st.window != "auto" else "automatic"
+    w["window"] = [st.window if x is None else x for x in wins]
+    w["window_source"] = [s or plate for s in src]
+
+
+def _win_text(spec) -> str:
+    return "auto" if spec == "auto" else f"{spec[0]:g}-{spec[1]:g} s"
+
+
+def _skip_sources(ts: TraceSet, w: pd.DataFrame, st: RateSettings) -> None:
+    """Readings to leave out, (time, source) per well, each matched to a reading of the data."""
+    g = ts.grid()
+    skips = {n: [(t, "plate map") for t in w.loc[n, "skip"] or ()] for n in w.index}
+    for name, t in st.skip_readings:
+        if name not in w.index:
+            raise UsageError(f"--skip-reading {name}={t:g}: no such well in the data",
+                             f"use one of {', '.join(list(w.index)[:12])}")
+        skips[name].append((t, "--skip-reading"))
+    for name, items in skips.items():
+        times = g.times[g.names.index(name)]
+        for t, src in items:
+            near = np.nanmin(np.abs(times - t)) if np.isfinite(times).any() else np.inf
+            if not near <= 0.5:
+                shown = ", ".join(f"{x:g}" for x in times[np.isfinite(times)][:6])
+                where = "--skip-reading" if src != "plate map" else "the plate map's skip column"
+                raise UsageError(f"{where}: well {name} has no reading at {t:g} s",
+                                 f"give the time of a reading (in s), e.g. one of {shown} ...")
+    w["skip"] = [tuple(skips[n]) for n in w.index]
+
+
+# --------------------------------------------------------------------------- 2. windows
 
 
 @dataclass
-class RatesAnalysis:
-    """Per-trace rates, replicate summaries, Z' and warnings of one plate."""
+class TraceSlopes:
+    """The slope of every trace (A/min, as reported by the estimator) and how it was found."""
 
-    table: pd.DataFrame
-    replicates: pd.DataFrame
-    zprime: dict | None
     windows: Windows
-    traces: TraceSet
-    settings: RateSettings
-    warnings: list = field(default_factory=list)
-    blank_info: dict = field(default_factory=dict)
+    slope: np.ndarray
+    slope_se: np.ndarray
+    method: np.ndarray
+    choice: np.ndarray
+    trace_flags: list
+    raw_slope: np.ndarray          # of the traces before any blank trace was subtracted
+    raw_se: np.ndarray
+    window_start_s: np.ndarray
+    window_end_s: np.ndarray
+    blank: dict
+
+
+def skip_and_mask(ts: TraceSet, setup: PlateSetup, st: RateSettings) -> TraceSet:
+    """The traces to analyse: skipped wells left out, skipped readings and readings above the
+    linear limit masked."""
+    ts = ts.mask_above(st.linear_limit)
+    keep = [n for n in ts.names if n not in setup.skipped_wells]
+    if not keep:
+        raise InputError("every well was left out (--skip-well or the map's exclude column)",
+                         "keep at least one well")
+    ts = ts.select(keep) if len(keep) < len(ts.names) else ts
+    g = ts.grid()
+    where = np.zeros(g.values.shape, dtype=bool)
+    for i, n in enumerate(g.names):
+        for t, _ in setup.wells.loc[n, "skip"]:
+            where[i] |= np.abs(g.times[i] - t) <= 0.5
+    return ts.mask_readings(where) if where.any() else ts
+
+
+def estimate_slopes(ts: TraceSet, setup: PlateSetup, st: RateSettings,
+                    blank_mode: str) -> tuple[TraceSlopes, TraceSet]:
+    """Every trace's slope, one vectorised pass per distinct window (stage 2), and the blank
+    level (:func:`blank_level`); with the blank mode ``trace`` the time-matched mean of the
+    blanks kept is subtracted and the slopes found again."""
+    wells = setup.wells.loc[ts.names]
+    roles, specs = wells["role"].to_numpy(), list(wells["window"])
+    g = ts.grid()
+    win = _windows_by_spec(g, specs, st)
+    rep = _reported(win)
+    raw_slope, raw_se = rep[0] * 60, rep[1] * 60
+    blank = blank_level(raw_slope, raw_se, roles == "blank")
+    analysed = ts
+    if blank_mode == "trace":
+        analysed = _blank_trace_subtract(ts, [n for n, k in zip(ts.names, blank["kept"],
+                                                                 strict=True) if k])
+        g = analysed.grid()
+        win = _windows_by_spec(g, specs, st)
+        rep = _reported(win)
+    t0, t1 = window_times(g, win)
+    return TraceSlopes(win, rep[0] * 60, rep[1] * 60, rep[2], rep[3], rep[4], raw_slope,
+                       raw_se, t0, t1, blank), analysed
 
 
 def _blank_trace_subtract(ts: TraceSet, blanks: list[str]) -> TraceSet:
     """Subtract the time-matched mean of the blank traces from every trace."""
     g = ts.grid()
     idx = [g.names.index(b) for b in blanks]
-    Bv = np.where(g.usable[idx], g.values[idx], np.nan)
-    Bt = g.times[idx]
+    bv = np.where(g.usable[idx], g.values[idx], np.nan)
     with quiet_numpy():
-        mean_t = np.nanmean(Bt, axis=0)
-        mean_b = np.nanmean(Bv, axis=0)
+        mean_t = np.nanmean(g.times[idx], axis=0)
+        mean_b = np.nanmean(bv, axis=0)
     okb = np.isfinite(mean_b)
     if okb.sum() < 2:
         raise InputError("the blank wells have fewer than two usable readings in common",
@@ -63,171 +337,201 @@ def _blank_trace_subtract(ts: TraceSet, blanks: list[str]) -> TraceSet:
     return ts.with_values(g.values - np.interp(g.times, mean_t[okb], mean_b[okb]))
 
 
-def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
-                  settings: RateSettings | None = None) -> RatesAnalysis:
-    """Initial rate, concentration rate and activity of every trace, with QC.
+def _find(grid: Grid, window, st: RateSettings) -> Windows:
+    return find_windows(grid, window=window, min_points=st.min_points, curve=st.curve,
+                        estimator=st.slope_from, noisy_limit=st.noisy_rel_se)
 
-    ``ts`` holds absorbance traces; ``layout`` (from :func:`rateabs.layout.read_layout`) gives
-    roles, concentrations, dilutions and replicate groups.
-    """
-    st = settings or RateSettings()
-    notes: list[str] = []
-    ts = ts.mask_above(st.linear_limit)
-    names = ts.names
-    meta = pd.DataFrame(index=pd.Index(names, name="trace"))
-    if layout is not None:
-        meta = meta.join(layout, how="left")
-        excl = meta["exclude"] if "exclude" in meta.columns else pd.Series(False, meta.index)
-        excluded = list(meta.index[excl.fillna(False).astype(bool).to_numpy()])
-        if excluded:
-            ts = ts.select([n for n in names if n not in excluded])
-            meta = meta.drop(index=excluded)
-            names = ts.names
-            notes.append(f"{len(excluded)} well(s) excluded by the plate map")
-    if "role" not in meta.columns:
-        meta["role"] = "sample"
-    meta["role"] = meta["role"].fillna("sample")
-    for col, default in (("sample", ""), ("group", None), ("dilution", st.dilution),
-                         ("substrate_M", np.nan), ("inhibitor_M", np.nan),
-                         ("protein_mg_per_mL", np.nan), ("enzyme_M", np.nan)):
-        if col not in meta.columns:
-            meta[col] = default
-    meta["group"] = meta["group"].where(meta["group"].notna(), pd.Series(meta.index,
-                                                                         index=meta.index))
-    meta["dilution"] = meta["dilution"].fillna(st.dilution)
-    present = set(names)
-    blanks = [n for n in meta.index[(meta["role"] == "blank").to_numpy()] if n in present]
-    mode = st.blank
-    if mode in ("slope", "trace") and not blanks:
+
+def _windows_by_spec(grid: Grid, specs: list, st: RateSettings) -> Windows:
+    """find_windows once per distinct window (the plate's, or a well's own), merged."""
+    keys = list(dict.fromkeys(specs))
+    if len(keys) == 1:
+        return _find(grid, keys[0], st)
+    parts, rows = [], []
+    for key in keys:
+        r = [i for i, s in enumerate(specs) if s == key]
+        sub = Grid([grid.names[i] for i in r], grid.times[r], grid.values[r], grid.usable[r],
+                   None if grid.flags is None else grid.flags[r])
+        parts.append(_find(sub, key, st))
+        rows.append(r)
+    return merge_windows(parts, rows, len(specs))
+
+
+def merge_windows(parts: list[Windows], rows: list[list[int]], n: int) -> Windows:
+    """One :class:`Windows` of ``n`` traces from parts found on subsets (``rows[k]`` are the
+    positions of part k's traces); every per-trace field is merged, whatever its type."""
+    out = {}
+    for f in fields(Windows):
+        vals = [getattr(p, f.name) for p in parts]
+        first = vals[0]
+        if isinstance(first, np.ndarray) and first.ndim and first.shape[0] == len(rows[0]):
+            merged = np.empty((n, *first.shape[1:]), dtype=np.result_type(*vals))
+            for v, r in zip(vals, rows, strict=True):
+                merged[r] = v
+        elif isinstance(first, (list, tuple)) and len(first) == len(rows[0]):
+            merged = [None] * n
+            for v, r in zip(vals, rows, strict=True):
+                for i, x in zip(r, v, strict=True):
+                    merged[i] = x
+        else:
+            merged = first
+        out[f.name] = merged
+    return Windows(**out)
+
+
+def _reported(win: Windows):
+    """(slope A/s, SE, method, why, trace flags) per trace, as the estimator reports them."""
+    return (np.asarray(win.slope, float), np.asarray(win.slope_se, float),
+            np.asarray(win.method).astype(str), np.asarray(win.choice).astype(str),
+            [list(f) for f in win.flags])
+
+
+def _flag_lists(masks: dict, n: int) -> list[list[str]]:
+    """Per trace, the names of the masks that hold, in the dict's order."""
+    names = list(masks)
+    if not names:
+        return [[] for _ in range(n)]
+    stacked = np.column_stack([np.asarray(masks[k], bool) for k in names])
+    return [[names[j] for j in np.nonzero(row)[0]] for row in stacked]
+
+
+def window_times(g: Grid, win: Windows) -> tuple[np.ndarray, np.ndarray]:
+    """Times of the first and last usable readings inside each window (NaN without one), so
+    that masked readings at a window's edge never move its reported start or end."""
+    m = g.values.shape[1]
+    idx = np.arange(m)[None, :]
+    start = np.asarray(win.start)[:, None]
+    end = np.asarray(win.end)[:, None]
+    inside = g.usable & (idx >= start) & (idx <= end)
+    has = inside.any(axis=1)
+    first = np.argmax(inside, axis=1)
+    last = m - 1 - np.argmax(inside[:, ::-1], axis=1)
+    t = np.nan_to_num(g.times)
+    t0 = np.take_along_axis(t, first[:, None], 1)[:, 0]
+    t1 = np.take_along_axis(t, last[:, None], 1)[:, 0]
+    return np.where(has, t0, np.nan), np.where(has, t1, np.nan)
+
+
+# --------------------------------------------------------------------------- 3. blanks
+
+
+def blank_mode(roles: pd.Series, st: RateSettings, source: str | None) -> str:
+    """The blank mode used: ``auto`` is ``slope`` when the map marks blanks, else ``none``."""
+    has = bool((roles == "blank").any())
+    if st.blank in ("slope", "trace") and not has:
         raise InputError("blank subtraction was asked for but the plate map marks no blank wells",
-                         "mark blanks with role 'blank', or use --blank none",
-                         file=(layout.attrs.get("source") if layout is not None else None))
-    if mode == "auto":
-        mode = "slope" if blanks else "none"
-    blank_info = {"mode": mode, "wells": blanks}
+                         "mark blanks with role 'blank', or use --blank none", file=source)
+    if st.blank == "auto":
+        return "slope" if has else "none"
+    return st.blank
 
-    analysed = _blank_trace_subtract(ts, blanks) if mode == "trace" else ts
-    g = analysed.grid()
-    win = find_windows(g, window=st.window, min_points=st.min_points, curve=st.curve,
-                       estimator=st.slope_from, noisy_limit=st.noisy_rel_se)
-    raw_g = ts.grid() if mode == "trace" else g
-    raw_win = find_windows(raw_g, window=st.window, min_points=st.min_points, curve=False) if (
-        mode == "trace") else win
 
-    slope = win.slope * 60.0                                       # per min
-    slope_se = win.slope_se * 60.0
-    raw_slope = raw_win.slope * 60.0
-    is_blank = np.array([n in blanks for n in g.names])
-    blank_slope = blank_se = np.nan
-    if blanks:
-        bs = raw_slope[is_blank]
-        bs_ok = bs[np.isfinite(bs)]
-        if bs_ok.size:
-            blank_slope = float(np.mean(bs_ok))
-            sem = float(np.std(bs_ok, ddof=1) / math.sqrt(bs_ok.size)) if bs_ok.size > 1 else 0.0
-            prop = float(np.sqrt(np.nansum((raw_win.slope_se[is_blank] * 60) ** 2)) / bs_ok.size)
-            blank_se = max(sem, prop)
-        blank_info.update(slope_A_per_min=blank_slope, slope_A_per_min_se=blank_se)
-    if mode == "slope" and np.isfinite(blank_slope):
-        corr = ~is_blank
-        slope = np.where(corr, slope - blank_slope, slope)
-        slope_se = np.where(corr, np.hypot(slope_se, blank_se), slope_se)
+def blank_level(slope: np.ndarray, se: np.ndarray, is_blank: np.ndarray) -> dict:
+    """The blank slope (A/min) from the blank wells' own slopes (stage 3).
 
-    roles = meta.loc[g.names, "role"].to_numpy()
+    A blank that differs from the others by more than Z_OUTLIER of their combined SEs is left
+    out (the blanks share no pipetting scatter, so their SEs alone say how far apart they may
+    lie); the others are averaged with weights 1/SE^2, so that a blank with a poorly determined
+    slope moves the level little. Its SE is the larger of the weighted mean's SE and the
+    blanks' weighted scatter. Returns the level, its SE, the blanks kept (a mask over all
+    wells) and those left out.
+    """
+    kept = np.zeros(slope.size, dtype=bool)
+    out = {"kept": kept, "left_out": np.zeros(slope.size, dtype=bool)}
+    idx = np.nonzero(is_blank & np.isfinite(slope) & np.isfinite(se))[0]
+    if idx.size == 0:
+        return out
+    s_floor = np.maximum(se[idx], 1e-6 * max(float(np.max(se[idx])), 1e-12))
+    z = np.full(slope.size, np.nan)
+    flag = np.zeros(slope.size, dtype=bool)
+    if idx.size >= 3:
+        _z_test(slope, np.where(is_blank, np.maximum(se, 1e-12), 0.0), idx, 0.0, z, flag)
+    use = idx[~flag[idx]]
+    w = 1 / np.maximum(se[use], s_floor.min()) ** 2
+    level = float(np.sum(w * slope[use]) / np.sum(w))
+    scatter = (math.sqrt(float(np.sum(w * (slope[use] - level) ** 2)) / ((use.size - 1)
+                                                                           * np.sum(w)))
+               if use.size > 1 else 0.0)
+    kept[use] = True
+    out.update(level=level, se=max(1 / math.sqrt(float(np.sum(w))), scatter), left_out=flag)
+    return out
+
+
+def blank_correction(s: TraceSlopes, is_blank: np.ndarray, mode: str, names: list[str]):
+    """Blank-corrected slopes (A/min) and SEs, and what was subtracted (stage 3)."""
+    info = {"mode": mode, "wells": [n for n, b in zip(names, is_blank, strict=True) if b]}
+    slope, se = s.slope.copy(), s.slope_se.copy()
+    b = s.blank
+    if "level" not in b:
+        return slope, se, info
+    info.update(slope_A_per_min=b["level"], slope_A_per_min_se=b["se"],
+                left_out=[n for n, o in zip(names, b["left_out"], strict=True) if o],
+                how="mean of the blanks' slopes weighted by 1/SE^2, blanks more than "
+                    f"{Z_OUTLIER} z from the others left out")
+    if mode == "slope":
+        slope = np.where(is_blank, slope, slope - b["level"])
+        se = np.where(is_blank, se, np.hypot(se, b["se"]))
+    return slope, se, info
+
+
+def assay_direction(slope: np.ndarray, roles: np.ndarray, st: RateSettings) -> float:
+    """+1 when product formation raises the signal, -1 when it lowers it (``auto``: the sign
+    of the median sample slope)."""
+    if st.direction != "auto":
+        return 1.0 if st.direction == "up" else -1.0
     sample_like = np.isin(roles, ["sample", "positive"])
-    if st.direction == "auto":
-        ref = slope[sample_like & np.isfinite(slope)]
-        ref = ref if ref.size else slope[np.isfinite(slope)]
-        direction = 1.0 if (ref.size == 0 or np.median(ref) >= 0) else -1.0
-    else:
-        direction = 1.0 if st.direction == "up" else -1.0
-    blank_info["direction"] = "up" if direction > 0 else "down"
+    ref = slope[sample_like & np.isfinite(slope)]
+    ref = ref if ref.size else slope[np.isfinite(slope)]
+    return 1.0 if (ref.size == 0 or np.median(ref) >= 0) else -1.0
 
-    # per-trace columns and the plate-level flags, as whole arrays
-    m = meta.loc[g.names]
-    method = np.asarray(win.method).astype(str)
-    cs, cse = win.curve_slope * 60, win.curve_slope_se * 60
-    with np.errstate(all="ignore"), quiet_numpy():     # no usable sample slope: med is NaN
-        med = np.nanmedian(np.abs(slope[sample_like])) if sample_like.any() else np.nan
-        blank_sig = np.abs(raw_slope) > 3 * raw_win.slope_se * 60
-    masks = {
-        "blank-drift": (roles == "blank") & np.nan_to_num(blank_sig)
-                       & (~np.isfinite(med) | (np.abs(raw_slope) > 0.05 * med)),
-        "reversed": sample_like & np.isfinite(slope) & (slope * direction < 0)
-                    & (np.abs(slope) > 3 * slope_se),
-    }
-    cols = {"trace": g.names, "role": roles, "sample": m["sample"].fillna("").to_numpy(),
-            "group": m["group"].to_numpy(), "method": method, "choice": win.choice,
-            "slope_A_per_min": slope, "slope_A_per_min_se": slope_se,
-            "slope_raw_A_per_min": win.slope * 60,
-            "window_start_s": win.t_start, "window_end_s": win.t_end,
-            "n_points": np.nan_to_num(win.n).astype(int), "r2": win.r2, "lag_s": win.lag_s,
-            "window_end_reason": [WindowEnd(int(r)).text for r in win.end_reason],
-            "curve_slope_A_per_min": cs, "curve_slope_A_per_min_se": cse, "noise_A": win.sigma,
-            "substrate_uM": m["substrate_M"].to_numpy(float) * 1e6,
-            "inhibitor_uM": m["inhibitor_M"].to_numpy(float) * 1e6,
-            "enzyme_nM": m["enzyme_M"].to_numpy(float) * 1e9}
+
+# --------------------------------------------------------------------------- 4. conversion
+
+
+def convert(slope, se, direction: float, wells: pd.DataFrame, setup: PlateSetup,
+            st: RateSettings, ts: TraceSet) -> tuple[dict, dict | None]:
+    """Rate (µM/min), activity (U/mL, nkat/mL), U/mg and v/[E] per well (stage 4), and the
+    standard curve when one calibrated the conversion."""
+    b = setup.pathlength_cm
     eps, eps_se = st.epsilon, st.epsilon_se
-    calib = standard_curve(ts, meta, st) if st.calibrate != "none" else None
+    calib = standard_curve(ts, wells, st, b) if st.calibrate != "none" else None
     if calib is not None:
-        eps, eps_se = calib["slope_A_per_M"] / st.pathlength_cm, calib["slope_se"] / st.pathlength_cm
-        blank_info["calibration"] = calib
-    if eps:
-        factor = 1e6 / (eps * st.pathlength_cm)                 # A/min -> uM/min
-        rate = direction * slope * factor
-        rel_eps = eps_se / eps
-        with np.errstate(all="ignore"):
-            rate_se = np.where(slope != 0, np.abs(rate) * np.hypot(slope_se / slope, rel_eps),
-                               slope_se * factor)
-        cols["rate_uM_per_min"], cols["rate_uM_per_min_se"] = rate, rate_se
-        s0 = cols["substrate_uM"]
-        dur = (win.t_end - win.t_start) / 60.0
-        with np.errstate(invalid="ignore"):
-            masks["over-10pct"] = ((roles == "sample") & (s0 > 0) & (method == "window")
-                                   & (np.abs(rate) * dur > 0.1 * s0))
-        if st.total_volume_L and st.sample_volume_L:
-            dil = m["dilution"].fillna(st.dilution).to_numpy(float)
-            scale = np.where(roles != "blank", st.total_volume_L / (st.sample_volume_L * 1e3) * dil,
-                             np.nan)
-            cols["activity_U_per_mL"], cols["activity_U_per_mL_se"] = rate * scale, rate_se * scale
-            if st.katal:
-                cols["activity_nkat_per_mL"] = rate * scale * 1e3 / 60
-                cols["activity_nkat_per_mL_se"] = rate_se * scale * 1e3 / 60
-            prot = m["protein_mg_per_mL"].to_numpy(float)
-            if st.protein_mg_per_mL:
-                prot = np.where(np.isfinite(prot), prot, st.protein_mg_per_mL)
-            if np.any(np.isfinite(prot) & (prot > 0)):
-                ok_p = np.isfinite(prot) & (prot > 0)
-                cols["specific_activity_U_per_mg"] = np.where(ok_p, rate * scale / prot, np.nan)
-                cols["specific_activity_U_per_mg_se"] = np.where(ok_p, rate_se * scale / prot,
-                                                                  np.nan)
-    # reading flags (overflow, past-linear), the trace flags, then the plate-level ones
-    per = {n: [f for f in fl if f != "missing"] for n, fl in analysed.reading_flags().items()}
-    order = ["blank-drift", "reversed", "over-10pct"]
-    stacked = np.column_stack([masks[k] for k in order if k in masks])
-    names_ = [k for k in order if k in masks]
-    cols["flags"] = [per.get(n, []) + tf + [names_[j] for j in np.nonzero(row)[0]]
-                     for n, tf, row in zip(g.names, win.flags, stacked, strict=True)]
-    table = pd.DataFrame(cols)
-    value_col = "rate_uM_per_min" if eps else "slope_A_per_min"
-    reps, outliers = replicate_summary(table, value_col)
-    for w in outliers:
-        table.loc[table["trace"] == w, "flags"] = table.loc[table["trace"] == w, "flags"].apply(
-            lambda f: f + ["outlier"])
-    zp = z_prime(table, value_col)
+        eps, eps_se = calib["slope_A_per_M"] / b, calib["slope_se"] / b
+    cols: dict = {}
     if not eps:
-        notes.append("no molar absorptivity given (--epsilon or --chromophore) and no "
-                        "standard curve: rates are in A/min only")
-    n_flag = int(sum(bool(f) for f in table["flags"]))
-    if n_flag:
-        notes.append(f"{n_flag} of {len(table)} traces carry flags; read them before using "
-                        "their rates")
-    if zp and zp.get("value") is not None and zp["value"] < 0.5:
-        notes.append(f"Z' = {zp['value']:.2f} is below 0.5: the controls do not separate well")
-    return RatesAnalysis(table, reps, zp, win, analysed, st, notes, blank_info)
+        return cols, calib
+    factor = 1e6 / (eps * b)                                  # A/min -> uM/min
+    rate = direction * slope * factor
+    with np.errstate(all="ignore"):
+        rate_se = np.where(slope != 0, np.abs(rate) * np.hypot(se / slope, eps_se / eps),
+                           se * factor)
+    cols["rate_uM_per_min"], cols["rate_uM_per_min_se"] = rate, rate_se
+    enz = wells["enzyme_M"].to_numpy(float)
+    if np.isfinite(enz).any():
+        with np.errstate(all="ignore"):
+            per_s = np.where(enz > 0, rate * 1e-6 / 60 / enz, np.nan)
+            cols["turnover_per_s"] = per_s
+            cols["turnover_per_s_se"] = np.where(enz > 0, rate_se * 1e-6 / 60 / enz, np.nan)
+    if st.total_volume_L and st.sample_volume_L:
+        roles = wells["role"].to_numpy()
+        scale = np.where(roles != "blank", st.total_volume_L / (st.sample_volume_L * 1e3)
+                         * wells["dilution"].to_numpy(float), np.nan)
+        act, act_se = rate * scale, rate_se * scale
+        cols["activity_U_per_mL"], cols["activity_U_per_mL_se"] = act, act_se
+        if st.katal:
+            cols["activity_nkat_per_mL"] = act * NKAT_PER_U
+            cols["activity_nkat_per_mL_se"] = act_se * NKAT_PER_U
+        prot = wells["protein_mg_per_mL"].to_numpy(float)
+        ok = np.isfinite(prot) & (prot > 0)
+        if ok.any():
+            cols["specific_activity_U_per_mg"] = np.where(ok, act / np.where(ok, prot, 1), np.nan)
+            cols["specific_activity_U_per_mg_se"] = np.where(ok, act_se / np.where(ok, prot, 1),
+                                                             np.nan)
+    return cols, calib
 
 
-def standard_curve(ts: TraceSet, meta: pd.DataFrame, st: RateSettings) -> dict | None:
+def standard_curve(ts: TraceSet, wells: pd.DataFrame, st: RateSettings,
+                   pathlength_cm: float) -> dict | None:
     """Calibration from ``standard`` wells of known concentration: A = a + m c (shared engine).
 
     Each standard's absorbance is the mean of its usable readings; the slope m (A per mol/L) is
@@ -237,30 +541,140 @@ def standard_curve(ts: TraceSet, meta: pd.DataFrame, st: RateSettings) -> dict |
     from .fitting import fit
     from .models import LINE
 
-    has = "standard_M" in meta.columns
-    std = [n for n in meta.index if has and meta.loc[n, "role"] == "standard"
-           and np.isfinite(meta.loc[n, "standard_M"])] if has else []
+    std = [n for n in wells.index if wells.loc[n, "role"] == "standard"
+           and np.isfinite(wells.loc[n, "standard_M"])]
     if st.calibrate == "standards" and len(std) < 3:
         raise InputError(f"a standard curve needs three or more standard wells with a known "
                          f"concentration (found {len(std)})",
                          "mark them role 'standard' with a 'standard' concentration column")
     if len(std) < 3 or (st.calibrate == "auto" and st.epsilon):
         return None
-    d = ts.data[ts.data["trace"].isin(std) & ts.data["usable"]]
-    mean_a = d.groupby("trace")["value"].mean()
-    c = meta.loc[mean_a.index, "standard_M"].to_numpy(float)
+    g = ts.grid()
+    rows = [g.names.index(n) for n in std]
+    with quiet_numpy():
+        mean_a = np.nanmean(np.where(g.usable[rows], g.values[rows], np.nan), axis=1)
+    c = wells.loc[std, "standard_M"].to_numpy(float)
     if np.unique(c).size < 2:
         raise InputError("the standard wells all have the same concentration",
                          "use standards at several concentrations")
-    r = fit(LINE, c, mean_a.to_numpy(float))
+    r = fit(LINE, c, mean_a)
     m = r.params["slope"]
     if m.value <= 0 or m.ci_low <= 0:
         raise InputError("the standard curve does not rise with concentration",
                          "check the standard wells and their concentrations")
     return {"slope_A_per_M": m.value, "slope_se": m.se, "intercept_A": r.value("intercept"),
             "n_standards": len(std), "sigma_A": r.sigma,
-            "epsilon_equivalent_M_per_cm": m.value / st.pathlength_cm,
+            "epsilon_equivalent_M_per_cm": m.value / pathlength_cm,
             "method": "straight line of mean standard absorbance vs concentration"}
+
+
+# --------------------------------------------------------------------------- 5. flags
+
+
+def plate_flags(t: pd.DataFrame, s: TraceSlopes, g: Grid, direction: float,
+                blank_info: dict) -> dict[str, np.ndarray]:
+    """The plate-level flags of every well but ``outlier`` (stage 5), as boolean arrays."""
+    roles = t["role"].to_numpy()
+    slope, se = t["slope_A_per_min"].to_numpy(float), t["slope_A_per_min_se"].to_numpy(float)
+    sample_like = np.isin(roles, ["sample", "positive"])
+    with np.errstate(all="ignore"), quiet_numpy():
+        med = np.nanmedian(np.abs(slope[sample_like])) if sample_like.any() else np.nan
+        blank_sig = np.abs(s.raw_slope) > 3 * s.raw_se
+        masks = {
+            "reversed": sample_like & np.isfinite(slope) & (slope * direction < 0)
+                        & (np.abs(slope) > 3 * se),
+            "blank-drift": (roles == "blank") & np.nan_to_num(blank_sig).astype(bool)
+                           & (~np.isfinite(med) | (np.abs(s.raw_slope) > 0.05 * med)),
+            "masked-start": _masked_start(g),
+        }
+        if "rate_uM_per_min" in t.columns:
+            s0 = t["substrate_uM"].to_numpy(float)
+            used = np.abs(t["rate_uM_per_min"].to_numpy(float)) * (
+                s.window_end_s - s.window_start_s) / 60.0
+            masks["over-10pct"] = ((roles == "sample") & (s.method == "window") & (s0 > 0)
+                                   & (used > DEPLETION_LIMIT * s0))
+    return masks
+
+
+def _masked_start(g: Grid) -> np.ndarray:
+    """Traces whose first readings (before the first usable one) were masked."""
+    first = np.argmax(g.usable, axis=1)
+    idx = np.arange(g.values.shape[1])[None, :]
+    before = (idx < first[:, None]) & np.isfinite(g.times) & ~g.usable
+    return before.any(axis=1) & g.usable.any(axis=1)
+
+
+def replicate_outliers(values, ses, keys) -> tuple[np.ndarray, np.ndarray, str]:
+    """Per well, |z| against its replicates and whether it is an outlier (stage 5).
+
+    Replicates are wells with the same key. Where :data:`POOL_MIN_GROUPS` or more groups have
+    replicates, each well is compared with the mean of the others in its group using the
+    plate's pooled relative scatter together with the wells' own SEs:
+    z = (x - m) / sqrt(s_x^2 + s_m^2), s^2 = SE^2 + (cv m)^2; the worst well with |z| above
+    :data:`Z_OUTLIER` is set aside and the test repeated while three or more remain (with two,
+    both are flagged when they disagree). Otherwise Grubbs's test (Grubbs 1969) runs within
+    each group of three or more, and |z| is Grubbs's G. Returns (|z|, outlier, method).
+    """
+    x, se = np.asarray(values, float), np.asarray(ses, float)
+    keys = np.asarray(keys, dtype=object)
+    ok = np.isfinite(x)
+    groups = [np.nonzero(ok & (keys == k))[0] for k in dict.fromkeys(keys[ok])]
+    groups = [gr for gr in groups if gr.size >= 2]
+    cv = _pooled_cv(x, se, groups)
+    z = np.full(x.size, np.nan)
+    out = np.zeros(x.size, dtype=bool)
+    for gr in groups:
+        if cv is not None:
+            _z_test(x, np.nan_to_num(se), gr, cv, z, out)
+        elif gr.size >= 3:
+            k = grubbs_outlier(x[gr])
+            sd = np.std(x[gr], ddof=1)
+            z[gr] = np.abs(x[gr] - x[gr].mean()) / sd if sd > 0 else 0.0
+            if k is not None:
+                out[gr[k]] = True
+    method = ("pooled replicate scatter (z)" if cv is not None else
+              "Grubbs (1969) within each group of three or more")
+    return z, out, method
+
+
+def _pooled_cv(x, se, groups) -> float | None:
+    """The plate's relative replicate scatter beyond the wells' own SEs (robust: from the
+    median absolute deviation), or None with fewer than POOL_MIN_GROUPS usable groups."""
+    e, r2 = [], []
+    for gr in groups:
+        m = x[gr].mean()
+        if not (abs(m) > 0 and abs(m) > 5 * np.nanmedian(se[gr])):
+            continue                              # near zero: relative scatter means nothing
+        n = gr.size
+        e.append((x[gr] - m) / abs(m) * math.sqrt(n / (n - 1)))
+        r2.append((se[gr] / abs(m)) ** 2)
+    if len(e) < POOL_MIN_GROUPS:
+        return None
+    e_all = np.concatenate(e)
+    sd = 1.4826 * np.median(np.abs(e_all - np.median(e_all)))
+    return math.sqrt(max(0.0, sd**2 - float(np.nanmedian(np.concatenate(r2)))))
+
+
+def _z_test(x, se, gr, cv, z, out) -> None:
+    """Iterative z test of one group (see :func:`replicate_outliers`); fills z and out."""
+    keep = list(gr)
+    while len(keep) >= 2:
+        zs = []
+        for i in keep:
+            others = [j for j in keep if j != i]
+            m = x[others].mean()
+            s_i2 = se[i] ** 2 + (cv * m) ** 2
+            s_m2 = sum(se[j] ** 2 + (cv * m) ** 2 for j in others) / len(others) ** 2
+            zs.append(abs(x[i] - m) / math.sqrt(s_i2 + s_m2) if s_i2 + s_m2 > 0 else 0.0)
+        z[keep] = zs
+        worst = int(np.argmax(zs))
+        if zs[worst] <= Z_OUTLIER:
+            return
+        if len(keep) == 2:
+            out[keep] = True
+            return
+        out[keep[worst]] = True
+        keep.pop(worst)
 
 
 def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
@@ -269,6 +683,8 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
     Grubbs (1969), Technometrics 11:1: G = max |x - mean| / s against the critical value from
     Student's t at alpha/(2n), which reproduces Grubbs's table.
     """
+    from scipy import stats
+
     x = np.asarray(x, dtype=float)
     n = x.size
     if n < 3:
@@ -278,37 +694,104 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
         return None
     dev = np.abs(x - x.mean())
     k = int(np.argmax(dev))
-    g = dev[k] / sd
     t = stats.t.ppf(1 - alpha / (2 * n), n - 2)
     crit = (n - 1) / math.sqrt(n) * math.sqrt(t * t / (n - 2 + t * t))
-    return k if g > crit else None
+    return k if dev[k] / sd > crit else None
 
 
-def replicate_summary(table: pd.DataFrame, value_col: str) -> tuple[pd.DataFrame, list[str]]:
-    """Mean, SD, CV and n per replicate group, and the wells that are Grubbs outliers."""
-    d = table[(table["role"] != "blank") & np.isfinite(table[value_col].astype(float))]
-    if d.empty or d["group"].nunique() == len(d):
-        return pd.DataFrame(), []                   # no replicates on this plate
-    g = d.groupby("group", sort=False)
-    agg = g.agg(role=("role", "first"), sample=("sample", "first"),
-                substrate_uM=("substrate_uM", "first"), inhibitor_uM=("inhibitor_uM", "first"),
-                n=(value_col, "size"), mean=(value_col, "mean"), sd=(value_col, "std"),
-                wells=("trace", list)).reset_index()
-    if (agg["n"] == 1).all():
-        return pd.DataFrame(), []                   # no replicates on this plate
-    agg["sem"] = agg["sd"] / np.sqrt(agg["n"])
-    agg["cv_pct"] = 100 * agg["sd"] / agg["mean"].abs()
-    agg["unit"] = value_col.split("_", 1)[1].replace("_per_", "/")
-    outliers = []
-    out_col = []
-    values = d.set_index("trace")[value_col].astype(float)
-    for wells, n in zip(agg["wells"], agg["n"], strict=True):
-        k = grubbs_outlier(values.loc[wells].to_numpy()) if n >= 3 else None
-        out_col.append(wells[k] if k is not None else "")
-        if k is not None:
-            outliers.append(wells[k])
-    agg["outlier"] = out_col
-    return agg, outliers
+# --------------------------------------------------------------------------- 6. activity
+
+
+def replicate_summary(table: pd.DataFrame, value_col: str) -> pd.DataFrame:
+    """Mean, SD, CV and n per replicate group and dilution, outliers left out of the mean."""
+    d = table[~table["role"].isin(["blank", "standard"])
+              & np.isfinite(table[value_col].astype(float))]
+    if d.empty or d["replicate_key"].nunique() == len(d):
+        return pd.DataFrame()                       # no replicates on this plate
+    rows = []
+    for _, grp in d.groupby("replicate_key", sort=False):
+        kept = grp[~grp["flags"].apply(lambda f: "outlier" in f)]
+        kept = kept if len(kept) else grp
+        v = kept[value_col].to_numpy(float)
+        sd = float(np.std(v, ddof=1)) if v.size > 1 else np.nan
+        rows.append({"group": grp["group"].iloc[0], "role": grp["role"].iloc[0],
+                     "sample": grp["sample"].iloc[0], "dilution": grp["dilution"].iloc[0],
+                     "substrate_uM": grp["substrate_uM"].iloc[0],
+                     "inhibitor_uM": grp["inhibitor_uM"].iloc[0], "n": len(grp),
+                     "n_used": int(v.size), "mean": float(v.mean()), "sd": sd,
+                     "well_se": float(np.nanmedian(kept[value_col + "_se"].to_numpy(float))),
+                     "sem": sd / math.sqrt(v.size) if v.size > 1 else np.nan,
+                     "cv_pct": 100 * sd / abs(v.mean()) if v.mean() else np.nan,
+                     "unit": value_col.split("_", 1)[1].replace("_per_", "/"),
+                     "wells": list(grp["trace"]), "left_out": _left_out(grp, kept)})
+    reps = pd.DataFrame(rows)
+    return reps if (reps["n"] > 1).any() else pd.DataFrame()
+
+
+def _left_out(grp: pd.DataFrame, kept: pd.DataFrame) -> list[str]:
+    return [f"{r['trace']}: replicate outlier (|z| = {r['replicate_z']:.1f})"
+            for _, r in grp.iterrows() if r["trace"] not in set(kept["trace"])]
+
+
+def activity_summary(table: pd.DataFrame) -> pd.DataFrame:
+    """Per sample and condition (substrate, inhibitor): mean activity ± SD over replicates and
+    dilutions, outliers and wells without a rate left out with the reason, and the
+    dilution-linearity check (activity regressed on log2 dilution; stage 6)."""
+    if "activity_U_per_mL" not in table.columns:
+        return pd.DataFrame()
+    d = table[table["role"] == "sample"]
+    rows = []
+    keys = d["sample"].where(d["sample"] != "", d["group"])
+    for (name, s_uM, i_uM), grp in d.groupby([keys, d["substrate_uM"].fillna(-1),
+                                              d["inhibitor_uM"].fillna(-1)], sort=False):
+        act = grp["activity_U_per_mL"].to_numpy(float)
+        outl = grp["flags"].apply(lambda f: "outlier" in f).to_numpy()
+        if outl.all():
+            outl[:] = False                          # two that disagree: both kept, both flagged
+        use = np.isfinite(act) & ~outl
+        why = [f"{w}: no rate ({', '.join(f) or 'no estimate'})" for w, a, f in
+               zip(grp["trace"], act, grp["flags"], strict=True) if not np.isfinite(a)]
+        why += [f"{w}: replicate outlier (|z| = {z:.1f})" for w, z, o in
+                zip(grp["trace"], grp["replicate_z"], outl, strict=True) if o]
+        row = {"sample": name, "substrate_uM": None if s_uM < 0 else s_uM,
+               "inhibitor_uM": None if i_uM < 0 else i_uM, "n_wells": len(grp),
+               "n_used": int(use.sum()), "wells": list(grp["trace"]),
+               "dilutions": sorted({float(x) for x in grp["dilution"][use]}),
+               "left_out": why}
+        for col in ("activity_U_per_mL", "activity_nkat_per_mL", "specific_activity_U_per_mg",
+                    "turnover_per_s"):
+            if col in grp.columns:
+                v, e = grp[col].to_numpy(float)[use], grp[f"{col}_se"].to_numpy(float)[use]
+                row[col] = float(np.mean(v[np.isfinite(v)])) if np.isfinite(v).any() else None
+                row[f"{col}_sd"] = (float(np.std(v[np.isfinite(v)], ddof=1))
+                                    if np.isfinite(v).sum() > 1 else None)
+                row[f"{col}_well_se"] = (float(np.median(e[np.isfinite(e)]))
+                                         if np.isfinite(e).any() else None)
+        row.update(dilution_trend(grp["dilution"].to_numpy(float)[use], act[use]))
+        rows.append(row)
+    return pd.DataFrame(rows)
+
+
+def dilution_trend(dilution: np.ndarray, activity: np.ndarray) -> dict:
+    """Does the activity trend with the dilution? Least-squares line of activity on log2
+    dilution: its slope as a percentage of the mean activity per two-fold dilution, and the
+    two-sided p of Student's t on n - 2 degrees of freedom (scipy.stats.linregress)."""
+    from scipy import stats
+
+    ok = np.isfinite(dilution) & np.isfinite(activity)
+    x, y = np.log2(dilution[ok]), activity[ok]
+    if np.unique(x).size < 2 or y.size < 3:
+        why = "one dilution" if np.unique(x).size < 2 else "fewer than three wells"
+        return {"dilution_trend_pct": None, "dilution_trend_p": None, "flags": [],
+                "dilution_check": f"not tested ({why})"}
+    r = stats.linregress(x, y)
+    pct = 100 * r.slope / abs(y.mean()) if y.mean() else np.nan
+    p = float(r.pvalue) if np.isfinite(r.pvalue) else 1.0
+    bad = p < 0.05 and abs(pct) >= 100 * TREND_LIMIT
+    return {"dilution_trend_pct": float(pct), "dilution_trend_p": p,
+            "flags": ["dilution-trend"] if bad else [],
+            "dilution_check": (f"{pct:+.1f} % per two-fold dilution, p = {p:.2g}"
+                               + (": activity trends with dilution" if bad else ": flat"))}
 
 
 def z_prime(table: pd.DataFrame, value_col: str) -> dict | None:
@@ -324,7 +807,9 @@ def z_prime(table: pd.DataFrame, value_col: str) -> dict | None:
     verdict = "excellent" if z >= 0.5 else ("marginal" if z > 0 else "controls overlap")
     return {"value": z, "n_positive": int(pos.size), "n_negative": int(neg.size),
             "mean_positive": float(pos.mean()), "mean_negative": float(neg.mean()),
-            "verdict": verdict, "unit": "", "source": "Zhang, Chung & Oldenburg (1999)"}
+            "sd_positive": float(np.std(pos, ddof=1)), "sd_negative": float(np.std(neg, ddof=1)),
+            "unit": value_col.split("_", 1)[1].replace("_per_", "/"), "verdict": verdict,
+            "source": "Zhang, Chung & Oldenburg (1999)"}
 
 
 def z_factor(pos, neg) -> float:
@@ -332,3 +817,134 @@ def z_factor(pos, neg) -> float:
     pos, neg = np.asarray(pos, float), np.asarray(neg, float)
     return float(1 - 3 * (np.std(pos, ddof=1) + np.std(neg, ddof=1))
                  / abs(pos.mean() - neg.mean()))
+
+
+# --------------------------------------------------------------------------- the plate
+
+
+@dataclass
+class RatesAnalysis:
+    """Per-well rates, replicate and activity summaries, Z', what was assumed, and warnings."""
+
+    table: pd.DataFrame
+    replicates: pd.DataFrame
+    zprime: dict | None
+    windows: Windows
+    traces: TraceSet
+    settings: RateSettings
+    warnings: list = field(default_factory=list)
+    blank_info: dict = field(default_factory=dict)
+    setup: PlateSetup | None = None
+    activity: pd.DataFrame = field(default_factory=pd.DataFrame)
+    outlier_method: str = ""
+
+    @property
+    def needs_look(self) -> list[str]:
+        """The wells that carry a flag: each flag means the number may be wrong."""
+        return [w for w, f in zip(self.table["trace"], self.table["flags"], strict=True) if f]
+
+
+def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
+                  settings: RateSettings | None = None) -> RatesAnalysis:
+    """Initial rate, concentration rate and activity of every trace, with QC, in the stages of
+    the module docstring.
+
+    ``ts`` holds absorbance traces; ``layout`` (from :func:`rateabs.layout.read_layout`) gives
+    roles, concentrations, dilutions, replicate groups and per-well windows or skips.
+    """
+    st = settings or RateSettings()
+    setup = plate_setup(ts, layout, st)
+    source = layout.attrs.get("source") if layout is not None else None
+    used = skip_and_mask(ts, setup, st)
+    mode = blank_mode(setup.wells.loc[used.names, "role"], st, source)
+    s, analysed = estimate_slopes(used, setup, st, mode)
+    g = analysed.grid()
+    wells = setup.wells.loc[g.names]
+    roles = wells["role"].to_numpy()
+    slope, se, blank_info = blank_correction(s, roles == "blank", mode, g.names)
+    direction = assay_direction(slope, roles, st)
+    blank_info["direction"] = "up" if direction > 0 else "down"
+    conv, calib = convert(slope, se, direction, wells, setup, st, analysed)
+    if calib is not None:
+        blank_info["calibration"] = calib
+    table = well_table(g, s, wells, slope, se, conv)
+    value_col = "rate_uM_per_min" if "rate_uM_per_min" in table.columns else "slope_A_per_min"
+    masks = plate_flags(table, s, g, direction, blank_info)
+    z, outlier, how = replicate_outliers(
+        np.where(table["role"].isin(["blank", "standard"]), np.nan, table[value_col]),
+        table[value_col + "_se"], table["replicate_key"])
+    masks["outlier"] = outlier | s.blank["left_out"]
+    table["replicate_z"] = z
+    plate = _flag_lists({k: masks[k] for k in PLATE_FLAGS if k in masks}, len(table))
+    table["flags"] = [a + b for a, b in zip(s.trace_flags, plate, strict=True)]
+    a = RatesAnalysis(table, replicate_summary(table, value_col), z_prime(table, value_col),
+                      s.windows, analysed, st, list(setup.warnings), blank_info, setup,
+                      activity_summary(table), how)
+    a.warnings += _notes(a, value_col)
+    return a
+
+
+def well_table(g: Grid, s: TraceSlopes, wells: pd.DataFrame, slope, se,
+               conv: dict) -> pd.DataFrame:
+    """One row per well: what was measured, how, and what was set for it."""
+    w = s.windows
+    cols = {"trace": g.names, "role": wells["role"].to_numpy(),
+            "sample": wells["sample"].fillna("").to_numpy(), "group": wells["group"].to_numpy(),
+            "method": s.method, "choice": s.choice, "slope_A_per_min": slope,
+            "slope_A_per_min_se": se, "window_start_s": s.window_start_s,
+            "window_end_s": s.window_end_s, "window_source": wells["window_source"].to_numpy(),
+            "n_points": np.nan_to_num(w.n).astype(int), "r2": w.r2, "lag_s": w.lag_s,
+            "window_end_reason": [WindowEnd(int(r)).text for r in w.end_reason],
+            "curve_slope_A_per_min": w.curve_slope * 60,
+            "curve_slope_A_per_min_se": w.curve_slope_se * 60, "noise_A": w.sigma,
+            "substrate_uM": wells["substrate_M"].to_numpy(float) * 1e6,
+            "inhibitor_uM": wells["inhibitor_M"].to_numpy(float) * 1e6,
+            "enzyme_nM": wells["enzyme_M"].to_numpy(float) * 1e9,
+            "dilution": wells["dilution"].to_numpy(float),
+            "dilution_source": wells["dilution_source"].to_numpy(),
+            "masked_readings": masked_counts(g),
+            "skipped_s": [[t for t, _ in wells.loc[n, "skip"]] for n in g.names],
+            **conv}
+    t = pd.DataFrame(cols)
+    t["replicate_key"] = [f"{gr}|dilution {d:g}" for gr, d in zip(t["group"], t["dilution"],
+                                                                    strict=True)]
+    return t
+
+
+def masked_counts(g: Grid) -> list[dict]:
+    """Per trace, its masked readings by reason (over range, past the linear limit, skipped;
+    missing cells left out)."""
+    from .traces import FLAG_NAMES
+
+    if g.flags is None:
+        return [{} for _ in g.names]
+    real = np.isfinite(g.times)
+    counts = {name: ((g.flags == code) & real).sum(axis=1)
+              for code, name in enumerate(FLAG_NAMES) if name and name != "missing"}
+    return [{k: int(v[i]) for k, v in counts.items() if v[i]} for i in range(len(g.names))]
+
+
+def _notes(a: RatesAnalysis, value_col: str) -> list[str]:
+    """The run's summary lines: how many wells need a look, and what limits the numbers."""
+    notes = []
+    if value_col == "slope_A_per_min":
+        notes.append("no molar absorptivity given (--epsilon or --chromophore) and no standard "
+                     "curve: rates are in A/min only")
+    look = a.needs_look
+    if look:
+        counts: dict[str, int] = {}
+        for f in a.table["flags"]:
+            for word in f:
+                counts[word] = counts.get(word, 0) + 1
+        what = ", ".join(f"{k} {v}" for k, v in sorted(counts.items(), key=lambda kv: -kv[1]))
+        notes.append(f"{len(look)} of {len(a.table)} wells need a look ({what}); each flag's "
+                     "meaning is listed with the results")
+    zp = a.zprime
+    if zp and zp.get("value") is not None and zp["value"] < 0.5:
+        notes.append(f"Z' = {zp['value']:.2f} is below 0.5: the controls do not separate well")
+    if not a.activity.empty:
+        trend = [r["sample"] for _, r in a.activity.iterrows() if r["flags"]]
+        if trend:
+            notes.append(f"the activity of {', '.join(map(str, trend[:5]))} trends with the "
+                         "dilution: its mean over dilutions is not one activity")
+    return notes

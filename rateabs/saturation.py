@@ -48,6 +48,7 @@ class SaturationData:
     rate_unit: str
     inhib_unit: str
     columns: dict
+    dropped: int = 0          # rows left out: no rate, concentration or inhibitor level
 
 
 def table_data(df: pd.DataFrame, *, conc=None, rate=None, inhibitor=None, sd=None,
@@ -62,6 +63,8 @@ def table_data(df: pd.DataFrame, *, conc=None, rate=None, inhibitor=None, sd=Non
     v = number_column(df, rate_c)
     s = number_column(df, conc_c) if conc_c is not None else None
     i = number_column(df, inhib_c) if inhib_c is not None else None
+    if i is not None and inhibitor is None and not need_inhibitor and not np.isfinite(i).any():
+        inhib_c, i = None, None               # an empty inhibitor column found by its name
     e = number_column(df, sd_c) if sd_c is not None else None
     keep = np.isfinite(v)
     if s is not None:
@@ -85,7 +88,8 @@ def table_data(df: pd.DataFrame, *, conc=None, rate=None, inhibitor=None, sd=Non
         conc_unit=conc_unit or (unit_from_header(conc_c) if conc_c else ""),
         rate_unit=rate_unit or unit_from_header(rate_c),
         inhib_unit=inhib_unit or (unit_from_header(inhib_c) if inhib_c else ""),
-        columns={"conc": conc_c, "rate": rate_c, "inhibitor": inhib_c, "sd": sd_c})
+        columns={"conc": conc_c, "rate": rate_c, "inhibitor": inhib_c, "sd": sd_c},
+        dropped=int((~keep).sum()))
 
 
 @dataclass(frozen=True)
@@ -311,6 +315,9 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
             km: float | None = None) -> SaturationAnalysis:
     """Fit the requested model (or every candidate for ``auto``) and derive constants."""
     candidates, x, units, warn = _candidates(data, model)
+    if data.dropped:
+        warn = [f"{data.dropped} row(s) without a rate, a concentration or an inhibitor level "
+                "were left out"] + warn
     _check_fix_names(fix, candidates)
     if np.all(data.v == 0):
         raise FitError("every rate is zero", "check the rate column and the blank subtraction")

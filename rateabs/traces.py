@@ -31,10 +31,11 @@ READING_FLAGS = {
     "overflow": "the instrument marked the reading as over its range",
     "missing": "no reading (empty cell or NaN)",
     "past-linear": "absorbance above the linear limit of Beer–Lambert",
+    "skipped": "left out by the user (--skip-reading or the plate map's skip column)",
 }
 
 #: Flag of each integer code stored in :attr:`Grid.flags` (code 0: no flag).
-FLAG_NAMES = ("", "overflow", "missing", "past-linear")
+FLAG_NAMES = ("", "overflow", "missing", "past-linear", "skipped")
 FLAG_CODE = {name: code for code, name in enumerate(FLAG_NAMES)}
 
 
@@ -187,6 +188,17 @@ class TraceSet:
         usable = g.usable & ~hit
         codes = np.where(hit, np.int8(FLAG_CODE["past-linear"]), g.flags)
         return replace(self, readings=replace(g, usable=_frozen(usable), flags=_frozen(codes)))
+
+    def mask_readings(self, where: np.ndarray, flag: str = "skipped") -> TraceSet:
+        """Mark the readings where ``where`` (traces x times, bool) is True as unusable, with the
+        reading flag ``flag`` (a name of :data:`READING_FLAGS`)."""
+        g = self.readings
+        hit = g.usable & np.asarray(where, dtype=bool)
+        if not hit.any():
+            return replace(self)
+        codes = np.where(hit, np.int8(FLAG_CODE[flag]), g.flags)
+        return replace(self, readings=replace(g, usable=_frozen(g.usable & ~hit),
+                                              flags=_frozen(codes)))
 
     def with_values(self, values: np.ndarray) -> TraceSet:
         """The same traces with new values (traces x times); non-finite ones become unusable."""

@@ -17,6 +17,8 @@ from rateabs import options as opts
 from rateabs import rules
 from rateabs.cli import main
 from rateabs.errors import UsageError
+from rateabs.rates import plate_setup
+from rateabs.traces import TraceSet
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 CUV = SAMPLES / "cuvettes_kbap_405nm_messy.csv"
@@ -111,7 +113,7 @@ BAD = [
     (["rates", CUV, "--jobs", "2"], "--jobs"),
     (["saturation", SAT, "--each", "plate"], "--each"),
     # accepted and then ignored before: now refused with the reason
-    (["rates", CUV, "--plate", "384"], "--plate"),
+    (["rates", CUV, "--plate", "96"], "--plate"),     # the names K1..K6 need a 384-well plate
     (["rates", CUV, "--katal"], "--katal"),
     (["rates", CUV, "--protein", "0.8 mg/mL"], "--protein"),
     (["rates", CUV, "--dilution", "10"], "--dilution"),
@@ -166,7 +168,7 @@ def test_an_error_says_what_to_type_instead():
     assert r.stderr.strip() == ("rateabs: --noisy-limit nan is not a finite number; give a number "
                                 "above 0 and at most 1 (relative SE of the slope), e.g. "
                                 "--noisy-limit 0.1")
-    r = run("rates", CUV, "--well-volume", "5 mL", "--epsilon", "18000")
+    r = run("rates", PLATE, "--well-volume", "5 mL", "--epsilon", "18000")
     # typical capacity of a 96-well well, about 0.36 mL (from memory)
     assert "360 uL" in r.stderr and "96-well" in r.stderr
 
@@ -191,8 +193,11 @@ def test_quantities_are_parsed_once_into_base_units():
     assert o.total_volume == pytest.approx(2e-4) and o.sample_volume == pytest.approx(2e-5)
     assert o.protein == pytest.approx(0.8)              # mg/mL
     st = o.rate_settings()
-    # b = V / A with a 96-well bottom of 0.32 cm2 (typical, from memory): 0.2 cm3 / 0.32 cm2
-    assert st.pathlength_cm == pytest.approx(0.2 / 0.32)
+    assert st.well_volume_L == pytest.approx(2e-4) and st.pathlength_cm is None
+    # b = V / A with a 96-well bottom of 0.32 cm2 (typical, from memory): 0.2 cm3 / 0.32 cm2,
+    # for wells named A1..H12 (the plate format the names show)
+    plate = TraceSet.from_arrays(["A1", "H12"], [0.0, 60.0], [[0.1, 0.2], [0.1, 0.2]])
+    assert plate_setup(plate, None, st).pathlength_cm == pytest.approx(0.2 / 0.32)
     assert opts.TemperatureOptions("t.csv", at=["25 C", "300 K"]).at == pytest.approx(
         (298.15, 300.0))                                 # 0 C = 273.15 K (SI Brochure)
     assert opts.RatelawOptions("r.csv", guggenheim="5 min").guggenheim == 300.0
@@ -294,8 +299,10 @@ def test_rates_conversion_options_are_used():
         pytest.approx(2 * base[w]["rate_uM_per_min"]))
     assert _rates("--epsilon", "18000", "--epsilon-se", "1800")[w]["rate_uM_per_min_se"] > (
         base[w]["rate_uM_per_min_se"])
-    b96 = _rates("--epsilon", "18000", "--well-volume", "50 uL")[w]["rate_uM_per_min"]
-    b384 = _rates("--epsilon", "18000", "--well-volume", "50 uL", "--plate", "384")[w]
+    b96 = _rates("--epsilon", "18000", "--well-volume", "50 uL", file=PLATE)["A1"][
+        "rate_uM_per_min"]                             # wells A1..H12: a 96-well plate
+    b384 = _rates("--epsilon", "18000", "--well-volume", "50 uL", "--plate", "384",
+                  file=PLATE)["A1"]
     # same volume, a 384-well bottom is 0.10 cm2 against 0.32 cm2 (typical, from memory)
     assert b384["rate_uM_per_min"] == pytest.approx(b96 * 0.10 / 0.32, rel=1e-9)
     act = _rates("--epsilon", "18000", "--total-volume", "200 uL", "--sample-volume", "20 uL")[w]
@@ -315,14 +322,28 @@ def test_rates_window_and_flag_options_are_used():
     assert _rates("--min-points", "15")["K6"]["n_points"] >= 15
     assert sum("noisy" in r["flags"] for r in _rates("--noisy-limit", "0.0001").values()) > sum(
         "noisy" in r["flags"] for r in base.values())
-    assert sum("past-linear" in r["flags"] for r in _rates("--linear-limit", "0.5").values()) > (
-        sum("past-linear" in r["flags"] for r in base.values()))
+    assert sum("past-linear" in r["masked_readings"] for r in _rates("--linear-limit", "0.5")
+               .values()) > sum("past-linear" in r["masked_readings"] for r in base.values())
     assert _rates("--no-curve")[w]["curve_slope_A_per_min"] is None
     assert base[w]["curve_slope_A_per_min"] is not None
     assert {r["method"] for r in _rates("--slope-from", "curve").values()} >= {"curve"}
     up = _rates("--direction", "down")
     assert sum("reversed" in r["flags"] for r in up.values()) > sum(
         "reversed" in r["flags"] for r in base.values())
+
+
+def test_rates_single_well_options_are_used(tmp_path):
+    base = _rates(file=PLATE)
+    one = _rates("--well-window", "A1=60-300", "--skip-well", "B2", "--skip-reading", "A3=120",
+                 file=PLATE)
+    assert (one["A1"]["window_start_s"], one["A1"]["window_end_s"]) == (60, 300)
+    assert one["A1"]["window_source"] == "--well-window" != base["A1"]["window_source"]
+    assert "B2" in base and "B2" not in one
+    assert one["A3"]["masked_readings"] == {"skipped": 1} and one["A3"]["skipped_s"] == [120]
+    r = run("rates", PLATE, "--out", tmp_path / "none", "--well-pages", "none")
+    assert r.exit_code == 0 and not list((tmp_path / "none").glob("rates_wells_*.png"))
+    run("rates", PLATE, "--out", tmp_path / "all", "--well-pages", "all")
+    assert len(list((tmp_path / "all").glob("rates_wells_*.png"))) == 4     # 96 wells, 24 a page
 
 
 def test_rates_plate_map_options_are_used():
@@ -492,10 +513,9 @@ def test_progress_options_are_used():
         "ci_method"] == "profile" != km["ci_method"]
     lvl = doc("progress", *PROG_ARGS, "--level", "0.5")["results"][0]["params"]["Km"]
     assert lvl["ci_high"] - lvl["ci_low"] < km["ci_high"] - km["ci_low"]
-    # the product's rise read as substrate: the fit says it cannot describe the curves
-    flipped = doc("progress", *PROG_ARGS, "--species", "substrate")
-    assert flipped["results"][0]["params"]["Km"]["value"] != pytest.approx(km["value"])
-    assert any("not reliable" in w for w in flipped["warnings"])
+    # the product's rise read as substrate: refused, naming the species that fits the signal
+    flipped = run("progress", *PROG_ARGS, "--species", "substrate")
+    assert flipped.exit_code == 2 and "give --species product" in flipped.stderr
 
 
 def test_progress_layout_gives_s0(tmp_path):
@@ -530,7 +550,8 @@ USED = {
                      "--well-volume", "--plate", "--total-volume", "--sample-volume", "--protein",
                      "--dilution", "--window", "--min-points", "--blank", "--direction",
                      "--linear-limit", "--noisy-limit", "--katal", "--calibrate",
-                     "--curve/--no-curve", "--slope-from", "--jobs", "--scheduler"},
+                     "--curve/--no-curve", "--slope-from", "--well-window", "--skip-well",
+                     "--skip-reading", "--well-pages", "--jobs", "--scheduler"},
     "SaturationOptions": {"--conc", "--rate", "--inhibitor", "--sd", "--model", "--ci", "--level",
                           "--weighting", "--fix", "--enzyme", "--conc-unit", "--rate-unit",
                           "--inhibitor-unit", "--mode", "--substrate", "--km", "--resamples",

@@ -164,7 +164,8 @@ def test_sample_plate_end_to_end(tmp_path):
     assert doc["settings"]["z_prime"]["value"] > 0.5
     assert doc["settings"]["blank"]["mode"] == "slope"
     for f in ("rates.json", "rates.csv", "rates_replicates.csv", "rates_plate.png",
-              "rates_traces_1.png", "rates_replicates.png"):
+              "rates_plate_overview.png", "rates_wells_1.png", "rates_replicates.png",
+              "rates_activity.csv"):
         assert (tmp_path / f).exists(), f
 
 

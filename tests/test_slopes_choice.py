@@ -168,3 +168,21 @@ def test_flag_calibration_on_seeded_plates():
     assert cal.n_bad >= 5
     assert cal.good_flagged <= 0.10
     assert cal.bad_flagged >= 0.5
+
+
+def test_a_well_is_estimated_alike_beside_a_well_whose_first_readings_are_masked():
+    # The whole-curve grid is tabulated on the columns' times; a neighbour whose first two
+    # readings are masked has other times from its first usable reading, and must not shift
+    # anyone's estimate (common practice: each trace's answer depends on that trace alone).
+    t = np.arange(0.0, 601.0, 20.0)
+    rng = np.random.default_rng(0)
+    y = 0.2 + 0.03 / 60 * t + rng.normal(0, 0.001, (2, t.size))    # straight, 0.03 A/min
+    g = TraceSet.from_arrays(["A1", "A2"], t, y).grid()
+    usable = g.usable.copy()
+    usable[1, :2] = False
+    both = find_windows(type(g)(g.names, g.times, g.values, usable, g.flags))
+    alone = find_windows(type(g)(g.names[:1], g.times[:1], g.values[:1], g.usable[:1],
+                                 None if g.flags is None else g.flags[:1]))
+    assert both.slope[0] == pytest.approx(alone.slope[0], rel=1e-9)
+    assert both.t_start[0] == alone.t_start[0] == 0 and both.lag_s[0] == alone.lag_s[0]
+    assert both.method[0] == alone.method[0]

@@ -36,7 +36,9 @@ def read_table(path: str | Path) -> pd.DataFrame:
     if not any(widths):
         raise InputError("the table is empty", "add a header and rows", file=path)
     mode = Counter(w for w in widths if w >= 1).most_common(1)[0][0]
-    start = next((i for i, w in enumerate(widths[:-1]) if w >= mode and widths[i + 1] >= mode),
+    # the header is followed by a row as wide; a row's empty trailing cells count for that,
+    # so that a map whose first row leaves its last columns empty keeps its header
+    start = next((i for i, w in enumerate(widths[:-1]) if w >= mode and len(rows[i + 1]) >= w),
                  next(i for i, w in enumerate(widths) if w >= mode))
     header = [c.strip() for c in rows[start][:widths[start]]]
     _check_header(header, path, lines[start])

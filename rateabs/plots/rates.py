@@ -1,132 +1,522 @@
-"""Figures of ``rateabs rates``: trace pages, the plate map of rates, replicates."""
+"""Figures of ``rateabs rates``: the plate at a glance, pages of single wells, the plate map of
+rates and the replicates.
+
+Drawing costs in proportion to what a person can look at: the overview puts every well's trace
+in plate geometry on one Axes as a few collections (LineCollection, PolyCollection, one scatter),
+so a 1536-well plate costs about what a 96-well one does; single-well pages are drawn only for
+the wells that need a look (up to a cap) unless every well is asked for; layouts are fixed
+numbers computed once, never a constrained layout, and every figure is closed when saved.
+"""
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import numpy as np
 
-from .style import GRID, INK, PALETTE, SHADE, house_style, save
+from .style import GRID, INK, PALETTE, RC, SHADE, house_style, save
+
+LOOK = "#fbe3cf"          # background of a well that needs a look
+LEFT_OUT = "#d6d6d6"      # background of a well left out of the analysis
+EMPTY_WELL = "#f6f6f6"    # background of any other well
+WINDOW = PALETTE[2]       # readings inside the window
+LINE = PALETTE[1]         # the reported initial slope
+FAST_PNG = 1              # zlib level of these PNGs: a third of the encoding time, files ~1.3x
 
 
-def rate_traces(analysis, out, stem: str = "rates", per_page: int = 24) -> list:
-    """Small multiples of every trace: readings, the window shaded, the line, residuals below."""
+def plate_positions(names: list[str], plate_format: int | None):
+    """(rows, columns, row of each trace, column of each trace, row labels, column labels):
+    plate geometry for well names, else a near-square grid in the traces' order."""
+    from ..io.metadata import PLATES, well_position
+
+    pos = [well_position(n) for n in names]
+    if plate_format in PLATES and all(p is not None for p in pos):
+        nrow, ncol = PLATES[plate_format]
+        rows = np.array([p[0] for p in pos])
+        cols = np.array([p[1] for p in pos])
+        letters = [chr(65 + r) if r < 26 else "A" + chr(65 + r - 26) for r in range(nrow)]
+        return nrow, ncol, rows, cols, letters, [str(c + 1) for c in range(ncol)]
+    n = max(len(names), 1)
+    ncol = max(1, math.ceil(math.sqrt(n * 1.5)))
+    nrow = math.ceil(n / ncol)
+    k = np.arange(len(names))
+    return nrow, ncol, k // ncol, k % ncol, [""] * nrow, [""] * ncol
+
+
+def _cell_scale(g, ok):
+    """Per-trace centre and span of the values: each well is scaled on its own, but never to
+    less than a fifth of the plate's typical change, so that a flat well looks flat."""
+    v = np.where(ok, g.values, np.inf)
+    lo = np.min(v, axis=1)
+    hi = np.max(np.where(ok, g.values, -np.inf), axis=1)
+    lo, hi = np.where(ok.any(axis=1), lo, 0.0), np.where(ok.any(axis=1), hi, 0.0)
+    ptp = np.nan_to_num(hi - lo)
+    floor = max(0.2 * float(np.percentile(ptp, 90)) if ptp.size else 0.0, 1e-4)
+    return np.nan_to_num((hi + lo) / 2), np.maximum(ptp, floor) * 1.1
+
+
+def _thin(x, y, keep, pixels: int):
+    """At most about two points per pixel of a cell's width: each run of readings that falls
+    on one pixel keeps its lowest and its highest reading, in time order, so a spike stays
+    visible while a 300-reading trace in a 40-pixel cell costs a tenth to draw."""
+    n, m = x.shape
+    k = m // max(pixels, 1)
+    if k < 3:
+        return x, y, keep
+    bins = -(-m // k)
+    fill = bins * k - m
+
+    def pad(a, v):
+        return np.hstack([a, np.full((n, fill), v, dtype=a.dtype)]).reshape(n, bins, k)
+
+    xb, yb, kb = pad(x, np.nan), pad(y, np.nan), pad(keep, False)
+    lo = np.argmin(np.where(kb, yb, np.inf), axis=2)
+    hi = np.argmax(np.where(kb, yb, -np.inf), axis=2)
+    idx = np.stack([np.minimum(lo, hi), np.maximum(lo, hi)], axis=2)
+    take = lambda a: np.take_along_axis(a, idx, axis=2).reshape(n, 2 * bins)  # noqa: E731
+    return take(xb), take(yb), take(kb)
+
+
+def _well_backgrounds(ax, shape, rows, cols, flagged, n: int) -> None:
+    """Each well's background as one image (empty positions white, wells light grey, wells
+    that need a look shaded and outlined, wells left out grey), cells parted by white lines."""
+    from matplotlib.collections import PolyCollection
+    from matplotlib.colors import to_rgb
+
+    nrow, ncol = shape
+    img = np.ones((nrow, ncol, 3))
+    img[rows[:n], cols[:n]] = to_rgb(EMPTY_WELL)
+    img[rows[:n][flagged[:n]], cols[:n][flagged[:n]]] = to_rgb(LOOK)
+    img[rows[n:], cols[n:]] = to_rgb(LEFT_OUT)
+    ax.imshow(img, extent=(0, ncol, nrow, 0), interpolation="nearest", aspect="auto",
+              zorder=0)
+    lw = 1.5 if ncol <= 24 else 1.0
+    ax.vlines(np.arange(ncol + 1), 0, nrow, colors="white", lw=lw, zorder=0.5)
+    ax.hlines(np.arange(nrow + 1), 0, ncol, colors="white", lw=lw, zorder=0.5)
+    r, c = rows[flagged], cols[flagged]
+    m = 0.03
+    boxes = np.stack([np.column_stack(p) for p in ((c + m, r + m), (c + 1 - m, r + m),
+                                                   (c + 1 - m, r + 1 - m), (c + m, r + 1 - m))],
+                     axis=1)
+    ax.add_collection(PolyCollection(boxes, facecolors="none", edgecolors=PALETTE[1],
+                                     linewidths=1.0 if ncol <= 24 else 0.7))
+
+
+def _window_boxes(x, inside, rows, band):
+    """The window of each well as a bar under the trace, over the window's readings."""
+    has = inside.any(axis=1)
+    xa = np.where(inside, x, np.inf).min(axis=1)[has]
+    xb = np.where(inside, x, -np.inf).max(axis=1)[has]
+    top, bottom = rows[has] + band[1] + 0.01, rows[has] + min(band[1] + 0.06, 0.975)
+    return np.stack([np.column_stack(p) for p in ((xa, bottom), (xb, bottom), (xb, top),
+                                                  (xa, top))], axis=1)
+
+
+def _joined(x, y, keep):
+    """All rows as one polyline broken by NaN (between rows and where ``keep`` fails): one
+    path that matplotlib simplifies and draws at once, instead of a path per well."""
+    gap = np.full((x.shape[0], 1), np.nan)
+    return (np.hstack([np.where(keep, x, np.nan), gap]).ravel(),
+            np.hstack([np.where(keep, y, np.nan), gap]).ravel())
+
+
+def plate_overview(analysis, path, title: str = ""):
+    """Every well's trace in plate geometry on one Axes: readings, the window (green), the
+    reported initial slope (orange line), masked readings (x), wells that need a look shaded."""
+    from matplotlib.collections import LineCollection, PolyCollection
+
 
     ts = analysis.traces
     g = ts.grid()
-    w = analysis.windows
-    table = analysis.table.set_index("trace")
-    files = []
+    t = analysis.table
+    setup = analysis.setup
+    fmt = setup.plate_format if setup is not None else None
+    left_out = list(setup.skipped_wells) if setup is not None else []
+    names = list(g.names) + left_out
+    nrow, ncol, rows, cols, rlab, clab = plate_positions(names, fmt)
+    cell_in = 1.0 if ncol <= 12 else (0.56 if ncol <= 24 else 0.34)
     n = len(g.names)
-    pages = max(1, -(-n // per_page))
-    for page in range(pages):
-        idx = list(range(page * per_page, min(n, (page + 1) * per_page)))
-        cols = 6 if len(idx) > 12 else min(4, len(idx))
-        rows = -(-len(idx) // cols)
-        with house_style() as plt:
-            fig = plt.figure(figsize=(2.35 * cols, 2.3 * rows), layout="constrained")
-            outer = fig.add_gridspec(rows, cols)
-            for k, i in enumerate(idx):
-                sub = outer[k // cols, k % cols].subgridspec(2, 1, height_ratios=[3, 1], hspace=0)
-                ax = fig.add_subplot(sub[0])
-                axr = fig.add_subplot(sub[1], sharex=ax)
-                ok = g.usable[i]
-                t = g.times[i] / 60
-                y = g.values[i]
-                ax.plot(t[ok], y[ok], ".", ms=3, color=PALETTE[0])
-                bad = ~ok & np.isfinite(t) & np.isfinite(y)
-                if bad.any():
-                    ax.plot(t[bad], y[bad], "x", ms=3, color=PALETTE[1])
-                name = g.names[i]
-                flags = table.loc[name, "flags"]
-                if np.isfinite(w.t_start[i]):
-                    t0, t1 = w.t_start[i] / 60, w.t_end[i] / 60
-                    ax.axvspan(t0, t1, color=SHADE, alpha=0.12, lw=0)
-                    tt = np.linspace(t0, t1, 2)
-                    ax.plot(tt, w.intercept[i] + w.window_slope[i] * tt * 60, color=PALETTE[1],
-                            lw=1.3)
-                    res = y - (w.intercept[i] + w.window_slope[i] * g.times[i])
-                    inside = ok & (g.times[i] >= w.t_start[i]) & (g.times[i] <= w.t_end[i])
-                    axr.plot(t[inside], res[inside] * 1e3, ".", ms=2.5, color=PALETTE[0])
-                    axr.plot(t[ok & ~inside], res[ok & ~inside] * 1e3, ".", ms=2.5, color=GRID)
-                if np.isfinite(w.curve_slope[i]) and ok.any():
-                    tc = np.linspace(np.nanmin(g.times[i][ok]), np.nanmax(g.times[i][ok]), 60)
-                    ax.plot(tc / 60, w.curve_values(i, tc), ":", lw=1.0, color=INK)
-                axr.axhline(0, color=INK, lw=0.6)
-                role = table.loc[name, "role"]
-                ax.set_title(f"{name} ({role})" + (f"\n{','.join(flags)}" if flags else ""),
-                             fontsize=7.5, color=PALETTE[1] if flags else INK)
-                ax.tick_params(labelsize=6.5, labelbottom=False)
-                axr.tick_params(labelsize=6.5)
-                if k % cols == 0:
-                    ax.set_ylabel("A (AU)", fontsize=7)
-                    axr.set_ylabel("res. (mA)", fontsize=6.5)
-                if k // cols == rows - 1:
-                    axr.set_xlabel("time (min)", fontsize=7)
-            fig.suptitle("shaded: window used for the initial rate; solid: its line; dotted: "
-                         "whole-curve estimate; x: masked readings", fontsize=8.5)
-            files.append(save(fig, Path(out) / f"{stem}_traces_{page + 1}.png"))
+    ok = g.usable & np.isfinite(g.times)
+    tmin = float(np.nanmin(g.times)) if np.isfinite(g.times).any() else 0.0
+    tspan = max(float(np.nanmax(g.times)) - tmin, 1e-9) if np.isfinite(g.times).any() else 1.0
+    centre, span = _cell_scale(g, ok)
+    pad = 0.1
+    band = (0.24, 0.94) if ncol <= 12 else (0.1, 0.9)   # room above the trace for its label
+    c0, r0 = cols[:n, None].astype(float), rows[:n, None].astype(float)
+    x = c0 + pad + (1 - 2 * pad) * (np.nan_to_num(g.times) - tmin) / tspan
+    y = _cell_y(r0, np.nan_to_num(g.values), centre[:, None], span[:, None], band)
+    t0 = t["window_start_s"].to_numpy(float)[:, None]
+    t1 = t["window_end_s"].to_numpy(float)[:, None]
+    with np.errstate(invalid="ignore"):
+        inside = ok & (g.times >= t0) & (g.times <= t1)
+    flagged = np.array([bool(f) for f in t["flags"]] + [False] * len(left_out))
+    fig_w, fig_h = ncol * cell_in + 1.2, nrow * cell_in + 1.3
+    with house_style() as plt:
+        fig = plt.figure(figsize=(fig_w, fig_h))
+        ax = fig.add_axes((0.6 / fig_w, 0.5 / fig_h, ncol * cell_in / fig_w,
+                           nrow * cell_in / fig_h))
+        _well_backgrounds(ax, (nrow, ncol), rows, cols, flagged, n)
+        lw = 0.7 if ncol <= 12 else 0.45
+        ax.add_collection(PolyCollection(_window_boxes(x, inside, rows[:n], band),
+                                         facecolors=WINDOW, lw=0))
+        ax.plot(*_joined(*_thin(x, y, ok, int(cell_in * 0.8 * RC["savefig.dpi"]))),
+                color=PALETTE[0], lw=lw)
+        ax.add_collection(LineCollection(_slope_lines(analysis, g, (rows[:n], cols[:n]), tmin,
+                                                      tspan, (centre, span), pad, band),
+                                         colors=LINE, linewidths=1.2 * lw))
+        bad = ~g.usable & np.isfinite(g.times) & np.isfinite(g.values)
+        if bad.any():
+            ax.scatter(x[bad], y[bad], marker="x", s=6 if ncol <= 12 else 2, c=INK, lw=0.5)
+        if ncol <= 12:
+            _cell_labels(ax, t, rows, cols, left_out)
+        ax.set_xlim(0, ncol)
+        ax.set_ylim(nrow, 0)
+        ax.set_axis_off()
+        _plate_labels(ax, rlab, clab, 7 if ncol <= 24 else 5)
+        n_look = int(flagged.sum())
+        _fig_title(fig, (f"{title}: " if title else "") + f"{n} wells, time left to right, each "
+                   f"well scaled to its own change; green bar: window, orange line: initial "
+                   f"slope; shaded: needs a look ({n_look})" + (f"; grey: left out ({len(left_out)})"
+                                                          if left_out else ""), 0.6, fig_h - 0.5)
+        return save(fig, path, tight=False, compress_level=FAST_PNG)
+
+
+def _plate_labels(ax, rlab: list[str], clab: list[str], size: float) -> None:
+    """Row letters left of the plate and column numbers below it, as plain texts (cheaper
+    than tick labels, which matplotlib measures again and again)."""
+    for r, text in enumerate(rlab):
+        ax.text(-0.15, r + 0.5, text, ha="right", va="center", fontsize=size, clip_on=False)
+    for c, text in enumerate(clab):
+        ax.text(c + 0.5, len(rlab) + 0.08, text, ha="center", va="top", fontsize=size,
+                clip_on=False)
+
+
+def _fig_title(fig, text: str, left_in: float, bottom_in: float) -> None:
+    """A title at a fixed place (inches from the figure's left and bottom)."""
+    w, h = fig.get_size_inches()
+    fig.text(left_in / w, (bottom_in + 0.1) / h, text, fontsize=9, ha="left", va="bottom")
+
+
+def _cell_y(r0, v, centre, span, band):
+    """Values to y within a well's cell: the band (top, bottom) of the cell holds the well's
+    span around its centre, larger values higher."""
+    top, bottom = band
+    y = r0 + (top + bottom) / 2 - (bottom - top) * (v - centre) / span
+    return np.clip(y, r0 + top - 0.04, r0 + bottom + 0.005)
+
+
+def _slope_lines(analysis, g, cells, tmin, tspan, scale, pad, band):
+    """The reported initial slope of each well as a line over its window, in cell units.
+
+    The line passes through the mean of the window's readings (or, for a whole-curve estimate
+    without a window, starts at the first usable reading) with the reported raw slope."""
+    r0, c0 = cells
+    t = analysis.table
+    slope = (t["slope_A_per_min"].to_numpy(float) + _blank_offset(analysis)) / 60.0
+    t0, t1 = t["window_start_s"].to_numpy(float), t["window_end_s"].to_numpy(float)
+    ok = g.usable & np.isfinite(g.times)
+    times, values = np.where(ok, g.times, 0.0), np.where(ok, g.values, 0.0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sel = ok & (g.times >= t0[:, None]) & (g.times <= t1[:, None])
+        n_sel = sel.sum(axis=1)
+        has_window = np.isfinite(t0) & np.isfinite(t1) & (t1 > t0) & (n_sel > 0)
+        first = np.argmax(ok, axis=1)
+        k = np.arange(len(t))
+        tm = np.where(has_window, (times * sel).sum(axis=1) / n_sel, times[k, first])
+        ym = np.where(has_window, (values * sel).sum(axis=1) / n_sel, values[k, first])
+    ta = np.where(has_window, t0, tm)
+    tb = np.where(has_window, t1, tm + 0.25 * tspan)
+    keep = np.isfinite(slope) & ok.any(axis=1)
+    tt = np.column_stack([ta, tb])[keep]
+    xs = c0[keep, None] + pad + (1 - 2 * pad) * (tt - tmin) / tspan
+    ys = _cell_y(r0[keep, None], ym[keep, None] + slope[keep, None] * (tt - tm[keep, None]),
+                 scale[0][keep, None], scale[1][keep, None], band)
+    return np.stack([xs, ys], axis=-1)
+
+
+def _blank_offset(analysis) -> np.ndarray:
+    """What the blank correction took off each well's slope (A/min), to draw the raw slope."""
+    b = analysis.blank_info
+    t = analysis.table
+    if b.get("mode") != "slope" or b.get("slope_A_per_min") is None:
+        return np.zeros(len(t))
+    return np.where(t["role"].to_numpy() == "blank", 0.0, b["slope_A_per_min"])
+
+
+def _cell_labels(ax, t, rows, cols, left_out) -> None:
+    """Role and flags written small in each cell (96 wells or fewer)."""
+    short = {"blank": "blank", "positive": "+ ctrl", "negative": "- ctrl", "standard": "std"}
+    for k, rec in enumerate(t[["role", "flags"]].itertuples(index=False)):
+        text = short.get(rec.role, "")
+        if rec.flags:
+            text = (text + " " if text else "") + ",".join(rec.flags)
+        if text:
+            ax.text(cols[k] + 0.06, rows[k] + 0.1, text, fontsize=5.2, va="top", ha="left",
+                    color=PALETTE[1] if rec.flags else "#666666")
+    for k in range(len(left_out)):
+        i = len(t) + k
+        ax.text(cols[i] + 0.5, rows[i] + 0.5, "left out", fontsize=6, ha="center",
+                va="center", color="#666666")
+
+
+def well_pages(analysis, out, wells: list[str], stem: str = "rates",
+               per_page: int = 24) -> list[Path]:
+    """Pages of single wells, ``per_page`` to a page on a fixed grid: readings, masked readings
+    (x), the window (shaded), the reported initial slope (orange line), the whole-curve fit
+    (dotted) and the residuals of the slope line below (mAU), each well on its own scale with
+    its range written beside it. One Axes a page, drawn as collections."""
+    files = []
+    for page, start in enumerate(range(0, len(wells), per_page)):
+        files.append(_well_page(analysis, wells[start:start + per_page],
+                                Path(out) / f"{stem}_wells_{page + 1}.png"))
     return files
 
 
+class _Cells:
+    """Cell geometry of a well page: cell (row, col) spans [col, col+1] x [row, row+1], and
+    within it the main panel and the residual strip, in fractions of the cell."""
+
+    X0, X1 = 0.16, 0.97          # panel left and right
+    MAIN = (0.34, 0.80)          # main panel, bottom and top, from the cell's bottom
+    RES = (0.10, 0.28)           # residual strip
+
+    def __init__(self, row: int, col: int, tspan: tuple[float, float]):
+        self.row, self.col = row, col
+        self.t0, self.t1 = tspan
+
+    def x(self, t):
+        """Times (s) to page x."""
+        f = (np.asarray(t, float) - self.t0) / max(self.t1 - self.t0, 1e-12)
+        return self.col + self.X0 + (self.X1 - self.X0) * f
+
+    def y(self, v, lo: float, hi: float, band) -> np.ndarray:
+        """Values to page y within a band (bottom, top) of the cell, lo..hi spanning it."""
+        f = np.clip((np.asarray(v, float) - lo) / max(hi - lo, 1e-12), -0.02, 1.02)
+        return self.row + 1 - (band[0] + (band[1] - band[0]) * f)
+
+
+def _well_page(analysis, names: list[str], path: Path) -> Path:
+    from matplotlib.collections import LineCollection, PolyCollection
+
+    g = analysis.traces.grid()
+    table = analysis.table.set_index("trace")
+    cols = 6 if len(names) > 12 else min(4, len(names))
+    rows = math.ceil(len(names) / cols)
+    fig_w, fig_h = cols * 2.3, rows * 2.1 + 0.45
+    parts: dict[str, list] = {k: [] for k in ("dots", "grey", "bad", "res", "res_out", "shade",
+                                              "line", "curve", "zero", "frame", "text")}
+    for k, name in enumerate(names):
+        _draw_cell(parts, g, g.names.index(name), table.loc[name], analysis, k // cols,
+                   k % cols)
+    with house_style() as plt:
+        fig = plt.figure(figsize=(fig_w, fig_h))
+        ax = fig.add_axes((0, 0, 1, rows * 2.1 / fig_h))
+        ax.set_axis_off()
+        ax.set_xlim(0, cols)
+        ax.set_ylim(rows, 0)
+        ax.add_collection(PolyCollection(parts["shade"], facecolors=SHADE, alpha=0.12, lw=0))
+        ax.add_collection(PolyCollection(parts["frame"], facecolors="none", edgecolors=GRID,
+                                         lw=0.6))
+        ax.add_collection(LineCollection(parts["zero"], colors=INK, lw=0.5))
+        ax.add_collection(LineCollection(parts["curve"], colors=INK, lw=0.9, linestyles=":"))
+        ax.add_collection(LineCollection(parts["line"], colors=LINE, lw=1.2))
+        for key, colour, marker, size in (("dots", PALETTE[0], "o", 2.2),
+                                          ("grey", "#9a9a9a", "o", 2.0), ("res", PALETTE[0], "o", 1.6),
+                                          ("res_out", "#9a9a9a", "o", 1.6), ("bad", INK, "x", 6)):
+            if parts[key]:
+                xy = np.concatenate(parts[key])
+                ax.scatter(xy[:, 0], xy[:, 1], s=size, c=colour, marker=marker, lw=0.6 if
+                           marker == "x" else 0)
+        for x, y, text, kw in parts["text"]:
+            ax.text(x, y, text, **kw)
+        fig.text(0.5, 1 - 0.1 / fig_h, "readings (dots; x masked), window (shaded), initial "
+                 "slope (orange), whole-curve fit (dotted); below: residuals from the slope "
+                 "line (mAU)", ha="center", va="top", fontsize=8.5)
+        return save(fig, path, tight=False, compress_level=FAST_PNG)
+
+
+def _draw_cell(parts: dict, g, i: int, rec, analysis, row: int, col: int) -> None:
+    """Add one well's pieces to the page's collections (see :func:`well_pages`)."""
+    ok = g.usable[i]
+    t, y = g.times[i], g.values[i]
+    real = np.isfinite(t)
+    cell = _Cells(row, col, (float(np.nanmin(t)), float(np.nanmax(t))) if real.any()
+                  else (0.0, 1.0))
+    seen = real & np.isfinite(y)
+    src = ok if ok.any() else seen          # no usable reading: the masked ones set the scale
+    lo, hi = (float(np.min(y[src])), float(np.max(y[src]))) if src.any() else (0.0, 1.0)
+    pad = 0.06 * max(hi - lo, 1e-4)
+    lo, hi = lo - pad, hi + pad
+    main, res_band = _Cells.MAIN, _Cells.RES
+    parts["frame"] += [_box(cell, main), _box(cell, res_band)]
+    t0, t1 = rec["window_start_s"], rec["window_end_s"]
+    inside = ok & (t >= t0) & (t <= t1) if np.isfinite(t0) else np.zeros_like(ok)
+    parts["dots"].append(np.column_stack([cell.x(t[ok & inside]), cell.y(y[ok & inside], lo, hi,
+                                                                         main)]))
+    parts["grey"].append(np.column_stack([cell.x(t[ok & ~inside]),
+                                          cell.y(y[ok & ~inside], lo, hi, main)]))
+    bad = seen & ~ok
+    if bad.any():
+        parts["bad"].append(np.column_stack([cell.x(t[bad]), cell.y(y[bad], lo, hi, main)]))
+    slope = (rec["slope_A_per_min"] + _blank_offset_one(analysis, rec)) / 60.0
+    res_txt = ""
+    if np.isfinite(t0) and np.isfinite(t1) and inside.sum() >= 2 and np.isfinite(slope):
+        parts["shade"].append(_box(cell, main, cell.x(t0), cell.x(t1)))
+        tm, ym = t[inside].mean(), y[inside].mean()
+        tt = np.array([t0, t1])
+        parts["line"].append(np.column_stack([cell.x(tt), cell.y(ym + slope * (tt - tm), lo, hi,
+                                                                  main)]))
+        res = (y - (ym + slope * (t - tm))) * 1e3
+        r_max = max(float(np.max(np.abs(res[inside]))) * 1.15, 1e-3)
+        parts["res"].append(np.column_stack([cell.x(t[inside]),
+                                             cell.y(res[inside], -r_max, r_max, res_band)]))
+        parts["res_out"].append(np.column_stack([cell.x(t[ok & ~inside]), cell.y(
+            res[ok & ~inside], -r_max, r_max, res_band)]))
+        res_txt = f"±{r_max:.2g}"
+    parts["zero"].append(np.column_stack([cell.x([cell.t0, cell.t1]), [cell.row + 1 - sum(
+        res_band) / 2] * 2]))
+    curve = _curve_line(analysis.windows, g, i)
+    if curve is not None:
+        parts["curve"].append(np.column_stack([cell.x(curve[0]), cell.y(curve[1], lo, hi,
+                                                                        main)]))
+    _cell_texts(parts["text"], cell, rec, g.names[i], (lo + pad, hi - pad), res_txt)
+
+
+def _box(cell: _Cells, band, x0=None, x1=None):
+    """The corners of a band of a cell (optionally only from x0 to x1)."""
+    x0 = cell.col + _Cells.X0 if x0 is None else x0
+    x1 = cell.col + _Cells.X1 if x1 is None else x1
+    yb, yt = cell.row + 1 - band[0], cell.row + 1 - band[1]
+    return [(x0, yb), (x1, yb), (x1, yt), (x0, yt)]
+
+
+def _cell_texts(texts: list, cell: _Cells, rec, name: str, yrange, res_txt: str) -> None:
+    """Title, flags and the ranges of one cell, as (x, y, text, keywords)."""
+    flags = list(rec["flags"])
+    left, right = cell.col + _Cells.X0, cell.col + _Cells.X1
+    small = {"fontsize": 5.5, "color": "#555555"}
+    head = f"{name} ({rec['role']}, {rec['method']})" + ("\n" + ",".join(flags) if flags else "")
+    texts.append((left, cell.row + 0.03, head, {"fontsize": 6.5, "va": "top", "linespacing": 1.1,
+                                                "color": PALETTE[1] if flags else INK}))
+    top, bottom = cell.row + 1 - _Cells.MAIN[1], cell.row + 1 - _Cells.MAIN[0]
+    texts.append((left - 0.015, top, f"{yrange[1]:.3g} A", {**small, "ha": "right",
+                                                             "va": "center"}))
+    texts.append((left - 0.015, bottom, f"{yrange[0]:.3g}", {**small, "ha": "right",
+                                                            "va": "center"}))
+    if res_txt:
+        texts.append((left - 0.015, cell.row + 1 - sum(_Cells.RES) / 2, res_txt,
+                      {**small, "ha": "right", "va": "center"}))
+    span = (cell.t1 - cell.t0) / 60
+    texts.append((right, cell.row + 1 - 0.03, f"0 to {span:.3g} min", {**small, "ha": "right",
+                                                                        "va": "bottom"}))
+
+
+def _blank_offset_one(analysis, rec) -> float:
+    b = analysis.blank_info
+    if b.get("mode") != "slope" or b.get("slope_A_per_min") is None or rec["role"] == "blank":
+        return 0.0
+    return float(b["slope_A_per_min"])
+
+
+def _curve_line(w, g, i):
+    """The whole-curve fit of trace ``i`` as (times s, values), or None (no curve)."""
+    ok = g.usable[i]
+    if not np.isfinite(w.curve_slope[i]) or not ok.any():
+        return None
+    tt = np.linspace(float(np.nanmin(g.times[i][ok])), float(np.nanmax(g.times[i][ok])), 60)
+    return tt, w.curve_values(i, tt)
+
+
 def plate_heatmap(analysis, path):
-    """Plate map of rates (or slopes); flagged wells outlined. None if traces are not wells."""
-    import re
+    """Plate map of rates (or slopes); wells that need a look outlined. Numbers in the cells
+    of a 96-well plate (or smaller); beyond that a colour bar only. None if not a plate."""
+    from matplotlib.collections import PolyCollection
 
     t = analysis.table
-    if len(t) < 8:               # a few cuvettes named like wells are not a plate
+    setup = analysis.setup
+    fmt = setup.plate_format if setup is not None else None
+    if not fmt or len(t) < 8:
         return None
     col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
     unit = "µM/min" if col.startswith("rate") else "A/min"
-    wells = {}
-    for rec in t.to_dict("records"):
-        m = re.fullmatch(r"([A-Pa-p])(\d{1,2})", rec["trace"])
-        if not m:
-            return None
-        wells[(ord(m.group(1).upper()) - 65, int(m.group(2)) - 1)] = rec
-    nrow = 8 if max(r for r, _ in wells) < 8 and max(c for _, c in wells) < 12 else 16
-    ncol = 12 if nrow == 8 else 24
+    nrow, ncol, rows, cols, rlab, clab = plate_positions(list(t["trace"]), fmt)
     grid = np.full((nrow, ncol), np.nan)
-    for (r, c), rec in wells.items():
-        grid[r, c] = rec[col]
+    vals = t[col].to_numpy(float)
+    grid[rows, cols] = vals
+    cell = 0.62 if ncol <= 12 else (0.36 if ncol <= 24 else 0.22)
+    fig_w, fig_h = ncol * cell + 2.2, nrow * cell + 1.1
     with house_style() as plt:
-        fig, ax = plt.subplots(figsize=(0.62 * ncol + 1.6, 0.55 * nrow + 1.2))
-        im = ax.imshow(grid, cmap="viridis", aspect="equal")
+        fig = plt.figure(figsize=(fig_w, fig_h))
+        ax = fig.add_axes((0.5 / fig_w, 0.35 / fig_h, ncol * cell / fig_w, nrow * cell / fig_h))
+        cax = fig.add_axes(((0.7 + ncol * cell) / fig_w, 0.35 / fig_h, 0.15 / fig_w,
+                            nrow * cell / fig_h))
+        im = ax.imshow(grid, cmap="viridis", aspect="auto", extent=(0, ncol, nrow, 0),
+                       interpolation="nearest")
         ax.grid(False)
-        for (r, c), rec in wells.items():
-            v = rec[col]
-            txt = "-" if not np.isfinite(v) else f"{v:.3g}"
-            ax.text(c, r, txt, ha="center", va="center", fontsize=6.5 if ncol == 12 else 4.5,
-                    color="white" if np.isfinite(v) and v < np.nanmean(grid) else INK)
-            if rec["flags"]:
-                ax.add_patch(plt.Rectangle((c - 0.46, r - 0.46), 0.92, 0.92, fill=False,
-                                           ec=PALETTE[1], lw=1.2))
-        ax.set_xticks(range(ncol), [str(i + 1) for i in range(ncol)], fontsize=7)
-        ax.set_yticks(range(nrow), [chr(65 + i) for i in range(nrow)], fontsize=7)
-        ax.tick_params(length=0)
-        fig.colorbar(im, ax=ax, label=f"{col.split('_')[0]} ({unit})", shrink=0.8)
-        ax.set_title(f"{col.split('_')[0]} per well ({unit}); orange outline: flagged well")
-        return save(fig, path)
+        look = np.array([bool(f) for f in t["flags"]])
+        if look.any():
+            m = 0.06
+            boxes = [[(c + m, r + m), (c + 1 - m, r + m), (c + 1 - m, r + 1 - m),
+                      (c + m, r + 1 - m)] for r, c in zip(rows[look], cols[look], strict=True)]
+            ax.add_collection(PolyCollection(boxes, facecolors="none", edgecolors=PALETTE[1],
+                                             linewidths=1.4 if ncol <= 24 else 0.8))
+        if ncol <= 12:
+            mid = np.nanmean(grid)
+            for r, c, v in zip(rows, cols, vals, strict=True):
+                ax.text(c + 0.5, r + 0.5, "-" if not np.isfinite(v) else f"{v:.3g}",
+                        ha="center", va="center", fontsize=6.5,
+                        color="white" if np.isfinite(v) and v < mid else INK)
+        ax.set_axis_off()
+        _plate_labels(ax, rlab, clab, 7 if ncol <= 24 else 5)
+        fig.colorbar(im, cax=cax).set_label(f"{col.split('_')[0]} ({unit})", fontsize=8)
+        _fig_title(fig, f"{col.split('_')[0]} per well ({unit}); orange outline: needs a look",
+                   0.5, 0.35 + nrow * cell)
+        return save(fig, path, tight=False, compress_level=FAST_PNG)
 
 
-def replicate_plot(analysis, path):
-    """Each replicate group's wells as dots with mean ± SD; outliers marked."""
+def replicate_plot(analysis, path, most: int = 60):
+    """Each replicate group's wells as dots with mean ± SD of the wells kept; outliers ringed.
+    None when the plate has more than ``most`` groups (the replicate table says it all)."""
     reps = analysis.replicates
+    if reps.empty or len(reps) > most:
+        return None
     t = analysis.table.set_index("trace")
     col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
-    unit = reps["unit"].iloc[0]
+    unit = reps["unit"].iloc[0].replace("uM", "µM")
     n = len(reps)
+    value = t[col].to_dict()
+    outlier = {w for w, f in t["flags"].items() if "outlier" in f}
+    ks, xs, ring = [], [], []
+    for k, wells in enumerate(reps["wells"]):
+        for w in wells:
+            ks.append(k)
+            xs.append(value[w])
+            if w in outlier:
+                ring.append((value[w], k))
+    labels = [f"{g} (1:{d:g})" if d != 1 else str(g) for g, d in zip(reps["group"],
+                                                                     reps["dilution"],
+                                                                     strict=True)]
+    fig_h = max(2.5, 0.2 * n + 1.0)
     with house_style() as plt:
-        fig, ax = plt.subplots(figsize=(7.2, max(2.5, 0.22 * n + 1.0)))
-        for k, rec in enumerate(reps.to_dict("records")):
-            vals = t.loc[rec["wells"], col].to_numpy(dtype=float)
-            ax.plot(vals, np.full(vals.size, k), "o", ms=3.5, color=PALETTE[0], alpha=0.8)
-            if np.isfinite(rec["sd"]):
-                ax.errorbar(rec["mean"], k, xerr=rec["sd"], fmt="|", color=INK, ms=9, lw=1)
-            if rec["outlier"]:
-                ax.plot(t.loc[rec["outlier"], col], k, "o", ms=7, mfc="none", color=PALETTE[1])
-        ax.set_yticks(range(n), list(reps["group"]), fontsize=6.5)
-        ax.invert_yaxis()
+        fig = plt.figure(figsize=(7.4, fig_h))
+        ax = fig.add_axes((2.3 / 7.4, 0.55 / fig_h, 4.9 / 7.4, (fig_h - 0.95) / fig_h))
+        ax.scatter(xs, ks, s=12, color=PALETTE[0], alpha=0.8, lw=0)
+        sd = reps["sd"].to_numpy(float)
+        ax.errorbar(reps["mean"], np.arange(n), xerr=np.where(np.isfinite(sd), sd, 0), fmt="|",
+                    color=INK, ms=9, lw=1)
+        if ring:
+            rx, ry = zip(*ring, strict=True)
+            ax.scatter(rx, ry, s=55, facecolors="none", edgecolors=PALETTE[1], lw=1.2)
+        ax.set_yticks([])
+        ax.grid(False, axis="y")
+        ax.hlines(np.arange(n), 0, 1, transform=ax.get_yaxis_transform(), colors=GRID,
+                  lw=0.6, zorder=0)
+        for k, text in enumerate(labels):       # plain texts: cheaper than tick labels
+            ax.text(-0.02, k, text, transform=ax.get_yaxis_transform(), ha="right",
+                    va="center", fontsize=6.5)
+        ax.set_ylim(n - 0.5, -0.5)
         ax.set_xlabel(f"{col.split('_')[0]} ({unit})")
-        ax.set_title("replicates: wells (dots), mean ± SD (bars), Grubbs outlier (ring)")
-        return save(fig, path)
+        _fig_title(fig, "replicates: wells (dots), mean ± SD of the wells kept (bars), "
+                   "outliers (ringed)", 0.3, fig_h - 0.4)
+        return save(fig, path, tight=False, compress_level=FAST_PNG)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..fitting import fmt_pm
+from ..models import INHIBITION_MODELS
 from .style import GRID, INK, PALETTE, drawable, fixed_axes, house_style, save, unit_text
 
 
@@ -12,6 +13,14 @@ def _level_groups(data):
     if data.i is None:
         return [(None, np.ones(data.v.size, bool))]
     return [(lv, data.i == lv) for lv in np.unique(data.i)]
+
+
+def _model_x(best, xc, level):
+    """What the chosen model takes: [S], or [S] and [I] stacked for an inhibition model (a
+    one-substrate model fitted across inhibitor levels draws one curve for all of them)."""
+    if level is None or best.model not in INHIBITION_MODELS:
+        return xc
+    return np.vstack([xc, np.full_like(xc, level)])
 
 
 def _curve_x(s, log=False):
@@ -49,8 +58,9 @@ def saturation_fit(analysis, path, title: str = "rate vs substrate"):
                 col = PALETTE[k % len(PALETTE)]
                 lab = "data" if lv is None else f"[I] = {lv:g} {unit_text(d.inhib_unit)}"
                 ax.plot(d.s[sel], d.v[sel], "o", color=col, label=lab)
-                xx = xc if lv is None else np.vstack([xc, np.full_like(xc, lv)])
-                ax.plot(xc, func(xx, *vals), color=col, lw=1.4)
+                if k == 0 or best.model in INHIBITION_MODELS:
+                    ax.plot(xc, func(_model_x(best, xc, lv), *vals),
+                            color=col if best.model in INHIBITION_MODELS else INK, lw=1.4)
                 axr.plot(d.s[sel], (d.v - best.fitted)[sel], "o", color=col)
             axr.set_xlabel(f"[S] ({xu})")
         axr.axhline(0, color=INK, lw=0.8)
@@ -82,8 +92,7 @@ def linearised(analysis, path):
             col = PALETTE[k % len(PALETTE)]
             s, v = d.s[sel], d.v[sel]
             ok = (s > 0) & (v > 0)
-            xx = xc if lv is None else np.vstack([xc, np.full_like(xc, lv)])
-            vc = best.func(xx, *vals)
+            vc = best.func(_model_x(best, xc, lv), *vals)
             lab = None if lv is None else f"[I] = {lv:g} {unit_text(d.inhib_unit or '')}"
             axes[0].plot(1 / s[ok], 1 / v[ok], "o", color=col, label=lab)
             axes[0].plot(1 / xc, 1 / vc, color=col, lw=1.2)

@@ -177,24 +177,27 @@ def _keep_drawable(fig) -> None:
             t.set_text(drawable(s))
 
 
-def png_bytes(fig, tight: bool = True, dpi: float | None = None) -> bytes:
+def png_bytes(fig, tight: bool = True, dpi: float | None = None,
+              compress_level: int = 6) -> bytes:
     """A figure as PNG bytes, closed afterwards; text the house font cannot draw is replaced
     first (see :func:`drawable`). ``tight=False`` keeps the figure's own layout (one drawing pass
-    instead of two): use it with :func:`fixed_axes`."""
+    instead of two): use it with :func:`fixed_axes`. A lower ``compress_level`` (0-9, zlib)
+    writes faster and larger files."""
     import matplotlib.pyplot as plt
 
     _keep_drawable(fig)
     buf = io.BytesIO()
     try:
-        fig.savefig(buf, format="png", bbox_inches="tight" if tight else None, dpi=dpi)
+        fig.savefig(buf, format="png", bbox_inches="tight" if tight else None, dpi=dpi,
+                    pil_kwargs={"compress_level": compress_level})
     finally:
         plt.close(fig)
     return buf.getvalue()
 
 
-def save(fig, path: str | Path, tight: bool = True) -> Path:
+def save(fig, path: str | Path, tight: bool = True, compress_level: int = 6) -> Path:
     """Write a figure as PNG atomically and close it (see :func:`png_bytes`)."""
     from ..files import write_atomic
 
-    write_atomic(path, png_bytes(fig, tight))
+    write_atomic(path, png_bytes(fig, tight, compress_level=compress_level))
     return Path(path)

@@ -197,13 +197,36 @@ def grid_rss(times, Y, W, k, rho, lag) -> np.ndarray:
     return np.where(np.isfinite(rss) & (var_f > 1e-12 * np.maximum(sff, 1e-300)), rss, np.inf)
 
 
-def grid_optimum(member: str, times, Y, W, span: float) -> tuple[np.ndarray, np.ndarray]:
+#: A trace whose used readings lie further than this share of the span from the columns'
+#: representative times (its first readings masked, its own clock) gets a grid of its own.
+TIME_TOLERANCE = 0.005
+
+
+def grid_optimum(member: str, times, Y, W, span: float, T=None) -> tuple[np.ndarray, np.ndarray]:
     """(k, rho, L) of every trace for ``member`` from the grid, and the RSS there.
 
     Along one axis (``exp``: k; ``lag``: L) the optimum comes from a parabola through the best
     point and its neighbours; a member with two axes starts the polish (:func:`fit_member`)
-    from its best grid point.
+    from its best grid point. ``T`` (the traces' own times, like ``Y``) gives the traces whose
+    times differ from ``times`` a tabulation of their own, one per distinct clock.
     """
+    if T is not None:
+        own = np.where(W > 0, T, np.nan)
+        off = np.nanmax(np.abs(own - np.asarray(times)[None, :]), axis=1,
+                        initial=0.0) > TIME_TOLERANCE * span
+        if off.any():
+            shape, best = np.zeros((Y.shape[0], 3)), np.zeros(Y.shape[0])
+            share = ~off
+            if share.any():
+                shape[share], best[share] = grid_optimum(member, times, Y[share], W[share], span)
+            clocks, which = np.unique(np.round(np.nan_to_num(own[off], nan=-1.0), 9), axis=0,
+                                      return_inverse=True)
+            rows = np.nonzero(off)[0]
+            for c in range(clocks.shape[0]):
+                r = rows[which.ravel() == c]
+                shape[r], best[r] = grid_optimum(member, np.nan_to_num(T[r[0]]), Y[r], W[r],
+                                                 span)
+            return shape, best
     kappa, outer_name, outer = GRID[member]
     kk, oo = np.meshgrid(kappa, outer, indexing="xy")               # (n_outer, n_kappa)
     rho = oo if outer_name == "rho" else np.zeros_like(oo)
@@ -281,7 +304,7 @@ def fit_member(member: str, rows, T, Y, W, times, span: float, start=None) -> Me
     elif start is not None:
         shape = np.asarray(start, float)
     else:
-        shape, _ = grid_optimum(member, times, Y, W, span)
+        shape, _ = grid_optimum(member, times, Y, W, span, T)
     if len(MEMBERS[member]) == 4 and R:
         F = progress(T, 0.0, 1.0, *(shape[:, j:j + 1] for j in range(3)))
         start = np.column_stack([*_line_in_f(F, Y, W), shape])
@@ -406,7 +429,7 @@ def _lags(prep, out: dict, exp: MemberFit, line_rss, sigma2) -> np.ndarray:
     start = np.array(lag.params[:, 2:])
     if look.any():
         shape, grid_le = grid_optimum("lag-exp", prep.times, prep.Yc[rows[look]],
-                                      prep.W[rows[look]], prep.span)
+                                      prep.W[rows[look]], prep.span, prep.Tc[rows[look]])
         try_le[look] = take[look] | ((exp.rss[look] - grid_le) > (
             LAG_CHI2 + CURVED_CHI2 - LAG_SCREEN) * s2[look])
         start[look] = np.where((grid_le < lag.rss[look])[:, None], shape, start[look])
@@ -436,7 +459,7 @@ def _mm(prep, out: dict, exp: MemberFit, sigma2, exclude) -> None:
     # polished where some grid shape already does better than the exponential, or where the
     # exponential converts so much that its initial slope may be off by 1 % or more
     shape, grid_mm = grid_optimum("mm", prep.times, prep.Yc[exp.rows[sel]],
-                                  prep.W[exp.rows[sel]], prep.span)
+                                  prep.W[exp.rows[sel]], prep.span, prep.Tc[exp.rows[sel]])
     better = grid_mm < exp.rss[sel]
     keep = better | (conv[sel] > MM_SURE)
     start = np.where(better[:, None], shape, exp.params[sel, 2:])[keep]

@@ -59,13 +59,14 @@ def run_outputs(o, command: str, planned=()):
     return RunOutputs(command, inputs, out=out, report=report, planned=planned if out else ())
 
 
-def deliver(o, emit, view: View, name: str, plot=None, data=None) -> list[Path]:
+def deliver(o, emit, view: View, name: str, plot=None, data=None, page=None) -> list[Path]:
     """Print the view, write --out files and plots, and the --report page; returns the plots.
 
     ``o`` is the command's settings (its ``output`` part is used). ``plot(folder)`` draws the
     command's figures into a folder and returns their paths; with --report but no --out they are
     drawn into a temporary folder and embedded in the page. ``data(folder)`` writes any further
-    data files into --out. Everything is written through one :func:`run_outputs` for the run.
+    data files into --out. ``page(doc, pictures)`` builds the command's own report page (else
+    the generic one). Everything is written through one :func:`run_outputs` for the run.
     """
     import tempfile
 
@@ -82,8 +83,9 @@ def deliver(o, emit, view: View, name: str, plot=None, data=None) -> list[Path]:
         if out.report:
             from ..report import document_page
 
-            run.write(out.report, document_page(view.doc, pics, settings=o, csv_text=view.csv,
-                                                csv_name=f"{name}.csv"))
+            built = page(view.doc, pics) if page is not None else document_page(
+                view.doc, pics, settings=o, csv_text=view.csv, csv_name=f"{name}.csv")
+            run.write(out.report, built)
     return pics if out.out else []
 
 

@@ -1,54 +1,40 @@
-"""The ``rates`` command's view."""
+"""The ``rates`` command's view: what the plate analysis found, in the JSON document (every
+assumption in ``settings``), the table for a person (the assumptions in ``#`` lines above it),
+tidy CSV, the plate's figures and a report page that reads like a lab report.
+
+:func:`compute_rates` is the per-file entry point (it returns a :class:`~rateabs.views.View`).
+"""
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 
 import numpy as np
 
 from ..fitting import fmt_pm
-from ..options import RatesOptions
+from ..options import WELL_PAGE_CAP, RatesOptions
 from ..output import document, render_table, rows_to_csv, write_text
 from . import View, deliver, read_for
 
-RATE_FIELDS = ["trace", "role", "sample", "group", "method", "slope_A_per_min",
+RATE_FIELDS = ["trace", "role", "sample", "group", "method", "choice", "slope_A_per_min",
                "slope_A_per_min_se", "rate_uM_per_min", "rate_uM_per_min_se",
                "activity_U_per_mL", "activity_U_per_mL_se", "activity_nkat_per_mL",
                "activity_nkat_per_mL_se", "specific_activity_U_per_mg",
-               "specific_activity_U_per_mg_se", "window_start_s", "window_end_s", "n_points",
-               "r2", "lag_s", "window_end_reason", "curve_slope_A_per_min",
-               "curve_slope_A_per_min_se", "slope_raw_A_per_min", "noise_A", "substrate_uM",
-               "inhibitor_uM", "enzyme_nM", "flags"]
+               "specific_activity_U_per_mg_se", "turnover_per_s", "turnover_per_s_se",
+               "window_start_s", "window_end_s", "window_source", "n_points", "r2", "lag_s",
+               "window_end_reason", "curve_slope_A_per_min", "curve_slope_A_per_min_se",
+               "noise_A", "substrate_uM", "inhibitor_uM", "enzyme_nM", "dilution",
+               "dilution_source", "replicate_z", "masked_readings", "skipped_s", "flags"]
 
-
-def _plate_warning(o: RatesOptions, ts, settings) -> list[str]:
-    """A 1 cm pathlength assumed for what look like plate wells is said out loud."""
-    plate_like = len(ts.names) >= 8 and all(re.fullmatch(r"[A-Pa-p]\d{1,2}", n)
-                                            for n in ts.names)
-    if plate_like and o.pathlength is None and o.well_volume is None and settings.epsilon:
-        return ["the traces look like plate wells but no --pathlength or --well-volume was "
-                "given: a 1 cm pathlength is assumed"]
-    return []
-
-
-def _settings_json(o: RatesOptions, st, a, ts) -> dict:
-    return {"epsilon_M_per_cm": st.epsilon, "epsilon_se": st.epsilon_se,
-            "pathlength_cm": st.pathlength_cm, "pathlength_source": o.pathlength_source(),
-            "total_volume_L": st.total_volume_L, "sample_volume_L": st.sample_volume_L,
-            "protein_mg_per_mL": st.protein_mg_per_mL, "dilution": st.dilution,
-            "window": st.window if st.window == "auto" else list(st.window),
-            "min_points": st.min_points, "blank": a.blank_info,
-            "linear_limit": st.linear_limit, "noisy_rel_se": st.noisy_rel_se,
-            "slope_from": st.slope_from, "curve_fit": st.curve, "calibrate": st.calibrate,
-            "katal": st.katal, "layout": o.layout_file,
-            "time_unit": ts.info.get("time_unit"), "signal_kind": ts.info.get("signal_kind"),
-            "replicates": a.replicates.to_dict("records"), "z_prime": a.zprime,
-            "flag_meanings": _flag_meanings()}
+SD_NOTE = "* SD of the wells kept, or their typical own SE where that is larger"
+#: How the time unit was decided, in words (``TraceSet.info["time_unit_source"]``).
+_TIME_SOURCE = {"header": "from the header of column {col!r}", "option": "given by --time-unit",
+                "clock": "clock times h:mm:ss in column {col!r}",
+                "assumed": "assumed: column {col!r} names no unit"}
 
 
 def compute_rates(o: RatesOptions) -> View:
-    """Read, analyse and present one rates run."""
+    """Read, analyse and present one rates run (the per-file entry point)."""
     from ..layout import check_against, read_layout
     from ..rates import analyse_plate
 
@@ -59,105 +45,408 @@ def compute_rates(o: RatesOptions) -> View:
     if o.layout_file:
         layout = read_layout(o.layout_file)
         warnings += check_against(layout, ts.names, o.file)
-    warnings += _plate_warning(o, ts, st)
     a = analyse_plate(ts, layout, st)
+    warnings += _assumed_pathlength(a)
     warnings += a.warnings
-    results = [{k: rec[k] for k in RATE_FIELDS if k in rec} for rec in a.table.to_dict("records")]
+    results = [_result(rec) for rec in a.table.to_dict("records")]
     doc = document("rates", [o.file] + ([o.layout_file] if o.layout_file else []),
-                   _settings_json(o, st, a, ts), results, warnings)
-    return View(doc, rates_table(a), rows_to_csv(results, [f for f in RATE_FIELDS if any(
-        f in r for r in results)]), a)
+                   settings_json(o, a, ts.info), results, warnings)
+    head = "\n".join(header_lines(o, a, ts.info)) + "\n\n"
+    csv_cols = [f for f in RATE_FIELDS if any(f in r for r in results)]
+    return View(doc, head + rates_table(a), rows_to_csv([_csv_row(r) for r in results],
+                                                        csv_cols), a)
 
 
-def _flag_meanings():
+def _result(rec: dict) -> dict:
+    return {k: rec[k] for k in RATE_FIELDS if k in rec}
+
+
+def _csv_row(r: dict) -> dict:
+    """A result for CSV: the masked readings as ``reason:count`` words."""
+    row = dict(r)
+    row["masked_readings"] = [f"{k}:{v}" for k, v in (r.get("masked_readings") or {}).items()]
+    return row
+
+
+def _assumed_pathlength(a) -> list[str]:
+    """A 1 cm pathlength assumed for plate wells is said out loud (with how to fix it)."""
+    s = a.setup
+    if s.plate_format and s.pathlength_source.startswith("assumed") and a.settings.epsilon:
+        return ["the traces are plate wells but no --pathlength or --well-volume was given and "
+                "the file states no pathlength: a 1 cm pathlength is assumed"]
+    return []
+
+
+# --------------------------------------------------------------------------- assumptions
+
+
+def time_words(info: dict) -> str:
+    """The time unit and where it came from, in words."""
+    unit, src = info.get("time_unit"), info.get("time_unit_source")
+    if not unit:
+        return "s (traces given in seconds)"
+    how = _TIME_SOURCE.get(src, src or "").format(col=info.get("time_column") or "time")
+    return f"{'s' if unit == 'clock' else unit} ({how})"
+
+
+def _epsilon_words(o: RatesOptions, a) -> str:
+    st = a.settings
+    cal = a.blank_info.get("calibration")
+    if cal:
+        return (f"standard curve of {cal['n_standards']} standards: "
+                f"{fmt_pm(cal['slope_A_per_M'] * 1e-6, cal['slope_se'] * 1e-6, unit='A per uM')}"
+                " (epsilon x pathlength)")
+    if not st.epsilon:
+        return "none: slopes stay in A/min"
+    src = f"--chromophore {o.chromophore}" if o.chromophore else "--epsilon"
+    se = f" ± {st.epsilon_se:g}" if st.epsilon_se else ""
+    return f"{st.epsilon:g}{se} M^-1 cm^-1 ({src})"
+
+
+def _counts(values) -> str:
+    out: dict = {}
+    for v in values:
+        out[v] = out.get(v, 0) + 1
+    return ", ".join(f"{k} {n}" for k, n in out.items())
+
+
+def _list(names: list, most: int = 8) -> str:
+    return ", ".join(names[:most]) + (f" and {len(names) - most} more" if len(names) > most
+                                      else "")
+
+
+def overrides(a) -> list[str]:
+    """What the user set for single wells, one line each (window, skipped wells, readings)."""
+    s = a.setup
+    lines = []
+    for n, src in s.wells["window_source"].items():
+        if src in ("--well-window", "plate map"):
+            w = s.wells.loc[n, "window"]
+            lines.append(f"{n}: window {'automatic' if w == 'auto' else f'{w[0]:g}-{w[1]:g} s'}"
+                         f" ({src})")
+    lines += [f"{n}: left out ({src})" for n, src in s.skipped_wells.items()]
+    for n, skips in s.wells["skip"].items():
+        if skips:
+            lines.append(f"{n}: reading(s) at {', '.join(f'{t:g}' for t, _ in skips)} s left "
+                         f"out ({_counts(src for _, src in skips)})")
+    return lines
+
+
+def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
+    """The assumptions of the run, one ``#`` line each, above the table."""
+    s, st, t = a.setup, a.settings, a.table
+    fmt = f"{s.plate_format}-well plate ({s.plate_source})" if s.plate_format else (
+        "not a plate: traces are not named as wells")
+    blanks = a.blank_info.get("wells", [])
+    lines = [f"rates of {Path(o.file).name}: {len(t)} wells analysed",
+             f"time unit: {time_words(info)}",
+             f"plate: {fmt}",
+             f"pathlength: {s.pathlength_cm:.4g} cm, {s.pathlength_source}",
+             f"conversion: {_epsilon_words(o, a)}",
+             f"blanks: {_list(blanks)} ({a.blank_info['mode']} subtracted)" if blanks else
+             "blanks: none marked, nothing subtracted",
+             f"assay direction: the signal goes {a.blank_info.get('direction')}",
+             f"initial slope: {_counts(t['method'])} (estimator {st.slope_from})"]
+    if st.total_volume_L:
+        lines.append(f"activity: {st.total_volume_L * 1e6:g} uL reaction, "
+                     f"{st.sample_volume_L * 1e6:g} uL sample; dilution: "
+                     + _counts(t.loc[t["role"] != "blank", "dilution_source"]) + " wells")
+    lines += [f"set for single wells: {x}" for x in overrides(a)]
+    look = a.needs_look
+    lines.append(f"{len(look)} well(s) need a look: {_list(look)}" if look else
+                 "no well needs a look")
+    return [f"# {x}" for x in lines]
+
+
+def settings_json(o: RatesOptions, a, info: dict) -> dict:
+    """The ``settings`` of the JSON document: every assumption with its source."""
+    s, st, t = a.setup, a.settings, a.table
+    return {
+        "time_unit": info.get("time_unit") or "s", "time_unit_source": info.get(
+            "time_unit_source") or "given", "time_column": info.get("time_column"),
+        "time_unit_in_words": time_words(info),
+        "plate_format": s.plate_format, "plate_format_source": s.plate_source,
+        "pathlength_cm": s.pathlength_cm, "pathlength_source": s.pathlength_source,
+        "epsilon_M_per_cm": st.epsilon, "epsilon_se": st.epsilon_se,
+        "conversion": _epsilon_words(o, a),
+        "total_volume_L": st.total_volume_L, "sample_volume_L": st.sample_volume_L,
+        "protein_mg_per_mL": st.protein_mg_per_mL,
+        "dilution": {"option": st.dilution, "wells_by_source": _source_counts(
+            t.loc[t["role"] != "blank", "dilution_source"])},
+        "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"])},
+        "window": st.window if st.window == "auto" else list(st.window),
+        "min_points": st.min_points, "blank": a.blank_info,
+        "linear_limit": st.linear_limit, "noisy_rel_se": st.noisy_rel_se,
+        "curve_fit": st.curve, "calibrate": st.calibrate, "katal": st.katal,
+        "layout": o.layout_file, "signal_kind": info.get("signal_kind"),
+        "overrides": overrides(a), "outlier_test": a.outlier_method,
+        "needs_look": a.needs_look, "replicates": a.replicates.to_dict("records"),
+        "activity": a.activity.to_dict("records"), "z_prime": a.zprime,
+        "flag_meanings": flag_meanings(), "activity_flag_meanings": _activity_flags(),
+    }
+
+
+def _source_counts(values) -> dict:
+    out: dict = {}
+    for v in values:
+        out[str(v)] = out.get(str(v), 0) + 1
+    return out
+
+
+def flag_meanings() -> dict:
+    """Every per-well flag and what it means."""
     from ..rates import FLAGS
-    from ..traces import READING_FLAGS
 
-    return {**FLAGS, **{k: v for k, v in READING_FLAGS.items() if k != "missing"}}
+    return dict(FLAGS)
 
 
-def rates_table(a) -> str:
-    """Per-trace table, replicate summary, Z' and blank line, for a person."""
+def _activity_flags() -> dict:
+    from ..rates import ACTIVITY_FLAGS
+
+    return dict(ACTIVITY_FLAGS)
+
+
+# --------------------------------------------------------------------------- tables
+
+
+def _window_cell(r: dict) -> str:
+    if not np.isfinite(r["window_start_s"]):
+        return "-"
+    text = f"{r['window_start_s']:g}-{r['window_end_s']:g}"
+    return text + (" set" if r["window_source"] in ("--well-window", "plate map") else "")
+
+
+def well_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
+    """The per-well table for a person: value ± SE rounded to the SE, units in the headers."""
     t = a.table
-    conc = "rate_uM_per_min" in t.columns
+    opt = [("rate", "rate_uM_per_min", "rate (uM/min)"),
+           ("act", "activity_U_per_mL", "activity (U/mL)"),
+           ("kat", "activity_nkat_per_mL", "activity (nkat/mL)"),
+           ("spec", "specific_activity_U_per_mg", "specific (U/mg)"),
+           ("turn", "turnover_per_s", "v/[E] (1/s)")]
     rows = []
     for r in t.to_dict("records"):
         row = {"trace": r["trace"], "role": r["role"], "sample": r["sample"] or "-",
-               "slope": fmt_pm(r["slope_A_per_min"], r["slope_A_per_min_se"], 5),
-               "window": (f"{r['window_start_s']:g}-{r['window_end_s']:g}"
-                          if np.isfinite(r["window_start_s"]) else "-"),
-               "n": r["n_points"], "r2": r["r2"], "flags": ",".join(r["flags"]) or "-"}
-        if conc:
-            row["rate"] = fmt_pm(r["rate_uM_per_min"], r["rate_uM_per_min_se"], 4)
-        if "activity_U_per_mL" in r and np.isfinite(r.get("activity_U_per_mL", np.nan)):
-            row["act"] = fmt_pm(r["activity_U_per_mL"], r["activity_U_per_mL_se"], 4)
-        if np.isfinite(r.get("specific_activity_U_per_mg", np.nan)):
-            row["spec"] = fmt_pm(r["specific_activity_U_per_mg"], r["specific_activity_U_per_mg_se"], 4)
+               "slope": fmt_pm(r["slope_A_per_min"], r["slope_A_per_min_se"]),
+               "window": _window_cell(r), "n": r["n_points"], "how": r["method"],
+               "flags": ",".join(r["flags"]) or "-"}
+        for key, col, _ in opt:
+            if col in r:
+                row[key] = fmt_pm(r[col], r[col + "_se"])
         rows.append(row)
-    cols = [("trace", "trace"), ("role", "role"), ("sample", "sample"),
+    cols = [("trace", "well"), ("role", "role"), ("sample", "sample"),
             ("slope", "slope (A/min)")]
-    if conc:
-        cols.append(("rate", "rate (uM/min)"))
-    if any("act" in r for r in rows):
-        cols.append(("act", "activity (U/mL)"))
-    if any("spec" in r for r in rows):
-        cols.append(("spec", "specific (U/mg)"))
-    cols += [("window", "window (s)"), ("n", "n"), ("r2", "r2"), ("flags", "flags")]
-    text = render_table(rows, cols)
-    if not a.replicates.empty:
-        reps = a.replicates.copy()
-        reps["sub"] = reps["substrate_uM"]
-        unit = reps["unit"].iloc[0]
-        text += "\n" + render_table(
-            reps.to_dict("records"),
-            [("group", "replicate group"), ("n", "n"), ("mean", f"mean ({unit})"),
-             ("sd", f"SD ({unit})"), ("cv_pct", "CV (%)"), ("outlier", "outlier")])
+    cols += [(key, head) for key, col, head in opt if col in t.columns
+             and np.isfinite(t[col].to_numpy(float)).any()]
+    cols += [("window", "window (s)"), ("n", "n"), ("how", "how"), ("flags", "flags")]
+    return rows, cols
+
+
+def replicate_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
+    """The replicate table: mean ± SD of the wells kept, CV, outliers left out."""
+    reps = a.replicates
+    if reps.empty:
+        return [], []
+    unit = reps["unit"].iloc[0]
+    rows = [{"group": r["group"], "dil": _dil(r["dilution"]), "n": f"{r['n_used']}/{r['n']}",
+             "mean": fmt_pm(r["mean"], _spread(r["sd"], r["well_se"])),
+             "cv": _fix(r["cv_pct"], 1),
+             "out": "; ".join(r["left_out"]) or "-"} for r in reps.to_dict("records")]
+    return rows, [("group", "replicate group"), ("dil", "dilution"), ("n", "n used"),
+                  ("mean", f"mean ± SD* ({unit})"), ("cv", "CV (%)"), ("out", "left out")]
+
+
+def activity_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
+    """The per-sample activity summary: mean ± SD over replicates and dilutions."""
+    act = a.activity
+    if act.empty:
+        return [], []
+    opt = [("act", "activity_U_per_mL", "activity (U/mL)"),
+           ("kat", "activity_nkat_per_mL", "activity (nkat/mL)"),
+           ("spec", "specific_activity_U_per_mg", "specific (U/mg)"),
+           ("turn", "turnover_per_s", "v/[E] (1/s)")]
+    rows = []
+    for r in act.to_dict("records"):
+        row = {"sample": r["sample"], "s": _fix(r["substrate_uM"], None),
+               "i": _fix(r["inhibitor_uM"], None), "dil": ", ".join(_dil(d) for d in
+                                                                    r["dilutions"]) or "-",
+               "n": f"{r['n_used']}/{r['n_wells']}", "check": r["dilution_check"],
+               "out": "; ".join(r["left_out"]) or "-"}
+        for key, col, _ in opt:
+            if col in r:
+                row[key] = fmt_pm(r[col], _spread(r.get(f"{col}_sd"), r.get(f"{col}_well_se")))
+        rows.append(row)
+    cols = [("sample", "sample"), ("s", "[S] (uM)"), ("i", "[I] (uM)"), ("dil", "dilutions"),
+            ("n", "n used")]
+    cols += [(key, f"{head} mean ± SD*") for key, col, head in opt if col in act.columns
+             and act[col].notna().any()]
+    cols += [("check", "dilution linearity"), ("out", "left out")]
+    return rows, cols
+
+
+def _spread(sd, well_se):
+    """The ± shown beside a mean: the SD of the wells, or their own typical SE where that is
+    larger (two wells that happen to agree cannot show a spread finer than each was measured)."""
+    vals = [x for x in (sd, well_se) if x is not None and np.isfinite(x)]
+    return max(vals) if vals else None
+
+
+def _dil(d) -> str:
+    return "undiluted" if d == 1 else f"1:{d:g}"
+
+
+def _fix(x, places) -> str:
+    if x is None or not np.isfinite(x):
+        return "-"
+    return f"{x:g}" if places is None else f"{x:.{places}f}"
+
+
+def rates_table(a) -> str:
+    """Per-well table, replicates, activity, blanks, Z' and the meaning of each flag shown."""
+    text = render_table(*well_rows(a))
+    for title, (rows, cols) in (("replicates (outliers left out of the mean)", replicate_rows(a)),
+                                ("activity per sample, over replicates and dilutions",
+                                 activity_rows(a))):
+        if rows:
+            text += f"\n{title}\n" + render_table(rows, cols) + SD_NOTE + "\n"
     b = a.blank_info
     if b.get("wells"):
         text += (f"\nblanks: {len(b['wells'])} wells, mean slope "
-                 f"{fmt_pm(b.get('slope_A_per_min'), b.get('slope_A_per_min_se'), 3, 'A/min')}"
+                 f"{fmt_pm(b.get('slope_A_per_min'), b.get('slope_A_per_min_se'), unit='A/min')}"
                  f", subtracted as {b['mode']}\n")
-    text += f"assay direction: signal goes {b.get('direction')}\n"
-    if b.get("calibration"):
-        c = b["calibration"]
-        text += (f"standard curve: {c['n_standards']} standards, "
-                 f"{fmt_pm(c['slope_A_per_M'] * 1e-6, c['slope_se'] * 1e-6, 4, 'A per uM')} "
-                 "(epsilon x b), used to convert slopes\n")
     if a.zprime:
-        z = a.zprime
-        text += (f"Z' = {z['value']:.3f} ({z['verdict']}; {z['n_positive']} positive, "
-                 f"{z['n_negative']} negative controls)\n")
+        text += f"{zprime_words(a.zprime)}\n"
+    shown = flags_shown(a)
+    if shown:
+        text += "\nflags (each: this number may be wrong, because ...)\n" + "".join(
+            f"  {k}: {v}\n" for k, v in shown.items())
     return text
 
 
+def zprime_words(z: dict) -> str:
+    """Z' in words with the controls it came from."""
+    return (f"Z' = {z['value']:.2f} ({z['verdict']}; {z['n_positive']} positive controls at "
+            f"{fmt_pm(z['mean_positive'], z['sd_positive'])}, {z['n_negative']} negative at "
+            f"{fmt_pm(z['mean_negative'], z['sd_negative'])} {z['unit']}, mean ± SD; "
+            "Zhang, Chung & Oldenburg 1999)")
+
+
+def flags_shown(a) -> dict:
+    """The meaning of each flag that occurs on this plate (wells, then activity rows)."""
+    from ..rates import ACTIVITY_FLAGS, FLAGS
+
+    words = {w for f in a.table["flags"] for w in f}
+    if not a.activity.empty:
+        words |= {w for f in a.activity["flags"] for w in f}
+    return {k: v for k, v in {**FLAGS, **ACTIVITY_FLAGS}.items() if k in words}
+
+
+# --------------------------------------------------------------------------- files
+
+
 def write_replicates(view: View, out: str | Path, stem: str = "rates") -> None:
-    """The replicate summary of a rates run as CSV in ``out``."""
+    """The replicate and activity summaries of a rates run as CSV in ``out``."""
     a = view.analysis
-    if not a.replicates.empty:
-        reps = a.replicates.copy()
-        reps["wells"] = reps["wells"].apply(";".join)
-        write_text(out, f"{stem}_replicates.csv",
-                   rows_to_csv(reps.to_dict("records"), list(reps.columns)))
+    for name, frame in (("replicates", a.replicates), ("activity", a.activity)):
+        if frame.empty:
+            continue
+        recs = frame.to_dict("records")
+        write_text(out, f"{stem}_{name}.csv", rows_to_csv(recs, list(frame.columns)))
 
 
-def rate_plots(view: View, out: str | Path, stem: str = "rates") -> list[Path]:
-    """Trace pages, plate heat map and replicate plot of a rates run, into ``out``."""
-    from ..plots import plate_heatmap, rate_traces, replicate_plot
+def detail_wells(a, choice: str) -> list[str]:
+    """The wells that get a page of their own: those that need a look (at most
+    :data:`~rateabs.options.WELL_PAGE_CAP`), every well, or none."""
+    if choice == "all":
+        return list(a.table["trace"])
+    if choice == "none":
+        return []
+    return a.needs_look[:WELL_PAGE_CAP]
+
+
+def rate_plots(view: View, out: str | Path, stem: str = "rates",
+               well_pages: str = "flagged", title: str = "") -> list[Path]:
+    """The plate at a glance, the rate map, the replicates and single-well pages, into ``out``."""
+    from ..plots.rates import plate_heatmap, plate_overview, replicate_plot
+    from ..plots.rates import well_pages as draw_pages
 
     out = Path(out)
     a = view.analysis
-    files = list(rate_traces(a, out, stem))
-    p = plate_heatmap(a, out / f"{stem}_plate.png")
-    if p:
-        files.append(p)
-    if not a.replicates.empty:
-        files.append(replicate_plot(a, out / f"{stem}_replicates.png"))
+    files = [plate_overview(a, out / f"{stem}_plate_overview.png", title)]
+    files += [p for p in (plate_heatmap(a, out / f"{stem}_plate.png"),
+                          replicate_plot(a, out / f"{stem}_replicates.png")) if p]
+    files += draw_pages(a, out, detail_wells(a, well_pages), stem)
     return files
+
+
+# --------------------------------------------------------------------------- report
+
+
+def report_page(view: View, pictures: list[Path], o: RatesOptions) -> str:
+    """The rates report: the plate at a glance, what was assumed, Z', the activity and
+    replicate tables, the wells that need a look, and what each flag means."""
+    from .. import report as rp
+
+    a, doc = view.analysis, view.doc
+    pics = {Path(p).name: p for p in pictures}
+    stem = "rates"
+    look = a.needs_look
+    summary = [("wells analysed", len(a.table)), ("need a look", f"{len(look)}: {_list(look, 30)}"
+                                                  if look else "none")]
+    if a.zprime:
+        summary.append(("Z'", zprime_words(a.zprime)))
+    sections = [("At a glance", rp.kv(summary) + rp.img(pics.get(f"{stem}_plate_overview.png"),
+                                                         "every well in plate geometry")
+                 + rp.img(pics.get(f"{stem}_plate.png"), "rate per well")),
+                ("What was assumed", rp.kv([(line[2:].split(":")[0], line[2:].split(":", 1)[1])
+                                            for line in header_lines(o, a, a.traces.info)[1:]
+                                            if ":" in line]))]
+    for title, (rows, cols) in (("Activity per sample", activity_rows(a)),
+                                ("Replicates", replicate_rows(a))):
+        if rows:
+            sections.append((title, rp.table(rows, cols)))
+    if pics.get(f"{stem}_replicates.png"):
+        sections.append(("", rp.img(pics[f"{stem}_replicates.png"], "replicates")))
+    sections.append(("Wells", _well_section(a, doc, rp)))
+    pages = [p for name, p in sorted(pics.items()) if name.startswith(f"{stem}_wells_")]
+    if pages:
+        sections.append(("Wells that need a look" if o.well_pages == "flagged" else "Every well",
+                         "".join(rp.img(p, Path(p).stem.replace("_", " ")) for p in pages)))
+    shown = flags_shown(a)
+    if shown:
+        sections.append(("What each flag means", rp.kv(list(shown.items()))))
+    if doc["warnings"]:
+        sections.append(("Warnings", rp.notes(doc["warnings"])))
+    return rp.page(f"Initial rates: {Path(o.file).name}", f"rates of {', '.join(doc['inputs'])}",
+                   sections)
+
+
+def _well_section(a, doc, rp) -> str:
+    """The key per-well table (wells that need a look first when the plate is large) and the
+    full table as a CSV download."""
+    import base64
+
+    rows, cols = well_rows(a)
+    note = ""
+    if len(rows) > 96:
+        keep = set(a.needs_look)
+        rows = [r for r in rows if r["trace"] in keep][:200]
+        note = rp.notes([f"{len(a.table)} wells: only the {len(rows)} that need a look are "
+                         "listed; the full table is in the CSV below"], "ok")
+    csv_cols = [f for f in RATE_FIELDS if any(f in r for r in doc["results"])]
+    data = base64.b64encode(rows_to_csv([_csv_row(r) for r in doc["results"]],
+                                        csv_cols).encode()).decode("ascii")
+    link = (f'<p><a download="rates.csv" href="data:text/csv;base64,{data}">the full table '
+            f"({len(a.table)} wells, every column) as CSV</a></p>")
+    return note + (rp.table(rows, cols) if rows else "") + link
 
 
 def run_rates(o: RatesOptions, emit) -> View:
     """The ``rates`` command: compute, print in the chosen format, write files into --out."""
     view = compute_rates(o)
-    deliver(o, emit, view, "rates", lambda folder: rate_plots(view, folder),
-            data=lambda folder: write_replicates(view, folder))
+    title = Path(o.file).name
+    deliver(o, emit, view, "rates",
+            lambda folder: rate_plots(view, folder, well_pages=o.well_pages, title=title),
+            data=lambda folder: write_replicates(view, folder),
+            page=lambda doc, pics: report_page(view, pics, o))
     return view

@@ -1,0 +1,224 @@
+"""The plate's stages one at a time: replicate outliers, the blank level, the dilution check,
+per-well windows and skipped readings, the map's cells, Z' and the conversion."""
+
+import json
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from scipy import stats
+
+from rateabs.cli import main
+from rateabs.layout import read_layout
+from rateabs.rates import (
+    RateSettings,
+    analyse_plate,
+    blank_level,
+    dilution_trend,
+    replicate_outliers,
+    z_factor,
+)
+from rateabs.slopes import find_windows
+from rateabs.traces import TraceSet
+
+T = np.arange(0, 601, 20.0)
+
+
+def _cli(*args):
+    return CliRunner().invoke(main, ["rates", *map(str, args)])
+
+
+def _plate_csv(path, slopes: dict, noise=0.001, seed=0, header=(), first=None):
+    """A wide export, one column per well, straight lines of the given slopes (A/min)."""
+    rng = np.random.default_rng(seed)
+    names = list(slopes)
+    rows = list(header) + ["Time (s)," + ",".join(names)]
+    for k, t in enumerate(T):
+        cells = [f"{0.2 + slopes[n] * t / 60 + rng.normal(0, noise):.5f}" for n in names]
+        if first:
+            cells = ["OVER" if (names[j] in first and k < 2) else c for j, c in enumerate(cells)]
+        rows.append(f"{t:g}," + ",".join(cells))
+    path.write_text("\n".join(rows) + "\n")
+    return path
+
+
+# --------------------------------------------------------------------------- outliers
+
+
+def test_duplicates_that_disagree_are_both_flagged():
+    # twelve pairs with 2 % scatter and one pair 40 % apart: neither can be told right
+    rng = np.random.default_rng(3)
+    means = np.repeat(np.linspace(1, 5, 12), 2)
+    x = means * (1 + rng.normal(0, 0.02, means.size))
+    x[-1] *= 1.4
+    keys = np.repeat(np.arange(12), 2)
+    z, out, how = replicate_outliers(x, np.full(x.size, 0.01), keys)
+    assert how.startswith("pooled") and list(np.nonzero(out)[0]) == [22, 23]
+    assert min(z[22], z[23]) > 3.5 and np.nanmax(z[:22]) < 3.5
+
+
+def test_a_well_at_four_and_a_half_z_is_flagged_and_clean_groups_are_not():
+    # issue 11: wells that really were wrong (|z| up to 5) carried no flag
+    rng = np.random.default_rng(11)
+    n_groups, n = 60, 4
+    means = np.repeat(rng.uniform(1, 10, n_groups), n)
+    se = 0.01 * means
+    x = means + rng.normal(0, 1, means.size) * se          # scatter = their own SE only
+    keys = np.repeat(np.arange(n_groups), n)
+    z, out, _ = replicate_outliers(x, se, keys)
+    assert out.sum() <= 1                                    # P(|z| > 3.5) ~ 5e-4 a well
+    x[5] = means[5] + 4.5 * se[5] * np.sqrt(1 + 1 / 3)       # 4.5 z from the mean of 3 others
+    z, out, _ = replicate_outliers(x, se, keys)
+    assert out[5] and z[5] == pytest.approx(4.5, abs=1.2)
+
+
+def test_without_enough_groups_to_pool_grubbs_decides():
+    # published: Grubbs (1969) two-sided 5 % critical value for n = 5 is 1.715 (Table 1)
+    x = np.array([10.0, 10.1, 9.9, 10.05, 12.0])
+    z, out, how = replicate_outliers(x, np.full(5, 0.05), np.zeros(5))
+    assert how.startswith("Grubbs") and out[4] and z[4] > 1.715
+
+
+# --------------------------------------------------------------------------- blanks
+
+
+def test_the_blank_level_weights_by_precision_and_leaves_a_drifting_blank_out():
+    slope = np.array([1e-4, -1e-4, 0.0, 5e-5, 5e-3, 0.02, 0.5])
+    se = np.array([8e-5, 8e-5, 8e-5, 8e-5, 2e-3, 8e-5, 0.01])
+    is_blank = np.array([True] * 6 + [False])
+    b = blank_level(slope, se, is_blank)
+    # a poorly determined blank (5e-3 +/- 2e-3) moves the 1/SE^2-weighted mean by < 1e-5;
+    # a blank drifting at 0.02 with a precise slope is 250 SE from the others: left out
+    assert list(np.nonzero(b["left_out"])[0]) == [5]
+    w = 1 / se[:5] ** 2
+    assert b["level"] == pytest.approx(np.sum(w * slope[:5]) / np.sum(w))
+    assert abs(b["level"]) < 5e-5 and not b["kept"][6]
+
+
+# --------------------------------------------------------------------------- dilution check
+
+
+def test_dilution_trend_is_scipy_linregress_on_log2_dilution():
+    d = np.repeat([5.0, 10, 20, 40], 3)
+    act = np.array([1.0, 1.02, 0.98, 1.1, 1.12, 1.09, 1.2, 1.22, 1.19, 1.3, 1.31, 1.29])
+    r = dilution_trend(d, act)
+    lr = stats.linregress(np.log2(d), act)                   # reference library
+    assert r["dilution_trend_p"] == pytest.approx(lr.pvalue, rel=1e-9)
+    assert r["dilution_trend_pct"] == pytest.approx(100 * lr.slope / act.mean())
+    assert r["flags"] == ["dilution-trend"]
+    flat = dilution_trend(d, np.tile([1.0, 1.02, 0.98], 4))
+    assert flat["flags"] == [] and flat["dilution_check"].endswith("flat")
+    assert dilution_trend(np.full(4, 5.0), act[:4])["dilution_check"] == (
+        "not tested (one dilution)")
+
+
+# --------------------------------------------------------------------------- map and overrides
+
+
+def test_map_cells_give_windows_skips_dilutions_and_groups(tmp_path):
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "A2": 0.03, "A3": 0.03, "A4": 0.0})
+    mp = tmp_path / "map.csv"
+    mp.write_text("well,role,sample,dilution,group,window,skip\nA1,sample,X,10,,60-300,\n"
+                  "A2,sample,X,,,,120; 140\nA3,sample,X,10,mine,,\nA4,blank,buffer,,,,\n")
+    lay = read_layout(str(mp))
+    assert lay.loc["A1", "window"] == (60.0, 300.0) and lay.loc["A2", "skip"] == (120.0, 140.0)
+    assert np.isnan(lay.loc["A2", "dilution"]) and lay.loc["A2", "group"] == "X|S=-|I=-"
+    assert lay.loc["A3", "group"] == "mine"
+    r = _cli(data, "--layout", mp, "--epsilon", "6220", "--total-volume", "200 uL",
+             "--sample-volume", "20 uL", "--dilution", "5", "--well-window", "A1=0-200",
+             "--format", "json", "--no-plots")
+    doc = json.loads(r.stdout)
+    res = {x["trace"]: x for x in doc["results"]}
+    assert (res["A1"]["window_start_s"], res["A1"]["window_end_s"]) == (0, 200)   # option wins
+    assert any("--well-window A1=0-200 s beats the plate map's window 60-300 s" in w
+               for w in doc["warnings"])
+    assert res["A2"]["skipped_s"] == [120.0, 140.0] and res["A2"]["n_points"] == len(T) - 2
+    assert (res["A2"]["dilution"], res["A2"]["dilution_source"]) == (5, "--dilution")
+    assert (res["A1"]["dilution"], res["A1"]["dilution_source"]) == (10, "plate map")
+    assert "A2: reading(s) at 120, 140 s left out (plate map 2)" in doc["settings"]["overrides"]
+
+
+def test_per_well_windows_are_the_fixed_window_fits():
+    # reference library: numpy.polyfit on each well's own window
+    rng = np.random.default_rng(2)
+    y = np.array([0.1 + s * T / 60 + rng.normal(0, 0.001, T.size) for s in (0.02, 0.03, 0.04)])
+    ts = TraceSet.from_arrays(["A1", "A2", "A3"], T, y)
+    a = analyse_plate(ts, settings=RateSettings(well_windows=(("A1", (60.0, 300.0)),
+                                                              ("A3", (100.0, 400.0)))))
+    t = a.table.set_index("trace")
+    for w, (lo, hi), i in (("A1", (60, 300), 0), ("A3", (100, 400), 2)):
+        sel = (T >= lo) & (T <= hi)
+        assert t.loc[w, "slope_A_per_min"] == pytest.approx(
+            60 * np.polyfit(T[sel], y[i][sel], 1)[0], rel=1e-9)
+        assert t.loc[w, "window_source"] == "--well-window"
+    whole = find_windows(ts.select(["A2"]).grid(), curve=True)
+    assert t.loc["A2", "slope_A_per_min"] == pytest.approx(60 * whole.slope[0], rel=1e-12)
+
+
+@pytest.mark.parametrize("args,words", [
+    (["--skip-reading", "A1=125"], "no reading at 125 s"),
+    (["--skip-well", "Z9"], "--skip-well Z9: no such well"),
+    (["--well-window", "Q1=0-100"], "--well-window Q1: no such well"),
+])
+def test_single_well_options_naming_nothing_are_refused(tmp_path, args, words):
+    r = _cli(_plate_csv(tmp_path / "d.csv", {"A1": 0.03, "A2": 0.02}), *args)
+    assert r.exit_code == 2 and words in r.stderr and len(r.stderr.strip().splitlines()) == 1
+
+
+def test_dilution_given_where_the_map_leaves_nothing_to_fill_is_refused(tmp_path):
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "A2": 0.02})
+    mp = tmp_path / "map.csv"
+    mp.write_text("well,role,dilution\nA1,sample,10\nA2,sample,20\n")
+    r = _cli(data, "--layout", mp, "--epsilon", "6220", "--total-volume", "200 uL",
+             "--sample-volume", "20 uL", "--dilution", "5")
+    assert r.exit_code == 2 and "--dilution 5 is not used" in r.stderr
+
+
+# --------------------------------------------------------------------------- conversion
+
+
+def test_nadh_in_a_96_well_well_of_200_ul(tmp_path):
+    # NADH epsilon340 = 6220 M^-1 cm^-1 (Horecker & Kornberg 1948); 200 uL over a typical 96-well
+    # bottom of 0.32 cm2 (from memory) is 0.625 cm; -0.0622 A/min -> 0.0622/(6220 x 0.625) M/min
+    data = _plate_csv(tmp_path / "d.csv", {"A1": -0.0622, "H12": -0.0311}, noise=0.0)
+    r = _cli(data, "--chromophore", "NADH", "--well-volume", "200 uL", "--format", "json",
+             "--no-plots")
+    res = {x["trace"]: x for x in json.loads(r.stdout)["results"]}
+    # (readings written to 5 decimals: a few ppm of rounding)
+    assert res["A1"]["rate_uM_per_min"] == pytest.approx(0.0622 / (6220 * 0.625) * 1e6, rel=1e-5)
+    assert res["H12"]["rate_uM_per_min"] == pytest.approx(8.0, rel=1e-5)
+
+
+def test_the_file_pathlength_is_used_when_none_is_given(tmp_path):
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.0311, "A2": 0.0311}, noise=0.0,
+                      header=["Pathlength: 5 mm", ""])
+    r = _cli(data, "--chromophore", "NADH", "--format", "json", "--no-plots")
+    doc = json.loads(r.stdout)
+    assert doc["settings"]["pathlength_cm"] == 0.5
+    assert doc["settings"]["pathlength_source"] == "the file header ('Pathlength: 5 mm')"
+    assert doc["results"][0]["rate_uM_per_min"] == pytest.approx(0.0311 / (6220 * 0.5) * 1e6,
+                                                                 rel=1e-5)
+
+
+def test_z_prime_of_the_plate_controls_is_the_published_formula(tmp_path):
+    # Zhang, Chung & Oldenburg (1999): Z' = 1 - 3 (sd+ + sd-) / |mean+ - mean-|
+    slopes = {f"A{k}": 0.05 for k in range(1, 7)} | {f"B{k}": 0.005 for k in range(1, 7)}
+    data = _plate_csv(tmp_path / "d.csv", slopes, noise=0.002, seed=5)
+    mp = tmp_path / "m.csv"
+    mp.write_text("well,role\n" + "".join(f"{w},{'positive' if w[0] == 'A' else 'negative'}\n"
+                                          for w in slopes))
+    doc = json.loads(_cli(data, "--layout", mp, "--format", "json", "--no-plots").stdout)
+    res = {x["trace"]: x["slope_A_per_min"] for x in doc["results"]}
+    pos = np.array([res[w] for w in slopes if w[0] == "A"])
+    neg = np.array([res[w] for w in slopes if w[0] == "B"])
+    hand = 1 - 3 * (pos.std(ddof=1) + neg.std(ddof=1)) / abs(pos.mean() - neg.mean())
+    assert doc["settings"]["z_prime"]["value"] == pytest.approx(hand, rel=1e-12)
+    assert z_factor(pos, neg) == pytest.approx(hand, rel=1e-12)
+
+
+def test_masked_first_readings_in_a_small_plate(tmp_path):
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "A2": 0.03}, first=["A2"])
+    doc = json.loads(_cli(data, "--format", "json", "--no-plots").stdout)
+    res = {x["trace"]: x for x in doc["results"]}
+    assert res["A2"]["window_start_s"] == 40 and res["A1"]["window_start_s"] == 0
+    assert "masked-start" in res["A2"]["flags"] and "masked-start" not in res["A1"]["flags"]
