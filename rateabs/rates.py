@@ -21,7 +21,7 @@ ones (:data:`PLATE_FLAGS`) are made here; :data:`FLAGS` holds both with their me
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 
 import numpy as np
 import pandas as pd
@@ -587,12 +587,7 @@ def plate_flags(t: pd.DataFrame, s: TraceSlopes, g: Grid, direction: float,
                            & (~np.isfinite(med) | (np.abs(s.raw_slope) > 0.05 * med)),
             "masked-start": _masked_start(g),
         }
-        if "rate_uM_per_min" in t.columns:
-            s0 = t["substrate_uM"].to_numpy(float)
-            used = np.abs(t["rate_uM_per_min"].to_numpy(float)) * (
-                s.window_end_s - s.window_start_s) / 60.0
-            masks["over-10pct"] = ((roles == "sample") & (s.method == "window") & (s0 > 0)
-                                   & (used > DEPLETION_LIMIT * s0))
+        masks["over-10pct"] = depleted(t, s)
     return masks
 
 
@@ -860,14 +855,11 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     s, analysed = estimate_slopes(used, setup, st, mode)
     g = analysed.grid()
     wells = setup.wells.loc[g.names]
-    roles = wells["role"].to_numpy()
-    slope, se, blank_info = blank_correction(s, roles == "blank", mode, g.names)
-    direction = assay_direction(slope, roles, st)
-    blank_info["direction"] = "up" if direction > 0 else "down"
-    conv, calib = convert(slope, se, direction, wells, setup, st, analysed)
-    if calib is not None:
-        blank_info["calibration"] = calib
-    table = well_table(g, s, wells, slope, se, conv)
+    table, blank_info, direction = _rates_table(s, g, wells, mode, setup, st, analysed)
+    deeper = prefer_curve_where_depleted(s, table, st)
+    if deeper is not None:
+        s = deeper
+        table, blank_info, direction = _rates_table(s, g, wells, mode, setup, st, analysed)
     value_col = "rate_uM_per_min" if "rate_uM_per_min" in table.columns else "slope_A_per_min"
     masks = plate_flags(table, s, g, direction, blank_info)
     z, outlier, how = replicate_outliers(
@@ -882,6 +874,54 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
                       activity_summary(table), how)
     a.warnings += _notes(a, value_col)
     return a
+
+
+def _rates_table(s: TraceSlopes, g: Grid, wells: pd.DataFrame, mode: str, setup: PlateSetup,
+                 st: RateSettings, analysed: TraceSet) -> tuple[pd.DataFrame, dict, float]:
+    """Stages 3 and 4 on the slopes ``s``: blank correction, direction, conversion, the table."""
+    roles = wells["role"].to_numpy()
+    slope, se, blank_info = blank_correction(s, roles == "blank", mode, g.names)
+    direction = assay_direction(slope, roles, st)
+    blank_info["direction"] = "up" if direction > 0 else "down"
+    conv, calib = convert(slope, se, direction, wells, setup, st, analysed)
+    if calib is not None:
+        blank_info["calibration"] = calib
+    return well_table(g, s, wells, slope, se, conv), blank_info, direction
+
+
+def depleted(table: pd.DataFrame, s: TraceSlopes) -> np.ndarray:
+    """Sample wells reported from a straight window within which more than DEPLETION_LIMIT of
+    the map's substrate was used (rate x window length against [S]0): the window's mean slope
+    then falls short of the initial rate (common practice: keep the initial-rate window under
+    10 % conversion)."""
+    if "rate_uM_per_min" not in table.columns:
+        return np.zeros(len(table), dtype=bool)
+    s0 = table["substrate_uM"].to_numpy(float)
+    with np.errstate(invalid="ignore"):
+        used = np.abs(table["rate_uM_per_min"].to_numpy(float)) * (
+            s.window_end_s - s.window_start_s) / 60.0
+        return ((table["role"].to_numpy() == "sample") & (s.method == "window") & (s0 > 0)
+                & (used > DEPLETION_LIMIT * s0))
+
+
+def prefer_curve_where_depleted(s: TraceSlopes, table: pd.DataFrame,
+                                st: RateSettings) -> TraceSlopes | None:
+    """With the estimator on ``auto``, the whole-curve initial slope (which follows the
+    depletion) in place of a straight window that used more than DEPLETION_LIMIT of the
+    substrate the map gives; None when no well changes. The straight window cannot see a
+    slowing that is smaller than its noise, the map's substrate can."""
+    if st.slope_from != "auto":
+        return None
+    w = s.windows
+    switch = depleted(table, s) & np.isfinite(w.curve_slope) & np.isfinite(w.curve_slope_se)
+    if not switch.any():
+        return None
+    why = (f"curve: more than {100 * DEPLETION_LIMIT:.0f} % of the map's substrate was used "
+           "within the straight window; the whole-curve initial slope follows the depletion")
+    return replace(s, slope=np.where(switch, w.curve_slope * 60, s.slope),
+                   slope_se=np.where(switch, w.curve_slope_se * 60, s.slope_se),
+                   method=np.where(switch, "curve", s.method),
+                   choice=np.where(switch, why, s.choice))
 
 
 def well_table(g: Grid, s: TraceSlopes, wells: pd.DataFrame, slope, se,

@@ -222,3 +222,47 @@ def test_masked_first_readings_in_a_small_plate(tmp_path):
     res = {x["trace"]: x for x in doc["results"]}
     assert res["A2"]["window_start_s"] == 40 and res["A1"]["window_start_s"] == 0
     assert "masked-start" in res["A2"]["flags"] and "masked-start" not in res["A1"]["flags"]
+
+
+# --------------------------------------------------------------------------- depletion
+
+
+SAMPLES = __import__("pathlib").Path(__file__).resolve().parents[1] / "sample_runs"
+
+
+def _sample_series(estimator):
+    """The sample plate's substrate series (columns 1-8) against its truth: the initial rate
+    of the rate equation the generator integrates, typed here from Michaelis & Menten (1913)
+    with competitive inhibition (Cornish-Bowden, Fundamentals of Enzyme Kinetics, 4th ed.,
+    ch. 6) and the second substrate NADH at 200 uM: v0 = V S / (Km (1 + I/Ki) + S) x
+    N / (K_N + N), with sample_runs/generate.py's V = 9 uM/min, Km = 120 uM, Ki = 4 uM,
+    K_N = 8 uM."""
+    from rateabs.io import read_traces
+
+    lay = read_layout(SAMPLES / "plate_kbdh_map.csv")
+    st = RateSettings(epsilon=6220.0, well_volume_L=200e-6, slope_from=estimator)
+    a = analyse_plate(read_traces(SAMPLES / "plate_kbdh_340nm.csv"), lay, st)
+    t = a.table[(a.table["role"] == "sample") & a.table["substrate_uM"].notna()
+                & (a.table["sample"] == "KbDH1")]
+    s, i = t["substrate_uM"].to_numpy(), t["inhibitor_uM"].fillna(0).to_numpy()
+    truth = 9.0 * s / (120.0 * (1 + i / 4.0) + s) * 200 / 208
+    z = (t["rate_uM_per_min"].to_numpy() - truth) / t["rate_uM_per_min_se"].to_numpy()
+    return t, z
+
+
+def test_depleted_windows_are_replaced_by_the_whole_curve_and_the_rates_are_right():
+    t, z = _sample_series("auto")
+    assert len(t) == 64
+    # the map's substrate shows the wells of low [S] used over 10 % within a straight window
+    assert (t["method"] == "curve").sum() >= 20
+    assert not any("over-10pct" in f for f in t["flags"])
+    # rates unbiased and SEs honest: mean z within 4 SE of its own spread (0.5 for 64 wells),
+    # at most 3 of 64 beyond 2.5 z (binomial, p(|z| > 2.5) = 1.2 %: 3 or more has p = 4 %)
+    assert abs(z.mean()) < 0.5 and np.sum(np.abs(z) > 2.5) <= 3
+
+
+def test_a_forced_window_keeps_its_depletion_flag():
+    t, z = _sample_series("window")
+    flagged = t["flags"].map(lambda f: "over-10pct" in f)
+    assert flagged.sum() >= 20 and set(t.loc[flagged, "method"]) == {"window"}
+    assert z.mean() < -0.5                       # the straight windows read low (depletion)
