@@ -11,6 +11,7 @@ numbers computed once, never a constrained layout, and every figure is closed wh
 from __future__ import annotations
 
 import math
+import textwrap
 from pathlib import Path
 
 import numpy as np
@@ -209,8 +210,9 @@ def _cell_y(r0, v, centre, span, band):
 def _slope_lines(analysis, g, cells, tmin, tspan, scale, pad, band):
     """The reported initial slope of each well as a line over its window, in cell units.
 
-    The line passes through the mean of the window's readings (or, for a whole-curve estimate
-    without a window, starts at the first usable reading) with the reported raw slope."""
+    A window's slope passes through the mean of the window's readings; a whole-curve estimate
+    is drawn as the tangent at the first usable reading, from the curve's value there, over
+    the first 35 % of the read."""
     r0, c0 = cells
     t = analysis.table
     slope = (t["slope_A_per_min"].to_numpy(float) + _blank_offset(analysis)) / 60.0
@@ -220,13 +222,17 @@ def _slope_lines(analysis, g, cells, tmin, tspan, scale, pad, band):
     with np.errstate(invalid="ignore", divide="ignore"):
         sel = ok & (g.times >= t0[:, None]) & (g.times <= t1[:, None])
         n_sel = sel.sum(axis=1)
-        has_window = np.isfinite(t0) & np.isfinite(t1) & (t1 > t0) & (n_sel > 0)
+        has_window = (np.isfinite(t0) & np.isfinite(t1) & (t1 > t0) & (n_sel > 0)
+                      & (t["method"].to_numpy() != "curve"))
         first = np.argmax(ok, axis=1)
         k = np.arange(len(t))
         tm = np.where(has_window, (times * sel).sum(axis=1) / n_sel, times[k, first])
         ym = np.where(has_window, (values * sel).sum(axis=1) / n_sel, values[k, first])
+    for i in np.nonzero((t["method"].to_numpy() == "curve") & ok.any(axis=1))[0]:
+        at = analysis.windows.curve_values(i, [tm[i]])[0]
+        ym[i] = at if np.isfinite(at) else ym[i]
     ta = np.where(has_window, t0, tm)
-    tb = np.where(has_window, t1, tm + 0.25 * tspan)
+    tb = np.where(has_window, t1, tm + 0.35 * tspan)
     keep = np.isfinite(slope) & ok.any(axis=1)
     tt = np.column_stack([ta, tb])[keep]
     xs = c0[keep, None] + pad + (1 - 2 * pad) * (tt - tmin) / tspan
@@ -330,9 +336,10 @@ def _well_page(analysis, names: list[str], path: Path) -> Path:
                            marker == "x" else 0)
         for x, y, text, kw in parts["text"]:
             ax.text(x, y, text, **kw)
-        fig.text(0.5, 1 - 0.1 / fig_h, "readings (dots; x masked), window (shaded), initial "
-                 "slope (orange), whole-curve fit (dotted); below: residuals from the slope "
-                 "line (mAU)", ha="center", va="top", fontsize=8.5)
+        legend = ("readings (dots; x masked), window (shaded), initial slope (orange), "
+                  "whole-curve fit (dotted); below: residuals from the slope line (mAU)")
+        fig.text(0.5, 1 - 0.06 / fig_h, textwrap.fill(legend, int(fig_w * 13)), ha="center",
+                 va="top", fontsize=8.5 if fig_w > 9 else 7.5)
         return save(fig, path, tight=False, compress_level=FAST_PNG)
 
 
