@@ -6,7 +6,8 @@ from pathlib import Path
 
 HERE = Path(__file__).parent
 SCRIPTS = ["bench_rates.py", "bench_bootstrap.py", "window_hit_rates.py", "mode_choice.py",
-           "order_choice.py", "completion_coverage.py", "bench_grade.py", "bench_plates.py"]
+           "order_choice.py", "completion_coverage.py", "bench_grade.py", "bench_plates.py",
+           "flag_calibration.py"]
 
 if __name__ == "__main__":
     sys.path.insert(0, str(HERE))

@@ -183,7 +183,13 @@ def test_initial_rate_slips_named_and_sound_students_left_alone(v0_class):
     _, rows, ref = v0_class
     for kind, r in rows.values():
         assert r["slip"] == V0_PLAN[kind][1], (kind, r["diagnosis"][0])
-        assert r["value"] == pytest.approx(ref, rel=0.10)      # solve_ivp truth, 10 % tolerance
+        # the grader's own v0 against the solve_ivp truth: within 3 of its own SEs (the
+        # estimator may take the whole curve, whose SE is wider, on a trace that bends by noise;
+        # + 2 % as ref is the mean of the students' truths, whose Vmax scatter by 2 %)
+        assert abs(r["value"] - ref) <= 3 * r["value_se"] + 0.02 * ref, (kind, r["value"])
+    # and no bias over the class (the old straight window read 8 % low on these traces)
+    own = np.array([r["value"] for _, r in rows.values()])
+    assert abs(own.mean() / ref - 1) < 0.03
 
 
 def test_falling_signal_sign_message_does_not_contradict_itself(v0_class):

@@ -20,7 +20,7 @@ LAYER = {
 #: Functions longer than the limit that other work will split (the rates rewrite of issue 11,
 #: the reader split of issue 16, the plate-map reader); every other function stays within it.
 LONG_LIMIT = 80
-KNOWN_LONG = {("slopes", "find_windows")}
+KNOWN_LONG: set = set()
 
 
 def _unit(path: Path, root: Path) -> str:
