@@ -398,6 +398,7 @@ def report_page(view: View, pictures: list[Path], o: RatesOptions) -> str:
     sections = [("At a glance", rp.kv(summary) + rp.img(pics.get(f"{stem}_plate_overview.png"),
                                                          "every well in plate geometry")
                  + rp.img(pics.get(f"{stem}_plate.png"), "rate per well")),
+                ("Inputs", rp.inputs_table(o)), ("Settings", rp.settings_table(o)),
                 ("What was assumed", rp.kv([(line[2:].split(":")[0], line[2:].split(":", 1)[1])
                                             for line in header_lines(o, a, a.traces.info)[1:]
                                             if ":" in line]))]
