@@ -44,7 +44,8 @@ PLATE_FLAGS = {
                     "or skipped), so the slope starts later than the reaction: with depletion "
                     "it reads low",
     "over-10pct": "more than 10 % of the substrate in the map was used within the straight "
-                  "window, so its slope underestimates the initial rate",
+                  "window reported (forced by --slope-from window, or no whole-curve estimate "
+                  "to take instead), so its slope underestimates the initial rate",
 }
 
 #: Every per-well flag with its meaning (trace-level from slopes, plate-level from here).
