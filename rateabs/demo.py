@@ -32,10 +32,7 @@ def _steps(run, s, out: Path) -> dict:
                      "enzyme assay scientist", views.run_rates, opts.RatesOptions,
                      {"file": s("plate_kbdh_340nm.csv"), "layout_file": s("plate_kbdh_map.csv"),
                       "chromophore": "NADH", "well_volume": "200 uL", "plate": 96,
-                      "total_volume": "200 uL", "sample_volume": "20 uL", "katal": True,
-                      # the low-substrate wells use over 10 % of their substrate within the
-                      # read (flag over-10pct): the whole-curve initial slope is the better one
-                      "slope_from": "curve"}),
+                      "total_volume": "200 uL", "sample_volume": "20 uL", "katal": True}),
         "sat": run("3_inhibition", "KB-17 inhibition mode from the plate's rates",
                    "enzyme assay scientist", views.run_saturation, opts.SaturationOptions,
                    {"file": str(out / "2_plate_rates" / "rates.csv"), "select": ["sample=KbDH1"],
@@ -68,9 +65,10 @@ def _flag_words(table) -> str:
     counts = Counter(f for flags in table["flags"] for f in flags)
     flagged = int(sum(bool(f) for f in table["flags"]))
     if not flagged:
-        return "no well carries a flag"
+        return "no well needs a look"
     top = ", ".join(f"{word} {n}" for word, n in counts.most_common(4))
-    return f"wells with a flag: {flagged} of {len(table)} ({top}; meanings on the plate's page)"
+    return (f"wells that need a look: {flagged} of {len(table)} ({top}; meanings on the plate's "
+            "page)")
 
 
 def _selwyn_words(selwyn: dict) -> str:

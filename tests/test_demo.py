@@ -80,7 +80,7 @@ def test_pages_read_like_a_lab_report(demo_dir):
         assert site not in text and "data/samples" not in text, page
     index = (demo_dir / "index.html").read_text()
     assert "stable = " not in index and "enzyme stable" in index
-    assert "wells with a flag" in index and "meanings on the plate" in index
+    assert "wells that need a look" in index and "meanings on the plate" in index
     rates = (demo_dir / "2_plate_rates" / "report.html").read_text()
     assert "inputs/plate_kbdh_340nm.csv" in rates and "200 µL" in rates
     assert 'download="rates.csv" href="data:text/csv' in rates
