@@ -4,7 +4,9 @@ The order is chosen as ``ratelaw`` chooses it (AICc over orders 0, 1 and 2, a li
 drift where the F-test supports it; :func:`rateabs.ratelaws.fit_trace`) unless the user fixes
 it. Every order within ΔAICc :data:`~rateabs.ratelaws.EVIDENCE_DELTA` of the best carries
 weight: each gets its own forecast, the headline interval spans them all, and the run is called
-complete only when it is complete under every one of them.
+complete only when it is complete under every one of them. With the drift at ``auto`` each of
+those orders is forecast both with and without the drift term (:func:`_forecasts` says why: a
+nested drift term always carries weight, and its F-test has little power).
 
 Conversion against the fitted end point is X(t) = 1 - f(t): first order X = 1 - exp(-k t),
 t* = -ln(1 - X*)/k; second order X = 1 - 1/(1 + q t) with q = k |A0 - Ainf| (1/s),
@@ -526,12 +528,14 @@ def _headline(forecasts: list, chosen: str) -> tuple[Param | None, Param | None,
 
 
 def _envelope(params: list, main: Param, n: int) -> Param:
-    """``main`` with the interval spanning every parameter's interval."""
+    """``main`` with the interval spanning every parameter's interval and the largest of their
+    SEs (the headline is no surer than the least sure model that carries weight)."""
     if n == 1:
         return main
     lo = min(p.ci_low for p in params)
     hi = max(p.ci_high for p in params)
-    return Param(main.name, main.value, main.se, lo, hi,
+    ses = [p.se for p in params if math.isfinite(p.se)]
+    return Param(main.name, main.value, max(ses) if ses else main.se, lo, hi,
                  f"envelope of {n} models' {main.ci_method} intervals", main.unit)
 
 
