@@ -208,9 +208,10 @@ def test_a_drift_the_f_test_misses_still_leaves_the_truth_inside_the_interval():
 
 # --------------------------------------------------------------------------- coverage
 
-#: benchmarks/completion_coverage.py, 200 runs of the white-noise condition (seeds 0-199):
-#: the 95 % interval of t(99 %) covered the truth in 94 % (188 of 200) of the runs.
-MEASURED_COVERAGE = 0.94
+#: benchmarks/completion_coverage.py, 200 runs of the white-noise condition (seeds 0-199): the
+#: 95 % interval of t(99 %), spanning the forecasts with and without a drift term, covered the
+#: truth in 200 of 200 runs; the test holds it to no less than the nominal 95 %.
+MEASURED_COVERAGE = 0.95
 
 
 def test_small_seeded_coverage_study():
@@ -226,7 +227,7 @@ def test_small_seeded_coverage_study():
         flagged += bool(c.flags)
         hits += c.t_target.ci_low <= truth <= c.t_target.ci_high
     bound = stats.binom.ppf(0.001, 40, MEASURED_COVERAGE)
-    assert bound == 32
+    assert bound == 33
     assert answered == 40 and hits >= bound
     assert flagged <= stats.binom.ppf(0.999, 40, 0.05)     # the gate rarely trips on good fits
 
