@@ -18,7 +18,10 @@ For each condition it prints: answers given (a time to target) and refusals (no 
 analysis error or no forecast); among answers, how many were flagged; coverage of the time to
 target and of k (k counts as missed when the order reported is not the true one) among all
 answers and among unflagged answers; far misses (truth outside the interval by more than 3 SE)
-and how many of those were flagged; how often "complete" was called and wrongly so. Goals
+and how many of those were flagged; what the verdict claimed: "complete" (COMPLETE, against
+the charge) and "end reached" (END POINT REACHED, COMPLETION NOT SHOWN: without the charge the
+trace has stopped changing, which a stall does too; in the stall rows every such call is of a
+reaction that never consumes its charge). Goals
 (issue 12): coverage at least 93 % wherever an answer is given unflagged, and every far miss
 flagged or refused.
 """
@@ -32,7 +35,8 @@ from pathlib import Path
 
 import numpy as np
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
+ROOT = Path(__file__).resolve().parents[1]
+sys.path[:0] = [str(ROOT), str(ROOT / "tests")]         # this checkout's rateabs, not another
 from process_truth import (  # noqa: E402
     C0,
     EPS,
@@ -91,8 +95,9 @@ def one_run(item: tuple[str, int]) -> dict:
     try:
         c = assess(T, y, condition, target=TARGET, photometry=ph)
     except AnalysisError as exc:
-        return {"answered": False, "flags": ["refused"], "why": exc.problem, "complete": False}
-    out = {"answered": c.t_target is not None, "flags": list(c.flags), "complete": c.complete,
+        return {"answered": False, "flags": ["refused"], "why": exc.problem,
+                "claim": "refused"}
+    out = {"answered": c.t_target is not None, "flags": list(c.flags), "claim": c.claim,
            "why": c.why_no_forecast}
     if c.t_target is not None:
         tt = c.t_target
@@ -118,7 +123,8 @@ def summarise(condition: str, runs: list[dict]) -> dict:
             "unflagged": len(clean), "t_cov_clean": _rate(clean, "t_covered"),
             "k_cov_clean": _rate(clean, "k_covered"), "far": len(far),
             "far_flagged": sum(bool(r["flags"]) for r in far),
-            "complete": sum(r["complete"] for r in runs),
+            "complete": sum(r["claim"] == "complete" for r in runs),
+            "end_reached": sum(r["claim"] == "end point reached" for r in runs),
             "flag_counts": Counter(f for r in runs for f in r["flags"])}
 
 
@@ -143,7 +149,7 @@ def main(runs: int = 200, jobs: int = 2) -> list[dict]:
           "completion's defaults")
     head = (f"{'condition':<18} {'answered':>8} {'refused':>7} {'flagged':>7} {'t cov':>5} "
             f"{'k cov':>5} {'unflagged':>9} {'t cov':>5} {'k cov':>5} {'far miss':>8} "
-            f"{'of them flagged':>15} {'complete':>8}")
+            f"{'of them flagged':>15} {'complete':>8} {'end reached':>11}")
     print(" " * 46 + "(all answers, %)" + " " * 11 + "(unflagged, %)")
     print(head)
     rows = []
@@ -153,7 +159,7 @@ def main(runs: int = 200, jobs: int = 2) -> list[dict]:
         print(f"{c:<18} {s['answered']:>8} {s['refused']:>7} {s['flagged']:>7} "
               f"{_pct(s['t_cov']):>5} {_pct(s['k_cov']):>5} {s['unflagged']:>9} "
               f"{_pct(s['t_cov_clean']):>5} {_pct(s['k_cov_clean']):>5} {s['far']:>8} "
-              f"{s['far_flagged']:>15} {s['complete']:>8}")
+              f"{s['far_flagged']:>15} {s['complete']:>8} {s['end_reached']:>11}")
     print("\nflags raised (runs):")
     for s in rows:
         print(f"  {s['condition']}: " + ", ".join(f"{k} {v}" for k, v in

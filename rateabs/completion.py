@@ -4,7 +4,9 @@ The order is chosen as ``ratelaw`` chooses it (AICc over orders 0, 1 and 2, a li
 drift where the F-test supports it; :func:`rateabs.ratelaws.fit_trace`) unless the user fixes
 it. Every order within ΔAICc :data:`~rateabs.ratelaws.EVIDENCE_DELTA` of the best carries
 weight: each gets its own forecast, the headline interval spans them all, and the run is called
-complete only when it is complete under every one of them.
+complete only when it is complete under every one of them. With the drift at ``auto`` each of
+those orders is forecast both with and without the drift term (:func:`_forecasts` says why: a
+nested drift term always carries weight, and its F-test has little power).
 
 Conversion against the fitted end point is X(t) = 1 - f(t): first order X = 1 - exp(-k t),
 t* = -ln(1 - X*)/k; second order X = 1 - 1/(1 + q t) with q = k |A0 - Ainf| (1/s),
@@ -78,6 +80,8 @@ FLAGS = {
     "open_interval": "the data do not bound the rate away from zero: no upper time bound",
     "end_below_zero": "the fitted end absorbance lies below zero, which is impossible",
     "short_run": "the run covers less than one half-life",
+    "drift_not_told_apart": "with a baseline drift allowed the data give no forecast: the one "
+                            "shown assumes a stable baseline",
     "drift_fitted": "a baseline drift was fitted: an instrument drift, or a reaction the law "
                     "does not quite describe; the forecast leans on the drift staying linear",
 }
@@ -169,12 +173,36 @@ class Completion:
 
     @property
     def k(self) -> Param:
-        """The rate constant of the chosen order: for order 1 the forecast's own k (profile
-        interval, widened for an unseen drift where allowed), else the fit's k."""
-        main = next((f for f in self.forecasts if f.model == self.model), None)
-        if main is not None and main.order == "1" and main.rate is not None:
-            return main.rate
-        return self.law.fits.get(self.model, self.law.fit).params["k"]
+        """The rate constant of the chosen order: for order 1 the forecasts' own k (profile
+        interval, widened for an unseen drift where allowed), else the fit's k; the interval
+        spans the chosen order's models with and without the drift term."""
+        order = self.model.split("+")[0]
+        same = [f for f in self.forecasts if f.order == order]
+
+        def k_of(model):
+            f = next((f for f in same if f.model == model), None)
+            if f is not None and order == "1" and f.rate is not None:
+                return f.rate
+            return self.law.fits.get(model, self.law.fit).params["k"]
+
+        ks = [k_of(f.model) for f in same if f.model != self.model]
+        main = k_of(self.model)
+        finite = [p for p in ks if math.isfinite(p.ci_low) and math.isfinite(p.ci_high)]
+        return _envelope([main, *finite], main, 1 + len(finite))
+
+    @property
+    def claim(self) -> str:
+        """What the verdict claims: "complete" (against the charge), "end point reached" (the
+        trace has stopped changing; without the charge a stall looks the same) or
+        "not complete"."""
+        if not self.complete:
+            return "not complete"
+        return "complete" if self.basis == "charge" else "end point reached"
+
+    @property
+    def orders(self) -> list:
+        """The orders forecast (each with and without the drift term where it was fitted)."""
+        return list(dict.fromkeys(f.order for f in self.forecasts))
 
     def to_dict(self) -> dict:
         """JSON result: ``trace``, ``conversion``, ``target``, ``t_target_s``, ``complete``."""
@@ -190,7 +218,7 @@ class Completion:
                 "no_forecast_because": self.why_no_forecast or None,
                 "t_remaining_s": max(tt.value - self.t_now, 0.0) if self.t_target else None,
                 "extrapolation_multiple": self.extrapolation,
-                "complete": self.complete, "verdict": self.verdict, "rule": self.rule,
+                "complete": self.complete, "claim": self.claim, "verdict": self.verdict, "rule": self.rule,
                 "end_absorbance": shown(self.end_absorbance),
                 "charge": self.charge.source if self.charge else None,
                 "k": shown(self.k),
@@ -199,8 +227,7 @@ class Completion:
                 "drift_A_per_s": shown(fit.params["drift"]) if "drift" in fit.params else None,
                 "half_life_s": shown(self.law.half_life) if self.law.half_life else None,
                 "forecasts": [f.to_dict() for f in self.forecasts],
-                "orders_not_told_apart": [f.model for f in self.forecasts]
-                if len(self.forecasts) > 1 else [],
+                "orders_not_told_apart": self.orders if len(self.orders) > 1 else [],
                 "quality": self.law.quality, "flags": list(self.flags),
                 "notes": list(self.notes)}
 
@@ -402,22 +429,71 @@ def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "aut
     rising = law.fit.value("A0") < law.fit.predict(np.max(t))
     charge = charge_of(photometry, end_absorbance, bool(rising))
     t_now = float(np.max(t))
-    weights = {row["model"]: row["weight"] for row in law.comparison.rows} if (
-        law.comparison) else {law.model: 1.0}
-    forecasts = []
-    for m in law.plausible:
-        r = law.fits[m]
-        o = m.split("+")[0]
-        fc = (forecast_line(r, target, t_now, charge) if o == "0"
-              else forecast_curve(r, o, target, t_now, level, charge, drift == "auto"))
-        fc.weight = float(weights.get(m, 1.0))
-        forecasts.append(fc)
-    notes = []
+    forecasts, notes, flags = _forecasts(law, target, t_now, level, charge, drift)
     if charge is not None:
-        forecasts, notes = _consistent_with_charge(forecasts, law.model)
+        forecasts, set_aside = _consistent_with_charge(forecasts, law.model)
+        notes += set_aside
     c = _verdict(law, forecasts, target, t_now, charge, level)
     c.notes[:0] = notes
+    c.flags = list(dict.fromkeys(c.flags + flags))
     return c
+
+
+def _forecasts(law: RateLawResult, target: float, t_now: float, level: float,
+               charge: Charge | None, drift: str) -> tuple[list, list, list]:
+    """A forecast under every model that carries weight, with its AICc weight; and the notes
+    and flags about the drift.
+
+    With ``drift`` at ``auto`` each order that carries weight is forecast both without and
+    with the drift term, whatever the F-test chose: a drift term is one nested parameter, so
+    its ΔAICc can never exceed about 2 (AICc charges 2 per parameter) and it always lies
+    within :data:`~rateabs.ratelaws.EVIDENCE_DELTA`; it carries weight by the same rule as an
+    order. The headline interval then spans both, as it spans orders. Where the drift model
+    cannot forecast (not identifiable, typically at low conversion, where a drift and the
+    reaction look alike) the forecast assumes a stable baseline and is flagged
+    ``drift_not_told_apart``."""
+    order_weight = {row["model"]: row["weight"] for row in law.comparison.rows} if (
+        law.comparison) else {law.model.split("+")[0]: 1.0}
+    forecasts, notes, flags = [], [], []
+    for m in law.plausible:
+        o = m.split("+")[0]
+        pair = [law.fits[m]] + ([law.fits[x] for x in (o, f"{o}+drift") if x != m
+                                 and x in law.fits and law.fits[x].success]
+                                if drift == "auto" and o != "0" else [])
+        rel = _relative_weights(pair)
+        made = {}
+        for r in sorted(pair, key=lambda r: "drift" not in r.params):   # the drift model first
+            if o == "0":
+                fc = forecast_line(r, target, t_now, charge)
+            else:
+                covered = any("drift" in law.fits[x].params for x in made)
+                fc = forecast_curve(r, o, target, t_now, level, charge,
+                                    drift == "auto" and not covered)
+            fc.weight = float(order_weight.get(o, 1.0)) * rel[r.model]
+            if r.model != m and "drift" in r.params and not _rate_known(fc, r):
+                flags.append("drift_not_told_apart")
+                notes.append(f"with a baseline drift allowed, order {o} gives no forecast "
+                             f"({fc.why}): the forecast assumes a baseline stable within the "
+                             "noise over the run; a drift and the reaction are not told apart")
+                continue
+            made[r.model] = fc
+        forecasts += [made[r.model] for r in pair if r.model in made]     # the pick first
+    return forecasts, notes, flags
+
+
+def _rate_known(fc: Forecast, r: FitResult) -> bool:
+    """Whether the data determine the rate parameter a forecast rests on."""
+    return (identifiable(r.params["k"]) and fc.rate is not None
+            and math.isfinite(fc.rate.ci_low))
+
+
+def _relative_weights(fits: list) -> dict:
+    """AICc weights of fits of one order (with and without the drift term), summing to 1."""
+    best = min(r.aicc for r in fits)
+    raw = {r.model: math.exp(-0.5 * (r.aicc - best)) if math.isfinite(r.aicc) else 0.0
+           for r in fits}
+    total = sum(raw.values()) or 1.0
+    return {m: w / total for m, w in raw.items()}
 
 
 def _consistent_with_charge(forecasts: list, chosen: str) -> tuple[list, list]:
@@ -452,13 +528,15 @@ def _headline(forecasts: list, chosen: str) -> tuple[Param | None, Param | None,
 
 
 def _envelope(params: list, main: Param, n: int) -> Param:
-    """``main`` with the interval spanning every parameter's interval."""
+    """``main`` with the interval spanning every parameter's interval and the largest of their
+    SEs (the headline is no surer than the least sure model that carries weight)."""
     if n == 1:
         return main
     lo = min(p.ci_low for p in params)
     hi = max(p.ci_high for p in params)
-    return Param(main.name, main.value, main.se, lo, hi,
-                 f"envelope of {n} orders' {main.ci_method} intervals", main.unit)
+    ses = [p.se for p in params if math.isfinite(p.se)]
+    return Param(main.name, main.value, max(ses) if ses else main.se, lo, hi,
+                 f"envelope of {n} models' {main.ci_method} intervals", main.unit)
 
 
 def _charge_conversion(r: FitResult, charge: Charge, t_now: float) -> Param:
@@ -588,7 +666,7 @@ def _call(forecasts, flags, quality: dict, target, c_conv) -> tuple[bool, str]:
     if c_conv is not None:
         lows.append(c_conv.ci_low)
     if lows and min(lows) >= target:
-        return True, ("COMPLETE" if c_conv is not None else "END POINT REACHED: the reaction "
-                      "has stopped changing; without the charge this cannot say the charge is "
-                      "consumed (a stall looks the same)")
+        return True, ("COMPLETE" if c_conv is not None else "END POINT REACHED, COMPLETION NOT "
+                      "SHOWN: the trace has stopped changing, but without the charge (--c0 with "
+                      "--epsilon, or --end-absorbance) a stalled reaction looks the same")
     return False, "NOT YET COMPLETE"

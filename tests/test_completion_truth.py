@@ -128,7 +128,9 @@ def test_a_stall_at_39_percent_is_never_complete_with_the_charge():
     assert "of the charge" in stall and "fitted change" in stall and "1.19 AU" in stall
     # without the charge the trace alone cannot tell a stall from completion, and says so
     bare = assess(T, y, target=0.99)
-    assert bare.basis == "fitted end point" and "COMPLETE" not in bare.verdict.split(":")[0]
+    assert bare.basis == "fitted end point" and bare.claim == "end point reached"
+    assert bare.verdict.startswith("END POINT REACHED, COMPLETION NOT SHOWN")
+    assert "stalled reaction looks the same" in bare.verdict
     assert any("a stall looks like completion" in n for n in bare.notes)
 
 
@@ -181,11 +183,35 @@ def test_a_strong_drift_is_fitted_by_evidence_and_the_forecast_covers_the_truth(
     assert plain.model == "1"
 
 
+def test_a_drift_the_f_test_misses_still_leaves_the_truth_inside_the_interval():
+    """1 mAU/min of baseline drift (45 mAU over the run, noise 4 mAU): the F-test catches it in
+    fewer than half the runs, and a forecast chosen by that test alone covered the truth in only
+    8 of these 20 runs (those where it caught the drift). The drift model carries AICc weight in
+    every run, so its forecast enters the headline interval. Accept down to the 0.1 % binomial quantile of
+    20 runs at 95 % (scipy.stats.binom)."""
+    k = _k("1", 0.88)
+    truth_t, drift = time_to("1", 0.99, k), 1e-3 / 60
+    clean = absorbance(first_order(T, k), drift=drift, t=T)
+    hits = missed_by_test = k_hits = 0
+    for seed in range(3000, 3020):
+        c = assess(T, noisy(clean, seed), target=0.99)
+        assert [f.model for f in c.forecasts][:2] in (["1", "1+drift"], ["1+drift", "1"])
+        missed_by_test += c.model == "1"
+        hits += c.t_target.ci_low <= truth_t <= c.t_target.ci_high
+        k_hits += c.k.ci_low <= k <= c.k.ci_high
+        plain = next(f for f in c.forecasts if f.model == "1").t_target
+        assert c.t_target.ci_low <= plain.ci_low and plain.ci_high <= c.t_target.ci_high
+    bound = stats.binom.ppf(0.001, 20, 0.95)
+    assert missed_by_test >= 5                       # the case the drift term alone left wrong
+    assert hits >= bound and k_hits >= bound
+
+
 # --------------------------------------------------------------------------- coverage
 
-#: benchmarks/completion_coverage.py, 200 runs of the white-noise condition (seeds 0-199):
-#: the 95 % interval of t(99 %) covered the truth in 94 % (188 of 200) of the runs.
-MEASURED_COVERAGE = 0.94
+#: benchmarks/completion_coverage.py, 200 runs of the white-noise condition (seeds 0-199): the
+#: 95 % interval of t(99 %), spanning the forecasts with and without a drift term, covered the
+#: truth in 200 of 200 runs; the test holds it to no less than the nominal 95 %.
+MEASURED_COVERAGE = 0.95
 
 
 def test_small_seeded_coverage_study():
@@ -201,7 +227,7 @@ def test_small_seeded_coverage_study():
         flagged += bool(c.flags)
         hits += c.t_target.ci_low <= truth <= c.t_target.ci_high
     bound = stats.binom.ppf(0.001, 40, MEASURED_COVERAGE)
-    assert bound == 32
+    assert bound == 33
     assert answered == 40 and hits >= bound
     assert flagged <= stats.binom.ppf(0.999, 40, 0.05)     # the gate rarely trips on good fits
 

@@ -126,7 +126,7 @@ def completion_plot(c, ts, path):
                                     f"(interval of k, order {f.model})")
             ax.plot(tc / 60, r.func(tc, *vals.values()), color=PALETTE[1 + n % 6],
                     ls="-" if f.model == c.model else "--",
-                    label=f"order {f.model} forecast (AICc weight {f.weight:.2f})")
+                    label=f"{f.model} forecast (AICc weight {f.weight:.2f})")
             _target_marks(ax, c, f, r, PALETTE[1 + n % 6], horizon)
         if c.charge is not None:
             _charge_marks(ax, c)

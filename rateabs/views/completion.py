@@ -62,7 +62,8 @@ def _describe(r: dict) -> str:
     else:
         lines.append(f"  time to {target}: no forecast: {r['no_forecast_because']}")
     if len(r["forecasts"]) > 1:
-        lines.append("  forecast under each order that carries weight: " + "; ".join(
+        lines.append("  forecast under each model that carries weight (the interval above spans "
+                     "them): " + "; ".join(
             f"{f['model']} (AICc weight {f['aicc_weight']:.2f}): {_minutes(f['t_target_s'])}"
             for f in r["forecasts"]))
     end = r["end_absorbance"]
