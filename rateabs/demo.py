@@ -108,7 +108,7 @@ def _key_numbers(v: dict, gview) -> list[str]:
     lines.append(f"  completion: {100 * c.conversion.value:.1f} % now; 99 % at "
                  f"{c.t_target.value / 60:.1f} min [{c.t_target.ci_low / 60:.1f}, "
                  f"{c.t_target.ci_high / 60:.1f}]; "
-                 f"{'complete' if c.complete else 'not yet complete'}")
+                 f"{c.claim}")
     ea = v["temp"].analysis.params["Ea"]
     lines.append(f"  temperature: Ea = {ea.value:.1f} [{ea.ci_low:.1f}, {ea.ci_high:.1f}] kJ/mol")
     scores = sorted(r["score"] for r in gview.analysis)
