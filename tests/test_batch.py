@@ -307,7 +307,7 @@ def dask_scheduler():
     of tests/test_parallel.py)."""
     distributed = pytest.importorskip("distributed")
     cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=None,
+                                       host="127.0.0.1", dashboard_address=":0",
                                        silence_logs=logging.ERROR)
     try:
         assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")

@@ -212,7 +212,7 @@ def dask_scheduler():
     """A Dask scheduler and two worker processes on 127.0.0.1 only, always stopped."""
     distributed = pytest.importorskip("distributed")
     cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=None,
+                                       host="127.0.0.1", dashboard_address=":0",
                                        silence_logs=logging.ERROR)
     try:
         assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
