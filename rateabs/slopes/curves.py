@@ -24,7 +24,7 @@ Members: ``line`` (k = 0), ``exp`` (rho = 0), ``mm`` (rho free), ``lag`` (k = 0,
 ``lag-exp`` (rho = 0, k and L free).
 
 The fit is separable: for fixed (k, rho, L) the curve is a straight line in F, so c and v follow
-from sums. Every trace is first fitted on a grid of (k, rho, L) at once (three matrix products
+from sums. Every trace is first fitted on a grid of (k, rho, L) at once (three sums of products
 over the traces x times array), and the optimum between grid points is found by parabolas
 through the best point and its neighbours (the exponential's initial slope within 0.02 SE of
 scipy's curve_fit, tests/test_slopes_curves.py); members with two shape parameters are then
@@ -182,7 +182,7 @@ def grid_rss(times, Y, W, k, rho, lag) -> np.ndarray:
     ``Y``, ``W``) and every grid point (the arrays ``k``, ``rho``, ``lag``): shape (N, G).
 
     ``times`` (n,) are representative times of the columns: F is tabulated per grid point (in
-    chunks of at most ``prepare.CHUNK_READINGS`` numbers) and the sums come from matrix products.
+    chunks of at most ``prepare.CHUNK_READINGS`` numbers) and the sums come from products (:func:`_dot`).
     """
     times = np.asarray(times, float)[None, :]
     sw = W.sum(axis=1)[:, None]

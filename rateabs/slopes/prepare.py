@@ -98,7 +98,8 @@ class Prepared:
     unusable); ``W``: 1.0 for a reading used, else 0 (spikes set aside); ``first``: index of the
     first usable reading, ``t0``/``y0`` its time and reading; ``sigma``: noise SD; ``spikes``:
     readings set aside as spikes; ``span``: the longest trace's duration; ``times``: the times
-    of the columns, from the first reading, as most traces have them.
+    of the columns, from the first reading, as most traces have them (``span`` and ``times``
+    are the plate's, :class:`Clock`, also where these are some of its traces).
     """
 
     grid: Grid
