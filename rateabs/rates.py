@@ -407,9 +407,8 @@ def window_times(g: Grid, win: Windows) -> tuple[np.ndarray, np.ndarray]:
     has = inside.any(axis=1)
     first = np.argmax(inside, axis=1)
     last = m - 1 - np.argmax(inside[:, ::-1], axis=1)
-    t = np.nan_to_num(g.times)
-    t0 = np.take_along_axis(t, first[:, None], 1)[:, 0]
-    t1 = np.take_along_axis(t, last[:, None], 1)[:, 0]
+    t0 = np.nan_to_num(np.take_along_axis(g.times, first[:, None], 1)[:, 0])
+    t1 = np.nan_to_num(np.take_along_axis(g.times, last[:, None], 1)[:, 0])
     return np.where(has, t0, np.nan), np.where(has, t1, np.nan)
 
 

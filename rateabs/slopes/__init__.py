@@ -21,7 +21,7 @@ where the number may still be wrong (:data:`TRACE_FLAGS`).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields, replace
 from enum import IntEnum
 
 import numpy as np
@@ -31,8 +31,18 @@ from ..traces import Grid
 from . import windows as wn
 from .choice import choose
 from .curves import CURVED_CHI2, Curves, fit_curves, merge, progress, slope_at
-from .flags import TRACE_FLAGS, trace_flags
-from .prepare import Prepared, noise_sigma, outliers, prepare, quiet_numpy
+from .flags import TRACE_FLAGS, flag_words, noisy, trace_marks
+from .prepare import (
+    Clock,
+    Prepared,
+    noise_sigma,
+    outliers,
+    plate_clock,
+    prepare,
+    quiet_numpy,
+    row_chunks,
+    sub_grid,
+)
 
 __all__ = ["TRACE_FLAGS", "WindowEnd", "Windows", "find_windows", "noise_sigma", "quiet_numpy",
            "rate_curve", "window_min_points"]
@@ -141,13 +151,55 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
     ``"window"`` or ``"curve"``. ``curve=False`` skips the whole-curve estimate (the window is
     then reported, its SE without the curvature term). ``noisy_limit`` is the relative SE above
     which a rate is flagged ``noisy``.
+
+    The traces are worked on in chunks of rows (:data:`prepare.CHUNK_READINGS`) so that memory
+    stays in proportion to the data; what spans traces is computed over all of them first (the
+    columns' times and the span, again after readings far off their curves are set aside) or
+    last (the ``noisy`` flag), so the chunks never change a result.
     """
     if estimator not in ESTIMATORS:
         raise UsageError(f"unknown estimator {estimator!r}", f"use one of {', '.join(ESTIMATORS)}")
     if estimator == "curve" and not curve:
         raise UsageError("the curve estimator needs the whole-curve fit", "drop --no-curve")
-    prep, curves = _fit_stage(grid, noise_floor, curve)
-    mp = window_min_points(grid.values.shape[1], min_points)
+    N, M = grid.values.shape
+    opts = _Options(window, window_min_points(M, min_points), noise_floor, curve, estimator)
+    clock = plate_clock(grid, noise_floor)
+    chunks = row_chunks(N, M)
+    bad = np.zeros((N, M), dtype=bool)
+    parts = []
+    for rows in chunks:
+        part, bad[rows] = _chunk(sub_grid(grid, rows), opts, clock)
+        parts.append(part)
+    if bad.any():
+        # readings far off their curves are set aside, and the traces that had them fitted
+        # again, on the columns' times without those readings
+        again = plate_clock(grid, noise_floor, bad)
+        same = again.span == clock.span and np.array_equal(again.times, clock.times)
+        for i, rows in enumerate(chunks):
+            if not same or bad[rows].any():
+                parts[i] = _chunk(sub_grid(grid, rows), opts, clock, again)[0]
+    win = _concat(parts)
+    loud = noisy(win.slope, win.slope_se, win.sigma, noisy_limit)
+    return replace(win, flags=flag_words(np.column_stack([win.flags, loud])))
+
+
+@dataclass(frozen=True)
+class _Options:
+    """The settings of one :func:`find_windows` call, as each chunk of traces uses them."""
+
+    window: object
+    min_points: int
+    noise_floor: float
+    curve: bool
+    estimator: str
+
+
+def _chunk(grid: Grid, opts: _Options, clock: Clock, again: Clock | None = None):
+    """The :class:`Windows` of some traces (``flags`` still the marks of
+    :func:`rateabs.slopes.flags.trace_marks`) and the readings found far off their curves;
+    ``again``: the clock with those set aside, for the second pass."""
+    prep, curves, bad = _fit_stage(grid, opts.noise_floor, opts.curve, clock, again)
+    window, curve, mp = opts.window, opts.curve, opts.min_points
     win = _window_stage(prep, curves, window, mp)
     # a curve that speeds up is no initial rate (see curves._lags): never reported
     eligible = ~((curves.member == "exp") & (curves.params[:, 2] < 0))
@@ -155,7 +207,8 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
     t_last = prep.Tc[np.arange(prep.W.shape[0]), prep.last]
     late = np.where(eligible, np.nan, slope_at(curves.params, t_last)) if curve else None
     # a fixed window is reported unless the curve is asked for (docstring)
-    est = "window" if not curve or (window != "auto" and estimator == "auto") else estimator
+    est = "window" if not curve or (window != "auto" and opts.estimator == "auto") \
+        else opts.estimator
     method, slope, se, why = choose(est, win.line.b, win.line.se, win.weights, curves,
                                     eligible & curve, late)
     if window != "auto":
@@ -163,22 +216,36 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
         why = np.where(method == "window", "window: fixed window", why)
         why = np.where((method == "none") & (win.end < 0), "no rate: no readings in the window",
                        why)
-    flags = trace_flags(prep, curves, win, method, slope, se, mp, noisy_limit,
-                        fixed=window != "auto")
-    return _assemble(prep, curves, win, method, slope, se, why, flags, curve)
+    marks = trace_marks(prep, curves, win, method, mp, fixed=window != "auto")
+    return _assemble(prep, curves, win, method, slope, se, why, marks, curve), bad
 
 
-def _fit_stage(grid: Grid, noise_floor: float, rich: bool) -> tuple[Prepared, Curves]:
-    """The prepared readings and the whole curves (the exponential alone without ``rich``);
-    readings far off a trace's curve are set aside as spikes and those traces fitted again."""
-    prep = prepare(grid, noise_floor)
+def _concat(parts: list[Windows]) -> Windows:
+    """One :class:`Windows` from those of consecutive chunks of traces."""
+    if len(parts) == 1:
+        return parts[0]
+    out = {}
+    for f in fields(Windows):
+        vals = [getattr(p, f.name) for p in parts]
+        out[f.name] = sum(vals, []) if isinstance(vals[0], list) else np.concatenate(vals)
+    return Windows(**out)
+
+
+def _fit_stage(grid: Grid, noise_floor: float, rich: bool, clock: Clock,
+               again: Clock | None) -> tuple[Prepared, Curves, np.ndarray]:
+    """The prepared readings, the whole curves (the exponential alone without ``rich``) and
+    the readings far off a trace's curve; with ``again`` (the second pass) those readings are
+    set aside as spikes and the traces that had them fitted again."""
+    prep = prepare(grid, noise_floor, clock=clock)
     curves = fit_curves(prep, rich=rich)
     bad = outliers(prep, curves.fitted, prep.sigma)
-    if not bad.any():
-        return prep, curves
-    prep = prepare(grid, noise_floor, prep.spikes | bad)
+    if again is None:
+        return prep, curves, bad
+    prep = prepare(grid, noise_floor, prep.spikes | bad, clock=again)
     rows = np.nonzero(bad.any(axis=1))[0]
-    return prep, merge(curves, fit_curves(_rows(prep, rows), rich=rich), rows)
+    if rows.size:
+        curves = merge(curves, fit_curves(_rows(prep, rows), rich=rich), rows)
+    return prep, curves, bad
 
 
 @dataclass(frozen=True)

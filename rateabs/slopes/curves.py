@@ -24,7 +24,7 @@ Members: ``line`` (k = 0), ``exp`` (rho = 0), ``mm`` (rho free), ``lag`` (k = 0,
 ``lag-exp`` (rho = 0, k and L free).
 
 The fit is separable: for fixed (k, rho, L) the curve is a straight line in F, so c and v follow
-from sums. Every trace is first fitted on a grid of (k, rho, L) at once (three matrix products
+from sums. Every trace is first fitted on a grid of (k, rho, L) at once (three sums of products
 over the traces x times array), and the optimum between grid points is found by parabolas
 through the best point and its neighbours (the exponential's initial slope within 0.02 SE of
 scipy's curve_fit, tests/test_slopes_curves.py); members with two shape parameters are then
@@ -40,6 +40,7 @@ import numpy as np
 from scipy import stats
 
 from ..fitting import batch_lm
+from . import prepare
 
 #: The members of the family and the parameters each one fits (of c, v, k, rho, L).
 MEMBERS = {"line": (0, 1), "exp": (0, 1, 2), "mm": (0, 1, 2, 3), "lag": (0, 1, 4),
@@ -180,21 +181,37 @@ def grid_rss(times, Y, W, k, rho, lag) -> np.ndarray:
     """Weighted RSS of the best straight line of Y in F(t; k, rho, L), for every trace (rows of
     ``Y``, ``W``) and every grid point (the arrays ``k``, ``rho``, ``lag``): shape (N, G).
 
-    ``times`` (n,) are representative times of the columns: F is tabulated once per grid point
-    and the sums come from three matrix products.
+    ``times`` (n,) are representative times of the columns: F is tabulated per grid point (in
+    chunks of at most ``prepare.CHUNK_READINGS`` numbers) and the sums come from products (:func:`_dot`).
     """
-    F = progress(np.asarray(times, float)[None, :], 0.0, 1.0, k[:, None], rho[:, None],
-                 lag[:, None])
-    F = np.where(np.isfinite(F), F, 0.0)
+    times = np.asarray(times, float)[None, :]
     sw = W.sum(axis=1)[:, None]
     wy = W * Y
     sy = wy.sum(axis=1)[:, None]
-    sf, sff, sfy = W @ F.T, W @ (F * F).T, wy @ F.T
-    with np.errstate(all="ignore"):
-        var_f = sff - sf * sf / sw
-        cov = sfy - sf * sy / sw
-        rss = (wy * Y).sum(axis=1)[:, None] - sy * sy / sw - cov * cov / var_f
-    return np.where(np.isfinite(rss) & (var_f > 1e-12 * np.maximum(sff, 1e-300)), rss, np.inf)
+    syy = (wy * Y).sum(axis=1)[:, None]
+    step = max(1, prepare.CHUNK_READINGS // max(times.shape[1], 1))
+    out = np.empty((Y.shape[0], np.size(k)))
+    for g0 in range(0, np.size(k), step):
+        part = slice(g0, g0 + step)
+        F = progress(times, 0.0, 1.0, k[part, None], rho[part, None], lag[part, None])
+        F[~np.isfinite(F)] = 0.0
+        sf, sfy = _dot(W, F), _dot(wy, F)
+        F *= F
+        sff = _dot(W, F)
+        with np.errstate(all="ignore"):
+            var_f = sff - sf * sf / sw
+            cov = sfy - sf * sy / sw
+            rss = syy - sy * sy / sw - cov * cov / var_f
+        out[:, part] = np.where(np.isfinite(rss) & (var_f > 1e-12 * np.maximum(sff, 1e-300)),
+                                rss, np.inf)
+    return out
+
+
+def _dot(A, B) -> np.ndarray:
+    """A @ B.T summed in an order that depends on neither matrix's number of rows (a BLAS
+    product may round differently as they change), so that traces and grid points taken in
+    chunks give the numbers the whole plate gives."""
+    return np.einsum("ij,gj->ig", A, B)
 
 
 #: A trace whose used readings lie further than this share of the span from the columns'

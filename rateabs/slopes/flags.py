@@ -62,9 +62,9 @@ NOISE_ABSOLUTE = 0.02
 NOISY_HOPELESS = 10.0
 
 
-def trace_flags(prep, curves, win, method, slope, se, min_points: int, noisy_limit: float,
-                fixed: bool) -> list[list[str]]:
-    """The flags of every trace, in the order of :data:`TRACE_FLAGS`."""
+def trace_marks(prep, curves, win, method, min_points: int, fixed: bool) -> np.ndarray:
+    """The flags of every trace that rest on the trace alone: a (traces x 5) bool array, the
+    columns in the order of :data:`TRACE_FLAGS` without ``noisy`` (:func:`noisy`)."""
     n_use = prep.n_use
     few = (method == "none") | (n_use < min_points) | (fixed & (win.end < 0))
     lag = ((win.lag > LONG_LAG * prep.span) | ((curves.member == "lag-exp") & (
@@ -75,15 +75,23 @@ def trace_flags(prep, curves, win, method, slope, se, min_points: int, noisy_lim
     with np.errstate(all="ignore"):
         speeds = ((curves.member == "exp") & (curves.params[:, 2] < 0) & (method != "none")
                   & ((curves.line_rss - curves.rss) > CURVED_CHI2 * curves.sigma ** 2))
+    start = _start(prep, curves, method)
+    return np.column_stack([few, lag, misfit, speeds, start]).reshape(-1, 5)
+
+
+def noisy(slope, se, sigma, noisy_limit: float) -> np.ndarray:
+    """The ``noisy`` flag of every trace, against the plate's typical rate and noise (so it
+    needs every trace's slope, SE and noise SD at once)."""
     finite = np.abs(slope[np.isfinite(slope)])
     typical = float(np.quantile(finite, TYPICAL_QUANTILE)) if finite.size else 0.0
-    sigma = prep.sigma
     loud = (sigma > NOISE_EXCESS * np.median(sigma)) | (sigma > NOISE_ABSOLUTE) if sigma.size \
         else np.zeros(0, bool)
     scale = noisy_limit * np.maximum(np.abs(slope), typical)
-    noisy = np.isfinite(se) & (((se > scale) & loud) | (se > NOISY_HOPELESS * scale))
-    start = _start(prep, curves, method)
-    marks = np.column_stack([few, lag, misfit, speeds, start, noisy])
+    return np.isfinite(se) & (((se > scale) & loud) | (se > NOISY_HOPELESS * scale))
+
+
+def flag_words(marks) -> list[list[str]]:
+    """The names of the flags set in each row of ``marks`` (columns as :data:`TRACE_FLAGS`)."""
     words = list(TRACE_FLAGS)
     return [[words[j] for j in np.flatnonzero(row)] for row in marks]
 

@@ -23,6 +23,12 @@ SPIKE_Z = 5.5
 OUTLIER_Z = 6.0
 OUTLIER_MAX = 2
 
+#: The most readings (traces x times) the estimator works on at once: traces are taken in
+#: chunks of rows (and grids of curve shapes in chunks of grid points) so that its memory stays
+#: in proportion to the data. What spans traces (the columns' times, the longest duration, the
+#: plate's typical noise and rate) is computed over all of them, so chunks never change a result.
+CHUNK_READINGS = 250_000
+
 
 @contextmanager
 def quiet_numpy():
@@ -92,7 +98,8 @@ class Prepared:
     unusable); ``W``: 1.0 for a reading used, else 0 (spikes set aside); ``first``: index of the
     first usable reading, ``t0``/``y0`` its time and reading; ``sigma``: noise SD; ``spikes``:
     readings set aside as spikes; ``span``: the longest trace's duration; ``times``: the times
-    of the columns, from the first reading, as most traces have them.
+    of the columns, from the first reading, as most traces have them (``span`` and ``times``
+    are the plate's, :class:`Clock`, also where these are some of its traces).
     """
 
     grid: Grid
@@ -115,11 +122,31 @@ class Prepared:
         return self.usable.sum(axis=1)
 
 
-def prepare(grid: Grid, noise_floor: float = 1e-4, set_aside=None) -> Prepared:
-    """Noise, spikes and relative readings of every trace (see :class:`Prepared`);
-    ``set_aside`` (traces x times, optional) marks more readings to treat as spikes."""
-    T, Y = grid.times, grid.values
-    N, M = Y.shape
+@dataclass(frozen=True)
+class Clock:
+    """What the traces share: ``times``, the columns' times from the first reading as most
+    traces have them, and ``span``, the longest trace's duration (computed over every trace,
+    so that traces taken in chunks see the same)."""
+
+    times: np.ndarray
+    span: float
+
+
+def row_chunks(n_traces: int, n_times: int) -> list[slice]:
+    """The traces in chunks of rows of at most :data:`CHUNK_READINGS` readings (one trace at
+    least; one empty chunk without traces)."""
+    step = max(1, CHUNK_READINGS // max(n_times, 1))
+    return [slice(i, i + step) for i in range(0, n_traces, step)] or [slice(0, 0)]
+
+
+def sub_grid(grid: Grid, rows: slice) -> Grid:
+    """The traces ``rows`` of a grid, as views (no copy)."""
+    return Grid(list(grid.names[rows]), grid.times[rows], grid.values[rows], grid.usable[rows],
+                None if grid.flags is None else grid.flags[rows])
+
+
+def _used(grid: Grid, noise_floor: float, set_aside):
+    """Noise SD, spikes and the readings used (see :func:`prepare`)."""
     sigma = noise_sigma(grid, noise_floor)
     spikes = find_spikes(grid, sigma)
     if set_aside is not None:
@@ -127,16 +154,62 @@ def prepare(grid: Grid, noise_floor: float = 1e-4, set_aside=None) -> Prepared:
     U = grid.usable & ~spikes
     if spikes.any():
         sigma = noise_sigma(grid, noise_floor, U)
+    return sigma, spikes, U
+
+
+def _first(T, Y, U):
+    """Index of each trace's first and last used reading, and the time and reading there."""
+    N, M = U.shape
     rows = np.arange(N)
     first = np.argmax(U, axis=1)
     last = M - 1 - np.argmax(U[:, ::-1], axis=1)
     t0 = np.where(U.any(axis=1), np.nan_to_num(T[rows, first]), 0.0)
     y0 = np.where(U.any(axis=1), np.nan_to_num(Y[rows, first]), 0.0)
+    return first, last, t0, y0
+
+
+def _column_times(T, U, t0, span: float) -> np.ndarray:
+    """The median over traces of each column's time from the trace's first used reading
+    (columns taken in chunks); evenly spread over ``span`` where no trace has one."""
+    N, M = U.shape
+    times = np.empty(M)
+    step = max(1, CHUNK_READINGS // max(N, 1))
+    with quiet_numpy():
+        for c in range(0, M, step):
+            cols = slice(c, c + step)
+            times[cols] = np.nanmedian(np.where(U[:, cols], T[:, cols] - t0[:, None], np.nan),
+                                       axis=0)
+    return np.where(np.isfinite(times), times, np.linspace(0.0, span, M))
+
+
+def plate_clock(grid: Grid, noise_floor: float = 1e-4, set_aside=None) -> Clock:
+    """The :class:`Clock` of all traces, as :func:`prepare` finds it for the whole grid, with
+    the traces taken in chunks of rows."""
+    N, M = grid.values.shape
+    U = np.zeros((N, M), dtype=bool)
+    t0 = np.zeros(N)
+    longest = []
+    for rows in row_chunks(N, M):
+        sub = sub_grid(grid, rows)
+        U[rows] = _used(sub, noise_floor, None if set_aside is None else set_aside[rows])[2]
+        t0[rows] = _first(sub.times, sub.values, U[rows])[2]
+        longest.append(np.max(np.where(U[rows], sub.times - t0[rows, None], 0.0), initial=0.0))
+    span = float(max(np.max(longest, initial=0.0), 1e-9))
+    return Clock(_column_times(grid.times, U, t0, span), span)
+
+
+def prepare(grid: Grid, noise_floor: float = 1e-4, set_aside=None,
+            clock: Clock | None = None) -> Prepared:
+    """Noise, spikes and relative readings of every trace (see :class:`Prepared`);
+    ``set_aside`` (traces x times, optional) marks more readings to treat as spikes; ``clock``
+    (default: this grid's own) gives the times and span the traces share."""
+    T, Y = grid.times, grid.values
+    sigma, spikes, U = _used(grid, noise_floor, set_aside)
+    first, last, t0, y0 = _first(T, Y, U)
     Tc = np.where(U, T - t0[:, None], 0.0)
     Yc = np.where(U, Y - y0[:, None], 0.0)
-    span = float(max(np.max(Tc, initial=0.0), 1e-9))
-    with quiet_numpy():
-        times = np.nanmedian(np.where(U, Tc, np.nan), axis=0)
-    times = np.where(np.isfinite(times), times, np.linspace(0.0, span, M))
-    return Prepared(grid, Tc, Yc, U.astype(float), U, first, last, t0, y0, sigma, spikes, span,
-                    times)
+    if clock is None:
+        span = float(max(np.max(Tc, initial=0.0), 1e-9))
+        clock = Clock(_column_times(T, U, t0, span), span)
+    return Prepared(grid, Tc, Yc, U.astype(float), U, first, last, t0, y0, sigma, spikes,
+                    clock.span, clock.times)
