@@ -228,7 +228,7 @@ def _collect(plan: Plan, executor, sinks: list, spool, bar) -> tuple[list[dict],
         for sink in sinks:
             sink.write(body)
         for r in rows:
-            spool.write(json.dumps(r, ensure_ascii=False) + "\n")
+            spool.write(_spooled(r))
         meanings = meanings or (result.get("settings") or {}).get("flag_meanings", {})
         plates.append(_summary(path, task, result))
     return plates, meanings
@@ -244,14 +244,25 @@ def _json_pieces(doc: dict, spool) -> Iterator[str]:
     if first is None:                               # no rows at all: "results": []
         yield before.rstrip() + after.lstrip()
         return
-    yield before + _indented(first)
+    yield before + _unspooled(first)
     for line in rows:
-        yield ",\n    " + _indented(line)
+        yield ",\n    " + _unspooled(line)
     yield after
 
 
-def _indented(line: str) -> str:
-    return json.dumps(json.loads(line), indent=2, ensure_ascii=False).replace("\n", "\n    ")
+#: Stands for a line break inside a spooled row (JSON escapes every control character inside
+#: its strings, so the raw character never occurs in the text json.dumps writes).
+_BREAK = "\x1e"
+
+
+def _spooled(row: dict) -> str:
+    """A result row as the document will show it (indented, as to_json writes), on one line
+    of the spool: encoded once, as it arrives, not again for each copy of the document."""
+    return json.dumps(row, indent=2, ensure_ascii=False).replace("\n", _BREAK) + "\n"
+
+
+def _unspooled(line: str) -> str:
+    return line.rstrip("\n").replace(_BREAK, "\n    ")
 
 
 def _document_head(plan: Plan, where: str, plates: list[dict], meanings: dict) -> dict:
