@@ -263,12 +263,15 @@ def test_follow_reads_a_growing_file_with_a_torn_line(tmp_path):
     path = tmp_path / "live.csv"
     t = np.arange(0, 90 * 60, 30.0)
     y = _noisy(0.05 + beer_lambert(first_order_decay(t, 1.15e-4, 1.2e-3), EPS), 9)
-    path.write_text("time_min,A520\n")
+    # the first 30 readings are there before the follower starts, so that a slow writer on a
+    # loaded machine cannot leave it with too few readings when its updates run out
+    path.write_text("time_min,A520\n" + "".join(f"{tt / 60:.2f},{yy:.4f}\n"
+                                                  for tt, yy in zip(t[:30], y[:30], strict=True)))
     stop = threading.Event()
 
     def writer():
         with open(path, "a") as fh:
-            for k, (tt, yy) in enumerate(zip(t, y, strict=True)):
+            for k, (tt, yy) in enumerate(zip(t[30:], y[30:], strict=True), start=30):
                 if stop.is_set():
                     return
                 line = f"{tt / 60:.2f},{yy:.4f}\n"
