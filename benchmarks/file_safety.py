@@ -26,7 +26,9 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
 ENV = {**os.environ, "PYTHONPATH": str(ROOT)}
-sys.path.insert(0, str(ROOT))
+sys.path[:0] = [str(ROOT), str(ROOT / "tests")]
+
+from helpers import session_processes  # noqa: E402
 
 from rateabs.files import MANIFEST, TMP_SUFFIX, read_manifest  # noqa: E402
 from rateabs.simulate import first_order_class  # noqa: E402
@@ -79,20 +81,6 @@ def writers(rounds: int, procs: int = 6) -> None:
               f"folder that was not one run's (manifest {MANIFEST})")
 
 
-def _session(sid: int) -> list[int]:
-    out = []
-    for entry in os.listdir("/proc"):
-        if entry.isdigit():
-            try:
-                text = Path(f"/proc/{entry}/stat").read_text()
-            except OSError:
-                continue
-            fields = text[text.rindex(")") + 2:].split()
-            if int(fields[3]) == sid and fields[0] not in ("Z", "X"):
-                out.append(int(entry))
-    return out
-
-
 def _until(cond, limit: float) -> bool:
     end = time.monotonic() + limit
     while time.monotonic() < end and not cond():
@@ -114,15 +102,15 @@ def orphans(trials: int) -> None:
                 p = subprocess.Popen(argv, env=ENV, start_new_session=True, cwd=d,
                                      stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
                 try:
-                    _until(lambda pid=p.pid: len(_session(pid)) >= 3, 120)
-                    seen += len(_session(p.pid)) - 1
+                    _until(lambda pid=p.pid: len(session_processes(pid)) >= 3, 120)
+                    seen += len(session_processes(p.pid)) - 1
                     (os.killpg if sig == signal.SIGINT else os.kill)(p.pid, sig)
                     p.wait(timeout=120)
                     codes += p.returncode == (130 if sig == signal.SIGINT else -sig)
                     time.sleep(5)
-                    alive += len(_session(p.pid))
+                    alive += len(session_processes(p.pid))
                 finally:
-                    for q in _session(p.pid):
+                    for q in session_processes(p.pid):
                         os.kill(q, signal.SIGKILL)
             print(f"orphans after {name}: {trials} runs, {seen} workers seen, {alive} alive 5 s "
                   f"after the parent ended; expected exit status in {codes} of {trials}")

@@ -200,3 +200,23 @@ def mutate(rng: np.random.Generator, data: bytes, n: int | None = None) -> tuple
         data = MUTATIONS[name](rng, data)
         done.append(name)
     return data, done
+
+
+def session_processes(sid: int) -> list[int]:
+    """Live (not zombie) processes of a session, read from /proc (Linux's proc(5) stat fields:
+    state is the third, the session id the sixth)."""
+    import os
+    from pathlib import Path
+
+    out = []
+    for entry in os.listdir("/proc"):
+        if not entry.isdigit():
+            continue
+        try:
+            text = Path(f"/proc/{entry}/stat").read_text()
+        except OSError:
+            continue
+        fields = text[text.rindex(")") + 2:].split()
+        if int(fields[3]) == sid and fields[0] not in ("Z", "X"):
+            out.append(int(entry))
+    return out

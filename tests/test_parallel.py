@@ -19,6 +19,7 @@ from concurrent.futures import Executor, ThreadPoolExecutor
 from pathlib import Path
 
 import pytest
+from helpers import session_processes
 
 from rateabs.errors import UsageError
 from rateabs.grade import grade_class, read_rubric
@@ -280,22 +281,6 @@ def test_sample_class_identical_on_dask(dask_scheduler):
 # --------------------------------------------------------------------------- parent death
 
 
-def _session(sid: int) -> list[int]:
-    """Live (not zombie) processes of a session, read from /proc."""
-    out = []
-    for entry in os.listdir("/proc"):
-        if not entry.isdigit():
-            continue
-        try:
-            text = Path(f"/proc/{entry}/stat").read_text()
-        except OSError:
-            continue
-        fields = text[text.rindex(")") + 2:].split()
-        if int(fields[3]) == sid and fields[0] not in ("Z", "X"):
-            out.append(int(entry))
-    return out
-
-
 def _wait_until(cond, limit_s: float = 60.0, every: float = 0.1) -> bool:
     deadline = time.monotonic() + limit_s
     while time.monotonic() < deadline:
@@ -327,15 +312,15 @@ def _start(argv, cwd) -> subprocess.Popen:
 
 def _kill_and_count_survivors(p: subprocess.Popen, sig: int, n_workers: int = 2) -> tuple:
     try:
-        assert _wait_until(lambda: len(_session(p.pid)) >= 1 + n_workers), \
+        assert _wait_until(lambda: len(session_processes(p.pid)) >= 1 + n_workers), \
             "the workers never started"
-        workers = [q for q in _session(p.pid) if q != p.pid]
+        workers = [q for q in session_processes(p.pid) if q != p.pid]
         os.kill(p.pid, sig)
         p.wait(timeout=60)
-        _wait_until(lambda: not _session(p.pid), limit_s=15)
-        return _session(p.pid), workers
+        _wait_until(lambda: not session_processes(p.pid), limit_s=15)
+        return session_processes(p.pid), workers
     finally:
-        for q in _session(p.pid):                              # never leave one behind
+        for q in session_processes(p.pid):                              # never leave one behind
             os.kill(q, signal.SIGKILL)
         if p.poll() is None:
             p.kill()
@@ -374,12 +359,12 @@ def test_killed_grade_leaves_no_worker(big_class, tmp_path, sig):
 def test_ctrl_c_on_grade_exits_130_with_a_summary_and_no_worker(big_class, tmp_path):
     p = _start(_grade_argv(big_class), tmp_path)
     try:
-        assert _wait_until(lambda: len(_session(p.pid)) >= 3), "the workers never started"
+        assert _wait_until(lambda: len(session_processes(p.pid)) >= 3), "the workers never started"
         os.killpg(p.pid, signal.SIGINT)                        # as a terminal's Ctrl-C does
         err = p.communicate(timeout=60)[1]
-        assert _wait_until(lambda: not _session(p.pid), limit_s=15)
+        assert _wait_until(lambda: not session_processes(p.pid), limit_s=15)
     finally:
-        for q in _session(p.pid):
+        for q in session_processes(p.pid):
             os.kill(q, signal.SIGKILL)
     lines = [ln for ln in err.splitlines() if ln.startswith("rateabs:")]
     assert p.returncode == 130
