@@ -44,7 +44,9 @@ def absorbance_from_percent_t(pct):
 def absorbance_from_intensity(i, i0):
     """A = log10(I0 / I) from a sample intensity I and a reference intensity I0."""
     i = np.asarray(i, dtype=float)
-    return absorbance_from_transmittance(i / np.asarray(i0, dtype=float))
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        t = i / np.asarray(i0, dtype=float)
+    return absorbance_from_transmittance(np.where(np.isfinite(t), t, np.nan))   # no reading
 
 
 def transmittance_from_absorbance(a):

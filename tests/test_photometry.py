@@ -154,3 +154,17 @@ def test_epsilon_spellings_agree(x):
     a = units.parse_epsilon(f"{x!r} M^-1 cm^-1")
     assert units.parse_epsilon(f"{x / 1000!r} mM^-1 cm^-1") == pytest.approx(a, rel=1e-12)
     assert units.parse_epsilon(f"{x!r} L/(mol*cm)") == pytest.approx(a, rel=1e-12)
+
+
+def test_an_intensity_ratio_beyond_floating_point_is_no_reading_and_no_warning():
+    # found by benchmarks/fuzz_reader.py: I = 1e308 over I0 = 1e-5 overflowed with a
+    # RuntimeWarning on the user's terminal; A = log10(I0/I) (IUPAC, absorbance) of 50 in 100 is
+    # log10 2, and a zero intensity has no absorbance
+    import warnings
+
+    from rateabs.photometry import absorbance_from_intensity
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        a = absorbance_from_intensity([1e308, 50.0, 0.0], [1e-5, 100.0, 100.0])
+    assert np.isnan(a[0]) and a[1] == pytest.approx(np.log10(2), rel=1e-12) and np.isnan(a[2])
