@@ -8,11 +8,13 @@ truncation, duplicated, removed, swapped and blank lines, duplicated and removed
 numbers such as 1e308, inf or a superscript digit, header words such as ``second`` or
 ``Cycle``, duplicated columns, a field over 128 kB, another encoding, other line ends) and runs:
 
-* ``read_traces`` then the ``inspect`` summary on what it read;
+* ``read_traces`` then the ``inspect`` summary and the ``rates`` analysis
+  (``rates.analyse_plate`` with its defaults) on what it read;
 * ``read_table`` and ``number_column`` on every column (plate maps, tables of rates);
 * ``layout.read_layout`` on mutated plate maps.
 
-A crash is any exception other than ``InputError``, an error message of more than one line, or
+A crash is any exception other than the package's own one-line errors (``RateabsError``: bad
+input, bad usage, an analysis the data cannot carry), an error message of more than one line, or
 a case that takes longer than ``--timeout`` seconds (a hang); crashes are counted by signature
 (stage, exception type, innermost frame). Python warnings raised on the way (text that would
 reach a user's terminal) are counted by place too. Goal: 0 of each.
@@ -43,10 +45,11 @@ sys.path.insert(0, str(ROOT))
 
 from helpers import mutate, seed_exports  # noqa: E402
 
-from rateabs.errors import InputError  # noqa: E402
+from rateabs.errors import InputError, RateabsError  # noqa: E402
 from rateabs.inspecting import summarize  # noqa: E402
 from rateabs.io import number_column, read_table, read_traces  # noqa: E402
 from rateabs.layout import read_layout  # noqa: E402
+from rateabs.rates import analyse_plate  # noqa: E402
 
 
 def seeds(rng: np.random.Generator) -> list[tuple[str, bytes]]:
@@ -97,9 +100,9 @@ def _signature(stage: str, exc: BaseException) -> str:
 def _stage(stage: str, fn, path: Path, crashes: Counter, examples: dict, label: str) -> object:
     try:
         return fn(path)
-    except InputError as exc:
+    except RateabsError as exc:                         # the one-line refusals of the CLI
         if "\n" in str(exc):
-            sig = f"{stage}: InputError message of several lines"
+            sig = f"{stage}: {type(exc).__name__} message of several lines"
             crashes[sig] += 1
             examples.setdefault(sig, label)
         return None
@@ -153,6 +156,7 @@ def _case(path: Path, name: str, crashes: Counter, examples: dict, outcomes: Cou
     outcomes["read_traces ok" if ts is not None else "read_traces refused"] += 1
     if ts is not None:
         _stage("inspect", lambda p: summarize(ts), path, crashes, examples, label)
+        _stage("rates", lambda p: analyse_plate(ts), path, crashes, examples, label)
     _stage("read_table", _table_columns, path, crashes, examples, label)
     if "map" in name:
         _stage("read_layout", lambda p: read_layout(str(p)), path, crashes, examples, label)
