@@ -60,6 +60,10 @@ ACTIVITY_FLAGS = {
 Z_OUTLIER = 3.5            # |z| above which a replicate is flagged
 POOL_MIN_GROUPS = 4        # replicate groups needed to pool the plate's replicate scatter
 DEPLETION_LIMIT = 0.10     # fraction of the substrate used within a straight window
+#: Why a well's whole-curve slope replaced its straight window (:func:`prefer_curve_where_depleted`).
+DEPLETED_CHOICE = (f"curve: more than {100 * DEPLETION_LIMIT:.0f} % of the map's substrate was "
+                   "used within the straight window; the whole-curve initial slope follows the "
+                   "depletion")
 NKAT_PER_U = 1e9 / 60e6    # 1 U = 1 umol/min = 1e-6/60 mol/s = 16.67 nkat (NC-IUB 1979)
 TREND_LIMIT = 0.05         # relative change per two-fold dilution that counts as a trend
 
@@ -916,12 +920,10 @@ def prefer_curve_where_depleted(s: TraceSlopes, table: pd.DataFrame,
     switch = depleted(table, s) & np.isfinite(w.curve_slope) & np.isfinite(w.curve_slope_se)
     if not switch.any():
         return None
-    why = (f"curve: more than {100 * DEPLETION_LIMIT:.0f} % of the map's substrate was used "
-           "within the straight window; the whole-curve initial slope follows the depletion")
     return replace(s, slope=np.where(switch, w.curve_slope * 60, s.slope),
                    slope_se=np.where(switch, w.curve_slope_se * 60, s.slope_se),
                    method=np.where(switch, "curve", s.method),
-                   choice=np.where(switch, why, s.choice))
+                   choice=np.where(switch, DEPLETED_CHOICE, s.choice))
 
 
 def well_table(g: Grid, s: TraceSlopes, wells: pd.DataFrame, slope, se,

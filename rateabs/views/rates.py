@@ -103,6 +103,15 @@ def _epsilon_words(o: RatesOptions, a) -> str:
     return f"{st.epsilon:g}{se} M^-1 cm^-1 ({src})"
 
 
+def _estimator_words(st, table) -> str:
+    """The estimator, and how many wells it moved to the curve for the map's substrate."""
+    from ..rates import DEPLETED_CHOICE
+
+    n = int((table["choice"] == DEPLETED_CHOICE).sum()) if "choice" in table.columns else 0
+    return f"estimator {st.slope_from}" + (
+        f"; {n} by the map's substrate, used over 10 % within the window" if n else "")
+
+
 def _counts(values) -> str:
     out: dict = {}
     for v in values:
@@ -146,7 +155,7 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
              f"blanks: {_list(blanks)} ({a.blank_info['mode']} subtracted)" if blanks else
              "blanks: none marked, nothing subtracted",
              f"assay direction: the signal goes {a.blank_info.get('direction')}",
-             f"initial slope: {_counts(t['method'])} (estimator {st.slope_from})"]
+             f"initial slope: {_counts(t['method'])} ({_estimator_words(st, t)})"]
     if st.total_volume_L:
         lines.append(f"activity: {st.total_volume_L * 1e6:g} uL reaction, "
                      f"{st.sample_volume_L * 1e6:g} uL sample; dilution: "
