@@ -219,6 +219,21 @@ def _dot(A, B) -> np.ndarray:
 TIME_TOLERANCE = 0.005
 
 
+def _by_clock(member: str, times, Y, W, span: float, T, off) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`grid_optimum` with the traces ``off`` the shared clock grouped by their own."""
+    shape, best = np.zeros((Y.shape[0], 3)), np.zeros(Y.shape[0])
+    share = ~off
+    if share.any():
+        shape[share], best[share] = grid_optimum(member, times, Y[share], W[share], span)
+    own = np.where(W[off] > 0, T[off], -1.0)
+    clocks, which = np.unique(np.round(own, 9), axis=0, return_inverse=True)
+    rows = np.nonzero(off)[0]
+    for c in range(clocks.shape[0]):
+        r = rows[which.ravel() == c]
+        shape[r], best[r] = grid_optimum(member, np.nan_to_num(T[r[0]]), Y[r], W[r], span)
+    return shape, best
+
+
 def grid_optimum(member: str, times, Y, W, span: float, T=None) -> tuple[np.ndarray, np.ndarray]:
     """(k, rho, L) of every trace for ``member`` from the grid, and the RSS there.
 
@@ -232,18 +247,7 @@ def grid_optimum(member: str, times, Y, W, span: float, T=None) -> tuple[np.ndar
         off = np.nanmax(np.abs(own - np.asarray(times)[None, :]), axis=1,
                         initial=0.0) > TIME_TOLERANCE * span
         if off.any():
-            shape, best = np.zeros((Y.shape[0], 3)), np.zeros(Y.shape[0])
-            share = ~off
-            if share.any():
-                shape[share], best[share] = grid_optimum(member, times, Y[share], W[share], span)
-            clocks, which = np.unique(np.round(np.nan_to_num(own[off], nan=-1.0), 9), axis=0,
-                                      return_inverse=True)
-            rows = np.nonzero(off)[0]
-            for c in range(clocks.shape[0]):
-                r = rows[which.ravel() == c]
-                shape[r], best[r] = grid_optimum(member, np.nan_to_num(T[r[0]]), Y[r], W[r],
-                                                 span)
-            return shape, best
+            return _by_clock(member, times, Y, W, span, T, off)
     kappa, outer_name, outer = GRID[member]
     kk, oo = np.meshgrid(kappa, outer, indexing="xy")               # (n_outer, n_kappa)
     rho = oo if outer_name == "rho" else np.zeros_like(oo)
