@@ -56,9 +56,17 @@ def conc_column(df, stem: str):
     return None
 
 
+def header_unit(df, col: str | None) -> str:
+    """The unit a map column's header names as written (``enzyme (uM)``, ``substrate_mM``: the
+    columns are matched in lower case, their units read in the case they were given), or ""."""
+    return unit_from_header(df.attrs.get("headers", {}).get(col, col)) if col else ""
+
+
 def parse_conc_cells(df, col: str, path: str, lines) -> np.ndarray:
-    """Concentrations (mol/L) of a column; unit from the header or each cell, bare numbers µM."""
-    unit = unit_from_header(col) or "uM"
+    """Concentrations (mol/L) of a column; unit from the header (as written: mM is not Mm) or
+    each cell, bare numbers µM."""
+    header = df.attrs.get("headers", {}).get(col, col)
+    unit = header_unit(df, col) or "uM"
     out = np.full(len(df), np.nan)
     for k, cell in enumerate(df[col].tolist()):
         c = str(cell).strip()
@@ -67,7 +75,8 @@ def parse_conc_cells(df, col: str, path: str, lines) -> np.ndarray:
         try:
             out[k] = parse_concentration(c, default=unit)
         except UnitError as exc:
-            raise InputError(exc.problem, exc.fix, file=path, row=lines[k], column=col) from None
+            raise InputError(exc.problem, exc.fix, file=path, row=lines[k],
+                             column=header) from None
         if out[k] < 0:
             raise InputError(f"negative concentration {c!r}", "concentrations cannot be negative",
                              file=path, row=lines[k], column=col)
@@ -100,7 +109,9 @@ def read_layout(path: str) -> pd.DataFrame:
     window (None, ``"auto"`` or a (start_s, end_s) pair) and skip (times in s, a tuple).
     """
     df = read_table(path)
+    headers = {str(c).strip().lower(): str(c).strip() for c in df.columns}
     df = df.rename(columns={c: str(c).strip().lower() for c in df.columns})
+    df.attrs["headers"] = headers              # as written: units in headers keep their case
     for req in ("well", "role"):
         if req not in df.columns:
             raise InputError(f"the plate map has no {req!r} column",
@@ -161,9 +172,10 @@ def _enzyme(m: _MapCells) -> tuple[list[str], np.ndarray]:
     col = conc_column(m.df, "enzyme")
     text = [str(x).strip() for x in m.df[col]] if col else [""] * len(m.df)
     molar = np.full(len(m.df), np.nan)
+    unit = header_unit(m.df, col) or "nM"
     for k, c in m.cells(col):
         try:
-            molar[k] = parse_concentration(c, default="nM")
+            molar[k] = parse_concentration(c, default=unit)
         except UnitError:
             continue
     return text, molar
@@ -177,18 +189,19 @@ def _dilutions(m: _MapCells) -> np.ndarray:
         except ValueError:
             raise m.fail(k, "dilution", f"dilution {c!r} is not a number",
                          "write e.g. 10 for 1:10") from None
-        if not (np.isfinite(dil[k]) and dil[k] > 0):
-            raise m.fail(k, "dilution", f"dilution {c!r} must be a positive number",
-                         "write e.g. 10 for 1:10")
+        if not (np.isfinite(dil[k]) and dil[k] >= 1):
+            raise m.fail(k, "dilution", f"dilution {c!r} is below 1",
+                         "write the fold dilution, 1 or more (10 for 1:10), as --dilution takes")
     return dil
 
 
 def _protein(m: _MapCells) -> np.ndarray:
     col = conc_column(m.df, "protein")
     prot = np.full(len(m.df), np.nan)
+    unit = header_unit(m.df, col) or "mg/mL"
     for k, c in m.cells(col):
         try:
-            prot[k] = parse_mass_concentration(c)
+            prot[k] = parse_mass_concentration(c, default=unit)
         except UnitError as exc:
             raise m.fail(k, col, exc.problem, exc.fix) from None
     return prot

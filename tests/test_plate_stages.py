@@ -266,3 +266,27 @@ def test_a_forced_window_keeps_its_depletion_flag():
     flagged = t["flags"].map(lambda f: "over-10pct" in f)
     assert flagged.sum() >= 20 and set(t.loc[flagged, "method"]) == {"window"}
     assert z.mean() < -0.5                       # the straight windows read low (depletion)
+
+
+@pytest.mark.parametrize("header,value", [
+    ("substrate_mM", "0.25"), ("substrate (mM)", "0.25"), ("Substrate [mM]", "0.25"),
+    ("substrate (uM)", "250"), ("Substrate (µM)", "250"), ("substrate_M", "0.00025"),
+    ("substrate", "250"), ("substrate", "0.25 mM")])
+def test_the_unit_in_a_map_header_is_read_as_written(tmp_path, header, value):
+    # 250 uM = 0.25 mM = 2.5e-4 M (SI prefixes); a bare number is uM, as docs/formats.md says.
+    # The unit was read after the headers were lower-cased: mM became "mm" (refused) or
+    # "substrate_mM" fell back to uM, a factor of 1000 with no word
+    mp = tmp_path / "m.csv"
+    mp.write_text(f"well,role,{header},enzyme (uM),protein (ug/mL)\nA1,sample,{value},0.002,500\n",
+                  encoding="utf-8")
+    lay = read_layout(mp)
+    assert lay.loc["A1", "substrate_M"] == pytest.approx(2.5e-4, rel=1e-12)
+    assert lay.loc["A1", "enzyme_M"] == pytest.approx(2e-9, rel=1e-12)
+    assert lay.loc["A1", "protein_mg_per_mL"] == pytest.approx(0.5, rel=1e-12)
+
+
+def test_a_map_dilution_below_one_is_refused(tmp_path):
+    mp = tmp_path / "m.csv"
+    mp.write_text("well,role,dilution\nA1,sample,0.5\n")
+    with pytest.raises(Exception, match="below 1"):
+        read_layout(mp)
