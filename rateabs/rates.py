@@ -804,6 +804,9 @@ def z_prime(table: pd.DataFrame, value_col: str) -> dict | None:
         return None
     z = z_factor(pos, neg)
     verdict = "excellent" if z >= 0.5 else ("marginal" if z > 0 else "controls overlap")
+    if abs(pos.mean()) < abs(neg.mean()):       # a full-signal control below the no-signal one
+        verdict = ("controls reversed: the positive controls change less than the negative "
+                   "ones; are the roles swapped in the map?")
     return {"value": z, "n_positive": int(pos.size), "n_negative": int(neg.size),
             "mean_positive": float(pos.mean()), "mean_negative": float(neg.mean()),
             "sd_positive": float(np.std(pos, ddof=1)), "sd_negative": float(np.std(neg, ddof=1)),
@@ -982,7 +985,9 @@ def _notes(a: RatesAnalysis, value_col: str) -> list[str]:
         notes.append(f"{len(look)} of {len(a.table)} wells need a look ({what}); each flag's "
                      "meaning is listed with the results")
     zp = a.zprime
-    if zp and zp.get("value") is not None and zp["value"] < 0.5:
+    if zp and zp["verdict"].startswith("controls reversed"):
+        notes.append(f"Z' = {zp['value']:.2f} but the {zp['verdict']}")
+    elif zp and zp.get("value") is not None and zp["value"] < 0.5:
         notes.append(f"Z' = {zp['value']:.2f} is below 0.5: the controls do not separate well")
     if not a.activity.empty:
         trend = [r["sample"] for _, r in a.activity.iterrows() if r["flags"]]

@@ -290,3 +290,16 @@ def test_a_map_dilution_below_one_is_refused(tmp_path):
     mp.write_text("well,role,dilution\nA1,sample,0.5\n")
     with pytest.raises(Exception, match="below 1"):
         read_layout(mp)
+
+
+def test_swapped_controls_are_not_called_excellent(tmp_path):
+    # common practice: the positive (full-signal) control changes more than the negative one;
+    # a map with the two roles swapped gave "Z' = 0.93 (excellent)" without a word
+    slopes = {f"A{k}": 0.05 for k in range(1, 7)} | {f"B{k}": 0.005 for k in range(1, 7)}
+    data = _plate_csv(tmp_path / "d.csv", slopes, noise=0.002, seed=5)
+    mp = tmp_path / "m.csv"
+    mp.write_text("well,role\n" + "".join(f"{w},{'negative' if w[0] == 'A' else 'positive'}\n"
+                                          for w in slopes))
+    doc = json.loads(_cli(data, "--layout", mp, "--format", "json", "--no-plots").stdout)
+    assert doc["settings"]["z_prime"]["verdict"].startswith("controls reversed")
+    assert any("swapped" in w for w in doc["warnings"])
