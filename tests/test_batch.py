@@ -389,3 +389,15 @@ def test_a_group_that_cannot_be_fitted_costs_only_that_group(tmp_path):
     assert "1 row(s) have no sample: left out" in doc["warnings"]
     bad = invoke("saturation", table, "--each", "plate")
     assert bad.exit_code == 2 and "--each plate: the table has no column 'plate'" in bad.stderr
+
+
+def test_pictures_asked_of_a_many_file_run_are_refused_or_said(tmp_path):
+    # an option accepted is used or refused: a many-file run draws no pictures
+    slopes = {w: 0.01 for w in WELLS}
+    for k in (1, 2):
+        write_plate(tmp_path / f"p{k}.csv", slopes, seed=k)
+    files = [tmp_path / "p1.csv", tmp_path / "p2.csv"]
+    r = invoke("rates", *files, "--epsilon", "6220", "--well-pages", "all", "--no-plots")
+    assert r.exit_code == 2 and "--well-pages" in r.output
+    doc, _ = rates_json(*files, "--epsilon", "6220", "--out", tmp_path / "out")
+    assert any("no pictures in a many-file run" in w for w in doc["warnings"])

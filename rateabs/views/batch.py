@@ -114,8 +114,15 @@ def plan_plates(o: RatesOptions) -> Plan:
     A folder without data files, a pattern that matches none, or an ambiguous map is refused
     here (UsageError); a missing map or settings that do not suit one file cost that file only.
     """
+    if o.well_pages != "flagged":
+        raise refusal("--well-pages", "draws one plate's pages; a many-file run draws no "
+                      "pictures", "leave it out, or run rateabs rates FILE --out DIR for one "
+                      "plate's pages")
     inputs = expand((o.file, *o.more_files))
     maps, notes = maps_for(inputs.files, o.layout_file)
+    if o.output.plots and (o.output.out or o.output.report):
+        notes = [*notes, "no pictures in a many-file run (its report holds the tables); "
+                 "rateabs rates FILE --out DIR draws one plate's"]
     tasks = []
     for path, found in zip(inputs.files, maps, strict=True):
         if isinstance(found, RateabsError):
