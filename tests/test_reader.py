@@ -457,3 +457,23 @@ def test_readings_are_held_once_as_floats(tmp_path):
     assert g.values.dtype == float and g.flags.dtype == np.int8
     assert g.times.strides[0] == 0           # one row of times shared by every trace
     assert ts.data["time_s"].iloc[50] == 0.0 and len(ts.data) == 100
+
+
+def test_a_bare_time_column_takes_its_unit_from_the_stated_read_interval(tmp_path):
+    # readings every 20 s (common practice: a kinetic read states its interval), written in
+    # minutes under a bare 'Time' header: read as minutes and said so, not as seconds (60x)
+    t = np.arange(0, 601, 20.0)
+    lines = ["Read interval: 20 s", "", "Time,A1"] + [f"{x / 60:.3f},{0.1 + 0.001 * x:.4f}"
+                                                      for x in t]
+    (tmp_path / "m.csv").write_text("\n".join(lines) + "\n")
+    ts = read_traces(tmp_path / "m.csv")
+    assert ts.info["time_unit"] == "min" and ts.info["time_unit_source"] == "interval"
+    assert ts.grid().times[0][-1] == pytest.approx(600.0, abs=0.1)
+    assert any("read interval of 20 s" in w for w in ts.info["warnings"])
+    # a stated unit is kept, and a contradicting interval is said
+    lines = ["Read interval: 60 s", "", "Time (s),A1"] + [f"{x:g},{0.1 + 0.001 * x:.4f}"
+                                                         for x in t]
+    (tmp_path / "s.csv").write_text("\n".join(lines) + "\n")
+    ts = read_traces(tmp_path / "s.csv")
+    assert ts.info["time_unit"] == "s" and ts.grid().times[0][-1] == 600.0
+    assert any("read interval of 60 s" in w for w in ts.info["warnings"])

@@ -78,10 +78,11 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
     warnings, looks_like = plausibility(kind, parsed.values, signal is not None)
     conv = to_absorbance(kind, parsed.names, parsed.values, parsed.flags, meta, i0)
     check_magnitude(conv.values, conv.names, looks_like)
-    ts = TraceSet.from_arrays(conv.names, parsed.times, conv.values, flags=conv.flags)
+    facts, said = file_facts(meta)
+    times = interval_check(parsed, facts.get("read_interval_s"))
+    ts = TraceSet.from_arrays(conv.names, times, conv.values, flags=conv.flags)
     few = _few_readings(conv.names, ts.grid().usable)
     plate = parsed.plate if parsed.plate[0] else plate_format(conv.names)
-    facts, said = file_facts(meta)
     ts.info.update(
         source=src.path, format=src.fmt, delimiter=src.delimiter, decimal=decimal,
         encoding=src.encoding, layout=parsed.layout, header_row=src.head_nos[loc.index],
@@ -97,6 +98,40 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
     )
     _trace_meta(ts, parsed, facts)
     return ts
+
+
+#: Steps and a stated read interval agree when within this share of the interval.
+INTERVAL_MATCH = 0.02
+
+
+def interval_check(parsed: Parsed, interval_s: float | None) -> np.ndarray:
+    """The times (s), with a bare time column's unit decided by the read interval the file's
+    header states where its steps match it in minutes (they were read as seconds), and a
+    warning where a stated unit's steps contradict that interval."""
+    tu, t = parsed.time, parsed.times
+    if not interval_s or interval_s <= 0 or tu.source == "clock" or np.ndim(t) != 1 or t.size < 3:
+        return t
+    step = float(np.median(np.diff(t[np.isfinite(t)])))
+
+    def close(a: float) -> bool:
+        return abs(a - interval_s) <= INTERVAL_MATCH * interval_s
+
+    if tu.source == "assumed" and (close(step * 60) or close(step)):
+        minutes = close(step * 60)
+        tu.warnings[:] = [w for w in tu.warnings if "names no unit" not in w]
+        tu.warnings.append(
+            f"the time column {tu.label!r} names no unit: read as "
+            f"{'minutes' if minutes else 'seconds'}, as its steps of {step:g} match the read "
+            f"interval of {interval_s:g} s in the file header; give --time-unit to override")
+        tu.source, tu.looks_like = "interval", None
+        if minutes:
+            tu.unit = "min"
+            return t * 60.0
+    elif not close(step):
+        tu.warnings.append(f"the file header states a read interval of {interval_s:g} s, but "
+                           f"the readings in {tu.label!r} are {step:g} s apart; check the "
+                           "time unit (--time-unit) and the export")
+    return t
 
 
 def _few_readings(names: list[str], usable: np.ndarray) -> list[str]:

@@ -10,7 +10,9 @@ from . import View, check_rate_law_fix, deliver, each_trace, rate_law_orders, re
 
 TIME_SOURCES = {"header": "from the header", "option": "from --time-unit",
                 "clock": "clock times", "assumed": "ASSUMED: the header names no unit; give "
-                "--time-unit if it is not seconds"}
+                "--time-unit if it is not seconds",
+                "interval": "the header names no unit: from the read interval in the file "
+                            "header"}
 
 
 def reader_lines(ts) -> list[str]:

@@ -30,7 +30,9 @@ SD_NOTE = "* SD of the wells kept, or their typical own SE where that is larger"
 #: How the time unit was decided, in words (``TraceSet.info["time_unit_source"]``).
 _TIME_SOURCE = {"header": "from the header of column {col!r}", "option": "given by --time-unit",
                 "clock": "clock times h:mm:ss in column {col!r}",
-                "assumed": "assumed: column {col!r} names no unit"}
+                "assumed": "assumed: column {col!r} names no unit",
+                "interval": "column {col!r} names no unit: from the read interval in the file "
+                            "header"}
 
 
 def compute_rates(o: RatesOptions) -> View:
