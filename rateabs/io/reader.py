@@ -109,9 +109,12 @@ def interval_check(parsed: Parsed, interval_s: float | None) -> np.ndarray:
     header states where its steps match it in minutes (they were read as seconds), and a
     warning where a stated unit's steps contradict that interval."""
     tu, t = parsed.time, parsed.times
-    if not interval_s or interval_s <= 0 or tu.source == "clock" or np.ndim(t) != 1 or t.size < 3:
+    if not interval_s or interval_s <= 0 or tu.source == "clock" or np.ndim(t) != 1:
         return t
-    step = float(np.median(np.diff(t[np.isfinite(t)])))
+    finite = t[np.isfinite(t)]
+    if finite.size < 3:
+        return t
+    step = float(np.median(np.diff(finite)))
 
     def close(a: float) -> bool:
         return abs(a - interval_s) <= INTERVAL_MATCH * interval_s
