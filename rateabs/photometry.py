@@ -105,6 +105,23 @@ def chromophore(name: str) -> Chromophore:
                      f"use one of {', '.join(CHROMOPHORES)} or give --epsilon")
 
 
+#: A file's wavelength this far (nm) from a chromophore's tabulated one is another measurement.
+WAVELENGTH_TOLERANCE_NM = 10.0
+
+
+def wavelength_mismatch(name: str | None, wavelength_nm: float | None) -> str | None:
+    """The warning when the wavelength a file states is not the one the chosen chromophore's
+    epsilon belongs to (epsilon is a property of one wavelength), else None."""
+    if not name or wavelength_nm is None:
+        return None
+    c = chromophore(name)
+    if abs(wavelength_nm - c.wavelength_nm) <= WAVELENGTH_TOLERANCE_NM:
+        return None
+    return (f"the file was read at {wavelength_nm:g} nm, but the epsilon of {c.name} "
+            f"(--chromophore) is for {c.wavelength_nm:g} nm: it does not apply; check the "
+            "chromophore or give --epsilon for this wavelength")
+
+
 @dataclass(frozen=True)
 class PlateGeometry:
     """Well geometry of a flat-bottomed microplate, used to turn a volume into a liquid height."""

@@ -168,3 +168,11 @@ def test_an_intensity_ratio_beyond_floating_point_is_no_reading_and_no_warning()
         warnings.simplefilter("error")
         a = absorbance_from_intensity([1e308, 50.0, 0.0], [1e-5, 100.0, 100.0])
     assert np.isnan(a[0]) and a[1] == pytest.approx(np.log10(2), rel=1e-12) and np.isnan(a[2])
+
+
+def test_a_chromophore_at_another_wavelength_than_the_file_is_said():
+    # epsilon is a property of one wavelength (IUPAC, molar absorption coefficient): NADH's
+    # 6220 M^-1 cm^-1 is at 340 nm (Horecker & Kornberg 1948), not at 405 nm
+    assert "405 nm" in ph.wavelength_mismatch("NADH", 405.0)
+    assert ph.wavelength_mismatch("NADH", 340.0) is None
+    assert ph.wavelength_mismatch(None, 405.0) is None
