@@ -74,3 +74,20 @@ def small_plate(tmp_path_factory):
         for w, (_, role) in SMALL_PLATE.items()))
     return {"data": folder / "plate.csv", "layout": folder / "map.csv",
             "truth": {w: s for w, (s, _) in SMALL_PLATE.items()}}
+
+
+@pytest.fixture(scope="module")
+def dask_scheduler():
+    """A Dask scheduler and two worker processes on 127.0.0.1 only (dashboard on a free port),
+    always stopped; its address."""
+    import logging
+
+    distributed = pytest.importorskip("distributed")
+    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                       host="127.0.0.1", dashboard_address=":0",
+                                       silence_logs=logging.ERROR)
+    try:
+        assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
+        yield cluster.scheduler_address
+    finally:
+        cluster.close(timeout=60)

@@ -12,7 +12,6 @@ machinery (each number back to its own file, map and place) and not about the wi
 from __future__ import annotations
 
 import json
-import logging
 import os
 import pickle
 import sys
@@ -299,21 +298,6 @@ def test_jobs_and_scheduler_together_are_refused(screen):
 
 
 # --------------------------------------------------------------------------- Dask
-
-
-@pytest.fixture(scope="module")
-def dask_scheduler():
-    """A Dask scheduler and two worker processes on 127.0.0.1 only, always stopped (the pattern
-    of tests/test_parallel.py)."""
-    distributed = pytest.importorskip("distributed")
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=":0",
-                                       silence_logs=logging.ERROR)
-    try:
-        assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
-        yield cluster.scheduler_address
-    finally:
-        cluster.close(timeout=60)
 
 
 def _same_numbers(doc: dict) -> dict:

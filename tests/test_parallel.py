@@ -7,7 +7,6 @@ Every process test runs real processes with bounded waits and no wall-clock asse
 from __future__ import annotations
 
 import json
-import logging
 import os
 import pickle
 import signal
@@ -206,20 +205,6 @@ def test_grade_class_identical_serial_processes_and_threads(tmp_path):
 
 
 # --------------------------------------------------------------------------- Dask
-
-
-@pytest.fixture(scope="module")
-def dask_scheduler():
-    """A Dask scheduler and two worker processes on 127.0.0.1 only, always stopped."""
-    distributed = pytest.importorskip("distributed")
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=":0",
-                                       silence_logs=logging.ERROR)
-    try:
-        assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
-        yield cluster.scheduler_address
-    finally:
-        cluster.close(timeout=60)
 
 
 def where_am_i(_):
