@@ -200,14 +200,21 @@ def test_the_file_pathlength_is_used_when_none_is_given(tmp_path):
                                                                  rel=1e-5)
 
 
-def test_z_prime_of_the_plate_controls_is_the_published_formula(tmp_path):
-    # Zhang, Chung & Oldenburg (1999): Z' = 1 - 3 (sd+ + sd-) / |mean+ - mean-|
+def _controls_plate(tmp_path, role_a: str, role_b: str) -> tuple[dict, dict]:
+    """Six wells at 0.05 A/min (row A) and six at 0.005 (row B) with the given roles; the
+    slopes and the rates document."""
     slopes = {f"A{k}": 0.05 for k in range(1, 7)} | {f"B{k}": 0.005 for k in range(1, 7)}
     data = _plate_csv(tmp_path / "d.csv", slopes, noise=0.002, seed=5)
     mp = tmp_path / "m.csv"
-    mp.write_text("well,role\n" + "".join(f"{w},{'positive' if w[0] == 'A' else 'negative'}\n"
+    mp.write_text("well,role\n" + "".join(f"{w},{role_a if w[0] == 'A' else role_b}\n"
                                           for w in slopes))
-    doc = json.loads(_cli(data, "--layout", mp, "--format", "json", "--no-plots").stdout)
+    return slopes, json.loads(_cli(data, "--layout", mp, "--format", "json",
+                                   "--no-plots").stdout)
+
+
+def test_z_prime_of_the_plate_controls_is_the_published_formula(tmp_path):
+    # Zhang, Chung & Oldenburg (1999): Z' = 1 - 3 (sd+ + sd-) / |mean+ - mean-|
+    slopes, doc = _controls_plate(tmp_path, "positive", "negative")
     res = {x["trace"]: x["slope_A_per_min"] for x in doc["results"]}
     pos = np.array([res[w] for w in slopes if w[0] == "A"])
     neg = np.array([res[w] for w in slopes if w[0] == "B"])
@@ -295,11 +302,6 @@ def test_a_map_dilution_below_one_is_refused(tmp_path):
 def test_swapped_controls_are_not_called_excellent(tmp_path):
     # common practice: the positive (full-signal) control changes more than the negative one;
     # a map with the two roles swapped gave "Z' = 0.93 (excellent)" without a word
-    slopes = {f"A{k}": 0.05 for k in range(1, 7)} | {f"B{k}": 0.005 for k in range(1, 7)}
-    data = _plate_csv(tmp_path / "d.csv", slopes, noise=0.002, seed=5)
-    mp = tmp_path / "m.csv"
-    mp.write_text("well,role\n" + "".join(f"{w},{'negative' if w[0] == 'A' else 'positive'}\n"
-                                          for w in slopes))
-    doc = json.loads(_cli(data, "--layout", mp, "--format", "json", "--no-plots").stdout)
+    _, doc = _controls_plate(tmp_path, "negative", "positive")
     assert doc["settings"]["z_prime"]["verdict"].startswith("controls reversed")
     assert any("swapped" in w for w in doc["warnings"])
