@@ -252,8 +252,33 @@ def _fmt(m):
     return "-" if not np.isfinite(m) else f"{m * 1e6:g}uM"
 
 
-def check_against(layout: pd.DataFrame, names: list[str], data_path: str) -> list[str]:
-    """Check the map's wells against the data's traces; returns warnings for unmapped traces."""
+def _well_key(name: str) -> tuple[str, int] | None:
+    """(row letters, column number) of a well name such as A1, A01 or a001, else None."""
+    m = re.fullmatch(r"\s*([A-Za-z]{1,2})0*(\d{1,3})\s*", str(name))
+    return (m.group(1).upper(), int(m.group(2))) if m else None
+
+
+def match_wells(layout: pd.DataFrame, names: list[str]) -> tuple[pd.DataFrame, list[str]]:
+    """The map with its well names written as the data writes them where they differ only in
+    zero padding or case (A01 and A1 are one well), and a note saying so."""
+    data = {k: n for n in names if (k := _well_key(n)) is not None}
+    taken = set(layout.index)
+    renamed = {w: data[k] for w in layout.index if w not in set(names)
+               and (k := _well_key(w)) is not None and k in data and data[k] not in taken}
+    if not renamed:
+        return layout, []
+    out = layout.rename(index=renamed)
+    out.attrs.update(layout.attrs)
+    first = next(iter(renamed.items()))
+    return out, [f"{len(renamed)} well name(s) of the plate map were matched to the data's by row "
+                 f"and column ({first[0]} is {first[1]})"]
+
+
+def check_against(layout: pd.DataFrame, names: list[str],
+                  data_path: str) -> tuple[pd.DataFrame, list[str]]:
+    """Check the map's wells against the data's traces (names that differ only in zero padding
+    or case matched, :func:`match_wells`); returns the map and warnings for unmapped traces."""
+    layout, notes = match_wells(layout, names)
     missing = [w for w in layout.index if w not in set(names)]
     if missing:
         more = f" and {len(missing) - 1} more" if len(missing) > 1 else ""
@@ -262,6 +287,6 @@ def check_against(layout: pd.DataFrame, names: list[str], data_path: str) -> lis
                          "file", file=layout.attrs.get("source"))
     unmapped = [n for n in names if n not in layout.index]
     if unmapped:
-        return [f"{len(unmapped)} trace(s) are not in the plate map and are treated as samples: "
-                + ", ".join(unmapped[:8]) + (" ..." if len(unmapped) > 8 else "")]
-    return []
+        notes.append(f"{len(unmapped)} trace(s) are not in the plate map and are treated as "
+                     "samples: " + ", ".join(unmapped[:8]) + (" ..." if len(unmapped) > 8 else ""))
+    return layout, notes

@@ -305,3 +305,16 @@ def test_swapped_controls_are_not_called_excellent(tmp_path):
     _, doc = _controls_plate(tmp_path, "negative", "positive")
     assert doc["settings"]["z_prime"]["verdict"].startswith("controls reversed")
     assert any("swapped" in w for w in doc["warnings"])
+
+
+def test_map_well_names_with_zero_padding_are_the_data_wells(tmp_path):
+    # A01 and A1 name one well (common practice: exports and maps pad column numbers or not)
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "A2": 0.01, "B1": 0.0})
+    mp = tmp_path / "m.csv"
+    mp.write_text("well,role\nA01,sample\nA02,sample\nB01,blank\n")
+    doc = json.loads(_cli(data, "--layout", mp, "--format", "json", "--no-plots").stdout)
+    roles = {r["trace"]: r["role"] for r in doc["results"]}
+    assert roles == {"A1": "sample", "A2": "sample", "B1": "blank"}
+    assert any("matched to the data's" in w for w in doc["warnings"])
+    mp.write_text("well,role\nA01,sample\nC07,sample\n")         # a well the data lack
+    assert _cli(data, "--layout", mp, "--no-plots").exit_code == 3

@@ -46,7 +46,8 @@ def compute_rates(o: RatesOptions) -> View:
     layout = None
     if o.layout_file:
         layout = read_layout(o.layout_file)
-        warnings += check_against(layout, ts.names, o.file)
+        layout, said = check_against(layout, ts.names, o.file)
+        warnings += said
     a = analyse_plate(ts, layout, st)
     warnings += _assumed_pathlength(a)
     warnings += a.warnings
