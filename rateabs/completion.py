@@ -191,6 +191,18 @@ class Completion:
         return _envelope([main, *finite], main, 1 + len(finite))
 
     @property
+    def k_conc(self) -> Param | None:
+        """The rate constant in concentration units (the charge's epsilon and pathlength) with
+        the interval of :attr:`k`: the same models' spread, scaled as the chosen fit's k is."""
+        kc, kf = self.law.k_conc, self.law.fits.get(self.model, self.law.fit).params["k"]
+        if kc is None or self.model != self.law.model:
+            return None
+        if not (kf.value > 0 and kc.value > 0):
+            return kc
+        f = kc.value / kf.value
+        return map_param(self.k, lambda x: x * f, kc.name, kc.unit)
+
+    @property
     def claim(self) -> str:
         """What the verdict claims: "complete" (against the charge), "end point reached" (the
         trace has stopped changing; without the charge a stall looks the same) or
@@ -222,8 +234,7 @@ class Completion:
                 "end_absorbance": shown(self.end_absorbance),
                 "charge": self.charge.source if self.charge else None,
                 "k": shown(self.k),
-                "k_conc": shown(self.law.k_conc) if self.law.k_conc is not None and (
-                    self.model == self.law.model) else None,
+                "k_conc": shown(self.k_conc) if self.k_conc is not None else None,
                 "drift_A_per_s": shown(fit.params["drift"]) if "drift" in fit.params else None,
                 "half_life_s": shown(self.law.half_life) if self.law.half_life else None,
                 "forecasts": [f.to_dict() for f in self.forecasts],

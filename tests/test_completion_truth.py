@@ -327,3 +327,17 @@ def test_pseudo_first_order_k2_in_csv_and_plot(tmp_path):
     assert k2 == pytest.approx(0.42, rel=0.02)         # sample_runs/generate.py: 0.42 L/(mol s)
     assert "excess_M" in head
     assert (tmp_path / "ratelaw_pseudo_first_order.png").exists()
+
+
+def test_k_in_concentration_units_carries_the_interval_of_k():
+    # second order at 70 % (truth by solve_ivp): k_conc = k |Δε| b (Atkins: 1/[A] = 1/[A]0 + k t
+    # in concentration), so its interval is k's, drift models included, scaled alike
+    k2 = k_for_conversion("2", 0.7, T[-1])
+    y = noisy(absorbance(second_order(T, k2)), 2)
+    c = assess(T, y, target=0.99, photometry=CHARGE)
+    d = c.to_dict()
+    f = d["k_conc"]["value"] / d["k"]["value"]
+    assert f == pytest.approx(EPS, rel=1e-9)                        # |Δε| b with b = 1 cm
+    assert d["k_conc"]["ci_low"] == pytest.approx(d["k"]["ci_low"] * f, rel=1e-9)
+    assert d["k_conc"]["ci_high"] == pytest.approx(d["k"]["ci_high"] * f, rel=1e-9)
+    assert d["k_conc"]["ci_low"] <= k2 <= d["k_conc"]["ci_high"]
