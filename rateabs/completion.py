@@ -43,8 +43,8 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
+from .distributions import t_two_sided
 from .errors import UsageError
 from .fitting import FitResult, Param, fd_step, fmt_pm, separable_profile
 from .ratelaws import Photometry, RateLawResult, fit_trace, identifiable, map_param, shown
@@ -306,7 +306,7 @@ def _ratio_to_charge(r: FitResult, charge: Charge) -> Param:
         return abs(p["Ainf"] - p["A0"]) / charge.change(p["A0"])
 
     val, se = g(v), delta_se(r, g)
-    tq = stats.t.ppf(0.5 + r.level / 2, max(r.dof, 1))
+    tq = t_two_sided(r.level, max(r.dof, 1))
     return Param("end_over_charge", val, se, val - tq * se, val + tq * se, "asymptotic", "")
 
 
@@ -387,7 +387,7 @@ def widened(rate: Param, shift: float, dof: int, level: float) -> Param:
     side of its interval (t quantile of the fit's degrees of freedom); never below zero."""
     if not shift > 0:
         return rate
-    tq = float(stats.t.ppf(0.5 + level / 2, max(dof, 1)))
+    tq = float(t_two_sided(level, max(dof, 1)))
     v = rate.value
     lo = v - math.hypot(v - rate.ci_low, tq * shift)
     hi = v + math.hypot(rate.ci_high - v, tq * shift) if math.isfinite(rate.ci_high) else math.inf
@@ -560,7 +560,7 @@ def _charge_conversion(r: FitResult, charge: Charge, t_now: float) -> Param:
         return abs(a_now - p["A0"]) / charge.change(p["A0"])
 
     val, se = g(r.values()), delta_se(r, g)
-    tq = stats.t.ppf(0.5 + r.level / 2, max(r.dof, 1))
+    tq = t_two_sided(r.level, max(r.dof, 1))
     return Param("conversion", val, se, val - tq * se, val + tq * se, "asymptotic", "")
 
 

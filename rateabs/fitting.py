@@ -24,8 +24,8 @@ import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
+from .distributions import f_quantile, f_tail, normal_two_sided_p, t_two_sided
 from .errors import FitError, UsageError
 from .models import Model, unit_of
 from .options import CI_METHODS, LEVEL, RESAMPLES, WEIGHTINGS
@@ -516,7 +516,7 @@ def _asymptotic(model, res, values, free, cov, dof, level, success, message) -> 
         if nm not in model.offsets and np.isfinite(se[nm]) and v != 0 and se[nm] / abs(v) > 10:
             notes.append(f"{nm} is poorly determined (SE {se[nm]:.3g} is over 10x its value)")
             success, message = False, f"not identifiable: {nm} is not determined by these data"
-    tq = stats.t.ppf(0.5 + level / 2, dof) if dof > 0 else float("nan")
+    tq = t_two_sided(level, dof) if dof > 0 else float("nan")
     return _Uncertainty(se, {nm: values[nm] - tq * se[nm] for nm in model.params},
                         {nm: values[nm] + tq * se[nm] for nm in model.params},
                         {nm: "asymptotic" for nm in model.params}, notes, success, message)
@@ -741,7 +741,7 @@ def separable_profile(basis, y, theta_hat: float, dof: int, level: float = 0.95,
         return float(r @ r)
 
     best = rss(theta_hat)
-    crit = float(stats.f.ppf(level, 1, max(dof, 1)))
+    crit = float(f_quantile(level, 1, max(dof, 1)))
 
     def excess(u):                      # u = ln theta; > 0 outside the interval
         return (rss(math.exp(u)) / best - 1) * max(dof, 1) - crit
@@ -820,7 +820,7 @@ def runs_test(residuals) -> float:
     if var <= 0:
         return float("nan")
     z = (runs - mu) / math.sqrt(var)
-    return float(2 * stats.norm.sf(abs(z)))
+    return float(normal_two_sided_p(z))
 
 
 # --------------------------------------------------------------------------- comparison
@@ -865,7 +865,7 @@ def f_test(simple: FitResult, general: FitResult) -> dict:
                 "df1": df1, "df2": df2, "p": float("nan")}
     F = max((simple.rss - general.rss) / df1, 0.0) / (general.rss / df2) if general.rss > 0 else (
         float("inf"))
-    p = float(stats.f.sf(F, df1, df2)) if np.isfinite(F) else 0.0
+    p = float(f_tail(F, df1, df2)) if np.isfinite(F) else 0.0
     return {"simpler": simple.model, "general": general.model, "F": float(F), "df1": df1,
             "df2": df2, "p": p}
 

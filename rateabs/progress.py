@@ -19,8 +19,9 @@ import math
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
+from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
 from .fitting import FitResult, Param, f_test, fit, fmt_p
 from .models import Model
@@ -314,7 +315,7 @@ def selwyn_test(c: Curves, base: FitResult, product_inhibition: bool, level: flo
                f"{100 * loss:.0f} % of its activity during the assay (inactivation half-life "
                f"{half / 60:.1f} min, F-test p {_p(ft['p'])}); initial rates and progress-curve "
                "Km and Vmax are biased")
-    tq = stats.t.ppf(0.5 + level / 2, max(r.dof, 1))
+    tq = t_two_sided(level, max(r.dof, 1))
     return {"enzyme_stable": bool(stable), "reason": why, "f_test": ft,
             "kd": Param("kd", kd.value, kd.se, max(kd.value - tq * kd.se, 0.0),
                         kd.value + tq * kd.se, kd.ci_method, "1/s").to_dict(),

@@ -18,8 +18,8 @@ from dataclasses import dataclass, field
 from functools import partial
 
 import numpy as np
-from scipy import stats
 
+from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, f_test, fd_step, fit, fmt_p, fmt_pm
 from .models import LINE, RATE_LAWS, Model, guess_decay, mixed2
@@ -399,7 +399,7 @@ def _derived(r: FitResult, order: str, ph: Photometry, rising: bool, level: floa
     elif order != "0" and deps:
         d_a = abs(r.value("A0") - r.value("Ainf"))
         se = math.hypot(r.params["A0"].se, r.params["Ainf"].se) / (deps * b)
-        tq = stats.t.ppf(0.5 + level / 2, max(r.dof, 1))
+        tq = t_two_sided(level, max(r.dof, 1))
         c0 = Param("c0", d_a / (deps * b), se, max(d_a / (deps * b) - tq * se, 0.0),
                    d_a / (deps * b) + tq * se, "asymptotic", "mol/L")
     k_conc = half = None

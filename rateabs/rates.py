@@ -682,7 +682,7 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
     Grubbs (1969), Technometrics 11:1: G = max |x - mean| / s against the critical value from
     Student's t at alpha/(2n), which reproduces Grubbs's table.
     """
-    from scipy import stats
+    from .distributions import t_quantile
 
     x = np.asarray(x, dtype=float)
     n = x.size
@@ -693,7 +693,7 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
         return None
     dev = np.abs(x - x.mean())
     k = int(np.argmax(dev))
-    t = stats.t.ppf(1 - alpha / (2 * n), n - 2)
+    t = float(t_quantile(1 - alpha / (2 * n), n - 2))
     crit = (n - 1) / math.sqrt(n) * math.sqrt(t * t / (n - 2 + t * t))
     return k if dev[k] / sd > crit else None
 
@@ -774,8 +774,7 @@ def activity_summary(table: pd.DataFrame) -> pd.DataFrame:
 def dilution_trend(dilution: np.ndarray, activity: np.ndarray) -> dict:
     """Does the activity trend with the dilution? Least-squares line of activity on log2
     dilution: its slope as a percentage of the mean activity per two-fold dilution, and the
-    two-sided p of Student's t on n - 2 degrees of freedom (scipy.stats.linregress)."""
-    from scipy import stats
+    two-sided p of Student's t on n - 2 degrees of freedom (as scipy.stats.linregress)."""
 
     ok = np.isfinite(dilution) & np.isfinite(activity)
     x, y = np.log2(dilution[ok]), activity[ok]
@@ -783,14 +782,28 @@ def dilution_trend(dilution: np.ndarray, activity: np.ndarray) -> dict:
         why = "one dilution" if np.unique(x).size < 2 else "fewer than three wells"
         return {"dilution_trend_pct": None, "dilution_trend_p": None, "flags": [],
                 "dilution_check": f"not tested ({why})"}
-    r = stats.linregress(x, y)
-    pct = 100 * r.slope / abs(y.mean()) if y.mean() else np.nan
-    p = float(r.pvalue) if np.isfinite(r.pvalue) else 1.0
+    slope, p = _slope_and_p(x, y)
+    pct = 100 * slope / abs(y.mean()) if y.mean() else np.nan
     bad = p < 0.05 and abs(pct) >= 100 * TREND_LIMIT
     return {"dilution_trend_pct": float(pct), "dilution_trend_p": p,
             "flags": ["dilution-trend"] if bad else [],
             "dilution_check": (f"{pct:+.1f} % per two-fold dilution, p = {p:.2g}"
                                + (": activity trends with dilution" if bad else ": flat"))}
+
+
+def _slope_and_p(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
+    """Least-squares slope of y on x and the two-sided p of Student's t for a zero slope on
+    n - 2 degrees of freedom (1 where the test cannot be made)."""
+    from .distributions import t_two_sided_p
+
+    dx, dy = x - x.mean(), y - y.mean()
+    sxx, syy, sxy = float(dx @ dx), float(dy @ dy), float(dx @ dy)
+    slope = sxy / sxx
+    r2 = sxy * sxy / (sxx * syy) if syy > 0 else 1.0
+    if r2 >= 1.0:
+        return slope, 0.0 if slope else 1.0
+    t = math.sqrt(r2 * (x.size - 2) / (1.0 - r2))
+    return slope, float(t_two_sided_p(t, x.size - 2))
 
 
 def z_prime(table: pd.DataFrame, value_col: str) -> dict | None:

@@ -19,8 +19,8 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
+from .distributions import normal_quantile, t_two_sided
 from .errors import FitError, InputError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, fit
 from .io import number_column, pick_column
@@ -158,7 +158,7 @@ def _kcat(result: FitResult, enzyme_M: float, rate_unit: str, conc_unit: str, le
                 iv, ik = result.free.index("Vmax"), result.free.index(km_name)
                 rel2 -= 2 * result.cov[iv, ik] / (vm.value * km.value)
             se = abs(val) * math.sqrt(max(rel2, 0.0))
-            tq = stats.t.ppf(0.5 + level / 2, max(result.dof, 1))
+            tq = t_two_sided(level, max(result.dof, 1))
             out["kcat/Km"] = Param("kcat/Km", val, se, val - tq * se, val + tq * se,
                                    "delta-method", "M^-1 s^-1")
     return out, None
@@ -255,7 +255,7 @@ def _mixed_alpha(r: FitResult, level: float) -> Param:
     a = r.params["Kiu"].value / r.params["Ki"].value
     rel = math.hypot(r.params["Kiu"].se / r.params["Kiu"].value,
                      r.params["Ki"].se / r.params["Ki"].value)
-    zq = stats.norm.ppf(0.5 + level / 2)
+    zq = normal_quantile(0.5 + level / 2)
     spread = math.exp(min(zq * rel, 700.0)) if np.isfinite(rel) else float("nan")
     return Param("alpha", a, a * rel, a / spread, a * spread, "delta-method (log scale)", "")
 

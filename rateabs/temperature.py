@@ -16,8 +16,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy import constants, stats
+from scipy import constants
 
+from .distributions import t_two_sided
 from .errors import AnalysisError, InputError
 from .fitting import FitResult, Param, fit
 from .io import number_column, pick_column
@@ -67,7 +68,7 @@ class TemperatureAnalysis:
             raise AnalysisError("the Arrhenius fit has no covariance", "measure more temperatures")
         g = np.array([1.0, x0])
         se = float(math.sqrt(g @ r.cov @ g))
-        tq = stats.t.ppf(0.5 + level / 2, max(r.dof, 1))
+        tq = t_two_sided(level, max(r.dof, 1))
         return Param("k", math.exp(lnk), math.exp(lnk) * se, math.exp(lnk - tq * se),
                      math.exp(lnk + tq * se), "asymptotic (log scale)", self.k_unit)
 

@@ -10,6 +10,7 @@ from hypothesis import strategies as st
 
 from rateabs.errors import InputError
 from rateabs.io import read_traces, sample_path, time_unit_from_header
+from rateabs.io.values import cell_kind, column_kinds
 from rateabs.photometry import absorbance_from_percent_t
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
@@ -477,3 +478,17 @@ def test_a_bare_time_column_takes_its_unit_from_the_stated_read_interval(tmp_pat
     ts = read_traces(tmp_path / "s.csv")
     assert ts.info["time_unit"] == "s" and ts.grid().times[0][-1] == 600.0
     assert any("read interval of 60 s" in w for w in ts.info["warnings"])
+
+
+_CELL = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True).map(repr),
+    st.from_regex(r"[ \t]*[-+]?\d{0,3}[.,]?\d{0,3}([eE][-+]?\d{1,2})?[ \t]*", fullmatch=True),
+    st.sampled_from(["", "n/a", "OVER", "1:30", "30 s", "1_0", "1.0\n2", " 2.5\r", "٣"]),
+    st.text(max_size=6))
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(_CELL, max_size=12), st.sampled_from(".,"))
+def test_column_kinds_equal_the_kind_of_each_cell(cells, decimal):
+    # the one-pass recognition of a column of plain numbers never disagrees with cell_kind
+    assert column_kinds(cells, decimal) == [cell_kind(c, decimal) for c in cells]

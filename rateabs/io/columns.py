@@ -32,7 +32,7 @@ from .headers import (
     time_unit_from_header,
 )
 from .times import clock_seconds
-from .values import cell_kind, to_float
+from .values import column_kinds, to_float
 
 
 @dataclass
@@ -54,7 +54,7 @@ class Sample:
 
     def __init__(self, header: list[str], rows: list[list[str]], decimal: str) -> None:
         self.cells = [[r[j] if j < len(r) else "" for r in rows] for j in range(len(header))]
-        self.kinds = [[cell_kind(c, decimal) for c in col] for col in self.cells]
+        self.kinds = [column_kinds(col, decimal) for col in self.cells]
         self.decimal = decimal
 
     def frac(self, j: int, kinds: tuple[str, ...]) -> float:

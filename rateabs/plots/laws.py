@@ -178,7 +178,7 @@ def _target_marks(ax, c, f, r, color, horizon) -> None:
 
 def pseudo_first_order_plot(series: dict, path):
     """kobs against the excess concentration with the weighted line k2 [B] + k0 and its band."""
-    from scipy import stats
+    from ..distributions import t_quantile
 
     x = np.asarray(series["conc_M"]) * 1e3
     y = np.asarray(series["kobs_per_s"]) * 1e3
@@ -193,7 +193,7 @@ def pseudo_first_order_plot(series: dict, path):
         cov = series.get("covariance_k0_k2")
         if cov is not None:         # the line's confidence band, (1, [B]) C (1, [B])'
             G = np.column_stack([np.ones_like(xs), xs / 1e3])
-            half = stats.t.ppf(0.975, max(len(x) - 2, 1)) * np.sqrt(
+            half = t_quantile(0.975, max(len(x) - 2, 1)) * np.sqrt(
                 np.einsum("ij,jk,ik->i", G, np.asarray(cov), G)) * 1e3
             ax.fill_between(xs, line - half, line + half, color=SHADE, alpha=0.15, lw=0,
                             label="95 % band of the line")
@@ -213,7 +213,7 @@ def arrhenius_plot(a, path, predictions=()):
     Predictions (``{"T_K", "k"}`` as the view makes them) are drawn with their intervals, the
     line's band reaching out to them, so an extrapolation shows as one. Parameters sit in the
     titles and legends below the axes."""
-    from scipy import stats
+    from ..distributions import t_two_sided
 
     with house_style() as plt:
         fig, axes = plt.subplots(1, 2, figsize=(10, 4.6), layout="constrained")
@@ -228,7 +228,7 @@ def arrhenius_plot(a, path, predictions=()):
             fit_y = v["intercept"] + v["slope"] * xs / 1000
             G = np.vstack([np.ones_like(xs), xs / 1000]).T
             se = np.sqrt(np.einsum("ij,jk,ik->i", G, r.cov, G)) if r.cov is not None else 0 * xs
-            tq = stats.t.ppf(0.5 + r.level / 2, max(r.dof, 1))
+            tq = t_two_sided(r.level, max(r.dof, 1))
             ax.fill_between(xs, fit_y - tq * se, fit_y + tq * se, color=SHADE, alpha=0.18, lw=0,
                             label=f"{100 * r.level:g} % band")
             if a.k_se is not None:

@@ -10,8 +10,8 @@ with substrate depletion, a settling baseline and slight curvature the noise hid
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats
 
+from ..distributions import chi2_tail
 from .choice import MOVING_Z
 from .curves import CURVED_CHI2, without_start
 
@@ -101,7 +101,7 @@ def _misfit(rss, dof, sigma) -> np.ndarray:
     times the noise variance."""
     with np.errstate(all="ignore"):
         ratio = rss / np.maximum(dof, 1) / sigma ** 2
-        p = stats.chi2.sf(rss / sigma ** 2, np.maximum(dof, 1))
+        p = chi2_tail(rss / sigma ** 2, np.maximum(dof, 1))
     return (dof > 0) & np.isfinite(rss) & (p < MISFIT_P) & (ratio > MISFIT_RATIO)
 
 
