@@ -67,6 +67,9 @@ _ACTIVE: contextvars.ContextVar[tuple] = contextvars.ContextVar("rateabs_outputs
 _NOTIFY: contextvars.ContextVar[Notify | None] = contextvars.ContextVar("rateabs_notify",
                                                                        default=None)
 
+_COLLECTED: contextvars.ContextVar[list | None] = contextvars.ContextVar("rateabs_collected",
+                                                                        default=None)
+
 _FIXES = {
     errno.ENOSPC: "free some space or choose another folder",
     errno.EDQUOT: "free some space (disk quota) or choose another folder",
@@ -667,6 +670,20 @@ def read_manifest(folder: str | Path) -> dict | None:
     return doc if isinstance(doc, dict) and doc.get("format") == MANIFEST_FORMAT else None
 
 
+@contextmanager
+def collected_writes() -> Iterator[list[tuple[Path, bytes]]]:
+    """``with collected_writes() as files``: inside, :func:`write_atomic` writes nothing and
+    keeps each ``(path, bytes)`` in ``files`` instead. A helper process (one that draws a
+    command's pictures) hands its files to the command this way, and the command writes them
+    through its own run, so that they are guarded and listed like every other output."""
+    files: list[tuple[Path, bytes]] = []
+    token = _COLLECTED.set(files)
+    try:
+        yield files
+    finally:
+        _COLLECTED.reset(token)
+
+
 def write_atomic(path: str | Path, data: str | bytes) -> Path:
     """Write a whole file safely: through the open :class:`RunOutputs` when there is one.
 
@@ -675,6 +692,10 @@ def write_atomic(path: str | Path, data: str | bytes) -> Path:
     written only as a regular file, via a unique temporary name and a rename.
     """
     path = Path(path)
+    sink = _COLLECTED.get()
+    if sink is not None:
+        sink.append((path, _as_bytes(data)))
+        return path
     active = _ACTIVE.get()
     if active:
         real_parent = Path(os.path.realpath(path.parent))

@@ -217,7 +217,8 @@ class SchedulerAddress(Rule):
 
 def _jobs():
     return option("--jobs", JOBS, "Worker processes on this machine (default: one per CPU; 1 "
-                  "runs the files here, one after another).")
+                  "runs the files here, one after another). With one file: the processes that "
+                  "draw its pictures (default 2; 1 draws them here).")
 
 
 def _scheduler():
@@ -235,7 +236,8 @@ def check_where(jobs: int | None, scheduler: str | None) -> None:
 
 @dataclass(frozen=True)
 class WhereOptions(Checked):
-    """Where the files of a many-file run are analysed: local processes or a Dask cluster."""
+    """Where the files of a many-file run are analysed (local processes or a Dask cluster), and
+    how many processes draw the pictures of a one-file run."""
 
     jobs: int | None = _jobs()
     scheduler: str | None = _scheduler()

@@ -28,6 +28,7 @@ Layer: low (standard library only; Dask is imported when a scheduler is asked fo
 
 from __future__ import annotations
 
+import importlib
 import multiprocessing
 import os
 import re
@@ -192,11 +193,12 @@ class LocalPool(Executor):
     that lives as long as the pool (as :func:`run` does).
     """
 
-    def __init__(self, jobs: int) -> None:
+    def __init__(self, jobs: int, warm: tuple[str, ...] = ()) -> None:
         self.jobs = check_jobs(jobs)
         self._ctx = _TrackingContext(multiprocessing.get_context())
         self._pool = ProcessPoolExecutor(max_workers=self.jobs, mp_context=self._ctx,
-                                         initializer=worker_start, initargs=(os.getpid(),))
+                                         initializer=worker_start,
+                                         initargs=(os.getpid(), warm))
 
     def submit(self, fn, /, *args, **kwargs) -> Future:
         """Schedule ``fn(*args, **kwargs)`` on a worker."""
@@ -224,8 +226,9 @@ class LocalPool(Executor):
                 p.join(timeout=2.0)
 
 
-def worker_start(creator: int) -> None:
-    """Run in each local worker before any task: die with the parent, leave Ctrl-C to it."""
+def worker_start(creator: int, warm: tuple[str, ...] = ()) -> None:
+    """Run in each local worker before any task: die with the parent, leave Ctrl-C to it, and
+    import the ``warm`` modules (so that the first task does not wait for them)."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _ask_kernel_for_death_signal()
     parent = os.getppid()
@@ -233,6 +236,11 @@ def worker_start(creator: int) -> None:
         os._exit(1)
     threading.Thread(target=_watch_parent, args=(parent,), name="rateabs-parent-watch",
                      daemon=True).start()
+    for name in warm:       # "module" or "module:function" (called with no arguments)
+        module, _, call = name.partition(":")
+        loaded = importlib.import_module(module)
+        if call:
+            getattr(loaded, call)()
 
 
 def _ask_kernel_for_death_signal() -> None:

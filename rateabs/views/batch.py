@@ -95,11 +95,15 @@ def one_file(o: RatesOptions) -> RatesOptions | None:
     """
     if names_many((o.file, *o.more_files)):
         return None
-    for flag, value in (("--jobs", o.where.jobs), ("--scheduler", o.where.scheduler)):
-        if value is not None:
-            raise refusal(flag, f"shares out the files of a many-file run; {o.file} is one "
-                          "file, analysed here", "leave it out, or give several files, a "
-                          "folder or a quoted pattern such as 'plates/*.csv'")
+    if o.where.scheduler is not None:
+        raise refusal("--scheduler", f"shares out the files of a many-file run; {o.file} is "
+                      "one file, analysed here", "leave it out, or give several files, a "
+                      "folder or a quoted pattern such as 'plates/*.csv'")
+    if o.where.jobs is not None and not (o.output.plots and (o.output.out or o.output.report)):
+        raise refusal("--jobs", f"shares out the files of a many-file run, or the pictures of "
+                      f"one; {o.file} is one file and no pictures are drawn", "leave it out, "
+                      "or give several files, a folder or a quoted pattern such as "
+                      "'plates/*.csv'")
     if o.layout_file and os.path.isdir(o.layout_file):
         found = maps_for((o.file,), o.layout_file)[0][0]
         if isinstance(found, RateabsError):

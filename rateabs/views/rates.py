@@ -377,18 +377,34 @@ def detail_wells(a, choice: str) -> list[str]:
 
 
 def rate_plots(view: View, out: str | Path, stem: str = "rates",
-               well_pages: str = "flagged", title: str = "") -> list[Path]:
-    """The plate at a glance, the rate map, the replicates and single-well pages, into ``out``."""
-    from ..plots.rates import plate_heatmap, plate_overview, replicate_plot
-    from ..plots.rates import well_pages as draw_pages
+               well_pages: str = "flagged", title: str = "", pool=None) -> list[Path]:
+    """The plate at a glance, the rate map, the replicates and single-well pages, into ``out``
+    (drawn in two parts on the ``pool``'s processes where there is one: see
+    :mod:`rateabs.views.drawing`)."""
+    from .drawing import draw_parts
 
-    out = Path(out)
-    a = view.analysis
-    files = [plate_overview(a, out / f"{stem}_plate_overview.png", title)]
-    files += [p for p in (plate_heatmap(a, out / f"{stem}_plate.png"),
-                          replicate_plot(a, out / f"{stem}_replicates.png")) if p]
-    files += draw_pages(a, out, detail_wells(a, well_pages), stem)
-    return files
+    out, a = Path(out), view.analysis
+    wells = detail_wells(a, well_pages)
+    first, second = draw_parts(pool, [(overview_and_pages, (a, out, stem, wells, title)),
+                                      (map_and_replicates, (a, out, stem))])
+    return first[:1] + second + first[1:]
+
+
+def overview_and_pages(a, out: Path, stem: str, wells: list[str], title: str) -> list[Path]:
+    """The plate overview and the single-well pages (one part of :func:`rate_plots`)."""
+    from ..plots.rates import plate_overview, well_pages
+
+    return [plate_overview(a, out / f"{stem}_plate_overview.png", title),
+            *well_pages(a, out, wells, stem)]
+
+
+def map_and_replicates(a, out: Path, stem: str) -> list[Path]:
+    """The rate map and the replicate plot, where there is one (one part of
+    :func:`rate_plots`)."""
+    from ..plots.rates import plate_heatmap, replicate_plot
+
+    return [p for p in (plate_heatmap(a, out / f"{stem}_plate.png"),
+                        replicate_plot(a, out / f"{stem}_replicates.png")) if p]
 
 
 # --------------------------------------------------------------------------- report
@@ -456,10 +472,16 @@ def _well_section(a, doc, rp) -> str:
 
 def run_rates(o: RatesOptions, emit) -> View:
     """The ``rates`` command: compute, print in the chosen format, write files into --out."""
-    view = compute_rates(o)
-    title = Path(o.file).name
-    deliver(o, emit, view, "rates",
-            lambda folder: rate_plots(view, folder, well_pages=o.well_pages, title=title),
-            data=lambda folder: write_replicates(view, folder),
-            page=lambda doc, pics: report_page(view, pics, o))
+    from .drawing import drawing_pool, drawing_processes
+
+    out = o.output
+    with drawing_pool(drawing_processes(o.where.jobs, out.plots and bool(out.out or out.report))
+                      ) as pool:
+        view = compute_rates(o)
+        title = Path(o.file).name
+        deliver(o, emit, view, "rates",
+                lambda folder: rate_plots(view, folder, well_pages=o.well_pages, title=title,
+                                          pool=pool),
+                data=lambda folder: write_replicates(view, folder),
+                page=lambda doc, pics: report_page(view, pics, o))
     return view

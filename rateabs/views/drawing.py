@@ -1,0 +1,92 @@
+"""Pictures drawn beside the analysis: processes that load matplotlib while the numbers are
+computed, then draw a command's figures in parallel.
+
+A fresh ``rates`` run spends about as long loading matplotlib as analysing a 96-well plate, and
+each figure then costs a few tenths of a second of text layout and PNG encoding. On a machine
+with two or more cores the drawing processes start when the command starts (they are forked
+from it, so they hold the command's modules already), load matplotlib while the analysis runs,
+and then draw the figures, split into parts, while the command writes its tables. The figures
+are the same as when drawn here, byte for byte; they are only drawn sooner.
+
+``--jobs 1`` (or a one-core machine) draws here, one figure after another. The processes are
+:class:`~rateabs.parallel.LocalPool` workers: they die with the command and are stopped at once
+on an error or Ctrl-C.
+"""
+
+from __future__ import annotations
+
+import importlib
+import os
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from typing import Any
+
+#: Drawing processes when pictures are drawn and ``--jobs`` does not say (at most the cores).
+DRAWING_PROCESSES = 2
+
+#: What a drawing process loads while the analysis runs.
+WARM_MODULES = ("rateabs.plots.rates", "rateabs.plots.style:warm_up")
+
+#: What the command loads before the drawing processes are forked: the analysis needs it, and
+#: the processes need it to take in what they draw.
+PARENT_MODULES = ("pandas", "rateabs.rates", "rateabs.layout", "rateabs.io")
+
+
+def drawing_processes(jobs: int | None, wanted: bool) -> int:
+    """How many processes draw: none when no pictures are drawn or ``jobs`` is 1, else
+    ``jobs`` or :data:`DRAWING_PROCESSES`, at most the machine's cores."""
+    if not wanted:
+        return 0
+    n = DRAWING_PROCESSES if jobs is None else jobs
+    n = min(n, os.cpu_count() or 1)
+    return n if n >= 2 else 0
+
+
+@contextmanager
+def drawing_pool(processes: int) -> Iterator[Any]:
+    """``with drawing_pool(n) as pool``: ``n`` warm drawing processes (None for ``n`` = 0),
+    started at once so that they load matplotlib while the caller computes."""
+    if processes < 2:
+        yield None
+        return
+    from ..parallel import LocalPool
+
+    for name in PARENT_MODULES:     # loaded once, before the fork, instead of in each process
+        importlib.import_module(name)
+    pool = LocalPool(processes, warm=WARM_MODULES)
+    pool.submit(os.getpid)          # starts every process (forked) and their warm-up
+    try:
+        yield pool
+    except BaseException:
+        pool.terminate()
+        raise
+    pool.shutdown(wait=True)
+
+
+def draw_parts(pool, parts: Sequence[tuple[Callable, tuple]]) -> list:
+    """Each part's result, in the order given: ``fn(*args)`` on the pool's processes, or here
+    one after another without a pool. An error in a part is raised here, as if drawn here.
+
+    The processes write no file: what a part writes comes back with its result and is written
+    here, through the command's open run (:func:`rateabs.files.collected_writes`)."""
+    from ..files import write_atomic
+
+    if pool is None:
+        return [fn(*args) for fn, args in parts]
+    futures = [pool.submit(drawn_elsewhere, fn, args) for fn, args in parts]
+    results = []
+    for future in futures:
+        result, files = future.result()
+        for path, data in files:
+            write_atomic(path, data)
+        results.append(result)
+    return results
+
+
+def drawn_elsewhere(fn: Callable, args: tuple) -> tuple[Any, list]:
+    """``fn(*args)`` in a drawing process: its result and the files it would have written."""
+    from ..files import collected_writes
+
+    with collected_writes() as files:
+        result = fn(*args)
+    return result, files

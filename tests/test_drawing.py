@@ -1,0 +1,82 @@
+"""Pictures drawn by warm processes beside the analysis (rateabs.views.drawing): the same files,
+byte for byte, as drawn here; written through the command's run; errors raised as if drawn
+here; no process left behind; --jobs used or refused."""
+
+import json
+import os
+
+import pytest
+from click.testing import CliRunner
+
+from rateabs.cli import main
+from rateabs.io import sample_path
+from rateabs.views import drawing
+
+PLATE = ["rates", str(sample_path("plate_kbdh_340nm.csv")), "--layout",
+         str(sample_path("plate_kbdh_map.csv")), "--chromophore", "NADH", "--well-volume",
+         "200 uL", "--total-volume", "200 uL", "--sample-volume", "20 uL"]
+
+
+def _run(args):
+    r = CliRunner().invoke(main, args)
+    assert r.exit_code == 0, r.output
+    return r
+
+
+@pytest.mark.skipif((os.cpu_count() or 1) < 2, reason="drawing processes need two cores")
+def test_pictures_drawn_by_processes_equal_pictures_drawn_here(tmp_path):
+    _run([*PLATE, "--out", str(tmp_path / "here"), "--jobs", "1"])
+    _run([*PLATE, "--out", str(tmp_path / "there"), "--jobs", "2"])
+    here = sorted(p.name for p in (tmp_path / "here").glob("*.png"))
+    assert here == sorted(p.name for p in (tmp_path / "there").glob("*.png"))
+    assert "rates_plate_overview.png" in here and "rates_plate.png" in here
+    for name in here:
+        assert (tmp_path / "here" / name).read_bytes() == (tmp_path / "there" / name).read_bytes()
+    listed = {f["name"] for f in json.loads(
+        (tmp_path / "there" / ".rateabs-manifest.json").read_text())["files"]}
+    assert set(here) <= listed          # written through the run: guarded and listed
+
+
+def _fails(x):
+    raise ValueError(f"cannot draw {x}")
+
+
+def _ok(x):
+    from rateabs.files import write_atomic
+
+    write_atomic(x, "drawn")
+    return os.getpid()
+
+
+@pytest.mark.skipif((os.cpu_count() or 1) < 2, reason="drawing processes need two cores")
+def test_a_part_that_fails_raises_here_and_no_process_is_left(tmp_path):
+    with pytest.raises(ValueError, match="cannot draw 3"):
+        with drawing.drawing_pool(2) as pool:
+            pids = pool.pids
+            drawing.draw_parts(pool, [(_ok, (tmp_path / "a.txt",)), (_fails, (3,))])
+    for pid in pids:
+        with pytest.raises(ProcessLookupError):
+            os.kill(pid, 0)
+
+
+@pytest.mark.skipif((os.cpu_count() or 1) < 2, reason="drawing processes need two cores")
+def test_files_of_a_part_are_written_by_the_command_not_the_process(tmp_path):
+    with drawing.drawing_pool(2) as pool:
+        (pid,) = drawing.draw_parts(pool, [(_ok, (tmp_path / "a.txt",))])
+    assert pid != os.getpid()
+    assert (tmp_path / "a.txt").read_text() == "drawn"
+
+
+def test_how_many_processes_draw():
+    assert drawing.drawing_processes(None, False) == 0
+    assert drawing.drawing_processes(1, True) == 0
+    assert drawing.drawing_processes(4, True) == min(4, os.cpu_count() or 1) * (
+        (os.cpu_count() or 1) >= 2)
+
+
+def test_jobs_with_one_file_and_no_pictures_is_refused(tmp_path):
+    r = CliRunner().invoke(main, [*PLATE, "--no-plots", "--jobs", "2", "--out",
+                                  str(tmp_path / "o")])
+    assert r.exit_code == 2
+    assert "--jobs" in r.output and "no pictures" in r.output
+    assert "Traceback" not in r.output
