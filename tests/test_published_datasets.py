@@ -119,6 +119,36 @@ def test_vmkmki_inhibition_fits_equal_scipy_curve_fit():
     assert a.chosen == min(rss, key=rss.get) == "uncompetitive"
 
 
+# --------------------------------------------------------------------------- Hill
+
+def _severinghaus_saturation(p_mmhg):
+    """Human blood O2 saturation (fraction) at pO2 in mmHg, pH 7.40, 37 °C: the standard
+    dissociation curve of Severinghaus (1979), J Appl Physiol 46:599-602, equation 1,
+    S = 1 / (23400 / (P^3 + 150 P) + 1), typed from the paper."""
+    return 1.0 / (23400.0 / (p_mmhg ** 3 + 150.0 * p_mmhg) + 1.0)
+
+
+def test_hill_fit_of_the_standard_oxygen_dissociation_curve():
+    # published: the standard human P50 is 26.8 mmHg (Severinghaus 1979; Dash, Korman &
+    # Bassingthwaighte 2016, Eur J Appl Physiol 116:97, Table 1), and the Hill coefficient at
+    # P50 is n = 2.82 - 1.20 * 10^(-P50/29.25) = 2.67 (Dash et al. 2016, Table 1, their fit of
+    # a Hill equation with pO2-dependent n to the same standard curve).
+    p = np.arange(15.0, 45.5, 1.0)        # saturations 25 % to 82 %, around P50
+    sat = 100.0 * _severinghaus_saturation(p)
+    r = fit(SATURATION["hill"], p, sat, fix={"Vmax": 100.0})
+    assert r.success
+    # a constant-n Hill equation approximates the curve over 15-45 mmHg to within 1.4 %
+    # saturation, so P50 is held to the published one decimal (± 0.3 mmHg) and n to ± 0.1
+    assert np.max(np.abs(sat - SATURATION["hill"].func(p, **r.values()))) < 1.5
+    assert r.params["S50"].value == pytest.approx(26.8, abs=0.3)
+    n_at_p50 = 2.82 - 1.20 * 10 ** (-26.8 / 29.25)
+    assert n_at_p50 == pytest.approx(2.67, abs=0.005)
+    assert r.params["n"].value == pytest.approx(n_at_p50, abs=0.1)
+    # the same fit with a wrong model family (no cooperativity, n = 1) misses by far
+    r1 = fit(SATURATION["hill"], p, sat, fix={"Vmax": 100.0, "n": 1.0})
+    assert r1.rss > 100 * r.rss
+
+
 # --------------------------------------------------------------------------- NIST BoxBOD
 
 # published: NIST StRD, BoxBOD, certified values (11 significant digits)
