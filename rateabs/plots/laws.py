@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..fitting import fmt_pm
-from .style import GRID, INK, PALETTE, SHADE, house_style, save
+from .style import GRID, INK, PALETTE, SHADE, house_style, legend_below, save
 
 
 def _params_line(law) -> str:
@@ -40,8 +40,12 @@ def ratelaw_plots(analysis, out):
         r = law.fit
         vals = r.values()
         with house_style() as plt:
-            fig = plt.figure(figsize=(10, 4.8), layout="constrained")
-            gs = fig.add_gridspec(2, 2, height_ratios=[3, 1.1], width_ratios=[1.25, 1])
+            fig = plt.figure(figsize=(10, 4.8))
+            # laid out once (no constrained layout): room above for the two-line titles,
+            # between the rows for the legend, between the columns for the right y label
+            gs = fig.add_gridspec(2, 2, height_ratios=[3, 1.1], width_ratios=[1.25, 1],
+                                  left=0.07, right=0.98, bottom=0.1, top=0.86, hspace=0.38,
+                                  wspace=0.22)
             ax = fig.add_subplot(gs[0, 0])
             axr = fig.add_subplot(gs[1, 0], sharex=ax)
             axl = fig.add_subplot(gs[:, 1])
@@ -112,7 +116,7 @@ def completion_plot(c, ts, path):
     horizon = _horizon(c, t)
     tc = np.linspace(0, horizon, 400)
     with house_style() as plt:
-        fig, ax = plt.subplots(figsize=(7.6, 5.2), layout="constrained")
+        fig, ax = plt.subplots(figsize=(7.6, 5.2))
         ax.plot(t / 60, y, "o", ms=3, color=PALETTE[0], label="readings")
         for n, f in enumerate(c.forecasts):
             r = c.law.fits[f.model]
@@ -139,9 +143,8 @@ def completion_plot(c, ts, path):
                if np.isfinite(conv.value) else "conversion unknown")
         ax.set_title(f"{c.trace}: {now} at {c.t_now / 60:.1f} min, {verdict}"
                      + (f"\nflags: {', '.join(c.flags)}" if c.flags else ""), fontsize=9.5)
-        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=2, fontsize=7.5)
-        fig.text(0.01, 0.0, "a forecast, not a process-safety assessment", fontsize=7, color=INK)
-        return save(fig, path)
+        legend_below(fig, ax, note="a forecast, not a process-safety assessment")
+        return save(fig, path, tight=False)
 
 
 def _charge_marks(ax, c) -> None:
@@ -185,7 +188,7 @@ def pseudo_first_order_plot(series: dict, path):
     se = np.asarray(series["kobs_se_per_s"]) * 1e3
     k2, k0 = series["k2"], series["k0"]
     with house_style() as plt:
-        fig, ax = plt.subplots(figsize=(6.4, 4.4), layout="constrained")
+        fig, ax = plt.subplots(figsize=(6.4, 4.4))
         ax.errorbar(x, y, yerr=se, fmt="o", ms=4, color=PALETTE[0], label="kobs ± SE (first order)")
         xs = np.linspace(0, x.max() * 1.05, 100)
         line = (k0["value"] + k2["value"] * xs / 1e3) * 1e3
@@ -203,9 +206,9 @@ def pseudo_first_order_plot(series: dict, path):
         ax.set_ylabel("kobs (10⁻³ 1/s)")
         ax.set_title(f"pseudo-first-order series: k2 = {fmt_pm(k2['value'], k2['se'])} L/(mol s)"
                      f"\nk0 = {fmt_pm(k0['value'], k0['se'])} 1/s", fontsize=9.5)
-        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=2, fontsize=7.5)
         ax.set_xlim(left=0)
-        return save(fig, path)
+        legend_below(fig, ax)
+        return save(fig, path, tight=False)
 
 
 def arrhenius_plot(a, path, predictions=()):
@@ -216,7 +219,7 @@ def arrhenius_plot(a, path, predictions=()):
     from ..distributions import t_two_sided
 
     with house_style() as plt:
-        fig, axes = plt.subplots(1, 2, figsize=(10, 4.6), layout="constrained")
+        fig, axes = plt.subplots(1, 2, figsize=(10, 4.6), gridspec_kw={"wspace": 0.28})
         x = 1000.0 / a.T
         px = np.array([1000.0 / pr["T_K"] for pr in predictions])
         lo, hi = min(x.min(), *px) if px.size else x.min(), max(x.max(), *px) if px.size else (

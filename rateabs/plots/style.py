@@ -97,6 +97,25 @@ def fixed_axes(plt, size: tuple[float, float], rows: int = 1, cols: int = 1, *,
     return fig, axes
 
 
+def legend_below(fig, ax, ncol: int = 2, fontsize: float = 7.5, *, note: str = "",
+                 margins: tuple[float, float, float] = (0.8, 0.25, 0.75)) -> None:
+    """Lay out a one-axes figure once, with room below the axes for the x label, the legend
+    (its rows counted from its entries) and an optional ``note`` line, and put them there.
+    ``margins`` are (left, right, top) in inches. Save the figure with ``tight=False``."""
+    handles, labels = ax.get_legend_handles_labels()
+    rows = -(-len(labels) // ncol)
+    w, h = fig.get_size_inches()
+    label_in, row_in, note_in = 0.5, fontsize * 1.75 / 72, 0.3 if note else 0.0
+    bottom = label_in + rows * row_in + 0.1 + note_in
+    left, right, top = margins
+    fig.subplots_adjust(left=left / w, right=1 - right / w, top=1 - top / h, bottom=bottom / h)
+    if labels:
+        fig.legend(handles, labels, loc="upper center", ncol=ncol, fontsize=fontsize,
+                   bbox_to_anchor=(0.5 + (left - right) / (2 * w), (bottom - label_in) / h))
+    if note:
+        fig.text(0.1 / w, 0.08 / h, note, fontsize=7, color=INK)
+
+
 _UNIT_TEXT = (("^-1", "⁻¹"), ("^-2", "⁻²"), ("^2", "²"), ("^3", "³"))
 
 
