@@ -522,8 +522,8 @@ def _asymptotic(model, res, values, free, cov, dof, level, success, message) -> 
                         {nm: "asymptotic" for nm in model.params}, notes, success, message)
 
 
-def _profile_into(u: _Uncertainty, lmfit, mini, res, model, free, level, values) -> None:
-    for nm, (lo, hi, why) in _profile(lmfit, mini, res, model, free, level, values).items():
+def _profile_into(u: _Uncertainty, found: dict) -> None:
+    for nm, (lo, hi, why) in found.items():
         if why:
             u.notes.append(f"profile interval of {nm}: {why}; asymptotic interval shown")
         else:
@@ -595,7 +595,7 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     u = _asymptotic(model, res, values, free, cov, dof, level, success,
                     "converged" if success else str(res.message))
     if ci == "profile" and free and u.success:
-        _profile_into(u, lmfit, mini, res, model, free, level, values)
+        _profile_into(u, _profile(model, (x, y, w), values, free, level, dof, bounds, u.se))
     elif ci == "bootstrap" and free:
         _bootstrap_into(u, bootstrap(model, x, y, w, values, free, fitted, n_boot=n_boot,
                                      resample=resample, seed=seed, bounds=bounds), free, level)
@@ -698,22 +698,111 @@ def information_criteria(rss: float, n: int, k: int) -> tuple[float, float, floa
     return aic, aicc, bic
 
 
-def _profile(lmfit, mini, res, model, free, level, values):
+#: How far a profile is followed from the estimate before a side counts as open, in SEs.
+PROFILE_REACH_SE = 4096.0
+
+
+def _profile(model: Model, data: tuple, values: dict, free, level: float, dof: int,
+             bounds: dict, se: dict) -> dict:
+    """Profile-likelihood interval of each free parameter: the values at which the residual
+    sum of squares, the other free parameters refitted, reaches RSS_min (1 + F(level; 1,
+    dof) / dof), the profile t statistic squared (Bates & Watts 1988, *Nonlinear Regression
+    Analysis and Its Applications*, section 6.1; the criterion of lmfit's ``conf_interval``).
+    Each side is bracketed by steps that double from one SE and closed by Brent's method; a
+    side that does not close within the parameter's bounds (or :data:`PROFILE_REACH_SE` SEs) is
+    open. ``data`` is (x, y, w). Returns {name: (low, high, why-not or None)}."""
+    from scipy.optimize import brentq
+
+    names = list(model.params)
+    best = _weighted_rss(model, data, [values[nm] for nm in names])
+    crit = float(f_quantile(level, 1, max(dof, 1)))
     out = {}
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            ci = lmfit.conf_interval(mini, res, p_names=list(free), sigmas=[level], maxiter=400)
-    except Exception as exc:  # lmfit raises several kinds when a profile cannot close
-        return {nm: (None, None, f"the search failed ({type(exc).__name__})") for nm in free}
     for nm in free:
-        rows = ci.get(nm, [])
-        lo = next((v for p, v in rows if p > 0 and v < values[nm]), None)
-        hi = next((v for p, v in reversed(rows) if p > 0 and v > values[nm]), None)
-        finite = lo is not None and hi is not None and np.isfinite(lo) and np.isfinite(hi)
-        out[nm] = (lo, hi, None if finite else "the profile does not close at this level "
-                   "(the data do not bound the parameter)")
+        refit = _refitter(model, data, values, free, nm, bounds)
+
+        def excess(v, refit=refit):
+            return (refit(v) / best - 1) * max(dof, 1) - crit
+
+        try:
+            sides = [_profile_side(excess, values[nm], sign, _step(values[nm], se[nm]),
+                                   _limits(model, bounds, nm), brentq) for sign in (-1, 1)]
+        except (ValueError, ArithmeticError) as exc:
+            out[nm] = (None, None, f"the search failed ({type(exc).__name__})")
+            continue
+        lo, hi = sides
+        out[nm] = (lo, hi, None if lo is not None and hi is not None else
+                   "the profile does not close at this level (the data do not bound the "
+                   "parameter)")
     return out
+
+
+def _weighted_rss(model: Model, data: tuple, p) -> float:
+    x, y, w = data
+    with np.errstate(all="ignore"):
+        r = (y - model.func(x, *p)) * w
+    return float(r @ r) if np.all(np.isfinite(r)) else math.inf
+
+
+def _limits(model: Model, bounds: dict, nm: str) -> tuple[float, float]:
+    return bounds.get(nm, (model.lower.get(nm, -np.inf), model.upper.get(nm, np.inf)))
+
+
+def _refitter(model: Model, data: tuple, values: dict, free, nm: str, bounds: dict):
+    """RSS with ``nm`` held at a value and the other free parameters refitted (each refit
+    starts where the previous one ended)."""
+    from scipy.optimize import least_squares
+
+    names = list(model.params)
+    others = [p for p in free if p != nm]
+    lims = np.array([_limits(model, bounds, p) for p in others], dtype=float).reshape(-1, 2)
+    bounded = bool(np.isfinite(lims).any())
+    state = {"start": np.array([values[p] for p in others], dtype=float)}
+    x, y, w = data
+
+    def refit(v: float) -> float:
+        p = dict(values, **{nm: v})
+        if not others:
+            return _weighted_rss(model, data, [p[n] for n in names])
+
+        def residual(q):
+            p.update(zip(others, q, strict=True))
+            with np.errstate(all="ignore"):
+                r = (y - model.func(x, *[p[n] for n in names])) * w
+            return np.where(np.isfinite(r), r, 1e150)
+
+        start = np.clip(state["start"], lims[:, 0], lims[:, 1])
+        r = least_squares(residual, start, method="trf" if bounded else "lm",
+                          bounds=(lims[:, 0], lims[:, 1]) if bounded else (-np.inf, np.inf),
+                          xtol=1e-12, ftol=1e-12, gtol=1e-12, max_nfev=400 * (len(others) + 1))
+        state["start"] = r.x
+        return 2.0 * float(r.cost)
+
+    return refit
+
+
+def _step(value: float, se: float) -> float:
+    """The first step of a profile: one asymptotic SE, or 5 % of the value without one."""
+    if np.isfinite(se) and se > 0:
+        return float(se)
+    return 0.05 * abs(value) if value else 1e-3
+
+
+def _profile_side(excess, value: float, sign: int, step: float, lims: tuple, brentq):
+    """Where ``excess`` crosses zero on one side of ``value`` (None: no crossing in reach)."""
+    inner, k = value, 1.0
+    while k <= PROFILE_REACH_SE:
+        outer = value + sign * k * step
+        edge = lims[0] if sign < 0 else lims[1]
+        at_edge = (outer <= edge) if sign < 0 else (outer >= edge)
+        if at_edge:
+            outer = edge
+        if np.isfinite(outer) and excess(outer) > 0:
+            a, b = sorted((inner, outer))
+            return float(brentq(excess, a, b, xtol=1e-12 * max(1.0, abs(value)), rtol=1e-10))
+        if at_edge:
+            return None
+        inner, k = outer, k * 2
+    return None
 
 
 def separable_profile(basis, y, theta_hat: float, dof: int, level: float = 0.95, w=None,

@@ -214,3 +214,30 @@ def test_compare_chooses_exactly_one_and_shows_f_tests():
     assert len(comp.ftests) == 1 and comp.ftests[0]["simpler"] == "mm"
     assert sum(r["model"] == comp.chosen for r in comp.rows) == 1
     assert "AICc" in comp.report()
+
+
+def test_profile_intervals_equal_lmfit_conf_interval_on_a_three_parameter_rate_law():
+    # reference library: lmfit's conf_interval (F-test criterion, the other parameters
+    # refitted) on a seeded first-order decay with a baseline, A(t) = Ainf + (A0 - Ainf) e^-kt
+    import lmfit
+
+    from rateabs.models import RATE_LAWS
+
+    t = np.linspace(0.0, 1800.0, 61)
+    rng = np.random.default_rng(7)
+    y = 0.08 + 0.9 * np.exp(-1.1e-3 * t) + rng.normal(0, 0.004, t.size)
+    r = fit(RATE_LAWS["1"], t, y, ci="profile")
+    pars = lmfit.Parameters()
+    for nm in RATE_LAWS["1"].params:
+        pars.add(nm, value=r.params[nm].value)
+    mini = lmfit.Minimizer(lambda p: y - RATE_LAWS["1"].func(t, *[p[n].value for n in
+                                                                  RATE_LAWS["1"].params]), pars)
+    res = mini.minimize(method="leastsq")
+    ci = lmfit.conf_interval(mini, res, sigmas=[0.95])
+    for nm in RATE_LAWS["1"].params:
+        rows = ci[nm]
+        assert r.params[nm].ci_method == "profile"
+        # the two root searches stop at their own tolerances: held to 0.1 % of the width
+        width = rows[-1][1] - rows[0][1]
+        assert r.params[nm].ci_low == pytest.approx(rows[0][1], abs=1e-3 * width), nm
+        assert r.params[nm].ci_high == pytest.approx(rows[-1][1], abs=1e-3 * width), nm
