@@ -287,7 +287,7 @@ def test_table_units_set_aside_columns_and_warnings(tmp_path):
             "warning")[0].replace("L/(mol s)", "")
         assert "'jacket T (C)' (temperature)" in out
         assert "warning: left out 1 row" in out          # the torn line, in the table itself
-        assert "in min (from the header)" in out
+        assert "time: min (from the header of column 'time (min)')" in out
     comp = run("completion", f, "--no-plots").stdout
     assert "extrapolated" in comp and "times the observed span" in comp
 

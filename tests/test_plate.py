@@ -141,7 +141,8 @@ def test_minutes_in_a_bare_time_column_are_said_out_loud(plate):
     r = _cli(plate.data, "--layout", plate.layout, *ACTIVITY_ARGS, "--dilution", "10",
              "--no-plots")
     assert r.exit_code == 0, r.output
-    assert "# time unit: s (assumed: column 'Time' names no unit)" in r.stdout
+    assert ("# time unit: s (assumed: column 'Time' names no unit; give --time-unit if it is "
+            "not seconds)") in r.stdout
     assert "looks like minutes" in r.stderr and "--time-unit min" in r.stderr
 
 

@@ -89,6 +89,24 @@ def deliver(o, emit, view: View, name: str, plot=None, data=None, page=None) -> 
     return pics if out.out else []
 
 
+#: How the time unit was decided, in words (``TraceSet.info["time_unit_source"]``).
+TIME_SOURCE_WORDS = {
+    "header": "from the header of column {col!r}", "option": "given by --time-unit",
+    "clock": "clock times h:mm:ss in column {col!r}",
+    "assumed": "assumed: column {col!r} names no unit; give --time-unit if it is not seconds",
+    "interval": "column {col!r} names no unit: from the read interval in the file header"}
+
+
+def time_words(info: dict) -> str:
+    """The time unit and where it came from, in words (one home for every command's
+    header lines)."""
+    unit, src = info.get("time_unit"), info.get("time_unit_source")
+    if not unit:
+        return "s (traces given in seconds)"
+    how = TIME_SOURCE_WORDS.get(src, src or "").format(col=info.get("time_column") or "time")
+    return f"{'s' if unit == 'clock' else unit} ({how})"
+
+
 def check_reader_use(o, ts) -> None:
     """Refuse reader options the file made moot (an accepted option is used or refused)."""
     info = ts.info

@@ -6,21 +6,22 @@ from ..errors import UsageError
 from ..fitting import fmt_interval, fmt_pm
 from ..options import RatelawOptions
 from ..output import document, flatten_params, render_table, rows_to_csv
-from . import View, check_rate_law_fix, deliver, each_trace, rate_law_orders, read_for
-
-TIME_SOURCES = {"header": "from the header", "option": "from --time-unit",
-                "clock": "clock times", "assumed": "ASSUMED: the header names no unit; give "
-                "--time-unit if it is not seconds",
-                "interval": "the header names no unit: from the read interval in the file "
-                            "header"}
+from . import (
+    View,
+    check_rate_law_fix,
+    deliver,
+    each_trace,
+    rate_law_orders,
+    read_for,
+    time_words,
+)
 
 
 def reader_lines(ts) -> list[str]:
     """What the reader decided, for the head of a table: the time column and its unit, and
     every column it set aside (never read as a trace)."""
     info = ts.info
-    lines = [f"time: column {info.get('time_column')!r} in {info.get('time_unit')} "
-             f"({TIME_SOURCES.get(info.get('time_unit_source'), info.get('time_unit_source'))})"]
+    lines = [f"time: {time_words(info)}"]
     aside = info.get("set_aside") or {}
     if aside:
         lines.append("columns set aside (not traces): " + ", ".join(

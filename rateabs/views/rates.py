@@ -14,7 +14,7 @@ import numpy as np
 from ..fitting import fmt_pm
 from ..options import WELL_PAGE_CAP, RatesOptions
 from ..output import document, render_table, rows_to_csv, write_text
-from . import View, deliver, read_for
+from . import View, deliver, read_for, time_words
 
 RATE_FIELDS = ["trace", "role", "sample", "group", "method", "choice", "slope_A_per_min",
                "slope_A_per_min_se", "rate_uM_per_min", "rate_uM_per_min_se",
@@ -27,12 +27,6 @@ RATE_FIELDS = ["trace", "role", "sample", "group", "method", "choice", "slope_A_
                "dilution_source", "replicate_z", "masked_readings", "skipped_s", "flags"]
 
 SD_NOTE = "* SD of the wells kept, or their typical own SE where that is larger"
-#: How the time unit was decided, in words (``TraceSet.info["time_unit_source"]``).
-_TIME_SOURCE = {"header": "from the header of column {col!r}", "option": "given by --time-unit",
-                "clock": "clock times h:mm:ss in column {col!r}",
-                "assumed": "assumed: column {col!r} names no unit",
-                "interval": "column {col!r} names no unit: from the read interval in the file "
-                            "header"}
 
 
 def compute_rates(o: RatesOptions) -> View:
@@ -81,15 +75,6 @@ def _assumed_pathlength(a) -> list[str]:
 
 
 # --------------------------------------------------------------------------- assumptions
-
-
-def time_words(info: dict) -> str:
-    """The time unit and where it came from, in words."""
-    unit, src = info.get("time_unit"), info.get("time_unit_source")
-    if not unit:
-        return "s (traces given in seconds)"
-    how = _TIME_SOURCE.get(src, src or "").format(col=info.get("time_column") or "time")
-    return f"{'s' if unit == 'clock' else unit} ({how})"
 
 
 def _epsilon_words(o: RatesOptions, a) -> str:
