@@ -248,7 +248,8 @@ def _win_text(spec) -> str:
 def _skip_sources(ts: TraceSet, w: pd.DataFrame, st: RateSettings) -> None:
     """Readings to leave out, (time, source) per well, each matched to a reading of the data."""
     g = ts.grid()
-    skips = {n: [(t, "plate map") for t in w.loc[n, "skip"] or ()] for n in w.index}
+    skips = {n: [(t, "plate map") for t in s or ()]
+             for n, s in zip(w.index, w["skip"], strict=True)}
     for name, t in st.skip_readings:
         if name not in w.index:
             raise UsageError(f"--skip-reading {name}={t:g}: no such well in the data",
@@ -545,8 +546,8 @@ def standard_curve(ts: TraceSet, wells: pd.DataFrame, st: RateSettings,
     from .fitting import fit
     from .models import LINE
 
-    std = [n for n in wells.index if wells.loc[n, "role"] == "standard"
-           and np.isfinite(wells.loc[n, "standard_M"])]
+    std = list(wells.index[(wells["role"] == "standard").to_numpy()
+                           & np.isfinite(wells["standard_M"].to_numpy(float))])
     if st.calibrate == "standards" and len(std) < 3:
         raise InputError(f"a standard curve needs three or more standard wells with a known "
                          f"concentration (found {len(std)})",
@@ -952,7 +953,7 @@ def well_table(g: Grid, s: TraceSlopes, wells: pd.DataFrame, slope, se,
             "slope_A_per_min_se": se, "window_start_s": s.window_start_s,
             "window_end_s": s.window_end_s, "window_source": wells["window_source"].to_numpy(),
             "n_points": np.nan_to_num(w.n).astype(int), "r2": w.r2, "lag_s": w.lag_s,
-            "window_end_reason": [WindowEnd(int(r)).text for r in w.end_reason],
+            "window_end_reason": _end_texts(w.end_reason),
             "curve_slope_A_per_min": w.curve_slope * 60,
             "curve_slope_A_per_min_se": w.curve_slope_se * 60, "noise_A": w.sigma,
             "substrate_uM": wells["substrate_M"].to_numpy(float) * 1e6,
@@ -961,12 +962,18 @@ def well_table(g: Grid, s: TraceSlopes, wells: pd.DataFrame, slope, se,
             "dilution": wells["dilution"].to_numpy(float),
             "dilution_source": wells["dilution_source"].to_numpy(),
             "masked_readings": masked_counts(g),
-            "skipped_s": [[t for t, _ in wells.loc[n, "skip"]] for n in g.names],
+            "skipped_s": [[t for t, _ in sk] for sk in wells["skip"].reindex(g.names)],
             **conv}
     t = pd.DataFrame(cols)
     t["replicate_key"] = [f"{gr}|dilution {d:g}" for gr, d in zip(t["group"], t["dilution"],
                                                                     strict=True)]
     return t
+
+
+def _end_texts(codes) -> list[str]:
+    """The words of each window's end reason (one lookup per distinct code)."""
+    words = {int(c): WindowEnd(int(c)).text for c in np.unique(codes)}
+    return [words[int(c)] for c in codes]
 
 
 def masked_counts(g: Grid) -> list[dict]:

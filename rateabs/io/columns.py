@@ -56,11 +56,15 @@ class Sample:
         self.cells = [[r[j] if j < len(r) else "" for r in rows] for j in range(len(header))]
         self.kinds = [column_kinds(col, decimal) for col in self.cells]
         self.decimal = decimal
+        self._counts: dict[int, Counter] = {}
 
     def frac(self, j: int, kinds: tuple[str, ...]) -> float:
         """Share of the non-empty cells of column ``j`` that are of one of ``kinds``."""
-        col = [k for k in self.kinds[j] if k != "empty"]
-        return sum(k in kinds for k in col) / len(col) if col else 0.0
+        if j not in self._counts:
+            self._counts[j] = Counter(k for k in self.kinds[j] if k != "empty")
+        counts = self._counts[j]
+        total = sum(counts.values())
+        return sum(counts[k] for k in kinds) / total if total else 0.0
 
     def numbers(self, j: int) -> np.ndarray:
         """Column ``j`` as floats (NaN where a cell is not a number)."""

@@ -42,9 +42,10 @@ def is_column_numbers(cells: list[str]) -> bool:
 def looks_like_column_numbers(cells: list[str]) -> bool:
     """An empty corner then cells starting with a digit, without a decimal mark
     (``1, 2, 3²``): a column row, maybe a damaged one."""
+    if not cells or cells[0].strip():          # most rows: a value in the corner cell
+        return False
     nums = [c.strip() for c in cells[1:width(cells)]]
-    return bool(cells) and not cells[0].strip() and len(nums) >= 2 and all(
-        c[:1].isdigit() and not re.search(r"[.,]", c) for c in nums)
+    return len(nums) >= 2 and all(c[:1].isdigit() and not re.search(r"[.,]", c) for c in nums)
 
 
 def locate(rows: list[list[str]], decimal: str) -> Located:
