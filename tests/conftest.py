@@ -91,3 +91,13 @@ def dask_scheduler():
         yield cluster.scheduler_address
     finally:
         cluster.close(timeout=60)
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _pictures_drawn_here():
+    """Commands run in the test process draw their pictures here, one after another: the
+    suite's own workers already fill the cores. tests/test_drawing.py passes --jobs 2 to test
+    the drawing processes; commands run in their own process keep the default."""
+    from rateabs.views import drawing
+
+    drawing.DRAWING_PROCESSES = 1
