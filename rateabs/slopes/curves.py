@@ -219,19 +219,21 @@ def _dot(A, B) -> np.ndarray:
 TIME_TOLERANCE = 0.005
 
 
-def _by_clock(member: str, times, Y, W, span: float, T, off) -> tuple[np.ndarray, np.ndarray]:
-    """:func:`grid_optimum` with the traces ``off`` the shared clock grouped by their own."""
-    shape, best = np.zeros((Y.shape[0], 3)), np.zeros(Y.shape[0])
-    share = ~off
-    if share.any():
-        shape[share], best[share] = grid_optimum(member, times, Y[share], W[share], span)
-    own = np.where(W[off] > 0, T[off], -1.0)
-    clocks, which = np.unique(np.round(own, 9), axis=0, return_inverse=True)
-    rows = np.nonzero(off)[0]
-    for c in range(clocks.shape[0]):
-        r = rows[which.ravel() == c]
-        shape[r], best[r] = grid_optimum(member, np.nan_to_num(T[r[0]]), Y[r], W[r], span)
-    return shape, best
+def _clock_groups(times, T, W, span: float) -> list[tuple[np.ndarray, np.ndarray]]:
+    """The traces by clock: (rows, times) pairs, the traces whose used readings lie within
+    :data:`TIME_TOLERANCE` of the columns' ``times`` first (with those), then the others
+    grouped by their own times (a trace whose first readings are masked)."""
+    own = np.where(W > 0, T, np.nan)
+    off = np.nanmax(np.abs(own - np.asarray(times)[None, :]), axis=1,
+                    initial=0.0) > TIME_TOLERANCE * span
+    groups = [(np.nonzero(~off)[0], times)] if (~off).any() else []
+    if off.any():
+        rows = np.nonzero(off)[0]
+        clocks, which = np.unique(np.round(np.where(W[off] > 0, T[off], -1.0), 9), axis=0,
+                                  return_inverse=True)
+        groups += [(rows[which.ravel() == c], np.nan_to_num(T[rows[which.ravel() == c][0]]))
+                   for c in range(clocks.shape[0])]
+    return groups
 
 
 def grid_optimum(member: str, times, Y, W, span: float, T=None) -> tuple[np.ndarray, np.ndarray]:
@@ -243,11 +245,12 @@ def grid_optimum(member: str, times, Y, W, span: float, T=None) -> tuple[np.ndar
     times differ from ``times`` a tabulation of their own, one per distinct clock.
     """
     if T is not None:
-        own = np.where(W > 0, T, np.nan)
-        off = np.nanmax(np.abs(own - np.asarray(times)[None, :]), axis=1,
-                        initial=0.0) > TIME_TOLERANCE * span
-        if off.any():
-            return _by_clock(member, times, Y, W, span, T, off)
+        groups = _clock_groups(times, T, W, span)
+        if len(groups) > 1 or (groups and groups[0][1] is not times):
+            shape, best = np.zeros((Y.shape[0], 3)), np.zeros(Y.shape[0])
+            for rows, t in groups:
+                shape[rows], best[rows] = grid_optimum(member, t, Y[rows], W[rows], span)
+            return shape, best
     kappa, outer_name, outer = GRID[member]
     kk, oo = np.meshgrid(kappa, outer, indexing="xy")               # (n_outer, n_kappa)
     rho = oo if outer_name == "rho" else np.zeros_like(oo)
@@ -565,3 +568,56 @@ def without_start(prep, curves: Curves, skip: int) -> tuple[np.ndarray, np.ndarr
         v[rows] = fit.params[:, 1]
         se[rows] = curves.sigma[rows] * np.sqrt(np.sum(fit.v_weights ** 2, axis=1))
     return v, se
+
+
+#: The decaying offsets :func:`with_start_offset` tries: time constants from 2 % to 16 % of
+#: the read (a baseline that settles, mixing, a temperature step; over by the first half).
+OFFSET_TAUS = np.geomspace(0.02, 0.16, 4)
+
+
+def with_start_offset(prep, rows) -> tuple[np.ndarray, np.ndarray]:
+    """The exponential member with a decaying offset at the start,
+    y = c + v F(t; k) + a exp(-t / tau), fitted to the traces ``rows`` on the grid of k (the
+    exponential's) and tau (:data:`OFFSET_TAUS` x span): the weighted RSS and the initial slope
+    v at the best grid point of every trace (inf and NaN elsewhere). A check that the start of
+    the read follows the curve of the rest; c, v and a are linear, so each grid point is three
+    sums of products away (:func:`grid_rss`, with two columns)."""
+    N = prep.W.shape[0]
+    rss, v = np.full(N, np.inf), np.full(N, np.nan)
+    rows = np.asarray(rows, dtype=int)
+    if not rows.size:
+        return rss, v
+    kappa = GRID["exp"][0] / prep.span
+    taus = OFFSET_TAUS * prep.span
+    for sub, t in _clock_groups(prep.times, prep.Tc[rows], prep.W[rows], prep.span):
+        r = rows[sub]
+        rss[r], v[r] = _offset_grid(np.asarray(t, float), prep.Yc[r], prep.W[r], kappa, taus)
+    return rss, v
+
+
+def _offset_grid(t, Y, W, kappa, taus) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`with_start_offset` for traces sharing the times ``t``: the normal equations of
+    (v, a) about the weighted means, solved at every (k, tau) at once."""
+    F = progress(t[None, :], 0.0, 1.0, kappa[:, None], 0.0, 0.0)          # (K, n)
+    F[~np.isfinite(F)] = 0.0
+    g = np.exp(-t[None, :] / taus[:, None])                                  # (G, n)
+    wy = W * Y
+    sw, sy = W.sum(axis=1), wy.sum(axis=1)
+    with np.errstate(all="ignore"):
+        ym = (sy / sw)[:, None, None]
+        sf, sg = _dot(W, F)[:, :, None], _dot(W, g)[:, None, :]
+        vf = (_dot(W, F * F) - _dot(W, F) ** 2 / sw[:, None])[:, :, None]
+        vg = (_dot(W, g * g) - _dot(W, g) ** 2 / sw[:, None])[:, None, :]
+        cfg = np.einsum("rn,kn,gn->rkg", W, F, g) - sf * sg / sw[:, None, None]
+        cfy = _dot(wy, F)[:, :, None] - sf * ym
+        cgy = _dot(wy, g)[:, None, :] - sg * ym
+        det = vf * vg - cfg * cfg
+        b = (cfy * vg - cgy * cfg) / det
+        a = (cgy * vf - cfy * cfg) / det
+        res = ((wy * Y).sum(axis=1) - sy * sy / sw)[:, None, None] - b * cfy - a * cgy
+    res = np.where(np.isfinite(res) & (det > 1e-9 * vf * vg), res, np.inf).reshape(len(Y), -1)
+    best = np.argmin(res, axis=1)
+    i = np.arange(len(Y))
+    return res[i, best], np.where(np.isfinite(res[i, best]), b.reshape(len(Y), -1)[i, best],
+                                  np.nan)
+
