@@ -196,16 +196,15 @@ def test_contract_fields_and_flag_meanings():
 
 def test_flag_calibration_on_seeded_plates():
     """The calibration benchmark (benchmarks/flag_calibration.py) in small: six seeded plates,
-    truth by solve_ivp. Few wells need a look (off the truth by more than 5 % and 3 SE: 4 here,
-    33 before the SE counted the curvature and the lag-with-slowing the data cannot rule out),
-    good wells are flagged at most 10 % of the time (the issue's goal; 9.8 % here, most of them
-    very noisy wells) and 3 of the 4 wells that need a look are flagged here (goal 90 %; on 20
-    plates 19 of 21: a settling baseline too slight to be evident escapes); the benchmark
-    prints the full figures."""
+    truth by solve_ivp. Good wells (within 5 % or 3 SE of the truth) are flagged at most 10 %
+    of the time (the issue's goal; 7.9 % here, most of them very noisy wells) and at least
+    90 % of the wells that need a look carry a flag (17 of 18 here; before the SE counted the
+    curvature the data cannot rule out and ``start`` looked for a decaying offset, 20 of 33);
+    the benchmark prints the full figures."""
     cal = calibrate([simulate_plate(seed) for seed in range(101, 107)])
-    assert cal.n_bad <= 8
+    assert cal.n_bad >= 10
     assert cal.good_flagged <= 0.10
-    assert cal.bad_flagged >= 0.5
+    assert cal.bad_flagged >= 0.9
 
 
 def test_a_well_is_estimated_alike_beside_a_well_whose_first_readings_are_masked():

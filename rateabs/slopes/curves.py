@@ -365,8 +365,9 @@ CURVED_CHI2 = 10.83
 #: The Michaelis–Menten shape is tried where the exponential converts this much by the end,
 #: always fitted from MM_SURE on, below it where a grid point already beats the exponential.
 #: (A trace with S0 well above Km runs nearly straight until late: the exponential may then
-#: convert little yet start a few per cent low; the SE counts it, the Michaelis–Menten shape's
-#: spread where it was tried, and the difference's SE in the window's, rateabs.slopes.choice.)
+#: convert little yet start a few per cent low; the SE counts the Michaelis–Menten shape's
+#: spread where it was tried, and a straight window's SE the curvature the noise may hide,
+#: rateabs.slopes.choice.)
 MM_FROM = 0.2
 MM_SURE = 0.4
 
@@ -380,8 +381,9 @@ class Curves:
     weights (N, M); the curve at the readings (N, M); ``line_rss``: the straight line's RSS over
     the same readings; ``sigma``: the noise SD the SEs use (the larger of the trace's noise and
     the fit's residual SD); ``spread``: where a richer member was fitted but not evident, the
-    difference of its initial slope from the reported one and the SE of that difference (a
-    model uncertainty the SE counts, :func:`_richer`).
+    difference of its initial slope from the reported one, and the SE of that difference where
+    the reported member is straight after a lag (a model uncertainty the SE counts,
+    :func:`_richer`).
     """
 
     member: np.ndarray
@@ -422,19 +424,21 @@ def _richer(simple: MemberFit, rich: MemberFit, sel, sigma2, force=False):
     """Whether the richer fit (of the traces ``sel`` of the simpler one) is evident
     (:data:`CURVED_CHI2`, against the larger of the noise and the richer fit's residual
     variance) or forced, and the simpler one's spread where it is not: the two initial slopes'
-    difference and its SE in quadrature."""
+    difference, and where the simpler member is straight (``lag``) its SE in quadrature."""
     s2 = np.maximum(sigma2, rich.rss / np.maximum(rich.dof, 1))
     evident = force | ((simple.rss[sel] - rich.rss) > CURVED_CHI2 * s2)
     evident &= np.all(np.isfinite(rich.params), axis=1)
-    # the richer member's initial slope is the one that holds if its shape is there; where the
-    # data cannot show it, the simpler one may be off by their difference and by as much again
-    # as the noise hides: the SE of that difference, whose variance is the difference of the
-    # two variances (the simpler fit being the efficient one under its own model; Hausman 1978,
+    diff = simple.params[sel, 1] - rich.params[:, 1]
+    if 2 in MEMBERS[simple.member]:
+        return evident, np.where(evident, 0.0, np.abs(diff))
+    # a straight simpler member (after a lag): whether the rate slows at all is what the data
+    # cannot show, and the initial slope may be off by their difference and by as much again as
+    # the noise hides, the SE of that difference, whose variance is the difference of the two
+    # variances (the simpler fit being the efficient one under its own model; Hausman 1978,
     # Econometrica 46:1251, from memory)
     hidden = s2 * (np.sum(rich.v_weights ** 2, axis=1) - np.sum(simple.v_weights[sel] ** 2,
                                                                   axis=1))
-    spread = np.hypot(simple.params[sel, 1] - rich.params[:, 1], np.sqrt(np.maximum(hidden, 0.0)))
-    return evident, np.where(evident, 0.0, spread)
+    return evident, np.where(evident, 0.0, np.hypot(diff, np.sqrt(np.maximum(hidden, 0.0))))
 
 
 def _lags(prep, out: dict, exp: MemberFit, line_rss, sigma2) -> np.ndarray:
