@@ -85,7 +85,8 @@ def test_the_dilution_check_finds_the_trend_and_only_it(plate, view):
 def test_a_pipetting_outlier_is_flagged_and_left_out_of_the_mean(plate, view):
     res = _results(view)
     w = plate.outlier                                       # 30 % more enzyme than its replicates
-    assert "outlier" in res[w]["flags"] and res[w]["replicate_z"] > 5
+    # 30 % off its replicates, whose SEs count the curvature a straight window may hide
+    assert "outlier" in res[w]["flags"] and res[w]["replicate_z"] > 4
     act = {r["sample"]: r for r in view.doc["settings"]["activity"]}["L03"]
     assert act["n_used"] == act["n_wells"] - 1
     assert any(x.startswith(f"{w}: replicate outlier (|z| = ") for x in act["left_out"])

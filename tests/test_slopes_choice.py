@@ -113,6 +113,42 @@ def test_moderate_lag_rate_right():
     assert np.mean((err < 3 * w.slope_se) | (err < 0.05 * truth)) >= 0.9
 
 
+def test_a_lag_followed_by_depletion_is_covered_by_its_se():
+    """A hysteretic lag of 60-140 s (Frieden 1970) and 15-45 % conversion by the end, S0 from
+    Km/5 to Km; truth by solve_ivp (tests/kinetics_truth.py). The straight lag cannot see the
+    substrate used before and during its window, and a lag followed by a slowing rate is rarely
+    evident over it: every rate is within 3 SE of the truth, because the SE counts the slowing
+    the data cannot rule out (two thirds were before, some 4-7 SE low)."""
+    rng = np.random.default_rng(31)
+    n = 24
+    grid, truth = enzyme_plate(32, n, rng.uniform(0.15, 0.45, n), rng.uniform(0.2, 1.0, n),
+                               rng.uniform(1, 3, n) * 1e-4, lag=rng.uniform(60, 140, n))
+    w = find_windows(grid)
+    assert np.all(np.abs(w.slope - truth) < 3 * w.slope_se)
+    assert np.mean(w.slope < truth) > 0.8                 # they do read low: depletion
+
+
+@pytest.mark.parametrize("seed", [41, 43])
+def test_a_settling_baseline_that_moves_the_rate_is_flagged(seed):
+    """Enzyme wells (truth by solve_ivp, 5-70 % conversion, S0 from Km/5 to 5 Km) under a
+    baseline that settles by 5-20 mA with a 40 s time constant: every well whose rate is off by
+    more than 5 % and 3 SE carries a flag (one in seven escaped before the offset check of
+    ``start``), and the same wells without the settling carry none."""
+    rng = np.random.default_rng(seed)
+    n = 48
+    grid, truth = enzyme_plate(seed + 1, n, np.exp(rng.uniform(np.log(0.05), np.log(0.7), n)),
+                               np.exp(rng.uniform(np.log(0.2), np.log(5), n)),
+                               rng.uniform(1, 3, n) * 1e-4, noise=0.001)
+    amp = rng.choice([-1, 1], n) * rng.uniform(0.005, 0.02, n)
+    settled = TraceSet.from_arrays(grid.names, T, grid.values + amp[:, None] * np.exp(-T / 40))
+    w = find_windows(settled.grid())
+    err = np.abs(w.slope - truth)
+    look = (err > 0.05 * truth) & (err > 3 * w.slope_se)
+    assert look.sum() >= 5
+    assert all(w.flags[i] for i in np.nonzero(look)[0])
+    assert find_windows(grid).flags == [[] for _ in range(n)]
+
+
 def test_noisy_judged_on_the_readings_noise_not_a_near_zero_rate():
     """``noisy`` marks a trace whose readings are far noisier than the plate's, not a
     near-zero control whose relative SE is large (common practice)."""
@@ -159,15 +195,16 @@ def test_contract_fields_and_flag_meanings():
 
 
 def test_flag_calibration_on_seeded_plates():
-    """The calibration benchmark (benchmarks/flag_calibration.py) in small: two seeded plates,
+    """The calibration benchmark (benchmarks/flag_calibration.py) in small: six seeded plates,
     truth by solve_ivp. Good wells (within 5 % or 3 SE of the truth) are flagged at most 10 %
-    of the time (the issue's goal; 7 % here). Wells that need a look are flagged 64 % of the
-    time here, short of the goal of 90 % (lags with depletion and a settling baseline escape):
-    the bound guards what the flags reach now, and the benchmark prints the full figures."""
-    cal = calibrate([simulate_plate(seed) for seed in (101, 102)])
-    assert cal.n_bad >= 5
+    of the time (the issue's goal; most of them very noisy wells). Of the wells that need a
+    look 20 of 28 carry a flag here (20 of 33 before the lag's SE and the decaying-offset test
+    of ``start``), short of the goal of 90 %: the bound guards what the flags reach now, and
+    the benchmark prints the full figures."""
+    cal = calibrate([simulate_plate(seed) for seed in range(101, 107)])
+    assert cal.n_bad >= 10
     assert cal.good_flagged <= 0.10
-    assert cal.bad_flagged >= 0.5
+    assert cal.bad_flagged >= 0.65
 
 
 def test_a_well_is_estimated_alike_beside_a_well_whose_first_readings_are_masked():

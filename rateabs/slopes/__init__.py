@@ -216,7 +216,7 @@ def _chunk(grid: Grid, opts: _Options, clock: Clock, again: Clock | None = None)
         why = np.where(method == "window", "window: fixed window", why)
         why = np.where((method == "none") & (win.end < 0), "no rate: no readings in the window",
                        why)
-    marks = trace_marks(prep, curves, win, method, mp, fixed=window != "auto")
+    marks = trace_marks(prep, curves, win, method, (slope, se), mp, fixed=window != "auto")
     return _assemble(prep, curves, win, method, slope, se, why, marks, curve), bad
 
 

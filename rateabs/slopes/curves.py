@@ -219,19 +219,21 @@ def _dot(A, B) -> np.ndarray:
 TIME_TOLERANCE = 0.005
 
 
-def _by_clock(member: str, times, Y, W, span: float, T, off) -> tuple[np.ndarray, np.ndarray]:
-    """:func:`grid_optimum` with the traces ``off`` the shared clock grouped by their own."""
-    shape, best = np.zeros((Y.shape[0], 3)), np.zeros(Y.shape[0])
-    share = ~off
-    if share.any():
-        shape[share], best[share] = grid_optimum(member, times, Y[share], W[share], span)
-    own = np.where(W[off] > 0, T[off], -1.0)
-    clocks, which = np.unique(np.round(own, 9), axis=0, return_inverse=True)
-    rows = np.nonzero(off)[0]
-    for c in range(clocks.shape[0]):
-        r = rows[which.ravel() == c]
-        shape[r], best[r] = grid_optimum(member, np.nan_to_num(T[r[0]]), Y[r], W[r], span)
-    return shape, best
+def _clock_groups(times, T, W, span: float) -> list[tuple[np.ndarray, np.ndarray]]:
+    """The traces by clock: (rows, times) pairs, the traces whose used readings lie within
+    :data:`TIME_TOLERANCE` of the columns' ``times`` first (with those), then the others
+    grouped by their own times (a trace whose first readings are masked)."""
+    own = np.where(W > 0, T, np.nan)
+    off = np.nanmax(np.abs(own - np.asarray(times)[None, :]), axis=1,
+                    initial=0.0) > TIME_TOLERANCE * span
+    groups = [(np.nonzero(~off)[0], times)] if (~off).any() else []
+    if off.any():
+        rows = np.nonzero(off)[0]
+        clocks, which = np.unique(np.round(np.where(W[off] > 0, T[off], -1.0), 9), axis=0,
+                                  return_inverse=True)
+        groups += [(rows[which.ravel() == c], np.nan_to_num(T[rows[which.ravel() == c][0]]))
+                   for c in range(clocks.shape[0])]
+    return groups
 
 
 def grid_optimum(member: str, times, Y, W, span: float, T=None) -> tuple[np.ndarray, np.ndarray]:
@@ -243,11 +245,12 @@ def grid_optimum(member: str, times, Y, W, span: float, T=None) -> tuple[np.ndar
     times differ from ``times`` a tabulation of their own, one per distinct clock.
     """
     if T is not None:
-        own = np.where(W > 0, T, np.nan)
-        off = np.nanmax(np.abs(own - np.asarray(times)[None, :]), axis=1,
-                        initial=0.0) > TIME_TOLERANCE * span
-        if off.any():
-            return _by_clock(member, times, Y, W, span, T, off)
+        groups = _clock_groups(times, T, W, span)
+        if len(groups) > 1 or (groups and groups[0][1] is not times):
+            shape, best = np.zeros((Y.shape[0], 3)), np.zeros(Y.shape[0])
+            for rows, t in groups:
+                shape[rows], best[rows] = grid_optimum(member, t, Y[rows], W[rows], span)
+            return shape, best
     kappa, outer_name, outer = GRID[member]
     kk, oo = np.meshgrid(kappa, outer, indexing="xy")               # (n_outer, n_kappa)
     rho = oo if outer_name == "rho" else np.zeros_like(oo)
@@ -362,8 +365,9 @@ CURVED_CHI2 = 10.83
 #: The Michaelis–Menten shape is tried where the exponential converts this much by the end,
 #: always fitted from MM_SURE on, below it where a grid point already beats the exponential.
 #: (A trace with S0 well above Km runs nearly straight until late: the exponential may then
-#: convert little yet start a few per cent low; benchmarks/flag_calibration.py finds about one
-#: such well in a hundred off by more than 3 SE.)
+#: convert little yet start a few per cent low; the SE counts the Michaelis–Menten shape's
+#: spread where it was tried, and a straight window's SE the curvature the noise may hide,
+#: rateabs.slopes.choice.)
 MM_FROM = 0.2
 MM_SURE = 0.4
 
@@ -377,7 +381,9 @@ class Curves:
     weights (N, M); the curve at the readings (N, M); ``line_rss``: the straight line's RSS over
     the same readings; ``sigma``: the noise SD the SEs use (the larger of the trace's noise and
     the fit's residual SD); ``spread``: where a richer member was fitted but not evident, the
-    difference of its initial slope from the reported one (a model uncertainty the SE counts).
+    difference of its initial slope from the reported one, and the SE of that difference where
+    the reported member is straight after a lag (a model uncertainty the SE counts,
+    :func:`_richer`).
     """
 
     member: np.ndarray
@@ -417,11 +423,22 @@ def _subset(fit: MemberFit, keep) -> MemberFit:
 def _richer(simple: MemberFit, rich: MemberFit, sel, sigma2, force=False):
     """Whether the richer fit (of the traces ``sel`` of the simpler one) is evident
     (:data:`CURVED_CHI2`, against the larger of the noise and the richer fit's residual
-    variance) or forced, and the simpler one's spread where it is not."""
+    variance) or forced, and the simpler one's spread where it is not: the two initial slopes'
+    difference, and where the simpler member is straight (``lag``) its SE in quadrature."""
     s2 = np.maximum(sigma2, rich.rss / np.maximum(rich.dof, 1))
     evident = force | ((simple.rss[sel] - rich.rss) > CURVED_CHI2 * s2)
     evident &= np.all(np.isfinite(rich.params), axis=1)
-    return evident, np.where(evident, 0.0, np.abs(simple.params[sel, 1] - rich.params[:, 1]))
+    diff = simple.params[sel, 1] - rich.params[:, 1]
+    if 2 in MEMBERS[simple.member]:
+        return evident, np.where(evident, 0.0, np.abs(diff))
+    # a straight simpler member (after a lag): whether the rate slows at all is what the data
+    # cannot show, and the initial slope may be off by their difference and by as much again as
+    # the noise hides, the SE of that difference, whose variance is the difference of the two
+    # variances (the simpler fit being the efficient one under its own model; Hausman 1978,
+    # Econometrica 46:1251, from memory)
+    hidden = s2 * (np.sum(rich.v_weights ** 2, axis=1) - np.sum(simple.v_weights[sel] ** 2,
+                                                                  axis=1))
+    return evident, np.where(evident, 0.0, np.hypot(diff, np.sqrt(np.maximum(hidden, 0.0))))
 
 
 def _lags(prep, out: dict, exp: MemberFit, line_rss, sigma2) -> np.ndarray:
@@ -555,3 +572,56 @@ def without_start(prep, curves: Curves, skip: int) -> tuple[np.ndarray, np.ndarr
         v[rows] = fit.params[:, 1]
         se[rows] = curves.sigma[rows] * np.sqrt(np.sum(fit.v_weights ** 2, axis=1))
     return v, se
+
+
+#: The decaying offsets :func:`with_start_offset` tries: time constants from 2 % to 16 % of
+#: the read (a baseline that settles, mixing, a temperature step; over by the first half).
+OFFSET_TAUS = np.geomspace(0.02, 0.16, 4)
+
+
+def with_start_offset(prep, rows) -> tuple[np.ndarray, np.ndarray]:
+    """The exponential member with a decaying offset at the start,
+    y = c + v F(t; k) + a exp(-t / tau), fitted to the traces ``rows`` on the grid of k (the
+    exponential's) and tau (:data:`OFFSET_TAUS` x span): the weighted RSS and the initial slope
+    v at the best grid point of every trace (inf and NaN elsewhere). A check that the start of
+    the read follows the curve of the rest; c, v and a are linear, so each grid point is three
+    sums of products away (:func:`grid_rss`, with two columns)."""
+    N = prep.W.shape[0]
+    rss, v = np.full(N, np.inf), np.full(N, np.nan)
+    rows = np.asarray(rows, dtype=int)
+    if not rows.size:
+        return rss, v
+    kappa = GRID["exp"][0] / prep.span
+    taus = OFFSET_TAUS * prep.span
+    for sub, t in _clock_groups(prep.times, prep.Tc[rows], prep.W[rows], prep.span):
+        r = rows[sub]
+        rss[r], v[r] = _offset_grid(np.asarray(t, float), prep.Yc[r], prep.W[r], kappa, taus)
+    return rss, v
+
+
+def _offset_grid(t, Y, W, kappa, taus) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`with_start_offset` for traces sharing the times ``t``: the normal equations of
+    (v, a) about the weighted means, solved at every (k, tau) at once."""
+    F = progress(t[None, :], 0.0, 1.0, kappa[:, None], 0.0, 0.0)          # (K, n)
+    F[~np.isfinite(F)] = 0.0
+    g = np.exp(-t[None, :] / taus[:, None])                                  # (G, n)
+    wy = W * Y
+    sw, sy = W.sum(axis=1), wy.sum(axis=1)
+    with np.errstate(all="ignore"):
+        ym = (sy / sw)[:, None, None]
+        sf, sg = _dot(W, F)[:, :, None], _dot(W, g)[:, None, :]
+        vf = (_dot(W, F * F) - _dot(W, F) ** 2 / sw[:, None])[:, :, None]
+        vg = (_dot(W, g * g) - _dot(W, g) ** 2 / sw[:, None])[:, None, :]
+        cfg = np.einsum("rn,kn,gn->rkg", W, F, g) - sf * sg / sw[:, None, None]
+        cfy = _dot(wy, F)[:, :, None] - sf * ym
+        cgy = _dot(wy, g)[:, None, :] - sg * ym
+        det = vf * vg - cfg * cfg
+        b = (cfy * vg - cgy * cfg) / det
+        a = (cgy * vf - cfy * cfg) / det
+        res = ((wy * Y).sum(axis=1) - sy * sy / sw)[:, None, None] - b * cfy - a * cgy
+    res = np.where(np.isfinite(res) & (det > 1e-9 * vf * vg), res, np.inf).reshape(len(Y), -1)
+    best = np.argmin(res, axis=1)
+    i = np.arange(len(Y))
+    return res[i, best], np.where(np.isfinite(res[i, best]), b.reshape(len(Y), -1)[i, best],
+                                  np.nan)
+
