@@ -80,3 +80,18 @@ def test_jobs_with_one_file_and_no_pictures_is_refused(tmp_path):
     assert r.exit_code == 2
     assert "--jobs" in r.output and "no pictures" in r.output
     assert "Traceback" not in r.output
+
+
+def _dies(x):
+    os._exit(9)                 # a drawing process killed (out of memory, a signal)
+
+
+@pytest.mark.skipif((os.cpu_count() or 1) < 2, reason="drawing processes need two cores")
+def test_parts_are_drawn_here_when_the_processes_died(tmp_path):
+    from concurrent.futures.process import BrokenProcessPool
+
+    with drawing.drawing_pool(2) as pool:
+        with pytest.raises(BrokenProcessPool):
+            pool.submit(_dies, 1).result()       # the pool is broken, as by a killed process
+        done = drawing.draw_parts(pool, [(_ok, (tmp_path / "b.txt",))])
+    assert done == [os.getpid()] and (tmp_path / "b.txt").read_text() == "drawn"

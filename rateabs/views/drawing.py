@@ -68,15 +68,25 @@ def draw_parts(pool, parts: Sequence[tuple[Callable, tuple]]) -> list:
     one after another without a pool. An error in a part is raised here, as if drawn here.
 
     The processes write no file: what a part writes comes back with its result and is written
-    here, through the command's open run (:func:`rateabs.files.collected_writes`)."""
+    here, through the command's open run (:func:`rateabs.files.collected_writes`). A part whose
+    process died (killed, out of memory) is drawn here instead."""
+    from concurrent.futures.process import BrokenProcessPool
+
     from ..files import write_atomic
 
     if pool is None:
         return [fn(*args) for fn, args in parts]
-    futures = [pool.submit(drawn_elsewhere, fn, args) for fn, args in parts]
+    try:
+        futures = [pool.submit(drawn_elsewhere, fn, args) for fn, args in parts]
+    except BrokenProcessPool:
+        return [fn(*args) for fn, args in parts]
     results = []
-    for future in futures:
-        result, files = future.result()
+    for future, (fn, args) in zip(futures, parts, strict=True):
+        try:
+            result, files = future.result()
+        except BrokenProcessPool:
+            results.append(fn(*args))
+            continue
         for path, data in files:
             write_atomic(path, data)
         results.append(result)
