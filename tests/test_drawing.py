@@ -70,8 +70,9 @@ def test_files_of_a_part_are_written_by_the_command_not_the_process(tmp_path):
 def test_how_many_processes_draw():
     assert drawing.drawing_processes(None, False) == 0
     assert drawing.drawing_processes(1, True) == 0
-    assert drawing.drawing_processes(4, True) == min(4, os.cpu_count() or 1) * (
-        (os.cpu_count() or 1) >= 2)
+    cores = os.cpu_count() or 1
+    assert drawing.drawing_processes(4, True) == (min(4, cores, 2) if cores >= 2 else 0)
+    assert drawing.drawing_processes(4, True, parts=1) == (1 if cores >= 2 else 0)
 
 
 def test_jobs_with_one_file_and_no_pictures_is_refused(tmp_path):
@@ -95,3 +96,16 @@ def test_parts_are_drawn_here_when_the_processes_died(tmp_path):
             pool.submit(_dies, 1).result()       # the pool is broken, as by a killed process
         done = drawing.draw_parts(pool, [(_ok, (tmp_path / "b.txt",))])
     assert done == [os.getpid()] and (tmp_path / "b.txt").read_text() == "drawn"
+
+
+@pytest.mark.skipif((os.cpu_count() or 1) < 2, reason="drawing processes need two cores")
+def test_inspect_draws_its_picture_in_a_process_alike(tmp_path, monkeypatch):
+    args = ["inspect", str(sample_path("cuvettes_kbap_405nm_messy.csv"))]
+    _run([*args, "--out", str(tmp_path / "here")])
+    monkeypatch.setattr(drawing, "DRAWING_PROCESSES", 2)
+    _run([*args, "--out", str(tmp_path / "there")])
+    name = "inspect_traces.png"
+    assert (tmp_path / "here" / name).read_bytes() == (tmp_path / "there" / name).read_bytes()
+    listed = {f["name"] for f in json.loads(
+        (tmp_path / "there" / ".rateabs-manifest.json").read_text())["files"]}
+    assert name in listed

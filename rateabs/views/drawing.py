@@ -8,7 +8,9 @@ from it, so they hold the command's modules already), load matplotlib while the 
 and then draw the figures, split into parts, while the command writes its tables. The figures
 are the same as when drawn here, byte for byte; they are only drawn sooner.
 
-``--jobs 1`` (or a one-core machine) draws here, one figure after another. The processes are
+``rates`` draws in two parts; ``inspect`` has one figure, drawn by one process that loads
+matplotlib while the file is read. ``--jobs 1`` (``rates`` with one file) or a one-core machine
+draws here, one figure after another. The processes are
 :class:`~rateabs.parallel.LocalPool` workers: they die with the command and are stopped at once
 on an error or Ctrl-C.
 """
@@ -25,28 +27,29 @@ from typing import Any
 DRAWING_PROCESSES = 2
 
 #: What a drawing process loads while the analysis runs.
-WARM_MODULES = ("rateabs.plots.rates", "rateabs.plots.style:warm_up")
+WARM_MODULES = ("rateabs.plots.rates", "rateabs.plots.inspect", "rateabs.plots.style:warm_up")
 
 #: What the command loads before the drawing processes are forked: the analysis needs it, and
 #: the processes need it to take in what they draw.
 PARENT_MODULES = ("pandas", "rateabs.rates", "rateabs.layout", "rateabs.io")
 
 
-def drawing_processes(jobs: int | None, wanted: bool) -> int:
-    """How many processes draw: none when no pictures are drawn or ``jobs`` is 1, else
-    ``jobs`` or :data:`DRAWING_PROCESSES`, at most the machine's cores."""
-    if not wanted:
-        return 0
+def drawing_processes(jobs: int | None, wanted: bool, parts: int = 2) -> int:
+    """How many processes draw: none when no pictures are drawn, when ``jobs`` (else
+    :data:`DRAWING_PROCESSES`) is 1 or the machine has one core; else that many, at most the
+    cores and the command's ``parts``."""
     n = DRAWING_PROCESSES if jobs is None else jobs
-    n = min(n, os.cpu_count() or 1)
-    return n if n >= 2 else 0
+    cores = os.cpu_count() or 1
+    if not wanted or n < 2 or cores < 2:
+        return 0
+    return min(n, cores, parts)
 
 
 @contextmanager
 def drawing_pool(processes: int) -> Iterator[Any]:
     """``with drawing_pool(n) as pool``: ``n`` warm drawing processes (None for ``n`` = 0),
     started at once so that they load matplotlib while the caller computes."""
-    if processes < 2:
+    if processes < 1:
         yield None
         return
     from ..parallel import LocalPool

@@ -41,14 +41,25 @@ def compute_inspect(o: InspectOptions) -> View:
 
 def run_inspect(o: InspectOptions, emit) -> View:
     """The ``inspect`` command."""
-    view = compute_inspect(o)
+    from .drawing import draw_parts, drawing_pool, drawing_processes
 
-    def plot(folder):
-        from ..plots import traces_overview
+    out = o.output
+    with drawing_pool(drawing_processes(None, out.plots and bool(out.out or out.report),
+                                        parts=1)) as pool:
+        view = compute_inspect(o)
 
-        flagged = [bool(r["flags"]) for r in view.analysis.results]
-        return [traces_overview(view.analysis.traces, folder / "inspect_traces.png",
-                                Path(o.file).name, "absorbance (AU)", flagged=flagged)]
+        def plot(folder):
+            flagged = [bool(r["flags"]) for r in view.analysis.results]
+            return draw_parts(pool, [(traces_picture, (view.analysis.traces, Path(folder),
+                                                       Path(o.file).name, flagged))])
 
-    deliver(o, emit, view, "inspect", plot)
+        deliver(o, emit, view, "inspect", plot)
     return view
+
+
+def traces_picture(traces, folder: Path, title: str, flagged: list[bool]) -> Path:
+    """Every trace of the file in one figure (drawn where :mod:`rateabs.views.drawing` says)."""
+    from ..plots import traces_overview
+
+    return traces_overview(traces, folder / "inspect_traces.png", title, "absorbance (AU)",
+                           flagged=flagged)
