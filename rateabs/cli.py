@@ -5,7 +5,7 @@ rules (type, range, choices, unit; :mod:`rateabs.rules`), defaults and help are 
 and every value is checked by the same rule that checks the settings object. A bad option gives
 one line on stderr naming the option and exit code 2.
 
-Heavy libraries (numpy, pandas, scipy, lmfit, matplotlib) are imported inside the commands so
+Heavy libraries (numpy, pandas, scipy, matplotlib) are imported inside the commands so
 that ``rateabs --help`` stays fast.
 """
 

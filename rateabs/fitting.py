@@ -1,11 +1,12 @@
 """The one fitting engine every analysis uses.
 
-* :func:`fit` fits a :class:`~rateabs.models.Model` with lmfit (bounds, fixed parameters,
-  weights) and attaches intervals by covariance (t-based), profile likelihood (Bates & Watts
-  1988; computed by lmfit's profile search with the F criterion, equivalent to the profile t
-  statistic for one parameter) or bootstrap (seeded; residual or case resampling).
+* :func:`fit` fits a :class:`~rateabs.models.Model` by scipy's bounded ``least_squares``
+  (bounds, fixed parameters, weights) and attaches intervals by covariance (t-based), profile
+  likelihood (Bates & Watts 1988; its own search with the F criterion of lmfit's
+  ``conf_interval``, equivalent to the profile t statistic for one parameter; a test compares
+  the two) or bootstrap (seeded; residual or case resampling).
 * :func:`batch_lm` is a vectorised Levenberg–Marquardt solver that fits many datasets at once on
-  arrays; it serves bootstrap resamples and per-trace fits, and agrees with lmfit (a test).
+  arrays; it serves bootstrap resamples and per-trace fits, and agrees with scipy (a test).
 * :func:`compare` ranks candidate fits by AICc, runs extra-sum-of-squares F-tests for nested
   pairs and marks exactly one result ``chosen``.
 
@@ -457,31 +458,48 @@ def _usable(x, y, sd):
     return x[..., ok], y[ok], None if sd is None else np.asarray(sd, dtype=float)[ok]
 
 
-def _parameters(lmfit, model: Model, start: dict, fix: dict, bounds: dict):
-    """lmfit Parameters with bounds, the start inside them, fixed ones held."""
-    pars = lmfit.Parameters()
-    for name in model.params:
-        lo, hi = bounds.get(name, (model.lower.get(name, -np.inf), model.upper.get(name, np.inf)))
-        v0 = float(start[name])
-        if name not in fix:
-            v0 = min(max(v0, lo if np.isfinite(lo) else v0), hi if np.isfinite(hi) else v0)
-        pars.add(name, value=v0, min=lo, max=hi, vary=name not in fix)
-    return pars
+@dataclass(frozen=True)
+class _Solved:
+    """The solver's optimum: every parameter's value and bounds, and how the search ended."""
+
+    values: dict
+    limits: dict
+    success: bool
+    message: str
 
 
-def _minimize(lmfit, model: Model, x, y, w, pars, scale_covar: bool, n_free: int):
-    def residual(ps):
-        vals = [ps[nm].value for nm in model.params]
+def _minimize(model: Model, data: tuple, start: dict, fix: dict, bounds: dict) -> _Solved:
+    """Least squares of the weighted residuals over the free parameters, within their bounds
+    (scipy's trust-region reflective ``least_squares``; the start moved inside the bounds,
+    fixed parameters held). ``data`` is (x, y, w)."""
+    from scipy.optimize import least_squares
+
+    x, y, w = data
+    names = list(model.params)
+    limits = {nm: _limits(model, bounds, nm) for nm in names}
+    free = [nm for nm in names if nm not in fix]
+    values = {nm: float(start[nm]) for nm in names}
+    for nm in free:
+        lo, hi = limits[nm]
+        values[nm] = min(max(values[nm], lo if np.isfinite(lo) else values[nm]),
+                         hi if np.isfinite(hi) else values[nm])
+    if not free:
+        return _Solved(values, limits, True, "no free parameter")
+
+    def residual(q):
+        p = dict(values, **dict(zip(free, q, strict=True)))
         with np.errstate(all="ignore"):
-            r = (y - model.func(x, *vals)) * w
+            r = (y - model.func(x, *[p[nm] for nm in names])) * w
         return np.where(np.isfinite(r), r, 1e150)
 
-    mini = lmfit.Minimizer(residual, pars, scale_covar=scale_covar, nan_policy="propagate")
+    lo = np.array([limits[nm][0] for nm in free], dtype=float)
+    hi = np.array([limits[nm][1] for nm in free], dtype=float)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        res = mini.minimize(method="least_squares", max_nfev=4000 * (n_free + 1),
-                            xtol=1e-15, ftol=1e-15, gtol=1e-15)
-    return mini, res
+        r = least_squares(residual, np.array([values[nm] for nm in free]), bounds=(lo, hi),
+                          max_nfev=4000 * (len(free) + 1), xtol=1e-15, ftol=1e-15, gtol=1e-15)
+    values.update(zip(free, map(float, r.x), strict=True))
+    return _Solved(values, limits, bool(r.success), str(r.message))
 
 
 @dataclass
@@ -509,7 +527,7 @@ def _asymptotic(model, res, values, free, cov, dof, level, success, message) -> 
                      "identifiable from these data")
         success, message = False, "not identifiable (singular covariance)"
     for nm in free:
-        lo, hi, v = res.params[nm].min, res.params[nm].max, values[nm]
+        (lo, hi), v = res.limits[nm], values[nm]
         if (np.isfinite(lo) and abs(v - lo) <= 1e-9 * max(1.0, abs(lo))) or (
                 np.isfinite(hi) and abs(v - hi) <= 1e-9 * max(1.0, abs(hi))):
             notes.append(f"{nm} ended at its bound ({v:.4g}); its interval is not reliable")
@@ -567,8 +585,6 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     :class:`~rateabs.errors.UsageError` for a fixed value outside a parameter's bounds; other
     failures return ``success=False`` with the reason.
     """
-    import lmfit
-
     _check_fit_args(ci, level, resample, n_boot)
     fix = check_fixed(model, fix)
     x, y, sd = _usable(np.asarray(x, dtype=float), np.asarray(y, dtype=float), sd)
@@ -581,9 +597,8 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     start = {**model.guess(x, y), **(p0 or {}), **fix}
     bounds = bounds or {}
     scale_covar = weighting != "sd"
-    mini, res = _minimize(lmfit, model, x, y, w, _parameters(lmfit, model, start, fix, bounds),
-                          scale_covar, len(free))
-    values = {nm: res.params[nm].value for nm in model.params}
+    res = _minimize(model, (x, y, w), start, fix, bounds)
+    values = dict(res.values)
     if tol is not None and free:
         values = polish(model, x, y, w, values, free, tol, bounds)
     fitted = model.func(x, *values.values())
