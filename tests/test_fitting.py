@@ -84,7 +84,8 @@ ALL_SATURATION = ["mm", "hill", "substrate-inhibition", "competitive", "uncompet
 
 
 @pytest.mark.parametrize("name", ALL_SATURATION)
-def test_batched_solver_agrees_with_lmfit(name):
+def test_batched_solver_agrees_with_scipy_least_squares(name):
+    # fit() solves with scipy.optimize.least_squares (reference library)
     rng = np.random.default_rng(7)
     model = SATURATION[name]
     x, truth = _design(name)
