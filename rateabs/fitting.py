@@ -788,7 +788,7 @@ def _refitter(model: Model, data: tuple, values: dict, free, nm: str, bounds: di
         start = np.clip(state["start"], lims[:, 0], lims[:, 1])
         r = least_squares(residual, start, method="trf" if bounded else "lm",
                           bounds=(lims[:, 0], lims[:, 1]) if bounded else (-np.inf, np.inf),
-                          xtol=1e-12, ftol=1e-12, gtol=1e-12, max_nfev=400 * (len(others) + 1))
+                          xtol=1e-10, ftol=1e-12, gtol=1e-12, max_nfev=400 * (len(others) + 1))
         state["start"] = r.x
         return 2.0 * float(r.cost)
 
@@ -803,7 +803,8 @@ def _step(value: float, se: float) -> float:
 
 
 def _profile_side(excess, value: float, sign: int, step: float, lims: tuple, brentq):
-    """Where ``excess`` crosses zero on one side of ``value`` (None: no crossing in reach)."""
+    """Where ``excess`` crosses zero on one side of ``value`` (None: no crossing in reach),
+    to a ten-millionth of a SE (``step``)."""
     inner, k = value, 1.0
     while k <= PROFILE_REACH_SE:
         outer = value + sign * k * step
@@ -813,7 +814,7 @@ def _profile_side(excess, value: float, sign: int, step: float, lims: tuple, bre
             outer = edge
         if np.isfinite(outer) and excess(outer) > 0:
             a, b = sorted((inner, outer))
-            return float(brentq(excess, a, b, xtol=1e-12 * max(1.0, abs(value)), rtol=1e-10))
+            return float(brentq(excess, a, b, xtol=1e-7 * step, rtol=1e-12))
         if at_edge:
             return None
         inner, k = outer, k * 2
