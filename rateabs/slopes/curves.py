@@ -69,8 +69,9 @@ def mm_conversion(theta, rho):
     a = (theta - rho) / (1 - rho)
     q = np.where(rho >= 0, np.maximum(theta, a), np.minimum(theta, a))
     for _ in range(_HALLEY_STEPS):
-        e = rho * np.exp(-q)
-        g = (1 - rho) * q - rho * np.expm1(-q) - theta
+        em = np.expm1(-q)                  # one transcendental a step: exp(-q) = em + 1
+        e = rho * (em + 1)
+        g = (1 - rho) * q - rho * em - theta
         g1 = (1 - rho) + e
         q = q - 2 * g * g1 / (2 * g1 * g1 + g * e)
     return -np.expm1(-q), q
