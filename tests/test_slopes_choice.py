@@ -149,6 +149,30 @@ def test_a_settling_baseline_that_moves_the_rate_is_flagged(seed):
     assert find_windows(grid).flags == [[] for _ in range(n)]
 
 
+@pytest.mark.parametrize("seed", [71, 81])
+def test_a_slight_settling_baseline_that_moves_the_rate_is_flagged_more_often(seed):
+    """Enzyme wells (truth by solve_ivp, 1-30 % conversion, S0 from Km/5 to 5 Km, 2 mA noise)
+    under a baseline that settles by only 3-10 mA with a 40 s time constant: the settling is
+    often too slight to be evident, yet moves the rate by more than 5 % and 3 SE. At least 60 %
+    of those wells carry a flag (about half did before a decaying offset that only possibly
+    fits better, but moves the rate by over 3 SE, counted for ``start``: 14 of 28 and 12 of 23
+    here, now 18 and 17), and the same wells without the settling carry almost none."""
+    rng = np.random.default_rng(seed)
+    n = 160
+    grid, truth = enzyme_plate(seed + 1, n, np.exp(rng.uniform(np.log(0.01), np.log(0.3), n)),
+                               np.exp(rng.uniform(np.log(0.2), np.log(5), n)),
+                               rng.uniform(0.5, 2, n) * 1e-4, noise=0.002)
+    amp = rng.choice([-1, 1], n) * rng.uniform(0.003, 0.01, n)
+    settled = TraceSet.from_arrays(grid.names, T, grid.values + amp[:, None] * np.exp(-T / 40))
+    w = find_windows(settled.grid())
+    err = np.abs(w.slope - truth)
+    look = (err > 0.05 * truth) & (err > 3 * w.slope_se)
+    flagged = np.array([bool(f) for f in w.flags])
+    assert look.sum() >= 20
+    assert (look & flagged).sum() >= 0.6 * look.sum()
+    assert sum(bool(f) for f in find_windows(grid).flags) <= 0.03 * n
+
+
 def test_noisy_judged_on_the_readings_noise_not_a_near_zero_rate():
     """``noisy`` marks a trace whose readings are far noisier than the plate's, not a
     near-zero control whose relative SE is large (common practice)."""
@@ -197,14 +221,15 @@ def test_contract_fields_and_flag_meanings():
 def test_flag_calibration_on_seeded_plates():
     """The calibration benchmark (benchmarks/flag_calibration.py) in small: six seeded plates,
     truth by solve_ivp. Good wells (within 5 % or 3 SE of the truth) are flagged at most 10 %
-    of the time (the issue's goal; most of them very noisy wells). Of the wells that need a
-    look 20 of 28 carry a flag here (20 of 33 before the lag's SE and the decaying-offset test
-    of ``start``), short of the goal of 90 %: the bound guards what the flags reach now, and
-    the benchmark prints the full figures."""
+    of the time (the issue's goal; 7.1 % here, most of them very noisy wells). Of the wells
+    that need a look 21 of 28 carry a flag here (20 of 28 before a decaying offset at the start
+    that only possibly fits better counted for ``start``; 20 of 33 before the lag's SE and the
+    decaying-offset test), short of the goal of 90 %: the bound guards what the flags reach
+    now, and the benchmark prints the full figures."""
     cal = calibrate([simulate_plate(seed) for seed in range(101, 107)])
     assert cal.n_bad >= 10
     assert cal.good_flagged <= 0.10
-    assert cal.bad_flagged >= 0.65
+    assert cal.bad_flagged >= 0.74
 
 
 def test_a_well_is_estimated_alike_beside_a_well_whose_first_readings_are_masked():
