@@ -45,7 +45,8 @@ def run(argv: list[str], cwd: Path, repeat: int = 1) -> tuple[float, float]:
         wall = time.perf_counter() - t0
         after = resource.getrusage(resource.RUSAGE_CHILDREN)
         if r.returncode not in (0, 5):
-            raise SystemExit(f"{' '.join(map(str, argv))} failed:\n{r.stderr[-2000:]}")
+            raise SystemExit(f"{' '.join(map(str, argv))} failed:\n{r.stdout[-3000:]}\n"
+                             f"{r.stderr[-2000:]}")
         cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
         best = min(best, (wall, cpu))
     return best
