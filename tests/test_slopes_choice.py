@@ -128,25 +128,32 @@ def test_a_lag_followed_by_depletion_is_covered_by_its_se():
     assert np.mean(w.slope < truth) > 0.8                 # they do read low: depletion
 
 
+def _settling_plate(seed, n, conversion, rate, noise, settle):
+    """Enzyme wells (truth by solve_ivp; conversion by the last reading, S0 from Km/5 to 5 Km,
+    initial rate in 1e-4 A/s, log-uniform or uniform over the given ranges) under a baseline
+    that settles by ``settle`` (A, either sign) with a 40 s time constant: the plate without
+    the settling, the estimates with it, and which wells are off by over 5 % and 3 SE."""
+    rng = np.random.default_rng(seed)
+    grid, truth = enzyme_plate(seed + 1, n, np.exp(rng.uniform(*np.log(conversion), n)),
+                               np.exp(rng.uniform(np.log(0.2), np.log(5), n)),
+                               rng.uniform(*rate, n) * 1e-4, noise=noise)
+    amp = rng.choice([-1, 1], n) * rng.uniform(*settle, n)
+    settled = TraceSet.from_arrays(grid.names, T, grid.values + amp[:, None] * np.exp(-T / 40))
+    w = find_windows(settled.grid())
+    err = np.abs(w.slope - truth)
+    return grid, w, (err > 0.05 * truth) & (err > 3 * w.slope_se)
+
+
 @pytest.mark.parametrize("seed", [41, 43])
 def test_a_settling_baseline_that_moves_the_rate_is_flagged(seed):
     """Enzyme wells (truth by solve_ivp, 5-70 % conversion, S0 from Km/5 to 5 Km) under a
     baseline that settles by 5-20 mA with a 40 s time constant: every well whose rate is off by
     more than 5 % and 3 SE carries a flag (one in seven escaped before the offset check of
     ``start``), and the same wells without the settling carry none."""
-    rng = np.random.default_rng(seed)
-    n = 48
-    grid, truth = enzyme_plate(seed + 1, n, np.exp(rng.uniform(np.log(0.05), np.log(0.7), n)),
-                               np.exp(rng.uniform(np.log(0.2), np.log(5), n)),
-                               rng.uniform(1, 3, n) * 1e-4, noise=0.001)
-    amp = rng.choice([-1, 1], n) * rng.uniform(0.005, 0.02, n)
-    settled = TraceSet.from_arrays(grid.names, T, grid.values + amp[:, None] * np.exp(-T / 40))
-    w = find_windows(settled.grid())
-    err = np.abs(w.slope - truth)
-    look = (err > 0.05 * truth) & (err > 3 * w.slope_se)
+    grid, w, look = _settling_plate(seed, 48, (0.05, 0.7), (1, 3), 0.001, (0.005, 0.02))
     assert look.sum() >= 5
     assert all(w.flags[i] for i in np.nonzero(look)[0])
-    assert find_windows(grid).flags == [[] for _ in range(n)]
+    assert find_windows(grid).flags == [[] for _ in range(48)]
 
 
 @pytest.mark.parametrize("seed", [71, 81])
@@ -157,20 +164,11 @@ def test_a_slight_settling_baseline_that_moves_the_rate_is_flagged_more_often(se
     of those wells carry a flag (about half did before a decaying offset that only possibly
     fits better, but moves the rate by over 3 SE, counted for ``start``: 14 of 28 and 12 of 23
     here, now 18 and 17), and the same wells without the settling carry almost none."""
-    rng = np.random.default_rng(seed)
-    n = 160
-    grid, truth = enzyme_plate(seed + 1, n, np.exp(rng.uniform(np.log(0.01), np.log(0.3), n)),
-                               np.exp(rng.uniform(np.log(0.2), np.log(5), n)),
-                               rng.uniform(0.5, 2, n) * 1e-4, noise=0.002)
-    amp = rng.choice([-1, 1], n) * rng.uniform(0.003, 0.01, n)
-    settled = TraceSet.from_arrays(grid.names, T, grid.values + amp[:, None] * np.exp(-T / 40))
-    w = find_windows(settled.grid())
-    err = np.abs(w.slope - truth)
-    look = (err > 0.05 * truth) & (err > 3 * w.slope_se)
+    grid, w, look = _settling_plate(seed, 160, (0.01, 0.3), (0.5, 2), 0.002, (0.003, 0.01))
     flagged = np.array([bool(f) for f in w.flags])
     assert look.sum() >= 20
     assert (look & flagged).sum() >= 0.6 * look.sum()
-    assert sum(bool(f) for f in find_windows(grid).flags) <= 0.03 * n
+    assert sum(bool(f) for f in find_windows(grid).flags) <= 0.03 * 160
 
 
 def test_noisy_judged_on_the_readings_noise_not_a_near_zero_rate():
