@@ -14,6 +14,9 @@ from rateabs.cli import main
 from rateabs.grade import Rubric, agreement, data_quality, grade_class, read_rubric
 from rateabs.simulate import first_order_class
 
+# one worker runs the module, so its module fixture is made once
+pytestmark = pytest.mark.xdist_group("grade-class")
+
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 CLASS = SAMPLES / "class_kestrel_red"
 

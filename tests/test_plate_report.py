@@ -13,6 +13,9 @@ from plate_truth import plate_384
 
 from rateabs.cli import main
 
+# one worker runs the module, so its module fixture is made once
+pytestmark = pytest.mark.xdist_group("plate-report")
+
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 PLATE = SAMPLES / "plate_kbdh_340nm.csv"
 MAP = SAMPLES / "plate_kbdh_map.csv"
