@@ -27,6 +27,9 @@ from grade_truth import (
 from rateabs.cli import main
 from rateabs.grade import grade_class, read_rubric
 
+# one worker runs the module, so its module fixtures are made once
+pytestmark = pytest.mark.xdist_group("grade-diagnosis")
+
 
 @pytest.fixture(scope="module")
 def planted(tmp_path_factory):

@@ -14,6 +14,9 @@ from rateabs.cli import main
 from rateabs.options import RatesOptions
 from rateabs.views.rates import compute_rates
 
+# one worker runs the module, so its module fixtures are made once
+pytestmark = pytest.mark.xdist_group("plate-384")
+
 ACTIVITY_ARGS = ["--chromophore", "pnp", "--total-volume", "200 uL", "--sample-volume", "20 uL"]
 
 
