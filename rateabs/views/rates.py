@@ -361,35 +361,40 @@ def detail_wells(a, choice: str) -> list[str]:
     return a.needs_look[:WELL_PAGE_CAP]
 
 
+#: The figures of a rates run, in the order they are listed and shown.
+FIGURES = ("overview", "map", "replicates", "pages")
+
+#: How the figures are shared out between two drawing processes (about 0.6 s of drawing each
+#: on a 96-well plate).
+FIGURE_PARTS = (("overview", "replicates"), ("map", "pages"))
+
+
 def rate_plots(view: View, out: str | Path, stem: str = "rates",
                well_pages: str = "flagged", title: str = "", pool=None) -> list[Path]:
     """The plate at a glance, the rate map, the replicates and single-well pages, into ``out``
-    (drawn in two parts on the ``pool``'s processes where there is one: see
+    (drawn in :data:`FIGURE_PARTS` on the ``pool``'s processes where there is one: see
     :mod:`rateabs.views.drawing`)."""
     from .drawing import draw_parts
 
     out, a = Path(out), view.analysis
     wells = detail_wells(a, well_pages)
-    first, second = draw_parts(pool, [(overview_and_pages, (a, out, stem, wells, title)),
-                                      (map_and_replicates, (a, out, stem))])
-    return first[:1] + second + first[1:]
+    drawn: dict = {}
+    for part in draw_parts(pool, [(rate_figures, (a, out, stem, names, wells, title))
+                                  for names in FIGURE_PARTS]):
+        drawn.update(part)
+    return [path for name in FIGURES for path in drawn[name]]
 
 
-def overview_and_pages(a, out: Path, stem: str, wells: list[str], title: str) -> list[Path]:
-    """The plate overview and the single-well pages (one part of :func:`rate_plots`)."""
-    from ..plots.rates import plate_overview, well_pages
+def rate_figures(a, out: Path, stem: str, names, wells: list[str], title: str) -> dict:
+    """The named figures of :data:`FIGURES` (one part of :func:`rate_plots`): name -> paths
+    (none for a map or replicate plot the plate does not have)."""
+    from ..plots.rates import plate_heatmap, plate_overview, replicate_plot, well_pages
 
-    return [plate_overview(a, out / f"{stem}_plate_overview.png", title),
-            *well_pages(a, out, wells, stem)]
-
-
-def map_and_replicates(a, out: Path, stem: str) -> list[Path]:
-    """The rate map and the replicate plot, where there is one (one part of
-    :func:`rate_plots`)."""
-    from ..plots.rates import plate_heatmap, replicate_plot
-
-    return [p for p in (plate_heatmap(a, out / f"{stem}_plate.png"),
-                        replicate_plot(a, out / f"{stem}_replicates.png")) if p]
+    draw = {"overview": lambda: [plate_overview(a, out / f"{stem}_plate_overview.png", title)],
+            "map": lambda: [plate_heatmap(a, out / f"{stem}_plate.png")],
+            "replicates": lambda: [replicate_plot(a, out / f"{stem}_replicates.png")],
+            "pages": lambda: well_pages(a, out, wells, stem)}
+    return {name: [p for p in draw[name]() if p] for name in names}
 
 
 # --------------------------------------------------------------------------- report
