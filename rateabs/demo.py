@@ -206,22 +206,17 @@ def _chains_done(inputs: Path, out: Path):
     import os
     from concurrent.futures import as_completed
 
-    from .parallel import LocalPool
+    from .parallel import LocalPool, stopping
 
     n = min(DEMO_PROCESSES, os.cpu_count() or 1)
     if n < 2:
         for keys in CHAINS:
             yield keys, run_chain(keys, inputs, out)
         return
-    pool = LocalPool(n, warm=("rateabs.plots.style:warm_up",))
-    try:
+    with stopping(LocalPool(n, warm=("rateabs.plots.style:warm_up",))) as pool:
         futures = {pool.submit(run_chain, keys, inputs, out): keys for keys in CHAINS}
         for future in as_completed(futures):
             yield futures[future], future.result()
-    except BaseException:
-        pool.terminate()
-        raise
-    pool.shutdown(wait=True)
 
 
 #: The embedded sample runs the demo uses, copied beside its results so that every page names

@@ -160,6 +160,15 @@ def open_executor(jobs: int | str | None = None,
     if ex is None:
         yield None
         return
+    with stopping(ex):
+        yield ex
+
+
+@contextmanager
+def stopping(ex) -> Iterator:
+    """``with stopping(ex)``: an executor of this module (:class:`LocalPool` or
+    :class:`ClusterExecutor`), shut down on leaving once its work is done, and stopped at once
+    when left by an exception (Ctrl-C included)."""
     try:
         yield ex
     except BaseException:

@@ -52,18 +52,13 @@ def drawing_pool(processes: int) -> Iterator[Any]:
     if processes < 1:
         yield None
         return
-    from ..parallel import LocalPool
+    from ..parallel import LocalPool, stopping
 
     for name in PARENT_MODULES:     # loaded once, before the fork, instead of in each process
         importlib.import_module(name)
-    pool = LocalPool(processes, warm=WARM_MODULES)
-    pool.submit(os.getpid)          # starts every process (forked) and their warm-up
-    try:
+    with stopping(LocalPool(processes, warm=WARM_MODULES)) as pool:
+        pool.submit(os.getpid)      # starts every process (forked) and their warm-up
         yield pool
-    except BaseException:
-        pool.terminate()
-        raise
-    pool.shutdown(wait=True)
 
 
 def draw_parts(pool, parts: Sequence[tuple[Callable, tuple]]) -> list:
