@@ -474,7 +474,6 @@ def _minimize(model: Model, data: tuple, start: dict, fix: dict, bounds: dict) -
     fixed parameters held). ``data`` is (x, y, w)."""
     from scipy.optimize import least_squares
 
-    x, y, w = data
     names = list(model.params)
     limits = {nm: _limits(model, bounds, nm) for nm in names}
     free = [nm for nm in names if nm not in fix]
@@ -486,12 +485,7 @@ def _minimize(model: Model, data: tuple, start: dict, fix: dict, bounds: dict) -
     if not free:
         return _Solved(values, limits, True, "no free parameter")
 
-    def residual(q):
-        p = dict(values, **dict(zip(free, q, strict=True)))
-        with np.errstate(all="ignore"):
-            r = (y - model.func(x, *[p[nm] for nm in names])) * w
-        return np.where(np.isfinite(r), r, 1e150)
-
+    residual = _residuals(model, data, values, free)
     lo = np.array([limits[nm][0] for nm in free], dtype=float)
     hi = np.array([limits[nm][1] for nm in free], dtype=float)
     with warnings.catch_warnings():
@@ -500,6 +494,21 @@ def _minimize(model: Model, data: tuple, start: dict, fix: dict, bounds: dict) -
                           max_nfev=4000 * (len(free) + 1), xtol=1e-15, ftol=1e-15, gtol=1e-15)
     values.update(zip(free, map(float, r.x), strict=True))
     return _Solved(values, limits, bool(r.success), str(r.message))
+
+
+def _residuals(model: Model, data: tuple, held: dict, free: list):
+    """The weighted residuals as a function of the ``free`` parameters' values, the others at
+    ``held``; a residual that is not finite counts as 1e150 (the solver steps away from it)."""
+    x, y, w = data
+    names = list(model.params)
+
+    def residual(q):
+        p = dict(held, **dict(zip(free, q, strict=True)))
+        with np.errstate(all="ignore"):
+            r = (y - model.func(x, *[p[nm] for nm in names])) * w
+        return np.where(np.isfinite(r), r, 1e150)
+
+    return residual
 
 
 @dataclass
@@ -772,21 +781,14 @@ def _refitter(model: Model, data: tuple, values: dict, free, nm: str, bounds: di
     lims = np.array([_limits(model, bounds, p) for p in others], dtype=float).reshape(-1, 2)
     bounded = bool(np.isfinite(lims).any())
     state = {"start": np.array([values[p] for p in others], dtype=float)}
-    x, y, w = data
 
     def refit(v: float) -> float:
         p = dict(values, **{nm: v})
         if not others:
             return _weighted_rss(model, data, [p[n] for n in names])
-
-        def residual(q):
-            p.update(zip(others, q, strict=True))
-            with np.errstate(all="ignore"):
-                r = (y - model.func(x, *[p[n] for n in names])) * w
-            return np.where(np.isfinite(r), r, 1e150)
-
         start = np.clip(state["start"], lims[:, 0], lims[:, 1])
-        r = least_squares(residual, start, method="trf" if bounded else "lm",
+        r = least_squares(_residuals(model, data, p, others), start,
+                          method="trf" if bounded else "lm",
                           bounds=(lims[:, 0], lims[:, 1]) if bounded else (-np.inf, np.inf),
                           xtol=1e-10, ftol=1e-12, gtol=1e-12, max_nfev=400 * (len(others) + 1))
         state["start"] = r.x
