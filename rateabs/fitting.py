@@ -708,6 +708,22 @@ def _covariance(model, x, w, values, free, scale, richardson: bool = False):
     return cov if np.all(np.isfinite(cov)) and np.all(np.diag(cov) >= 0) else None
 
 
+def line_slope(x, y) -> tuple[float, float]:
+    """Least-squares slope of y on x and its SE on n - 2 degrees of freedom (as
+    ``scipy.stats.linregress``); x must take two values or more.
+
+    >>> line_slope([0, 1, 2, 3], [1, 3, 5, 7])
+    (2.0, 0.0)
+    """
+    x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+    dx = x - x.mean()
+    sxx = float(dx @ dx)
+    slope = float(dx @ (y - y.mean())) / sxx
+    res = y - y.mean() - slope * dx
+    dof = max(x.size - 2, 1)
+    return slope, math.sqrt(float(res @ res) / dof / sxx)
+
+
 def information_criteria(rss: float, n: int, k: int) -> tuple[float, float, float]:
     """AIC, AICc and BIC of a least-squares fit with ``k`` estimated quantities (incl. sigma).
 

@@ -23,7 +23,7 @@ from scipy import special
 
 from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
-from .fitting import FitResult, Param, f_test, fit, fmt_p
+from .fitting import FitResult, Param, f_test, fit, fmt_p, line_slope
 from .models import Model
 from .units import concentration_factor
 
@@ -183,9 +183,7 @@ def check_direction(c: Curves) -> None:
     for name, t, p in zip(c.names, c.t, c.p, strict=True):
         if len(t) < 3 or np.ptp(t) <= 0:
             continue
-        b, a = np.polyfit(t, p, 1)
-        res = p - (a + b * t)
-        se = math.sqrt(float(res @ res) / (len(t) - 2) / float(np.sum((t - t.mean()) ** 2)))
+        b, se = line_slope(t, p)
         if b < 0 and abs(b) > 3 * se:
             falls.append(name)
     if not falls:

@@ -794,17 +794,14 @@ def dilution_trend(dilution: np.ndarray, activity: np.ndarray) -> dict:
 
 def _slope_and_p(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
     """Least-squares slope of y on x and the two-sided p of Student's t for a zero slope on
-    n - 2 degrees of freedom (1 where the test cannot be made)."""
+    n - 2 degrees of freedom."""
     from .distributions import t_two_sided_p
+    from .fitting import line_slope
 
-    dx, dy = x - x.mean(), y - y.mean()
-    sxx, syy, sxy = float(dx @ dx), float(dy @ dy), float(dx @ dy)
-    slope = sxy / sxx
-    r2 = sxy * sxy / (sxx * syy) if syy > 0 else 1.0
-    if r2 >= 1.0:
+    slope, se = line_slope(x, y)
+    if se == 0:                                   # on a line: certain, unless it is flat
         return slope, 0.0 if slope else 1.0
-    t = math.sqrt(r2 * (x.size - 2) / (1.0 - r2))
-    return slope, float(t_two_sided_p(t, x.size - 2))
+    return slope, float(t_two_sided_p(slope / se, x.size - 2))
 
 
 def z_prime(table: pd.DataFrame, value_col: str) -> dict | None:
