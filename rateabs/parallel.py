@@ -36,7 +36,7 @@ import signal
 import sys
 import threading
 import time
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, Executor, Future, ProcessPoolExecutor, wait
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -250,6 +250,68 @@ def worker_start(creator: int, warm: tuple[str, ...] = ()) -> None:
         loaded = importlib.import_module(module)
         if call:
             getattr(loaded, call)()
+
+
+def forked(calls: Sequence[Callable[[], Any]]) -> list[Outcome]:
+    """Each call's :class:`Outcome` (``index`` is its place in ``calls``): the first is run here,
+    every other at the same time in a child forked from this process, so that it starts with
+    everything this process has loaded (a warm worker's modules, caches and fonts).
+
+    A child dies with this process and sends its value, or its error, back through a pipe. A
+    child that died without an answer (killed, out of memory) gives an outcome whose ``error``
+    is a :class:`ChildDied`; the caller may run that call again here. POSIX only (``os.fork``).
+    """
+    import pickle
+
+    children = [_fork_one(call) for call in calls[1:]]
+    outcomes = [_outcome(0, calls[0])] if calls else []
+    for i, (pid, fd) in enumerate(children, start=1):
+        with os.fdopen(fd, "rb") as pipe:
+            data = pipe.read()
+        os.waitpid(pid, 0)
+        try:
+            got = pickle.loads(data)
+        except Exception:       # nothing or half an answer: the child died
+            got = Outcome(i, error=ChildDied(f"forked child {pid} died"))
+        outcomes.append(Outcome(i, got.value, got.error))
+    return outcomes
+
+
+class ChildDied(RuntimeError):
+    """A forked child ended without sending its answer (see :func:`forked`)."""
+
+
+def _outcome(index: int, call: Callable[[], Any]) -> Outcome:
+    try:
+        return Outcome(index, call())
+    except Exception as err:    # noqa: BLE001 - handed to the caller, who raises it
+        return Outcome(index, error=err)
+
+
+def _fork_one(call: Callable[[], Any]) -> tuple[int, int]:
+    """Fork a child that runs ``call`` and writes its pickled outcome to a pipe: (pid, read end)."""
+    import pickle
+
+    parent = os.getpid()
+    read, write = os.pipe()
+    pid = os.fork()
+    if pid:
+        os.close(write)
+        return pid, read
+    try:                        # the child: never returns
+        os.close(read)
+        _ask_kernel_for_death_signal()
+        if os.getppid() != parent:
+            os._exit(1)
+        outcome = _outcome(0, call)
+        try:
+            data = pickle.dumps(outcome)
+        except Exception as err:    # noqa: BLE001 - an unpicklable value or error
+            data = pickle.dumps(Outcome(0, error=RuntimeError(f"{type(err).__name__}: {err}")))
+        with os.fdopen(write, "wb") as pipe:
+            pipe.write(data)
+    finally:
+        os._exit(0)
 
 
 def _ask_kernel_for_death_signal() -> None:

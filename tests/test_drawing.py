@@ -109,3 +109,38 @@ def test_inspect_draws_its_picture_in_a_process_alike(tmp_path, monkeypatch):
     listed = {f["name"] for f in json.loads(
         (tmp_path / "there" / ".rateabs-manifest.json").read_text())["files"]}
     assert name in listed
+
+
+def _pid_and(x):
+    return os.getpid(), x
+
+
+def _dies_in_child(marker):
+    if os.getpid() != marker:   # only in a forked child: the process that forked it stays
+        os._exit(9)
+    return "drawn by the drawing process"
+
+
+def test_forked_calls_run_at_once_in_children_and_answer_in_order():
+    from functools import partial
+
+    from rateabs.parallel import ChildDied, forked
+
+    here = os.getpid()
+    out = forked([partial(_pid_and, 0), partial(_pid_and, 1), partial(_fails, 2),
+                  partial(_dies_in_child, here)])
+    assert [o.index for o in out] == [0, 1, 2, 3]
+    assert out[0].value == (here, 0)                       # the first runs here
+    assert out[1].value[0] != here and out[1].value[1] == 1  # the others in children
+    assert isinstance(out[2].error, ValueError) and "cannot draw 2" in str(out[2].error)
+    assert isinstance(out[3].error, ChildDied)
+
+
+@pytest.mark.skipif((os.cpu_count() or 1) < 2, reason="drawing processes need two cores")
+def test_a_part_whose_child_died_is_drawn_by_the_drawing_process(tmp_path):
+    with drawing.drawing_pool(2) as pool:
+        (warm,) = pool.pids
+        done = drawing.draw_parts(pool, [(_ok, (tmp_path / "a.txt",)),
+                                         (_dies_in_child, (warm,))])
+    assert done == [warm, "drawn by the drawing process"]
+    assert (tmp_path / "a.txt").read_text() == "drawn"

@@ -1,18 +1,19 @@
-"""Pictures drawn beside the analysis: processes that load matplotlib while the numbers are
-computed, then draw a command's figures in parallel.
+"""Pictures drawn beside the analysis: a process that loads matplotlib while the numbers are
+computed, then draws a command's figures, split into parts, in parallel.
 
 A fresh ``rates`` run spends about as long loading matplotlib as analysing a 96-well plate, and
 each figure then costs a few tenths of a second of text layout and PNG encoding. On a machine
-with two or more cores the drawing processes start when the command starts (they are forked
-from it, so they hold the command's modules already), load matplotlib while the analysis runs,
-and then draw the figures, split into parts, while the command writes its tables. The figures
-are the same as when drawn here, byte for byte; they are only drawn sooner.
+with two or more cores one drawing process starts when the command starts (forked from it, so
+it holds the command's modules already) and loads matplotlib while the analysis runs. When the
+figures are wanted it draws the first part itself and forks a child per further part
+(:func:`rateabs.parallel.forked`): the children start warm, so only one process pays for the
+loading, and the command's analysis shares the cores with one process instead of several. The
+figures are the same as when drawn here, byte for byte; they are only drawn sooner.
 
-``rates`` draws in two parts; ``inspect`` has one figure, drawn by one process that loads
-matplotlib while the file is read. ``--jobs 1`` (``rates`` with one file) or a one-core machine
-draws here, one figure after another. The processes are
-:class:`~rateabs.parallel.LocalPool` workers: they die with the command and are stopped at once
-on an error or Ctrl-C.
+``rates`` draws in two parts; ``inspect`` has one figure. ``--jobs 1`` (``rates`` with one
+file) or a one-core machine draws here, one figure after another. The drawing process is a
+:class:`~rateabs.parallel.LocalPool` worker and its children die with it: nothing outlives the
+command, and an error or Ctrl-C stops them at once.
 """
 
 from __future__ import annotations
@@ -23,7 +24,7 @@ from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from typing import Any
 
-#: Drawing processes when pictures are drawn and ``--jobs`` does not say (at most the cores).
+#: Parts drawn at once when pictures are drawn and ``--jobs`` does not say (at most the cores).
 DRAWING_PROCESSES = 2
 
 #: What a drawing process loads while the analysis runs.
@@ -45,29 +46,60 @@ def drawing_processes(jobs: int | None, wanted: bool, parts: int = 2) -> int:
     return min(n, cores, parts)
 
 
+class DrawingProcess:
+    """One warm drawing process (a :class:`~rateabs.parallel.LocalPool` of one) that draws up
+    to ``at_once`` parts at the same time, forking a child per part beyond the first."""
+
+    def __init__(self, at_once: int) -> None:
+        from ..parallel import LocalPool
+
+        self.at_once = at_once
+        self.pool = LocalPool(1, warm=WARM_MODULES)
+
+    def submit(self, fn, /, *args, **kwargs):
+        """Schedule ``fn(*args, **kwargs)`` on the drawing process."""
+        return self.pool.submit(fn, *args, **kwargs)
+
+    @property
+    def pids(self) -> list[int]:
+        """Process id of the drawing process, once started."""
+        return self.pool.pids
+
+    def shutdown(self, wait: bool = True, *, cancel_futures: bool = False) -> None:
+        """Shut down once its work is done."""
+        self.pool.shutdown(wait=wait, cancel_futures=cancel_futures)
+
+    def terminate(self) -> None:
+        """End the drawing process (and so its children) now."""
+        self.pool.terminate()
+
+
 @contextmanager
-def drawing_pool(processes: int) -> Iterator[Any]:
-    """``with drawing_pool(n) as pool``: ``n`` warm drawing processes (None for ``n`` = 0),
-    started at once so that they load matplotlib while the caller computes."""
+def drawing_pool(processes: int) -> Iterator[DrawingProcess | None]:
+    """``with drawing_pool(n) as pool``: a warm drawing process that draws ``n`` parts at once
+    (None for ``n`` = 0), started at once so that it loads matplotlib while the caller
+    computes."""
     if processes < 1:
         yield None
         return
-    from ..parallel import LocalPool, stopping
+    from ..parallel import stopping
 
-    for name in PARENT_MODULES:     # loaded once, before the fork, instead of in each process
+    for name in PARENT_MODULES:     # loaded once, before the fork, instead of in the process
         importlib.import_module(name)
-    with stopping(LocalPool(processes, warm=WARM_MODULES)) as pool:
-        pool.submit(os.getpid)      # starts every process (forked) and their warm-up
+    with stopping(DrawingProcess(processes)) as pool:
+        pool.submit(os.getpid)      # starts the process (forked) and its warm-up
         yield pool
 
 
-def draw_parts(pool, parts: Sequence[tuple[Callable, tuple]]) -> list:
-    """Each part's result, in the order given: ``fn(*args)`` on the pool's processes, or here
-    one after another without a pool. An error in a part is raised here, as if drawn here.
+def draw_parts(pool: DrawingProcess | None, parts: Sequence[tuple[Callable, tuple]]) -> list:
+    """Each part's result, in the order given: ``fn(*args)`` on the drawing process (and its
+    forked children), or here one after another without one. An error in a part is raised
+    here, as if drawn here.
 
     The processes write no file: what a part writes comes back with its result and is written
     here, through the command's open run (:func:`rateabs.files.collected_writes`). A part whose
-    process died (killed, out of memory) is drawn here instead."""
+    child died is drawn again by the drawing process; if the drawing process itself died
+    (killed, out of memory), every part is drawn here."""
     from concurrent.futures.process import BrokenProcessPool
 
     from ..files import write_atomic
@@ -75,20 +107,39 @@ def draw_parts(pool, parts: Sequence[tuple[Callable, tuple]]) -> list:
     if pool is None:
         return [fn(*args) for fn, args in parts]
     try:
-        futures = [pool.submit(drawn_elsewhere, fn, args) for fn, args in parts]
+        drawn = pool.submit(drawn_at_once, list(parts), pool.at_once).result()
     except BrokenProcessPool:
         return [fn(*args) for fn, args in parts]
     results = []
-    for future, (fn, args) in zip(futures, parts, strict=True):
-        try:
-            result, files = future.result()
-        except BrokenProcessPool:
-            results.append(fn(*args))
-            continue
+    for result, files in drawn:
         for path, data in files:
             write_atomic(path, data)
         results.append(result)
     return results
+
+
+def drawn_at_once(parts: list[tuple[Callable, tuple]], at_once: int) -> list[tuple[Any, list]]:
+    """In the drawing process: each part's result and the files it would have written, the
+    parts dealt out to ``at_once`` lanes (this process and children forked from it); a lane
+    whose child died is drawn here. An error in a part is raised (the first lane's first)."""
+    from functools import partial
+
+    from ..parallel import ChildDied, forked
+
+    lanes = [list(range(k, len(parts), at_once)) for k in range(min(at_once, len(parts)))]
+    outcomes = forked([partial(_lane, [parts[i] for i in lane]) for lane in lanes])
+    drawn: dict[int, tuple[Any, list]] = {}
+    for lane, outcome in zip(lanes, outcomes, strict=True):
+        if isinstance(outcome.error, ChildDied):
+            outcome = forked([partial(_lane, [parts[i] for i in lane])])[0]
+        if outcome.error is not None:
+            raise outcome.error
+        drawn.update(zip(lane, outcome.value, strict=True))
+    return [drawn[i] for i in range(len(parts))]
+
+
+def _lane(parts: list[tuple[Callable, tuple]]) -> list[tuple[Any, list]]:
+    return [drawn_elsewhere(fn, args) for fn, args in parts]
 
 
 def drawn_elsewhere(fn: Callable, args: tuple) -> tuple[Any, list]:
