@@ -80,28 +80,31 @@ def _thin(x, y, keep, pixels: int):
 
 
 def _well_backgrounds(ax, shape, rows, cols, flagged, n: int) -> None:
-    """Each well's background as one image (empty positions white, wells light grey, wells
-    that need a look shaded and outlined, wells left out grey), cells parted by white lines."""
+    """Each well's background as one collection of cells (wells light grey, wells that need a
+    look shaded and outlined, wells left out grey; empty positions stay white), parted by white
+    gaps. Cells, not an image: an image is resampled to every pixel of the plate."""
     from matplotlib.collections import PolyCollection
-    from matplotlib.colors import to_rgb
 
     nrow, ncol = shape
-    img = np.ones((nrow, ncol, 3))
-    img[rows[:n], cols[:n]] = to_rgb(EMPTY_WELL)
-    img[rows[:n][flagged[:n]], cols[:n][flagged[:n]]] = to_rgb(LOOK)
-    img[rows[n:], cols[n:]] = to_rgb(LEFT_OUT)
-    ax.imshow(img, extent=(0, ncol, nrow, 0), interpolation="nearest", aspect="auto",
-              zorder=0)
-    lw = 1.5 if ncol <= 24 else 1.0
-    ax.vlines(np.arange(ncol + 1), 0, nrow, colors="white", lw=lw, zorder=0.5)
-    ax.hlines(np.arange(nrow + 1), 0, ncol, colors="white", lw=lw, zorder=0.5)
-    r, c = rows[flagged], cols[flagged]
-    m = 0.03
-    boxes = np.stack([np.column_stack(p) for p in ((c + m, r + m), (c + 1 - m, r + m),
-                                                   (c + 1 - m, r + 1 - m), (c + m, r + 1 - m))],
-                     axis=1)
-    ax.add_collection(PolyCollection(boxes, facecolors="none", edgecolors=PALETTE[1],
+    gap_pt = 1.5 if ncol <= 24 else 1.0
+    cell_in = ax.get_position().width * ax.figure.get_figwidth() / ncol
+    h = gap_pt / 72 / cell_in / 2           # half the gap, in cells
+    colours = np.array([EMPTY_WELL] * len(rows), dtype=object)
+    colours[:n][flagged[:n]] = LOOK
+    colours[n:] = LEFT_OUT
+    ax.add_collection(PolyCollection(_cells(rows, cols, h), facecolors=list(colours), lw=0,
+                                     zorder=0))
+    ax.add_collection(PolyCollection(_cells(rows[flagged], cols[flagged], 0.03),
+                                     facecolors="none", edgecolors=PALETTE[1],
                                      linewidths=1.0 if ncol <= 24 else 0.7))
+
+
+def _cells(rows, cols, m: float):
+    """The square of each (row, column) cell, inset by ``m`` cells on every side."""
+    r, c = np.asarray(rows, float), np.asarray(cols, float)
+    return np.stack([np.column_stack(p) for p in ((c + m, r + m), (c + 1 - m, r + m),
+                                                   (c + 1 - m, r + 1 - m), (c + m, r + 1 - m))],
+                    axis=1)
 
 
 def _window_boxes(x, inside, rows, band):
