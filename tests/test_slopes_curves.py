@@ -5,6 +5,8 @@ scipy.special.lambertw independently of the package."""
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 from scipy.optimize import brentq, curve_fit
@@ -87,3 +89,25 @@ def test_exponential_from_the_grid_matches_curve_fit(k):
     w = find_windows(TraceSet.from_arrays(["A1"], t, y[None, :]).grid(), estimator="curve")
     assert w.curve_model[0] == "exp"
     assert abs(w.curve_slope[0] - p[1]) < 0.02 * w.curve_slope_se[0]
+
+
+def test_curve_values_of_many_traces_equal_those_of_each_trace():
+    """The plate overview asks every curve at its own time in one call; each row must equal
+    the trace's own curve, and a trace without a curve gives NaN. Truth: the one-trace call."""
+    rng = np.random.default_rng(7)
+    t = np.arange(0.0, 601.0, 10.0)
+    ys = [0.1 + 3e-4 * t, 0.1 + 0.08 * (1 - np.exp(-t / 200)), np.full(t.size, 0.1),
+          0.1 + 0.05 * (1 - np.exp(-t / 90))]
+    ts = TraceSet.from_arrays(["a", "b", "c", "d"], t,
+                              np.array([y + rng.normal(0, 0.001, t.size) for y in ys]))
+    w = find_windows(ts.grid())
+    params = w.curve_params.copy()
+    params[2] = np.nan                                  # as for a trace without a curve
+    w = replace(w, curve_params=params)
+    idx = np.arange(len(ys))
+    at = rng.uniform(0, 600, (len(ys), 3))
+    many = w.curve_values(idx, at)
+    each = np.array([w.curve_values(i, at[i]) for i in idx])
+    assert np.array_equal(np.isnan(many), np.isnan(each))
+    assert np.allclose(many[~np.isnan(each)], each[~np.isnan(each)], rtol=0, atol=1e-15)
+    assert np.isnan(many[2]).all() and np.isfinite(many[[0, 1, 3]]).all()

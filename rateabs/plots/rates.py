@@ -231,9 +231,10 @@ def _slope_lines(analysis, g, cells, tmin, tspan, scale, pad, band):
         k = np.arange(len(t))
         tm = np.where(has_window, (times * sel).sum(axis=1) / n_sel, times[k, first])
         ym = np.where(has_window, (values * sel).sum(axis=1) / n_sel, values[k, first])
-    for i in np.nonzero((t["method"].to_numpy() == "curve") & ok.any(axis=1))[0]:
-        at = analysis.windows.curve_values(i, [tm[i]])[0]
-        ym[i] = at if np.isfinite(at) else ym[i]
+    curve = np.nonzero((t["method"].to_numpy() == "curve") & ok.any(axis=1))[0]
+    if curve.size:
+        at = analysis.windows.curve_values(curve, tm[curve, None])[:, 0]
+        ym[curve] = np.where(np.isfinite(at), at, ym[curve])
     ta = np.where(has_window, t0, tm)
     tb = np.where(has_window, t1, tm + 0.35 * tspan)
     keep = np.isfinite(slope) & ok.any(axis=1)

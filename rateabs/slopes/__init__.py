@@ -131,10 +131,15 @@ class Windows:
     t_first: np.ndarray
     y_first: np.ndarray
 
-    def curve_values(self, i: int, t) -> np.ndarray:
+    def curve_values(self, i, t) -> np.ndarray:
         """The whole curve of trace ``i`` at times ``t`` (s on the file's clock); NaN without
-        a curve."""
+        a curve. ``i`` may be an array of traces, with a row of times in ``t`` for each."""
         t = np.asarray(t, float)
+        if np.ndim(i):
+            p = self.curve_params[i].T[..., None]           # each parameter as a column
+            with np.errstate(all="ignore"):
+                y = self.y_first[i][:, None] + progress(t - self.t_first[i][:, None], *p)
+            return np.where(np.isfinite(self.curve_params[i]).all(axis=1)[:, None], y, np.nan)
         p = self.curve_params[i]
         if not np.all(np.isfinite(p)):
             return np.full(t.shape, np.nan)
