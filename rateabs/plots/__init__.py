@@ -1,35 +1,40 @@
 """Plots: one house style (:mod:`.style`) and one module of figures per command.
 
-Matplotlib is imported inside the drawing functions, so importing this package stays light.
+Matplotlib is imported inside the drawing functions, and each name below is loaded from its
+module when first asked for (``from rateabs.plots import plate_overview`` loads
+:mod:`.rates` and :mod:`.style` only), so importing this package stays light: a drawing
+process loads what its figures need, not every command's figures and their analyses.
 """
 
-from .grade import class_summary_plot, student_svg
-from .inspect import traces_overview
-from .laws import arrhenius_plot, completion_plot, ratelaw_plots
-from .progress import progress_plots
-from .rates import plate_heatmap, plate_overview, replicate_plot, well_pages
-from .saturation import linearised, saturation_fit
-from .style import (
-    GRID,
-    INK,
-    MILLI_ABSORBANCE,
-    PALETTE,
-    RC,
-    RESIDUAL_MAU,
-    SHADE,
-    drawable,
-    fixed_axes,
-    house_style,
-    png_bytes,
-    save,
-    unit_text,
-)
+from __future__ import annotations
 
-__all__ = [
-    "PALETTE", "INK", "GRID", "SHADE", "RC", "MILLI_ABSORBANCE", "RESIDUAL_MAU", "house_style",
-    "fixed_axes", "save", "png_bytes", "drawable", "unit_text", "traces_overview",
-    "saturation_fit", "linearised", "plate_overview", "well_pages", "plate_heatmap",
-    "replicate_plot",
-    "ratelaw_plots", "completion_plot", "arrhenius_plot", "progress_plots", "class_summary_plot",
-    "student_svg",
-]
+import importlib
+
+#: Each public name and the module of this package that holds it.
+HOMES = {
+    "class_summary_plot": "grade", "student_svg": "grade",
+    "traces_overview": "inspect",
+    "arrhenius_plot": "laws", "completion_plot": "laws", "ratelaw_plots": "laws",
+    "progress_plots": "progress",
+    "plate_heatmap": "rates", "plate_overview": "rates", "replicate_plot": "rates",
+    "well_pages": "rates",
+    "linearised": "saturation", "saturation_fit": "saturation",
+    **dict.fromkeys(("GRID", "INK", "MILLI_ABSORBANCE", "PALETTE", "RC", "RESIDUAL_MAU", "SHADE",
+                     "drawable", "fixed_axes", "house_style", "png_bytes", "save", "unit_text"),
+                    "style"),
+}
+
+__all__ = sorted(HOMES)
+
+
+def __getattr__(name: str):
+    home = HOMES.get(name)
+    if home is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{home}", __name__), name)
+    globals()[name] = value         # asked once
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(HOMES))
