@@ -190,15 +190,16 @@ def grid_rss(times, Y, W, k, rho, lag) -> np.ndarray:
     wy = W * Y
     sy = wy.sum(axis=1)[:, None]
     syy = (wy * Y).sum(axis=1)[:, None]
+    Wd, which = distinct_rows(W)
     step = max(1, prepare.CHUNK_READINGS // max(times.shape[1], 1))
     out = np.empty((Y.shape[0], np.size(k)))
     for g0 in range(0, np.size(k), step):
         part = slice(g0, g0 + step)
         F = progress(times, 0.0, 1.0, k[part, None], rho[part, None], lag[part, None])
         F[~np.isfinite(F)] = 0.0
-        sf, sfy = _dot(W, F), _dot(wy, F)
+        sf, sfy = _dot(Wd, F)[which], _dot(wy, F)
         F *= F
-        sff = _dot(W, F)
+        sff = _dot(Wd, F)[which]
         with np.errstate(all="ignore"):
             var_f = sff - sf * sf / sw
             cov = sfy - sf * sy / sw
@@ -213,6 +214,21 @@ def _dot(A, B) -> np.ndarray:
     product may round differently as they change), so that traces and grid points taken in
     chunks give the numbers the whole plate gives."""
     return np.einsum("ij,gj->ig", A, B)
+
+
+def distinct_rows(W) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct rows of ``W`` and, for every row, the index of its own among them.
+
+    Traces whose weights are the same row (on a plate nearly all: every reading used) share the
+    sums that involve only the weights and the grid, so those are formed once per distinct row;
+    :func:`_dot` rounds each product on its own, so the numbers are those of every row.
+    """
+    W = np.ascontiguousarray(W, dtype=float)
+    if W.ndim != 2 or 0 in W.shape:
+        return W, np.arange(W.shape[0])
+    keys = W.view(np.dtype((np.void, W.itemsize * W.shape[1]))).ravel()
+    _, first, which = np.unique(keys, return_index=True, return_inverse=True)
+    return W[first], which.ravel()
 
 
 #: A trace whose used readings lie further than this share of the span from the columns'
@@ -608,12 +624,14 @@ def _offset_grid(t, Y, W, kappa, taus) -> tuple[np.ndarray, np.ndarray]:
     g = np.exp(-t[None, :] / taus[:, None])                                  # (G, n)
     wy = W * Y
     sw, sy = W.sum(axis=1), wy.sum(axis=1)
+    Wd, which = distinct_rows(W)
     with np.errstate(all="ignore"):
         ym = (sy / sw)[:, None, None]
-        sf, sg = _dot(W, F)[:, :, None], _dot(W, g)[:, None, :]
-        vf = (_dot(W, F * F) - _dot(W, F) ** 2 / sw[:, None])[:, :, None]
-        vg = (_dot(W, g * g) - _dot(W, g) ** 2 / sw[:, None])[:, None, :]
-        cfg = np.einsum("rn,kn,gn->rkg", W, F, g) - sf * sg / sw[:, None, None]
+        wf, wg = _dot(Wd, F)[which], _dot(Wd, g)[which]
+        sf, sg = wf[:, :, None], wg[:, None, :]
+        vf = (_dot(Wd, F * F)[which] - wf ** 2 / sw[:, None])[:, :, None]
+        vg = (_dot(Wd, g * g)[which] - wg ** 2 / sw[:, None])[:, None, :]
+        cfg = np.einsum("rn,kn,gn->rkg", Wd, F, g)[which] - sf * sg / sw[:, None, None]
         cfy = _dot(wy, F)[:, :, None] - sf * ym
         cgy = _dot(wy, g)[:, None, :] - sg * ym
         det = vf * vg - cfg * cfg
