@@ -143,6 +143,13 @@ def progress_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
     return out
 
 
+def progress_value_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
+    """:func:`progress` and :func:`progress_jac` from one evaluation (the curve is c + v times
+    the Jacobian's column of v): (y, dy/dp), for :func:`rateabs.fitting.batch_lm`."""
+    J = progress_jac(t, c, v, k, rho, lag, want)
+    return c + v * J[..., 1], J
+
+
 # --------------------------------------------------------------------------- the grid
 
 #: The grid each member is searched on: k x span (inner axis), and rho or L / span (outer axis).
@@ -325,7 +332,7 @@ def _polish(member, T, Y, W, start, span):
     hi = np.array([np.inf, np.inf, 25.0 / span, RHO_RANGE[1], 0.5 * span])
     free = MEMBERS[member]
     r = batch_lm(progress, T, Y, W, start, free=list(free), lower=lo, upper=hi, max_iter=15,
-                 xtol=1e-6, ftol=1e-7, jac=partial(progress_jac, want=free))
+                 xtol=1e-6, ftol=1e-7, value_jac=partial(progress_value_jac, want=free))
     better = np.isfinite(r.rss) & np.all(np.isfinite(r.params), axis=1)
     return np.where(better[:, None], r.params, start)
 
