@@ -54,6 +54,28 @@ _HALLEY_STEPS = 3           # reach rounding for every (k t, rho) in range (test
 _SERIES = 1e-3              # below this |k phi| the Taylor series of F is exact to 1e-9
 
 
+#: How many numbers the elementwise functions below work on at once: arrays are taken in blocks
+#: of rows of about this size, whose temporaries stay in the processor's cache (each number is
+#: computed on its own, so blocks change no result).
+BLOCK_NUMBERS = 16384
+
+
+def row_blocks(shape) -> list[slice]:
+    """Slices of the leading axis of an array of ``shape`` holding about
+    :data:`BLOCK_NUMBERS` numbers each; one slice of everything for a small or 1-D array."""
+    if len(shape) < 2 or int(np.prod(shape)) <= 2 * BLOCK_NUMBERS:
+        return [slice(None)]
+    step = max(1, BLOCK_NUMBERS // int(np.prod(shape[1:])))
+    return [slice(i, i + step) for i in range(0, shape[0], step)]
+
+
+def _rows_of(x, sl: slice, shape):
+    """The rows ``sl`` of an argument broadcasting to ``shape`` (unchanged where it has a single
+    row or fewer dimensions: it broadcasts over the rows)."""
+    x = np.asarray(x, float)
+    return x[sl] if x.ndim == len(shape) and x.shape[0] == shape[0] else x
+
+
 def mm_conversion(theta, rho):
     """z and q = -ln(1 - z) with rho z - (1 - rho) ln(1 - z) = theta, elementwise (theta >= 0
     where rho != 0, see :func:`shape_of`).
@@ -64,17 +86,37 @@ def mm_conversion(theta, rho):
     from the bound reaches the rounding of g in three steps for every rho in range.
     """
     theta, rho = np.broadcast_arrays(np.asarray(theta, float), np.asarray(rho, float))
+    blocks = row_blocks(theta.shape)
+    if len(blocks) > 1:
+        z, q = np.empty(theta.shape), np.empty(theta.shape)
+        for sl in blocks:
+            z[sl], q[sl] = mm_conversion(theta[sl], rho[sl])
+        return z, q
     if not np.any(rho):
         return -np.expm1(-theta), theta
-    a = (theta - rho) / (1 - rho)
-    q = np.where(rho >= 0, np.maximum(theta, a), np.minimum(theta, a))
+    # written in place, each step's operations in the order of the formula:
+    # q <- q - 2 g g1 / (2 g1 g1 + g e)
+    omr = 1 - rho
+    q = theta - rho
+    q /= omr
+    q = np.where(rho >= 0, np.maximum(theta, q), np.minimum(theta, q))
+    em, e, g, g1, h = (np.empty_like(q) for _ in range(5))
     for _ in range(_HALLEY_STEPS):
-        em = np.expm1(-q)                  # one transcendental a step: exp(-q) = em + 1
-        e = rho * (em + 1)
-        g = (1 - rho) * q - rho * em - theta
-        g1 = (1 - rho) + e
-        q = q - 2 * g * g1 / (2 * g1 * g1 + g * e)
-    return -np.expm1(-q), q
+        np.expm1(np.negative(q, out=em), out=em)       # one transcendental a step: exp(-q) = em + 1
+        np.multiply(rho, np.add(em, 1, out=e), out=e)
+        np.multiply(omr, q, out=g)
+        g -= np.multiply(rho, em, out=h)
+        g -= theta                                      # g
+        np.add(omr, e, out=g1)                          # g'
+        np.multiply(g, e, out=e)
+        np.multiply(2, g1, out=h)
+        h *= g1
+        h += e                                          # 2 g'^2 + g g''
+        np.multiply(2, g, out=g)
+        g *= g1
+        g /= h
+        q -= g
+    return np.negative(np.expm1(np.negative(q, out=em), out=em), out=em), q
 
 
 def lag_clock(t, lag):
@@ -103,6 +145,13 @@ def _series(rho):
 
 def progress(t, c, v, k, rho, lag):
     """The family's curve y = c + v F(t) (module docstring); broadcasts like batch_lm asks."""
+    shape = np.broadcast_shapes(*(np.shape(x) for x in (t, c, v, k, rho, lag)))
+    blocks = row_blocks(shape)
+    if len(blocks) > 1:
+        out = np.empty(shape)
+        for sl in blocks:
+            out[sl] = progress(*(_rows_of(x, sl, shape) for x in (t, c, v, k, rho, lag)))
+        return out
     phi, _ = lag_clock(t, lag)
     theta = k * phi
     rho = shape_of(k, rho)
@@ -117,30 +166,51 @@ def progress(t, c, v, k, rho, lag):
 def progress_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
     """d y / d(c, v, k, rho, L) of :func:`progress`, shape (B, n, 5); only the columns in
     ``want`` are computed (the others are 0)."""
+    shape = np.broadcast_shapes(*(np.shape(x) for x in (t, v, k, rho, lag)))
+    blocks = row_blocks(shape)
+    if len(blocks) > 1:
+        out = np.empty(shape + (5,))
+        for sl in blocks:
+            out[sl] = progress_jac(*(_rows_of(x, sl, shape) for x in (t, c, v, k, rho, lag)),
+                                   want)
+        return out
     phi, dphi = lag_clock(t, lag)
     theta = k * phi
     rho = shape_of(k, rho)
-    small = np.abs(theta) < _SERIES
     kk = np.where(k == 0, 1.0, k)
-    out = np.zeros(np.broadcast_shapes(theta.shape, np.shape(v)) + (5,))
+    out = np.zeros(shape + (5,))
     out[..., 0] = 1.0
     with np.errstate(all="ignore"):
         z, q = mm_conversion(theta, rho)
         d = 1 - rho * z
         z_theta = (1 - z) / d
-        a, b = _series(rho)
-        out[..., 1] = np.where(small, phi * (1 + a * theta + b * theta * theta), z / kk)
+        out[..., 1] = z / kk
         if 2 in want:
-            out[..., 2] = v * np.where(small, a * phi * phi + 2 * b * k * phi ** 3,
-                                       (z_theta * theta - z) / (kk * kk))
+            out[..., 2] = v * ((z_theta * theta - z) / (kk * kk))
         if 3 in want:
-            out[..., 3] = v * np.where(k < 0, 0.0, np.where(
-                small, phi * (theta / 2 + (6 * rho - 4) / 6 * theta * theta),
-                (q - z) * (1 - z) / d / kk))
+            m = (q - z) * (1 - z) / d / kk
+            out[..., 3] = v * (np.where(k < 0, 0.0, m) if np.any(k < 0) else m)
         if 4 in want:
-            out[..., 4] = v * np.where(small, 1 + 2 * a * theta + 3 * b * theta * theta,
-                                       z_theta) * dphi
+            out[..., 4] = v * z_theta * dphi
+        small = np.broadcast_to(np.abs(theta) < _SERIES, shape)
+        if small.any():
+            _series_jac(out, small, want, *(np.broadcast_to(x, shape)[small] for x in (
+                phi, theta, k, rho, v, dphi)))
     return out
+
+
+def _series_jac(out, small, want, phi, theta, k, rho, v, dphi) -> None:
+    """The columns of :func:`progress_jac` where |k phi| is below :data:`_SERIES`, from the
+    Taylor series of F (the arguments are the values there)."""
+    a, b = _series(rho)
+    out[small, 1] = phi * (1 + a * theta + b * theta * theta)
+    if 2 in want:
+        out[small, 2] = v * (a * phi * phi + 2 * b * k * phi ** 3)
+    if 3 in want:
+        out[small, 3] = v * np.where(k < 0, 0.0, phi * (theta / 2 + (6 * rho - 4) / 6 * theta
+                                                         * theta))
+    if 4 in want:
+        out[small, 4] = v * (1 + 2 * a * theta + 3 * b * theta * theta) * dphi
 
 
 def progress_value_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
