@@ -40,3 +40,76 @@ def test_nanmedian_of_long_lines_is_numpys():
         warnings.simplefilter("ignore", RuntimeWarning)
         ref = np.nanmedian(a, axis=0)
     assert np.array_equal(nanmedian(a, axis=0), ref, equal_nan=True)
+
+
+def test_chi2_table_is_scipys():
+    # every tabulated quantile is the one scipy.special.chdtri gives (reference library), bit
+    # for bit, and the band around it is wide enough that outside it the tail area is on the
+    # side the quantile says
+    from scipy import special
+
+    from rateabs.distributions import chi2_quantile
+    from rateabs.slopes import chi2
+
+    dof = np.arange(1, chi2.TABLE_DOF + 1)
+    for row, tail in enumerate(chi2.TAILS):
+        q = special.chdtri(dof, tail)
+        assert np.array_equal(chi2._table()[row], q)
+        assert np.all(special.chdtrc(dof, q * (1 + chi2.BAND)) < tail)
+        assert np.all(special.chdtrc(dof, q * (1 - chi2.BAND)) >= tail)
+    assert np.array_equal(chi2.quantile(0.99, dof), chi2_quantile(0.99, dof))
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.tuples(st.one_of(st.floats(-10, 2000), st.just(np.nan), st.just(np.inf)),
+                          st.one_of(st.integers(1, 700).map(float), st.just(np.nan),
+                                    st.floats(0.5, 600))), min_size=1, max_size=20),
+       st.sampled_from([1e-4, 1 - 0.99, 0.05]))
+def test_chi2_tail_below_is_the_tail_area_test(pairs, tail):
+    # the estimator's misfit decision read from the table equals p < tail with scipy's p
+    from rateabs.distributions import chi2_tail
+    from rateabs.slopes import chi2
+
+    x, dof = (np.array(v, float) for v in zip(*pairs, strict=True))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        ref = chi2_tail(x, dof) < tail
+    assert np.array_equal(chi2.tail_below(x, dof, tail), ref)
+
+
+def test_chi2_tail_below_near_the_quantile():
+    # values straddling each tabulated quantile by a few units in the last place
+    from rateabs.distributions import chi2_tail
+    from rateabs.slopes import chi2
+
+    dof = np.arange(1, chi2.TABLE_DOF + 1, dtype=float)
+    for row, tail in enumerate(chi2.TAILS):
+        q = chi2._table()[row]
+        for x in (np.nextafter(q, 0), q, np.nextafter(q, np.inf), q * (1 + 2e-9),
+                  q * (1 - 2e-9)):
+            assert np.array_equal(chi2.tail_below(x, dof, tail), chi2_tail(x, dof) < tail)
+
+
+def test_a_plates_rates_need_no_scipy(tmp_path):
+    # a plate's initial rates run without importing scipy.special (a third of a second at the
+    # start of every run): the chi-square decisions come from the table; seeded curves
+    import subprocess
+    import sys
+
+    rng = np.random.default_rng(5)
+    t = np.arange(40) * 15.0
+    k = rng.uniform(0, 3, 24)[:, None] / t[-1]
+    y = 0.1 + 2e-4 * np.where(k > 0, -np.expm1(-k * t) / np.where(k > 0, k, 1), t)
+    y += rng.normal(0, 0.002, y.shape)
+    y[3] += 0.05 * (t > 300)                               # a misfit, for the misfit decision
+    names = [f"A{i + 1}" for i in range(24)]
+    lines = ["Time (s)," + ",".join(names)]
+    lines += [f"{tt:g}," + ",".join(f"{v:.4f}" for v in y[:, j]) for j, tt in enumerate(t)]
+    (tmp_path / "p.csv").write_text("\n".join(lines) + "\n")
+    code = ("import sys\nfrom rateabs.options import RatesOptions\n"
+            "from rateabs.views.rates import compute_rates\n"
+            f"compute_rates(RatesOptions.build(file={str(tmp_path / 'p.csv')!r}))\n"
+            "print('scipy.special' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert out.returncode == 0, out.stderr[-2000:]
+    assert out.stdout.strip() == "False"

@@ -38,9 +38,8 @@ from functools import partial
 
 import numpy as np
 
-from ..distributions import chi2_quantile
 from ..fitting import batch_lm
-from . import prepare
+from . import chi2, prepare
 
 #: The members of the family and the parameters each one fits (of c, v, k, rho, L).
 MEMBERS = {"line": (0, 1), "exp": (0, 1, 2), "mm": (0, 1, 2, 3), "lag": (0, 1, 4),
@@ -554,7 +553,7 @@ def _lags(prep, out: dict, exp: MemberFit, line_rss, sigma2) -> np.ndarray:
     take = ((gain > LAG_CHI2 * s2) | (speeds & (gain >= 0))) & (lag.params[:, 4] > 0)
     # a lag followed by a slowing rate: looked for where a lag is taken, or where neither the
     # exponential nor the straight lag follows the readings within their noise
-    misfit = np.minimum(exp.rss, lag.rss) > chi2_quantile(0.99, np.maximum(exp.dof, 1)) * (
+    misfit = np.minimum(exp.rss, lag.rss) > chi2.quantile(0.99, np.maximum(exp.dof, 1)) * (
         sigma2[rows])
     look = take | misfit
     try_le = look.copy()
