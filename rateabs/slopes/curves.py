@@ -176,31 +176,41 @@ def progress_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
     phi, dphi = lag_clock(t, lag)
     theta = k * phi
     rho = shape_of(k, rho)
-    kk = np.where(k == 0, 1.0, k)
     out = np.zeros(shape + (5,))
     out[..., 0] = 1.0
+    small = np.broadcast_to(np.abs(theta) < _SERIES, shape)
     with np.errstate(all="ignore"):
-        z, q = mm_conversion(theta, rho)
-        d = 1 - rho * z
-        z_theta = (1 - z) / d
-        out[..., 1] = z / kk
-        if 2 in want:
-            out[..., 2] = v * ((z_theta * theta - z) / (kk * kk))
-        if 3 in want:
-            m = (q - z) * (1 - z) / d / kk
-            out[..., 3] = v * (np.where(k < 0, 0.0, m) if np.any(k < 0) else m)
-        if 4 in want:
-            out[..., 4] = v * z_theta * dphi
-        small = np.broadcast_to(np.abs(theta) < _SERIES, shape)
+        if small.all():             # a straight member (k = 0): the series alone
+            _series_jac(out, Ellipsis, want, phi, theta, k, rho, v, dphi)
+            return out
+        _exact_jac(out, want, phi, dphi, theta, k, rho, v)
         if small.any():
             _series_jac(out, small, want, *(np.broadcast_to(x, shape)[small] for x in (
                 phi, theta, k, rho, v, dphi)))
     return out
 
 
+def _exact_jac(out, want, phi, dphi, theta, k, rho, v) -> None:
+    """The columns of :func:`progress_jac` from the closed form of F (every reading; those
+    where |k phi| is small are written again from the series)."""
+    kk = np.where(k == 0, 1.0, k)
+    z, q = mm_conversion(theta, rho)
+    d = 1 - rho * z
+    z_theta = (1 - z) / d
+    out[..., 1] = z / kk
+    if 2 in want:
+        out[..., 2] = v * ((z_theta * theta - z) / (kk * kk))
+    if 3 in want:
+        m = (q - z) * (1 - z) / d / kk
+        out[..., 3] = v * (np.where(k < 0, 0.0, m) if np.any(k < 0) else m)
+    if 4 in want:
+        out[..., 4] = v * z_theta * dphi
+
+
 def _series_jac(out, small, want, phi, theta, k, rho, v, dphi) -> None:
-    """The columns of :func:`progress_jac` where |k phi| is below :data:`_SERIES`, from the
-    Taylor series of F (the arguments are the values there)."""
+    """The columns of :func:`progress_jac` where |k phi| is below :data:`_SERIES` (``small``, a
+    mask or ``...`` for all), from the Taylor series of F (the arguments are the values
+    there)."""
     a, b = _series(rho)
     out[small, 1] = phi * (1 + a * theta + b * theta * theta)
     if 2 in want:
@@ -393,6 +403,14 @@ def _line_in_f(F, Y, W):
         v = (W * (F - fm[:, None]) * (Y - ym[:, None])).sum(axis=1) / (
             W * (F - fm[:, None]) ** 2).sum(axis=1)
     return ym - v * fm, v
+
+
+def straight_rss(T, Y, W) -> np.ndarray:
+    """The weighted RSS of each row's least-squares straight line: the ``line`` member's
+    (:func:`fit_member`), whose curve is F = t, by the same sums, without its Jacobian."""
+    c, v = _line_in_f(T, Y, W)
+    resid = (Y - (c[:, None] + v[:, None] * T)) * W
+    return np.sum(resid * resid, axis=1)
 
 
 def _polish(member, T, Y, W, start, span):
@@ -614,8 +632,7 @@ def fit_curves(prep, min_readings: int = 5, rich: bool = True) -> Curves:
            "v_weights": np.zeros((N, M)), "fitted": np.zeros((N, M)), "spread": np.zeros(N)}
     line_rss = np.full(N, np.nan)
     if rows.size:
-        line_rss[rows] = fit_member("line", rows, prep.Tc, prep.Yc, prep.W, prep.times,
-                                    prep.span).rss
+        line_rss[rows] = straight_rss(prep.Tc[rows], prep.Yc[rows], prep.W[rows])
         exp = fit_member("exp", rows, prep.Tc, prep.Yc, prep.W, prep.times, prep.span)
         _store(out, exp)
         sigma2 = prep.sigma ** 2
