@@ -293,7 +293,9 @@ class _Batch:
             f, Ja = _eval(self.value_jac, xx, P)
         # C order, as the Jacobians stored by _lm_iteration: the batched products that use it
         # then round as they do there
-        return (self.y[rows] - f) * w, np.ascontiguousarray(Ja[:, :, self.free] * w[:, :, None])
+        J = np.empty(Ja.shape[:2] + (len(self.free),))
+        np.multiply(Ja[:, :, self.free], w[:, :, None], out=J)
+        return (self.y[rows] - f) * w, J
 
     def jacobian(self, P, rows):
         """d(f w)/dp of the free parameters, (rows, n, k): analytic when given (``jac`` or
