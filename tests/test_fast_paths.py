@@ -113,3 +113,36 @@ def test_a_plates_rates_need_no_scipy(tmp_path):
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert out.returncode == 0, out.stderr[-2000:]
     assert out.stdout.strip() == "False"
+
+
+_JSON = st.recursive(
+    st.one_of(st.none(), st.booleans(), st.integers(-10**20, 10**20),
+              st.floats(allow_nan=True, allow_infinity=True), st.text(max_size=8)),
+    lambda inner: st.one_of(st.lists(inner, max_size=4), st.tuples(inner, inner),
+                            st.dictionaries(st.text(max_size=5), inner, max_size=4)),
+    max_leaves=25)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.one_of(_JSON, st.dictionaries(st.one_of(st.integers(), st.none()), _JSON, max_size=3)))
+def test_json_text_is_json_dumps(doc):
+    # the output's JSON writer: the text of json.dumps(indent=2, ensure_ascii=False) (standard
+    # library), non-ASCII, NaN, nesting and keys that are not strings included
+    import json
+
+    from rateabs.output import to_json
+
+    assert to_json(doc) == json.dumps(doc, indent=2, ensure_ascii=False) + "\n"
+
+
+def test_json_text_of_numpy_numbers_and_enums_is_json_dumps():
+    import enum
+    import json
+
+    from rateabs.output import to_json
+
+    class Kind(enum.IntEnum):
+        A = 3
+
+    doc = {"x": np.float64(0.1), "k": Kind.A, "v": [np.float64("nan"), 2.5e-300, -0.0]}
+    assert to_json(doc) == json.dumps(doc, indent=2, ensure_ascii=False) + "\n"
