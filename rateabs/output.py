@@ -20,6 +20,11 @@ from .files import write_atomic
 
 def _clean(obj):
     """JSON-safe copy: NaN/inf become null, numpy scalars become Python numbers."""
+    kind = type(obj)
+    if kind is float:                       # the common cases first, by their exact type
+        return obj if math.isfinite(obj) else None
+    if kind is str or kind is int or kind is bool or obj is None:
+        return obj
     if isinstance(obj, dict):
         return {str(k): _clean(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
@@ -178,18 +183,21 @@ def rows_to_csv(rows: Sequence[dict], columns: Sequence[str], safe: bool = False
     w = csv.writer(buf, lineterminator="\r\n" if safe else "\n")
     w.writerow([formula_safe(str(c)) for c in columns] if safe else columns)
     for r in rows:
-        out = []
-        for c in columns:
-            v = r.get(c)
-            if isinstance(v, (list, tuple)):
-                v = ";".join(str(x) for x in v)
-            elif isinstance(v, float):
-                v = "" if not math.isfinite(v) else repr(float(v))
-            elif v is None:
-                v = ""
-            out.append(formula_safe(str(v)) if safe else v)
-        w.writerow(out)
+        out = [_csv_cell(r.get(c)) for c in columns]
+        w.writerow([formula_safe(str(v)) for v in out] if safe else out)
     return buf.getvalue()
+
+
+def _csv_cell(v):
+    """A value as :func:`rows_to_csv` writes it: lists joined with ';', a float by its repr
+    (empty when not finite), None empty."""
+    if type(v) is str:
+        return v
+    if isinstance(v, (list, tuple)):
+        return ";".join(str(x) for x in v)
+    if isinstance(v, float):
+        return "" if not math.isfinite(v) else repr(float(v))
+    return "" if v is None else v
 
 
 def safe_filename(name: str, limit: int = 60) -> str:
