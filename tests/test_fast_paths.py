@@ -146,3 +146,22 @@ def test_json_text_of_numpy_numbers_and_enums_is_json_dumps():
 
     doc = {"x": np.float64(0.1), "k": Kind.A, "v": [np.float64("nan"), 2.5e-300, -0.0]}
     assert to_json(doc) == json.dumps(doc, indent=2, ensure_ascii=False) + "\n"
+
+
+def test_curve_values_at_equal_one_trace_at_a_time():
+    # every trace's whole curve at its own time in one evaluation: the numbers of
+    # Windows.curve_values one trace at a time (seeded enzyme wells with lags, depletion,
+    # masked readings and a short trace; rateabs.simulate integrates the mechanism with
+    # scipy.integrate.solve_ivp)
+    from test_slopes_chunks import messy_plate
+
+    from rateabs.slopes import find_windows
+
+    w = find_windows(messy_plate())
+    assert {"lag", "lag-exp"} & set(w.curve_model) and "exp" in set(w.curve_model)
+    rng = np.random.default_rng(1)
+    rows = np.arange(len(w.names))
+    t = w.t_first + rng.uniform(0, 600, rows.size)
+    one = np.array([w.curve_values(i, [t[i]])[0] for i in rows])
+    assert np.array_equal(w.curve_values_at(rows, t), one, equal_nan=True)
+    assert np.array_equal(w.curve_values_at(rows[::-3], t[::-3]), one[::-3], equal_nan=True)

@@ -140,6 +140,18 @@ class Windows:
             return np.full(t.shape, np.nan)
         return self.y_first[i] + progress(t - self.t_first[i], *p)
 
+    def curve_values_at(self, rows, t) -> np.ndarray:
+        """The whole curve of each trace ``rows[j]`` at its own time ``t[j]`` (s on the file's
+        clock), in one evaluation: ``curve_values(rows[j], [t[j]])[0]`` for every j; NaN
+        without a curve."""
+        rows = np.asarray(rows, dtype=int)
+        t = np.asarray(t, float)
+        p = self.curve_params[rows]
+        ok = np.all(np.isfinite(p), axis=1)
+        p = np.where(ok[:, None], p, 0.0)
+        y = self.y_first[rows] + progress(t - self.t_first[rows], *p.T)
+        return np.where(ok, y, np.nan)
+
 
 def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
                  noise_floor: float = 1e-4, curve: bool = True, estimator: str = "auto",
