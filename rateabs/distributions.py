@@ -3,8 +3,9 @@
 They come from :mod:`scipy.special` (``stdtrit``, ``fdtri``, ``chdtri``, ``ndtri`` and their
 tails), the functions :mod:`scipy.stats` evaluates underneath. Importing :mod:`scipy.stats`
 costs about a second at the start of every command (it loads every distribution and parses
-their docstrings); :mod:`scipy.special` costs a tenth of that. Every function takes scalars or
-arrays and is checked against :mod:`scipy.stats` in ``tests/test_distributions.py``.
+their docstrings); :mod:`scipy.special` costs a third of a second, and is imported on the first
+call here (a plate's initial rates need none: :mod:`rateabs.slopes.chi2`). Every function takes
+scalars or arrays and is checked against :mod:`scipy.stats` in ``tests/test_distributions.py``.
 
 >>> round(float(t_two_sided(0.95, 10)), 4)   # Student's t table, 10 degrees of freedom
 2.2281
@@ -13,7 +14,18 @@ arrays and is checked against :mod:`scipy.stats` in ``tests/test_distributions.p
 from __future__ import annotations
 
 import numpy as np
-from scipy import special
+
+
+class _Special:
+    """:mod:`scipy.special`, imported on first use."""
+
+    def __getattr__(self, name: str):
+        from scipy import special as loaded
+
+        return getattr(loaded, name)
+
+
+special = _Special()
 
 
 def t_quantile(q, dof):

@@ -273,6 +273,7 @@ class _Batch:
     hi: np.ndarray
     scale: np.ndarray
     jac: object = None
+    value_jac: object = None
 
     def resid(self, P, rows):
         """Weighted residuals (y - f) w of the given datasets at parameters ``P``."""
@@ -281,10 +282,27 @@ class _Batch:
             f = _eval(self.func, xx, P)
         return (self.y[rows] - f) * self.w[rows]
 
+    def resid_jac(self, P, rows):
+        """The weighted residuals and d(f w)/dp of the free parameters at ``P`` (rows of the
+        given datasets) from one call of ``value_jac``; (residuals, None) without it."""
+        if self.value_jac is None:
+            return self.resid(P, rows), None
+        xx = _take_rows(self.x, rows, self.y.shape[0])
+        w = self.w[rows]
+        with np.errstate(all="ignore"):
+            f, Ja = _eval(self.value_jac, xx, P)
+        # C order, as the Jacobians stored by _lm_iteration: the batched products that use it
+        # then round as they do there
+        J = np.empty(Ja.shape[:2] + (len(self.free),))
+        np.multiply(Ja[:, :, self.free], w[:, :, None], out=J)
+        return (self.y[rows] - f) * w, J
+
     def jacobian(self, P, rows):
-        """d(f w)/dp of the free parameters, (rows, n, k): analytic when given, else central
-        differences with the step of :func:`fd_step`."""
+        """d(f w)/dp of the free parameters, (rows, n, k): analytic when given (``jac`` or
+        ``value_jac``), else central differences with the step of :func:`fd_step`."""
         Pj = P[rows]
+        if self.jac is None and self.value_jac is not None:
+            return self.resid_jac(Pj, rows)[1]
         if self.jac is not None:
             xx = _take_rows(self.x, rows, self.y.shape[0])
             with np.errstate(all="ignore"):
@@ -318,11 +336,14 @@ class _LMState:
 
 def _lm_start(prob: _Batch, P: np.ndarray) -> _LMState:
     B, n = prob.y.shape
-    r = prob.resid(P, np.arange(B))
+    r, J = prob.resid_jac(P, np.arange(B))
     S = np.sum(r * r, axis=1)
     S[~np.isfinite(S)] = np.inf
-    return _LMState(P, r, S, np.full(B, 1e-3), np.isfinite(S), np.zeros(B, dtype=bool),
-                    np.zeros((B, n, len(prob.free))), np.ones(B, dtype=bool))
+    if J is None:
+        return _LMState(P, r, S, np.full(B, 1e-3), np.isfinite(S), np.zeros(B, dtype=bool),
+                        np.zeros((B, n, len(prob.free))), np.ones(B, dtype=bool))
+    return _LMState(P, r, S, np.full(B, 1e-3), np.isfinite(S), np.zeros(B, dtype=bool), J,
+                    np.zeros(B, dtype=bool))
 
 
 def _lm_delta(state: _LMState, rows, k: int):
@@ -350,7 +371,7 @@ def _lm_iteration(prob: _Batch, state: _LMState, rows, xtol: float, ftol: float)
     Pn = state.P[rows].copy()
     Pn[:, free] = np.clip(Pn[:, free] + _lm_delta(state, rows, len(free)), prob.lo[free],
                           prob.hi[free])
-    rn = prob.resid(Pn, rows)
+    rn, Jn = prob.resid_jac(Pn, rows)
     Sn = np.sum(rn * rn, axis=1)
     Sn[~np.isfinite(Sn)] = np.inf
     better = Sn < state.S[rows]
@@ -361,7 +382,10 @@ def _lm_iteration(prob: _Batch, state: _LMState, rows, xtol: float, ftol: float)
     gain = (state.S[acc] - Sn[better]) / np.maximum(state.S[acc], 1e-300)
     state.P[acc], state.r[acc], state.S[acc] = Pn[better], rn[better], Sn[better]
     state.lam[acc] = np.maximum(state.lam[acc] / 10, 1e-12)
-    state.need_j[acc] = True
+    if Jn is None:
+        state.need_j[acc] = True
+    else:                           # the Jacobian came with the value at the accepted point
+        state.J[acc] = Jn[better]
     state.lam[rej] *= 10
     done = acc[(gain <= ftol) | (step <= xtol) | (state.S[acc] == 0)]
     stuck = rej[state.lam[rej] > 1e12]           # no downhill step left: at a minimum
@@ -379,14 +403,16 @@ def _batch_cov(prob: _Batch, state: _LMState) -> np.ndarray:
 
 
 def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
-             xtol=1e-10, ftol=1e-13, want_cov=False, jac=None) -> BatchResult:
+             xtol=1e-10, ftol=1e-13, want_cov=False, jac=None, value_jac=None) -> BatchResult:
     """Fit ``B`` datasets at once by Levenberg–Marquardt on arrays.
 
     ``func(x, *params)`` broadcasts with parameters of shape (B, 1); ``y`` and ``w`` are (B, n);
     ``x`` broadcasts against them; ``p0`` is (B, p). ``free`` lists the indices of the fitted
     parameters (the rest stay at p0). Bounds are enforced by projection. The Jacobian is by
     central differences, so a model is only a function; a model may pass ``jac(x, *params)``
-    returning df/dp with shape (B, n, p) to save the extra evaluations.
+    returning df/dp with shape (B, n, p) to save the extra evaluations, or
+    ``value_jac(x, *params)`` returning (f, df/dp) where the two share their work (the
+    Jacobian of every trial point then comes with its value, kept where the step is taken).
 
     >>> import numpy as np
     >>> t = np.linspace(0, 10, 30); Y = np.stack([3 * np.exp(-0.5 * t), 2 * np.exp(-0.2 * t)])
@@ -402,7 +428,7 @@ def batch_lm(func, x, y, w, p0, free=None, lower=None, upper=None, max_iter=200,
                   list(range(p)) if free is None else list(free),
                   np.full(p, -np.inf) if lower is None else np.asarray(lower, dtype=float),
                   np.full(p, np.inf) if upper is None else np.asarray(upper, dtype=float),
-                  np.maximum(np.abs(P), 1e-12), jac)
+                  np.maximum(np.abs(P), 1e-12), jac, value_jac)
     state = _lm_start(prob, P)
     it = 0
     for it in range(1, max_iter + 1):  # noqa: B007 - it is reported

@@ -11,6 +11,7 @@ import json
 import math
 import re
 from collections.abc import Sequence
+from json.encoder import encode_basestring
 from pathlib import Path
 
 from . import __version__
@@ -19,6 +20,11 @@ from .files import write_atomic
 
 def _clean(obj):
     """JSON-safe copy: NaN/inf become null, numpy scalars become Python numbers."""
+    kind = type(obj)
+    if kind is float:                       # the common cases first, by their exact type
+        return obj if math.isfinite(obj) else None
+    if kind is str or kind is int or kind is bool or obj is None:
+        return obj
     if isinstance(obj, dict):
         return {str(k): _clean(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
@@ -43,8 +49,55 @@ def document(command: str, inputs, settings: dict, results: list, warnings: list
 
 
 def to_json(doc: dict) -> str:
-    """The document as indented JSON text."""
-    return json.dumps(doc, indent=2, ensure_ascii=False) + "\n"
+    """The document as indented JSON text: the text ``json.dumps(doc, indent=2,
+    ensure_ascii=False)`` writes, built without the standard encoder's generators (a plate's
+    document holds tens of thousands of values); anything but JSON's own types goes to
+    ``json.dumps`` itself."""
+    try:
+        return _json_text(doc, "") + "\n"
+    except _NotPlain:
+        return json.dumps(doc, indent=2, ensure_ascii=False) + "\n"
+
+
+class _NotPlain(Exception):
+    """A value :func:`_json_text` leaves to ``json.dumps``."""
+
+
+def _json_float(x: float) -> str:
+    if x != x or x in (math.inf, -math.inf):
+        return "NaN" if x != x else ("Infinity" if x > 0 else "-Infinity")
+    return float.__repr__(x)
+
+
+#: How json.dumps writes a value of each exact scalar type.
+_JSON_SCALAR = {str: encode_basestring, int: int.__repr__, float: _json_float,
+                bool: lambda b: "true" if b else "false", type(None): lambda _: "null"}
+
+
+def _json_text(o, indent: str) -> str:
+    """``o`` as ``json.dumps`` writes it with an indent of two and ``ensure_ascii=False``, at
+    nesting ``indent``."""
+    scalar = _JSON_SCALAR.get(type(o))
+    if scalar is not None:
+        return scalar(o)
+    inner = indent + "  "
+    if isinstance(o, dict):
+        if any(type(k) is not str for k in o):
+            raise _NotPlain
+        items = [f"{inner}{encode_basestring(k)}: {_json_value(v, inner)}" for k, v in o.items()]
+        return "{\n" + ",\n".join(items) + "\n" + indent + "}" if items else "{}"
+    if isinstance(o, (list, tuple)):
+        items = [inner + _json_value(v, inner) for v in o]
+        return "[\n" + ",\n".join(items) + "\n" + indent + "]" if items else "[]"
+    if isinstance(o, (str, int, float)):      # subclasses (an IntEnum, numpy's float64)
+        return encode_basestring(o) if isinstance(o, str) else (
+            _json_float(o) if isinstance(o, float) else int.__repr__(o))
+    raise _NotPlain
+
+
+def _json_value(o, indent: str) -> str:
+    scalar = _JSON_SCALAR.get(type(o))
+    return scalar(o) if scalar is not None else _json_text(o, indent)
 
 
 def fmt_num(x, digits: int = 4) -> str:
@@ -130,18 +183,21 @@ def rows_to_csv(rows: Sequence[dict], columns: Sequence[str], safe: bool = False
     w = csv.writer(buf, lineterminator="\r\n" if safe else "\n")
     w.writerow([formula_safe(str(c)) for c in columns] if safe else columns)
     for r in rows:
-        out = []
-        for c in columns:
-            v = r.get(c)
-            if isinstance(v, (list, tuple)):
-                v = ";".join(str(x) for x in v)
-            elif isinstance(v, float):
-                v = "" if not math.isfinite(v) else repr(float(v))
-            elif v is None:
-                v = ""
-            out.append(formula_safe(str(v)) if safe else v)
-        w.writerow(out)
+        out = [_csv_cell(r.get(c)) for c in columns]
+        w.writerow([formula_safe(str(v)) for v in out] if safe else out)
     return buf.getvalue()
+
+
+def _csv_cell(v):
+    """A value as :func:`rows_to_csv` writes it: lists joined with ';', a float by its repr
+    (empty when not finite), None empty."""
+    if type(v) is str:
+        return v
+    if isinstance(v, (list, tuple)):
+        return ";".join(str(x) for x in v)
+    if isinstance(v, float):
+        return "" if not math.isfinite(v) else repr(float(v))
+    return "" if v is None else v
 
 
 def safe_filename(name: str, limit: int = 60) -> str:

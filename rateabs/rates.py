@@ -256,6 +256,8 @@ def _skip_sources(ts: TraceSet, w: pd.DataFrame, st: RateSettings) -> None:
                              f"use one of {', '.join(list(w.index)[:12])}")
         skips[name].append((t, "--skip-reading"))
     for name, items in skips.items():
+        if not items:
+            continue
         times = g.times[g.names.index(name)]
         for t, src in items:
             near = np.nanmin(np.abs(times - t)) if np.isfinite(times).any() else np.inf
@@ -298,8 +300,9 @@ def skip_and_mask(ts: TraceSet, setup: PlateSetup, st: RateSettings) -> TraceSet
     ts = ts.select(keep) if len(keep) < len(ts.names) else ts
     g = ts.grid()
     where = np.zeros(g.values.shape, dtype=bool)
+    skips = dict(zip(setup.wells.index, setup.wells["skip"], strict=True))
     for i, n in enumerate(g.names):
-        for t, _ in setup.wells.loc[n, "skip"]:
+        for t, _ in skips[n]:
             where[i] |= np.abs(g.times[i] - t) <= 0.5
     return ts.mask_readings(where) if where.any() else ts
 
@@ -617,9 +620,11 @@ def replicate_outliers(values, ses, keys) -> tuple[np.ndarray, np.ndarray, str]:
     """
     x, se = np.asarray(values, float), np.asarray(ses, float)
     keys = np.asarray(keys, dtype=object)
-    ok = np.isfinite(x)
-    groups = [np.nonzero(ok & (keys == k))[0] for k in dict.fromkeys(keys[ok])]
-    groups = [gr for gr in groups if gr.size >= 2]
+    members: dict = {}
+    for i in np.nonzero(np.isfinite(x))[0]:
+        if keys[i] == keys[i]:                   # a key equal to nothing (NaN) has no replicates
+            members.setdefault(keys[i], []).append(i)
+    groups = [np.array(m) for m in members.values() if len(m) >= 2]
     cv = _pooled_cv(x, se, groups)
     z = np.full(x.size, np.nan)
     out = np.zeros(x.size, dtype=bool)

@@ -492,3 +492,61 @@ _CELL = st.one_of(
 def test_column_kinds_equal_the_kind_of_each_cell(cells, decimal):
     # the one-pass recognition of a column of plain numbers never disagrees with cell_kind
     assert column_kinds(cells, decimal) == [cell_kind(c, decimal) for c in cells]
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.one_of(_CELL, st.sampled_from(["nan", "inf", "-Infinity", "1_000", "1e5",
+                                                  " .5 ", "5.", "1,5", "\u0663", "+-1", "e3"])),
+                min_size=1, max_size=12), st.sampled_from(".,"))
+def test_a_block_called_plain_numbers_holds_only_numbers(cells, decimal):
+    # the whole-column check the reader's sample uses first: never "plain" unless cell_kind
+    # calls every cell a number, and plain ASCII numbers always are
+    from rateabs.io.values import all_plain_numbers
+
+    if all_plain_numbers(cells, decimal):
+        assert all(cell_kind(c, decimal) == "num" for c in cells)
+    ascii_nums = [c for c in cells if c.isascii() and cell_kind(c, decimal) == "num"
+                  and "\n" not in c and "\r" not in c and "_" not in c]
+    if ascii_nums and all(set(c) <= set("0123456789eE+- \t" + decimal) for c in ascii_nums):
+        assert all_plain_numbers(ascii_nums, decimal)
+
+
+_READING = st.one_of(st.floats(-5, 5, allow_nan=False).map(lambda x: f"{x:.4f}"),
+                     st.integers(-3, 3).map(str),
+                     st.sampled_from(["", "OVER", "inf", "-inf", "nan", "1e400"]))
+
+
+@settings(max_examples=60, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.integers(1, 6).flatmap(lambda n: st.lists(
+    st.lists(_READING, min_size=n, max_size=n), min_size=3, max_size=8)))
+def test_wide_columns_taken_at_once_equal_column_by_column(tmp_path, rows):
+    # the wide reader takes every trace column from pandas at once where all are numbers;
+    # the readings and flags are those of the column-by-column path, bit for bit
+    from rateabs.io import body
+
+    n = len(rows[0])
+    lines = ["Time (s)," + ",".join(f"W{j}" for j in range(n))]
+    lines += [f"{10 * i}," + ",".join(r) for i, r in enumerate(rows)]
+    path = tmp_path / "w.csv"
+    path.write_text("\n".join(lines) + "\n")
+
+    def read():
+        try:
+            return read_traces(path).grid()
+        except InputError as e:
+            return str(e)
+
+    fast = read()
+    block = body.ChunkTable.readings_block
+    body.ChunkTable.readings_block = lambda self, js: None
+    try:
+        slow = read()
+    finally:
+        body.ChunkTable.readings_block = block
+    if isinstance(slow, str):
+        assert fast == slow
+        return
+    for a, b in ((fast.values, slow.values), (fast.usable, slow.usable), (fast.times, slow.times)):
+        assert np.array_equal(a, b, equal_nan=True)
+    assert np.array_equal(fast.flags, slow.flags)

@@ -111,3 +111,28 @@ def test_curve_values_of_many_traces_equal_those_of_each_trace():
     assert np.array_equal(np.isnan(many), np.isnan(each))
     assert np.allclose(many[~np.isnan(each)], each[~np.isnan(each)], rtol=0, atol=1e-15)
     assert np.isnan(many[2]).all() and np.isfinite(many[[0, 1, 3]]).all()
+
+
+def test_blockwise_evaluation_changes_no_number(monkeypatch):
+    # the curve family is evaluated in cache-sized blocks of rows; every number is the one the
+    # whole array gives (seeded shapes spanning the members: lags, rho of both signs, k = 0,
+    # a rate that speeds up, the series near t = 0)
+    from rateabs.slopes import curves as cv
+
+    rng = np.random.default_rng(4)
+    R, n = 300, 120
+    T = np.sort(rng.uniform(0, 600, (R, n)), axis=1)
+    T[:, 0] = 0.0
+    k = rng.uniform(-2e-3, 2e-2, (R, 1))
+    k[::7] = 0.0
+    rho = np.where(rng.random((R, 1)) < 0.3, 0.0, rng.uniform(-1, 0.97, (R, 1)))
+    lag = np.where(rng.random((R, 1)) < 0.3, rng.uniform(1, 200, (R, 1)), 0.0)
+    c, v = rng.normal(size=(R, 1)), rng.normal(size=(R, 1))
+    whole = (cv.progress(T, c, v, k, rho, lag), cv.progress_jac(T, c, v, k, rho, lag),
+             *cv.mm_conversion(k * T, cv.shape_of(k, rho)))
+    monkeypatch.setattr(cv, "BLOCK_NUMBERS", 500)
+    assert len(cv.row_blocks((R, n))) > 10
+    blocks = (cv.progress(T, c, v, k, rho, lag), cv.progress_jac(T, c, v, k, rho, lag),
+              *cv.mm_conversion(k * T, cv.shape_of(k, rho)))
+    for a, b in zip(whole, blocks, strict=True):
+        assert np.array_equal(a, b, equal_nan=True)

@@ -252,6 +252,19 @@ class ChunkTable:
             return (np.where(flags != 0, np.nan, nums) if flags.any() else nums), flags
         return parse_values(self.cells(j), self.decimal, self.nos, label)
 
+    def readings_block(self, js: list[int]) -> tuple[np.ndarray, np.ndarray] | None:
+        """The columns ``js`` as readings and flag codes, (len(js), rows) each, taken from
+        pandas at once where it read every one of them as numbers (else None: column by
+        column with :meth:`readings`)."""
+        if self.frame is None or not js:
+            return None
+        dtypes = self.frame.dtypes.to_numpy()
+        if not all(dtypes[j].kind in "iuf" for j in js):
+            return None
+        nums = self.frame.iloc[:, js].to_numpy(dtype=float).T
+        flags = float_flags(nums)              # an infinite reading is an overflow, not a number
+        return (np.where(flags != 0, np.nan, nums) if flags.any() else nums), flags
+
     def times(self, j: int, tu: TimeUnit) -> np.ndarray:
         """Column ``j`` as times in seconds."""
         nums = self._numbers(j)

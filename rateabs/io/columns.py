@@ -32,7 +32,7 @@ from .headers import (
     time_unit_from_header,
 )
 from .times import clock_seconds
-from .values import column_kinds, to_float
+from .values import all_plain_numbers, column_kinds, to_float
 
 
 @dataclass
@@ -53,10 +53,18 @@ class Sample:
     """Cell kinds and numbers of the first rows below a header, column by column."""
 
     def __init__(self, header: list[str], rows: list[list[str]], decimal: str) -> None:
-        self.cells = [[r[j] if j < len(r) else "" for r in rows] for j in range(len(header))]
-        self.kinds = [column_kinds(col, decimal) for col in self.cells]
+        n = len(header)
+        rows = [r[:n] if len(r) >= n else r + [""] * (n - len(r)) for r in rows]
+        self.cells = [list(col) for col in zip(*rows, strict=True)] if rows else [[]] * n
         self.decimal = decimal
         self._counts: dict[int, Counter] = {}
+        self.kinds = []
+        for j, col in enumerate(self.cells):
+            if col and all_plain_numbers(col, decimal):      # the common case, at once
+                self.kinds.append(["num"] * len(col))
+                self._counts[j] = Counter(num=len(col))
+            else:
+                self.kinds.append(column_kinds(col, decimal))
 
     def frac(self, j: int, kinds: tuple[str, ...]) -> float:
         """Share of the non-empty cells of column ``j`` that are of one of ``kinds``."""

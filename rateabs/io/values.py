@@ -50,6 +50,25 @@ def column_kinds(cells: list[str], decimal: str) -> list[str]:
     return [cell_kind(c, decimal) for c in cells]
 
 
+#: What a block of plain numbers may hold (anything else sends it to :func:`column_kinds`).
+_NOT_PLAIN = {".": re.compile(r"[^0-9.eE+\- \t\n]"), ",": re.compile(r"[^0-9,eE+\- \t\n]")}
+
+
+def all_plain_numbers(cells: list[str], decimal: str) -> bool:
+    """True when every cell is a plain number (:func:`cell_kind` ``num``), checked for a whole
+    block at once: the cells hold only digits, the decimal mark, exponent letters, signs and
+    spaces, and Python's float reads each of them (within that alphabet its grammar is the
+    number pattern's, spaces around allowed). False says only "look cell by cell"."""
+    whole = "\n".join(cells)
+    if whole.count("\n") != len(cells) - 1 or _NOT_PLAIN[decimal].search(whole):
+        return False
+    try:
+        list(map(float, whole.replace(",", ".").split("\n") if decimal == "," else cells))
+    except ValueError:
+        return False
+    return True
+
+
 def is_missing(cell: str) -> bool:
     """True for an empty cell or a missing-value word (``NaN``, ``n/a``, ``-``...)."""
     return cell.strip().lower() in MISSING_WORDS

@@ -62,8 +62,12 @@ def _read_wide(src: Source, body: Body, cols: Columns, decimal: str, tu: TimeUni
         sl = grow.room(len(table))
         grow.times[sl] = table.times(cols.time, tu)
         grow.lines[sl] = table.nos
-        for k, j in enumerate(cols.traces):
-            grow.values[k, sl], grow.flags[k, sl] = table.readings(j, header[j])
+        block = table.readings_block(cols.traces)
+        if block is not None:
+            grow.values[:, sl], grow.flags[:, sl] = block
+        else:
+            for k, j in enumerate(cols.traces):
+                grow.values[k, sl], grow.flags[k, sl] = table.readings(j, header[j])
         for j, parts in aside.items():
             parts.append(table.lenient(j))
     t, values, flags, lines = grow.finish()

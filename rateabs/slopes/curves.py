@@ -38,9 +38,8 @@ from functools import partial
 
 import numpy as np
 
-from ..distributions import chi2_quantile
 from ..fitting import batch_lm
-from . import prepare
+from . import chi2, prepare
 
 #: The members of the family and the parameters each one fits (of c, v, k, rho, L).
 MEMBERS = {"line": (0, 1), "exp": (0, 1, 2), "mm": (0, 1, 2, 3), "lag": (0, 1, 4),
@@ -54,6 +53,28 @@ _HALLEY_STEPS = 3           # reach rounding for every (k t, rho) in range (test
 _SERIES = 1e-3              # below this |k phi| the Taylor series of F is exact to 1e-9
 
 
+#: How many numbers the elementwise functions below work on at once: arrays are taken in blocks
+#: of rows of about this size, whose temporaries stay in the processor's cache (each number is
+#: computed on its own, so blocks change no result).
+BLOCK_NUMBERS = 16384
+
+
+def row_blocks(shape) -> list[slice]:
+    """Slices of the leading axis of an array of ``shape`` holding about
+    :data:`BLOCK_NUMBERS` numbers each; one slice of everything for a small or 1-D array."""
+    if len(shape) < 2 or int(np.prod(shape)) <= 2 * BLOCK_NUMBERS:
+        return [slice(None)]
+    step = max(1, BLOCK_NUMBERS // int(np.prod(shape[1:])))
+    return [slice(i, i + step) for i in range(0, shape[0], step)]
+
+
+def _rows_of(x, sl: slice, shape):
+    """The rows ``sl`` of an argument broadcasting to ``shape`` (unchanged where it has a single
+    row or fewer dimensions: it broadcasts over the rows)."""
+    x = np.asarray(x, float)
+    return x[sl] if x.ndim == len(shape) and x.shape[0] == shape[0] else x
+
+
 def mm_conversion(theta, rho):
     """z and q = -ln(1 - z) with rho z - (1 - rho) ln(1 - z) = theta, elementwise (theta >= 0
     where rho != 0, see :func:`shape_of`).
@@ -64,17 +85,37 @@ def mm_conversion(theta, rho):
     from the bound reaches the rounding of g in three steps for every rho in range.
     """
     theta, rho = np.broadcast_arrays(np.asarray(theta, float), np.asarray(rho, float))
+    blocks = row_blocks(theta.shape)
+    if len(blocks) > 1:
+        z, q = np.empty(theta.shape), np.empty(theta.shape)
+        for sl in blocks:
+            z[sl], q[sl] = mm_conversion(theta[sl], rho[sl])
+        return z, q
     if not np.any(rho):
         return -np.expm1(-theta), theta
-    a = (theta - rho) / (1 - rho)
-    q = np.where(rho >= 0, np.maximum(theta, a), np.minimum(theta, a))
+    # written in place, each step's operations in the order of the formula:
+    # q <- q - 2 g g1 / (2 g1 g1 + g e)
+    omr = 1 - rho
+    q = theta - rho
+    q /= omr
+    q = np.where(rho >= 0, np.maximum(theta, q), np.minimum(theta, q))
+    em, e, g, g1, h = (np.empty_like(q) for _ in range(5))
     for _ in range(_HALLEY_STEPS):
-        em = np.expm1(-q)                  # one transcendental a step: exp(-q) = em + 1
-        e = rho * (em + 1)
-        g = (1 - rho) * q - rho * em - theta
-        g1 = (1 - rho) + e
-        q = q - 2 * g * g1 / (2 * g1 * g1 + g * e)
-    return -np.expm1(-q), q
+        np.expm1(np.negative(q, out=em), out=em)       # one transcendental a step: exp(-q) = em + 1
+        np.multiply(rho, np.add(em, 1, out=e), out=e)
+        np.multiply(omr, q, out=g)
+        g -= np.multiply(rho, em, out=h)
+        g -= theta                                      # g
+        np.add(omr, e, out=g1)                          # g'
+        np.multiply(g, e, out=e)
+        np.multiply(2, g1, out=h)
+        h *= g1
+        h += e                                          # 2 g'^2 + g g''
+        np.multiply(2, g, out=g)
+        g *= g1
+        g /= h
+        q -= g
+    return np.negative(np.expm1(np.negative(q, out=em), out=em), out=em), q
 
 
 def lag_clock(t, lag):
@@ -103,6 +144,13 @@ def _series(rho):
 
 def progress(t, c, v, k, rho, lag):
     """The family's curve y = c + v F(t) (module docstring); broadcasts like batch_lm asks."""
+    shape = np.broadcast_shapes(*(np.shape(x) for x in (t, c, v, k, rho, lag)))
+    blocks = row_blocks(shape)
+    if len(blocks) > 1:
+        out = np.empty(shape)
+        for sl in blocks:
+            out[sl] = progress(*(_rows_of(x, sl, shape) for x in (t, c, v, k, rho, lag)))
+        return out
     phi, _ = lag_clock(t, lag)
     theta = k * phi
     rho = shape_of(k, rho)
@@ -117,30 +165,68 @@ def progress(t, c, v, k, rho, lag):
 def progress_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
     """d y / d(c, v, k, rho, L) of :func:`progress`, shape (B, n, 5); only the columns in
     ``want`` are computed (the others are 0)."""
+    shape = np.broadcast_shapes(*(np.shape(x) for x in (t, v, k, rho, lag)))
+    blocks = row_blocks(shape)
+    if len(blocks) > 1:
+        out = np.empty(shape + (5,))
+        for sl in blocks:
+            out[sl] = progress_jac(*(_rows_of(x, sl, shape) for x in (t, c, v, k, rho, lag)),
+                                   want)
+        return out
     phi, dphi = lag_clock(t, lag)
     theta = k * phi
     rho = shape_of(k, rho)
-    small = np.abs(theta) < _SERIES
-    kk = np.where(k == 0, 1.0, k)
-    out = np.zeros(np.broadcast_shapes(theta.shape, np.shape(v)) + (5,))
+    out = np.zeros(shape + (5,))
     out[..., 0] = 1.0
+    small = np.broadcast_to(np.abs(theta) < _SERIES, shape)
     with np.errstate(all="ignore"):
-        z, q = mm_conversion(theta, rho)
-        d = 1 - rho * z
-        z_theta = (1 - z) / d
-        a, b = _series(rho)
-        out[..., 1] = np.where(small, phi * (1 + a * theta + b * theta * theta), z / kk)
-        if 2 in want:
-            out[..., 2] = v * np.where(small, a * phi * phi + 2 * b * k * phi ** 3,
-                                       (z_theta * theta - z) / (kk * kk))
-        if 3 in want:
-            out[..., 3] = v * np.where(k < 0, 0.0, np.where(
-                small, phi * (theta / 2 + (6 * rho - 4) / 6 * theta * theta),
-                (q - z) * (1 - z) / d / kk))
-        if 4 in want:
-            out[..., 4] = v * np.where(small, 1 + 2 * a * theta + 3 * b * theta * theta,
-                                       z_theta) * dphi
+        if small.all():             # a straight member (k = 0): the series alone
+            _series_jac(out, Ellipsis, want, phi, theta, k, rho, v, dphi)
+            return out
+        _exact_jac(out, want, phi, dphi, theta, k, rho, v)
+        if small.any():
+            _series_jac(out, small, want, *(np.broadcast_to(x, shape)[small] for x in (
+                phi, theta, k, rho, v, dphi)))
     return out
+
+
+def _exact_jac(out, want, phi, dphi, theta, k, rho, v) -> None:
+    """The columns of :func:`progress_jac` from the closed form of F (every reading; those
+    where |k phi| is small are written again from the series)."""
+    kk = np.where(k == 0, 1.0, k)
+    z, q = mm_conversion(theta, rho)
+    d = 1 - rho * z
+    z_theta = (1 - z) / d
+    out[..., 1] = z / kk
+    if 2 in want:
+        out[..., 2] = v * ((z_theta * theta - z) / (kk * kk))
+    if 3 in want:
+        m = (q - z) * (1 - z) / d / kk
+        out[..., 3] = v * (np.where(k < 0, 0.0, m) if np.any(k < 0) else m)
+    if 4 in want:
+        out[..., 4] = v * z_theta * dphi
+
+
+def _series_jac(out, small, want, phi, theta, k, rho, v, dphi) -> None:
+    """The columns of :func:`progress_jac` where |k phi| is below :data:`_SERIES` (``small``, a
+    mask or ``...`` for all), from the Taylor series of F (the arguments are the values
+    there)."""
+    a, b = _series(rho)
+    out[small, 1] = phi * (1 + a * theta + b * theta * theta)
+    if 2 in want:
+        out[small, 2] = v * (a * phi * phi + 2 * b * k * phi ** 3)
+    if 3 in want:
+        out[small, 3] = v * np.where(k < 0, 0.0, phi * (theta / 2 + (6 * rho - 4) / 6 * theta
+                                                         * theta))
+    if 4 in want:
+        out[small, 4] = v * (1 + 2 * a * theta + 3 * b * theta * theta) * dphi
+
+
+def progress_value_jac(t, c, v, k, rho, lag, want=(0, 1, 2, 3, 4)):
+    """:func:`progress` and :func:`progress_jac` from one evaluation (the curve is c + v times
+    the Jacobian's column of v): (y, dy/dp), for :func:`rateabs.fitting.batch_lm`."""
+    J = progress_jac(t, c, v, k, rho, lag, want)
+    return c + v * J[..., 1], J
 
 
 # --------------------------------------------------------------------------- the grid
@@ -190,15 +276,16 @@ def grid_rss(times, Y, W, k, rho, lag) -> np.ndarray:
     wy = W * Y
     sy = wy.sum(axis=1)[:, None]
     syy = (wy * Y).sum(axis=1)[:, None]
+    Wd, which = distinct_rows(W)
     step = max(1, prepare.CHUNK_READINGS // max(times.shape[1], 1))
     out = np.empty((Y.shape[0], np.size(k)))
     for g0 in range(0, np.size(k), step):
         part = slice(g0, g0 + step)
         F = progress(times, 0.0, 1.0, k[part, None], rho[part, None], lag[part, None])
         F[~np.isfinite(F)] = 0.0
-        sf, sfy = _dot(W, F), _dot(wy, F)
+        sf, sfy = _dot(Wd, F)[which], _dot(wy, F)
         F *= F
-        sff = _dot(W, F)
+        sff = _dot(Wd, F)[which]
         with np.errstate(all="ignore"):
             var_f = sff - sf * sf / sw
             cov = sfy - sf * sy / sw
@@ -213,6 +300,21 @@ def _dot(A, B) -> np.ndarray:
     product may round differently as they change), so that traces and grid points taken in
     chunks give the numbers the whole plate gives."""
     return np.einsum("ij,gj->ig", A, B)
+
+
+def distinct_rows(W) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct rows of ``W`` and, for every row, the index of its own among them.
+
+    Traces whose weights are the same row (on a plate nearly all: every reading used) share the
+    sums that involve only the weights and the grid, so those are formed once per distinct row;
+    :func:`_dot` rounds each product on its own, so the numbers are those of every row.
+    """
+    W = np.ascontiguousarray(W, dtype=float)
+    if W.ndim != 2 or 0 in W.shape:
+        return W, np.arange(W.shape[0])
+    keys = W.view(np.dtype((np.void, W.itemsize * W.shape[1]))).ravel()
+    _, first, which = np.unique(keys, return_index=True, return_inverse=True)
+    return W[first], which.ravel()
 
 
 #: A trace whose used readings lie further than this share of the span from the columns'
@@ -303,13 +405,21 @@ def _line_in_f(F, Y, W):
     return ym - v * fm, v
 
 
+def straight_rss(T, Y, W) -> np.ndarray:
+    """The weighted RSS of each row's least-squares straight line: the ``line`` member's
+    (:func:`fit_member`), whose curve is F = t, by the same sums, without its Jacobian."""
+    c, v = _line_in_f(T, Y, W)
+    resid = (Y - (c[:, None] + v[:, None] * T)) * W
+    return np.sum(resid * resid, axis=1)
+
+
 def _polish(member, T, Y, W, start, span):
     """Levenberg–Marquardt from ``start`` (R, 5), within the family's bounds."""
     lo = np.array([-np.inf, -np.inf, 0.0, RHO_RANGE[0], 0.0])
     hi = np.array([np.inf, np.inf, 25.0 / span, RHO_RANGE[1], 0.5 * span])
     free = MEMBERS[member]
     r = batch_lm(progress, T, Y, W, start, free=list(free), lower=lo, upper=hi, max_iter=15,
-                 xtol=1e-6, ftol=1e-7, jac=partial(progress_jac, want=free))
+                 xtol=1e-6, ftol=1e-7, value_jac=partial(progress_value_jac, want=free))
     better = np.isfinite(r.rss) & np.all(np.isfinite(r.params), axis=1)
     return np.where(better[:, None], r.params, start)
 
@@ -461,7 +571,7 @@ def _lags(prep, out: dict, exp: MemberFit, line_rss, sigma2) -> np.ndarray:
     take = ((gain > LAG_CHI2 * s2) | (speeds & (gain >= 0))) & (lag.params[:, 4] > 0)
     # a lag followed by a slowing rate: looked for where a lag is taken, or where neither the
     # exponential nor the straight lag follows the readings within their noise
-    misfit = np.minimum(exp.rss, lag.rss) > chi2_quantile(0.99, np.maximum(exp.dof, 1)) * (
+    misfit = np.minimum(exp.rss, lag.rss) > chi2.quantile(0.99, np.maximum(exp.dof, 1)) * (
         sigma2[rows])
     look = take | misfit
     try_le = look.copy()
@@ -522,8 +632,7 @@ def fit_curves(prep, min_readings: int = 5, rich: bool = True) -> Curves:
            "v_weights": np.zeros((N, M)), "fitted": np.zeros((N, M)), "spread": np.zeros(N)}
     line_rss = np.full(N, np.nan)
     if rows.size:
-        line_rss[rows] = fit_member("line", rows, prep.Tc, prep.Yc, prep.W, prep.times,
-                                    prep.span).rss
+        line_rss[rows] = straight_rss(prep.Tc[rows], prep.Yc[rows], prep.W[rows])
         exp = fit_member("exp", rows, prep.Tc, prep.Yc, prep.W, prep.times, prep.span)
         _store(out, exp)
         sigma2 = prep.sigma ** 2
@@ -608,12 +717,14 @@ def _offset_grid(t, Y, W, kappa, taus) -> tuple[np.ndarray, np.ndarray]:
     g = np.exp(-t[None, :] / taus[:, None])                                  # (G, n)
     wy = W * Y
     sw, sy = W.sum(axis=1), wy.sum(axis=1)
+    Wd, which = distinct_rows(W)
     with np.errstate(all="ignore"):
         ym = (sy / sw)[:, None, None]
-        sf, sg = _dot(W, F)[:, :, None], _dot(W, g)[:, None, :]
-        vf = (_dot(W, F * F) - _dot(W, F) ** 2 / sw[:, None])[:, :, None]
-        vg = (_dot(W, g * g) - _dot(W, g) ** 2 / sw[:, None])[:, None, :]
-        cfg = np.einsum("rn,kn,gn->rkg", W, F, g) - sf * sg / sw[:, None, None]
+        wf, wg = _dot(Wd, F)[which], _dot(Wd, g)[which]
+        sf, sg = wf[:, :, None], wg[:, None, :]
+        vf = (_dot(Wd, F * F)[which] - wf ** 2 / sw[:, None])[:, :, None]
+        vg = (_dot(Wd, g * g)[which] - wg ** 2 / sw[:, None])[:, None, :]
+        cfg = np.einsum("rn,kn,gn->rkg", Wd, F, g)[which] - sf * sg / sw[:, None, None]
         cfy = _dot(wy, F)[:, :, None] - sf * ym
         cgy = _dot(wy, g)[:, None, :] - sg * ym
         det = vf * vg - cfg * cfg

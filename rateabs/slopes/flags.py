@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..distributions import chi2_tail
+from .chi2 import tail_below
 from .choice import MOVING_Z
 from .curves import CURVED_CHI2, with_start_offset, without_start
 
@@ -121,8 +121,8 @@ def _misfit(rss, dof, sigma) -> np.ndarray:
     times the noise variance."""
     with np.errstate(all="ignore"):
         ratio = rss / np.maximum(dof, 1) / sigma ** 2
-        p = chi2_tail(rss / sigma ** 2, np.maximum(dof, 1))
-    return (dof > 0) & np.isfinite(rss) & (p < MISFIT_P) & (ratio > MISFIT_RATIO)
+        beyond = tail_below(rss / sigma ** 2, np.maximum(dof, 1), MISFIT_P)
+    return (dof > 0) & np.isfinite(rss) & beyond & (ratio > MISFIT_RATIO)
 
 
 def _start(prep, curves, method) -> np.ndarray:

@@ -38,6 +38,26 @@ def quiet_numpy():
         yield
 
 
+def nanmedian(a, axis: int, keepdims: bool = False) -> np.ndarray:
+    """The median of each line's numbers along ``axis``, NaN left out (NaN where a line has
+    none): the numbers ``np.nanmedian`` gives (the middle one, or the mean of the two middle
+    ones), from one sort of the whole array, where numpy's own takes its masked-array path for
+    short lines and a Python loop over long ones."""
+    a = np.asarray(a, float)
+    n = np.sum(~np.isnan(a), axis=axis, keepdims=True)
+    if a.shape[axis] == 0:
+        m = np.full(n.shape, np.nan)
+    else:
+        s = np.sort(a, axis=axis)                                   # NaN sort last
+        hi = np.minimum(n // 2, a.shape[axis] - 1)
+        lo = np.maximum(np.where(n % 2 == 1, hi, hi - 1), 0)
+        low = np.take_along_axis(s, lo, axis=axis)
+        high = np.take_along_axis(s, hi, axis=axis)
+        with np.errstate(invalid="ignore", over="ignore"):
+            m = np.where(n == 0, np.nan, np.where(n % 2 == 1, low, (low + high) / 2))
+    return m if keepdims else np.squeeze(m, axis=axis)
+
+
 def noise_sigma(grid: Grid, floor: float = 1e-4, usable: np.ndarray | None = None) -> np.ndarray:
     """Per-trace noise SD from second differences: the RMS of the second differences within 3.5
     robust SDs of their median, over sqrt(6) (white noise), at least ``floor``.
@@ -52,9 +72,9 @@ def noise_sigma(grid: Grid, floor: float = 1e-4, usable: np.ndarray | None = Non
     ok = U[:, 2:] & U[:, 1:-1] & U[:, :-2]
     d2 = np.where(ok, d2, np.nan)
     with np.errstate(all="ignore"), quiet_numpy():
-        med = np.nanmedian(d2, axis=1, keepdims=True)
+        med = nanmedian(d2, axis=1, keepdims=True)
         dev = np.abs(d2 - med)
-        mad = 1.4826 * np.nanmedian(dev, axis=1, keepdims=True)
+        mad = 1.4826 * nanmedian(dev, axis=1, keepdims=True)
         # efficient and robust: RMS of the second differences within 3.5 robust SDs
         keep = dev <= 3.5 * mad
         rms = np.sqrt(np.nansum(np.where(keep, dev**2, 0), axis=1)
@@ -177,8 +197,8 @@ def _column_times(T, U, t0, span: float) -> np.ndarray:
     with quiet_numpy():
         for c in range(0, M, step):
             cols = slice(c, c + step)
-            times[cols] = np.nanmedian(np.where(U[:, cols], T[:, cols] - t0[:, None], np.nan),
-                                       axis=0)
+            times[cols] = nanmedian(np.where(U[:, cols], T[:, cols] - t0[:, None], np.nan),
+                                    axis=0)
     return np.where(np.isfinite(times), times, np.linspace(0.0, span, M))
 
 
