@@ -76,10 +76,12 @@ def small_plate(tmp_path_factory):
             "truth": {w: s for w, (s, _) in SMALL_PLATE.items()}}
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")
 def dask_scheduler():
     """A Dask scheduler and two worker processes on 127.0.0.1 only (dashboard on a free port),
-    always stopped; its address."""
+    always stopped; its address. Made once per session (a cluster costs seconds of CPU to start
+    and its workers to warm): every test that takes it is marked ``xdist_group("dask")``, so that
+    one worker runs them all and starts one cluster."""
     import logging
 
     distributed = pytest.importorskip("distributed")
