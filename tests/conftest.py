@@ -50,6 +50,26 @@ def demo_dir(demo_run):
     return demo_run[0]
 
 
+@pytest.fixture(scope="session")
+def sample_plate_run(tmp_path_factory):
+    """`rates` on the sample 96-well plate with its map, NADH, volumes, katal, pictures and a
+    report, run once: {"folder": FOLDER (outputs in FOLDER/o, the page FOLDER/report.html),
+    "stdout": the JSON document}. Its tests are marked ``xdist_group("plate-report")``."""
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    samples = ROOT / "sample_runs"
+    d = tmp_path_factory.mktemp("r96")
+    r = CliRunner().invoke(main, [str(a) for a in (
+        "rates", samples / "plate_kbdh_340nm.csv", "--layout", samples / "plate_kbdh_map.csv",
+        "--chromophore", "NADH", "--well-volume", "200 uL", "--total-volume", "200 uL",
+        "--sample-volume", "20 uL", "--katal", "--format", "json", "--out", d / "o",
+        "--report", d / "report.html")])
+    assert r.exit_code == 0, r.output
+    return {"folder": d, "stdout": r.stdout}
+
+
 #: The small shared plate: wells, their true slopes (absorbance per minute) and roles.
 SMALL_PLATE = {"A1": (0.020, "sample"), "A2": (0.040, "sample"), "A3": (0.060, "sample"),
                "B1": (0.021, "sample"), "B2": (0.041, "sample"), "B3": (0.059, "sample"),
