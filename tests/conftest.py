@@ -97,22 +97,47 @@ def small_plate(tmp_path_factory):
 
 
 @pytest.fixture(scope="session")
-def dask_scheduler():
-    """A Dask scheduler and two worker processes on 127.0.0.1 only (dashboard on a free port),
-    always stopped; its address. Made once per session (a cluster costs seconds of CPU to start
-    and its workers to warm): every test that takes it is marked ``xdist_group("dask")``, so that
-    one worker runs them all and starts one cluster."""
+def _dask_clusters():
+    """Holder of the running Dask cluster (at most one), always stopped at the end."""
+    held: dict = {}
+    try:
+        yield held
+    finally:
+        stop_dask_cluster(held)
+
+
+def stop_dask_cluster(held: dict) -> None:
+    """Stop the held cluster, if any (its workers burn CPU for as long as it runs)."""
+    cluster = held.pop("cluster", None)
+    if cluster is not None:
+        cluster.close(timeout=60)
+
+
+@pytest.fixture
+def dask_scheduler(_dask_clusters):
+    """A Dask scheduler and two worker processes on 127.0.0.1 only (dashboard on a free port);
+    its address. One cluster serves a run of consecutive tests that take it and is stopped
+    after the last of them (pytest_runtest_teardown below): a cluster costs seconds of CPU to
+    start and its workers to warm, and burns about 0.1 s of CPU a second while it runs. Every
+    test that takes it is marked ``xdist_group("dask")``, so that one worker runs them all
+    one after another."""
     import logging
 
     distributed = pytest.importorskip("distributed")
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=":0",
-                                       silence_logs=logging.ERROR)
-    try:
+    if "cluster" not in _dask_clusters:
+        cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                           host="127.0.0.1", dashboard_address=":0",
+                                           silence_logs=logging.ERROR)
+        _dask_clusters["cluster"] = cluster
         assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
-        yield cluster.scheduler_address
-    finally:
-        cluster.close(timeout=60)
+    return _dask_clusters["cluster"].scheduler_address
+
+
+def pytest_runtest_teardown(item, nextitem):
+    """Stop the Dask cluster after the last of a run of tests that take it."""
+    if "dask_scheduler" in getattr(item, "fixturenames", ()) and (
+            nextitem is None or "dask_scheduler" not in getattr(nextitem, "fixturenames", ())):
+        stop_dask_cluster(item.funcargs.get("_dask_clusters", {}))
 
 
 @pytest.fixture(autouse=True, scope="session")
