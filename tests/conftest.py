@@ -50,6 +50,26 @@ def demo_dir(demo_run):
     return demo_run[0]
 
 
+@pytest.fixture(scope="session")
+def sample_plate_run(tmp_path_factory):
+    """`rates` on the sample 96-well plate with its map, NADH, volumes, katal, pictures and a
+    report, run once: {"folder": FOLDER (outputs in FOLDER/o, the page FOLDER/report.html),
+    "stdout": the JSON document}. Its tests are marked ``xdist_group("plate-report")``."""
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    samples = ROOT / "sample_runs"
+    d = tmp_path_factory.mktemp("r96")
+    r = CliRunner().invoke(main, [str(a) for a in (
+        "rates", samples / "plate_kbdh_340nm.csv", "--layout", samples / "plate_kbdh_map.csv",
+        "--chromophore", "NADH", "--well-volume", "200 uL", "--total-volume", "200 uL",
+        "--sample-volume", "20 uL", "--katal", "--format", "json", "--out", d / "o",
+        "--report", d / "report.html")])
+    assert r.exit_code == 0, r.output
+    return {"folder": d, "stdout": r.stdout}
+
+
 #: The small shared plate: wells, their true slopes (absorbance per minute) and roles.
 SMALL_PLATE = {"A1": (0.020, "sample"), "A2": (0.040, "sample"), "A3": (0.060, "sample"),
                "B1": (0.021, "sample"), "B2": (0.041, "sample"), "B3": (0.059, "sample"),
@@ -76,21 +96,48 @@ def small_plate(tmp_path_factory):
             "truth": {w: s for w, (s, _) in SMALL_PLATE.items()}}
 
 
-@pytest.fixture(scope="module")
-def dask_scheduler():
-    """A Dask scheduler and two worker processes on 127.0.0.1 only (dashboard on a free port),
-    always stopped; its address."""
+@pytest.fixture(scope="session")
+def _dask_clusters():
+    """Holder of the running Dask cluster (at most one), always stopped at the end."""
+    held: dict = {}
+    try:
+        yield held
+    finally:
+        stop_dask_cluster(held)
+
+
+def stop_dask_cluster(held: dict) -> None:
+    """Stop the held cluster, if any (its workers burn CPU for as long as it runs)."""
+    cluster = held.pop("cluster", None)
+    if cluster is not None:
+        cluster.close(timeout=60)
+
+
+@pytest.fixture
+def dask_scheduler(_dask_clusters):
+    """A Dask scheduler and two worker processes on 127.0.0.1 only (dashboard on a free port);
+    its address. One cluster serves a run of consecutive tests that take it and is stopped
+    after the last of them (pytest_runtest_teardown below): a cluster costs seconds of CPU to
+    start and its workers to warm, and burns about 0.1 s of CPU a second while it runs. Every
+    test that takes it is marked ``xdist_group("dask")``, so that one worker runs them all
+    one after another."""
     import logging
 
     distributed = pytest.importorskip("distributed")
-    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=":0",
-                                       silence_logs=logging.ERROR)
-    try:
+    if "cluster" not in _dask_clusters:
+        cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                           host="127.0.0.1", dashboard_address=":0",
+                                           silence_logs=logging.ERROR)
+        _dask_clusters["cluster"] = cluster
         assert cluster.scheduler_address.startswith("tcp://127.0.0.1:")
-        yield cluster.scheduler_address
-    finally:
-        cluster.close(timeout=60)
+    return _dask_clusters["cluster"].scheduler_address
+
+
+def pytest_runtest_teardown(item, nextitem):
+    """Stop the Dask cluster after the last of a run of tests that take it."""
+    if "dask_scheduler" in getattr(item, "fixturenames", ()) and (
+            nextitem is None or "dask_scheduler" not in getattr(nextitem, "fixturenames", ())):
+        stop_dask_cluster(item.funcargs.get("_dask_clusters", {}))
 
 
 @pytest.fixture(autouse=True, scope="session")

@@ -220,3 +220,71 @@ def session_processes(sid: int) -> list[int]:
         if int(fields[3]) == sid and fields[0] not in ("Z", "X"):
             out.append(int(entry))
     return out
+
+
+# --------------------------------------------------------------------------- processes side by side
+
+#: Run by :func:`start_side_by_side` in a fresh interpreter: ``argv[1]`` (Python source) runs
+#: once, with ``argv[4:]`` as its arguments; then one process per argument list in ``argv[3]``
+#: (JSON) is forked from this one, and all of them run ``argv[2]`` (Python source) at once,
+#: each with its own ``sys.argv``. Prints the JSON list of each one's exit code and stderr.
+FORKER = """
+import json, os, sys, traceback
+preload, body, jobs = sys.argv[1], sys.argv[2], json.loads(sys.argv[3])
+sys.argv = ["preload", *sys.argv[4:]]
+exec(compile(preload, "<preload>", "exec"), {"__name__": "preload"})
+children = []
+for argv in jobs:
+    r, w = os.pipe()
+    pid = os.fork()
+    if pid == 0:
+        os.close(r)
+        os.dup2(w, 2)
+        os.dup2(os.open(os.devnull, os.O_WRONLY), 1)
+        code = 0
+        try:
+            sys.argv = argv
+            exec(compile(body, "<side by side>", "exec"), {"__name__": "__main__"})
+        except SystemExit as e:
+            code = e.code if isinstance(e.code, int) else (0 if e.code is None else 1)
+        except BaseException:
+            traceback.print_exc()
+            code = 1
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(code)
+    os.close(w)
+    children.append((pid, r))
+out = []
+for pid, r in children:
+    with os.fdopen(r, "rb") as f:
+        err = f.read().decode("utf-8", "replace")
+    _, status = os.waitpid(pid, 0)
+    out.append((os.waitstatus_to_exitcode(status), err))
+print(json.dumps(out))
+"""
+
+
+def start_side_by_side(preload: str, body: str, argvs: list[list[str]], env: dict,
+                       preload_args: list[str] = ()):
+    """Start real processes side by side, one per argument list, each running ``body`` (Python
+    source) with that ``sys.argv``. They are forked from one fresh interpreter that first ran
+    ``preload`` (with ``preload_args``), so that the imports are paid once and not once per
+    process (a process start with the package's imports costs over a second of CPU). Returns
+    the Popen of that interpreter; :func:`side_by_side_results` waits for it."""
+    import json
+    import subprocess
+    import sys
+
+    argv = [sys.executable, "-c", FORKER, preload, body, json.dumps(argvs), *preload_args]
+    return subprocess.Popen(argv, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                            text=True)
+
+
+def side_by_side_results(p, timeout: float = 300) -> list[tuple[int, str]]:
+    """Each process's (exit code, stderr), in the order of the argument lists."""
+    import json
+
+    out, err = p.communicate(timeout=timeout)
+    assert p.returncode == 0, err
+    return [(code, text) for code, text in json.loads(out)]

@@ -306,6 +306,7 @@ def _same_numbers(doc: dict) -> dict:
     return {**doc, "settings": settings}
 
 
+@pytest.mark.xdist_group("dask")          # one cluster for the session
 def test_serial_two_processes_and_dask_give_identical_documents(screen, tmp_path,
                                                                   dask_scheduler):
     folder, _ = screen
@@ -322,6 +323,7 @@ def test_serial_two_processes_and_dask_give_identical_documents(screen, tmp_path
         _same_numbers(dask))
 
 
+@pytest.mark.xdist_group("dask")          # one cluster for the session
 def test_grade_runs_on_the_scheduler_too(tmp_path, dask_scheduler):
     folder = first_order_class(tmp_path / "c", 6, seed=5, minutes_slip_every=3)
     base = ["grade", folder, "--rubric", folder / "rubric.toml", "--format", "json"]

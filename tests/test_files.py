@@ -19,6 +19,7 @@ from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
+from helpers import side_by_side_results, start_side_by_side
 
 from rateabs import files
 from rateabs.cli import main
@@ -508,14 +509,13 @@ def test_many_writers_side_by_side_on_the_file_layer(tmp_path):
     runs = crashes = 0
     for rnd in range(5):
         go = tmp_path / f"go{rnd}"
-        procs = [subprocess.Popen([sys.executable, "-c", LAYER_WRITER, str(out),
-                                   str(8 * rnd + i), str(go)], env=ENV, stderr=subprocess.PIPE,
-                                  text=True) for i in range(8)]
+        p = start_side_by_side("import rateabs.files", LAYER_WRITER,
+                               [["w", str(out), str(8 * rnd + i), str(go)] for i in range(8)],
+                               ENV)
         go.touch()
-        for p in procs:
-            _, err = p.communicate(timeout=120)
+        for code, err in side_by_side_results(p, timeout=120):
             runs += 1
-            crashes += p.returncode != 0 or "Traceback" in err
+            crashes += code != 0 or "Traceback" in err
         assert not leftovers(out)
         m = read_manifest(out)
         run_id = json.loads((out / "result.json").read_text())["run"]
@@ -532,6 +532,15 @@ WRITER = textwrap.dedent("""
     sys.argv = ["rateabs", "rates", sys.argv[1], "--out", sys.argv[2], "--no-curve", "--no-plots"]
     main()
 """)
+#: run once before the writers are forked, so that they start with what `rates` imports: the
+#: same command on argv[1] without --out (nothing written), its output thrown away
+WARM_UP = textwrap.dedent("""
+    import contextlib, os, sys
+    from rateabs.cli import main
+    with open(os.devnull, "w") as null, contextlib.redirect_stdout(null), \\
+            contextlib.redirect_stderr(null):
+        main(["rates", sys.argv[1], "--no-curve", "--no-plots"], standalone_mode=False)
+""")
 
 
 def test_rates_side_by_side_never_crash_nor_mix(tmp_path):
@@ -545,13 +554,11 @@ def test_rates_side_by_side_never_crash_nor_mix(tmp_path):
         expected[str(g)] = r.stdout
     runs = crashes = 0
     for _ in range(2):
-        procs = [subprocess.Popen([sys.executable, "-c", WRITER, str(g), str(out)], env=ENV,
-                                  stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
-                 for g in inputs]
-        for p in procs:
-            _, err = p.communicate(timeout=300)
+        p = start_side_by_side(WARM_UP, WRITER, [["w", str(g), str(out)] for g in inputs], ENV,
+                               [str(inputs[0])])
+        for code, err in side_by_side_results(p):
             runs += 1
-            crashes += p.returncode != 0 or "Traceback" in err or "internal error" in err
+            crashes += code != 0 or "Traceback" in err or "internal error" in err
         assert not leftovers(out)
         m = read_manifest(out)
         assert m["status"] == "complete" and listed(out) == present(out)

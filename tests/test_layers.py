@@ -3,7 +3,13 @@ imports a higher one), no private name reached across modules, no function too l
 mind."""
 
 import ast
+import functools
 from pathlib import Path
+
+import pytest
+
+# the three walks over the package share its parsed sources (parsing is most of their cost)
+pytestmark = pytest.mark.xdist_group("layers")
 
 PKG = Path(__file__).resolve().parents[1] / "rateabs"
 
@@ -23,6 +29,12 @@ LONG_LIMIT = 80
 KNOWN_LONG: set = set()
 
 
+@functools.cache
+def nodes(path: Path) -> tuple:
+    """Every node of a source file's syntax tree (the file parsed once per session)."""
+    return tuple(ast.walk(ast.parse(path.read_text(encoding="utf-8"))))
+
+
 def _unit(path: Path, root: Path) -> str:
     """The design unit of a source file: its top-level module or subpackage under the root."""
     rel = path.relative_to(root)
@@ -37,8 +49,7 @@ def _package(path: Path, root: Path) -> list[str]:
 def imports(path: Path, root: Path = PKG):
     """(unit imported, line) for every import of the package, relative or absolute, anywhere in
     the file (inside functions too)."""
-    tree = ast.parse(path.read_text(encoding="utf-8"))
-    for node in ast.walk(tree):
+    for node in nodes(path):
         if isinstance(node, ast.Import):
             for a in node.names:
                 parts = a.name.split(".")
@@ -96,7 +107,7 @@ def test_every_module_has_a_layer():
 
 def _functions(root: Path = PKG):
     for path in sorted(root.rglob("*.py")):
-        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        for node in nodes(path):
             if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef)):
                 yield _unit(path, root), node.name, node.end_lineno - node.lineno + 1
 
@@ -109,7 +120,7 @@ def test_no_function_is_too_long():
 def test_no_private_name_is_reached_across_modules():
     bad = []
     for path in sorted(PKG.rglob("*.py")):
-        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        for node in nodes(path):
             if isinstance(node, ast.ImportFrom):
                 bad += [f"{path.relative_to(PKG)}:{node.lineno} {a.name}" for a in node.names
                         if a.name.startswith("_") and not a.name.startswith("__")]

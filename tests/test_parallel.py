@@ -213,6 +213,7 @@ def where_am_i(_):
     return os.getpid(), str(Path(rateabs.__file__).resolve().parents[1])
 
 
+@pytest.mark.xdist_group("dask")          # one cluster for the session
 def test_dask_workers_are_other_processes_running_this_checkout(dask_scheduler):
     with open_executor(scheduler=dask_scheduler) as ex:
         got = [o.value for o in run(where_am_i, range(6), ex)]
@@ -234,6 +235,7 @@ class PayloadSpy(Executor):
         self.inner.shutdown(wait=wait, cancel_futures=cancel_futures)
 
 
+@pytest.mark.xdist_group("dask")          # one cluster for the session
 def test_serial_local_and_dask_give_identical_grades_and_ship_paths_not_bytes(
         tmp_path, dask_scheduler):
     folder = first_order_class(tmp_path / "c", 12, seed=3, minutes_slip_every=5)
@@ -255,6 +257,7 @@ def test_serial_local_and_dask_give_identical_grades_and_ship_paths_not_bytes(
         assert data.splitlines()[5] not in payload and len(payload) < len(data)
 
 
+@pytest.mark.xdist_group("dask")          # one cluster for the session
 def test_sample_class_identical_on_dask(dask_scheduler, tmp_path):
     # five of the sample class's runs (a run per Dask worker and more) keep the test short
     import shutil

@@ -27,13 +27,9 @@ def _run(*args):
 
 
 @pytest.fixture(scope="module")
-def sample_run(tmp_path_factory):
-    d = tmp_path_factory.mktemp("r96")
-    r = _run("rates", PLATE, "--layout", MAP, "--chromophore", "NADH", "--well-volume", "200 uL",
-             "--total-volume", "200 uL", "--sample-volume", "20 uL", "--katal", "--out", d / "o",
-             "--report", d / "report.html")
-    assert r.exit_code == 0, r.output
-    return d
+def sample_run(sample_plate_run):
+    """The sample plate's rates run (conftest.sample_plate_run, shared with tests/test_rates.py)."""
+    return sample_plate_run["folder"]
 
 
 def _visible_text(page: str) -> str:

@@ -99,9 +99,11 @@ def test_auto_recovers_order_over_seeds():
     """Small seeded version of benchmarks/order_choice.py (mechanisms by solve_ivp)."""
     first, second = _decay_trace("1", 8e-4), _decay_trace("2", 40.0)
     hits = 0
+    # the order is chosen before any interval is computed: asymptotic intervals spare the
+    # profile's refits (0.15 s a trace), the choice is the same
     for seed in range(10):
-        hits += fit_trace(T, _noisy(first, seed)).order == "1"
-        hits += fit_trace(T, _noisy(second, seed)).order == "2"
+        hits += fit_trace(T, _noisy(first, seed), ci="asymptotic").order == "1"
+        hits += fit_trace(T, _noisy(second, seed), ci="asymptotic").order == "2"
     # accept down to the 0.1 % binomial quantile of 20 trials at the measured rate
     assert hits >= stats.binom.ppf(0.001, 20, ORDER_HIT_RATE)
 
@@ -111,7 +113,7 @@ def test_reversible_first_order_relaxes_at_kf_plus_kr():
     # at [A]eq = [A]0 kr/(kf + kr) (Atkins, relaxation of a reversible first-order reaction)
     kf, kr, c0 = 6e-4, 2e-4, 1e-4
     y = _noisy(0.05 + beer_lambert(reversible_first_order(T, c0, kf, kr), EPS), 2, 0.002)
-    law = fit_trace(T, y, order="1")
+    law = fit_trace(T, y, order="1", ci="asymptotic")       # values and SEs only: no profile
     k, ainf = law.fit.params["k"], law.fit.params["Ainf"]
     bound = stats.t.ppf(1 - 5e-5, law.fit.dof)
     assert abs(k.value - (kf + kr)) < bound * k.se
@@ -123,7 +125,7 @@ def test_mixed_second_order_recovered():
     # product P absorbs (eps 15000 L mol^-1 cm^-1, 1 cm) on a baseline of 0.05; A + B -> P by
     # solve_ivp
     y = _noisy(0.05 + beer_lambert(mixed_second_order_product(T, a0, b0, k), 15000), 3, 0.002)
-    law = fit_trace(T, y, order="mixed", a0=a0, b0=b0)
+    law = fit_trace(T, y, order="mixed", a0=a0, b0=b0, ci="asymptotic")     # values and SEs
     p = law.fit.params["k"]
     assert p.unit == "L/(mol s)" and set(mixed_model(a0, b0).params) == set(law.fit.params)
     assert abs(p.value - k) < stats.t.ppf(1 - 5e-5, law.fit.dof) * p.se
@@ -135,7 +137,8 @@ def test_two_absorbing_species():
     c0, kc = 1e-4, 15.0
     c = second_order_decay(T, c0, kc)
     y = _noisy(0.2 + beer_lambert(c, 8000) + beer_lambert(c0 - c, 2000), 4, 0.002)
-    law = fit_trace(T, y, order="2", photometry=Photometry(epsilon=8000, epsilon_product=2000))
+    law = fit_trace(T, y, order="2", photometry=Photometry(epsilon=8000, epsilon_product=2000),
+                    ci="asymptotic")                        # values and SEs: no profile
     bound = stats.t.ppf(1 - 5e-5, law.fit.dof)
     assert abs(law.c0.value - c0) < bound * law.c0.se
     assert abs(law.k_conc.value - kc) < bound * law.k_conc.se
@@ -165,7 +168,7 @@ def test_guggenheim_on_a_run_with_an_unknown_end_point():
     assert g["k"].value == pytest.approx(-slope, rel=1e-9)
     assert abs(g["k"].value - k) < stats.t.ppf(1 - 5e-5, g["n_pairs"] - 2) * g["k"].se
     # the integrated law with a free end value on the same run agrees with it
-    law = fit_trace(t, y, order="1")
+    law = fit_trace(t, y, order="1", ci="asymptotic")       # value and SE: no profile
     assert abs(law.fit.value("k") - g["k"].value) < 3 * math.hypot(law.fit.params["k"].se,
                                                                    g["k"].se)
 

@@ -147,13 +147,10 @@ def _run(args):
     return CliRunner().invoke(main, ["rates", *args])
 
 
-def test_sample_plate_end_to_end(tmp_path):
-    r = _run([str(SAMPLES / "plate_kbdh_340nm.csv"), "--layout",
-              str(SAMPLES / "plate_kbdh_map.csv"), "--chromophore", "NADH", "--well-volume",
-              "200 uL", "--total-volume", "200 uL", "--sample-volume", "20 uL", "--format",
-              "json", "--out", str(tmp_path)])
-    assert r.exit_code == 0, r.output
-    doc = json.loads(r.stdout)
+@pytest.mark.xdist_group("plate-report")        # the run is shared with its tests
+def test_sample_plate_end_to_end(sample_plate_run):
+    doc = json.loads(sample_plate_run["stdout"])
+    out = sample_plate_run["folder"] / "o"
     res = {x["trace"]: x for x in doc["results"]}
     need = {"trace", "slope_A_per_min", "slope_A_per_min_se", "rate_uM_per_min", "window_start_s",
             "window_end_s", "n_points", "r2", "flags", "activity_U_per_mL"}
@@ -166,7 +163,7 @@ def test_sample_plate_end_to_end(tmp_path):
     for f in ("rates.json", "rates.csv", "rates_replicates.csv", "rates_plate.png",
               "rates_plate_overview.png", "rates_wells_1.png", "rates_replicates.png",
               "rates_activity.csv"):
-        assert (tmp_path / f).exists(), f
+        assert (out / f).exists(), f
 
 
 def test_table_output_has_units():
