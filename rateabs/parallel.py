@@ -21,7 +21,8 @@ Workers die with their parent. A :class:`LocalPool` worker ignores Ctrl-C (the p
 it and stops the workers), asks the Linux kernel to kill it when its parent dies
 (``prctl(PR_SET_PDEATHSIG)``), and watches ``os.getppid()`` from a thread everywhere, so a
 parent ended by SIGKILL or SIGTERM leaves no worker behind for more than a fraction of a second.
-Ctrl-C raises :class:`BatchInterrupted` (a ``KeyboardInterrupt``) saying how much was done.
+Ctrl-C raises :class:`BatchInterrupted` (a ``KeyboardInterrupt``) saying how much was done,
+also when it landed where Python swallows it (:func:`ctrl_c_remembered`).
 
 Layer: low (standard library only; Dask is imported when a scheduler is asked for).
 """
@@ -406,9 +407,37 @@ def run(fn: Callable[[Any], Any], items: Iterable, executor: Executor | None = N
     steps = _here(fn, items, tick) if executor is None else \
         _there(fn, items, executor, tick, max(1, ahead))
     try:
-        yield from steps
+        with ctrl_c_remembered() as pressed:
+            for outcome in steps:
+                yield outcome
+                if pressed():       # a Ctrl-C that was swallowed (see ctrl_c_remembered)
+                    raise KeyboardInterrupt
     except KeyboardInterrupt:
         raise BatchInterrupted(counter[0], total) from None
+
+
+@contextmanager
+def ctrl_c_remembered() -> Iterator[Callable[[], bool]]:
+    """``with ctrl_c_remembered() as pressed``: Ctrl-C raises ``KeyboardInterrupt`` as usual,
+    and ``pressed()`` says afterwards whether it came. Python swallows an exception raised
+    while it runs a finalizer (it prints "Exception ignored in ..."), so a Ctrl-C that lands
+    there would be lost; a batch asks ``pressed()`` between items and stops all the same.
+    Outside the main thread, or where Ctrl-C is not Python's default, nothing changes."""
+    seen = [False]
+    if (threading.current_thread() is not threading.main_thread()
+            or signal.getsignal(signal.SIGINT) is not signal.default_int_handler):
+        yield lambda: seen[0]
+        return
+
+    def handler(signum, frame):
+        seen[0] = True
+        raise KeyboardInterrupt
+
+    signal.signal(signal.SIGINT, handler)
+    try:
+        yield lambda: seen[0]
+    finally:
+        signal.signal(signal.SIGINT, signal.default_int_handler)
 
 
 def _here(fn, items, tick) -> Iterator[Outcome]:

@@ -366,3 +366,31 @@ def test_ctrl_c_on_grade_exits_130_with_a_summary_and_no_worker(big_class, tmp_p
     assert p.returncode == 130, err[-3000:]
     assert len(lines) == 1 and "interrupted" in lines[0] and "of 400 item(s) finished" in lines[0]
     assert "Traceback" not in err
+
+
+class _CtrlCInFinalizer:
+    """Ctrl-C sent to this process while Python runs this object's finalizer, where Python
+    swallows the KeyboardInterrupt ("Exception ignored in ...")."""
+
+    def __del__(self):
+        os.kill(os.getpid(), signal.SIGINT)
+        time.sleep(0.05)                    # the handler runs here, inside the finalizer
+
+
+def _lose_ctrl_c(i):
+    if i == 2:
+        _CtrlCInFinalizer()                 # made and finalized at once
+    return i
+
+
+@pytest.mark.skipif(not LINUX, reason="signals to this process")
+@pytest.mark.filterwarnings("ignore::pytest.PytestUnraisableExceptionWarning")
+def test_a_ctrl_c_swallowed_by_a_finalizer_still_stops_the_batch():
+    from rateabs.parallel import BatchInterrupted, run
+
+    got = []
+    with pytest.raises(BatchInterrupted, match="3 of 6"):
+        for out in run(_lose_ctrl_c, list(range(6))):
+            got.append(out.value)
+    assert got == [0, 1, 2]                 # stopped after the item it came in, not at the end
+    assert signal.getsignal(signal.SIGINT) is signal.default_int_handler   # restored
