@@ -242,7 +242,7 @@ def worker_start(creator: int, warm: tuple[str, ...] = ()) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _ask_kernel_for_death_signal()
     parent = os.getppid()
-    if parent != creator and not _exists(creator):   # the parent died before we got here
+    if parent != creator and not alive(creator):    # the parent died before we got here
         os._exit(1)
     threading.Thread(target=_watch_parent, args=(parent,), name="rateabs-parent-watch",
                      daemon=True).start()
@@ -335,14 +335,22 @@ def _watch_parent(parent: int) -> None:
             os._exit(1)
 
 
-def _exists(pid: int) -> bool:
+def alive(pid: int) -> bool:
+    """Whether process ``pid`` runs. A zombie (ended, not yet reaped by its parent) does not:
+    a worker forked just before its parent was killed sees the parent as a zombie, and must
+    end rather than watch the process it was handed to (Linux: read from /proc)."""
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
         return False
     except OSError:
         return True
-    return True
+    try:
+        with open(f"/proc/{pid}/stat") as f:     # proc(5): the state follows the name's ")"
+            state = f.read().rsplit(")", 1)[1].split()[0]
+    except (OSError, IndexError):
+        return True                             # no /proc: alive as far as we can tell
+    return state not in ("Z", "X")
 
 
 class ClusterExecutor(Executor):

@@ -394,3 +394,17 @@ def test_a_ctrl_c_swallowed_by_a_finalizer_still_stops_the_batch():
             got.append(out.value)
     assert got == [0, 1, 2]                 # stopped after the item it came in, not at the end
     assert signal.getsignal(signal.SIGINT) is signal.default_int_handler   # restored
+
+
+@pytest.mark.skipif(not LINUX, reason="reads /proc")
+def test_a_zombie_parent_is_not_alive():
+    # a worker forked just before its parent was killed finds the parent a zombie (ended, not
+    # reaped); it must count as gone, or the worker outlives it (seen as a rare survivor)
+    from rateabs.parallel import alive
+
+    pid = os.fork()
+    if pid == 0:
+        os._exit(0)
+    assert _wait_until(lambda: not alive(pid), limit_s=10)   # ended, still unreaped
+    assert os.waitpid(pid, os.WNOHANG)[0] == pid              # it was a zombie until now
+    assert alive(os.getpid())
