@@ -16,7 +16,7 @@ _VALUES = st.one_of(st.floats(-1e6, 1e6), st.just(np.nan), st.just(np.inf), st.j
                     st.integers(-3, 3).map(float))
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=100, deadline=None)
 @given(arrays(float, st.tuples(st.integers(1, 12), st.integers(1, 12)), elements=_VALUES),
        st.sampled_from([0, 1]), st.booleans())
 def test_nanmedian_is_numpys(a, axis, keepdims):
@@ -117,13 +117,14 @@ def test_a_plates_rates_need_no_scipy(tmp_path):
 
 _JSON = st.recursive(
     st.one_of(st.none(), st.booleans(), st.integers(-10**20, 10**20),
-              st.floats(allow_nan=True, allow_infinity=True), st.text(max_size=8)),
+              st.floats(allow_nan=True, allow_infinity=True), st.text(max_size=8),
+              st.sampled_from([float("inf"), float("-inf"), float("nan"), -0.0])),
     lambda inner: st.one_of(st.lists(inner, max_size=4), st.tuples(inner, inner),
                             st.dictionaries(st.text(max_size=5), inner, max_size=4)),
     max_leaves=25)
 
 
-@settings(max_examples=300, deadline=None)
+@settings(max_examples=100, deadline=None)
 @given(st.one_of(_JSON, st.dictionaries(st.one_of(st.integers(), st.none()), _JSON, max_size=3)))
 def test_json_text_is_json_dumps(doc):
     # the output's JSON writer: the text of json.dumps(indent=2, ensure_ascii=False) (standard
