@@ -213,6 +213,13 @@ class Body:
         return None if self._prev is None else self.src.split(self._prev[1], self._prev[0])
 
 
+def _flagged(nums: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Numbers pandas read as readings and flag codes: an infinite reading is an overflow, not
+    a number."""
+    flags = float_flags(nums)
+    return (np.where(flags != 0, np.nan, nums) if flags.any() else nums), flags
+
+
 class ChunkTable:
     """The columns of one chunk: floats where pandas reads them, else text cells."""
 
@@ -248,8 +255,7 @@ class ChunkTable:
         """Column ``j`` as readings and flag codes."""
         nums = self._numbers(j)
         if nums is not None:
-            flags = float_flags(nums)          # an infinite reading is an overflow, not a number
-            return (np.where(flags != 0, np.nan, nums) if flags.any() else nums), flags
+            return _flagged(nums)
         return parse_values(self.cells(j), self.decimal, self.nos, label)
 
     def readings_block(self, js: list[int]) -> tuple[np.ndarray, np.ndarray] | None:
@@ -261,9 +267,7 @@ class ChunkTable:
         dtypes = self.frame.dtypes.to_numpy()
         if not all(dtypes[j].kind in "iuf" for j in js):
             return None
-        nums = self.frame.iloc[:, js].to_numpy(dtype=float).T
-        flags = float_flags(nums)              # an infinite reading is an overflow, not a number
-        return (np.where(flags != 0, np.nan, nums) if flags.any() else nums), flags
+        return _flagged(self.frame.iloc[:, js].to_numpy(dtype=float).T)
 
     def times(self, j: int, tu: TimeUnit) -> np.ndarray:
         """Column ``j`` as times in seconds."""

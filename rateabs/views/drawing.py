@@ -127,11 +127,11 @@ def drawn_at_once(parts: list[tuple[Callable, tuple]], at_once: int) -> list[tup
     from ..parallel import ChildDied, forked
 
     lanes = [list(range(k, len(parts), at_once)) for k in range(min(at_once, len(parts)))]
-    outcomes = forked([partial(_lane, [parts[i] for i in lane]) for lane in lanes])
+    calls = [partial(_lane, [parts[i] for i in lane]) for lane in lanes]
     drawn: dict[int, tuple[Any, list]] = {}
-    for lane, outcome in zip(lanes, outcomes, strict=True):
+    for lane, call, outcome in zip(lanes, calls, forked(calls), strict=True):
         if isinstance(outcome.error, ChildDied):
-            outcome = forked([partial(_lane, [parts[i] for i in lane])])[0]
+            outcome = forked([call])[0]                 # the first call runs here
         if outcome.error is not None:
             raise outcome.error
         drawn.update(zip(lane, outcome.value, strict=True))
