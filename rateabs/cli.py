@@ -63,6 +63,10 @@ class Main(click.Group):
         """Run the command; any option error is one line on stderr and exit code 2."""
         if not standalone_mode:
             return super().main(args, prog_name, complete_var, standalone_mode, **extra)
+        if args is None:                        # a command line from a shell: one command
+            from .views.drawing import one_command_process
+
+            one_command_process()
         try:
             rv = super().main(args, prog_name, complete_var, standalone_mode=False, **extra)
         except NO_ARGS as exc:                  # bare `rateabs`: click's help, as usual

@@ -144,3 +144,51 @@ def test_a_part_whose_child_died_is_drawn_by_the_drawing_process(tmp_path):
                                          (_dies_in_child, (warm,))])
     assert done == [warm, "drawn by the drawing process"]
     assert (tmp_path / "a.txt").read_text() == "drawn"
+
+
+def _fresh(code: str, stderr: bool = False) -> str:
+    import subprocess
+    import sys
+
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stderr[-2000:]
+    return r.stderr if stderr else r.stdout
+
+
+def test_a_drawing_process_loads_matplotlib_without_the_set_help_and_set_still_works():
+    out = _fresh(
+        "from rateabs.plots.style import skip_artist_help\n"
+        "skip_artist_help()\n"
+        "import matplotlib.lines as ml\n"
+        "line = ml.Line2D([0, 1], [0, 1]); line.set(color='red', linewidth=3, ls='--')\n"
+        "print(line.get_color(), line.get_linewidth(), line.get_linestyle(),\n"
+        "      ml.Line2D.set.__doc__ is None)\n")
+    assert out.split() == ["red", "3.0", "--", "True"]
+
+
+def test_matplotlib_loaded_before_keeps_its_set_help():
+    out = _fresh(
+        "import matplotlib.lines as ml\n"
+        "from rateabs.plots.style import skip_artist_help\n"
+        "skip_artist_help()\n"
+        "import matplotlib.patches as mp\n"
+        "print('Supported properties' in mp.Rectangle.set.__doc__)\n")
+    assert out.split() == ["True"]
+
+
+def test_the_loaded_heap_is_frozen_only_in_a_one_command_process(tmp_path):
+    """A shell command freezes what it loaded (gc.freeze); the test runner's in-process
+    commands, like a library user's session, are left alone."""
+    import gc
+
+    before = gc.get_freeze_count()
+    _run([*PLATE, "--out", str(tmp_path / "here"), "--no-plots"])
+    assert gc.get_freeze_count() == before
+    out = _fresh(
+        "import atexit, gc, sys\n"
+        f"sys.argv = ['rateabs', *{PLATE!r}, '--out', {str(tmp_path / 'shell')!r}, "
+        "'--no-plots', '--format', 'csv']\n"
+        "atexit.register(lambda: sys.stderr.write(f'frozen {gc.get_freeze_count()}'))\n"
+        "from rateabs.cli import main\n"
+        "main()\n", stderr=True)
+    assert int(out.rsplit("frozen ", 1)[1]) > 10000

@@ -75,17 +75,20 @@ class DrawingProcess:
 
 
 @contextmanager
-def drawing_pool(processes: int) -> Iterator[DrawingProcess | None]:
+def drawing_pool(processes: int, modules: Sequence[str] = PARENT_MODULES
+                 ) -> Iterator[DrawingProcess | None]:
     """``with drawing_pool(n) as pool``: a warm drawing process that draws ``n`` parts at once
     (None for ``n`` = 0), started at once so that it loads matplotlib while the caller
-    computes."""
+    computes. The command's ``modules`` are loaded first, with or without pictures, and kept
+    out of the garbage collector's way (:func:`settle_loaded`)."""
+    for name in modules:    # loaded once, before the fork, instead of in the process
+        importlib.import_module(name)
+    settle_loaded()
     if processes < 1:
         yield None
         return
     from ..parallel import stopping
 
-    for name in PARENT_MODULES:     # loaded once, before the fork, instead of in the process
-        importlib.import_module(name)
     with stopping(DrawingProcess(processes)) as pool:
         pool.submit(os.getpid)      # starts the process (forked) and its warm-up
         yield pool
@@ -126,6 +129,7 @@ def drawn_at_once(parts: list[tuple[Callable, tuple]], at_once: int) -> list[tup
 
     from ..parallel import ChildDied, forked
 
+    settle_loaded()         # the parts and matplotlib, before the lanes fork
     lanes = [list(range(k, len(parts), at_once)) for k in range(min(at_once, len(parts)))]
     calls = [partial(_lane, [parts[i] for i in lane]) for lane in lanes]
     drawn: dict[int, tuple[Any, list]] = {}
@@ -136,6 +140,32 @@ def drawn_at_once(parts: list[tuple[Callable, tuple]], at_once: int) -> list[tup
             raise outcome.error
         drawn.update(zip(lane, outcome.value, strict=True))
     return [drawn[i] for i in range(len(parts))]
+
+
+#: Whether this process runs one command and ends (the command line; set by
+#: :func:`one_command_process`): only then is the loaded heap frozen (:func:`settle_loaded`).
+_ONE_COMMAND = False
+
+
+def one_command_process() -> None:
+    """Say that this process runs one command and ends (``rateabs`` from a shell)."""
+    global _ONE_COMMAND
+    _ONE_COMMAND = True
+
+
+def settle_loaded() -> None:
+    """In a process that runs one command (:func:`one_command_process`), move everything
+    loaded so far (modules, the parts to draw) out of the cyclic garbage collector's way
+    (``gc.freeze``): a full collection then no longer walks pandas, scipy and matplotlib, only
+    what the command makes afterwards, and a forked child does not write to the pages it shares
+    with its parent to do so. On the 1536-well benchmark plate the collections after loading
+    took 0.075 s before, 0.03 s after. A frozen reference cycle that becomes garbage is only
+    freed when the process ends, which is why a library user's session (or the test runner,
+    which runs many commands in one process) is left alone."""
+    import gc
+
+    if _ONE_COMMAND:
+        gc.freeze()
 
 
 def _lane(parts: list[tuple[Callable, tuple]]) -> list[tuple[Any, list]]:

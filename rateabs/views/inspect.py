@@ -39,13 +39,17 @@ def compute_inspect(o: InspectOptions) -> View:
     return View(doc, table, rows_to_csv(summary.results, [c for c, _ in COLUMNS]), summary)
 
 
+#: What ``inspect`` loads before a drawing process is forked (it needs no rate analysis).
+INSPECT_MODULES = ("pandas", "rateabs.io", "rateabs.inspecting")
+
+
 def run_inspect(o: InspectOptions, emit) -> View:
     """The ``inspect`` command."""
     from .drawing import draw_parts, drawing_pool, drawing_processes
 
     out = o.output
     with drawing_pool(drawing_processes(None, out.plots and bool(out.out or out.report),
-                                        parts=1)) as pool:
+                                        parts=1), INSPECT_MODULES) as pool:
         view = compute_inspect(o)
 
         def plot(folder):
