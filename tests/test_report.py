@@ -102,6 +102,9 @@ def test_the_house_font_never_warns_and_keeps_undrawable_names_out_of_the_png(tm
             ax.plot([0, 1], [0, 1], label="样品一")
             ax.set_title("动力学 run")
             ax.legend()
+            inset = fig.add_axes((0.6, 0.6, 0.3, 0.3))
+            inset.set_axis_off()                        # its texts are drawn all the same
+            inset.text(0.5, 0.5, "样品二 A1")
             save(fig, tmp_path / "f.png", tight=False)
     assert (tmp_path / "f.png").stat().st_size > 1000
 

@@ -191,13 +191,28 @@ def drawable(text: str, fallback: str | None = None) -> str:
 
 
 def _keep_drawable(fig) -> None:
-    """Every text of a figure made drawable by the house font (see :func:`drawable`)."""
-    from matplotlib.text import Text
-
-    for t in fig.findobj(Text):
+    """Every text a figure draws made drawable by the house font (see :func:`drawable`)."""
+    for t in _drawn_texts(fig):
         s = t.get_text()
         if s and not s.isascii():
             t.set_text(drawable(s))
+
+
+def _drawn_texts(artist):
+    """The texts under ``artist`` that are drawn: invisible artists, and the axes an Axes with
+    its axis turned off does not draw, are passed over (walking those would make matplotlib
+    build their ticks, a millisecond each, only to look at them)."""
+    from matplotlib.axes import Axes
+    from matplotlib.text import Text
+
+    hidden = ({id(artist.xaxis), id(artist.yaxis)}
+              if isinstance(artist, Axes) and not artist.axison else set())
+    for child in artist.get_children():
+        if id(child) in hidden or not child.get_visible():
+            continue
+        if isinstance(child, Text):
+            yield child
+        yield from _drawn_texts(child)
 
 
 def png_bytes(fig, tight: bool = True, dpi: float | None = None,
