@@ -118,7 +118,7 @@ def test_feedback_page_states_unit_date_title_assumptions_and_draws_residuals(sc
     assert f"graded on</td><td>{doc['settings']['graded_on']}" in text
     assert "<td>assignment</td><td>kinetics assignment</td>" in text
     assert "How your run was read" in text and "time: column" in text
-    assert "<svg" in text and ">residual<" in text and "<polyline" in text
+    assert "<svg" in text and ">residual (AU)<" in text and "<polyline" in text
 
 
 def test_no_name_is_drawn_into_the_class_picture(scripts_class, tmp_path):

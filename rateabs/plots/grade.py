@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import html
 import math
+import re
 
 import numpy as np
 
@@ -203,12 +204,23 @@ def student_svg(figure: dict) -> str:
     xlabel = figure.get("xlabel") or f"time ({xunit})"
     parts.append(_text((left + right) / 2, h - 10, xlabel))
     parts.append(_text(16, (top + bottom) / 2, figure.get("ylabel", ""), rotate=True))
-    parts.append(_text(16, (r_top + r_bottom) / 2, "residual", rotate=True))
+    parts.append(_text(16, (r_top + r_bottom) / 2, residual_label(figure.get("ylabel", "")),
+                       rotate=True))
     parts.append(_legend(right, figure, thin))
     label = "readings, the fitted line and the residuals"
     return (f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {w} {h}" width="{w}" '
             f'height="{h}" role="img" aria-label="{label}" style="max-width:100%;height:auto" '
             f'font-family="DejaVu Sans, Helvetica, Arial, sans-serif">{"".join(parts)}</svg>')
+
+
+def residual_label(ylabel: str) -> str:
+    """The residual axis's label, in the unit of the readings' axis (its last parenthesis).
+
+    >>> residual_label("absorbance (AU)"), residual_label("rate (µM/min)"), residual_label("y")
+    ('residual (AU)', 'residual (µM/min)', 'residual')
+    """
+    m = re.search(r"\(([^()]*)\)\s*$", ylabel)
+    return f"residual ({m.group(1)})" if m else "residual"
 
 
 def _legend(right: float, figure: dict, thin: int) -> str:
