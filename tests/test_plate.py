@@ -121,8 +121,10 @@ def test_every_assumption_is_stated_with_its_source(plate, view):
     head = [ln for ln in view.table.splitlines() if ln.startswith("# ")]
     for words in ("time unit: min (given by --time-unit)", "plate: 384-well plate",
                   "pathlength: 0.28 cm, the file header", "blanks: A1, B1", "initial slope:",
-                  "--dilution 8"):
+                  "--dilution 8", "substrate depletion: straight windows that used over 10 % "
+                  "of the map's [S]0 are replaced"):
         assert any(words in ln for ln in head), words
+    assert s["substrate_depletion"].startswith("straight windows that used over 10 %")
     assert any("--dilution 10 fills the 8 sample well(s)" in w for w in view.doc["warnings"])
 
 
@@ -176,3 +178,22 @@ def test_an_option_beats_the_file_pathlength_and_says_so(plate, view):
     assert any("0.56 cm" in w and "Pathlength: 0.28 cm" in w for w in doc["warnings"])
     a, b = _results(view)["A3"], {x["trace"]: x for x in doc["results"]}["A3"]
     assert b["rate_uM_per_min"] == pytest.approx(a["rate_uM_per_min"] * 0.28 / 0.56, rel=1e-9)
+
+
+def test_without_a_substrate_the_depletion_judgement_is_said_to_rest_on_the_bend(tmp_path):
+    """No map: nothing to weigh a window's substrate use against, and the output says so (in
+    the table's header and the JSON settings) instead of leaving it to be guessed."""
+    import json
+
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+    from rateabs.io import sample_path
+
+    plate = str(sample_path("plate_kbdh_340nm.csv"))
+    r = CliRunner().invoke(main, ["rates", plate, "--no-plots"])
+    assert r.exit_code == 0, r.output
+    assert "# substrate depletion: judged from the trace's bend alone" in r.output
+    r = CliRunner().invoke(main, ["rates", plate, "--no-plots", "--format", "json",
+                                  "--slope-from", "window"])
+    assert json.loads(r.output)["settings"]["substrate_depletion"].startswith("not weighed")

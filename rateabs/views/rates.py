@@ -100,6 +100,36 @@ def _estimator_words(st, table) -> str:
         f"; {n} by the map's substrate, used over 10 % within the window" if n else "")
 
 
+def depletion_words(st, table) -> str:
+    """How the substrate used within a straight window is judged: against the map's [S]0, or
+    (without a substrate concentration and an absorptivity) from the trace's bend alone."""
+    checkable = _substrate_checkable(table)
+    if st.slope_from == "curve":
+        return "followed by the whole curve (the estimator is set to curve)"
+    if st.slope_from == "window":
+        return ("straight windows that used over 10 % of the map's [S]0 are flagged over-10pct "
+                "and kept (the estimator is set to window)" if checkable else
+                "not weighed: the estimator is set to window and no substrate concentration "
+                "and absorptivity are given for the samples")
+    if checkable:
+        return ("straight windows that used over 10 % of the map's [S]0 are replaced by the "
+                "whole curve's initial slope")
+    return ("judged from the trace's bend alone, as no substrate concentration and "
+            "absorptivity are given for the samples; a map's substrate column with "
+            "--chromophore or --epsilon lets it be weighed against [S]0")
+
+
+def _substrate_checkable(table) -> bool:
+    """Whether the depletion within a straight window can be weighed against the map's
+    substrate (:func:`rateabs.rates.depleted`): rates in concentration and a substrate
+    concentration for some sample well."""
+    if "rate_uM_per_min" not in table.columns or "substrate_uM" not in table.columns:
+        return False
+    s0 = table["substrate_uM"].to_numpy(float)
+    with np.errstate(invalid="ignore"):
+        return bool(np.any((table["role"].to_numpy() == "sample") & (s0 > 0)))
+
+
 def _counts(values) -> str:
     out: dict = {}
     for v in values:
@@ -143,7 +173,8 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
              f"blanks: {_list(blanks)} ({a.blank_info['mode']} subtracted)" if blanks else
              "blanks: none marked, nothing subtracted",
              f"assay direction: the signal goes {a.blank_info.get('direction')}",
-             f"initial slope: {_counts(t['method'])} ({_estimator_words(st, t)})"]
+             f"initial slope: {_counts(t['method'])} ({_estimator_words(st, t)})",
+             f"substrate depletion: {depletion_words(st, t)}"]
     if st.total_volume_L:
         lines.append(f"activity: {st.total_volume_L * 1e6:g} uL reaction, "
                      f"{st.sample_volume_L * 1e6:g} uL sample; dilution: "
@@ -171,6 +202,7 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
         "dilution": {"option": st.dilution, "wells_by_source": _source_counts(
             t.loc[t["role"] != "blank", "dilution_source"])},
         "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"])},
+        "substrate_depletion": depletion_words(st, t),
         "window": st.window if st.window == "auto" else list(st.window),
         "min_points": st.min_points, "blank": a.blank_info,
         "linear_limit": st.linear_limit, "noisy_rel_se": st.noisy_rel_se,
