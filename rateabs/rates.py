@@ -879,10 +879,13 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     g = analysed.grid()
     wells = setup.wells.loc[g.names]
     table, blank_info, direction = _rates_table(s, g, wells, mode, setup, st, analysed)
+    doubted = substrate_exceeded(table, g)
+    table["substrate_doubted"] = doubted
     deeper = prefer_curve_where_depleted(s, table, st)
     if deeper is not None:
         s = deeper
         table, blank_info, direction = _rates_table(s, g, wells, mode, setup, st, analysed)
+        table["substrate_doubted"] = doubted
     value_col = "rate_uM_per_min" if "rate_uM_per_min" in table.columns else "slope_A_per_min"
     masks = plate_flags(table, s, g, direction, blank_info)
     z, outlier, how = replicate_outliers(
@@ -895,8 +898,23 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     a = RatesAnalysis(table, replicate_summary(table, value_col), z_prime(table, value_col),
                       s.windows, analysed, st, list(setup.warnings), blank_info, setup,
                       activity_summary(table), how)
-    a.warnings += _notes(a, value_col)
+    a.warnings += _notes(a, value_col) + _substrate_note(table, g)
     return a
+
+
+def _substrate_note(table: pd.DataFrame, g: Grid) -> list[str]:
+    """One line naming the wells that made more product than the map's substrate."""
+    doubted = table["substrate_doubted"].to_numpy(bool)
+    if not doubted.any():
+        return []
+    made, _ = product_formed(table, g)
+    names = list(table["trace"][doubted])
+    k = int(np.argmax(np.where(doubted, made / table["substrate_uM"].to_numpy(float), 0)))
+    return [f"{len(names)} sample well(s) ({', '.join(names[:6])}{' ...' if len(names) > 6 else ''}"
+            f") formed more product over the read than the map's substrate holds (e.g. "
+            f"{table['trace'].iloc[k]}: {made[k]:.3g} uM from {table['substrate_uM'].iloc[k]:.3g}"
+            " uM): is the substrate column in another unit (bare numbers are read as uM), or the "
+            "absorptivity wrong? Their windows were not judged against that substrate"]
 
 
 def _rates_table(s: TraceSlopes, g: Grid, wells: pd.DataFrame, mode: str, setup: PlateSetup,
@@ -912,6 +930,45 @@ def _rates_table(s: TraceSlopes, g: Grid, wells: pd.DataFrame, mode: str, setup:
     return well_table(g, s, wells, slope, se, conv), blank_info, direction
 
 
+#: A map's substrate is doubted where the product formed over the read exceeds it by this
+#: fraction (and by three noise SDs of that product): a reaction cannot make more product than
+#: it had substrate (for one product per substrate, as an initial-rate assay assumes).
+SUBSTRATE_EXCESS = 0.10
+
+
+def product_formed(table: pd.DataFrame, g: Grid) -> tuple[np.ndarray, np.ndarray]:
+    """Per well, the product formed over the read in µM (the change between the medians of
+    the first and the last three usable readings, through the well's own conversion from A to
+    µM) and the SD of that figure from the noise; NaN where the rates are not in µM."""
+    n = len(table)
+    if "rate_uM_per_min" not in table.columns:
+        return np.full(n, np.nan), np.full(n, np.nan)
+    with np.errstate(all="ignore"), quiet_numpy():
+        per_A = np.abs(table["rate_uM_per_min"].to_numpy(float)
+                       / table["slope_A_per_min"].to_numpy(float))
+        y = np.where(g.usable, g.values, np.nan)
+        order = np.cumsum(g.usable, axis=1)
+        last = order[:, -1:]
+        first3 = np.where(g.usable & (order <= 3), y, np.nan)
+        last3 = np.where(g.usable & (order > last - 3), y, np.nan)
+        change = np.abs(np.nanmedian(last3, axis=1) - np.nanmedian(first3, axis=1))
+        noise = table["noise_A"].to_numpy(float) * np.sqrt(2 * np.pi / 2 / 3)
+    return change * per_A, noise * per_A
+
+
+def substrate_exceeded(table: pd.DataFrame, g: Grid) -> np.ndarray:
+    """Sample wells that formed more product over the read than the map's [S]0 holds
+    (SUBSTRATE_EXCESS beyond it, and three noise SDs): the substrate concentration (or its
+    unit: bare numbers are read as µM) or the absorptivity cannot be right."""
+    if "substrate_uM" not in table.columns:
+        return np.zeros(len(table), dtype=bool)
+    made, sd = product_formed(table, g)
+    s0 = table["substrate_uM"].to_numpy(float)
+    with np.errstate(invalid="ignore"):
+        return ((table["role"].to_numpy() == "sample") & (s0 > 0) & np.isfinite(made)
+                & (made > (1 + SUBSTRATE_EXCESS) * s0) & (made - s0 > 3 * sd))
+
+
 def depleted(table: pd.DataFrame, s: TraceSlopes) -> np.ndarray:
     """Sample wells reported from a straight window within which more than DEPLETION_LIMIT of
     the map's substrate was used (rate x window length against [S]0): the window's mean slope
@@ -923,8 +980,10 @@ def depleted(table: pd.DataFrame, s: TraceSlopes) -> np.ndarray:
     with np.errstate(invalid="ignore"):
         used = np.abs(table["rate_uM_per_min"].to_numpy(float)) * (
             s.window_end_s - s.window_start_s) / 60.0
+        trusted = ~table["substrate_doubted"].to_numpy(bool) if "substrate_doubted" in \
+            table.columns else True
         return ((table["role"].to_numpy() == "sample") & (s.method == "window") & (s0 > 0)
-                & (used > DEPLETION_LIMIT * s0))
+                & (used > DEPLETION_LIMIT * s0) & trusted)
 
 
 def prefer_curve_where_depleted(s: TraceSlopes, table: pd.DataFrame,

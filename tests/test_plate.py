@@ -197,3 +197,51 @@ def test_without_a_substrate_the_depletion_judgement_is_said_to_rest_on_the_bend
     r = CliRunner().invoke(main, ["rates", plate, "--no-plots", "--format", "json",
                                   "--slope-from", "window"])
     assert json.loads(r.output)["settings"]["substrate_depletion"].startswith("not weighed")
+
+
+def _straight_plate(folder, s0_cell: str, s0_header: str = "substrate"):
+    """Ten wells making product at 2 uM/min for 10 min (20 uM; absorbance from
+    A = epsilon b c, NADH-free chromophore 18000 M^-1 cm^-1, 1 cm), two of them blanks; the
+    map's substrate written as ``s0_cell`` under ``s0_header``."""
+    t = np.arange(0, 10.01, 0.5)
+    rng = np.random.default_rng(5)
+    names = [f"A{i}" for i in range(1, 11)]
+    cols = {n: 0.05 + (0 if i < 2 else 18000 * 2e-6 * t) + rng.normal(0, 0.001, t.size)
+            for i, n in enumerate(names)}
+    data = folder / "straight.csv"
+    data.write_text("Time [min]," + ",".join(names) + "\n" + "".join(
+        f"{x:g}," + ",".join(f"{cols[n][k]:.5f}" for n in names) + "\n"
+        for k, x in enumerate(t)))
+    lay = folder / "map.csv"
+    lay.write_text(f"well,role,sample,{s0_header}\n" + "".join(
+        f"{n},{'blank' if i < 2 else 'sample'},{'buffer' if i < 2 else 'EnzQ'},"
+        f"{'' if i < 2 else s0_cell}\n" for i, n in enumerate(names)))
+    return data, lay
+
+
+def test_a_substrate_below_the_product_formed_is_doubted_out_loud(tmp_path):
+    """20 uM of product cannot come from 0.5 uM of substrate (a map written in mM without its
+    unit, read as uM): the run says so, and does not judge the windows' depletion against it.
+    Written in mM with its unit, the same plate raises nothing (common practice: one product
+    per substrate in an initial-rate assay)."""
+    import json
+
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    data, lay = _straight_plate(tmp_path, "0.5")
+    args = ["rates", str(data), "--layout", str(lay), "--epsilon", "18000", "--pathlength",
+            "1 cm", "--no-plots", "--format", "json"]
+    doc = json.loads(CliRunner().invoke(main, args).output)
+    said = [w for w in doc["warnings"] if "formed more product" in w]
+    assert len(said) == 1 and "8 sample well(s)" in said[0] and "from 0.5 uM" in said[0]
+    made = float(said[0].split(": ", 2)[1].split(" uM")[0].rsplit(" ", 1)[-1])
+    # between the medians of the first and last three readings (0.5 and 9.5 min): 9 min x 2
+    assert made == pytest.approx(18.0, rel=0.05)
+    rates = [r["rate_uM_per_min"] for r in doc["results"] if r["role"] == "sample"]
+    assert np.allclose(rates, 2.0, rtol=0.03)
+    assert not any("over-10pct" in r["flags"] for r in doc["results"])
+    data, lay = _straight_plate(tmp_path, "0.5", "substrate (mM)")
+    doc = json.loads(CliRunner().invoke(main, args).output)
+    assert not any("formed more product" in w for w in doc["warnings"])
