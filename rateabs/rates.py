@@ -66,6 +66,10 @@ DEPLETED_CHOICE = (f"curve: more than {100 * DEPLETION_LIMIT:.0f} % of the map's
                    "depletion")
 NKAT_PER_U = 1e9 / 60e6    # 1 U = 1 umol/min = 1e-6/60 mol/s = 16.67 nkat (NC-IUB 1979)
 TREND_LIMIT = 0.05         # relative change per two-fold dilution that counts as a trend
+#: A sample's activity is called flat in the dilution only where its trend's 95 % interval
+#: stays within this change per two-fold dilution; a trend not significant but not ruled out
+#: either is said to be so (a user audit found "flat" printed on four wells at +51 %, p = 0.09).
+FLAT_LIMIT = 0.10
 
 
 # --------------------------------------------------------------------------- 1. setup
@@ -788,25 +792,35 @@ def dilution_trend(dilution: np.ndarray, activity: np.ndarray) -> dict:
         why = "one dilution" if np.unique(x).size < 2 else "fewer than three wells"
         return {"dilution_trend_pct": None, "dilution_trend_p": None, "flags": [],
                 "dilution_check": f"not tested ({why})"}
-    slope, p = _slope_and_p(x, y)
-    pct = 100 * slope / abs(y.mean()) if y.mean() else np.nan
+    slope, p, half = _slope_and_p(x, y)
+    scale = 100 / abs(y.mean()) if y.mean() else np.nan
+    pct, lo, hi = slope * scale, (slope - half) * scale, (slope + half) * scale
     bad = p < 0.05 and abs(pct) >= 100 * TREND_LIMIT
+    bound = max(abs(lo), abs(hi))
+    head = f"{pct:+.1f} % [{lo:+.1f}, {hi:+.1f}] per two-fold dilution, p = {p:.2g}"
+    if bad:
+        words = ": activity trends with dilution"
+    elif bound <= 100 * FLAT_LIMIT:
+        words = f": flat (no trend beyond ±{bound:.0f} %)"
+    else:
+        words = (f": no clear trend, but one of up to ±{bound:.0f} % is not ruled out (too few "
+                 "wells or too much scatter to call it flat)")
     return {"dilution_trend_pct": float(pct), "dilution_trend_p": p,
-            "flags": ["dilution-trend"] if bad else [],
-            "dilution_check": (f"{pct:+.1f} % per two-fold dilution, p = {p:.2g}"
-                               + (": activity trends with dilution" if bad else ": flat"))}
+            "dilution_trend_ci_pct": [float(lo), float(hi)],
+            "flags": ["dilution-trend"] if bad else [], "dilution_check": head + words}
 
 
-def _slope_and_p(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
-    """Least-squares slope of y on x and the two-sided p of Student's t for a zero slope on
-    n - 2 degrees of freedom."""
-    from .distributions import t_two_sided_p
+def _slope_and_p(x: np.ndarray, y: np.ndarray) -> tuple[float, float, float]:
+    """Least-squares slope of y on x, the two-sided p of Student's t for a zero slope on
+    n - 2 degrees of freedom, and the half-width of the slope's 95 % interval."""
+    from .distributions import t_two_sided, t_two_sided_p
     from .fitting import line_slope
 
     slope, se = line_slope(x, y)
     if se == 0:                                   # on a line: certain, unless it is flat
-        return slope, 0.0 if slope else 1.0
-    return slope, float(t_two_sided_p(slope / se, x.size - 2))
+        return slope, 0.0 if slope else 1.0, 0.0
+    dof = x.size - 2
+    return slope, float(t_two_sided_p(slope / se, dof)), float(t_two_sided(0.95, dof) * se)
 
 
 def z_prime(table: pd.DataFrame, value_col: str) -> dict | None:

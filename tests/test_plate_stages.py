@@ -106,8 +106,16 @@ def test_dilution_trend_is_scipy_linregress_on_log2_dilution():
     assert r["dilution_trend_p"] == pytest.approx(lr.pvalue, rel=1e-9)
     assert r["dilution_trend_pct"] == pytest.approx(100 * lr.slope / act.mean())
     assert r["flags"] == ["dilution-trend"]
+    # the 95 % interval of the trend: slope ± t(0.975, n - 2) SE (scipy linregress, stats.t)
+    half = stats.t.ppf(0.975, d.size - 2) * lr.stderr
+    assert r["dilution_trend_ci_pct"] == pytest.approx(
+        [100 * (lr.slope - half) / act.mean(), 100 * (lr.slope + half) / act.mean()], rel=1e-9)
     flat = dilution_trend(d, np.tile([1.0, 1.02, 0.98], 4))
-    assert flat["flags"] == [] and flat["dilution_check"].endswith("flat")
+    assert flat["flags"] == [] and ": flat (no trend beyond ±" in flat["dilution_check"]
+    # four scattered wells: not significant, yet far from shown flat (a user audit's case)
+    few = dilution_trend(np.array([5.0, 5, 10, 10]), np.array([0.10, 0.13, 0.22, 0.30]))
+    assert few["flags"] == [] and "not ruled out" in few["dilution_check"]
+    assert "flat" not in few["dilution_check"].split(":")[-1].replace("call it flat", "")
     assert dilution_trend(np.full(4, 5.0), act[:4])["dilution_check"] == (
         "not tested (one dilution)")
 
