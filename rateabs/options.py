@@ -528,12 +528,15 @@ class SaturationOptions(Checked):
                                                        "'1 nM'"),
                                   "Enzyme concentration for kcat, e.g. '1 nM' (a bare number is "
                                   "nM).")
-    conc_unit: str | None = option("--conc-unit", ConcUnit(), "Unit of the concentrations "
-                                   "(else from the header).")
-    rate_unit: str | None = option("--rate-unit", Text("unit", "uM/min"), "Unit of the rates, "
-                                   "e.g. uM/min (else from the header).")
-    inhibitor_unit: str | None = option("--inhibitor-unit", ConcUnit(), "Unit of the inhibitor "
-                                        "concentrations.")
+    conc_unit: str | None = option("--conc-unit", ConcUnit(), "Unit the concentrations are "
+                                   "in, for a column whose header names none; a header that "
+                                   "states another unit refuses it (nothing is converted).")
+    rate_unit: str | None = option("--rate-unit", Text("unit", "uM/min"), "Unit the rates are "
+                                   "in, e.g. uM/min, for a column whose header names none; a "
+                                   "header that states another unit refuses it.")
+    inhibitor_unit: str | None = option("--inhibitor-unit", ConcUnit(), "Unit the inhibitor "
+                                        "concentrations are in, for a column whose header names "
+                                        "none; a header that states another unit refuses it.")
     mode: str | None = option("--mode", OneOf(CHENG_PRUSOFF_MODES, "competitive"),
                               "Inhibition mode for the Cheng–Prusoff Ki from an IC50.")
     substrate: float | None = option("--substrate", Number(0, math.inf, lo_open=True,

@@ -26,7 +26,7 @@ from .fitting import Comparison, FitResult, Param, compare, fit
 from .io import number_column, pick_column
 from .models import INHIBITION_MODELS, NESTED, SATURATION, SUBSTRATE_MODELS, direct_linear_plot
 from .options import MODELS
-from .units import TIME_UNITS, concentration_factor, unit_from_header
+from .units import concentration_factor, rate_unit_factors, same_unit, unit_from_header
 
 MODEL_CHOICES = MODELS          # the --model choices (rateabs.options)
 
@@ -85,11 +85,28 @@ def table_data(df: pd.DataFrame, *, conc=None, rate=None, inhibitor=None, sd=Non
 
     return SaturationData(
         s=pick(s), v=v[keep], i=pick(i), sd=pick(e),
-        conc_unit=conc_unit or (unit_from_header(conc_c) if conc_c else ""),
-        rate_unit=rate_unit or unit_from_header(rate_c),
-        inhib_unit=inhib_unit or (unit_from_header(inhib_c) if inhib_c else ""),
+        conc_unit=column_unit(conc_c, conc_unit, "--conc-unit", path),
+        rate_unit=column_unit(rate_c, rate_unit, "--rate-unit", path),
+        inhib_unit=column_unit(inhib_c, inhib_unit, "--inhibitor-unit", path),
         columns={"conc": conc_c, "rate": rate_c, "inhibitor": inhib_c, "sd": sd_c},
         dropped=int((~keep).sum()))
+
+
+def column_unit(column: str | None, given: str | None, flag: str, path: str = "table") -> str:
+    """The unit of a column's numbers: the one its header states, else the option's (``given``).
+
+    An option naming another unit than the header is refused, naming both: the numbers are never
+    relabelled (a header 'substrate_uM' with --conc-unit mM would report a Km 1000 times off) and
+    never converted (the option says what unit the numbers are in, not what to report them in).
+    The same unit spelled differently ('uM' and 'µM') is accepted.
+    """
+    said = unit_from_header(str(column)) if column is not None else ""
+    if given and said and not same_unit(given, said):
+        raise UsageError(f"{flag} {given} contradicts the column {column!r} of {path}, whose "
+                         f"header states {said}",
+                         f"leave {flag} out (the header's unit is used), or correct the header "
+                         f"if the numbers are in {given}")
+    return said or given or ""
 
 
 @dataclass(frozen=True)
@@ -119,22 +136,9 @@ class SaturationAnalysis:
         return "\n".join(parts)
 
 
-def _rate_per_second_factor(rate_unit: str) -> tuple[float, float] | None:
-    """(concentration factor to mol/L, seconds per time unit) of a rate unit like ``uM/min``."""
-    m = re.fullmatch(r"\s*([^/]+?)\s*/\s*([a-z]+)\s*", rate_unit or "")
-    if not m:
-        return None
-    try:
-        cf = concentration_factor(m.group(1))
-    except UsageError:
-        return None
-    t = TIME_UNITS.get(m.group(2))
-    return (cf, t) if t else None
-
-
 def _kcat(result: FitResult, enzyme_M: float, rate_unit: str, conc_unit: str, level: float):
     """kcat = Vmax/[E] (1/s) and kcat/Km (M^-1 s^-1) with propagated uncertainty."""
-    f = _rate_per_second_factor(rate_unit)
+    f = rate_unit_factors(rate_unit)
     if f is None or "Vmax" not in result.params:
         return {}, ("kcat needs the rate in a molar unit per time (e.g. uM/min); rate unit is "
                     f"{rate_unit or 'unknown'}: give --rate-unit")

@@ -19,6 +19,7 @@ ranges of command options are checked in :mod:`rateabs.options`.
 
 from __future__ import annotations
 
+import math
 import re
 
 from .errors import UnitError
@@ -221,6 +222,40 @@ def parse_temperature(text: str | float, default: str = "C") -> float:
 def parse_mass_concentration(text: str | float, default: str = "mg/mL") -> float:
     """Parse a protein concentration such as ``"0.5 mg/mL"``, ``"200 ug/mL"``; returns mg/mL."""
     return quantity(text, "mass concentration", default)
+
+
+def rate_unit_factors(unit: str) -> tuple[float, float] | None:
+    """(factor to mol/L, seconds per time unit) of a rate unit such as ``uM/min``, or None."""
+    m = re.fullmatch(r"\s*([^/]+?)\s*/\s*([A-Za-z]+)\s*", unit or "")
+    if not m:
+        return None
+    try:
+        cf = concentration_factor(m.group(1))
+    except UnitError:
+        return None
+    t = time_factor(m.group(2))
+    return (cf, t) if t else None
+
+
+def _unit_key(unit: str) -> tuple:
+    """What a concentration or rate unit means, for comparing spellings ("uM", "µM", "umol/L")."""
+    u = unit.strip().replace("μ", "u").replace("µ", "u")
+    rate = rate_unit_factors(u)
+    if rate is not None:
+        return ("rate", *rate)
+    try:
+        return ("concentration", concentration_factor(u))
+    except UnitError:
+        return ("text", re.sub(r"\bAU\b", "A", u.replace(" ", "")))
+
+
+def same_unit(a: str, b: str) -> bool:
+    """Whether two spellings name the same concentration or rate unit (``uM`` and ``µM``,
+    ``mM`` and ``mmol/L``, ``uM/min`` and ``µM/min``); other units must be spelled alike."""
+    ka, kb = _unit_key(a), _unit_key(b)
+    return ka[0] == kb[0] and all(
+        x == y if isinstance(x, str) else math.isclose(x, y, rel_tol=1e-12)
+        for x, y in zip(ka[1:], kb[1:], strict=True))
 
 
 def unit_from_header(header: str) -> str:

@@ -171,6 +171,8 @@ def _group_result(o: SaturationOptions, name: str, df) -> tuple[dict, list[str],
     """One group's result (its chosen model, or why it failed), its warnings and analysis."""
     try:
         view = fit_table(o, df)
+    except UsageError:
+        raise                   # an option the table refuses is the command's error, not a group's
     except RateabsError as exc:
         return ({"group": name, "model": None, "params": {}, "chosen": False,
                  "status": "failed", "error": exc.one_line()}, [exc.one_line()], None)

@@ -1,0 +1,72 @@
+"""Where a file, a plate map and an option disagree about a unit or a value, the command stops
+with one line naming both (or follows a documented rule and says so); it never relabels.
+
+End to end with click's CliRunner; each truth is computed here, independently of rateabs.
+"""
+
+import json
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from scipy.optimize import curve_fit
+
+from rateabs.cli import main
+
+#: Michaelis–Menten truth of the saturation tables: Km 50 uM, Vmax 10 uM/min.
+S_UM = np.array([5, 10, 20, 40, 80, 160, 320, 640.0])
+
+
+def run(*args):
+    return CliRunner().invoke(main, [str(a) for a in args])
+
+
+def _mm_table(path, header_s, header_v):
+    rng = np.random.default_rng(11)
+    v = 10 * S_UM / (50 + S_UM) * (1 + 0.01 * rng.standard_normal(S_UM.size))
+    path.write_text(f"{header_s},{header_v}\n" + "".join(
+        f"{s:g},{x:.6g}\n" for s, x in zip(S_UM, v, strict=True)))
+    # reference: scipy.optimize.curve_fit of v = Vmax S / (Km + S) on the numbers as written
+    (vmax, km), _ = curve_fit(lambda s, vm, k: vm * s / (k + s), S_UM,
+                              np.array([float(x) for x in
+                                        (ln.split(",")[1] for ln in
+                                         path.read_text().splitlines()[1:])]), p0=(8, 30))
+    return vmax, km
+
+
+def _params(r):
+    assert r.exit_code == 0, r.output
+    return json.loads(r.stdout)["results"][0]["params"]
+
+
+def test_a_unit_option_contradicting_the_header_is_refused_naming_both(tmp_path):
+    t = tmp_path / "rates.csv"
+    vmax, km = _mm_table(t, "substrate_uM", "rate_uM_per_min")
+    base = ["saturation", t, "--model", "mm", "--format", "json", "--no-plots"]
+    p = _params(run(*base))
+    assert p["Km"]["value"] == pytest.approx(km, rel=1e-4) and p["Km"]["unit"] == "uM"
+    assert p["Vmax"]["value"] == pytest.approx(vmax, rel=1e-4) and p["Vmax"]["unit"] == "uM/min"
+    for flag, unit, column in (("--conc-unit", "mM", "substrate_uM"),
+                               ("--rate-unit", "nM/min", "rate_uM_per_min")):
+        r = run(*base, flag, unit)
+        assert r.exit_code == 2 and r.stdout == ""
+        line = r.stderr.strip()
+        assert len(line.splitlines()) == 1 and "Traceback" not in r.output
+        assert f"{flag} {unit} contradicts the column '{column}'" in line
+        assert f"leave {flag} out" in line
+        # --each: the command's error once, not one failed group per sample
+        each = run("saturation", t, "--model", "mm", "--each", "substrate_uM", flag, unit)
+        assert each.exit_code == 2 and len(each.stderr.strip().splitlines()) == 1
+    # the same unit spelled otherwise is no contradiction
+    same = _params(run(*base, "--conc-unit", "µM", "--rate-unit", "uM/min"))
+    assert same["Km"]["value"] == pytest.approx(km, rel=1e-4) and same["Km"]["unit"] == "uM"
+
+
+def test_a_unit_option_names_the_unit_of_a_bare_header(tmp_path):
+    t = tmp_path / "bare.csv"
+    vmax, km = _mm_table(t, "S", "v")
+    p = _params(run("saturation", t, "--model", "mm", "--conc-unit", "mM", "--rate-unit",
+                    "nM/min", "--format", "json", "--no-plots"))
+    # the numbers are taken as written, in the units the options give (nothing converted)
+    assert p["Km"]["value"] == pytest.approx(km, rel=1e-4) and p["Km"]["unit"] == "mM"
+    assert p["Vmax"]["value"] == pytest.approx(vmax, rel=1e-4) and p["Vmax"]["unit"] == "nM/min"
