@@ -802,7 +802,9 @@ class TemperatureOptions(Checked):
     se_column: str | None = option("--se-column", Text("column name", "k_se"), "Column of SE(k), "
                                    "for weights.")
     temp_unit: str | None = option("--temp-unit", OneOf(("C", "K"), "C"), "Unit of the "
-                                   "temperatures (else from the header or the values).")
+                                   "temperatures (else from the header or the values); against "
+                                   "a header naming the other unit it is refused, unless the "
+                                   "values show the header is wrong.")
     at: tuple = option("--at", Many(Quantity("temperature", "C", Number(0, math.inf, lo_open=True),
                                              "'60 C'", "above absolute zero")),
                        "Predict k at this temperature, e.g. '60 C' (repeatable; a bare number "

@@ -19,7 +19,7 @@ import pandas as pd
 from scipy import constants
 
 from .distributions import t_two_sided
-from .errors import AnalysisError, InputError
+from .errors import AnalysisError, InputError, UsageError
 from .fitting import FitResult, Param, fit
 from .io import number_column, pick_column
 from .models import LINE
@@ -121,13 +121,24 @@ def temperature_unit_of(T, header: str, given: str | None, path: str = "table"
                         ) -> tuple[str, str, list]:
     """The unit of a temperature column: given, or from the header, or from the values; a
     header whose unit the values contradict (kelvin values under 'T (C)') is refused with the
-    fix. Returns the unit, where it came from and notes."""
+    fix. ``given`` (--temp-unit) against a header naming the other unit is refused, naming
+    both, unless the values bear the option out (then it overrides the header, and a note says
+    so). Returns the unit, where it came from and notes."""
     h = header.lower()
     said = ("K" if re.search(r"\(k\)|\[k\]|_k$|kelvin|\bk\b", h) else
             "C" if re.search(r"°|\(c\)|\[c\]|_c$|celsius|\bc\b", h) else None)
     fits = "K" if np.all(T > KELVIN_ABOVE) else "C" if np.all(T < CELSIUS_BELOW) else None
     span = f"{np.min(T):g} to {np.max(T):g}"
     if given is not None:
+        if said not in (None, given):
+            if fits != given:
+                raise UsageError(f"--temp-unit {given} contradicts the column {header!r} of "
+                                 f"{path}, whose header states {NAMES[said]} (values {span})",
+                                 "leave --temp-unit out (the header's unit is used), or "
+                                 "correct the header")
+            return given, "--temp-unit", [
+                f"--temp-unit {given} overrides the header {header!r}, which names "
+                f"{NAMES[said]}: the values ({span}) look like {NAMES[given]}"]
         notes = [] if fits in (None, given) else [
             f"temperatures {span} read in {NAMES[given]} as --temp-unit says, though they look "
             f"like {NAMES[fits]}"]

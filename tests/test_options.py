@@ -491,8 +491,12 @@ def test_temperature_options_are_used(tables):
         "value"] != pytest.approx(ea["value"])
     assert doc("temperature", t, "--se-column", "k_se_alt")["results"][0]["params"]["Ea"][
         "se"] != pytest.approx(ea["se"])
-    assert doc("temperature", t, "--temp-column", "T (C)", "--temp-unit", "K")["results"][0][
-        "params"]["Ea"]["value"] != pytest.approx(ea["value"])
+    # --temp-unit names the unit of a bare header (against 'T (C)' and Celsius values: refused,
+    # tests/test_unit_clashes.py)
+    bare = tables / "temp_bare.csv"
+    bare.write_text(t.read_text().replace("T (C)", "T", 1))
+    assert doc("temperature", bare, "--temp-unit", "K")["results"][0]["params"]["Ea"][
+        "value"] != pytest.approx(ea["value"])
     pred = doc("temperature", t, "--at", "25 C")["results"][-1]["predictions"][0]
     assert pred["T_K"] == pytest.approx(298.15)
     assert pred["k"]["value"] == pytest.approx(8.0e-4, rel=0.1)

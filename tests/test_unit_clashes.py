@@ -70,3 +70,30 @@ def test_a_unit_option_names_the_unit_of_a_bare_header(tmp_path):
     # the numbers are taken as written, in the units the options give (nothing converted)
     assert p["Km"]["value"] == pytest.approx(km, rel=1e-4) and p["Km"]["unit"] == "mM"
     assert p["Vmax"]["value"] == pytest.approx(vmax, rel=1e-4) and p["Vmax"]["unit"] == "nM/min"
+
+
+def test_temp_unit_against_the_header_is_refused_unless_the_values_bear_it_out(tmp_path):
+    # Arrhenius truth: k = A exp(-Ea / (R T)), Ea 60 kJ/mol, A 1e7 1/s, R from scipy.constants
+    from scipy.constants import R
+
+    t_c = np.array([15.0, 25, 35, 45])
+    k = 1e7 * np.exp(-60e3 / (R * (t_c + 273.15)))
+
+    def table(name, header, temps):
+        f = tmp_path / name
+        f.write_text(f"{header},k (1/s)\n" + "".join(
+            f"{x:g},{y:.8g}\n" for x, y in zip(temps, k, strict=True)))
+        return f
+
+    celsius = table("c.csv", "T (C)", t_c)
+    r = run("temperature", celsius, "--temp-unit", "K", "--no-plots")
+    assert r.exit_code == 2 and len(r.stderr.strip().splitlines()) == 1
+    assert "--temp-unit K contradicts the column 'T (C)'" in r.stderr
+    assert "degrees Celsius" in r.stderr
+    # kelvin values under a Celsius header: --temp-unit K is the fix, and the output says so
+    kelvin = table("k.csv", "T (C)", t_c + 273.15)
+    r = run("temperature", kelvin, "--temp-unit", "K", "--format", "json", "--no-plots")
+    assert r.exit_code == 0, r.output
+    d = json.loads(r.stdout)
+    assert d["results"][0]["params"]["Ea"]["value"] == pytest.approx(60.0, rel=1e-5)   # kJ/mol
+    assert any("--temp-unit K overrides the header 'T (C)'" in w for w in d["warnings"])
