@@ -823,9 +823,11 @@ class ProgressOptions(Checked):
     file: str = argument("FILE", "The export of the progress curves.")
     reader: ReaderOptions = part(ReaderOptions)
     s0: float | None = _conc("--s0", "Initial substrate concentration of every curve, e.g. "
-                             "'100 uM' (a bare number is uM).", "'100 uM'")
+                             "'100 uM' (a bare number is uM); refused where the plate map or a "
+                             "per-curve S0 column of the file gives S0.", "'100 uM'")
     s0_column: str | None = option("--s0-column", Text("column name", "'S0 (uM)'"), "Per-curve "
-                                   "column holding S0 (long layout).")
+                                   "column holding S0 (long layout); refused where the plate map "
+                                   "gives each curve's substrate.")
     layout_file: str | None = option("--layout", Text("file name", "map.csv"), "Plate map giving "
                                      "each curve's substrate (and enzyme) concentration.")
     epsilon: float | None = _epsilon("Molar absorptivity of the absorbing species.")

@@ -504,7 +504,7 @@ def test_temperature_options_are_used(tables):
     assert lvl["ci_high"] - lvl["ci_low"] < ea["ci_high"] - ea["ci_low"]
 
 
-def test_progress_options_are_used():
+def test_progress_options_are_used(tmp_path):
     base = doc("progress", *PROG_ARGS)
     km = base["results"][0]["params"]["Km"]
     assert doc("progress", *PROG_ARGS, "--trace", "c1", "--trace", "c3", "--trace", "c5")[
@@ -516,7 +516,13 @@ def test_progress_options_are_used():
     assert eps["results"][0]["params"]["Vmax"]["value"] == pytest.approx(
         half["results"][0]["params"]["Vmax"]["value"], rel=1e-6)
     assert half["results"][0]["params"]["Vmax"]["value"] != pytest.approx(vmax)
-    s0 = doc("progress", PROG, "--s0", "0.1 mM", "--chromophore", "pnp", "--trace", "c4",
+    # --s0 on a file without its per-curve S0 column (beside it --s0 is refused:
+    # tests/test_unit_clashes.py), on the curves started at 100 uM
+    lines = PROG.read_text().splitlines()
+    no_s0 = tmp_path / "no_s0.csv"
+    no_s0.write_text("\n".join([lines[0]] + [",".join(c for i, c in enumerate(ln.split(","))
+                                                      if i != 1) for ln in lines[1:]]) + "\n")
+    s0 = doc("progress", no_s0, "--s0", "0.1 mM", "--chromophore", "pnp", "--trace", "c3",
              "--trace", "c5", "--trace", "c6")
     assert s0["results"][0]["params"]["Km"]["unit"] == "mM"
     assert "Kp" in doc("progress", *PROG_ARGS, "--product-inhibition")["results"][0]["params"]

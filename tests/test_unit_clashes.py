@@ -97,3 +97,52 @@ def test_temp_unit_against_the_header_is_refused_unless_the_values_bear_it_out(t
     d = json.loads(r.stdout)
     assert d["results"][0]["params"]["Ea"]["value"] == pytest.approx(60.0, rel=1e-5)   # kJ/mol
     assert any("--temp-unit K overrides the header 'T (C)'" in w for w in d["warnings"])
+
+
+def _progress_curves(tmp_path):
+    """Four product curves (Km 40 uM, Vmax 5 uM/min, S0 20-200 uM) integrated with
+    scipy.integrate.solve_ivp, read as absorbance with epsilon 18000 M^-1 cm^-1 and 1 cm; a
+    wide export, a long one with its S0 column, and a plate map giving S0 in mM."""
+    from scipy.integrate import solve_ivp
+
+    t = np.arange(0, 30.01, 1.0)                 # min
+    s0s = {"A1": 20.0, "A2": 50.0, "A3": 100.0, "A4": 200.0}
+    rng = np.random.default_rng(3)
+    absorb = {}
+    for w, s0 in s0s.items():
+        sol = solve_ivp(lambda _, y: [-5.0 * y[0] / (40.0 + y[0])], (0, 30), [s0], t_eval=t,
+                        rtol=1e-10, atol=1e-12)
+        absorb[w] = 0.04 + 18000e-6 * (s0 - sol.y[0]) + rng.normal(0, 5e-4, t.size)
+    wide = tmp_path / "wide.csv"
+    wide.write_text("Time (min)," + ",".join(s0s) + "\n" + "".join(
+        f"{x:g}," + ",".join(f"{absorb[w][i]:.5f}" for w in s0s) + "\n"
+        for i, x in enumerate(t)))
+    long = tmp_path / "long.csv"
+    long.write_text("well,S0 (uM),time (min),absorbance\n" + "".join(
+        f"{w},{s0:g},{x:g},{absorb[w][i]:.5f}\n" for w, s0 in s0s.items()
+        for i, x in enumerate(t)))
+    layout = tmp_path / "map.csv"
+    layout.write_text("well,role,substrate (mM)\n" + "".join(
+        f"{w},sample,{s0 / 1000:g}\n" for w, s0 in s0s.items()))
+    return wide, long, layout
+
+
+def test_one_source_of_s0_in_progress(tmp_path):
+    wide, long, layout = _progress_curves(tmp_path)
+    eps = ["--epsilon", "18000", "--no-plots"]
+    r = run("progress", wide, "--layout", layout, "--s0", "50 uM", *eps)
+    assert r.exit_code == 2 and r.stdout == "" and len(r.stderr.strip().splitlines()) == 1
+    assert "--s0 50 uM and the plate map" in r.stderr and "20 to 200 uM" in r.stderr
+    assert "leave --s0 out" in r.stderr
+    r = run("progress", long, "--layout", layout, "--s0-column", "S0 (uM)", *eps)
+    assert r.exit_code == 2 and "--s0-column 'S0 (uM)' and the plate map" in r.stderr
+    r = run("progress", long, "--s0", "50 uM", *eps)
+    assert r.exit_code == 2 and "the column 'S0 (uM)'" in r.stderr
+    assert "give --s0-column 'S0 (uM)'" in r.stderr
+    # each source alone recovers the simulated truth (Km 40 uM, Vmax 5 uM/min)
+    for args in ([wide, "--layout", layout], [long, "--s0-column", "S0 (uM)"]):
+        d = json.loads(run("progress", *args, *eps, "--format", "json").stdout)
+        p = d["results"][0]["params"]
+        assert p["Km"]["value"] == pytest.approx(40, rel=0.02) and p["Km"]["unit"] == "uM"
+        assert p["Vmax"]["value"] == pytest.approx(5, rel=0.01)
+        assert [c["S0_uM"] for c in d["results"][0]["curves"]] == [20, 50, 100, 200]

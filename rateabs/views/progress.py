@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 
 from ..errors import UsageError
@@ -17,10 +19,48 @@ def _column(o: ProgressOptions, meta, col: str, flag: str):
     return meta[col]
 
 
+#: A per-curve column of the file that holds S0 (used with --s0-column only).
+_S0_COLUMN = re.compile(r"^\s*(s0|\[s\]0?|substrate)(\b|_)", re.IGNORECASE)
+
+
+def _span(values, unit: str = "uM") -> str:
+    v = np.asarray(values, float)
+    v = v[np.isfinite(v)]
+    text = f"{v.min():g}" if v.min() == v.max() else f"{v.min():g} to {v.max():g}"
+    return f"{text} {unit}".rstrip()
+
+
+def _one_s0_source(o: ProgressOptions, meta, names) -> None:
+    """Refuse --s0 or --s0-column where the plate map gives each curve's substrate, and --s0
+    where the file has a per-curve S0 column: one source of S0, the two named (an --s0 that
+    overrode the map's 20-200 uM gave Km 1e-9 uM without a word)."""
+    flag = ("--s0" if o.s0 is not None else "--s0-column" if o.s0_column else None)
+    if flag is None:
+        return
+    given = (f"--s0 {o.s0 * 1e6:g} uM" if o.s0 is not None else f"--s0-column {o.s0_column!r}")
+    if "substrate_M" in meta.columns and meta.loc[names, "substrate_M"].notna().any():
+        raise UsageError(f"{given} and the plate map {o.layout_file} (substrate per curve: "
+                         f"{_span(meta.loc[names, 'substrate_M'] * 1e6)}) both give S0",
+                         f"leave {flag} out to use the map's, or give a map without a substrate "
+                         "column")
+    if o.s0 is not None:
+        for col in meta.columns:
+            if col in names or not _S0_COLUMN.search(str(col)):
+                continue
+            vals = np.asarray(meta.loc[names, col].to_numpy(), float)
+            if np.isfinite(vals).any():
+                raise UsageError(f"{given} and the column {col!r} of {o.file} (per curve: "
+                                 f"{_span(vals, '')}) both give S0",
+                                 f"give --s0-column {str(col)!r} to use the file's, or leave "
+                                 "--s0 out")
+
+
 def _s0_uM(o: ProgressOptions, meta, names) -> np.ndarray:
-    """Each curve's S0 in µM: from --s0, --s0-column (unit in its header) or the plate map."""
+    """Each curve's S0 in µM: from --s0, --s0-column (unit in its header) or the plate map (one
+    of them: :func:`_one_s0_source`)."""
     from ..units import concentration_factor, unit_from_header
 
+    _one_s0_source(o, meta, names)
     if o.s0 is not None:
         return np.full(len(names), o.s0 * 1e6)
     if o.s0_column:
