@@ -105,7 +105,8 @@ def _level():
 
 def _epsilon(help: str = "Molar absorptivity, e.g. '6220 M^-1 cm^-1' (a bare number is "
              "M^-1 cm^-1)."):
-    return option("--epsilon", EPSILON, help)
+    return option("--epsilon", EPSILON, help + " A value under 100 M^-1 cm^-1 is warned of "
+                  "(likely mM^-1 cm^-1).")
 
 
 def _chromophore():

@@ -105,6 +105,24 @@ def chromophore(name: str) -> Chromophore:
                      f"use one of {', '.join(CHROMOPHORES)} or give --epsilon")
 
 
+#: Molar absorptivities of the chromophores followed for rates are in the thousands of
+#: M^-1 cm^-1 (the table above: 6220 to 18000; common practice): one under this is most likely a
+#: value in mM^-1 cm^-1 written without its unit, which makes every concentration 1000 times high.
+PLAUSIBLE_EPSILON_MIN = 100.0
+
+
+def epsilon_doubt(epsilon: float | None, flag: str = "--epsilon") -> str | None:
+    """The warning for an implausibly small molar absorptivity (L mol^-1 cm^-1, as ``flag``
+    gave it), naming the likely slip, else None. A warning, not a refusal: a weak absorber
+    can be meant."""
+    if epsilon is None or epsilon >= PLAUSIBLE_EPSILON_MIN:
+        return None
+    return (f"{flag} {epsilon:g} M^-1 cm^-1 is below {PLAUSIBLE_EPSILON_MIN:g} M^-1 cm^-1, far "
+            f"under the chromophores followed for rates (thousands): {epsilon:g} looks like "
+            f"mM^-1 cm^-1, which makes every concentration here 1000 times high; write "
+            f"'{epsilon:g} mM^-1 cm^-1' or {epsilon * 1000:g}")
+
+
 #: A file's wavelength this far (nm) from a chromophore's tabulated one is another measurement.
 WAVELENGTH_TOLERANCE_NM = 10.0
 

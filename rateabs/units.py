@@ -115,17 +115,65 @@ def pathlength_factor(unit: str) -> float | None:
     return {"cm": 1.0, "mm": 0.1, "m": 100.0, "um": 1e-4, "µm": 1e-4}.get(unit)
 
 
-_EPSILON_FORMS = {
-    "M^-1cm^-1": 1.0, "1/(M*cm)": 1.0, "/M/cm": 1.0, "L/(mol*cm)": 1.0, "Lmol^-1cm^-1": 1.0,
-    "L/mol/cm": 1.0, "mM^-1cm^-1": 1e3, "1/(mM*cm)": 1e3, "/mM/cm": 1e3,
-    "uM^-1cm^-1": 1e6, "/uM/cm": 1e6, "cm^-1M^-1": 1.0, "cm^-1mM^-1": 1e3,
-}
+#: A factor of a molar-absorptivity unit: M (mol/L), mol and L with a prefix, cm, or the 1 of
+#: "1/(M cm)"; then an optional exponent ("^-1", "-1", "^(-1)").
+_EPS_ATOM = re.compile(r"(?P<atom>(?P<prefix>[kmunp]?)(?P<base>M|mol|L|l)|cm|1)"
+                       r"(?:\^\(?(?P<exp>[-+]?\d+)\)?|(?P<neg>-\d+))?")
+#: Exponents of litre, mole and centimetre in L mol^-1 cm^-1.
+_EPS_DIMENSION = {"L": 1, "mol": -1, "cm": -1}
+
+
+def _eps_factor_term(unit: str, i: int, sign: int, out: dict) -> tuple[float, int]:
+    """Read factors from ``unit[i:]`` up to ``)`` or the end, raising each to ``sign`` (``/``
+    divides what follows it: one factor, or a bracket); adds exponents to ``out``; returns the
+    scale and where reading stopped."""
+    scale, divide = 1.0, False
+    while i < len(unit) and unit[i] != ")":
+        c = unit[i]
+        if c in " *.·":
+            i += 1
+            continue
+        if c == "/":
+            divide, i = True, i + 1
+            continue
+        s = -sign if divide else sign
+        divide = False
+        if c == "(":
+            f, i = _eps_factor_term(unit, i + 1, s, out)
+            if i >= len(unit) or unit[i] != ")":
+                raise ValueError(unit)
+            scale, i = scale * f, i + 1
+            continue
+        m = _EPS_ATOM.match(unit, i)
+        if not m:
+            raise ValueError(unit)
+        e = s * int(m.group("exp") or m.group("neg") or 1)
+        base = m.group("base")
+        if base:
+            scale *= PREFIX[m.group("prefix")] ** e
+            for key, per in {"M": (("mol", 1), ("L", -1)), "mol": (("mol", 1),),   # M: mol/L
+                             "L": (("L", 1),), "l": (("L", 1),)}[base]:
+                out[key] = out.get(key, 0) + per * e
+        elif m.group("atom") == "cm":
+            out["cm"] = out.get("cm", 0) + e
+        i = m.end()
+    return scale, i
 
 
 def epsilon_factor(unit: str) -> float | None:
-    """L mol^-1 cm^-1 per ``unit`` ("M^-1 cm^-1", "mM^-1 cm^-1", "L/(mol*cm)", ...), or None."""
-    u = unit.replace(" ", "").replace("⁻¹", "^-1").replace("−", "-").replace("**", "^")
-    return _EPSILON_FORMS.get(u)
+    """L mol^-1 cm^-1 per ``unit``, or None: "M^-1 cm^-1", "M-1 cm-1", "mM^-1 cm^-1",
+    "L mol-1 cm-1", "L/(mol cm)", "L/(mol*cm)", "1/(mM*cm)", "/M/cm", "cm^-1 M^-1", ... (any
+    product and quotient of prefixed M, mol or L and cm that comes to L mol^-1 cm^-1)."""
+    u = (unit.strip().replace("⁻¹", "^-1").replace("⁻", "^-").replace("¹", "1")
+         .replace("−", "-").replace("**", "^").replace("µ", "u").replace("μ", "u"))
+    dims: dict = {}
+    try:
+        scale, end = _eps_factor_term(u, 0, 1, dims)
+    except ValueError:
+        return None
+    if end != len(u) or {k: v for k, v in dims.items() if v} != _EPS_DIMENSION:
+        return None
+    return scale
 
 
 def mass_concentration_factor(unit: str) -> float | None:
@@ -203,8 +251,9 @@ def parse_pathlength(text: str | float, default: str = "cm") -> float:
 def parse_epsilon(text: str | float, default: str = "M^-1 cm^-1") -> float:
     """Parse a molar absorptivity; returns L mol^-1 cm^-1 (positive).
 
-    Accepted spellings: ``"6220"``, ``"6220 M^-1 cm^-1"``, ``"6.22 mM^-1 cm^-1"``,
-    ``"6220 L/(mol*cm)"``, ``"6.22 /mM/cm"``.
+    Accepted spellings: ``"6220"``, ``"6220 M^-1 cm^-1"``, ``"6220 M-1 cm-1"``,
+    ``"6.22 mM^-1 cm^-1"``, ``"6220 L mol-1 cm-1"``, ``"6220 L/(mol cm)"``, ``"6.22 /mM/cm"``
+    (:func:`epsilon_factor`).
     """
     return _positive(quantity(text, "molar absorptivity", default), "molar absorptivity", text,
                      "give it in M^-1 cm^-1, e.g. '6220 M^-1 cm^-1'")

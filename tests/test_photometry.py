@@ -156,6 +156,47 @@ def test_epsilon_spellings_agree(x):
     assert units.parse_epsilon(f"{x!r} L/(mol*cm)") == pytest.approx(a, rel=1e-12)
 
 
+#: SI prefixes (BIPM, SI Brochure, 9th edition 2019, table 7) a concentration is written with.
+SI = {"": 1.0, "m": 1e-3, "u": 1e-6, "µ": 1e-6, "n": 1e-9}
+#: Ways molar absorptivity is written: each a template of the concentration prefix p (of M, or
+#: of mol with the litre prefix q) and separator s, with the exponents (L, mol) it stands for.
+EPSILON_FORMS = ["{p}M^-1{s}cm^-1", "{p}M-1{s}cm-1", "{p}M⁻¹{s}cm⁻¹", "cm-1{s}{p}M-1",
+                 "1/({p}M{s}cm)", "/{p}M/cm", "{q}L{s}{p}mol-1{s}cm-1", "{q}L/({p}mol{s}cm)",
+                 "{q}L/({p}mol*cm)", "{q}L{s}{p}mol^-1{s}cm^-1", "{q}L/{p}mol/cm"]
+
+
+@given(st.floats(1e-3, 1e6), st.sampled_from(EPSILON_FORMS), st.sampled_from(sorted(SI)),
+       st.sampled_from(["", "m"]), st.sampled_from([" ", "", "*", "·", "  "]))
+def test_every_common_spelling_of_molar_absorptivity_is_read(x, form, p, q, s):
+    unit = form.format(p=p, q=q if "{q}" in form else "", s=s)
+    # by hand: x (q L) / (p mol cm) = x q / p L mol^-1 cm^-1 (M is mol/L: no litre prefix)
+    expected = x * (SI[q] if "{q}" in form else 1.0) / SI[p]
+    assert units.parse_epsilon(f"{x!r} {unit}") == pytest.approx(expected, rel=1e-12), unit
+
+
+@given(st.text(alphabet="LlMmolcu^-1/()* ·⁻¹kn.", max_size=14))
+def test_an_epsilon_unit_is_read_or_refused_in_words_never_crashes(unit):
+    f = units.epsilon_factor(unit)
+    assert f is None or f > 0
+    if f is None and unit.strip():
+        with pytest.raises(UnitError):
+            units.parse_epsilon(f"6220 {unit}")
+
+
+@pytest.mark.parametrize("unit", ["M^-1", "L/mol", "cm", "mM", "M cm", "L/(mol cm",
+                                  "mm^-1 cm^-1"])
+def test_what_is_not_a_molar_absorptivity_is_refused(unit):
+    with pytest.raises(UnitError):
+        units.parse_epsilon(f"6220 {unit}")
+
+
+def test_an_implausibly_small_epsilon_names_the_likely_slip():
+    # molar absorptivities of chromophores for rates are in the thousands (common practice)
+    assert ph.epsilon_doubt(6220) is None and ph.epsilon_doubt(None) is None
+    said = ph.epsilon_doubt(6.22)
+    assert "6.22 looks like mM^-1 cm^-1" in said and "'6.22 mM^-1 cm^-1' or 6220" in said
+
+
 def test_an_intensity_ratio_beyond_floating_point_is_no_reading_and_no_warning():
     # found by benchmarks/fuzz_reader.py: I = 1e308 over I0 = 1e-5 overflowed with a
     # RuntimeWarning on the user's terminal; A = log10(I0/I) (IUPAC, absorbance) of 50 in 100 is

@@ -146,3 +146,33 @@ def test_one_source_of_s0_in_progress(tmp_path):
         assert p["Km"]["value"] == pytest.approx(40, rel=0.02) and p["Km"]["unit"] == "uM"
         assert p["Vmax"]["value"] == pytest.approx(5, rel=0.01)
         assert [c["S0_uM"] for c in d["results"][0]["curves"]] == [20, 50, 100, 200]
+
+
+def test_a_bare_epsilon_in_mM_units_is_warned_of_and_the_common_spellings_are_read(tmp_path):
+    rng = np.random.default_rng(5)
+    t = np.arange(0, 301, 15.0)                                  # s
+    a = 0.1 + 0.0622 * t / 60 + rng.normal(0, 2e-4, t.size)      # 0.0622 A/min, NADH rising
+    f = tmp_path / "cuvette.csv"
+    f.write_text("Time (s),cuv1\n" + "".join(f"{x:g},{y:.5f}\n" for x, y in zip(t, a,
+                                                                                strict=True)))
+    # Beer–Lambert by hand: rate = slope / (epsilon b), slope from numpy.polyfit, b = 1 cm
+    truth_uM_per_min = np.polyfit(t / 60, a, 1)[0] / 6220 * 1e6
+    base = ["rates", f, "--pathlength", "1 cm", "--window", "0-300", "--format", "json",
+            "--no-plots"]
+    rates = {}
+    for eps in ("6.22", "6.22 mM^-1 cm^-1", "6.22 mM-1 cm-1", "6220 M-1 cm-1",
+                "6220 L mol-1 cm-1", "6220 L/(mol cm)"):
+        r = run(*base, "--epsilon", eps)
+        assert r.exit_code == 0, r.output
+        d = json.loads(r.stdout)
+        rates[eps] = d["results"][0]["rate_uM_per_min"]
+        doubts = [w for w in d["warnings"] if "looks like mM^-1 cm^-1" in w]
+        if eps == "6.22":
+            assert doubts == ["--epsilon 6.22 M^-1 cm^-1 is below 100 M^-1 cm^-1, far under the "
+                              "chromophores followed for rates (thousands): 6.22 looks like "
+                              "mM^-1 cm^-1, which makes every concentration here 1000 times "
+                              "high; write '6.22 mM^-1 cm^-1' or 6220"]
+        else:
+            assert doubts == []
+            assert rates[eps] == pytest.approx(truth_uM_per_min, rel=1e-3)
+    assert rates["6.22"] == pytest.approx(1000 * truth_uM_per_min, rel=1e-3)

@@ -124,13 +124,15 @@ def read_for(o, linear_limit: float | None = None, partial: bool = False):
     and the names of the traces to analyse (``--trace`` where the command has it)."""
     from ..io import read_traces
     from ..options import DEFAULT_LINEAR_LIMIT
-    from ..photometry import wavelength_mismatch
+    from ..photometry import epsilon_doubt, wavelength_mismatch
 
     ts = read_traces(o.file, partial=partial, **o.reader.read_kwargs())
     check_reader_use(o, ts)
-    said = wavelength_mismatch(getattr(o, "chromophore", None), ts.info.get("wavelength_nm"))
-    if said:
-        ts.info["warnings"] = [*ts.info.get("warnings", []), said]
+    said = [wavelength_mismatch(getattr(o, "chromophore", None), ts.info.get("wavelength_nm")),
+            *(epsilon_doubt(getattr(o, name, None), flag) for name, flag in
+              (("epsilon", "--epsilon"), ("epsilon_product", "--epsilon-product")))]
+    if any(said):
+        ts.info["warnings"] = [*ts.info.get("warnings", []), *filter(None, said)]
     ts = ts.mask_above(DEFAULT_LINEAR_LIMIT if linear_limit is None else linear_limit)
     names = ts.names
     chosen = getattr(o, "trace", ())

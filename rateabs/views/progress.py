@@ -103,7 +103,8 @@ def _enzyme_warning(meta, names) -> list[str]:
 
 
 def _curves(o: ProgressOptions):
-    """The progress curves (product formed, µM) and the per-curve metadata."""
+    """The progress curves (product formed, µM), the per-curve metadata and what the reading
+    warned of."""
     from ..layout import read_layout
     from ..progress import curves_from_absorbance
 
@@ -117,7 +118,7 @@ def _curves(o: ProgressOptions):
         names, [g.times[i][g.usable[i]] for i in rows], [g.values[i][g.usable[i]] for i in rows],
         _s0_uM(o, meta, names), _enzyme(o, meta, names), epsilon=o.epsilon_value(),
         pathlength_cm=1.0 if o.pathlength is None else o.pathlength, species=o.species)
-    return curves, meta
+    return curves, meta, list(ts.info.get("warnings", []))
 
 
 def _result(a, c) -> dict:
@@ -162,9 +163,10 @@ def compute_progress(o: ProgressOptions) -> View:
     """The ``progress`` command's results."""
     from ..progress import analyse
 
-    curves, meta = _curves(o)
+    curves, meta, read_warnings = _curves(o)
     a = analyse(curves, product_inhibition=o.product_inhibition, ci=o.ci, level=o.level,
                 selwyn=curves.enzyme is not None, unit=_unit(o))
+    a.warnings[:0] = read_warnings
     if curves.enzyme is None:
         a.warnings.extend(_enzyme_warning(meta, curves.names))
     res = _result(a, curves)
