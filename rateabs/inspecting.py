@@ -46,7 +46,8 @@ def summarize(ts: TraceSet, linear_limit: float | None = None) -> Inspection:
     info = ts.info
     settings = {k: info.get(k) for k in (
         "format", "delimiter", "decimal", "encoding", "layout", "header_row", "time_column",
-        "time_unit", "time_unit_source", "time_unit_header", "time_looks_like", "signal_kind",
+        "time_unit", "time_unit_source", "time_unit_header", "time_looks_like", "clock_reading",
+        "clock_reading_source", "clock_reading_why", "signal_kind",
         "signal_source", "plate_format", "plate_format_source", "metadata", "metadata_facts",
         "set_aside", "dropped_rows", "few_readings", "file_ends_mid_line")}
     settings["extra_columns"] = {k: _describe(v) for k, v in info.get("extra_columns", {}).items()}

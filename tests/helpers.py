@@ -25,10 +25,14 @@ def fmt_time(seconds: float, style: str, decimal: str) -> str:
     if style == "ms":
         m, s = divmod(int(round(seconds)), 60)
         return f"{m:02d}:{s:02d}"
+    if style == "hm":
+        h, m = divmod(int(round(seconds / 60)), 60)
+        return f"{h:02d}:{m:02d}"
     raise ValueError(style)
 
 
-TIME_HEADER = {"s": "Time (s)", "min": "time_min", "h": "Time [h]", "hms": "Time", "ms": "Time"}
+TIME_HEADER = {"s": "Time (s)", "min": "time_min", "h": "Time [h]", "hms": "Time", "ms": "Time",
+               "hm": "Time (hh:mm)"}
 
 
 def write_table(names, times, values, *, layout="wide", delimiter=",", decimal=".",

@@ -119,7 +119,7 @@ BAD = [
     (["rates", CUV, "--dilution", "10"], "--dilution"),
     (["rates", CUV, "--epsilon-se", "100"], "--epsilon-se"),
     (["rates", CUV, "--window", "0-300", "--min-points", "5"], "--min-points"),
-    (["rates", CUV, "--time-unit", "min"], "--time-unit"),
+    (["rates", CUV, "--time-unit", "s"], "--time-unit"),    # mm:ss clock: s says neither
     (["rates", CUV, "--i0", "1000"], "--i0"),
     (["rates", CUV, "--sheet", "Sheet1"], "--sheet"),
     (["saturation", SAT, "--resamples", "500"], "--resamples"),
@@ -262,6 +262,11 @@ def test_reader_options_are_used(tmp_path):
     k_s = _params(doc("ratelaw", PROBE, "--order", "1", "--ci", "asymptotic", "--time-unit",
                       "s"))["k"]["value"]
     assert k_s == pytest.approx(60 * k, rel=1e-6)      # minutes read as seconds: k x 60
+    # two-part clock times (the messy cuvettes write mm:ss): --time-unit states their reading
+    mss = doc("inspect", CUV, "--time-unit", "min")
+    assert mss["settings"]["clock_reading_source"] == "option"
+    assert doc("inspect", CUV, "--time-unit", "h")["results"][0]["t_end_s"] == pytest.approx(
+        60 * mss["results"][0]["t_end_s"])
     openpyxl = pytest.importorskip("openpyxl")
     wb = openpyxl.Workbook()
     wb.active.title = "first"

@@ -20,8 +20,9 @@ SAMPLES = Path(__file__).resolve().parents[1] / "sample_runs"
 def tables(draw):
     n = draw(st.integers(1, 5))
     m = draw(st.integers(3, 12))      # kinetics needs three time points (two: the catalogue)
-    style = draw(st.sampled_from(["s", "min", "h", "hms", "ms"]))
+    style = draw(st.sampled_from(["s", "min", "h", "hms", "ms", "hm"]))
     step = draw(st.sampled_from([1, 15, 30, 60])) if style in ("hms", "ms") else draw(
+        st.sampled_from([60, 300, 900])) if style == "hm" else draw(
         st.floats(0.5, 120, allow_nan=False))
     if style == "h":
         step = 360.0

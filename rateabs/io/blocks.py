@@ -13,23 +13,25 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import InputError
-from ..units import TIME_UNITS
 from .body import RowLog, torn, with_last
 from .locate import WELL_ROW, is_column_numbers, looks_like_column_numbers
 from .metadata import PLATES, well_position
 from .parsed import Parsed
 from .sniffing import width
 from .source import Source
-from .times import TimeUnit, check_times, clock_seconds, need_time_points
+from .times import TimeUnit, check_times, need_time_points
 from .values import MISSING, parse_values
 
+#: The unit of a label's time, as :data:`~rateabs.io.values.TIMED` writes it.
+UNIT_OF = {"s": "s", "sec": "s", "seconds": "s", "min": "min", "minutes": "min", "h": "h",
+           "hours": "h"}
 TIME_IN_TEXT = re.compile(r"(\d+:\d{1,2}(?::\d{1,2}(?:[.,]\d+)?)?)|(\d+(?:[.,]\d+)?)\s*"
                           r"(s|sec|seconds|min|minutes|h|hours)\b", re.IGNORECASE)
 
 
 @dataclass
 class _Block:
-    time: float
+    time: str                  # the label's time: a clock string or a number with its unit
     line: int
     ncols: int
     letters: set[str] = field(default_factory=set)
@@ -71,13 +73,12 @@ def read_blocks(src: Source, start: int, decimal: str, option: str | None, log: 
                 recent.append(r)
         before = r
     names, values, flags, notes = _assemble(blocks)
-    times = np.array([b.time for b in blocks])
+    tu = TimeUnit("block labels", option, None)
+    tu.decide(True)
+    times = tu.clock_times([b.time for b in blocks], [b.line for b in blocks])
     check_times(times, [b.line for b in blocks])
     need_time_points(times.size, blocks[0].line if blocks else None)
-    tu = TimeUnit("block labels", None, None)
-    tu.decide(True)
-    if option:
-        tu.warnings.append(f"--time-unit {option} is not used: each plate block names its time")
+    tu.assumed_notes(times)
     rows = max(well_position(w)[0] + 1 for w in names) if names else 0
     cols = max(b.ncols for b in blocks)
     plate = next((n for n, (pr, pc) in PLATES.items() if rows <= pr and cols <= pc), None)
@@ -87,8 +88,9 @@ def read_blocks(src: Source, start: int, decimal: str, option: str | None, log: 
     return out
 
 
-def _label_time(recent: deque, line: int) -> float:
-    """Seconds named by the last line above a block."""
+def _label_time(recent: deque, line: int) -> str:
+    """The time named by the last line above a block: a clock string, or a number with its
+    unit (``30 s``)."""
     label = " ".join(recent[-1]) if recent else ""
     m = TIME_IN_TEXT.search(label)
     if not m:
@@ -96,8 +98,8 @@ def _label_time(recent: deque, line: int) -> float:
                          "each read needs a line such as 'Time: 0:00:30' above its grid",
                          row=line)
     if m.group(1):
-        return clock_seconds(m.group(1))
-    return float(m.group(2).replace(",", ".")) * TIME_UNITS[m.group(3).lower()]
+        return m.group(1)
+    return f"{m.group(2)} {UNIT_OF[m.group(3).lower()]}"
 
 
 def _grid_row(cur: _Block, no: int, r: list[str], decimal: str) -> None:

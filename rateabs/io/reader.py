@@ -53,7 +53,7 @@ def read_traces(path: str | Path, *, time_unit: str | None = None, signal: str |
     try:
         with Source(path, sheet) as src:
             return _read(src, time_unit, signal, i0, partial)
-    except InputError as exc:
+    except (InputError, UsageError) as exc:
         raise exc.located(path) from None
 
 
@@ -88,6 +88,8 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
         encoding=src.encoding, layout=parsed.layout, header_row=src.head_nos[loc.index],
         time_column=parsed.time.label, time_unit=parsed.time.unit,
         time_unit_source=parsed.time.source, time_unit_header=parsed.time.header_unit,
+        clock_reading=parsed.time.reading, clock_reading_source=parsed.time.reading_source,
+        clock_reading_why=parsed.time.reading_why or None,
         time_looks_like=parsed.time.looks_like, signal_kind=kind, signal_source=kind_source,
         looks_like=looks_like, plate_format=plate[0], plate_format_source=plate[1],
         metadata=meta, metadata_facts=said, set_aside=parsed.set_aside,
@@ -109,7 +111,7 @@ def interval_check(parsed: Parsed, interval_s: float | None) -> np.ndarray:
     header states where its steps match it in minutes (they were read as seconds), and a
     warning where a stated unit's steps contradict that interval."""
     tu, t = parsed.time, parsed.times
-    if not interval_s or interval_s <= 0 or tu.source == "clock" or np.ndim(t) != 1:
+    if not interval_s or interval_s <= 0 or np.ndim(t) != 1:
         return t
     finite = t[np.isfinite(t)]
     if finite.size < 3:
@@ -119,6 +121,8 @@ def interval_check(parsed: Parsed, interval_s: float | None) -> np.ndarray:
     def close(a: float) -> bool:
         return abs(a - interval_s) <= INTERVAL_MATCH * interval_s
 
+    if tu.source == "clock":
+        return _clock_interval(tu, t, step, interval_s, close)
     if tu.source == "assumed" and (close(step * 60) or close(step)):
         minutes = close(step * 60)
         tu.warnings[:] = [w for w in tu.warnings if "names no unit" not in w]
@@ -135,6 +139,21 @@ def interval_check(parsed: Parsed, interval_s: float | None) -> np.ndarray:
                            f"the readings in {tu.label!r} are {step:g} s apart; check the "
                            "time unit (--time-unit) and the export")
     return t
+
+
+def _clock_interval(tu, t: np.ndarray, step: float, interval_s: float, close) -> np.ndarray:
+    """Two-part clock times read as m:ss by default whose steps match the stated read
+    interval as h:mm (then read so) or as m:ss (then kept, with the interval as the reason)."""
+    if tu.reading_source != "default" or not tu.only_two_part:
+        return t
+    hours = close(step * 60)
+    if not (hours or close(step)):
+        return t
+    tu.warnings[:] = [w for w in tu.warnings if "have two parts" not in w]
+    tu.reading, tu.reading_source = ("h:mm" if hours else "m:ss"), "interval"
+    tu.reading_why = (f"their steps of {step * (60 if hours else 1):g} s match the read "
+                      f"interval of {interval_s:g} s in the file header")
+    return t * 60.0 if hours else t
 
 
 def _few_readings(names: list[str], usable: np.ndarray) -> list[str]:

@@ -3,38 +3,65 @@
 The unit of numeric times comes, in this order, from ``--time-unit`` (source ``option``), from
 the header (``header``), or is assumed to be seconds (``assumed``), which the reader says in a
 warning with the way to override it, and with the reason when the times look like minutes.
-Clock times (``h:mm:ss``, ``mm:ss``) and times written with their unit (``30 s``) carry their
-own (``clock``). A stated ``--time-unit`` beats the header; a clash between them is a warning
+Clock times (``h:mm:ss``) and times written with their unit (``30 s``) carry their own
+(``clock``). A stated ``--time-unit`` beats the header; a clash between them is a warning
 naming both.
 
->>> clock_seconds("1:02:03.5"), clock_seconds("02:30"), clock_seconds("1.5 min")
-(3723.5, 150.0, 90.0)
+A two-part clock time ``a:b`` is either m:ss or h:mm, and the cell cannot say which; its
+reading is decided, in this order, by ``--time-unit`` (``min`` m:ss, ``h`` h:mm, ``s`` refused),
+by the header (a pattern such as ``hh:mm`` or ``m:ss``, or a unit word: ``Time (h)`` h:mm,
+``Time (min)`` m:ss), by the cells (a decimal second part, ``1:30.5``, is seconds; beside
+h:mm:ss times only one reading may keep the times rising), by a read interval the file header
+states (:func:`rateabs.io.reader.interval_check`), and otherwise is m:ss (``default``), which
+the reader says in a warning with the way to change it. What is no evidence: a second part that
+never passes 59 (both readings need that), a first part over 59 (m:ss exports that do not roll
+over to h:mm:ss write it, and so does a read of more than 59 h), the word ``Clock`` (elapsed
+time is written on clocks either way).
+
+>>> clock_seconds("1:02:03.5"), clock_seconds("02:30"), clock_seconds("02:30", "h:mm")
+(3723.5, 150.0, 9000.0)
+>>> clock_seconds("1.5 min")
+90.0
 """
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, UsageError
 from ..units import TIME_UNITS
+from .headers import time_unit_from_header
 from .values import CLOCK2, CLOCK3, TIMED, cell_kind, show_cell, to_float
 
 MAX_TIME_S = 1e10          # about 317 years: no kinetic read runs longer
 MIN_TIME_POINTS = 3        # a slope with an uncertainty needs three readings
 _MINUTE_STEPS = (0.1, 0.2, 0.25, 0.5)
 
+#: What a two-part clock time ``a:b`` means for each ``--time-unit`` (the unit of ``a``).
+TWO_PART = {"min": "m:ss", "h": "h:mm"}
+#: Seconds per unit of the first part, by reading; and the reading when nothing tells.
+TWO_PART_SECONDS = {"m:ss": 60.0, "h:mm": 3600.0}
+DEFAULT_TWO_PART = "m:ss"
+TWO_PART_WORDS = {"m:ss": "minutes:seconds", "h:mm": "hours:minutes"}
+#: ``hh:mm``, ``h:mm``, ``mm:ss``, ``m:ss`` written in a header (not part of ``hh:mm:ss``).
+_PATTERN = re.compile(r"(?<![a-z:])(h{1,2}|m{1,2}):(mm|ss)(?![a-z:])", re.IGNORECASE)
+_PATTERN_READING = {("h", "m"): "h:mm", ("m", "s"): "m:ss"}
 
-def clock_seconds(cell: str) -> float | None:
-    """Seconds of a clock string (``h:mm:ss``, ``mm:ss``) or a time with its unit (``30 s``)."""
+
+def clock_seconds(cell: str, two_part: str = DEFAULT_TWO_PART) -> float | None:
+    """Seconds of a clock string (``h:mm:ss``; ``a:b`` read as ``two_part``, m:ss or h:mm) or
+    of a time with its unit (``30 s``)."""
     c = cell.strip().replace(",", ".")
     m = CLOCK3.match(c)
     if m:
         return int(m.group(1)) * 3600 + int(m.group(2)) * 60 + float(m.group(3))
     m = CLOCK2.match(c)
     if m:
-        return int(m.group(1)) * 60 + float(m.group(2))
+        unit = TWO_PART_SECONDS[two_part]
+        return int(m.group(1)) * unit + float(m.group(2)) * (unit / 60)
     m = TIMED.match(c)
     if m:
         return float(m.group(1)) * TIME_UNITS[m.group(2).lower()]
@@ -43,7 +70,8 @@ def clock_seconds(cell: str) -> float | None:
 
 @dataclass
 class TimeUnit:
-    """How the times of one file were read: the decided unit and where it came from."""
+    """How the times of one file were read: the decided unit and where it came from, and for
+    two-part clock times their reading (m:ss or h:mm), its source and the evidence."""
 
     label: str                      # the time column's header, or the time row's label
     option: str | None              # --time-unit, if given
@@ -53,15 +81,16 @@ class TimeUnit:
     source: str = ""
     looks_like: str | None = None
     warnings: list[str] = field(default_factory=list)
+    reading: str | None = None      # two-part clock times: "m:ss" or "h:mm"
+    reading_source: str | None = None   # option, header, data, interval or default
+    reading_why: str = ""           # the evidence, in words
+    only_two_part: bool = True      # every clock time seen has two parts
 
     def decide(self, clock: bool) -> None:
         """Fix the unit once the first times show whether they are clock strings."""
         self.clock = clock
         if clock:
             self.unit, self.source = "clock", "clock"
-            if self.option:
-                self.warnings.append(f"--time-unit {self.option} is not used: the times in "
-                                     f"{self.label!r} are clock times that carry their unit")
         elif self.option:
             self.unit, self.source = self.option, "option"
             if self.header_unit and self.header_unit != self.option:
@@ -90,9 +119,31 @@ class TimeUnit:
                              f"{'clock' if self.clock else 'numeric'} times",
                              "write every time the same way", row=lines[bad], column=self.label)
         if self.clock:
-            return np.array([clock_seconds(c) for c in cells], dtype=float)
+            return self.clock_times(cells, lines)
         with np.errstate(over="ignore"):         # beyond float range: refused as implausible
             return np.array([to_float(c, decimal) for c in cells], dtype=float) * self.factor
+
+    def clock_times(self, cells, lines) -> np.ndarray:
+        """Seconds of clock cells, two-part ones in the reading decided by the first of them."""
+        two = [CLOCK2.match(c.strip()) is not None for c in cells]
+        self.only_two_part = self.only_two_part and all(two)
+        if self.reading is None and any(two):
+            first = two.index(True)
+            self.reading, self.reading_source, self.reading_why = two_part_reading(
+                self.label, self.option, cells)
+            if self.reading_source == "option" and self.header_unit in TWO_PART and TWO_PART[
+                    self.header_unit] != self.reading:
+                self.warnings.append(f"--time-unit {self.option} overrides the header "
+                                     f"{self.label!r}, which names {self.header_unit}")
+            if self.option == "s":
+                raise UsageError(
+                    f"--time-unit s cannot say what the two-part clock time "
+                    f"{show_cell(cells[first])} means",
+                    "give --time-unit h if the times are hours:minutes (h:mm) or --time-unit "
+                    "min if they are minutes:seconds (m:ss)", row=lines[first],
+                    column=self.label)
+        reading = self.reading or DEFAULT_TWO_PART
+        return np.array([clock_seconds(c, reading) for c in cells], dtype=float)
 
     @property
     def factor(self) -> float:
@@ -100,7 +151,10 @@ class TimeUnit:
         return TIME_UNITS[self.unit] if self.unit in TIME_UNITS else 1.0
 
     def assumed_notes(self, t: np.ndarray) -> None:
-        """The warning for an assumed unit, with the reason when the times look like minutes."""
+        """The warnings of what was assumed: a numeric unit (with the reason when the times
+        look like minutes), the reading of two-part clock times, an unused --time-unit."""
+        if self.source == "clock":
+            self.clock_notes(t)
         if self.source != "assumed":
             return
         text = (f"the time column {self.label!r} names no unit: read as seconds (assumed); "
@@ -111,6 +165,61 @@ class TimeUnit:
             text += (f"; its {t.size} readings step by {step:g} and end at {t[-1]:g}, "
                      "which looks like minutes")
         self.warnings.append(text)
+
+    def clock_notes(self, t: np.ndarray) -> None:
+        """The warning of a default two-part reading (with both readings' spans), or of a
+        --time-unit that clock times made moot."""
+        if self.reading is None:
+            if self.option:
+                self.warnings.append(f"--time-unit {self.option} is not used: the times in "
+                                     f"{self.label!r} are clock times that carry their unit")
+            return
+        if self.reading_source == "default":
+            self.warnings.append(default_reading_note(self.label, t, self.only_two_part))
+
+
+def two_part_reading(label: str, option: str | None, cells) -> tuple[str, str, str]:
+    """(reading, source, evidence in words) of two-part clock times: see the module
+    docstring for the order."""
+    if option:
+        return TWO_PART.get(option, DEFAULT_TWO_PART), "option", f"--time-unit {option} says"
+    m = _PATTERN.search(label)
+    if m:
+        reading = _PATTERN_READING.get((m.group(1)[0].lower(), m.group(2)[0].lower()))
+        if reading:
+            return reading, "header", f"the header {label!r} writes {m.group(0)}"
+    unit = time_unit_from_header(label)
+    if unit in TWO_PART:
+        return TWO_PART[unit], "header", f"the header {label!r} names {unit}"
+    cells = [c.strip().replace(",", ".") for c in cells]
+    decimal_second = next((c for c in cells if (m := CLOCK2.match(c)) and "." in m.group(2)),
+                          None)
+    if decimal_second:
+        return "m:ss", "data", (f"the time {decimal_second!r} has a decimal second part, "
+                                "which only seconds have")
+    rising = [r for r in TWO_PART_SECONDS if _rises([clock_seconds(c, r) for c in cells])]
+    if len(rising) == 1 and not all(CLOCK2.match(c) for c in cells):
+        other = "h:mm" if rising[0] == "m:ss" else "m:ss"
+        return rising[0], "data", (f"beside the column's h:mm:ss times, only {rising[0]} keeps "
+                                   f"the times rising ({other} runs backwards)")
+    return DEFAULT_TWO_PART, "default", "nothing in the file says which"
+
+
+def _rises(seconds: list[float | None]) -> bool:
+    t = np.array([np.nan if x is None else x for x in seconds], dtype=float)
+    t = t[np.isfinite(t)]
+    return t.size >= 2 and bool(np.all(np.diff(t) > 0))
+
+
+def default_reading_note(label: str, t: np.ndarray, only_two_part: bool) -> str:
+    """The warning of two-part clock times read as m:ss by default, with the other reading."""
+    t = t[np.isfinite(t)]
+    span = (f" (a span of {t[-1] - t[0]:g} s = {(t[-1] - t[0]) / 60:.4g} min"
+            + (f"; as hours:minutes it would be {(t[-1] - t[0]) / 60:.4g} h)" if only_two_part
+               else ")")) if t.size else ""
+    return (f"the clock times in {label!r} have two parts: read as m:ss, minutes:seconds, by "
+            f"default{span}, as nothing in the file says which; if they are hours:minutes, "
+            "rerun with --time-unit h (--time-unit min states m:ss)")
 
 
 def looks_like_minutes(t: np.ndarray) -> bool:

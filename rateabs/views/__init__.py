@@ -99,12 +99,39 @@ TIME_SOURCE_WORDS = {
 
 def time_words(info: dict) -> str:
     """The time unit and where it came from, in words (one home for every command's
-    header lines)."""
+    header lines), with the reading of two-part clock times and how to change it."""
     unit, src = info.get("time_unit"), info.get("time_unit_source")
     if not unit:
         return "s (traces given in seconds)"
-    how = TIME_SOURCE_WORDS.get(src, src or "").format(col=info.get("time_column") or "time")
+    col = info.get("time_column") or "time"
+    how = TIME_SOURCE_WORDS.get(src, src or "").format(col=col)
+    if src == "clock" and info.get("clock_reading"):
+        how = f"clock times in column {col!r}; {clock_reading_words(info)}"
     return f"{'s' if unit == 'clock' else unit} ({how})"
+
+
+def time_settings(info: dict) -> dict:
+    """The time entries of a document's settings: unit, source, column, in words, and the
+    reading of two-part clock times with its source (None without them)."""
+    return {"time_unit": info.get("time_unit") or "s",
+            "time_unit_source": info.get("time_unit_source") or "given",
+            "time_column": info.get("time_column"), "time_unit_in_words": time_words(info),
+            "clock_reading": info.get("clock_reading"),
+            "clock_reading_source": info.get("clock_reading_source")}
+
+
+def clock_reading_words(info: dict) -> str:
+    """How two-part clock times were read (m:ss or h:mm), why, and the option for the other
+    reading."""
+    from ..io.times import TWO_PART, TWO_PART_WORDS
+
+    reading, src = info["clock_reading"], info.get("clock_reading_source")
+    other = next(r for r in TWO_PART_WORDS if r != reading)
+    flag = {r: u for u, r in TWO_PART.items()}
+    why = ("by default, as nothing in the file says which" if src == "default" else
+           f"as {info.get('clock_reading_why')}")
+    return (f"two-part times read as {reading} ({TWO_PART_WORDS[reading]}) {why}; "
+            f"--time-unit {flag[other]} reads them as {other} ({TWO_PART_WORDS[other]})")
 
 
 def check_reader_use(o, ts) -> None:
@@ -114,9 +141,11 @@ def check_reader_use(o, ts) -> None:
         raise UsageError(f"--i0 applies to raw intensities; {o.file} holds "
                          f"{info.get('signal_kind')}", "leave --i0 out, or give --signal "
                          "intensity if the readings are intensities")
-    if o.reader.time_unit is not None and info.get("time_unit_source") == "clock":
-        raise UsageError(f"--time-unit applies to a numeric time column; {o.file} gives clock "
-                         "times (h:mm:ss)", "leave --time-unit out")
+    if (o.reader.time_unit is not None and info.get("time_unit_source") == "clock"
+            and info.get("clock_reading_source") != "option"):
+        raise UsageError(f"--time-unit applies to a numeric time column or to two-part clock "
+                         f"times; {o.file} gives clock times that carry their unit (h:mm:ss)",
+                         "leave --time-unit out")
 
 
 def read_for(o, linear_limit: float | None = None, partial: bool = False):

@@ -14,6 +14,7 @@ from . import (
     rate_law_orders,
     read_for,
     run_outputs,
+    time_settings,
     write_outputs,
 )
 from .ratelaw import interval_text, param_text, reader_lines, warning_block
@@ -119,8 +120,7 @@ def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
     settings = {"target": o.target / 100, "order": o.order, "drift": o.drift, "level": o.level,
                 "fixed": o.fix, "c0_M": ph.c0_M, "epsilon": ph.epsilon,
                 "epsilon_product": ph.epsilon_product, "pathlength_cm": ph.pathlength_cm,
-                "end_absorbance": o.end_absorbance, "time_unit": ts.info["time_unit"],
-                "time_unit_source": ts.info.get("time_unit_source"),
+                "end_absorbance": o.end_absorbance, **time_settings(ts.info),
                 "columns_set_aside": ts.info.get("set_aside") or {},
                 "interval": "profile-likelihood interval of the rate mapped through t(rate); "
                             "the envelope of every order that carries weight",

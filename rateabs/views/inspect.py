@@ -6,7 +6,7 @@ from pathlib import Path
 
 from ..options import InspectOptions
 from ..output import document, render_table, rows_to_csv
-from . import View, check_reader_use, deliver
+from . import View, check_reader_use, deliver, time_words
 
 COLUMNS = [("trace", "trace"), ("n_points", "n"), ("t_start_s", "t start (s)"),
            ("t_end_s", "t end (s)"), ("A_first", "A first (AU)"), ("A_last", "A last (AU)"),
@@ -19,7 +19,7 @@ def _head(file: str, s: dict) -> list[str]:
             f"format     {s['format']} (delimiter {s['delimiter']!r}, decimal "
             f"{s['decimal']!r}, encoding {s['encoding']})",
             f"layout     {s['layout']}, header on line {s['header_row']}",
-            f"time       {s['time_unit']} ({s['time_unit_source']})",
+            f"time       {time_words(s)}",
             f"signal     {s['signal_kind']} ({s['signal_source']}), shown as absorbance",
             f"limit      readings above A = {s['linear_limit']:g} flagged past-linear"]
     head += [f"meta       {k}: {v}" for k, v in s["metadata"].items()]

@@ -13,6 +13,7 @@ from . import (
     each_trace,
     rate_law_orders,
     read_for,
+    time_settings,
     time_words,
 )
 
@@ -169,8 +170,7 @@ def compute_ratelaw(o: RatelawOptions) -> View:
     settings = {"order": o.order, "drift": o.drift, "ci": o.ci, "level": o.level,
                 "epsilon": ph.epsilon, "epsilon_product": ph.epsilon_product,
                 "pathlength_cm": ph.pathlength_cm, "c0_M": ph.c0_M, "fixed": o.fix,
-                "time_unit": ts.info["time_unit"],
-                "time_unit_source": ts.info.get("time_unit_source"),
+                **time_settings(ts.info),
                 "columns_set_aside": ts.info.get("set_aside") or {}, "expect": o.expect,
                 "guggenheim_delta_s": o.guggenheim, "pseudo_first_order": series}
     doc = document("ratelaw", [o.file], settings, results, warnings)

@@ -14,7 +14,7 @@ import numpy as np
 from ..fitting import fmt_pm
 from ..options import WELL_PAGE_CAP, RatesOptions
 from ..output import document, render_table, rows_to_csv, write_text
-from . import View, deliver, read_for, time_words
+from . import View, deliver, read_for, time_settings, time_words
 
 RATE_FIELDS = ["trace", "role", "sample", "group", "method", "choice", "slope_A_per_min",
                "slope_A_per_min_se", "rate_uM_per_min", "rate_uM_per_min_se",
@@ -190,9 +190,7 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
     """The ``settings`` of the JSON document: every assumption with its source."""
     s, st, t = a.setup, a.settings, a.table
     return {
-        "time_unit": info.get("time_unit") or "s", "time_unit_source": info.get(
-            "time_unit_source") or "given", "time_column": info.get("time_column"),
-        "time_unit_in_words": time_words(info),
+        **time_settings(info),
         "plate_format": s.plate_format, "plate_format_source": s.plate_source,
         "pathlength_cm": s.pathlength_cm, "pathlength_source": s.pathlength_source,
         "epsilon_M_per_cm": st.epsilon, "epsilon_se": st.epsilon_se,
