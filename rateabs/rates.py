@@ -103,12 +103,14 @@ def plate_setup(ts: TraceSet, layout: pd.DataFrame | None, st: RateSettings) -> 
 
 
 def _plate_format(ts: TraceSet, st: RateSettings, warnings: list) -> tuple[int | None, str]:
-    """The stated --plate checked against the well names, else the format the names show."""
+    """The stated --plate checked against the well names, else the format the reader took (the
+    file header's when the names fit in it, else the names'); a header the names contradict is
+    refused without --plate."""
     from .io.metadata import plate_format
 
-    names_fmt, names_src = ((ts.info["plate_format"], ts.info.get("plate_format_source"))
-                            if ts.info.get("plate_format") else plate_format(ts.names))
-    said = _header_plate(ts.info.get("metadata") or {})
+    info = ts.info
+    names_fmt, names_src = info.get("plate_guess") or plate_format(ts.names)
+    said = info.get("plate_stated")
     if st.plate is not None:
         if names_fmt is None:
             raise UsageError(f"--plate {st.plate}: the traces are not named as plate wells "
@@ -118,23 +120,18 @@ def _plate_format(ts: TraceSet, st: RateSettings, warnings: list) -> tuple[int |
                              f"{names_fmt}-well plate ({names_src})",
                              f"give --plate {names_fmt}, or leave --plate out")
         fmt, source = st.plate, f"--plate {st.plate}"
-    else:
-        fmt, source = names_fmt, (f"from the {names_src}" if names_fmt else "")
-    if fmt and said and said[0] != fmt:
-        warnings.append(f"the plate is taken as {fmt}-well ({source}), but the file header says "
-                        f"'{said[1]}'")
-    return fmt, source
-
-
-def _header_plate(meta: dict) -> tuple[int, str] | None:
-    """A plate format named in a header line such as 'Plate: 96 flat'."""
-    import re
-
-    for key, val in meta.items():
-        m = re.search(r"\b(96|384|1536)\b", str(val))
-        if "plate" in str(key).lower() and m:
-            return int(m.group(1)), f"{key}: {val}"
-    return None
+        if said and said[0] != fmt and names_fmt <= said[0]:    # (else the reader said it)
+            warnings.append(f"the plate is taken as {fmt}-well ({source}), but the file header "
+                            f"says '{said[1]}'")
+        return fmt, source
+    if said and names_fmt and names_fmt > said[0]:
+        raise InputError(f"the file header line '{said[1]}' states a {said[0]}-well plate, but "
+                         f"the {names_src} need a {names_fmt}-well plate",
+                         f"correct the header line, or give --plate {names_fmt} if the well "
+                         "names are right", file=info.get("source"))
+    fmt = info.get("plate_format") or names_fmt
+    src = info.get("plate_format_source") or names_src
+    return fmt, (f"from the {src}" if fmt else "")
 
 
 def _pathlength(ts: TraceSet, st: RateSettings, fmt, fmt_source: str,

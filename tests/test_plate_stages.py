@@ -9,6 +9,7 @@ from click.testing import CliRunner
 from scipy import stats
 
 from rateabs.cli import main
+from rateabs.io import read_traces
 from rateabs.layout import read_layout
 from rateabs.rates import (
     RateSettings,
@@ -22,6 +23,51 @@ from rateabs.slopes import find_windows
 from rateabs.traces import TraceSet
 
 T = np.arange(0, 601, 20.0)
+
+
+# --------------------------------------------------------------------------- plate format
+
+
+def test_a_384_plate_stated_in_the_header_wins_over_a_96_guess_from_the_names(tmp_path):
+    # a 384-well plate using rows A-H only: the names alone would guess 96 wells
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "H12": 0.03}, noise=0.0,
+                      header=["Plate: 384", ""])
+    r = _cli(data, "--well-volume", "50 uL", "--format", "json", "--no-plots")
+    assert r.exit_code == 0, r.output
+    s = json.loads(r.stdout)["settings"]
+    assert s["plate_format"] == 384 and "'Plate: 384'" in s["plate_format_source"]
+    assert "A1..H12" in s["plate_format_source"]
+    # 50 uL over a typical 384-well bottom of 0.10 cm2 (from memory): 0.5 cm (96-well: 0.156)
+    assert s["pathlength_cm"] == pytest.approx(0.5, rel=0.01)
+    assert "384-well plate" in s["pathlength_source"]
+    table = _cli(data, "--well-volume", "50 uL", "--no-plots")
+    assert "# plate: 384-well plate (from the file header line 'Plate: 384'" in table.stdout
+
+
+def test_a_header_plate_the_names_contradict_is_refused_in_one_line(tmp_path):
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "P24": 0.03}, noise=0.0,
+                      header=["Plate type: Generic 96 flat", ""])
+    r = _cli(data, "--no-plots")
+    assert r.exit_code == 3, r.output
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith(f"rateabs: {data}: ")
+    assert "'Plate type: Generic 96 flat'" in lines[0] and "--plate 384" in lines[0]
+    # the option settles it, and the contradiction is still said
+    r = _cli(data, "--plate", "384", "--format", "json", "--no-plots")
+    assert r.exit_code == 0, r.output
+    doc = json.loads(r.stdout)
+    assert doc["settings"]["plate_format"] == 384
+    assert sum("Generic 96 flat" in w for w in doc["warnings"]) == 1
+
+
+@pytest.mark.parametrize("line,wells", [("Plate ID: 12", 96), ("Plate: 96", 96),
+                                        ("Wells: 384", 384), ("Plate type: 1536-well", 1536)])
+def test_what_counts_as_a_stated_plate(tmp_path, line, wells):
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "H12": 0.03}, noise=0.0,
+                      header=[line, ""])
+    info = read_traces(data).info
+    assert info["plate_format"] == wells
+    assert (line in info["plate_format_source"]) == (line != "Plate ID: 12")
 
 
 def _cli(*args):

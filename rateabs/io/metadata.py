@@ -1,6 +1,8 @@
 """What the lines above a table say: key/value metadata, and the facts the reader takes from
 them (wavelength, temperature, read interval, pathlength, reference intensity), each recorded
-with the line it came from. Also the plate format that the trace names show.
+with the line it came from. Also the plate format: the one a header line states (``Plate:
+384``, ``Plate type: 384 well``, ``Wells: 96``) when the well names fit in it, else the smallest
+that the well names show.
 
 >>> meta = preamble([["Wavelength: 340 nm"], ["Pathlength", "0.56 cm"]], 2, ",")
 >>> facts, said = file_facts(meta)
@@ -8,6 +10,10 @@ with the line it came from. Also the plate format that the trace names show.
 ({'wavelength_nm': 340.0, 'pathlength_cm': 0.56}, 'Pathlength: 0.56 cm')
 >>> plate_format(["A1", "B7", "H12"])
 (96, 'well names A1..H12')
+>>> stated_plate({"Plate": "384"})
+(384, 'Plate: 384')
+>>> choose_plate(plate_format(["A1", "H12"]), (384, "Plate: 384"))
+(384, "file header line 'Plate: 384'; the well names A1..H12 fit in it", None)
 """
 
 from __future__ import annotations
@@ -23,6 +29,12 @@ _WELL = re.compile(r"^([A-Z]{1,2})0*([1-9]\d?)$")
 #: Standard microplates: wells -> (rows, columns).
 PLATES = {6: (2, 3), 12: (3, 4), 24: (4, 6), 48: (6, 8), 96: (8, 12), 384: (16, 24),
           1536: (32, 48)}
+#: Header keys that name the plate format with a bare count (``Plate: 384``, ``Wells: 96``);
+#: any key with ``plate`` in it counts when its value says ``384 well`` or ``384-well``.
+_PLATE_KEYS = frozenset({"plate", "plate type", "plate format", "plate size", "microplate",
+                         "wells", "number of wells", "well count", "plate wells"})
+_COUNT = re.compile(r"(?<![\d.,])(\d{1,4})(?![\d.,])")
+_COUNT_WELLS = re.compile(r"(?<![\d.,])(\d{1,4})\s*-?\s*wells?\b", re.IGNORECASE)
 I0_KEY = re.compile(r"i0|i_0|reference.*", re.IGNORECASE)
 
 
@@ -111,3 +123,31 @@ def plate_format(names: list[str]) -> tuple[int | None, str | None]:
     first = min(names, key=lambda n: well_position(n))
     last = max(names, key=lambda n: well_position(n))
     return wells, f"well names {first}..{last}"
+
+
+def stated_plate(meta: dict[str, str]) -> tuple[int, str] | None:
+    """The plate format a header line states, and the line (the first such line), or None.
+    A key such as ``Plate``, ``Plate type``, ``Wells`` with a standard count in its value, or a
+    key naming a plate with ``N well`` in its value; ``Plate ID: 12`` states nothing."""
+    for key, val in meta.items():
+        k = " ".join(str(key).lower().split())
+        m = _COUNT_WELLS.search(val) if "plate" in k else None
+        if m is None and k in _PLATE_KEYS:
+            m = _COUNT.search(val)
+        if m and int(m.group(1)) in PLATES:
+            return int(m.group(1)), f"{key}: {val}"
+    return None
+
+
+def choose_plate(guess: tuple[int | None, str | None], stated: tuple[int, str] | None
+                 ) -> tuple[int | None, str | None, str | None]:
+    """The plate format and its source from the names' guess and the header's statement: the
+    stated format when the well names fit in it (standard plates nest, so fitting is being no
+    larger), else the guess; and the contradiction in words when the names need more wells."""
+    fmt, src = guess
+    if stated is None or fmt is None:
+        return fmt, src, None
+    if fmt <= stated[0]:
+        return stated[0], f"file header line '{stated[1]}'; the {src} fit in it", None
+    return fmt, src, (f"the file header line '{stated[1]}' states a {stated[0]}-well plate, but "
+                      f"the {src} need a {fmt}-well plate")

@@ -14,7 +14,7 @@ from .blocks import read_blocks
 from .body import RowLog
 from .headers import temperature_unit
 from .locate import locate
-from .metadata import file_facts, plate_format, preamble
+from .metadata import choose_plate, file_facts, plate_format, preamble, stated_plate
 from .parsed import Parsed
 from .signal import SIGNAL_KINDS, check_magnitude, decide_kind, plausibility, to_absorbance
 from .sniffing import sniff_decimal
@@ -82,7 +82,9 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
     times = interval_check(parsed, facts.get("read_interval_s"))
     ts = TraceSet.from_arrays(conv.names, times, conv.values, flags=conv.flags)
     few = _few_readings(conv.names, ts.grid().usable)
-    plate = parsed.plate if parsed.plate[0] else plate_format(conv.names)
+    guess = parsed.plate if parsed.plate[0] else plate_format(conv.names)
+    stated = stated_plate(meta)
+    plate = choose_plate(guess, stated)
     ts.info.update(
         source=src.path, format=src.fmt, delimiter=src.delimiter, decimal=decimal,
         encoding=src.encoding, layout=parsed.layout, header_row=src.head_nos[loc.index],
@@ -92,11 +94,13 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
         clock_reading_why=parsed.time.reading_why or None,
         time_looks_like=parsed.time.looks_like, signal_kind=kind, signal_source=kind_source,
         looks_like=looks_like, plate_format=plate[0], plate_format_source=plate[1],
+        plate_guess=list(guess) if guess[0] else None,
+        plate_stated=list(stated) if stated else None,
         metadata=meta, metadata_facts=said, set_aside=parsed.set_aside,
         extra_columns=parsed.extra, dropped_rows=log.summary(), few_readings=few,
         file_ends_mid_line=not src.terminated, **{k: v for k, v in conv.facts.items()},
         warnings=(parsed.time.warnings + parsed.notes + warnings + log.warnings()
-                  + _few_warning(few)),
+                  + _few_warning(few) + ([plate[2]] if plate[2] else [])),
     )
     _trace_meta(ts, parsed, facts)
     return ts
