@@ -184,3 +184,22 @@ def test_two_part_clocks_read_by_the_option_property(tmp_path, steps, delimiter)
     np.testing.assert_allclose(d.grid().times[0], units * 1.0)
     assert d.info["clock_reading_source"] == "default"
     assert sum("two parts" in w for w in d.info["warnings"]) == 1
+
+
+def test_progress_states_the_time_reading_and_the_reader_warnings(tmp_path):
+    from rateabs.io import sample_path
+
+    lines = sample_path("progress_kbap_405nm.csv").read_text().splitlines()
+    out = [lines[0], lines[1].replace("time (s)", "time")]
+    for ln in lines[2:]:
+        c = ln.split(",")
+        t = int(float(c[3]))
+        c[3] = f"{t // 60}:{t % 60:02d}"
+        out.append(",".join(c))
+    p = tmp_path / "prog.csv"
+    p.write_text("\n".join(out) + "\n")
+    r = cli("progress", p, "--s0-column", "S0 (uM)", "--chromophore", "pnp", "--no-plots")
+    assert r.exit_code == 0, r.output
+    assert r.stdout.startswith("time: s (clock times in column 'time'; two-part times read as "
+                               "m:ss")
+    assert "--time-unit h" in r.stderr

@@ -9,7 +9,7 @@ import numpy as np
 from ..errors import UsageError
 from ..options import ProgressOptions
 from ..output import document, render_table, rows_to_csv
-from . import View, deliver, read_for
+from . import View, deliver, read_for, time_settings, time_words
 
 
 def _column(o: ProgressOptions, meta, col: str, flag: str):
@@ -103,8 +103,8 @@ def _enzyme_warning(meta, names) -> list[str]:
 
 
 def _curves(o: ProgressOptions):
-    """The progress curves (product formed, µM), the per-curve metadata and what the reading
-    warned of."""
+    """The progress curves (product formed, µM), the per-curve metadata and what the reader
+    decided (``TraceSet.info``)."""
     from ..layout import read_layout
     from ..progress import curves_from_absorbance
 
@@ -118,7 +118,7 @@ def _curves(o: ProgressOptions):
         names, [g.times[i][g.usable[i]] for i in rows], [g.values[i][g.usable[i]] for i in rows],
         _s0_uM(o, meta, names), _enzyme(o, meta, names), epsilon=o.epsilon_value(),
         pathlength_cm=1.0 if o.pathlength is None else o.pathlength, species=o.species)
-    return curves, meta, list(ts.info.get("warnings", []))
+    return curves, meta, ts.info
 
 
 def _result(a, c) -> dict:
@@ -163,20 +163,22 @@ def compute_progress(o: ProgressOptions) -> View:
     """The ``progress`` command's results."""
     from ..progress import analyse
 
-    curves, meta, read_warnings = _curves(o)
+    curves, meta, info = _curves(o)
     a = analyse(curves, product_inhibition=o.product_inhibition, ci=o.ci, level=o.level,
                 selwyn=curves.enzyme is not None, unit=_unit(o))
-    a.warnings[:0] = read_warnings
+    a.warnings[:0] = list(info.get("warnings", []))               # the reader's first
     if curves.enzyme is None:
         a.warnings.extend(_enzyme_warning(meta, curves.names))
     res = _result(a, curves)
     results = [res] + ([{"test": "selwyn", **a.selwyn}] if a.selwyn else [])
-    doc = document("progress", [o.file], _settings_json(o), results, a.warnings)
+    doc = document("progress", [o.file], {**_settings_json(o), **time_settings(info)}, results,
+                   a.warnings)
     rows = [{"p": k, "v": p.value, "se": p.se, "lo": p.ci_low, "hi": p.ci_high, "u": p.unit,
              "m": p.ci_method} for k, p in a.params.items()]
     flat = [{"parameter": r["p"], "value": r["v"], "se": r["se"], "ci_low": r["lo"],
              "ci_high": r["hi"], "unit": r["u"]} for r in rows]
-    return View(doc, _text(a, res, rows, o.level), rows_to_csv(flat, list(flat[0])), a)
+    text = f"time: {time_words(info)}\n\n" + _text(a, res, rows, o.level)
+    return View(doc, text, rows_to_csv(flat, list(flat[0])), a)
 
 
 def run_progress(o: ProgressOptions, emit) -> View:
