@@ -113,7 +113,8 @@ def depletion_words(st, table) -> str:
                 "and absorptivity are given for the samples")
     if checkable:
         return ("straight windows that used over 10 % of the map's [S]0 are replaced by the "
-                "whole curve's initial slope")
+                "whole curve's initial slope, or kept where that is evidently shallower and "
+                "flagged over-10pct where they may read low by over twice their SE")
     return ("judged from the trace's bend alone, as no substrate concentration and "
             "absorptivity are given for the samples; a map's substrate column with "
             "--chromophore or --epsilon lets it be weighed against [S]0")
