@@ -126,6 +126,9 @@ def test_inspect_draws_every_trace_in_plate_geometry(tmp_path):
 
     r, c, rows, cols, plate = trace_cells(_plate(8, 12, 0.0).names)
     assert (rows, cols, plate) == (8, 12, True) and (r[-1], c[-1]) == (7, 11)
+    # a 384-well plate (the file header says so) using rows A-H only is drawn as 16 x 24
+    assert trace_cells(_plate(8, 12, 0.0).names, 384)[2:] == (16, 24, True)
+    assert trace_cells(_plate(8, 12, 0.0).names, 24)[2:] == (8, 12, True)   # names need more
     a = traces_overview(_plate(8, 12, 0.0), tmp_path / "a.png", "t", "absorbance (AU)")
     b = traces_overview(_plate(8, 12, 1e-4), tmp_path / "b.png", "t", "absorbance (AU)")
     assert a.read_bytes() != b.read_bytes()

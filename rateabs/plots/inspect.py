@@ -22,15 +22,20 @@ def _row_name(r: int) -> str:
     return chr(65 + r) if r < 26 else chr(64 + r // 26) + chr(65 + r % 26)
 
 
-def trace_cells(names: list[str]) -> tuple[np.ndarray, np.ndarray, int, int, bool]:
+def trace_cells(names: list[str], stated: int | None = None
+                ) -> tuple[np.ndarray, np.ndarray, int, int, bool]:
     """Each trace's (row, column) cell, the grid's rows and columns, and whether it is a plate.
 
-    Well names (A1..AF48) give plate geometry in the smallest standard plate that holds them;
-    other names fill a near-square grid in reading order.
+    Well names (A1..AF48) give plate geometry: the plate the reader settled on (``stated``, the
+    TraceSet's ``plate_format``, e.g. from the file header) where the names fit in it, else the
+    smallest standard plate that holds them; other names fill a near-square grid in reading
+    order.
     """
     from ..io.metadata import PLATES, plate_format, well_position
 
     wells, _ = plate_format(names)
+    if wells is not None and stated in PLATES and stated >= wells:
+        wells = stated
     if wells is not None:
         pos = np.array([well_position(n) for n in names])
         rows, cols = PLATES[wells]
@@ -58,12 +63,12 @@ def _cell_paths(g, scale: float, r, c):
     return segs, (x[bad], np.clip(yy, r[:, None], r[:, None] + 1)[bad]), (y0, y1)
 
 
-def _grid_picture(plt, g, scale, ylabel, title, flagged):
+def _grid_picture(plt, g, scale, ylabel, title, flagged, plate=None):
     """All traces in cells (plate geometry or reading order), one collection."""
     from matplotlib.collections import LineCollection, PatchCollection
     from matplotlib.patches import Rectangle
 
-    r, c, rows, cols, plate = trace_cells(g.names)
+    r, c, rows, cols, plate = trace_cells(g.names, plate)
     width = min(16.0, max(8.5, 0.33 * cols + 1.6))
     height = max(3.2, width * rows / cols * 0.92 + 1.1)
     fig, ax = fixed_axes(plt, (width, height), margins=(0.55, 0.2, 0.75, 0.55))
@@ -141,5 +146,6 @@ def traces_overview(ts, path, title: str, ylabel: str, scale: float = 1.0, flagg
         if len(g.names) <= OVERLAY_MAX:
             fig = _overlay_picture(plt, g, scale, ylabel, drawable(title))
         else:
-            fig = _grid_picture(plt, g, scale, ylabel, drawable(title), flagged)
+            fig = _grid_picture(plt, g, scale, ylabel, drawable(title), flagged,
+                                ts.info.get("plate_format"))
         return save(fig, path, tight=False)
