@@ -117,6 +117,11 @@ def window_search(path: Path) -> None:
     t_fast, _ = timed(lambda: analyse_plate(ts, settings=RateSettings(curve=False)))
     t_win, w = timed(lambda: find_windows(g, curve=False))
     t_win_curve, w = timed(lambda: find_windows(g))
+    from rateabs.parallel import lanes_allowed
+
+    with lanes_allowed(2):
+        t_lanes, laned = timed(lambda: find_windows(g))
+    assert np.array_equal(laned.slope, w.slope, equal_nan=True)   # lanes change no number
 
     def loop_linregress():
         out = np.empty(len(g.names))
@@ -140,6 +145,8 @@ def window_search(path: Path) -> None:
     print(f"  analysis --no-curve                 {t_fast:7.3f} s")
     print(f"  vectorised windows, no curve fit    {t_win:7.3f} s")
     print(f"  vectorised windows with curve fit   {t_win_curve:7.3f} s")
+    print(f"  the same in two lanes (forked)      {t_lanes:7.3f} s   {t_win_curve / t_lanes:4.2f}x "
+          "faster on 2 cores (a one-file rates run on a big plate does this)")
     print(f"  per-trace linregress loop           {t_loop:7.3f} s   (slopes only, windows given; "
           f"the search finds the windows too in {t_win / t_loop:4.2f}x its time)")
     print(f"  the same search trace by trace      {t_loop_win:7.3f} s   vectorised is "

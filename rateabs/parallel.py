@@ -278,6 +278,55 @@ def forked(calls: Sequence[Callable[[], Any]]) -> list[Outcome]:
     return outcomes
 
 
+#: How many lanes (this process and forked children) a long computation over many traces may
+#: split into: 1 unless the command says its process may use more (:func:`lanes_allowed`).
+_LANES = 1
+
+
+@contextmanager
+def lanes_allowed(n: int) -> Iterator[None]:
+    """Within the block, computations over many traces may run in ``n`` lanes at once (this
+    process and forked children, :func:`in_lanes`); at most the cores. A command that runs in
+    its own process says so; a batch worker, which shares the cores with its siblings, does
+    not."""
+    global _LANES
+    before, _LANES = _LANES, max(1, min(int(n), os.cpu_count() or 1))
+    try:
+        yield
+    finally:
+        _LANES = before
+
+
+def lanes() -> int:
+    """The lanes a computation may use now (see :func:`lanes_allowed`)."""
+    return _LANES if hasattr(os, "fork") else 1
+
+
+def in_lanes(calls: Sequence[Callable[[], Any]]) -> list:
+    """Each call's value, in order: the calls dealt out to :func:`lanes` lanes (this process
+    and children forked from it, :func:`forked`), or run here one after another with one lane.
+    An error is raised here as if run here; a lane whose child died is run here."""
+    from functools import partial
+
+    n = min(lanes(), len(calls))
+    if n < 2:
+        return [call() for call in calls]
+    deal = [list(range(k, len(calls), n)) for k in range(n)]
+    runs = [partial(_run_all, [calls[i] for i in lane]) for lane in deal]
+    values: dict[int, Any] = {}
+    for lane, run, outcome in zip(deal, runs, forked(runs), strict=True):
+        if isinstance(outcome.error, ChildDied):
+            outcome = Outcome(outcome.index, run())
+        if outcome.error is not None:
+            raise outcome.error
+        values.update(zip(lane, outcome.value, strict=True))
+    return [values[i] for i in range(len(calls))]
+
+
+def _run_all(calls: Sequence[Callable[[], Any]]) -> list:
+    return [call() for call in calls]
+
+
 class ChildDied(RuntimeError):
     """A forked child ended without sending its answer (see :func:`forked`)."""
 

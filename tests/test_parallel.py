@@ -408,3 +408,22 @@ def test_a_zombie_parent_is_not_alive():
     assert _wait_until(lambda: not alive(pid), limit_s=10)   # ended, still unreaped
     assert os.waitpid(pid, os.WNOHANG)[0] == pid              # it was a zombie until now
     assert alive(os.getpid())
+
+
+def _boom():
+    raise ValueError("lane 1 failed")
+
+
+def test_in_lanes_keeps_the_order_and_raises_a_lanes_error_here():
+    from functools import partial
+
+    from rateabs.parallel import in_lanes, lanes_allowed
+
+    calls = [partial(os.getpid)] + [partial(int, str(k)) for k in range(1, 6)]
+    with lanes_allowed(2):
+        got = in_lanes(calls)
+        assert got[1:] == [1, 2, 3, 4, 5] and got[0] == os.getpid()
+        with pytest.raises(ValueError, match="lane 1 failed"):
+            in_lanes([partial(int, "0"), _boom])
+    with lanes_allowed(1):                   # one lane: everything here, in order
+        assert in_lanes([os.getpid, os.getpid]) == [os.getpid()] * 2

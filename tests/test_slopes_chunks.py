@@ -62,3 +62,23 @@ def test_chunks_change_no_number(monkeypatch, kw):
     if not kw:                          # the plate exercises what it is meant to
         assert {"curve", "window"} <= set(whole.method)
         assert whole.spikes[14] >= 2         # the second pass
+
+
+def test_lanes_change_no_number(monkeypatch):
+    """Split over two lanes (this process and a forked child, as a one-file ``rates`` run does
+    on a big plate), including the second pass over readings set aside, the messy plate gives
+    the numbers it gives in one lane, bit for bit."""
+    from rateabs import parallel, slopes
+
+    g = messy_plate()
+    whole = find_windows(g)
+    monkeypatch.setattr(slopes, "LANE_MIN_TRACES", 8)
+    calls = []
+    real = parallel.forked
+    monkeypatch.setattr(parallel, "forked", lambda c: calls.append(len(c)) or real(c))
+    with parallel.lanes_allowed(2):
+        if parallel.lanes() < 2:
+            pytest.skip("one core")
+        laned = find_windows(g)
+    assert calls and all(n == 2 for n in calls)       # the lanes did run, in two processes
+    assert_same(whole, laned)

@@ -23,10 +23,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass, fields, replace
 from enum import IntEnum
+from functools import partial
 
 import numpy as np
 
 from ..errors import UsageError
+from ..parallel import in_lanes, lanes
 from ..traces import Grid
 from . import windows as wn
 from .choice import choose
@@ -169,23 +171,43 @@ def find_windows(grid: Grid, *, window="auto", min_points: int | None = None,
     N, M = grid.values.shape
     opts = _Options(window, window_min_points(M, min_points), noise_floor, curve, estimator)
     clock = plate_clock(grid, noise_floor)
-    chunks = row_chunks(N, M)
+    chunks = _lane_chunks(N, M)
     bad = np.zeros((N, M), dtype=bool)
     parts = []
-    for rows in chunks:
-        part, bad[rows] = _chunk(sub_grid(grid, rows), opts, clock)
+    for rows, (part, off) in zip(chunks, in_lanes(
+            [partial(_chunk, sub_grid(grid, rows), opts, clock) for rows in chunks]), strict=True):
+        bad[rows] = off
         parts.append(part)
     if bad.any():
         # readings far off their curves are set aside, and the traces that had them fitted
         # again, on the columns' times without those readings
         again = plate_clock(grid, noise_floor, bad)
         same = again.span == clock.span and np.array_equal(again.times, clock.times)
-        for i, rows in enumerate(chunks):
-            if not same or bad[rows].any():
-                parts[i] = _chunk(sub_grid(grid, rows), opts, clock, again)[0]
+        redo = [i for i, rows in enumerate(chunks) if not same or bad[rows].any()]
+        for i, (part, _) in zip(redo, in_lanes([partial(_chunk, sub_grid(grid, chunks[i]), opts,
+                                                        clock, again) for i in redo]), strict=True):
+            parts[i] = part
     win = _concat(parts)
     loud = noisy(win.slope, win.slope_se, win.sigma, noisy_limit)
     return replace(win, flags=flag_words(np.column_stack([win.flags, loud])))
+
+
+#: Fewest traces worth splitting over lanes (forked processes, :func:`rateabs.parallel.lanes`):
+#: a fork costs a few milliseconds, a 384-well plate's fit a few tenths of a second.
+LANE_MIN_TRACES = 256
+
+
+def _lane_chunks(n_traces: int, n_times: int) -> list[slice]:
+    """The chunks of rows to work on (:func:`rateabs.slopes.prepare.row_chunks`), split further
+    so that each lane the command may use (:func:`rateabs.parallel.lanes`) gets one where there
+    are enough traces. Chunks never change a result (:func:`find_windows`), so neither does
+    this."""
+    chunks = row_chunks(n_traces, n_times)
+    n = lanes()
+    if n < 2 or n_traces < LANE_MIN_TRACES or len(chunks) >= n:
+        return chunks
+    edges = np.linspace(0, n_traces, n + 1).round().astype(int)
+    return [slice(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:], strict=True)]
 
 
 @dataclass(frozen=True)

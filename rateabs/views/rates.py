@@ -7,6 +7,7 @@ tidy CSV, the plate's figures and a report page that reads like a lab report.
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 import numpy as np
@@ -493,11 +494,12 @@ def _well_section(a, doc, rp) -> str:
 
 def run_rates(o: RatesOptions, emit) -> View:
     """The ``rates`` command: compute, print in the chosen format, write files into --out."""
+    from ..parallel import lanes_allowed
     from .drawing import drawing_pool, drawing_processes
 
     out = o.output
     with drawing_pool(drawing_processes(o.where.jobs, out.plots and bool(out.out or out.report))
-                      ) as pool:
+                      ) as pool, lanes_allowed(o.where.jobs or os.cpu_count() or 1):
         view = compute_rates(o)
         title = Path(o.file).name
         deliver(o, emit, view, "rates",
