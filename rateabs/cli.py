@@ -186,6 +186,12 @@ def _emit(fmt: str, doc: dict, table: str, csv_text: str, out, name: str) -> Non
         click.echo(to_json(doc), nl=False)
     elif fmt == "csv":
         click.echo(csv_text, nl=False)
+        # the CSV on stdout stays a table; what was assumed and what to watch go to stderr
+        for line in table.splitlines():
+            if line.startswith("# "):
+                click.echo(line, err=True)
+        for w in doc.get("warnings", []):
+            click.echo(f"warning: {w}", err=True)
     else:
         click.echo(table, nl=False)
         for w in doc.get("warnings", []):

@@ -74,3 +74,15 @@ def test_csv_numbers_are_plain_numbers():
     header, row = r.stdout.splitlines()[:2]
     assert "temperature_K" in header and "np." not in row
     assert float(row.split(",")[header.split(",").index("temperature_K")]) > 273
+
+
+def test_csv_keeps_the_assumptions_and_warnings_on_stderr():
+    """A CSV on stdout has no room for what was assumed: it goes to stderr, as the table's
+    header lines and warnings, so a rate resting on an assumed 1 cm pathlength is never
+    handed on without a word (a user audit found both dropped)."""
+    r = CliRunner().invoke(main, ["rates", str(SAMPLES / "plate_kbdh_340nm.csv"), "--epsilon",
+                                  "6220", "--format", "csv", "--no-plots"])
+    assert r.exit_code == 0, r.output
+    assert r.stdout.startswith("trace,") and "#" not in r.stdout and "warning" not in r.stdout
+    assert "# pathlength: 1 cm, assumed" in r.stderr
+    assert "warning: the traces are plate wells but no --pathlength" in r.stderr
