@@ -73,6 +73,9 @@ def test_csv_numbers_are_plain_numbers():
     assert r.exit_code == 0, r.output
     header, row = r.stdout.splitlines()[:2]
     assert "temperature_K" in header and "np." not in row
+    # every fitted value carries its uncertainty in the CSV too: the half-life's SE
+    assert "half_life_s_se" in header and float(row.split(",")[header.split(",").index(
+        "half_life_s_se")]) > 0
     assert float(row.split(",")[header.split(",").index("temperature_K")]) > 273
 
 

@@ -123,13 +123,13 @@ def _text(results, laws, series, head: list[str], warnings: list[str], level: fl
 
 
 def _flat(r: dict, excess: dict) -> dict:
-    """One CSV row: parameters flattened, the half-life with its interval."""
+    """One CSV row: parameters flattened, the half-life with its SE and interval."""
     f = {"trace": r["trace"], "order": r.get("order"), "model": r.get("model"),
          "status": r.get("status")}
     f.update({k: v for k, v in flatten_params(r.get("params") or {}).items()})
     hl = r.get("half_life_s") or {}
-    f["half_life_s"], f["half_life_s_ci_low"], f["half_life_s_ci_high"] = (
-        hl.get("value"), hl.get("ci_low"), hl.get("ci_high"))
+    f["half_life_s"], f["half_life_s_se"], f["half_life_s_ci_low"], f["half_life_s_ci_high"] = (
+        hl.get("value"), hl.get("se"), hl.get("ci_low"), hl.get("ci_high"))
     if r.get("temperature_K") is not None:
         f["temperature_K"] = r["temperature_K"]
     if r["trace"] in excess:
