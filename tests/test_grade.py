@@ -104,6 +104,25 @@ def test_hand_worked_score(tmp_path):
     assert res["slip"] is None and "cause not identified" in res["diagnosis"][0]
 
 
+def test_a_reported_value_typed_with_its_unit_is_read_in_that_unit(tmp_path):
+    """'0.0008 1/s', '8e-4 s-1', '0.0008/s' and '0.048 1/min' are all k = 8.0e-4 1/s (60 s in a
+    minute); a unit k cannot have gives no value and says so (a user audit saw every one of
+    them called 'not a number')."""
+    t = np.arange(0, 2401, 30.0)
+    a = 0.05 + 1.05 * np.exp(-8e-4 * t)
+    (tmp_path / "run.csv").write_text("time (s),A\n" + "".join(
+        f"{x:g},{y:.6f}\n" for x, y in zip(t, a, strict=True)))
+    typed = ["0.0008 1/s", "8e-4 s-1", "0.0008/s", "0.048 1/min", "0.0008 furlongs"]
+    (tmp_path / "roster.csv").write_text("student,file,reported\n" + "".join(
+        f"s{i},run.csv,{v}\n" for i, v in enumerate(typed)))
+    (tmp_path / "rubric.toml").write_text('[assignment]\nquantity = "k"\nunit = "1/s"\n'
+                                          'reference = 8.0e-4\ntolerance_pct = 5\n')
+    res = grade_class(tmp_path, read_rubric(tmp_path / "rubric.toml"), plots=False)
+    for r in res[:4]:
+        assert r["reported"] == pytest.approx(8e-4, rel=1e-12) and r["score"] == 100.0, r
+    assert res[4]["reported"] is None and "'furlongs'" in " ".join(res[4]["diagnosis"])
+
+
 def test_agreement_and_data_quality_parts_by_hand():
     # agreement: 1 within the tolerance, linear to 0 at five times it (grade.scoring docstring)
     assert agreement(1.04, 1.0, 5) == 1.0                  # 4 % off, within the tolerance

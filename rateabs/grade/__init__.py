@@ -51,7 +51,7 @@ def grade_class(folder, rubric: Rubric, executor=None, progress: Callable | None
     fails or crashes costs that student's row, never the class; ``plots`` adds each student's
     figure data (``figure``) to the rows.
     """
-    tasks = read_roster(folder)
+    tasks = read_roster(folder, (rubric.quantity, rubric.unit))
     settings = analysis_settings(rubric)
     keys, analyses, todo = {}, {}, {}
     for t in tasks:

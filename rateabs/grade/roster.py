@@ -41,8 +41,10 @@ class Task:
     submitted: str = ""
 
 
-def read_roster(folder: str | Path) -> list[Task]:
-    """The roster of a class folder, every path checked to stay inside the folder."""
+def read_roster(folder: str | Path, unit: tuple[str, str] | None = None) -> list[Task]:
+    """The roster of a class folder, every path checked to stay inside the folder; with the
+    rubric's (quantity, unit), reported values typed with a unit are converted to it
+    (:func:`parse_reported`)."""
     from ..io import read_table
 
     folder = Path(folder)
@@ -71,7 +73,7 @@ def read_roster(folder: str | Path) -> list[Task]:
         fname = str(rec[cols["file"]]).strip()
         problem, path = _locate(folder, base, fname)
         text = str(rec[cols["reported"]]).strip()
-        reported, why = parse_reported(text)
+        reported, why = parse_reported(text, unit)
         extra = {c: rec[c] for c in df.columns if c.strip().lower() not in KNOWN}
         sub = str(rec[cols["submitted"]]).strip() if "submitted" in cols else ""
         tasks.append(Task(student, fname, path, reported, extra, problem, k + 1, lines[k], text,
@@ -118,18 +120,29 @@ def _locate(folder: Path, base: Path, fname: str) -> tuple[str | None, str | Non
 _NUMBER = re.compile(r"^[-+]?(\d+([.,]\d*)?|[.,]\d+)([eE][-+]?\d+)?$")
 
 
-def parse_reported(text: str) -> tuple[float | None, str | None]:
+#: A number followed by a unit, as students type it ("0.0008 1/s", "8e-4 s-1").
+_WITH_UNIT = re.compile(r"^\s*([-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?)\s*(\S.*)$")
+
+
+def parse_reported(text: str, unit=None) -> tuple[float | None, str | None]:
     """(value, why it cannot be checked): text, NaN and infinity give no value; 0 and negative
-    numbers are values (the grade says what is wrong with them).
+    numbers are values (the grade says what is wrong with them). With the rubric's ``unit``
+    (``(quantity, unit text)``), a number followed by a unit is read in that unit and converted
+    to the rubric's (a unit the quantity cannot have gives no value, saying so).
 
     >>> parse_reported("8,1e-4")
     (0.00081, None)
     >>> parse_reported("nan")[1]
     "the reported value 'nan' is not a finite number"
+    >>> parse_reported("0.048 1/min", ("k", "1/s"))
+    (0.0008, None)
     """
     s = text.strip()
     if not s:
         return None, "no reported value in the roster"
+    m = _WITH_UNIT.match(s) if unit is not None and not _NUMBER.match(s) else None
+    if m:
+        return _with_unit(s, m.group(1), m.group(2), *unit)
     if not _NUMBER.match(s):
         special = s.lower().lstrip("+-") in ("nan", "inf", "infinity")
         what = "is not a finite number" if special else "is not a number"
@@ -138,6 +151,18 @@ def parse_reported(text: str) -> tuple[float | None, str | None]:
     if not math.isfinite(x):
         return None, f"the reported value {s!r} is not a finite number"
     return x, None
+
+
+def _with_unit(s: str, number: str, typed: str, quantity: str, unit: str):
+    """A reported number with its typed unit, in the rubric's unit."""
+    from .rubric import parse_unit
+
+    given, want = parse_unit(quantity, typed), parse_unit(quantity, unit)
+    if given is None or want is None:
+        return None, (f"the reported value {s!r} carries a unit, {typed!r}, that is not one "
+                      f"of {quantity} (the rubric grades it in {unit})")
+    x = float(number.replace(",", ".")) / given.per_base * want.per_base
+    return (x, None) if math.isfinite(x) else (None, f"the reported value {s!r} is not finite")
 
 
 def lateness(submitted: str, deadline) -> tuple[bool | None, str | None]:

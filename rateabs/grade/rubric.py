@@ -82,8 +82,11 @@ def parse_unit(quantity: str, text: str) -> Unit | None:
     'mM'
     """
     u = str(text).strip().replace("µ", "u").replace("μ", "u").replace(" ", "")
-    if u.endswith("^-1") and u[:-3] in TIME_S:
-        u = "1/" + u[:-3]
+    for minus in ("^-1", "-1", "⁻¹"):                 # s^-1, s-1, s⁻¹ and /s are 1/s
+        if u.endswith(minus) and u[:-len(minus)] in TIME_S:
+            u = "1/" + u[:-len(minus)]
+    if u.startswith("/") and u[1:] in TIME_S:
+        u = "1" + u
     if quantity == "k":
         t = u[2:] if u.startswith("1/") else None
         return Unit(u, TIME_S[t], time=t) if t in TIME_S else None
