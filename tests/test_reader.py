@@ -172,6 +172,28 @@ def test_xlsx_with_time_cells(tmp_path):
     assert ts.data.loc[ts.data["trace"] == "A2", "flag"].tolist()[2] == "overflow"
 
 
+def test_a_workbook_of_several_sheets_says_which_it_read(tmp_path):
+    """An empty first sheet is passed over for the first with data, and the choice is said
+    (a user audit found the first sheet read without a word, and an empty one refused as if
+    the file held no table)."""
+    import openpyxl
+
+    wb = openpyxl.Workbook()
+    wb.active.title = "notes"
+    ws = wb.create_sheet("run")
+    ws.append(["time (s)", "A405"])
+    for t in range(0, 601, 30):
+        ws.append([t, 0.05 + 2e-4 * t])
+    wb.create_sheet("other").append(["x"])
+    p = tmp_path / "two.xlsx"
+    wb.save(p)
+    ts = read_traces(p)
+    assert ts.names == ["A405"]
+    assert any("3 sheets (notes, run, other): sheet 'run' was read" in w
+               for w in ts.info["warnings"])
+    assert not any("sheets" in w for w in read_traces(p, sheet="run").info["warnings"])
+
+
 @pytest.mark.parametrize("name", ["plate_kbdh_340nm.csv", "cuvettes_kbap_405nm_messy.csv",
                                   "tubes_tnb_412nm_counts.tsv"])
 def test_sample_runs_read(name):

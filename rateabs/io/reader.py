@@ -99,7 +99,7 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
         metadata=meta, metadata_facts=said, set_aside=parsed.set_aside,
         extra_columns=parsed.extra, dropped_rows=log.summary(), few_readings=few,
         file_ends_mid_line=not src.terminated, **{k: v for k, v in conv.facts.items()},
-        warnings=(parsed.time.warnings + parsed.notes + warnings + log.warnings()
+        warnings=(src.notes + parsed.time.warnings + parsed.notes + warnings + log.warnings()
                   + _few_warning(few) + ([plate[2]] if plate[2] else [])),
     )
     _trace_meta(ts, parsed, facts)

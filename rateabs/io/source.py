@@ -67,6 +67,7 @@ class Source:
     def _open_workbook(self, sheet: str | None) -> None:
         self.fmt, self.delimiter, self.encoding, self.terminated = "xlsx", None, None, True
         self._book = Workbook(self.path, sheet)
+        self.notes = [self._book.note] if self._book.note else []
         self._lines: Iterator[tuple[int, Line]] = iter(self._book)
         self.text = False
 
@@ -75,6 +76,7 @@ class Source:
             self.encoding = sniff_encoding(raw, complete=self.size <= HEAD_BYTES)
         except InputError as exc:
             raise exc.located(self.path) from None
+        self.notes: list[str] = []
         self.terminated = ends_with_line_end(self.path, self.encoding, self.size)
         self._stream = open_text(self.path, self.encoding)
         self._book = None

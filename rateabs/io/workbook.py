@@ -31,8 +31,17 @@ class Workbook:
             self.book.close()
             raise InputError("the workbook has no sheet", "save it again with the data",
                              file=path)
-        self.sheet = self.book[sheet] if sheet else self.book.worksheets[0]
         self.path = path
+        self.note = ""
+        if sheet:
+            self.sheet = self.book[sheet]
+        else:
+            self.sheet = next((ws for ws in self.book.worksheets if _has_data(ws)),
+                              self.book.worksheets[0])
+            if len(names) > 1:
+                self.note = (f"the workbook has {len(names)} sheets ({', '.join(names)}): sheet "
+                             f"{self.sheet.title!r} was read, the first with data; --sheet "
+                             "picks another")
 
     def __iter__(self) -> Iterator[tuple[int, list[str]]]:
         try:
@@ -47,6 +56,15 @@ class Workbook:
     def close(self) -> None:
         """Release the file."""
         self.book.close()
+
+
+def _has_data(ws, rows: int = 50) -> bool:
+    """Whether a sheet holds a value in its first ``rows`` rows."""
+    try:
+        return any(v not in (None, "") for row in ws.iter_rows(max_row=rows, values_only=True)
+                   for v in row)
+    except Exception:  # noqa: BLE001 - a damaged sheet is found when it is read
+        return True
 
 
 def cell_text(v) -> str:
