@@ -453,6 +453,21 @@ def test_plate_blocks_with_a_well_missing_from_one_block(tmp_path):
     assert any("12 well(s) are missing from some plate blocks" in w for w in ts.info["warnings"])
 
 
+def test_a_plate_block_time_without_its_unit_is_refused_saying_so(tmp_path):
+    """'Time: 30' above a block: the time is there but not its unit, and the refusal says that
+    (it said there was no time)."""
+    from helpers import write_plate_blocks
+
+    from rateabs.errors import InputError
+
+    text = write_plate_blocks([0, 30, 60], np.full((96, 3), 0.2))
+    assert "elapsed 30 s" in text                  # a label above each block
+    p = tmp_path / "b.csv"
+    p.write_text(text.replace(" s\n", "\n"))
+    with pytest.raises(InputError, match="'0', has no unit"):
+        read_traces(p)
+
+
 # --------------------------------------------------------------------------- large files
 
 def test_a_file_of_many_chunks_reads_like_a_small_one(tmp_path):

@@ -94,6 +94,11 @@ def _label_time(recent: deque, line: int) -> str:
     label = " ".join(recent[-1]) if recent else ""
     m = TIME_IN_TEXT.search(label)
     if not m:
+        bare = re.search(r"(?<![\w.,])(\d+(?:[.,]\d+)?)\s*$", label)
+        if bare:
+            raise InputError(f"the time above a plate block, {bare.group(1)!r}, has no unit",
+                             f"write it with its unit, e.g. 'Time: {bare.group(1)} s' (or "
+                             "'Time: 0:00:30'), in every block label", row=line)
         raise InputError("a plate block has no time in the line above it",
                          "each read needs a line such as 'Time: 0:00:30' above its grid",
                          row=line)
