@@ -123,6 +123,23 @@ def test_a_reported_value_typed_with_its_unit_is_read_in_that_unit(tmp_path):
     assert res[4]["reported"] is None and "'furlongs'" in " ".join(res[4]["diagnosis"])
 
 
+def test_a_bare_time_column_in_minutes_against_a_rubric_in_seconds_is_named(tmp_path):
+    """The rubric reads bare time columns in seconds; a student recorded minutes and reported
+    the right k per second: the grader's own value is 60 times it (60 s per min), and the slip
+    is named instead of 'cause not identified' (a user audit's case)."""
+    t_min = np.arange(0, 40.01, 0.5)
+    a = 0.05 + 1.05 * np.exp(-8e-4 * 60 * t_min)
+    (tmp_path / "run.csv").write_text("time,A\n" + "".join(
+        f"{x:g},{y:.6f}\n" for x, y in zip(t_min, a, strict=True)))
+    (tmp_path / "roster.csv").write_text("student,file,reported\nmo,run.csv,8.0e-4\n")
+    (tmp_path / "rubric.toml").write_text('[assignment]\nquantity = "k"\nunit = "1/s"\n'
+                                          'reference = 8.0e-4\ntolerance_pct = 5\n'
+                                          '[runs]\ntime_unit = "s"\n')
+    (r,) = grade_class(tmp_path, read_rubric(tmp_path / "rubric.toml"), plots=False)
+    assert r["value"] == pytest.approx(8e-4 * 60, rel=1e-3)       # read in seconds, as told
+    assert r["slip"] == "time-unit-unstated" and "in minutes" in r["diagnosis"][0]
+
+
 def test_agreement_and_data_quality_parts_by_hand():
     # agreement: 1 within the tolerance, linear to 0 at five times it (grade.scoring docstring)
     assert agreement(1.04, 1.0, 5) == 1.0                  # 4 % off, within the tolerance

@@ -114,10 +114,20 @@ def unit_scale(rubric: Rubric, facts: dict) -> tuple[float, str | None]:
 
 
 def time_reading(q: str, facts: dict, value: float, rubric: Rubric) -> dict:
-    """How a time column without a unit is read: as seconds (the reader's assumption) or, when
+    """How a time column without a unit is read: in the rubric's unit where it gives one (the
+    other unit kept as a candidate slip); else as seconds (the reader's assumption) or, when
     that puts the run far from the class reference and minutes put it near, as minutes."""
     power = TIME_POWER.get(q)
     out = {"factor": 1.0, "times": 1.0, "read": None, "other": None}
+    if facts.get("time_source") == "rubric" and power is not None:
+        # a bare column read in the rubric's unit: the read stands, but a number that the
+        # readings give in the other unit is a slip the diagnosis can name (a student who
+        # recorded minutes where the class records seconds)
+        read = facts.get("time_unit")
+        other = {"s": "min", "min": "s"}.get(read)
+        if other is not None:
+            f = 60.0 ** power if read == "s" else 60.0 ** -power
+            return {**out, "read": read, "other": other, "other_factor": f}
     if facts.get("time_source") != "assumed" or power is None:
         return out
     as_min = value * 60.0 ** power
