@@ -64,6 +64,21 @@ def kelvin_to_celsius(t_k):
     return t_k - ZERO_CELSIUS_K
 
 
+#: The Fahrenheit scale: 32 °F is 0 °C and a degree Fahrenheit is 5/9 of a kelvin (exact, by
+#: definition; common practice).
+FAHRENHEIT_ZERO_C = 32.0
+FAHRENHEIT_DEGREE_K = 5.0 / 9.0
+#: The temperature units a column or an option may be in, in words.
+TEMPERATURE_NAMES = {"K": "kelvin", "C": "degrees Celsius", "F": "degrees Fahrenheit"}
+#: The conversion in words, for the output of whatever converts.
+FAHRENHEIT_RULE = "T_K = (T_F - 32) x 5/9 + 273.15"
+
+
+def fahrenheit_to_kelvin(t_f):
+    """Temperature in kelvin from degrees Fahrenheit (works on numbers and arrays)."""
+    return celsius_to_kelvin((t_f - FAHRENHEIT_ZERO_C) * FAHRENHEIT_DEGREE_K)
+
+
 def _split(text: str | float | int, what: str) -> tuple[float, str]:
     if isinstance(text, (int, float)):
         return float(text), ""
@@ -191,7 +206,9 @@ def _temperature_k(value: float, unit: str, text: str) -> float:
         return celsius_to_kelvin(value)
     if u in ("K", "KELVIN"):
         return value
-    raise _fail("temperature", text, unit, "C or K")
+    if u in ("F", "FAHRENHEIT"):
+        return fahrenheit_to_kelvin(value)
+    raise _fail("temperature", text, unit, "C, K or F")
 
 
 _FACTORS = {"time": (time_factor, "s, min, h"), "volume": (volume_factor, "L, mL, uL, nL"),
@@ -317,3 +334,47 @@ def unit_from_header(header: str) -> str:
     if m:
         return m.group(1).replace("_per_", "/")
     return ""
+
+
+#: A rate-constant unit as headers write it: a time unit to the power -1 (first order: 1/s,
+#: /min, min^-1, s-1, per minute), optionally after a concentration unit to the power -1
+#: (second order: M^-1 s^-1, 1/(mM min), L mol^-1 s^-1, L/(mol s)).
+_INV = r"\s*(?:\^\s*\(?\s*-\s*1\s*\)?|-1)"
+_RATE_CONSTANT = (
+    (1, re.compile(r"(?:1\s*)?/\s*\(?\s*(?P<t>[a-z]+)\s*\)?", re.I)),
+    (1, re.compile(rf"(?P<t>[a-z]+){_INV}", re.I)),
+    (2, re.compile(r"(?:1\s*)?/\s*\(\s*(?P<c>[a-zµμ]+)\s+(?P<t>[a-z]+)\s*\)", re.I)),
+    (2, re.compile(r"(?:1\s*)?/\s*(?P<c>[a-zµμ]+)\s*/\s*(?P<t>[a-z]+)", re.I)),
+    (2, re.compile(rf"(?P<c>[a-zµμ]+){_INV}\s*(?P<t>[a-z]+){_INV}", re.I)),
+    (2, re.compile(r"(?P<c>[a-zµμ]*l)\s*/\s*\(\s*(?P<m>[a-zµμ]*mol)\s+(?P<t>[a-z]+)\s*\)", re.I)),
+    (2, re.compile(rf"(?P<c>[a-zµμ]*l)\s*(?P<m>[a-zµμ]*mol){_INV}\s*(?P<t>[a-z]+){_INV}", re.I)),
+)
+
+
+def _per_molar(m: re.Match) -> float | None:
+    """Factor to M^-1 of the concentration part of a second-order unit, or None."""
+    if m.groupdict().get("m"):                     # litre / mole: (L per mol)
+        litre = volume_factor(m.group("c"))
+        mol = PREFIX.get(m.group("m")[:-3])
+        return None if litre is None or mol is None else litre / mol
+    try:
+        return 1.0 / concentration_factor(m.group("c"))
+    except UnitError:
+        return None
+
+
+def rate_constant_unit(unit: str) -> tuple[int, float] | None:
+    """(order, factor) of a rate-constant unit: ``1/min`` -> (1, 1/60) turns k into 1/s;
+    ``mM^-1 s^-1`` -> (2, 1000) turns k into M^-1 s^-1. None for anything else."""
+    u = unit.strip().replace("⁻¹", "^-1").replace("·", " ").replace("*", " ").replace("_", " ")
+    u = re.sub(r"^per\s+", "/", re.sub(r"\s+per\s+", "/", u))
+    u = re.sub(r"\s+", " ", u)
+    for order, pattern in _RATE_CONSTANT:
+        m = pattern.fullmatch(u)
+        if not m:
+            continue
+        seconds = time_factor(m.group("t"))
+        per_molar = _per_molar(m) if order == 2 else 1.0
+        if seconds is not None and per_molar is not None:
+            return order, per_molar / seconds
+    return None
