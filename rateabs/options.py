@@ -801,11 +801,14 @@ class TemperatureOptions(Checked):
     k_column: str | None = option("--k-column", Text("column name", "k_per_s"), "Rate-constant "
                                   "column (detected if not given).")
     se_column: str | None = option("--se-column", Text("column name", "k_se"), "Column of SE(k), "
-                                   "for weights.")
-    temp_unit: str | None = option("--temp-unit", OneOf(("C", "K"), "C"), "Unit of the "
-                                   "temperatures (else from the header or the values); against "
-                                   "a header naming the other unit it is refused, unless the "
-                                   "values show the header is wrong.")
+                                   "in the unit of k, for weights 1/SE(ln k)^2 (detected if not "
+                                   "given); an empty, 0 or negative SE is refused with its "
+                                   "rows: delete the column for an unweighted fit.")
+    temp_unit: str | None = option("--temp-unit", OneOf(("C", "K", "F"), "C"), "Unit of the "
+                                   "temperatures (else from the header, which may name C, K or "
+                                   "F, or the values; degrees Fahrenheit are converted to "
+                                   "kelvin); against a header naming another unit it is "
+                                   "refused, unless the values show the header is wrong.")
     at: tuple = option("--at", Many(Quantity("temperature", "C", Number(0, math.inf, lo_open=True),
                                              "'60 C'", "above absolute zero")),
                        "Predict k at this temperature, e.g. '60 C' (repeatable; a bare number "

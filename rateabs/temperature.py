@@ -3,8 +3,10 @@
 Arrhenius: ln k = ln A - Ea / (R T). Eyring (1935, J. Chem. Phys. 3:107):
 ln(k/T) = ln(kB/h) + dS/R - dH/(R T), for a
 rate constant in 1/s (first order or pseudo-first order; the transmission coefficient is taken
-as 1). Both are straight-line fits in the shared engine, weighted by SE(ln k) = SE(k)/k when SEs
-are given. Constants R, kB and h come from ``scipy.constants`` (CODATA). At the mean temperature,
+as 1), or in M^-1 s^-1 (second order; dS then refers to the standard state 1 mol/L). k is
+converted to these from the unit its header states. Both are straight-line fits in the shared
+engine, weighted by SE(ln k) = SE(k)/k when SEs are given (every SE above 0, else refused).
+Constants R, kB and h come from ``scipy.constants`` (CODATA). At the mean temperature,
 dH = Ea - R T.
 """
 
@@ -23,7 +25,13 @@ from .errors import AnalysisError, InputError, UsageError
 from .fitting import FitResult, Param, fit
 from .io import number_column, pick_column
 from .models import LINE
-from .units import celsius_to_kelvin
+from .units import (
+    FAHRENHEIT_RULE,
+    TEMPERATURE_NAMES,
+    celsius_to_kelvin,
+    fahrenheit_to_kelvin,
+    rate_constant_unit,
+)
 
 R = constants.R
 KB = constants.k
@@ -75,7 +83,9 @@ class TemperatureAnalysis:
 
 def read_temperature_table(df: pd.DataFrame, *, temp_col=None, k_col=None, se_col=None,
                            temp_unit=None):
-    """Temperatures (K), rate constants and their SEs from a table; T unit from header or values."""
+    """Temperatures (K), rate constants and their SEs (in 1/s, or M^-1 s^-1 for a second-order
+    k) from a table; the T unit from --temp-unit, the header or the values, the k unit from the
+    header. Returns T_K, k, se, what was read (columns, units, notes) and the unit of k."""
     path = df.attrs.get("source", "table")
 
     tc = pick_column(df, temp_col, _T, "temperature", "--temp-column")
@@ -90,7 +100,7 @@ def read_temperature_table(df: pd.DataFrame, *, temp_col=None, k_col=None, se_co
             raise InputError("a cell is empty", "fill it or remove the row", file=path,
                              row=lines[i], column=col)
     unit, source, notes = temperature_unit_of(T, str(tc), temp_unit, path)
-    T_K = celsius_to_kelvin(T) if unit == "C" else T
+    T_K = to_kelvin(T, unit)
     if np.any(T_K <= 0):
         i = int(np.argmax(T_K <= 0))
         raise InputError(f"temperature {T[i]:g} {unit} is not above absolute zero",
@@ -99,39 +109,143 @@ def read_temperature_table(df: pd.DataFrame, *, temp_col=None, k_col=None, se_co
         i = int(np.argmax(k <= 0))
         raise InputError(f"rate constant {k[i]:g} is not positive", "ln k needs k > 0",
                          file=path, row=lines[i], column=kc)
-    kunit = "1/s"
-    m = re.search(r"[(\[]\s*([^)\]]+)\s*[)\]]", str(kc))
-    if m:
-        kunit = m.group(1)
-    elif str(kc).lower().endswith("_per_s"):
-        kunit = "1/s"
+    if se is not None:
+        bad = bad_se(se)
+        if bad.size:
+            rows = ", ".join(str(lines[i]) for i in bad)
+            raise InputError(f"SE is empty, 0 or negative in row{'s' * (bad.size > 1)} {rows}, "
+                             "and a weight 1/SE(ln k)^2 needs every SE above 0",
+                             f"fill in the SE of k there, or delete the column {sc!r} for an "
+                             "unweighted fit", file=path, column=sc)
+    k_read = k_unit_of(str(kc), str(sc) if sc else None, path)
+    k = k * k_read["factor"]
+    se = None if se is None else se * k_read["se_factor"]
+    notes = notes + k_read["notes"]
     unused = [str(c) for c in df.columns if c not in (tc, kc, sc)]
     return T_K, k, se, {"temperature": tc, "k": kc, "se": sc, "temp_unit": unit,
-                        "temp_unit_source": source, "not_used": unused, "notes": notes}, kunit
+                        "temp_unit_source": source, "k_unit_read": k_read["read"],
+                        "k_unit_source": k_read["source"], "k_factor": k_read["factor"],
+                        "not_used": unused, "notes": notes}, k_read["unit"]
+
+
+def bad_se(se) -> np.ndarray:
+    """Positions of SEs that cannot weight a point (empty, not finite, 0 or negative)."""
+    se = np.asarray(se, float)
+    return np.flatnonzero(~(np.isfinite(se) & (se > 0)))
+
+
+#: The units k is analysed in, by reaction order (Eyring's dS for a second-order k then refers
+#: to the standard state 1 mol/L).
+K_UNITS = {1: "1/s", 2: "M^-1 s^-1"}
+#: A rate-constant header's name, before the unit it may state without brackets ("k per minute",
+#: "k_per_s").
+_K_NAME = re.compile(r"^\s*(k|kobs|k_obs|rate[\s_]?constant)[\s_,:]*", re.I)
+
+
+def _stated_unit(header: str, bare: bool) -> str | None:
+    """The unit a header states: in brackets, or (``bare``) what follows the name of k when it
+    reads as 'per ...' or '1/...'; None when it states none."""
+    m = re.search(r"[(\[]\s*(.+?)\s*[)\]]\s*$", header)
+    if m:
+        return m.group(1)
+    if bare:
+        rest = _K_NAME.sub("", header, count=1).strip()
+        if re.match(r"(per\b|per_|1\s*/|/)", rest, re.I):
+            return rest
+    return None
+
+
+def k_unit_of(k_header: str, se_header: str | None, path: str = "table") -> dict:
+    """The unit of k (and of its SE) from the headers, and the factors that turn them into 1/s
+    (first order) or M^-1 s^-1 (second order). A unit that is not a rate-constant unit is
+    refused; a header that states none is taken as 1/s, with a note."""
+    said = _stated_unit(k_header, bare=True)
+    if said is None:
+        return {"unit": K_UNITS[1], "read": None, "source": "assumed", "factor": 1.0,
+                "se_factor": 1.0, "notes": [
+                    f"the header {k_header!r} names no unit of k: taken as 1/s (Ea and dH do "
+                    "not depend on it, A and dS do); put it in the header, e.g. 'k (1/min)'"]}
+    got = rate_constant_unit(said)
+    if got is None:
+        raise InputError(f"the header {k_header!r} names the unit {said!r}, which is not a "
+                         "rate-constant unit", "write it as e.g. 'k (1/s)', 'k (1/min)' or "
+                         "'k (M^-1 s^-1)'", file=path, column=k_header)
+    order, factor = got
+    scaled = (f"divided by {1 / factor:.6g}" if factor < 1 else f"multiplied by {factor:.6g}")
+    notes = [] if factor == 1.0 else [
+        f"k converted from {said!r} (header {k_header!r}) to {K_UNITS[order]}: {scaled}"]
+    if order == 2:
+        notes.append("k is second order: dS refers to the standard state 1 mol/L")
+    se_factor = factor
+    se_said = _stated_unit(se_header, bare=False) if se_header else None
+    if se_said is not None:
+        se_got = rate_constant_unit(se_said)
+        if se_got is None or se_got[0] != order:
+            raise InputError(f"the SE column {se_header!r} names the unit {se_said!r}, which is "
+                             f"not a unit of k ({said})", f"write the SE in the unit of k, "
+                             f"e.g. 'se ({said})'", file=path, column=se_header)
+        se_factor = se_got[1]
+    return {"unit": K_UNITS[order], "read": said, "source": "header", "factor": factor,
+            "se_factor": se_factor, "notes": notes}
 
 
 #: Values that only kelvin (all above) or only degrees Celsius (all below) can hold for a
-#: reaction in a liquid (common practice): water freezes at 273 K and boils at 100 C.
+#: reaction in a liquid (common practice): water freezes at 273 K and boils at 100 C. Values
+#: under a Fahrenheit header all above 212 (water boils at 212 F) look like kelvin.
 KELVIN_ABOVE = 200.0
 CELSIUS_BELOW = 150.0
-NAMES = {"K": "kelvin", "C": "degrees Celsius"}
+FAHRENHEIT_UP_TO = 212.0
+NAMES = TEMPERATURE_NAMES
+
+
+def to_kelvin(T, unit: str):
+    """Temperatures in ``unit`` (K, C or F) in kelvin."""
+    return {"K": lambda t: t, "C": celsius_to_kelvin, "F": fahrenheit_to_kelvin}[unit](T)
+
+
+def header_temperature_unit(header: str) -> str | None:
+    """The temperature unit a header names (K, C or F), or None."""
+    h = header.lower()
+    if re.search(r"°\s*f|º\s*f|\(f\)|\[f\]|_f$|fahrenheit|\bdeg\s*f\b|\bf\b", h):
+        return "F"
+    if re.search(r"\(k\)|\[k\]|_k$|kelvin|\bk\b", h):
+        return "K"
+    if re.search(r"°|º|\(c\)|\[c\]|_c$|celsius|\bc\b", h):
+        return "C"
+    return None
+
+
+def _looks_like(unit: str, T) -> str | None:
+    """The unit the values look like instead of ``unit`` (common practice for a liquid: see
+    KELVIN_ABOVE), or None where they fit ``unit``."""
+    if unit == "K":
+        return "C" if np.all(T < CELSIUS_BELOW) else None
+    limit = FAHRENHEIT_UP_TO if unit == "F" else KELVIN_ABOVE
+    return "K" if np.all(T > limit) else None
 
 
 def temperature_unit_of(T, header: str, given: str | None, path: str = "table"
                         ) -> tuple[str, str, list]:
     """The unit of a temperature column: given, or from the header, or from the values; a
     header whose unit the values contradict (kelvin values under 'T (C)') is refused with the
-    fix. ``given`` (--temp-unit) against a header naming the other unit is refused, naming
-    both, unless the values bear the option out (then it overrides the header, and a note says
-    so). Returns the unit, where it came from and notes."""
-    h = header.lower()
-    said = ("K" if re.search(r"\(k\)|\[k\]|_k$|kelvin|\bk\b", h) else
-            "C" if re.search(r"°|\(c\)|\[c\]|_c$|celsius|\bc\b", h) else None)
-    fits = "K" if np.all(T > KELVIN_ABOVE) else "C" if np.all(T < CELSIUS_BELOW) else None
+    fix. ``given`` (--temp-unit) against a header naming another unit is refused, naming
+    both, unless the values show the header is wrong and bear the option out (then it
+    overrides the header, and a note says so); the values never tell degrees Celsius from
+    Fahrenheit, so these two never override each other. Degrees Fahrenheit are never guessed.
+    Returns the unit, where it came from and notes (the Fahrenheit conversion among them)."""
+    unit, source, notes = _temperature_unit(T, header, given, path)
+    if unit == "F":
+        notes.append(f"temperatures read in degrees Fahrenheit and converted to kelvin: "
+                     f"{FAHRENHEIT_RULE}")
+    return unit, source, notes
+
+
+def _temperature_unit(T, header: str, given: str | None, path: str) -> tuple[str, str, list]:
+    said = header_temperature_unit(header)
     span = f"{np.min(T):g} to {np.max(T):g}"
     if given is not None:
         if said not in (None, given):
-            if fits != given:
+            if _looks_like(said, T) != given:
                 raise UsageError(f"--temp-unit {given} contradicts the column {header!r} of "
                                  f"{path}, whose header states {NAMES[said]} (values {span})",
                                  "leave --temp-unit out (the header's unit is used), or "
@@ -139,24 +253,28 @@ def temperature_unit_of(T, header: str, given: str | None, path: str = "table"
             return given, "--temp-unit", [
                 f"--temp-unit {given} overrides the header {header!r}, which names "
                 f"{NAMES[said]}: the values ({span}) look like {NAMES[given]}"]
-        notes = [] if fits in (None, given) else [
+        other = _looks_like(given, T)
+        notes = [] if other is None else [
             f"temperatures {span} read in {NAMES[given]} as --temp-unit says, though they look "
-            f"like {NAMES[fits]}"]
+            f"like {NAMES[other]}"]
         return given, "--temp-unit", notes
     if said is not None:
-        if fits is not None and fits != said:
+        other = _looks_like(said, T)
+        if other is not None:
             raise InputError(f"the column {header!r} names {NAMES[said]} but its values "
-                             f"({span}) look like {NAMES[fits]}",
-                             f"give --temp-unit {fits} to read them as {NAMES[fits]} (or "
+                             f"({span}) look like {NAMES[other]}",
+                             f"give --temp-unit {other} to read them as {NAMES[other]} (or "
                              f"--temp-unit {said} if they really are {NAMES[said]})",
                              file=path, column=header)
         return said, "header", []
+    fits = "K" if np.all(T > KELVIN_ABOVE) else "C" if np.all(T < CELSIUS_BELOW) else None
     if fits is None:
         raise InputError("cannot tell whether the temperatures are in C or K",
                          "put the unit in the header, e.g. 'T (C)', or give --temp-unit",
                          file=path, column=header)
     return fits, "values", [f"the header {header!r} names no unit; temperatures {span} read "
-                            f"as {NAMES[fits]}"]
+                            f"as {NAMES[fits]} (give --temp-unit if they are not, e.g. "
+                            "--temp-unit F for degrees Fahrenheit)"]
 
 
 def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s") -> TemperatureAnalysis:
@@ -169,7 +287,12 @@ def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s") -> T
     x = 1.0 / T_K
     weighting, sd = "none", None
     warnings = []
-    if k_se is not None and np.all(np.isfinite(k_se)) and np.all(np.asarray(k_se) > 0):
+    if k_se is not None:
+        bad = bad_se(k_se)
+        if bad.size:
+            raise AnalysisError(f"SE of k is empty, 0 or negative at point(s) "
+                                f"{', '.join(str(i + 1) for i in bad)}",
+                                "give every SE above 0, or none for an unweighted fit")
         weighting, sd = "sd", np.asarray(k_se, float) / k
     arr = fit(LINE, x, np.log(k), weighting=weighting, sd=sd, level=level)
     ey = fit(LINE, x, np.log(k / T_K), weighting=weighting, sd=sd, level=level)
@@ -185,8 +308,8 @@ def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s") -> T
                     arr = r
                 else:
                     ey = r
-    if k_unit != "1/s":
-        warnings.append(f"Eyring's dS assumes k in 1/s; k here is in {k_unit}")
+    if k_unit not in K_UNITS.values():
+        warnings.append(f"Eyring's dS assumes k in 1/s (or M^-1 s^-1); k here is in {k_unit}")
 
     def scaled(p, f, name, unit, offset=0.0, exp=False):
         if exp:

@@ -226,7 +226,8 @@ def test_dithionate_eyring_parameters_as_published():
     assert doc["settings"]["columns"]["temp_unit"] == "C"         # 50.0 C -> 323.15 K
     assert round(ey["dH"]["value"], 2) == LENTE_DH[0] and round(ey["dH"]["se"], 2) == LENTE_DH[1]
     assert round(ey["dS"]["value"], 2) == LENTE_DS[0] and round(ey["dS"]["se"], 2) == LENTE_DS[1]
-    assert any("1/s" in w for w in doc["warnings"])               # k here is in M^-1 s^-1
+    # k here is in M^-1 s^-1: the output says dS refers to the standard state 1 mol/L
+    assert any("standard state 1 mol/L" in w for w in doc["warnings"])
     # Arrhenius parameters from the published Eyring ones (Atkins, Physical Chemistry, for a
     # reaction in solution; from memory): Ea = dH + R Tm and A = e (kB Tm/h) exp(dS/R), Tm the
     # inverted mean of 1/T. The published dS carries +-0.005 (0.06 % in A) and the two lines

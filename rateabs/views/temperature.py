@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import numpy as np
+
 from ..fitting import fmt_pm
 from ..options import TemperatureOptions
 from ..output import document, render_table, rows_to_csv
-from ..units import kelvin_to_celsius
+from ..units import TEMPERATURE_NAMES, kelvin_to_celsius
 from . import View, deliver
 from .ratelaw import warning_block
 
@@ -36,15 +38,37 @@ def _prediction_line(pr: dict) -> str:
     return line
 
 
+def _counted(T) -> str:
+    """'6 temperatures', or '7 rate constants at 6 temperatures' where one is repeated."""
+    n, distinct = T.size, np.unique(T).size
+    return (f"{distinct} temperatures" if n == distinct else
+            f"{n} rate constants at {distinct} temperatures")
+
+
 def _text(a, rows, preds, level: float, head: list[str], warnings: list[str]) -> str:
     T = a.T
     table = "\n".join(head) + "\n\n" + render_table(
         rows, [("p", "parameter"), ("v", "value ± SE"), ("lo", f"{100 * level:g} % low"),
                ("hi", f"{100 * level:g} % high"), ("u", "unit")],
-        title=f"Arrhenius and Eyring from {T.size} temperatures "
+        title=f"Arrhenius and Eyring from {_counted(T)} "
               f"({kelvin_to_celsius(T.min()):.1f} to {kelvin_to_celsius(T.max()):.1f} C)")
     table += "".join(_prediction_line(pr) + "\n" for pr in preds)
     return table + "\n" + warning_block(warnings)
+
+
+def _columns_line(cols: dict, kunit: str, weighting: str) -> str:
+    """Which columns were read, in which units (and from where), and the weighting used."""
+    t_unit = TEMPERATURE_NAMES[cols["temp_unit"]]
+    if cols["temp_unit"] == "F":
+        t_unit += ", converted to kelvin"
+    read = cols["k_unit_read"]
+    k_unit = (f"{kunit} (unit assumed: the header names none)" if read is None else
+              kunit if cols["k_factor"] == 1.0 else f"{read!r}, converted to {kunit}")
+    weights = (f", SE {cols['se']!r} (weights 1/SE(ln k)^2)" if weighting == "sd" else
+               ", unweighted")
+    return (f"columns: temperature {cols['temperature']!r} in {t_unit} "
+            f"({SOURCES.get(cols['temp_unit_source'], cols['temp_unit_source'])}), "
+            f"k {cols['k']!r} in {k_unit}{weights}")
 
 
 def compute_temperature(o: TemperatureOptions) -> View:
@@ -70,18 +94,14 @@ def compute_temperature(o: TemperatureOptions) -> View:
                             f"{kelvin_to_celsius(T.min()):.1f} to "
                             f"{kelvin_to_celsius(T.max()):.1f} C: it assumes Ea stays constant "
                             "and no other step takes over")
-    settings = {"columns": cols, "n": int(T.size), "T_range_K": [float(T.min()), float(T.max())],
+    settings = {"columns": cols, "n": int(T.size), "n_temperatures": int(np.unique(T).size),
+                "T_range_K": [float(T.min()), float(T.max())], "k_unit": kunit,
                 "weighting": a.arrhenius.weighting, "level": o.level,
                 "constants": "scipy.constants (CODATA)"}
     doc = document("temperature", [o.file], settings, _results(a, preds), warnings)
     rows = [{"p": n, "v": fmt_pm(p.value, p.se), "lo": p.ci_low, "hi": p.ci_high, "u": p.unit}
             for n, p in a.params.items()]
-    head = [f"temperature: {o.file}",
-            f"columns: temperature {cols['temperature']!r} in "
-            f"{'kelvin' if cols['temp_unit'] == 'K' else 'degrees Celsius'} "
-            f"({SOURCES.get(cols['temp_unit_source'], cols['temp_unit_source'])}), "
-            f"k {cols['k']!r} in {kunit}"
-            + (f", SE {cols['se']!r} (weights 1/SE(ln k)^2)" if cols["se"] else ", unweighted")]
+    head = [f"temperature: {o.file}", _columns_line(cols, kunit, a.arrhenius.weighting)]
     if cols["not_used"]:
         head.append("columns not used: " + ", ".join(repr(c) for c in cols["not_used"]))
     flat = [{"parameter": n, "value": p.value, "se": p.se, "ci_low": p.ci_low,
