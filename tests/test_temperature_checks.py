@@ -114,3 +114,193 @@ def test_rate_law_figure_keeps_text_and_legend_off_a_rising_trace(tmp_path, monk
     labels = [a.get_ylabel() for a in figs[0].axes]
     assert "residual (mAU)" in labels and "absorbance (AU)" in labels
     assert all("mA)" not in lab for lab in labels)
+
+
+# --------------------------------------------------------------------------- units of T and k
+# Truth for the unit checks, computed here without rateabs: R, kB, h from scipy.constants
+# (reference library); k from Eyring's equation k = (kB T/h) exp(dS/R) exp(-dH/(R T)) with
+# dH = 52.4 kJ/mol, dS = -129.7 J/(mol K) at 15-40 C, 3 % noise (seeded); the reference fits
+# are numpy.polyfit of ln k (Arrhenius) and ln(k/T) (Eyring) on 1/T (reference library).
+
+def _eyring_truth():
+    from scipy.constants import R, h
+    from scipy.constants import k as kB
+
+    t_c = np.array([15.0, 20, 25, 30, 35, 40])
+    t_k = t_c + 273.15
+    k = kB * t_k / h * np.exp(-129.7 / R) * np.exp(-52.4e3 / (R * t_k))
+    k = k * np.exp(np.random.default_rng(1).normal(0, 0.03, t_c.size))
+    return t_c, t_k, k, R, kB, h
+
+
+def _write(path, header, rows):
+    path.write_text(header + "\n" + "".join(",".join(f"{v:.10g}" for v in r) + "\n"
+                                            for r in rows))
+    return path
+
+
+def _reference(t_k, k, w=None):
+    """Ea (kJ/mol), A (1/s), dH (kJ/mol), dS (J/(mol K)) by numpy.polyfit (w = 1/SE(ln k))."""
+    _, _, _, R, kB, h = _eyring_truth()
+    slope, icpt = np.polyfit(1 / t_k, np.log(k), 1, w=w)
+    es, ei = np.polyfit(1 / t_k, np.log(k / t_k), 1, w=w)
+    return {"Ea": -slope * R / 1000, "A": np.exp(icpt), "dH": -es * R / 1000,
+            "dS": R * (ei - np.log(kB / h))}
+
+
+def _doc(*args):
+    r = run("temperature", *args, "--format", "json", "--no-plots")
+    assert r.exit_code == 0, r.output
+    return json.loads(r.stdout)
+
+
+def _assert_params(d, truth, rel=1e-6):
+    p = {**d["results"][0]["params"], **d["results"][1]["params"]}
+    for name, value in truth.items():
+        assert p[name]["value"] == pytest.approx(value, rel=rel), name
+
+
+@pytest.mark.parametrize("header", ["T (F)", "T (°F)", "T_F", "temperature (Fahrenheit)"])
+def test_a_fahrenheit_header_is_converted_to_kelvin(tmp_path, header):
+    """Audit: 'T (F)' at 59-104 F was read as Celsius (Ea 42.31 kJ/mol for 54.87)."""
+    t_c, t_k, k, *_ = _eyring_truth()
+    t_f = t_c * 9 / 5 + 32                         # the Fahrenheit scale (common practice)
+    f = _write(tmp_path / "f.csv", f"{header},k (1/s)", zip(t_f, k, strict=True))
+    d = _doc(f)
+    _assert_params(d, _reference(t_k, k))
+    assert d["settings"]["columns"]["temp_unit"] == "F"
+    assert any("T_K = (T_F - 32) x 5/9 + 273.15" in w for w in d["warnings"])
+    text = run("temperature", f, "--no-plots").stdout
+    assert "in degrees Fahrenheit, converted to kelvin (from the header)" in text
+    assert "(15.0 to 40.0 C)" in text
+    # a --temp-unit against the Fahrenheit header is refused in one line naming both
+    for unit in ("K", "C"):
+        r = run("temperature", f, "--temp-unit", unit, "--no-plots")
+        assert r.exit_code == 2 and r.stdout == "" and len(r.stderr.strip().splitlines()) == 1
+        assert f"--temp-unit {unit} contradicts the column {header!r}" in r.stderr
+        assert "degrees Fahrenheit" in r.stderr
+
+
+def test_fahrenheit_by_option_and_kelvin_values_under_a_fahrenheit_header(tmp_path):
+    t_c, t_k, k, *_ = _eyring_truth()
+    bare = _write(tmp_path / "bare.csv", "temperature,k (1/s)", zip(t_c * 9 / 5 + 32, k,
+                                                                   strict=True))
+    as_c = run("temperature", bare, "--no-plots").stdout
+    assert "read as degrees Celsius (give --temp-unit if they are not" in as_c
+    _assert_params(_doc(bare, "--temp-unit", "F"), _reference(t_k, k))
+    wrong = _write(tmp_path / "k.csv", "T (F),k (1/s)", zip(t_k, k, strict=True))
+    r = run("temperature", wrong, "--no-plots")
+    assert r.exit_code == 3 and "look like kelvin" in r.stderr and "--temp-unit K" in r.stderr
+    _assert_params(_doc(wrong, "--temp-unit", "K"), _reference(t_k, k))
+
+
+@pytest.mark.parametrize("header,per_s", [
+    ("k (1/min)", 60.0), ("k per minute", 60.0), ("k (min^-1)", 60.0), ("kobs [min-1]", 60.0),
+    ("k (h-1)", 3600.0), ("k_per_s", 1.0), ("k (s⁻¹)", 1.0)])
+def test_k_is_converted_to_1_per_s_from_the_unit_its_header_states(tmp_path, header, per_s):
+    """Audit: 'k per minute' and 'k (1/min)' were fitted as 1/s: A 1.72e8 for 2.9e6 1/s, dS
+    -95.6 for -129.7 J/(mol K) (R ln 60 apart)."""
+    t_c, t_k, k, *_ = _eyring_truth()
+    f = _write(tmp_path / "k.csv", f"T (C),{header}", zip(t_c, k * per_s, strict=True))
+    d = _doc(f)
+    _assert_params(d, _reference(t_k, k))
+    assert d["results"][0]["params"]["A"]["unit"] == "1/s"
+    converted = [w for w in d["warnings"] if "k converted from" in w]
+    assert len(converted) == (per_s != 1.0)
+    if per_s != 1.0:
+        assert f"divided by {per_s:g}" in converted[0]
+        assert "converted to 1/s" in run("temperature", f, "--no-plots").stdout
+
+
+def test_noise_free_eyring_k_in_per_minute_gives_back_dh_and_ds(tmp_path):
+    from scipy.constants import R, h
+    from scipy.constants import k as kB
+
+    t_k = np.array([288.15, 298.15, 308.15, 318.15])
+    k = kB * t_k / h * np.exp(-129.7 / R) * np.exp(-52.4e3 / (R * t_k))   # 1/s, no noise
+    d = _doc(_write(tmp_path / "m.csv", "T (K),k (1/min)", zip(t_k, 60 * k, strict=True)))
+    ey = d["results"][1]["params"]
+    assert ey["dH"]["value"] == pytest.approx(52.4, rel=1e-7)
+    assert ey["dS"]["value"] == pytest.approx(-129.7, rel=1e-7)
+
+
+def test_a_k_header_without_a_unit_is_said_to_be_taken_as_1_per_s(tmp_path):
+    t_c, t_k, k, *_ = _eyring_truth()
+    f = _write(tmp_path / "k.csv", "T (C),k", zip(t_c, k, strict=True))
+    d = _doc(f)
+    _assert_params(d, _reference(t_k, k))
+    assert d["settings"]["columns"]["k_unit_source"] == "assumed"
+    assert any("names no unit of k: taken as 1/s" in w and "A and dS do" in w
+               for w in d["warnings"])
+    assert "in 1/s (unit assumed: the header names none)" in run("temperature", f).stdout
+    r = run("temperature", _write(tmp_path / "x.csv", "T (C),k (AU)", zip(t_c, k, strict=True)))
+    assert r.exit_code == 3 and len(r.stderr.strip().splitlines()) == 1
+    assert "'AU', which is not a rate-constant unit" in r.stderr
+
+
+def test_second_order_k_and_its_se_are_converted_to_per_molar_per_second(tmp_path):
+    t_c, t_k, k, *_ = _eyring_truth()           # read here as M^-1 s^-1
+    rel = np.array([0.02, 0.05, 0.03, 0.08, 0.04, 0.03])
+    # mM^-1 min^-1 = 1000 M^-1 / 60 s: k in M^-1 s^-1 is k(mM^-1 min^-1) x 1000 / 60
+    f = _write(tmp_path / "k2.csv", "T (C),k (mM^-1 min^-1),se (mM^-1 min^-1)",
+               zip(t_c, k * 60 / 1000, rel * k * 60 / 1000, strict=True))
+    d = _doc(f)
+    _assert_params(d, _reference(t_k, k, w=1 / rel))
+    assert d["results"][0]["params"]["A"]["unit"] == "M^-1 s^-1"
+    assert d["settings"]["weighting"] == "sd"
+    assert any("standard state 1 mol/L" in w for w in d["warnings"])
+
+
+def test_se_in_another_time_unit_than_k_is_converted_on_its_own(tmp_path):
+    t_c, t_k, k, *_ = _eyring_truth()
+    rel = np.array([0.02, 0.05, 0.03, 0.08, 0.04, 0.03])
+    f = _write(tmp_path / "se.csv", "T (C),k (1/min),se (1/s)",
+               zip(t_c, 60 * k, rel * k, strict=True))
+    _assert_params(_doc(f), _reference(t_k, k, w=1 / rel))       # weights 1/SE(ln k)
+    r = run("temperature", _write(tmp_path / "bad.csv", "T (C),k (1/min),se (M^-1 s^-1)",
+                                  zip(t_c, 60 * k, rel * k, strict=True)))
+    assert r.exit_code == 3 and "not a unit of k" in r.stderr
+
+
+# --------------------------------------------------------------------------- SEs and counts
+
+
+@pytest.mark.parametrize("bad", ["0", "", "-1e-5"])
+def test_an_empty_or_zero_se_is_refused_naming_its_rows(tmp_path, bad):
+    """Audit: one SE of 0 or blank gave the unweighted fit while the table said 'weights
+    1/SE(ln k)^2'."""
+    t_c, t_k, k, *_ = _eyring_truth()
+    se = [f"{0.03 * x:.6g}" for x in k]
+    se[1] = se[3] = bad
+    f = tmp_path / "se.csv"
+    f.write_text("T (C),k (1/s),se\n" + "".join(f"{t:g},{x:.6g},{s}\n"
+                                                 for t, x, s in zip(t_c, k, se, strict=True)))
+    r = run("temperature", f, "--no-plots")
+    assert r.exit_code == 3 and r.stdout == "" and len(r.stderr.strip().splitlines()) == 1
+    assert "in rows 3, 5" in r.stderr and "delete the column 'se'" in r.stderr
+
+
+def test_weighting_is_the_same_in_table_json_and_fit(tmp_path):
+    t_c, t_k, k, *_ = _eyring_truth()
+    rel = np.array([0.02, 0.05, 0.03, 0.08, 0.04, 0.03])
+    f = _write(tmp_path / "w.csv", "T (C),k (1/s),se", zip(t_c, k, rel * k, strict=True))
+    d = _doc(f)
+    assert d["settings"]["weighting"] == "sd"
+    _assert_params(d, _reference(t_k, k, w=1 / rel))
+    assert "SE 'se' (weights 1/SE(ln k)^2)" in run("temperature", f, "--no-plots").stdout
+    plain = _write(tmp_path / "p.csv", "T (C),k (1/s)", zip(t_c, k, strict=True))
+    assert _doc(plain)["settings"]["weighting"] == "none"
+    assert ", unweighted" in run("temperature", plain, "--no-plots").stdout
+
+
+def test_a_repeated_temperature_is_counted_once(tmp_path):
+    """Audit: 7 rate constants at 6 temperatures were reported 'from 7 temperatures'."""
+    t_c, t_k, k, *_ = _eyring_truth()
+    rows = [*zip(t_c, k, strict=True), (25.0, 1.1 * k[2])]
+    f = _write(tmp_path / "d.csv", "T (C),k (1/s)", rows)
+    assert "from 7 rate constants at 6 temperatures" in run("temperature", f, "--no-plots").stdout
+    d = _doc(f)
+    assert d["settings"]["n"] == 7 and d["settings"]["n_temperatures"] == 6
+    _assert_params(d, _reference(np.append(t_k, 298.15), np.append(k, 1.1 * k[2])))
+    assert "from 6 temperatures" in run("temperature", _write(
+        tmp_path / "s.csv", "T (C),k (1/s)", zip(t_c, k, strict=True)), "--no-plots").stdout
