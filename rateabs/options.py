@@ -811,8 +811,8 @@ class TemperatureOptions(Checked):
                                    "refused, unless the values show the header is wrong.")
     at: tuple = option("--at", Many(Quantity("temperature", "C", Number(0, math.inf, lo_open=True),
                                              "'60 C'", "above absolute zero")),
-                       "Predict k at this temperature, e.g. '60 C' (repeatable; a bare number "
-                       "is C).", ())
+                       "Predict k at this temperature, e.g. '60 C', '333.15 K' or '140 F' "
+                       "(repeatable; a bare number is C).", ())
     level: float = _level()
     output: OutputOptions = part(OutputOptions)
 

@@ -277,11 +277,12 @@ def parse_epsilon(text: str | float, default: str = "M^-1 cm^-1") -> float:
 
 
 def parse_temperature(text: str | float, default: str = "C") -> float:
-    """Parse a temperature such as ``"25 C"``, ``"25 °C"``, ``"298.15 K"``; returns kelvin."""
+    """Parse a temperature such as ``"25 C"``, ``"25 °C"``, ``"298.15 K"``, ``"77 F"``; returns
+    kelvin."""
     kelvin = quantity(text, "temperature", default)
     if not kelvin > 0:
         raise UnitError(f"temperature {text!r} is not above absolute zero",
-                        "give it in C or K, e.g. '25 C'")
+                        "give it in C, K or F, e.g. '25 C'")
     return kelvin
 
 

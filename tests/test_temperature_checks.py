@@ -188,6 +188,9 @@ def test_fahrenheit_by_option_and_kelvin_values_under_a_fahrenheit_header(tmp_pa
     as_c = run("temperature", bare, "--no-plots").stdout
     assert "read as degrees Celsius (give --temp-unit if they are not" in as_c
     _assert_params(_doc(bare, "--temp-unit", "F"), _reference(t_k, k))
+    # --at in degrees Fahrenheit: 77 F is 25 C, 298.15 K
+    pred = _doc(bare, "--temp-unit", "F", "--at", "77 F")["results"][-1]["predictions"][0]
+    assert pred["T_K"] == pytest.approx(298.15, abs=1e-9)
     wrong = _write(tmp_path / "k.csv", "T (F),k (1/s)", zip(t_k, k, strict=True))
     r = run("temperature", wrong, "--no-plots")
     assert r.exit_code == 3 and "look like kelvin" in r.stderr and "--temp-unit K" in r.stderr
