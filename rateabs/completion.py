@@ -222,7 +222,7 @@ class Completion:
         tt = self.t_target or no
         fit = self.law.fits.get(self.model, self.law.fit)
         return {"trace": self.trace, "order": self.model.split("+")[0], "model": self.model,
-                "target": self.target, "t_now_s": self.t_now,
+                "target": self.target, "time_origin_s": self.law.t0, "t_now_s": self.t_now,
                 "conversion": shown(self.conversion), "conversion_basis": self.basis,
                 "conversion_of_charge": shown(self.charge_conversion)
                 if self.charge_conversion else None,
@@ -428,6 +428,9 @@ def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "aut
 
     ``order`` is ``auto`` (chosen by evidence, as ``ratelaw`` does), "0", "1" or "2";
     ``photometry`` with ``c0_M`` and an epsilon, or ``end_absorbance``, gives the charge.
+    Times (the last reading, the forecast) are counted from the origin
+    :func:`rateabs.models.time_origin` sets, ``law.t0`` in the file's own times; the reaction is
+    taken to stand at conversion 0 there.
     """
     if not 0 < target < 1:
         raise UsageError(f"target {target:g} must lie between 0 and 1 (as a fraction)",
@@ -437,9 +440,9 @@ def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "aut
                          "use --order auto, 0, 1 or 2")
     law = fit_trace(t, y, name, order=order, photometry=photometry, fix=fix, ci="asymptotic",
                     level=level, drift=drift)
-    rising = law.fit.value("A0") < law.fit.predict(np.max(t))
+    t_now = float(np.max(law.fit.x))             # counted from the time origin
+    rising = law.fit.value("A0") < law.fit.predict(t_now)
     charge = charge_of(photometry, end_absorbance, bool(rising))
-    t_now = float(np.max(t))
     forecasts, notes, flags = _forecasts(law, target, t_now, level, charge, drift)
     if charge is not None:
         forecasts, set_aside = _consistent_with_charge(forecasts, law.model)

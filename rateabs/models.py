@@ -248,6 +248,33 @@ NESTED = [("mm", "hill"), ("mm", "substrate-inhibition"), ("competitive", "mixed
           ("uncompetitive", "mixed"), ("noncompetitive", "mixed")]
 
 
+# --------------------------------------------------------------------------- time origin
+
+#: Where the integrated rate laws (``ratelaw``, ``completion``, ``grade``) and the integrated
+#: Michaelis–Menten curves (``progress``) count time from, in words (:func:`time_origin`).
+TIME_ORIGIN = ("the file's own time zero, or the first usable reading where that lies more "
+               "than the run's span after it")
+
+
+def time_origin(t) -> tuple[np.ndarray, float]:
+    """Times counted from the origin the integrated laws use, and that origin in the file's
+    own times (s).
+
+    The file's zero stays the origin while the first usable reading lies within one observed
+    span of it (a dead time before the first reading: A0, S0 or a fixed A0 then refer to the
+    moment the file calls zero, as in the published BOD data of Bates & Watts 1988, y = 0 at
+    t = 0). Further out the zero is a clock's midnight, an epoch or an instrument's start, not
+    the reaction's: exp(-k t) at t ~ 3e4 s underflows or leaves A0 and k undetermined, so
+    times are counted from the first usable reading (as ``rates`` does). Rates and durations
+    (k, a half-life, the time to a conversion from the origin) do not depend on the shift."""
+    t = np.asarray(t, float)
+    if not t.size:
+        return t, 0.0
+    first = float(np.min(t))
+    t0 = first if first > float(np.max(t)) - first else 0.0
+    return t - t0, t0
+
+
 # --------------------------------------------------------------------------- rate laws
 # Integrated rate laws written for absorbance: A(t) = Ainf + (A0 - Ainf) f(t), where f is the
 # fraction of reactant left. Absorbance is linear in the extent of reaction whichever species

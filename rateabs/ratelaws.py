@@ -22,7 +22,7 @@ import numpy as np
 from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, f_test, fd_step, fit, fmt_p, fmt_pm
-from .models import LINE, RATE_LAWS, Model, guess_decay, mixed2
+from .models import LINE, RATE_LAWS, Model, guess_decay, mixed2, time_origin
 from .options import DRIFT_CHOICES, ORDERS
 from .slopes import noise_sigma
 from .traces import Grid
@@ -81,6 +81,9 @@ class RateLawResult:
     with or without drift) whose ΔAICc is within :data:`EVIDENCE_DELTA` of the best: more than
     one means the data do not tell the orders apart. ``quality`` is the fit-quality gate
     (:func:`fit_quality`); ``flags`` are short words, ``notes`` sentences for a person.
+    The fit counts time from ``t0`` (s in the file's own times): the file's zero, or the first
+    usable reading where that lies far from it (:func:`rateabs.models.time_origin`); A0 is
+    the absorbance at that origin.
     """
 
     trace: str
@@ -97,6 +100,7 @@ class RateLawResult:
     quality: dict = field(default_factory=dict)
     drift_test: dict | None = None
     flags: list = field(default_factory=list)
+    t0: float = 0.0
 
     @property
     def drift(self) -> Param | None:
@@ -114,7 +118,7 @@ class RateLawResult:
              "runs_test_p": self.fit.runs_p, "quality": self.quality,
              "orders_not_told_apart": list(self.plausible) if len(self.plausible) > 1 else [],
              "drift_test": self.drift_test, "flags": list(self.flags),
-             "notes": self.notes + list(self.fit.notes)}
+             "time_origin_s": self.t0, "notes": self.notes + list(self.fit.notes)}
         if self.comparison is not None:
             d["evidence"] = self.comparison.to_dict()
         return d
@@ -226,7 +230,8 @@ def _check_trace(t, y, name, expect) -> tuple[bool, float]:
     sigma = float(noise_sigma(g)[0])
     turn = overshoot(t, y, sigma)
     if turn is not None:
-        raise AnalysisError(f"trace {name} {turn[0]} (turning near {turn[1] / 60:.3g} min): no "
+        raise AnalysisError(f"trace {name} {turn[0]} (turning near {turn[1] / 60:.3g} min from "
+                            "the time origin): no "
                             "single integrated rate law describes it",
                             "fit the part before or after the turn (an intermediate that forms "
                             "and decays needs a consecutive-reaction model)")
@@ -353,14 +358,15 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     (``auto``, the commands' default), always (``on``) or never (``off``, the default here, so
     that callers such as ``grade`` keep the plain laws). Refuses (AnalysisError) a trace that is too
     short, flat, moves against ``expect``, or rises then falls; and an ``auto`` choice the data
-    cannot make because AICc is undefined (too few readings).
+    cannot make because AICc is undefined (too few readings). Times are counted from the
+    origin :func:`rateabs.models.time_origin` sets (its file time is ``law.t0``).
     """
     if order not in ORDERS:
         raise UsageError(f"unknown order {order!r}", f"use one of {', '.join(ORDERS)}")
     if drift not in DRIFT_CHOICES:
         raise UsageError(f"unknown drift choice {drift!r}", f"use one of {', '.join(DRIFT_CHOICES)}")
     ph = photometry or Photometry()
-    t = np.asarray(t, float)
+    t, t0 = time_origin(t)
     y = np.asarray(y, float)
     rising, noise = _check_trace(t, y, name, expect)
     orders = ["0", "1", "2"] if order == "auto" else [order]
@@ -376,7 +382,7 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     quality = fit_quality(r, noise)
     flags = _flags(r, quality, plausible, notes, t, half)
     law = RateLawResult(name, base, r, k_conc, half, c0, comp, fits, notes, chosen, plausible,
-                        quality, drift_test, flags)
+                        quality, drift_test, flags, t0)
     _explain(law)
     return law
 
@@ -488,7 +494,7 @@ def guggenheim(t, y, delta: float | None = None, level: float = 0.95) -> dict:
     (default: half the run, which common practice asks to be two or three half-lives). Readings are
     paired by interpolating the trace at t + delta.
     """
-    t = np.asarray(t, float)
+    t, _ = time_origin(t)
     y = np.asarray(y, float)
     span = t[-1] - t[0]
     delta = span / 2 if delta is None else float(delta)

@@ -8,6 +8,11 @@ from ..fitting import fmt_pm
 from .style import GRID, INK, PALETTE, SHADE, house_style, legend_below, save
 
 
+def time_label(t0: float) -> str:
+    """The time axis of a rate-law figure, times as fitted (rateabs.models.time_origin)."""
+    return "time (min)" if t0 == 0 else "time since the first usable reading (min)"
+
+
 def _params_line(law) -> str:
     """k, t½ and the drift of a fit, for a title line above the axes (never over the data)."""
     from ..ratelaws import identifiable
@@ -36,7 +41,7 @@ def ratelaw_plots(analysis, out):
     for name, law in laws.items():
         i = g.names.index(name)
         ok = g.usable[i]
-        t, y = g.times[i][ok], g.values[i][ok]
+        t, y = g.times[i][ok] - law.t0, g.values[i][ok]      # as fitted: from the time origin
         r = law.fit
         vals = r.values()
         with house_style() as plt:
@@ -60,7 +65,7 @@ def ratelaw_plots(analysis, out):
             ax.tick_params(labelbottom=False)
             axr.plot(t / 60, (y - r.fitted) * 1e3, "o", ms=2.5, color=PALETTE[0])
             axr.axhline(0, color=INK, lw=0.7)
-            axr.set_xlabel("time (min)")
+            axr.set_xlabel(time_label(law.t0))
             axr.set_ylabel("residual (mAU)")
             _linearised(axl, law, t, y, tc)
             files.append(save(fig, out / f"ratelaw_{safe_filename(name)}.png"))
@@ -89,7 +94,7 @@ def _linearised(axl, law, t, y, tc) -> None:
         axl.plot(t / 60, y, "o", ms=3, color=PALETTE[0])
         axl.plot(tc / 60, r.func(tc, *vals.values()), color=PALETTE[1])
         axl.set_ylabel("absorbance (AU)")
-    axl.set_xlabel("time (min)")
+    axl.set_xlabel(time_label(law.t0))
     axl.set_title(f"linearised view of order {law.order}\n(inspection only"
                   + ("; drift removed)" if "drift" in vals else ")"), fontsize=9.5)
 
@@ -112,7 +117,7 @@ def completion_plot(c, ts, path):
     g = ts.grid()
     i = g.names.index(c.trace)
     ok = g.usable[i]
-    t, y = g.times[i][ok], g.values[i][ok]
+    t, y = g.times[i][ok] - c.law.t0, g.values[i][ok]    # as fitted: from the time origin
     horizon = _horizon(c, t)
     tc = np.linspace(0, horizon, 400)
     with house_style() as plt:
@@ -135,7 +140,7 @@ def completion_plot(c, ts, path):
         if c.charge is not None:
             _charge_marks(ax, c)
         ax.axvline(c.t_now / 60, color=GRID, lw=1)
-        ax.set_xlabel("time (min)")
+        ax.set_xlabel(time_label(c.law.t0))
         ax.set_ylabel("absorbance (AU)")
         verdict = c.verdict.split(":")[0].lower()
         conv = c.conversion

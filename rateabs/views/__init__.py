@@ -120,6 +120,50 @@ def time_settings(info: dict) -> dict:
             "clock_reading_source": info.get("clock_reading_source")}
 
 
+def file_time_text(seconds: float, info: dict) -> str:
+    """A moment in the file's own times: h:mm:ss for clock times, else in the time column's
+    unit ('09:00:00', '12000 s', '200 min')."""
+    from ..units import time_factor
+
+    unit = info.get("time_unit") or "s"
+    if unit == "clock":
+        h, rem = divmod(round(float(seconds)), 3600)
+        m, sec = divmod(rem, 60)
+        return f"{h:02d}:{m:02d}:{sec:02d}"
+    return f"{seconds / (time_factor(unit) or 1.0):g} {unit}"
+
+
+def origin_words(info: dict, t0s) -> str:
+    """Where times are counted from (:func:`rateabs.models.time_origin`), with that moment in
+    the file's own times: 'times counted from the first usable reading, 09:00:00 (32400 s in
+    the file), ...', or from the file's own zero."""
+    t0s = sorted({float(t) for t in t0s})
+    moved = [t for t in t0s if t != 0]
+    if not moved:
+        return "times counted from the file's own zero (as in the file)"
+    first, last = file_time_text(moved[0], info), file_time_text(moved[-1], info)
+    clock = (info.get("time_unit") or "s") == "clock"
+    why = "the file's zero lies more than the run's span before it"
+    if len(t0s) == 1:
+        where = f"{first} ({moved[0]:g} s in the file)" if clock else f"{first} in the file"
+        return f"times counted from the first usable reading, {where}: {why}"
+    span = first if len(moved) == 1 else f"{first} to {last}"
+    return (f"times counted from the file's own zero, or from a trace's first usable reading "
+            f"({span} in the file) where {why}")
+
+
+def origin_settings(info: dict, t0s) -> dict:
+    """The time-origin entries of a document's settings: what times are counted from, that
+    moment in seconds of the file's times (one value, or null where the traces differ: each
+    result has its own ``time_origin_s``) and in words."""
+    from ..models import TIME_ORIGIN
+
+    t0s = sorted({float(t) for t in t0s})
+    return {"times_counted_from": TIME_ORIGIN,
+            "time_origin_s": t0s[0] if len(t0s) == 1 else None,
+            "time_origin_in_words": origin_words(info, t0s)}
+
+
 def clock_reading_words(info: dict) -> str:
     """How two-part clock times were read (m:ss or h:mm), why, and the option for the other
     reading."""

@@ -11,6 +11,8 @@ from . import (
     check_rate_law_fix,
     deliver,
     each_trace,
+    file_time_text,
+    origin_settings,
     rate_law_orders,
     read_for,
     run_outputs,
@@ -37,8 +39,9 @@ def _percent(p: dict | None) -> str:
     return f"{100 * p['value']:.2f} %{band}"
 
 
-def _describe(r: dict) -> str:
-    """One trace's forecast for a person, every number with its unit."""
+def _describe(r: dict, info: dict) -> str:
+    """One trace's forecast for a person, every number with its unit; times counted from the
+    time origin, the forecast moment also in the file's own times (``info``)."""
     k = r["k"]
     order = r["model"]
     lines = [f"{r['trace']}: order {order}"
@@ -52,13 +55,16 @@ def _describe(r: dict) -> str:
         lines.append(f"  baseline drift = {param_text(per_min)} mAU/min (fitted with the rate "
                      "law)")
     basis = "of the charge" if r["conversion_basis"] == "charge" else "of the fitted change"
-    lines.append(f"  conversion at the last reading ({r['t_now_s'] / 60:.1f} min): "
+    lines.append(f"  conversion at the last reading ({r['t_now_s'] / 60:.1f} min from the "
+                 "time origin): "
                  f"{_percent(r['conversion'])} {basis}")
     t = r["t_target_s"]
     target = f"{100 * r['target']:g} %"
     if t.get("value") is not None:
         rest = max(t["value"] - r["t_now_s"], 0) / 60
-        lines.append(f"  time to {target}: {_minutes(t)} ({rest:.1f} min after the last reading; "
+        when = file_time_text(r["time_origin_s"] + t["value"], info)
+        lines.append(f"  time to {target}: {_minutes(t)} from the time origin (at "
+                     f"{when} in the file's times; {rest:.1f} min after the last reading; "
                      f"{r['extrapolation_multiple']:.1f} times the observed span)")
     else:
         lines.append(f"  time to {target}: no forecast: {r['no_forecast_because']}")
@@ -117,10 +123,12 @@ def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
         results.append({**c.to_dict(), "status": "ok"})
         warnings += [f"{name}: {n}" for n in c.notes]
     warnings.append(CAUTION)
+    t0s = [c.law.t0 for c in done.values()]
     settings = {"target": o.target / 100, "order": o.order, "drift": o.drift, "level": o.level,
                 "fixed": o.fix, "c0_M": ph.c0_M, "epsilon": ph.epsilon,
                 "epsilon_product": ph.epsilon_product, "pathlength_cm": ph.pathlength_cm,
                 "end_absorbance": o.end_absorbance, **time_settings(ts.info),
+                **origin_settings(ts.info, t0s),
                 "columns_set_aside": ts.info.get("set_aside") or {},
                 "interval": "profile-likelihood interval of the rate mapped through t(rate); "
                             "the envelope of every order that carries weight",
@@ -129,13 +137,13 @@ def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
                         "charge too when it is given), the fit passes the quality gate and the "
                         "end point neither stalls short of the charge nor lies below zero"}
     doc = document("completion", [o.file], settings, results, warnings)
-    head = [f"completion: {o.file}", *reader_lines(ts),
+    head = [f"completion: {o.file}", *reader_lines(ts, t0s),
             f"target: {o.target:g} % conversion "
             + ("of the charge" if ph.c0_M is not None or o.end_absorbance is not None
                else "of the fitted change (no charge given)")
             + f"; order: {'chosen by evidence' if o.order == 'auto' else o.order + ' (given)'}"
             f"; baseline drift: {o.drift}; intervals {100 * o.level:g} %"]
-    lines = [_describe(r) for r in doc["results"] if r.get("status") == "ok"]
+    lines = [_describe(r, ts.info) for r in doc["results"] if r.get("status") == "ok"]
     lines += [f"{r['trace']}: {r['status']}" for r in results if r.get("status", "ok") != "ok"]
     table = "\n".join(head) + "\n\n" + "\n\n".join(lines) + "\n\n" + warning_block(
         doc["warnings"])
@@ -161,8 +169,8 @@ def _progress_line(stamp: str, r: dict) -> str:
     when = (f"{100 * r['target']:g} % at {_minutes(t)}" if t.get("value") is not None
             else f"no forecast ({r['no_forecast_because']})")
     return (f"[{stamp}] {r['trace']}: {_percent(r['conversion'])} at {r['t_now_s'] / 60:.1f} "
-            f"min; {when}; {r['verdict']}" + (f"; flags: {', '.join(r['flags'])}"
-                                             if r["flags"] else ""))
+            f"min from the time origin; {when}; {r['verdict']}"
+            + (f"; flags: {', '.join(r['flags'])}" if r["flags"] else ""))
 
 
 def _update(o: CompletionOptions, view: View, n: int, stamp: str, echo) -> None:

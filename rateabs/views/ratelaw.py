@@ -11,6 +11,8 @@ from . import (
     check_rate_law_fix,
     deliver,
     each_trace,
+    origin_settings,
+    origin_words,
     rate_law_orders,
     read_for,
     time_settings,
@@ -18,11 +20,14 @@ from . import (
 )
 
 
-def reader_lines(ts) -> list[str]:
-    """What the reader decided, for the head of a table: the time column and its unit, and
-    every column it set aside (never read as a trace)."""
+def reader_lines(ts, t0s=()) -> list[str]:
+    """What the reader decided, for the head of a table: the time column and its unit, where
+    times are counted from (``t0s``: each fitted trace's first usable reading, s in the file),
+    and every column it set aside (never read as a trace)."""
     info = ts.info
     lines = [f"time: {time_words(info)}"]
+    if len(t0s):
+        lines.append(f"time origin: {origin_words(info, t0s)}")
     aside = info.get("set_aside") or {}
     if aside:
         lines.append("columns set aside (not traces): " + ", ".join(
@@ -167,17 +172,18 @@ def compute_ratelaw(o: RatelawOptions) -> View:
         results.append(_result(name, *res, ts))
         warnings += [f"{name}: {n}" for n in res[0].notes + list(res[0].fit.notes)]
     series = _pseudo_series(o, laws, warnings) if o.excess else None
+    t0s = [law.t0 for law in laws.values()]
     settings = {"order": o.order, "drift": o.drift, "ci": o.ci, "level": o.level,
                 "epsilon": ph.epsilon, "epsilon_product": ph.epsilon_product,
                 "pathlength_cm": ph.pathlength_cm, "c0_M": ph.c0_M, "fixed": o.fix,
-                **time_settings(ts.info),
+                **time_settings(ts.info), **origin_settings(ts.info, t0s),
                 "columns_set_aside": ts.info.get("set_aside") or {}, "expect": o.expect,
                 "guggenheim_delta_s": o.guggenheim, "pseudo_first_order": series}
     doc = document("ratelaw", [o.file], settings, results, warnings)
     excess = dict(zip(series["traces"], series["conc_M"], strict=True)) if series else {}
     flat = [_flat(r, excess) for r in results] + ([_series_row(series)] if series else [])
     cols = list(dict.fromkeys(k for f in flat for k in f))
-    head = [f"ratelaw: {o.file}", *reader_lines(ts),
+    head = [f"ratelaw: {o.file}", *reader_lines(ts, t0s),
             "order: " + ("chosen by evidence (AICc over orders 0, 1, 2)" if o.order == "auto"
                          else f"{o.order} (given)") + f"; baseline drift: {o.drift}"]
     return View(doc, _text(results, laws, series, head, doc["warnings"], o.level),
