@@ -167,9 +167,14 @@ def fit_first_order(t: np.ndarray, y: np.ndarray, name: str) -> tuple[list, list
 
 
 def first_order(path: str, settings: dict) -> dict:
-    """k and the half-life from the first-order fit of the chosen trace."""
+    """k and the half-life from the first-order fit of the chosen trace, in times counted
+    from the origin ``ratelaw`` uses (:func:`rateabs.models.time_origin`: a run whose clock
+    starts at 14:00:00 is fitted from its first reading; its origin goes into the facts)."""
+    from ..models import time_origin
+
     ts, facts = read_run(path, settings)
     t, y = trace_readings(ts, facts)
+    t, t0 = time_origin(t)
     k, half, fitted = fit_first_order(t, y, facts["trace"])
     alt = {}
     if facts["signal"] in ("percent", "transmittance"):
@@ -178,7 +183,7 @@ def first_order(path: str, settings: dict) -> dict:
             alt = {"k": k_raw, "half_life": half_raw}
         except RateabsError:
             alt = {}
-    facts.update(span_s=[float(t[0]), float(t[-1])], fit="first-order")
+    facts.update(span_s=[float(t[0]), float(t[-1])], time_origin_s=t0, fit="first-order")
     figure = _lists({"x": t, "y": y, "fit_x": t, "fit_y": fitted, "resid_x": t,
                      "resid": y - fitted, "window": None, "kind": "time"})
     return {"values": {"k": k, "half_life": half}, "alt": alt, "facts": facts,

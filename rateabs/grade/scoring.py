@@ -236,10 +236,23 @@ def assumptions(facts: dict, rubric: Rubric, reading: dict, unit_note: str | Non
     else:
         a, b = (w * x for w in facts["span_s"])
         out.append(f"first-order fit A = Ainf + (A0 - Ainf) exp(-k t) over {a:g}-{b:g} s, "
-                   "every usable reading")
+                   f"every usable reading{_origin(facts, x)}")
     out.append(f"{facts['n_used']} readings used, {facts.get('masked', 0)} left out (over range "
                "or missing)")
     return out + [f"the reader: {n}" for n in facts.get("reader_notes", [])]
+
+
+def _origin(facts: dict, times: float) -> str:
+    """Where a fit's times are counted from, when not from the file's zero
+    (:func:`rateabs.models.time_origin`): the first reading in the file's own times."""
+    from ..io.times import file_time_text
+
+    t0 = facts.get("time_origin_s") or 0.0
+    if not t0:
+        return ""
+    unit = "clock" if facts.get("time_source") == "clock" else facts.get("time_unit")
+    return (f", t counted from your first reading ({file_time_text(t0 * times, unit)} in your "
+            "file)")
 
 
 def _time_sentence(facts: dict, reading: dict, rubric: Rubric) -> str:
@@ -273,5 +286,7 @@ def figure(fig: dict, times: float, facts: dict) -> dict:
         out["ylabel"] = f"rate ({facts.get('rate_unit') or 'table units'})"
     else:
         out["ylabel"] = "absorbance (AU)"
+        if facts.get("time_origin_s"):
+            out["xlabel_note"] = "since your first reading"
     return out
 

@@ -51,6 +51,21 @@ _PATTERN = re.compile(r"(?<![a-z:])(h{1,2}|m{1,2}):(mm|ss)(?![a-z:])", re.IGNORE
 _PATTERN_READING = {("h", "m"): "h:mm", ("m", "s"): "m:ss"}
 
 
+def file_time_text(seconds: float, unit: str | None) -> str:
+    """A moment (s) written as the file writes its times: h:mm:ss (hours past 24 kept) for
+    clock times (``unit`` "clock"), else in the time column's unit ('12000 s', '200 min').
+
+    >>> file_time_text(50400, "clock"), file_time_text(12000, "min")
+    ('14:00:00', '200 min')
+    """
+    unit = unit or "s"
+    if unit == "clock":
+        h, rem = divmod(round(float(seconds)), 3600)
+        m, sec = divmod(rem, 60)
+        return f"{h:02d}:{m:02d}:{sec:02d}"
+    return f"{seconds / TIME_UNITS.get(unit.lower(), 1.0):g} {unit}"
+
+
 def clock_seconds(cell: str, two_part: str = DEFAULT_TWO_PART) -> float | None:
     """Seconds of a clock string (``h:mm:ss``; ``a:b`` read as ``two_part``, m:ss or h:mm) or
     of a time with its unit (``30 s``)."""

@@ -201,7 +201,8 @@ def student_svg(figure: dict) -> str:
     parts.append(_dots(ax(x[::thin]), ay(y[::thin]), PALETTE[0]))
     parts.append(_line(ax(fx), ay(fy), PALETTE[1]))
     parts.append(_dots(ax(rx[::thin]), ar(rr[::thin]), PALETTE[0], 4.0))
-    xlabel = figure.get("xlabel") or f"time ({xunit})"
+    note = figure.get("xlabel_note")
+    xlabel = figure.get("xlabel") or (f"time {note} ({xunit})" if note else f"time ({xunit})")
     parts.append(_text((left + right) / 2, h - 10, xlabel))
     parts.append(_text(16, (top + bottom) / 2, figure.get("ylabel", ""), rotate=True))
     parts.append(_text(16, (r_top + r_bottom) / 2, residual_label(figure.get("ylabel", "")),

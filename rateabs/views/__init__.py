@@ -121,16 +121,10 @@ def time_settings(info: dict) -> dict:
 
 
 def file_time_text(seconds: float, info: dict) -> str:
-    """A moment in the file's own times: h:mm:ss for clock times, else in the time column's
-    unit ('09:00:00', '12000 s', '200 min')."""
-    from ..units import time_factor
+    """A moment in the file's own times (:func:`rateabs.io.times.file_time_text`)."""
+    from ..io.times import file_time_text as text
 
-    unit = info.get("time_unit") or "s"
-    if unit == "clock":
-        h, rem = divmod(round(float(seconds)), 3600)
-        m, sec = divmod(rem, 60)
-        return f"{h:02d}:{m:02d}:{sec:02d}"
-    return f"{seconds / (time_factor(unit) or 1.0):g} {unit}"
+    return text(seconds, info.get("time_unit"))
 
 
 def origin_words(info: dict, t0s) -> str:
