@@ -24,7 +24,7 @@ from scipy import special
 from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
 from .fitting import FitResult, Param, f_test, fit, fmt_p, line_slope
-from .models import Model
+from .models import Model, time_origin
 from .units import concentration_factor
 
 
@@ -83,6 +83,7 @@ class Curves:
     s0: np.ndarray     # µM
     enzyme: np.ndarray | None = None
     species: str = "product"       # which species absorbs (how p was made from absorbance)
+    t0: np.ndarray | None = None   # s: each curve's time origin in the file's own times
 
 
 def curves_from_absorbance(names, times, absorbance, s0_uM, enzyme=None, *, epsilon: float,
@@ -92,14 +93,18 @@ def curves_from_absorbance(names, times, absorbance, s0_uM, enzyme=None, *, epsi
     The product formed (µM, plus a baseline the fit takes care of) is +A/(epsilon b) when the
     product absorbs and -A/(epsilon b) when the substrate absorbs (its absorbance falls as
     product forms). ``epsilon`` in L mol^-1 cm^-1, ``pathlength_cm`` in cm, ``s0_uM`` per curve.
+    Each curve's times are counted from its origin (:func:`rateabs.models.time_origin`: the
+    file's zero, or the first usable reading where that lies more than the curve's span after
+    it); S0 is the substrate at that origin.
     """
     if species not in ("product", "substrate"):
         raise UsageError(f"unknown absorbing species {species!r}", "use product or substrate")
     scale = (1.0 if species == "product" else -1.0) * 1e6 / (epsilon * pathlength_cm)
-    return Curves(list(names), [np.asarray(t, float) for t in times],
+    shifted = [time_origin(t) for t in times]
+    return Curves(list(names), [t for t, _ in shifted],
                   [scale * np.asarray(a, float) for a in absorbance],
                   np.asarray(s0_uM, float), None if enzyme is None else np.asarray(enzyme, float),
-                  species)
+                  species, np.array([t0 for _, t0 in shifted]))
 
 
 def in_unit(params: dict, unit: str) -> dict:

@@ -46,7 +46,8 @@ def _fit_figure(plt, a):
     axr.axhline(0, color=INK, lw=0.7)
     ax.set_ylabel(f"product formed ({u})")
     axr.set_ylabel(f"residual ({u})")
-    axr.set_xlabel("time (min)")
+    moved = c.t0 is not None and bool(np.any(c.t0 != 0))
+    axr.set_xlabel("time since the first usable reading (min)" if moved else "time (min)")
     km, vm = a.params["Km"], a.params["Vmax"]
     ax.set_title("integrated Michaelis–Menten, one global fit\n"
                  f"Km = {fmt_pm(km.value, km.se, unit=unit_text(km.unit))},  "

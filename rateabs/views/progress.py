@@ -9,7 +9,7 @@ import numpy as np
 from ..errors import UsageError
 from ..options import ProgressOptions
 from ..output import document, render_table, rows_to_csv
-from . import View, deliver, read_for, time_settings, time_words
+from . import View, deliver, origin_settings, origin_words, read_for, time_settings, time_words
 
 
 def _column(o: ProgressOptions, meta, col: str, flag: str):
@@ -123,13 +123,15 @@ def _curves(o: ProgressOptions):
 
 def _result(a, c) -> dict:
     enzyme = c.enzyme if c.enzyme is not None else [None] * len(c.names)
+    origins = c.t0 if c.t0 is not None else [0.0] * len(c.names)
     return {"model": "integrated-mm" + ("+product-inhibition" if "Kp" in a.params else ""),
             "params": {k: p.to_dict() for k, p in a.params.items()},
             "n_curves": len(c.names), "n": a.fit.n, "aicc": a.fit.aicc,
             "sigma_uM": a.fit.sigma, "runs_test_p": a.fit.runs_p,
             "curves": [{"trace": n, "S0_uM": float(s), "conversion": float(cv),
-                        "enzyme": None if e is None else float(e)}
-                       for n, s, cv, e in zip(c.names, c.s0, a.conversion, enzyme, strict=True)],
+                        "enzyme": None if e is None else float(e), "time_origin_s": float(t0)}
+                       for n, s, cv, e, t0 in zip(c.names, c.s0, a.conversion, enzyme, origins,
+                                                  strict=True)],
             "equation": "S = Km W((S0/Km) exp((S0 - Vmax t)/Km)) (Schnell & Mendoza 1997)",
             "notes": list(a.fit.notes)}
 
@@ -171,13 +173,15 @@ def compute_progress(o: ProgressOptions) -> View:
         a.warnings.extend(_enzyme_warning(meta, curves.names))
     res = _result(a, curves)
     results = [res] + ([{"test": "selwyn", **a.selwyn}] if a.selwyn else [])
-    doc = document("progress", [o.file], {**_settings_json(o), **time_settings(info)}, results,
-                   a.warnings)
+    t0s = curves.t0 if curves.t0 is not None else [0.0]
+    doc = document("progress", [o.file], {**_settings_json(o), **time_settings(info),
+                                          **origin_settings(info, t0s)}, results, a.warnings)
     rows = [{"p": k, "v": p.value, "se": p.se, "lo": p.ci_low, "hi": p.ci_high, "u": p.unit,
              "m": p.ci_method} for k, p in a.params.items()]
     flat = [{"parameter": r["p"], "value": r["v"], "se": r["se"], "ci_low": r["lo"],
              "ci_high": r["hi"], "unit": r["u"]} for r in rows]
-    text = f"time: {time_words(info)}\n\n" + _text(a, res, rows, o.level)
+    text = (f"time: {time_words(info)}\ntime origin: {origin_words(info, t0s)}\n\n"
+            + _text(a, res, rows, o.level))
     return View(doc, text, rows_to_csv(flat, list(flat[0])), a)
 
 
