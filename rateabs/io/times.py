@@ -26,6 +26,7 @@ time is written on clocks either way).
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass, field
 
@@ -63,7 +64,9 @@ def file_time_text(seconds: float, unit: str | None) -> str:
         h, rem = divmod(round(float(seconds)), 3600)
         m, sec = divmod(rem, 60)
         return f"{h:02d}:{m:02d}:{sec:02d}"
-    return f"{seconds / TIME_UNITS.get(unit.lower(), 1.0):g} {unit}"
+    per = TIME_UNITS.get(unit.lower(), 1.0)
+    places = max(0, math.ceil(math.log10(per))) + 1          # to a tenth of a second or finer
+    return f"{seconds / per:.{places}f}".rstrip("0").rstrip(".") + f" {unit}"
 
 
 def clock_seconds(cell: str, two_part: str = DEFAULT_TWO_PART) -> float | None:

@@ -62,9 +62,10 @@ def _describe(r: dict, info: dict) -> str:
     target = f"{100 * r['target']:g} %"
     if t.get("value") is not None:
         rest = max(t["value"] - r["t_now_s"], 0) / 60
-        when = file_time_text(r["time_origin_s"] + t["value"], info)
-        lines.append(f"  time to {target}: {_minutes(t)} from the time origin (at "
-                     f"{when} in the file's times; {rest:.1f} min after the last reading; "
+        when = (f"at {file_time_text(r['time_origin_s'] + t['value'], info)} in the file's "
+                "times; " if r["time_origin_s"] else "")
+        lines.append(f"  time to {target}: {_minutes(t)} from the time origin ({when}"
+                     f"{rest:.1f} min after the last reading; "
                      f"{r['extrapolation_multiple']:.1f} times the observed span)")
     else:
         lines.append(f"  time to {target}: no forecast: {r['no_forecast_because']}")
