@@ -24,6 +24,7 @@ from .distributions import t_two_sided
 from .errors import AnalysisError, InputError, UsageError
 from .fitting import FitResult, Param, fit
 from .io import number_column, pick_column
+from .io.headers import temperature_unit
 from .models import LINE
 from .units import (
     FAHRENHEIT_RULE,
@@ -203,18 +204,6 @@ def to_kelvin(T, unit: str):
     return {"K": lambda t: t, "C": celsius_to_kelvin, "F": fahrenheit_to_kelvin}[unit](T)
 
 
-def header_temperature_unit(header: str) -> str | None:
-    """The temperature unit a header names (K, C or F), or None."""
-    h = header.lower()
-    if re.search(r"°\s*f|º\s*f|\(f\)|\[f\]|_f$|fahrenheit|\bdeg\s*f\b|\bf\b", h):
-        return "F"
-    if re.search(r"\(k\)|\[k\]|_k$|kelvin|\bk\b", h):
-        return "K"
-    if re.search(r"°|º|\(c\)|\[c\]|_c$|celsius|\bc\b", h):
-        return "C"
-    return None
-
-
 def _looks_like(unit: str, T) -> str | None:
     """The unit the values look like instead of ``unit`` (common practice for a liquid: see
     KELVIN_ABOVE), or None where they fit ``unit``."""
@@ -241,7 +230,7 @@ def temperature_unit_of(T, header: str, given: str | None, path: str = "table"
 
 
 def _temperature_unit(T, header: str, given: str | None, path: str) -> tuple[str, str, list]:
-    said = header_temperature_unit(header)
+    said = temperature_unit(header)
     span = f"{np.min(T):g} to {np.max(T):g}"
     if given is not None:
         if said not in (None, given):

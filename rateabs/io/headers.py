@@ -74,9 +74,21 @@ def is_temperature(header: str) -> bool:
     return _bracketed(header) in (["c"], ["k"])
 
 
-def temperature_unit(header: str) -> str:
-    """``"K"`` when a temperature header names kelvin (``T (K)``, ``Kelvin``), else ``"C"``."""
-    return "K" if "kelvin" in words(header) or _bracketed(header) == ["k"] else "C"
+def temperature_unit(header: str) -> str | None:
+    """The temperature unit a header names, ``"K"``, ``"C"`` or ``"F"``, or None (the one home
+    of this rule: the reader's temperature columns and ``rateabs temperature``).
+
+    >>> [temperature_unit(h) for h in ("T (K)", "Temp. [°C]", "T_F", "Kelvin", "Temperature")]
+    ['K', 'C', 'F', 'K', None]
+    """
+    h = header.lower()
+    if re.search(r"°\s*f|º\s*f|\(f\)|\[f\]|_f$|fahrenheit|\bdeg\s*f\b|\bf\b", h):
+        return "F"
+    if re.search(r"\(k\)|\[k\]|_k$|kelvin|\bk\b", h):
+        return "K"
+    if re.search(r"°|º|\(c\)|\[c\]|_c$|celsius|\bc\b", h):
+        return "C"
+    return None
 
 
 def is_time(header: str) -> bool:

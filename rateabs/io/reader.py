@@ -9,7 +9,7 @@ import numpy as np
 
 from ..errors import InputError, UsageError
 from ..traces import TraceSet
-from ..units import TIME_UNITS
+from ..units import TIME_UNITS, fahrenheit_to_kelvin
 from .blocks import read_blocks
 from .body import RowLog
 from .headers import temperature_unit
@@ -199,7 +199,9 @@ def _trace_meta(ts: TraceSet, parsed: Parsed, facts: dict[str, float]) -> None:
 def _kelvin(col: str, mean: float) -> tuple[float, str | None]:
     """The mean of a temperature column in K; values that contradict the header's unit are read
     in the unit they fit, with a warning."""
-    said = temperature_unit(col)
+    said = temperature_unit(col) or "C"        # a plate reader's bare 'Temperature': °C
+    if said == "F":
+        return fahrenheit_to_kelvin(mean), None
     fits = "K" if mean > 200 else "C" if mean < 150 else said
     if fits == said:
         return (mean if said == "K" else mean + 273.15), None
