@@ -302,13 +302,14 @@ def lanes() -> int:
     return _LANES if hasattr(os, "fork") else 1
 
 
-def in_lanes(calls: Sequence[Callable[[], Any]]) -> list:
-    """Each call's value, in order: the calls dealt out to :func:`lanes` lanes (this process
-    and children forked from it, :func:`forked`), or run here one after another with one lane.
-    An error is raised here as if run here; a lane whose child died is run here."""
+def in_lanes(calls: Sequence[Callable[[], Any]], n: int | None = None) -> list:
+    """Each call's value, in order: the calls dealt out to ``n`` lanes (else :func:`lanes`;
+    this process and children forked from it, :func:`forked`), or run here one after another
+    with one lane. An error is raised here as if run here (the first lane's first); a lane
+    whose child died is run here."""
     from functools import partial
 
-    n = min(lanes(), len(calls))
+    n = min(lanes() if n is None else n, len(calls)) if hasattr(os, "fork") else 1
     if n < 2:
         return [call() for call in calls]
     deal = [list(range(k, len(calls), n)) for k in range(n)]

@@ -123,23 +123,15 @@ def draw_parts(pool: DrawingProcess | None, parts: Sequence[tuple[Callable, tupl
 
 def drawn_at_once(parts: list[tuple[Callable, tuple]], at_once: int) -> list[tuple[Any, list]]:
     """In the drawing process: each part's result and the files it would have written, the
-    parts dealt out to ``at_once`` lanes (this process and children forked from it); a lane
-    whose child died is drawn here. An error in a part is raised (the first lane's first)."""
+    parts dealt out to ``at_once`` lanes (this process and children forked from it,
+    :func:`rateabs.parallel.in_lanes`); a lane whose child died is drawn here. An error in a
+    part is raised (the first lane's first)."""
     from functools import partial
 
-    from ..parallel import ChildDied, forked
+    from ..parallel import in_lanes
 
     settle_loaded()         # the parts and matplotlib, before the lanes fork
-    lanes = [list(range(k, len(parts), at_once)) for k in range(min(at_once, len(parts)))]
-    calls = [partial(_lane, [parts[i] for i in lane]) for lane in lanes]
-    drawn: dict[int, tuple[Any, list]] = {}
-    for lane, call, outcome in zip(lanes, calls, forked(calls), strict=True):
-        if isinstance(outcome.error, ChildDied):
-            outcome = forked([call])[0]                 # the first call runs here
-        if outcome.error is not None:
-            raise outcome.error
-        drawn.update(zip(lane, outcome.value, strict=True))
-    return [drawn[i] for i in range(len(parts))]
+    return in_lanes([partial(drawn_elsewhere, fn, args) for fn, args in parts], at_once)
 
 
 #: Whether this process runs one command and ends (the command line; set by
@@ -166,10 +158,6 @@ def settle_loaded() -> None:
 
     if _ONE_COMMAND:
         gc.freeze()
-
-
-def _lane(parts: list[tuple[Callable, tuple]]) -> list[tuple[Any, list]]:
-    return [drawn_elsewhere(fn, args) for fn, args in parts]
 
 
 def drawn_elsewhere(fn: Callable, args: tuple) -> tuple[Any, list]:
