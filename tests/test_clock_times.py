@@ -203,3 +203,26 @@ def test_progress_states_the_time_reading_and_the_reader_warnings(tmp_path):
     assert r.stdout.startswith("time: s (clock times in column 'time'; two-part times read as "
                                "m:ss")
     assert "--time-unit h" in r.stderr
+
+
+def test_a_clock_of_the_time_of_day_passing_midnight_is_counted_on(tmp_path):
+    """23:50:00 to 00:10:00: the times after midnight are a day later, said in a warning, and
+    the rate constant is the simulated one (against numpy.polyfit of ln(A - Ainf) on the true
+    seconds); a clock running backwards by less than half a day is still refused."""
+    t = np.arange(0, 1201, 30.0)
+    a = 0.05 + 0.9 * np.exp(-1.5e-3 * t)
+    day = (23 * 3600 + 50 * 60 + t) % 86400
+    rows = [f"{int(s // 3600):02d}:{int(s % 3600 // 60):02d}:{int(s % 60):02d},{y:.6f}"
+            for s, y in zip(day, a, strict=True)]
+    p = tmp_path / "night.csv"
+    p.write_text("time,A\n" + "\n".join(rows) + "\n")
+    ts = read_traces(p)
+    np.testing.assert_allclose(ts.grid().times[0], 85800 + t)
+    assert any("passes midnight after 23:59:30" in w for w in ts.info["warnings"])
+    r = cli("ratelaw", p, "--order", "1", "--format", "json", "--no-plots")
+    assert r.exit_code == 0, r.output
+    k = json.loads(r.stdout)["results"][0]["params"]["k"]["value"]
+    assert k == pytest.approx(-np.polyfit(t, np.log(a - 0.05), 1)[0], rel=1e-3)
+    rows[5], rows[6] = rows[6], rows[5]                      # backwards by 30 s: refused
+    p.write_text("time,A\n" + "\n".join(rows) + "\n")
+    assert cli("ratelaw", p, "--no-plots").exit_code != 0

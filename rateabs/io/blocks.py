@@ -19,7 +19,7 @@ from .metadata import PLATES, well_position
 from .parsed import Parsed
 from .sniffing import width
 from .source import Source
-from .times import TimeUnit, check_times, need_time_points
+from .times import TimeUnit, check_times, need_time_points, past_midnight
 from .values import MISSING, parse_values
 
 #: The unit of a label's time, as :data:`~rateabs.io.values.TIMED` writes it.
@@ -75,7 +75,7 @@ def read_blocks(src: Source, start: int, decimal: str, option: str | None, log: 
     names, values, flags, notes = _assemble(blocks)
     tu = TimeUnit("block labels", option, None)
     tu.decide(True)
-    times = tu.clock_times([b.time for b in blocks], [b.line for b in blocks])
+    times = past_midnight(tu.clock_times([b.time for b in blocks], [b.line for b in blocks]), tu)
     check_times(times, [b.line for b in blocks])
     need_time_points(times.size, blocks[0].line if blocks else None)
     tu.assumed_notes(times)

@@ -259,6 +259,28 @@ def check_plausible(t: np.ndarray, lines, label: str = "") -> None:
                          row=int(lines[i]))
 
 
+#: Seconds in a day: a clock of the time of day that drops by more than half of it has passed
+#: midnight.
+DAY_S = 86400.0
+
+
+def past_midnight(t: np.ndarray, tu: TimeUnit) -> np.ndarray:
+    """Clock times of day (h:mm:ss, or h:mm) that pass midnight, counted on into the next day:
+    where such a clock drops by more than half a day (23:59:30 then 00:00:00), a day is added
+    to every later time, and a warning says where. Other times are returned as they are (and
+    :func:`check_times` refuses any that run backwards)."""
+    if not tu.clock or tu.reading == "m:ss" or t.size < 2:
+        return t
+    drops = np.flatnonzero(np.diff(t) < -DAY_S / 2)
+    if not drops.size:
+        return t
+    out = t + DAY_S * np.cumsum(np.r_[0.0, np.diff(t) < -DAY_S / 2])
+    last = file_time_text(t[int(drops[0])], "clock")
+    tu.warnings.append(f"the clock in {tu.label!r} passes midnight after {last} "
+                       f"({len(drops)} time(s)): the later times are counted on the next day")
+    return out
+
+
 def check_times(t: np.ndarray, lines, label: str = "") -> None:
     """Refuse times that are not plausible, repeat, or run backwards."""
     check_plausible(t, lines, label)

@@ -16,7 +16,7 @@ from .headers import is_index, is_temperature, is_time, is_time_unit_word, time_
 from .parsed import Parsed
 from .sniffing import width
 from .source import Source
-from .times import TimeUnit, check_times, need_time_points
+from .times import TimeUnit, check_times, need_time_points, past_midnight
 from .values import cell_kind, parse_values, to_float
 
 
@@ -43,7 +43,7 @@ def read_transposed(src: Source, hdr: int, decimal: str, option: str | None, log
     label = header[0].strip()
     line = src.head_nos[hdr]
     tu = TimeUnit(label or "time row", option, time_unit_from_header(label))
-    t = tu.seconds(header[1:w], decimal, [line] * (w - 1))
+    t = past_midnight(tu.seconds(header[1:w], decimal, [line] * (w - 1)), tu)
     check_times(t, [line] * t.size)
     need_time_points(t.size, line)
     tu.assumed_notes(t)

@@ -17,7 +17,7 @@ from .long import read_long
 from .parsed import Grower, Parsed
 from .sniffing import width
 from .source import Source
-from .times import TimeUnit, check_times, need_time_points
+from .times import TimeUnit, check_times, need_time_points, past_midnight
 
 SAMPLE_ROWS = 200
 
@@ -71,6 +71,7 @@ def _read_wide(src: Source, body: Body, cols: Columns, decimal: str, tu: TimeUni
         for j, parts in aside.items():
             parts.append(table.lenient(j))
     t, values, flags, lines = grow.finish()
+    t = past_midnight(t, tu)
     check_times(t, lines)
     need_time_points(t.size, int(lines[0]) if lines.size else None)
     tu.assumed_notes(t)
