@@ -91,20 +91,34 @@ def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
     '8.064e-04 ± 4.7e-06'
     >>> fmt_pm(1234.5678, 12.3)
     '1235 ± 12'
+    >>> fmt_pm(49.999999999999972, 6.8e-14)            # noise-free data: digits capped
+    '50.00000000 ± 6.8e-14'
     """
     v, e = finite_or_none(value), finite_or_none(se)
     if v is None:
         return "-"
     if e is None or e <= 0:
-        text = f"{v:.{digits}g}"
+        return _with_unit(f"{v:.{digits}g}", unit)
+    last = math.floor(math.log10(e)) - 1              # place of the SE's second digit
+    lead = math.floor(math.log10(abs(v))) if v else last + 1
+    capped = lead - last >= MAX_SIGNIFICANT           # finer than the arithmetic carries
+    if capped:
+        last = lead - MAX_SIGNIFICANT + 1
+    if 1e-3 <= abs(v) < 1e6 or (v == 0 and 1e-3 <= e < 1e6):
+        dec = max(0, -last)
+        text = f"{v:.{dec}f} ± " + (f"{e:.1e}" if capped else f"{e:.{dec}f}")
     else:
-        last = math.floor(math.log10(e)) - 1          # place of the SE's second digit
-        if 1e-3 <= abs(v) < 1e6 or (v == 0 and 1e-3 <= e < 1e6):
-            dec = max(0, -last)
-            text = f"{v:.{dec}f} ± {e:.{dec}f}"
-        else:
-            lead = math.floor(math.log10(abs(v))) if v else last + 1
-            text = f"{v:.{max(0, lead - last)}e} ± {e:.1e}"
+        text = f"{v:.{max(0, lead - last)}e} ± {e:.1e}"
+    return _with_unit(text, unit)
+
+
+#: Most significant digits a value is shown with, however small its SE: beyond about ten the
+#: digits are those of double-precision arithmetic (16 digits, less what a fit loses), not of
+#: the data (an exact, noise-free test set gives SEs of 1e-14).
+MAX_SIGNIFICANT = 10
+
+
+def _with_unit(text: str, unit: str) -> str:
     return f"{text} {unit}" if unit else text
 
 
