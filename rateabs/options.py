@@ -131,6 +131,11 @@ def _fix(example: str = "Km=120"):
 # --------------------------------------------------------------------------- parts
 
 
+def _sheet():
+    return option("--sheet", Text("sheet name", "Sheet1"), "Sheet of an .xlsx workbook (else the "
+                  "first with data, named in a warning when there are several).")
+
+
 @dataclass(frozen=True)
 class ReaderOptions(Checked):
     """How the reader takes the file (everything else it detects and states)."""
@@ -144,8 +149,7 @@ class ReaderOptions(Checked):
                                              unit="same unit as the intensities",
                                              example="50000"),
                               "Reference intensity I0 for raw intensities.")
-    sheet: str | None = option("--sheet", Text("sheet name", "Sheet1"),
-                               "Sheet of an .xlsx workbook.")
+    sheet: str | None = _sheet()
 
     def read_kwargs(self) -> dict:
         """Keyword arguments of :func:`rateabs.io.read_traces`."""
@@ -168,7 +172,9 @@ class OutputOptions(Checked):
                          "--report).", True)
 
 
-def _check_sheet(file: str, reader: ReaderOptions) -> None:
+def _check_sheet(file: str, reader) -> None:
+    """--sheet only for workbooks (``reader``: ReaderOptions, or an options object with its
+    own ``sheet``)."""
     if Path(file).is_dir() or is_pattern(file):       # a many-file run: checked file by file
         return
     if reader.sheet is not None and Path(file).suffix.lower() not in (".xlsx", ".xlsm"):
@@ -509,6 +515,7 @@ class SaturationOptions(Checked):
     """``rateabs saturation FILE``: Michaelis–Menten family and inhibition fits."""
 
     file: str = argument("FILE", "A table of rates vs concentrations (or a rates.csv).")
+    sheet: str | None = _sheet()
     conc: str | None = option("--conc", Text("column name", "'S (uM)'"), "Substrate "
                               "concentration column (detected if not given).")
     rate: str | None = option("--rate", Text("column name", "v"), "Rate column (detected if "
@@ -563,6 +570,7 @@ class SaturationOptions(Checked):
 
     def check_together(self) -> None:
         """Refuse options the chosen model or interval method would ignore."""
+        _check_sheet(self.file, self)
         if self.weighting == "sd" and self.sd is None:
             raise UsageError("--weighting sd needs the column of SDs", "name it with --sd COLUMN")
         if self.sd is not None and self.weighting != "sd":
@@ -796,6 +804,7 @@ class TemperatureOptions(Checked):
     """``rateabs temperature FILE``: Arrhenius and Eyring from k vs T."""
 
     file: str = argument("FILE", "A table of rate constants vs temperature.")
+    sheet: str | None = _sheet()
     temp_column: str | None = option("--temp-column", Text("column name", "'T (C)'"),
                                      "Temperature column (detected if not given).")
     k_column: str | None = option("--k-column", Text("column name", "k_per_s"), "Rate-constant "
@@ -815,6 +824,10 @@ class TemperatureOptions(Checked):
                        "(repeatable; a bare number is C).", ())
     level: float = _level()
     output: OutputOptions = part(OutputOptions)
+
+    def check_together(self) -> None:
+        """--sheet only for workbooks."""
+        _check_sheet(self.file, self)
 
 
 # --------------------------------------------------------------------------- progress

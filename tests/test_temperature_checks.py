@@ -307,3 +307,40 @@ def test_a_repeated_temperature_is_counted_once(tmp_path):
     _assert_params(d, _reference(np.append(t_k, 298.15), np.append(k, 1.1 * k[2])))
     assert "from 6 temperatures" in run("temperature", _write(
         tmp_path / "s.csv", "T (C),k (1/s)", zip(t_c, k, strict=True)), "--no-plots").stdout
+
+
+def test_a_workbook_sheet_is_chosen_said_and_refused_for_a_csv(tmp_path):
+    """--sheet picks the sheet of temperature and saturation tables; without it the first sheet
+    with data is read and a warning names it; --sheet on a CSV is refused. Truths: Arrhenius
+    Ea = 50 kJ/mol (scipy.constants.R) and Michaelis–Menten Km = 50 uM, Vmax = 10 uM/min."""
+    import json
+
+    import openpyxl
+    from click.testing import CliRunner
+    from scipy import constants
+
+    from rateabs.cli import main
+
+    wb = openpyxl.Workbook()
+    wb.active.title = "cover"
+    ws = wb.create_sheet("kinetics")
+    ws.append(["T (C)", "k (1/s)"])
+    for t in (15, 20, 25, 30, 35, 40):
+        ws.append([t, 1e6 * np.exp(-50e3 / (constants.R * (t + 273.15)))])
+    ws = wb.create_sheet("sat")
+    ws.append(["S (uM)", "v (uM/min)"])
+    for s in (5, 10, 20, 40, 80, 160, 320):
+        ws.append([s, 10 * s / (50 + s)])
+    book = tmp_path / "lab.xlsx"
+    wb.save(book)
+    run = CliRunner().invoke
+    doc = json.loads(run(main, ["temperature", str(book), "--format", "json"]).stdout)
+    arrhenius = next(r for r in doc["results"] if r["model"] == "arrhenius")
+    assert arrhenius["params"]["Ea"]["value"] == pytest.approx(50.0, rel=1e-9)
+    assert any("sheet 'kinetics' was read" in w for w in doc["warnings"])
+    r = run(main, ["saturation", str(book), "--sheet", "sat", "--model", "mm", "--format", "json"])
+    assert r.exit_code == 0, r.output
+    assert "Km" in r.stdout and not any("sheets" in w for w in json.loads(r.stdout)["warnings"])
+    (tmp_path / "t.csv").write_text("T (C),k (1/s)\n20,0.001\n30,0.002\n40,0.004\n")
+    r = run(main, ["temperature", str(tmp_path / "t.csv"), "--sheet", "x"])
+    assert r.exit_code == 2 and "--sheet applies to .xlsx workbooks only" in r.output

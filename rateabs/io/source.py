@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import itertools
 from collections.abc import Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import InputError
@@ -161,6 +161,7 @@ class Cells:
     fmt: str
     delimiter: str | None
     encoding: str | None
+    notes: list[str] = field(default_factory=list)      # which sheet of a workbook was read
 
 
 def load_cells(path: str | Path, sheet: str | None = None, partial: bool = False) -> Cells:
@@ -173,4 +174,4 @@ def load_cells(path: str | Path, sheet: str | None = None, partial: bool = False
         if partial and not src.terminated and pairs:
             pairs.pop()
         return Cells([r for _, r in pairs], [n for n, _ in pairs], src.fmt, src.delimiter,
-                     src.encoding)
+                     src.encoding, list(src.notes))

@@ -17,16 +17,17 @@ from .source import load_cells
 from .values import NUM_COMMA, is_missing, show_cell
 
 
-def read_table(path: str | Path) -> pd.DataFrame:
+def read_table(path: str | Path, sheet: str | None = None) -> pd.DataFrame:
     """Read a plain table (a plate map, a rates table, a roster) with the same sniffing.
 
     Lines starting with ``#`` and metadata lines above the header are skipped; the header is
     the first row as wide as the table. Every cell is kept as text; ``attrs`` hold the file's
-    line number of each row (``lines``), the header's (``header_line``) and the path.
+    line number of each row (``lines``), the header's (``header_line``), the path and the
+    reader's ``notes`` (which sheet of a workbook was read). ``sheet`` picks an .xlsx sheet.
     """
     path = str(path)
     try:
-        cells = load_cells(path)
+        cells = load_cells(path, sheet)
     except InputError as exc:
         raise exc.located(path) from None
     keep = [k for k, r in enumerate(cells.rows) if not (r and r[0].lstrip().startswith("#"))]
@@ -57,7 +58,7 @@ def read_table(path: str | Path) -> pd.DataFrame:
         body_lines.append(ln)
     _check_unnamed(header, body, body_lines, path)
     df = pd.DataFrame(body, columns=header, dtype=object)
-    df.attrs.update(lines=body_lines, source=path, header_line=lines[start])
+    df.attrs.update(lines=body_lines, source=path, header_line=lines[start], notes=cells.notes)
     return df
 
 

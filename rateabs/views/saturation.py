@@ -38,11 +38,12 @@ def _table(o: SaturationOptions):
     """The rate table: sample rows only (of a rates.csv), then --select."""
     from ..io import read_table
 
-    df = read_table(o.file)
+    df = read_table(o.file, o.sheet)
+    notes = list(df.attrs.get("notes", []))
     if "role" in df.columns:
         df = _keep_rows(df, df["role"].astype(str).str.strip().str.lower() == "sample")
     df = _select_rows(df, o.select)
-    df.attrs["source"] = o.file
+    df.attrs.update(source=o.file, notes=notes)
     return df
 
 
@@ -108,7 +109,9 @@ def _text(a, data, results, level: float) -> str:
 def compute_saturation(o: SaturationOptions) -> View:
     """The ``saturation`` command's results (one result per group with ``--each``)."""
     df = _table(o)
-    return each_group(o, df) if o.each else fit_table(o, df)
+    view = each_group(o, df) if o.each else fit_table(o, df)
+    view.doc["warnings"][:0] = df.attrs["notes"]        # which sheet of a workbook was read
+    return view
 
 
 def fit_table(o: SaturationOptions, df) -> View:

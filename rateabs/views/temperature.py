@@ -76,12 +76,12 @@ def compute_temperature(o: TemperatureOptions) -> View:
     from ..io import read_table
     from ..temperature import analyse, read_temperature_table
 
-    df = read_table(o.file)
+    df = read_table(o.file, o.sheet)
     T, k, se, cols, kunit = read_temperature_table(df, temp_col=o.temp_column,
                                                    k_col=o.k_column, se_col=o.se_column,
                                                    temp_unit=o.temp_unit)
     a = analyse(T, k, se, level=o.level, k_unit=kunit)
-    warnings = list(cols["notes"]) + list(a.warnings)
+    warnings = list(df.attrs["notes"]) + list(cols["notes"]) + list(a.warnings)
     preds = []
     for tk in o.at:
         ex = a.extrapolation(tk)
