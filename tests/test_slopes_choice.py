@@ -171,6 +171,22 @@ def test_a_slight_settling_baseline_that_moves_the_rate_is_flagged_more_often(se
     assert sum(bool(f) for f in find_windows(grid).flags) <= 0.03 * 160
 
 
+@pytest.mark.parametrize("seed", [5, 6])
+def test_a_steep_start_on_a_slow_trace_is_flagged_not_reported_bare(seed):
+    """Slow enzyme wells (truth by solve_ivp, 1-10 % conversion, 0.5-1e-4 A/s) under a
+    baseline that settles by 20-30 mA with a 40 s time constant: the settling alone rises or
+    falls several times faster than the reaction at the start. Where the straight window reported
+    sits on that steep start while the whole curve is flat, the rate is off by far more than
+    5 % (two such wells of 80 calibration plates read 2.3 and 3.9 times their truth with no
+    flag); each of them carries ``start``."""
+    grid, w, look = _settling_plate(seed, 64, (0.01, 0.1), (0.5, 1), 0.002, (0.02, 0.03))
+    truth = find_windows(grid).slope                # the same wells without the settling
+    steep = (w.method == "window") & np.char.startswith(w.choice, "window: the trace is flat")
+    assert steep.sum() >= 2
+    assert np.all(np.abs(w.slope[steep] - truth[steep]) > 0.3 * np.abs(truth[steep]))
+    assert all("start" in w.flags[i] for i in np.nonzero(steep)[0])
+
+
 def test_noisy_judged_on_the_readings_noise_not_a_near_zero_rate():
     """``noisy`` marks a trace whose readings are far noisier than the plate's, not a
     near-zero control whose relative SE is large (common practice)."""

@@ -35,11 +35,7 @@ def choose(estimator: str, win_b, win_se, win_weights, curves, eligible, late=No
     has_w = np.isfinite(win_b)
     v, spread = curves.v, curves.spread
     has_c = np.isfinite(v) & np.isfinite(curves.se)
-    d = np.where(has_w & has_c, win_b - v, 0.0)
-    sd = curves.sigma * np.sqrt(np.sum((win_weights - curves.v_weights) ** 2, axis=1))
-    with np.errstate(all="ignore"):
-        h = np.where(sd > 0, np.abs(d) / sd, 0.0)
-        moving = np.abs(v) > MOVING_Z * curves.se
+    d, sd, h, moving = window_against_curve(win_b, win_weights, curves)
     ok_c = has_c & eligible
     if estimator == "window":
         use_c = ~has_w & ok_c
@@ -62,6 +58,19 @@ def choose(estimator: str, win_b, win_se, win_weights, curves, eligible, late=No
     se = np.where(use_c, curves.se, np.where(use_w, win_total, np.nan))
     why = _reasons(estimator, method, has_w, ok_c, h, moving, has_c & ~eligible)
     return method, slope, se, why
+
+
+def window_against_curve(win_b, win_weights, curves):
+    """The straight window's slope against the curve's initial slope: their difference d (0
+    where either is missing), the SE of that difference sd (what the noise can hide), h = |d| /
+    sd, and whether the curve's initial slope moves (MOVING_Z SEs from zero)."""
+    has = np.isfinite(win_b) & np.isfinite(curves.v) & np.isfinite(curves.se)
+    d = np.where(has, win_b - curves.v, 0.0)
+    sd = curves.sigma * np.sqrt(np.sum((win_weights - curves.v_weights) ** 2, axis=1))
+    with np.errstate(all="ignore"):
+        h = np.where(sd > 0, np.abs(d) / sd, 0.0)
+        moving = np.abs(curves.v) > MOVING_Z * curves.se
+    return d, sd, h, moving
 
 
 def _reasons(estimator, method, has_w, has_c, h, moving, speeds) -> np.ndarray:
