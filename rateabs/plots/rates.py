@@ -16,7 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .style import GRID, INK, PALETTE, RC, SHADE, house_style, save
+from .style import GRID, INK, PALETTE, RC, SHADE, house_style, save, text_marks
 
 LOOK = "#fbe3cf"          # background of a well that needs a look
 LEFT_OUT = "#d6d6d6"      # background of a well left out of the analysis
@@ -187,13 +187,12 @@ def plate_overview(analysis, path, title: str = ""):
 
 
 def _plate_labels(ax, rlab: list[str], clab: list[str], size: float) -> None:
-    """Row letters left of the plate and column numbers below it, as plain texts (cheaper
-    than tick labels, which matplotlib measures again and again)."""
-    for r, text in enumerate(rlab):
-        ax.text(-0.15, r + 0.5, text, ha="right", va="center", fontsize=size, clip_on=False)
-    for c, text in enumerate(clab):
-        ax.text(c + 0.5, len(rlab) + 0.08, text, ha="center", va="top", fontsize=size,
-                clip_on=False)
+    """Row letters left of the plate and column numbers below it, as glyph collections
+    (:func:`~rateabs.plots.style.text_marks`; tick labels are measured again and again)."""
+    text_marks(ax, np.full(len(rlab), -0.15), np.arange(len(rlab)) + 0.5, rlab, size=size,
+               ha="right")
+    text_marks(ax, np.arange(len(clab)) + 0.5, np.full(len(clab), len(rlab) + 0.08), clab,
+               size=size, va="top")
 
 
 def _fig_title(fig, text: str, left_in: float, bottom_in: float) -> None:
@@ -257,17 +256,18 @@ def _blank_offset(analysis) -> np.ndarray:
 def _cell_labels(ax, t, rows, cols, left_out) -> None:
     """Role and flags written small in each cell (96 wells or fewer)."""
     short = {"blank": "blank", "positive": "+ ctrl", "negative": "- ctrl", "standard": "std"}
-    for k, rec in enumerate(t[["role", "flags"]].itertuples(index=False)):
+    texts, colors = [], []
+    for rec in t[["role", "flags"]].itertuples(index=False):
         text = short.get(rec.role, "")
         if rec.flags:
             text = (text + " " if text else "") + ",".join(rec.flags)
-        if text:
-            ax.text(cols[k] + 0.06, rows[k] + 0.1, text, fontsize=5.2, va="top", ha="left",
-                    color=PALETTE[1] if rec.flags else "#666666")
-    for k in range(len(left_out)):
-        i = len(t) + k
-        ax.text(cols[i] + 0.5, rows[i] + 0.5, "left out", fontsize=6, ha="center",
-                va="center", color="#666666")
+        texts.append(text)
+        colors.append(PALETTE[1] if rec.flags else "#666666")
+    n = len(texts)
+    text_marks(ax, cols[:n] + 0.06, rows[:n] + 0.1, texts, size=5.2, ha="left", va="top",
+               colors=colors)
+    text_marks(ax, cols[n:] + 0.5, rows[n:] + 0.5, ["left out"] * len(left_out), size=6,
+               colors="#666666")
 
 
 def well_pages(analysis, out, wells: list[str], stem: str = "rates",
@@ -474,10 +474,11 @@ def plate_heatmap(analysis, path):
                                              linewidths=1.4 if ncol <= 24 else 0.8))
         if ncol <= 12:
             mid = np.nanmean(grid)
-            for r, c, v in zip(rows, cols, vals, strict=True):
-                ax.text(c + 0.5, r + 0.5, "-" if not np.isfinite(v) else f"{v:.3g}",
-                        ha="center", va="center", fontsize=6.5,
-                        color="white" if np.isfinite(v) and v < mid else INK)
+            with np.errstate(invalid="ignore"):
+                light = np.isfinite(vals) & (vals < mid)
+            text_marks(ax, cols + 0.5, rows + 0.5,
+                       [f"{v:.3g}" if np.isfinite(v) else "-" for v in vals], size=6.5,
+                       colors=np.where(light, "white", INK))
         ax.set_axis_off()
         _plate_labels(ax, rlab, clab, 7 if ncol <= 24 else 5)
         fig.colorbar(im, cax=cax).set_label(f"{col.split('_')[0]} ({unit})", fontsize=8)
@@ -523,9 +524,8 @@ def replicate_plot(analysis, path, most: int = 60):
         ax.grid(False, axis="y")
         ax.hlines(np.arange(n), 0, 1, transform=ax.get_yaxis_transform(), colors=GRID,
                   lw=0.6, zorder=0)
-        for k, text in enumerate(labels):       # plain texts: cheaper than tick labels
-            ax.text(-0.02, k, text, transform=ax.get_yaxis_transform(), ha="right",
-                    va="center", fontsize=6.5)
+        text_marks(ax, np.full(n, -0.02), np.arange(n), labels, size=6.5, ha="right",
+                   transform=ax.get_yaxis_transform())     # cheaper than tick labels
         ax.set_ylim(n - 0.5, -0.5)
         ax.set_xlabel(f"{col.split('_')[0]} ({unit})")
         _fig_title(fig, "replicates: wells (dots), mean ± SD of the wells kept (bars), "
