@@ -64,8 +64,8 @@ TRACE_FLAGS = {
              "baseline or temperature): the initial slope changes beyond its SE when they are "
              "left out, or when a decaying offset at the start is allowed, fits better and "
              "moves the rate by 5 % and over 1.5 SE (evidently better) or 3 SE (only "
-             "possibly better), or the straight window reported rises or falls clearly while "
-             "the whole curve, off its slope, is flat",
+             "possibly better), or the straight window reported rises or falls clearly where "
+             "the whole curve is flat (a steep start the rest of the read does not continue)",
     "noisy": "the rate's SE is large against the plate's rates (over the noisy limit times the "
              "larger of the rate and the plate's typical rate) because the readings are far "
              "noisier than the plate's usual (three times its median noise: a bubble, a "
