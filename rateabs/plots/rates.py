@@ -338,13 +338,28 @@ def _well_page(analysis, names: list[str], path: Path) -> Path:
                 xy = np.concatenate(parts[key])
                 ax.scatter(xy[:, 0], xy[:, 1], s=size, c=colour, marker=marker, lw=0.6 if
                            marker == "x" else 0)
-        for x, y, text, kw in parts["text"]:
-            ax.text(x, y, text, **kw)
+        _page_texts(ax, parts["text"])
         legend = ("readings (dots; x masked), window (shaded), initial slope (orange), "
                   "whole-curve fit (dotted); below: residuals from the slope line (mAU)")
         fig.text(0.5, 1 - 0.06 / fig_h, textwrap.fill(legend, int(fig_w * 13)), ha="center",
                  va="top", fontsize=8.5 if fig_w > 9 else 7.5)
         return save(fig, path, tight=False, compress_level=FAST_PNG)
+
+
+def _page_texts(ax, texts: list) -> None:
+    """The cells' texts: one-line texts as glyph collections, one per style (a page of 24
+    wells has over a hundred), the others as text artists."""
+    groups: dict = {}
+    for x, y, text, kw in texts:
+        if "\n" in text or set(kw) - {"fontsize", "color", "ha", "va"}:
+            ax.text(x, y, text, **kw)
+            continue
+        style = (kw["fontsize"], kw.get("color", INK), kw.get("ha", "left"),
+                 kw.get("va", "baseline"))
+        groups.setdefault(style, []).append((x, y, text))
+    for (size, color, ha, va), items in groups.items():
+        xs, ys, words = zip(*items, strict=True)
+        text_marks(ax, xs, ys, words, size=size, ha=ha, va=va, colors=color)
 
 
 def _draw_cell(parts: dict, g, i: int, rec, analysis, row: int, col: int) -> None:

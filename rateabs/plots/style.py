@@ -269,7 +269,7 @@ def text_marks(ax, x, y, texts, *, size: float, ha: str = "center", va: str = "c
 
     font = findfont(FontProperties(size=size))
     lo, hi = _line_box(font, size)
-    dy = -(lo + _VA[va] * (hi - lo))
+    dy = 0.0 if va == "baseline" else -(lo + _VA[va] * (hi - lo))
     paths, at, keep = [], [], []
     for k, (xk, yk, text) in enumerate(zip(x, y, texts, strict=True)):
         text = drawable(text)
