@@ -117,3 +117,23 @@ def test_rubric_error_carries_every_problem(tmp_path):
     with pytest.raises(RubricError) as e:
         read_rubric(p)
     assert len(e.value.problems) == 2 and len(e.value.also) == 1
+
+
+@pytest.mark.parametrize(("quantity", "text", "per_base"), [
+    ("k", "1/sec", 1.0), ("k", "min^-1", 60.0), ("k", "per hour", 3600.0), ("k", "s⁻¹", 1.0),
+    ("half_life", "minutes", 1 / 60), ("Km", "umol/L", 1.0), ("Km", "mmol/L", 1e-3),
+    ("Vmax", "umol/L/min", 1.0), ("Vmax", "mM/s", 1e-3 / 60), ("v0", "A/min", 1.0),
+    ("k", "1/d", None), ("Km", "mg/mL", None)])
+def test_rubric_units_are_read_by_the_package_unit_rules(quantity, text, per_base):
+    """Unit spellings in a rubric or a report are read by rateabs.units, the one home of
+    unit spellings (so "1/sec" and "umol/L" mean here what they mean to every command); the
+    factor is from the base unit (k 1/s, half-life s, Km uM, rates uM/min), by hand (1 min =
+    60 s; 1 mM = 1000 uM, SI prefixes); a time must be s, min or h, the units whose slips
+    the feedback names."""
+    from rateabs.grade.rubric import parse_unit
+
+    u = parse_unit(quantity, text)
+    if per_base is None:
+        assert u is None
+    else:
+        assert u.per_base == pytest.approx(per_base, rel=1e-12)

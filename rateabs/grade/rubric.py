@@ -28,10 +28,13 @@ from pathlib import Path
 from ..errors import InputError, UsageError
 from ..options import EPSILON, PATHLENGTH, TIME_UNIT_CHOICES
 from ..rules import ConcUnit, Number, OneOf, Rule, Text, Window
+from ..units import UnitError, concentration_factor, rate_constant_unit, time_factor
 
-#: Seconds per time unit of a rubric or a report.
+#: Seconds per time unit of a rubric or a report (the time units a slip between is named for;
+#: their spellings are read by rateabs.units).
 TIME_S = {"s": 1.0, "min": 60.0, "h": 3600.0}
-#: Micromolar per concentration unit.
+#: Micromolar per concentration unit, for naming a slip between them (reading a unit is
+#: rateabs.units' business).
 CONC_UM = {"M": 1e6, "mM": 1e3, "uM": 1.0, "nM": 1e-3}
 
 #: quantity -> the model that gives it from a student's run
@@ -72,7 +75,9 @@ class Unit:
 
 
 def parse_unit(quantity: str, text: str) -> Unit | None:
-    """The unit ``text`` for ``quantity`` (None when it does not fit).
+    """The unit ``text`` for ``quantity`` (None when it does not fit). Times and
+    concentrations are read by :mod:`rateabs.units` (one home for their spellings: "1/sec",
+    "umol/L"); a time must be one of :data:`TIME_S`, the units a slip between is named for.
 
     Base units: k 1/s, half_life s, v0 uM/min (or A/min), Km uM, Vmax uM/min.
 
@@ -80,25 +85,47 @@ def parse_unit(quantity: str, text: str) -> Unit | None:
     60.0
     >>> parse_unit("v0", "mM/min").conc
     'mM'
+    >>> parse_unit("Km", "umol/L").per_base, parse_unit("k", "1/d")
+    (1.0, None)
     """
     u = str(text).strip().replace("µ", "u").replace("μ", "u").replace(" ", "")
     for minus in ("^-1", "-1", "⁻¹"):                 # s^-1, s-1, s⁻¹ and /s are 1/s
-        if u.endswith(minus) and u[:-len(minus)] in TIME_S:
+        if u.endswith(minus) and _time(u[:-len(minus)]):
             u = "1/" + u[:-len(minus)]
-    if u.startswith("/") and u[1:] in TIME_S:
+    if u.startswith("/") and _time(u[1:]):
         u = "1" + u
     if quantity == "k":
-        t = u[2:] if u.startswith("1/") else None
-        return Unit(u, TIME_S[t], time=t) if t in TIME_S else None
+        rk = rate_constant_unit(str(text))
+        t = _time(1 / rk[1]) if rk is not None and rk[0] == 1 else None
+        return Unit(u, TIME_S[t], time=t) if t else None
     if quantity == "half_life":
-        return Unit(u, 1 / TIME_S[u], time=u) if u in TIME_S else None
+        t = _time(u)
+        return Unit(u, 1 / TIME_S[t], time=t) if t else None
     if quantity == "Km":
-        return Unit(u, 1 / CONC_UM[u], conc=u) if u in CONC_UM else None
-    c, _, t = u.partition("/")
-    if t not in TIME_S or (c not in CONC_UM and not (quantity == "v0" and c == "A")):
+        um = _micromolar(u)
+        return Unit(u, 1 / um, conc=u) if um else None
+    c, _, t = u.rpartition("/")                      # umol/L/min: umol/L per min
+    t = _time(t)
+    um = 1.0 if quantity == "v0" and c == "A" else _micromolar(c)
+    if t is None or um is None:
         return None
-    per_c = 1.0 if c == "A" else 1 / CONC_UM[c]
-    return Unit(u, per_c * TIME_S[t] / 60.0, time=t, conc=c)
+    return Unit(u, TIME_S[t] / 60.0 / um, time=t, conc=c)
+
+
+def _time(text: str | float) -> str | None:
+    """The key of :data:`TIME_S` that ``text`` spells ("sec", "minutes", "hr") or that lasts
+    ``text`` seconds, or None."""
+    seconds = text if isinstance(text, float) else time_factor(text) if text else None
+    return next((k for k, v in TIME_S.items()
+                 if seconds is not None and math.isclose(v, seconds, rel_tol=1e-9)), None)
+
+
+def _micromolar(text: str) -> float | None:
+    """Micromolar per concentration unit ``text`` (M, mM, uM, nM, pM, mol/L ...), or None."""
+    try:
+        return concentration_factor(text) * 1e6 if text else None
+    except UnitError:
+        return None
 
 
 @dataclass(frozen=True)
