@@ -54,6 +54,8 @@ CAUTION = ("A predicted end point is no process-safety assessment: runaway, samp
 
 #: Observed conversion below which the run is flagged ``low_conversion``.
 LOW_CONVERSION = 0.5
+#: The unit of a conversion: a fraction of the full change (the tables show it in per cent).
+FRACTION = "fraction (0-1)"
 #: A forecast further than this multiple of the observed span (from the reaction's zero time to
 #: the last reading) is flagged ``extrapolated``.
 EXTRAPOLATION_LIMIT = 3.0
@@ -307,7 +309,7 @@ def _ratio_to_charge(r: FitResult, charge: Charge) -> Param:
 
     val, se = g(v), delta_se(r, g)
     tq = t_two_sided(r.level, max(r.dof, 1))
-    return Param("end_over_charge", val, se, val - tq * se, val + tq * se, "asymptotic", "")
+    return Param("end_over_charge", val, se, val - tq * se, val + tq * se, "asymptotic", "ratio")
 
 
 def _end_check(ratio: Param) -> str:
@@ -331,7 +333,7 @@ def forecast_curve(r: FitResult, order: str, target: float, t_now: float, level:
     if allow_drift and "drift" not in r.params and math.isfinite(rate.ci_low):
         shift = drift_shift(r, order)
         rate = widened(rate, shift, r.dof, level)
-    conv = map_param(rate, lambda th: 1 - float(_shape(order)(th, t_now)), "conversion", "")
+    conv = map_param(rate, lambda th: 1 - float(_shape(order)(th, t_now)), "conversion", FRACTION)
     ratio = _ratio_to_charge(r, charge) if charge else None
     fc = Forecast(r.model, order, 0.0, rate, conv, None, end_vs_charge=ratio)
     if not identifiable(r.params["k"]) or not math.isfinite(rate.ci_low):
@@ -413,7 +415,7 @@ def forecast_line(r: FitResult, target: float, t_now: float, charge: Charge | No
     if k.ci_low <= 0 <= k.ci_high:
         lo = 0.0
     rate = Param("k", abs(k.value), k.se, lo, hi, k.ci_method, "AU/s")
-    conv = map_param(rate, lambda x: x * t_now / da, "conversion", "")
+    conv = map_param(rate, lambda x: x * t_now / da, "conversion", FRACTION)
     tt = map_param(rate, lambda x: target * da / x, "t_target", "s", decreasing=True)
     return Forecast(r.model, "0", 0.0, rate, conv, tt)
 
@@ -564,7 +566,7 @@ def _charge_conversion(r: FitResult, charge: Charge, t_now: float) -> Param:
 
     val, se = g(r.values()), delta_se(r, g)
     tq = t_two_sided(r.level, max(r.dof, 1))
-    return Param("conversion", val, se, val - tq * se, val + tq * se, "asymptotic", "")
+    return Param("conversion", val, se, val - tq * se, val + tq * se, "asymptotic", FRACTION)
 
 
 def _end_absorbance(r: FitResult, charge: Charge | None) -> Param:
@@ -590,7 +592,8 @@ def _verdict(law, forecasts, target, t_now, charge, level) -> Completion:
     c_conv = _charge_conversion(r, charge, t_now) if charge and conv is not None else None
     basis_conv = c_conv or conv
     if conv is None:
-        conv = Param("conversion", math.nan, math.nan, math.nan, math.nan, "no end point", "")
+        conv = Param("conversion", math.nan, math.nan, math.nan, math.nan, "no end point",
+                     FRACTION)
     end = _end_absorbance(r, charge)
     _charge_flags(next(f for f in forecasts if f.model == chosen), r, flags, notes, charge)
     if any(f.order == "0" and f.t_target is None for f in forecasts):

@@ -122,10 +122,28 @@ def _with_unit(text: str, unit: str) -> str:
     return f"{text} {unit}" if unit else text
 
 
-def fmt_interval(low, high, digits: int = 4) -> str:
-    """An interval for a person: ``[1.2, 3.4]``; '-' when a bound is missing."""
+def fmt_interval(low, high, digits: int = 4, se=None) -> str:
+    """An interval for a person: ``[1.2, 3.4]``; '-' when a bound is missing. With the
+    estimate's ``se`` both bounds are rounded where its value is (the SE's second significant
+    digit, as :func:`rateabs.output.fmt_pm` shows it), else to ``digits`` significant digits.
+
+    >>> fmt_interval(0.000772, 0.0008729, se=2.5e-05), fmt_interval(5275.9, 5965.2, se=190.0)
+    ('[0.000772, 0.000873]', '[5280, 5970]')
+    """
     lo, hi = finite_or_none(low), finite_or_none(high)
-    return "-" if lo is None or hi is None else f"[{lo:.{digits}g}, {hi:.{digits}g}]"
+    if lo is None or hi is None:
+        return "-"
+    se = finite_or_none(se)
+    big = max(abs(lo), abs(hi))
+    if se is None or se <= 0 or big == 0:
+        return f"[{lo:.{digits}g}, {hi:.{digits}g}]"
+    place = math.floor(math.log10(se)) - 1
+    if place >= 0:
+        return f"[{round(lo, -place):.0f}, {round(hi, -place):.0f}]"
+    if 1e-4 <= big < 1e6:
+        return f"[{lo:.{-place}f}, {hi:.{-place}f}]"
+    n = min(max(math.floor(math.log10(big)) - place + 1, 1), 10)
+    return f"[{lo:.{n}g}, {hi:.{n}g}]"
 
 
 @dataclass(frozen=True)

@@ -399,7 +399,7 @@ def param_text(p: dict) -> str:
     """A fitted parameter object as ``value ± SE [low, high] unit``, rounded to its SE."""
     if not p or p.get("value") is None:
         return "–"
-    interval = fmt_interval(p.get("ci_low"), p.get("ci_high"))
+    interval = fmt_interval(p.get("ci_low"), p.get("ci_high"), se=p.get("se"))
     text = fmt_pm(p["value"], p.get("se")) + ("" if interval == "-" else f" {interval}")
     return f"{text} {p['unit']}" if p.get("unit") else text
 

@@ -87,7 +87,7 @@ def test_a_few_results_read_field_by_field():
                "value": 59.9812, "se": 0.2812, "ci_low": 59.4, "ci_high": 60.5,
                "ci_method": "asymptotic", "unit": "uM"}}, "n": 300, "chosen": True}]}
     html = report.results_section(doc)
-    assert "59.98 ± 0.28 [59.4, 60.5] uM" in html and ">yes<" in html and "True" not in html
+    assert "59.98 ± 0.28 [59.40, 60.50] uM" in html and ">yes<" in html and "True" not in html
 
 
 def test_the_house_font_never_warns_and_keeps_undrawable_names_out_of_the_png(tmp_path):

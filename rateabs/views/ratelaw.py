@@ -55,7 +55,7 @@ def interval_text(p: dict | None) -> str:
         return "-"
     if p.get("ci_low") is not None and p.get("ci_high") is None and p.get("value") is not None:
         return f"[{p['ci_low']:.4g}, open]"
-    return fmt_interval(p.get("ci_low"), p.get("ci_high"))
+    return fmt_interval(p.get("ci_low"), p.get("ci_high"), se=p.get("se"))
 
 
 def _fit_one(o: RatelawOptions, ph):
