@@ -183,7 +183,8 @@ def pathlength_from_volume(volume: str | float, wells: int = 96,
     if bottom_area_cm2 is None:
         if wells not in PLATES:
             raise UsageError(f"no well geometry for a {wells}-well plate",
-                             "use 96 or 384, or give the well bottom area")
+                             "give --plate 96 or 384 if it is one of those, or a pathlength "
+                             "(--pathlength)")
         plate = PLATES[wells]
         if v_l > plate.capacity_L:
             raise UsageError(f"a well volume of {_ul(v_l)} does not fit a {wells}-well well, "

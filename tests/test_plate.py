@@ -245,3 +245,23 @@ def test_a_substrate_below_the_product_formed_is_doubted_out_loud(tmp_path):
     data, lay = _straight_plate(tmp_path, "0.5", "substrate (mM)")
     doc = json.loads(CliRunner().invoke(main, args).output)
     assert not any("formed more product" in w for w in doc["warnings"])
+
+
+def test_a_partly_filled_plate_is_taken_as_96_wells_and_says_so(tmp_path):
+    """Wells A1..B3 alone would fill a 6-well plate, which has no 200 uL well geometry (the
+    run was refused); a kinetic read named like that is part of a 96-well plate (common
+    practice), and the output says the format is the smallest of 96/384/1536 holding the
+    names. The pathlength is then 200 uL over a 96-well bottom, 0.625 cm (the package's
+    doctest figure for the typical 96-well geometry, from memory)."""
+    wells = ["A1", "A2", "A3", "B1", "B2", "B3"]
+    rows = ["time (s)," + ",".join(wells)] + [
+        f"{t}," + ",".join(f"{0.1 + 1e-4 * (i + 1) * t:.5f}" for i in range(6))
+        for t in range(0, 301, 30)]
+    p = tmp_path / "part.csv"
+    p.write_text("\n".join(rows) + "\n")
+    r = _cli(p, "--well-volume", "200 uL", "--format", "json")
+    assert r.exit_code == 0, r.output
+    s = json.loads(r.output)["settings"]
+    assert s["plate_format"] == 96
+    assert "smallest of 96/384/1536" in s["plate_format_source"]
+    assert s["pathlength_cm"] == pytest.approx(0.625, rel=1e-3)

@@ -399,7 +399,10 @@ def test_info_records_format_plate_and_sources(tmp_path):
     info = read_traces(p).info
     assert (info["format"], info["delimiter"], info["decimal"], info["encoding"]) == (
         "semicolon", ";", ",", "utf-8")
-    assert (info["plate_format"], info["plate_format_source"]) == (24, "well names A1..D6")
+    # A1..D6 would fill a 24-well plate, but a kinetic read with no header line naming the
+    # plate is taken as part of a 96-well one, and the source says so
+    assert (info["plate_format"], info["plate_format_source"]) == (
+        96, "well names A1..D6, the smallest of 96/384/1536 wells that holds them")
     assert (info["signal_kind"], info["signal_source"]) == ("absorbance", "assumed")
     assert info["dropped_rows"] == {} and info["file_ends_mid_line"] is False
 
