@@ -268,7 +268,8 @@ def text_marks(ax, x, y, texts, *, size: float, ha: str = "center", va: str = "c
     from matplotlib.transforms import Affine2D
 
     font = findfont(FontProperties(size=size))
-    lo, hi = _line_box(font, size)
+    scale = size / GLYPH_SIZE
+    lo, hi = (scale * b for b in _line_box(font))
     dy = 0.0 if va == "baseline" else -(lo + _VA[va] * (hi - lo))
     paths, at, keep = [], [], []
     for k, (xk, yk, text) in enumerate(zip(x, y, texts, strict=True)):
@@ -277,11 +278,11 @@ def text_marks(ax, x, y, texts, *, size: float, ha: str = "center", va: str = "c
             continue
         verts, codes, pen = [], [], 0.0
         for c in text:
-            v, cd, advance = _glyph(c, font, size)
+            v, cd, advance = _glyph(c, font)
             if len(v):
-                verts.append(v + (pen, 0.0))
+                verts.append(v * scale + (pen, 0.0))
                 codes.append(cd)
-            pen += advance
+            pen += advance * scale
         if not verts:
             continue
         verts = np.concatenate(verts)
@@ -304,32 +305,38 @@ def text_marks(ax, x, y, texts, *, size: float, ha: str = "center", va: str = "c
     return marks
 
 
-@lru_cache(maxsize=4096)
-def _glyph(char: str, font: str, size: float):
-    """One character of the font file ``font`` at ``size`` points: its outline (vertices in
-    points from the pen position, path codes) and its advance (points)."""
+#: The size (points) glyph outlines are cached at; outlines without hinting scale exactly.
+GLYPH_SIZE = 12.0
+#: Characters whose outlines a drawing process caches while it warms up (numbers, well names).
+COMMON_GLYPHS = "0123456789.-+ ABCDEFGHIJKLMNOPabcdefghijklmnopqrstuvwxyz"
+
+
+@lru_cache(maxsize=2048)
+def _glyph(char: str, font: str):
+    """One character of the font file ``font`` at :data:`GLYPH_SIZE` points: its outline
+    (vertices in points from the pen position, path codes) and its advance (points)."""
     from matplotlib import ft2font
     from matplotlib.font_manager import FontProperties, get_font
     from matplotlib.textpath import TextPath
 
     face = get_font(font)
-    face.set_size(size, 72)
+    face.set_size(GLYPH_SIZE, 72)
     flags = getattr(getattr(ft2font, "LoadFlags", None), "NO_HINTING", None)
     glyph = face.load_char(ord(char), flags=ft2font.LOAD_NO_HINTING if flags is None else flags)
     advance = glyph.linearHoriAdvance / 65536
     if char.isspace():                  # no outline (matplotlib cannot make an empty path)
         return np.zeros((0, 2)), np.zeros(0, np.uint8), advance
-    path = TextPath((0, 0), char, size=size, prop=FontProperties(fname=font))
+    path = TextPath((0, 0), char, size=GLYPH_SIZE, prop=FontProperties(fname=font))
     verts = np.array(path.vertices, float).reshape(-1, 2)
     codes = np.array(path.codes if path.codes is not None else [], dtype=np.uint8)
     return verts, codes, advance
 
 
-@lru_cache(maxsize=64)
-def _line_box(font: str, size: float) -> tuple[float, float]:
-    """The lowest descent and highest ascent of "lp" (points from the baseline), the box
-    matplotlib lays a line of text in."""
-    low = [_glyph(c, font, size)[0] for c in "lp"]
+@lru_cache(maxsize=16)
+def _line_box(font: str) -> tuple[float, float]:
+    """The lowest descent and highest ascent of "lp" at :data:`GLYPH_SIZE` points (from the
+    baseline), the box matplotlib lays a line of text in."""
+    low = [_glyph(c, font)[0] for c in "lp"]
     ys = np.concatenate([v[:, 1] for v in low if len(v)])
     return float(ys.min()), float(ys.max())
 
@@ -356,14 +363,17 @@ def save(fig, path: str | Path, tight: bool = True, compress_level: int = 6) -> 
 
 
 def warm_up() -> None:
-    """Draw a small figure with text to nothing: loads the backend, the house font and its
-    glyph cache, so that a drawing process's first real figure does not pay for them. Run in a
-    drawing process of the command line only (:mod:`rateabs.views.drawing`), which loads
-    matplotlib without its interactive help text (:func:`skip_artist_help`)."""
+    """Draw a small figure with text to nothing: loads the backend, the house font, its glyph
+    cache and the outlines of :data:`COMMON_GLYPHS`, so that a drawing process's first real
+    figure does not pay for them. Run in a drawing process of the command line only
+    (:mod:`rateabs.views.drawing`), which loads matplotlib without its interactive help text
+    (:func:`skip_artist_help`)."""
     skip_artist_help()
     with house_style() as plt:
         fig = plt.figure(figsize=(1, 1))
         fig.text(0.5, 0.5, "0.123 µM/min A–H 1–12", fontsize=7)
+        ax = fig.add_axes((0, 0, 1, 1))
+        text_marks(ax, [0.5], [0.5], [COMMON_GLYPHS], size=7)
         png_bytes(fig, tight=False, compress_level=1)
 
 
