@@ -23,7 +23,7 @@ from dataclasses import MISSING, dataclass, field, fields
 from pathlib import Path
 
 from .errors import UnitError, UsageError
-from .units import concentration_factor, quantity
+from .units import concentration_factor, quantity, written_unit
 
 
 def _show(value) -> str:
@@ -299,7 +299,8 @@ class Window(Rule):
 
     def describe(self) -> str:
         """What the window takes."""
-        return "'auto' or START-END with START >= 0 and END > START (a bare number is s)"
+        return ("'auto' or START-END with START >= 0 and END > START (bare numbers are s; a "
+                "unit after END, as in 1.5-5 min, is that of both ends)")
 
     def check(self, value, option: str):
         """``"auto"`` or a (start_s, end_s) tuple."""
@@ -313,12 +314,19 @@ class Window(Rule):
                 raise self._bad(option, value, "is neither 'auto' nor START-END")
             value = (a, b)
         try:
-            lo, hi = (quantity(v, "time") for v in value)
+            lo, hi = _window_ends(*value)
         except (UnitError, TypeError, ValueError):
             raise self._bad(option, raw, "is neither 'auto' nor START-END") from None
         if not (math.isfinite(lo) and math.isfinite(hi)) or lo < 0 or not hi > lo:
             raise self._bad(option, raw, "is not a window of time: its end is not after its start")
         return (lo, hi)
+
+
+def _window_ends(start, end) -> tuple[float, float]:
+    """Both ends of a window in s; a bare START takes the unit written after END, as in
+    ``1.5-5 min`` (common practice: the unit is written once, after the range)."""
+    unit = written_unit(end) if isinstance(end, str) else ""
+    return quantity(start, "time", unit or None), quantity(end, "time")
 
 
 @dataclass(frozen=True)

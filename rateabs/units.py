@@ -89,6 +89,13 @@ def _split(text: str | float | int, what: str) -> tuple[float, str]:
     return float(m.group("num").replace(",", ".")), m.group("unit").strip()
 
 
+def written_unit(text: str) -> str:
+    """The unit written after the number of a quantity string: ``"5 min"`` -> ``"min"``, ``""``
+    for a bare number (or text that is not a quantity)."""
+    m = _QUANTITY.match(str(text))
+    return m.group("unit").strip() if m else ""
+
+
 def _fail(what: str, text: str, unit: str, known: str) -> UnitError:
     return UnitError(f"unknown {what} unit {unit!r} in {text!r}",
                      f"use one of {known}, e.g. {EXAMPLES[what]!r}")
