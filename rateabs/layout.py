@@ -9,7 +9,7 @@ A plate map is a CSV (or TSV/.xlsx) with one row per well. Columns (case-insensi
                ``negative`` (no-signal control); ``buffer`` and ``background`` mean blank,
                ``unknown`` means sample, ``positive control``/``negative control`` the controls
 ``sample``     sample name (free text)
-``substrate``  substrate concentration; unit in the header (``substrate_uM``,
+``substrate``  substrate concentration; unit in the header (``substrate_uM``, ``substrate mM``,
                ``substrate (mM)``) or in the cell (``50 uM``); bare numbers are µM
 ``inhibitor``  inhibitor concentration, same rules
 ``standard``   known concentration of the absorbing species in a ``standard`` well (a standard
@@ -17,7 +17,8 @@ A plate map is a CSV (or TSV/.xlsx) with one row per well. Columns (case-insensi
 ``enzyme``     enzyme concentration in the well, e.g. ``1 nM`` (gives v/[E], and kcat)
 ``dilution``   dilution factor of the sample before it was added; an empty cell (or no column)
                takes ``--dilution``, else 1
-``protein``    protein concentration of the undiluted sample, e.g. ``0.8 mg/mL``
+``protein``    protein concentration of the undiluted sample, e.g. ``0.8 mg/mL``; unit in the
+               header (``protein_ug_per_mL``, ``protein (ug/mL)``) or the cell; bare mg/mL
 ``group``      replicate group; an empty cell (or no column) takes the default group, sample +
                substrate + inhibitor
 ``exclude``    ``yes`` to leave the well out of every analysis

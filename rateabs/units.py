@@ -341,7 +341,14 @@ def unit_from_header(header: str) -> str:
     m = re.search(r"_((?:[munpµk]?M|A|AU|ppm|nmol|umol)(?:_per_(?:s|min|h))?)$", h)
     if m:
         return m.group(1).replace("_per_", "/")
-    return ""
+    m = re.search(_TRAILING_CONCENTRATION, h)         # "substrate mM", "protein_ug_per_mL"
+    return m.group(1).replace("_per_", "/") if m else ""
+
+
+#: A concentration unit at the end of a header after a space or underscore, without brackets:
+#: molar (``substrate mM``) or mass (``protein ug/mL``, ``protein_ug_per_mL``).
+_TRAILING_CONCENTRATION = (r"[\s_]((?:[munpµμ]?M|[munpµμ]?g(?:/|_per_)[munµμ]?[lL])"
+                           r"(?:(?:/|_per_)(?:s|min|h))?)$")
 
 
 #: A rate-constant unit as headers write it: a time unit to the power -1 (first order: 1/s,

@@ -7,7 +7,9 @@ import numpy as np
 import pytest
 
 from rateabs.layout import read_layout
+from rateabs.options import RatesOptions
 from rateabs.rules import Window
+from rateabs.views.rates import compute_rates
 
 NET_SLOPE = -0.050          # A/min after the blank: 0.050 / 6220 / 1 cm = 8.039 uM/min (by hand)
 RATE_UM_PER_MIN = 0.050 / 6220 * 1e6
@@ -50,3 +52,36 @@ def test_the_maps_window_column_takes_the_unit_after_the_range(tmp_path):
     cells = ["1.5-5 min"] + [""] * 8
     layout = read_layout(str(_map(tmp_path, "window", cells)))
     assert layout.loc["A1", "window"] == (90.0, 300.0)      # by hand: 1.5 min = 90 s
+
+
+def _run(data, layout, **kw):
+    o = RatesOptions.build(file=str(data), layout_file=str(layout), chromophore="NADH",
+                           pathlength="1 cm", total_volume="200 uL", sample_volume="20 uL",
+                           plots=False, **kw)
+    return compute_rates(o).doc
+
+
+@pytest.mark.parametrize("header", ["protein_ug_per_mL", "protein_ug/mL", "Protein ug/mL",
+                                    "protein (ug/mL)"])
+def test_a_protein_header_in_ug_per_mL_gives_U_per_mg(tmp_path, header):
+    # by hand: 8.039 uM/min x 200/20 = 80.39 uM/min = 0.08039 U/mL (1 U = 1 umol/min);
+    # 800 ug/mL = 0.8 mg/mL -> 0.1005 U/mg (it was 1000 times low: 800 read as mg/mL)
+    doc = _run(_plate(tmp_path), _map(tmp_path, header, ["800"] * 9))
+    truth = RATE_UM_PER_MIN * 200 / 20 / 1000 / 0.8
+    for row in doc["results"][:9]:
+        assert row["specific_activity_U_per_mg"] == pytest.approx(truth, rel=0.03)
+
+
+@pytest.mark.parametrize("header", ["enzyme uM", "enzyme_uM", "enzyme (uM)"])
+def test_an_enzyme_header_in_uM_gives_the_turnover(tmp_path, header):
+    # by hand: 8.039 uM/min / 60 / 0.01 uM = 13.40 per s (it was 1000 times high for
+    # "enzyme uM": 0.01 read as nM)
+    doc = _run(_plate(tmp_path), _map(tmp_path, f'"{header}"', ["0.01"] * 9))
+    for row in doc["results"][:9]:
+        assert row["enzyme_nM"] == pytest.approx(10.0)
+        assert row["turnover_per_s"] == pytest.approx(RATE_UM_PER_MIN / 60 / 0.01, rel=0.03)
+
+
+def test_a_substrate_header_in_mM_is_read_in_mM(tmp_path):
+    layout = read_layout(str(_map(tmp_path, "substrate mM", ["2"] * 9)))
+    assert layout.loc["A1", "substrate_M"] == pytest.approx(2e-3)    # by hand: 2 mM
