@@ -21,8 +21,9 @@ A plate map is a CSV (or TSV/.xlsx) with one row per well. Columns (case-insensi
                header (``protein_ug_per_mL``, ``protein (ug/mL)``) or the cell; bare mg/mL
 ``group``      replicate group; an empty cell (or no column) takes the default group, sample +
                substrate + inhibitor
-``exclude``    ``yes`` to leave the well out of every analysis
-``window``     the well's own window, ``START-END`` (bare numbers are s) or ``auto``
+``exclude``    ``yes`` (y, true, 1, x) to leave the well out of every analysis; ``no`` (n, false, 0,
+               -) or empty keeps it; any other word is refused
+``window``     the well's own window, ``START-END`` (bare numbers are s; ``1.5-5 min``) or ``auto``
 ``skip``       readings to leave out, by time: ``120`` or ``120; 240`` (bare numbers are s)
 =============  ==============================================================================
 
@@ -47,6 +48,7 @@ ROLES = ("sample", "blank", "standard", "positive", "negative")
 _ROLE_ALIASES = {"buffer": "blank", "background": "blank", "unknown": "sample",
                  "positive control": "positive", "negative control": "negative"}
 _YES = ("yes", "y", "true", "1", "x")
+_NO = ("no", "n", "false", "0", "-")
 
 
 def conc_column(df, stem: str):
@@ -130,8 +132,7 @@ def read_layout(path: str) -> pd.DataFrame:
     out["dilution"] = _dilutions(m)
     out["protein_mg_per_mL"] = _protein(m)
     out["group"] = _groups(m, out)
-    out["exclude"] = ([str(x).strip().lower() in _YES for x in df["exclude"]]
-                      if "exclude" in df.columns else False)
+    out["exclude"] = _excludes(m)
     out["window"] = _windows(m)
     out["skip"] = _skips(m)
     out.attrs["source"] = path
@@ -216,6 +217,19 @@ def _groups(m: _MapCells, out: pd.DataFrame) -> list[str]:
                                          out["inhibitor_M"], strict=True)]
     given = dict(m.cells("group"))
     return [given.get(k, d) for k, d in enumerate(default)]
+
+
+def _excludes(m: _MapCells) -> list[bool]:
+    """The exclude column: yes or no per well (an empty cell is no); any other word is refused,
+    so that a well meant to be left out is never kept in silence."""
+    out = [False] * len(m.df)
+    for k, c in m.cells("exclude"):
+        if c.lower() not in _YES + _NO:
+            raise m.fail(k, "exclude", f"exclude {c!r} is neither yes nor no",
+                         f"write yes ({', '.join(_YES)}) to leave the well out, or no or nothing "
+                         "to keep it")
+        out[k] = c.lower() in _YES
+    return out
 
 
 def _windows(m: _MapCells) -> list:

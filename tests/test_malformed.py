@@ -141,6 +141,8 @@ def test_damage_that_can_be_read_is_flagged(tmp_path, case):
 @pytest.mark.parametrize("command,table,option,content,words", [
     ("rates", "map.csv", "--layout", b"well,role,role\nA1,blank,sample\n", "'role' appears twice"),
     ("rates", "map.csv", "--layout", b"well,,role\nA1,x,blank\n", "no name in the header"),
+    ("rates", "map.csv", "--layout", b"well,role,exclude\nA1,blank,excluded\n",
+     "exclude 'excluded' is neither yes nor no"),
 ])
 def test_bad_side_tables_give_one_clear_line(tmp_path, command, table, option, content, words):
     data = tmp_path / "g.csv"

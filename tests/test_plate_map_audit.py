@@ -6,6 +6,7 @@ beside its check (enzyme unit: 1 U = 1 umol/min, NC-IUB 1979; NADH 6220 M^-1 cm^
 import numpy as np
 import pytest
 
+from rateabs.errors import InputError
 from rateabs.layout import read_layout
 from rateabs.options import RatesOptions
 from rateabs.rules import Window
@@ -85,3 +86,16 @@ def test_an_enzyme_header_in_uM_gives_the_turnover(tmp_path, header):
 def test_a_substrate_header_in_mM_is_read_in_mM(tmp_path):
     layout = read_layout(str(_map(tmp_path, "substrate mM", ["2"] * 9)))
     assert layout.loc["A1", "substrate_M"] == pytest.approx(2e-3)    # by hand: 2 mM
+
+
+@pytest.mark.parametrize("word", ["excluded", "omit", "skip"])
+def test_an_exclude_cell_in_other_words_is_refused_not_kept(tmp_path, word):
+    # "excluded" used to keep the well in every mean, in silence
+    with pytest.raises(InputError, match="exclude 'excluded'|exclude 'omit'|exclude 'skip'"):
+        read_layout(str(_map(tmp_path, "exclude", [word] + [""] * 8)))
+
+
+def test_exclude_yes_and_no_are_read(tmp_path):
+    cells = ["yes", "X", "TRUE", "no", "n", "0", "", "", ""]
+    layout = read_layout(str(_map(tmp_path, "exclude", cells)))
+    assert list(layout["exclude"].iloc[:9]) == [True] * 3 + [False] * 6
