@@ -191,8 +191,8 @@ def _well_table(ts: TraceSet, layout, st: RateSettings, warnings: list):
     w["exclude"] = w["exclude"].fillna(False).astype(bool)
     w["window"] = [x if (isinstance(x, tuple) or x == "auto") else None for x in w["window"]]
     w["skip"] = [x if isinstance(x, tuple) else () for x in w["skip"]]
+    _protein_sources(w, st, warnings)
     _dilution_sources(w, layout, st, warnings)
-    _protein_sources(w, st)
     _window_sources(w, st, warnings)
     _skip_sources(ts, w, st)
     skipped = {n: "the plate map (exclude)" for n in w.index[w["exclude"].to_numpy()]}
@@ -223,14 +223,32 @@ def _dilution_sources(w: pd.DataFrame, layout, st: RateSettings, warnings: list)
                         f"dilution is used for the other {int(from_map.sum())}")
 
 
-def _protein_sources(w: pd.DataFrame, st: RateSettings) -> None:
+def _protein_sources(w: pd.DataFrame, st: RateSettings, warnings: list) -> None:
+    """Each well's protein concentration: the map's cell, else --protein (blanks take none).
+    --protein that would fill no well is refused, as --dilution is; map columns that cannot
+    be used for want of the volumes are said to be unused."""
     prot = w["protein_mg_per_mL"].to_numpy(float)
     from_map = np.isfinite(prot)
-    if st.protein_mg_per_mL is not None:
-        prot = np.where(from_map, prot, st.protein_mg_per_mL)
+    fills = ~from_map & (w["role"] != "blank").to_numpy() & (st.protein_mg_per_mL is not None)
+    if st.protein_mg_per_mL is not None and not fills.any():
+        raise UsageError(f"--protein {st.protein_mg_per_mL:g} mg/mL is not used: the plate map "
+                         "gives a protein concentration for every well but the blanks",
+                         "leave --protein out, or empty the map's cells it should fill")
+    if fills.any():
+        prot = np.where(fills, st.protein_mg_per_mL, prot)
+        if from_map.any():
+            warnings.append(f"--protein {st.protein_mg_per_mL:g} mg/mL fills the "
+                            f"{int(fills.sum())} well(s) whose protein the plate map leaves "
+                            f"empty; the map's own value is used for the other "
+                            f"{int(from_map.sum())}")
     w["protein_mg_per_mL"] = prot
-    w["protein_source"] = np.where(from_map, "plate map", np.where(np.isfinite(prot),
-                                                                    "--protein", ""))
+    w["protein_source"] = np.where(from_map, "plate map", np.where(fills, "--protein", ""))
+    if not (st.total_volume_L and st.sample_volume_L):
+        unused = [c for c, given in (("protein", from_map.any()), ("dilution", np.isfinite(
+            w["dilution"].to_numpy(float)).any())) if given]
+        if unused:
+            warnings.append(f"the plate map's {' and '.join(unused)} column(s) are not used: "
+                            "activity (U/mL, U/mg) needs --total-volume and --sample-volume")
 
 
 def _window_sources(w: pd.DataFrame, st: RateSettings, warnings: list) -> None:

@@ -6,7 +6,7 @@ beside its check (enzyme unit: 1 U = 1 umol/min, NC-IUB 1979; NADH 6220 M^-1 cm^
 import numpy as np
 import pytest
 
-from rateabs.errors import InputError
+from rateabs.errors import InputError, UsageError
 from rateabs.layout import read_layout
 from rateabs.options import RatesOptions
 from rateabs.rules import Window
@@ -99,3 +99,32 @@ def test_exclude_yes_and_no_are_read(tmp_path):
     cells = ["yes", "X", "TRUE", "no", "n", "0", "", "", ""]
     layout = read_layout(str(_map(tmp_path, "exclude", cells)))
     assert list(layout["exclude"].iloc[:9]) == [True] * 3 + [False] * 6
+
+
+def test_protein_that_the_map_gives_for_every_well_refuses_the_option(tmp_path):
+    # the map's 0.8 mg/mL was used and --protein 2 dropped, without a word
+    layout = _map(tmp_path, "protein (ug/mL)", ["800"] * 9)
+    with pytest.raises(UsageError, match="--protein 2 mg/mL is not used"):
+        _run(_plate(tmp_path), layout, protein="2 mg/mL")
+
+
+def test_protein_partly_from_the_map_says_which_wells_took_the_option(tmp_path):
+    # by hand: 0.08039 U/mL / 0.8 mg/mL = 0.1005 U/mg (map); / 0.4 mg/mL = 0.2010 U/mg (option)
+    layout = _map(tmp_path, "protein (ug/mL)", ["800"] * 3 + [""] * 6)
+    doc = _run(_plate(tmp_path), layout, protein="0.4 mg/mL")
+    act = RATE_UM_PER_MIN * 200 / 20 / 1000
+    res = {r["trace"]: r for r in doc["results"]}
+    assert res["A1"]["specific_activity_U_per_mg"] == pytest.approx(act / 0.8, rel=0.03)
+    assert res["A4"]["specific_activity_U_per_mg"] == pytest.approx(act / 0.4, rel=0.03)
+    assert doc["settings"]["protein_wells_by_source"] == {"plate map": 3, "--protein": 6}
+    assert any("--protein 0.4 mg/mL fills the 6 well(s)" in w for w in doc["warnings"])
+
+
+def test_map_protein_and_dilution_without_volumes_are_said_to_be_unused(tmp_path):
+    layout = tmp_path / "pd.csv"
+    layout.write_text("well,role,protein,dilution\nA1,sample,0.8,10\nA10,blank,,\n")
+    o = RatesOptions.build(file=str(_plate(tmp_path)), layout_file=str(layout),
+                           chromophore="NADH", plots=False)
+    doc = compute_rates(o).doc
+    assert "specific_activity_U_per_mg" not in doc["results"][0]
+    assert any("protein and dilution column(s) are not used" in w for w in doc["warnings"])

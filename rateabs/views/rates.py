@@ -139,6 +139,11 @@ def _counts(values) -> str:
     return ", ".join(f"{k} {n}" for k, n in out.items())
 
 
+def _protein_counts(wells) -> list[str]:
+    """Where each well's protein concentration came from (the map, --protein), wells with one."""
+    return [x for x in wells.loc[wells["role"] != "blank", "protein_source"] if x]
+
+
 def _list(names: list, most: int = 8) -> str:
     return ", ".join(names[:most]) + (f" and {len(names) - most} more" if len(names) > most
                                       else "")
@@ -178,9 +183,11 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
              f"initial slope: {_counts(t['method'])} ({_estimator_words(st, t)})",
              f"substrate depletion: {depletion_words(st, t)}"]
     if st.total_volume_L:
+        protein = _protein_counts(s.wells)
         lines.append(f"activity: {st.total_volume_L * 1e6:g} uL reaction, "
                      f"{st.sample_volume_L * 1e6:g} uL sample; dilution: "
-                     + _counts(t.loc[t["role"] != "blank", "dilution_source"]) + " wells")
+                     + _counts(t.loc[t["role"] != "blank", "dilution_source"]) + " wells"
+                     + (f"; protein: {_counts(protein)} wells" if protein else ""))
     lines += [f"set for single wells: {x}" for x in overrides(a)]
     look = a.needs_look
     lines.append(f"{len(look)} well(s) need a look: {_list(look)}" if look else
@@ -199,6 +206,7 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
         "conversion": _epsilon_words(o, a),
         "total_volume_L": st.total_volume_L, "sample_volume_L": st.sample_volume_L,
         "protein_mg_per_mL": st.protein_mg_per_mL,
+        "protein_wells_by_source": _source_counts(_protein_counts(s.wells)),
         "dilution": {"option": st.dilution, "wells_by_source": _source_counts(
             t.loc[t["role"] != "blank", "dilution_source"])},
         "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"])},
