@@ -244,8 +244,9 @@ def _protein_sources(w: pd.DataFrame, st: RateSettings, warnings: list) -> None:
     w["protein_mg_per_mL"] = prot
     w["protein_source"] = np.where(from_map, "plate map", np.where(fills, "--protein", ""))
     if not (st.total_volume_L and st.sample_volume_L):
-        unused = [c for c, given in (("protein", from_map.any()), ("dilution", np.isfinite(
-            w["dilution"].to_numpy(float)).any())) if given]
+        diluted = np.nan_to_num(w["dilution"].to_numpy(float), nan=1.0) != 1
+        unused = [c for c, given in (("protein", from_map.any()), ("dilution", diluted.any()))
+                  if given]
         if unused:
             warnings.append(f"the plate map's {' and '.join(unused)} column(s) are not used: "
                             "activity (U/mL, U/mg) needs --total-volume and --sample-volume")
