@@ -136,6 +136,7 @@ def read_layout(path: str) -> pd.DataFrame:
     out["window"] = _windows(m)
     out["skip"] = _skips(m)
     out.attrs["source"] = path
+    out.attrs["name_notes"] = name_variants(m, list(out["role"]))
     out.attrs["columns"] = sorted(c for c in ("dilution", "protein", "group", "window", "skip",
                                               "exclude", "enzyme")
                                   if c in df.columns or (c in ("protein", "enzyme")
@@ -300,8 +301,27 @@ def check_against(layout: pd.DataFrame, names: list[str],
         raise InputError(f"the plate map names well {missing[0]}{more}, which the data "
                          f"({data_path}) do not have", "fix the map or give the matching data "
                          "file", file=layout.attrs.get("source"))
+    notes += layout.attrs.get("name_notes", [])
     unmapped = [n for n in names if n not in layout.index]
     if unmapped:
         notes.append(f"{len(unmapped)} trace(s) are not in the plate map and are treated as "
                      "samples: " + ", ".join(unmapped[:8]) + (" ..." if len(unmapped) > 8 else ""))
     return layout, notes
+
+
+def name_variants(m: _MapCells, roles: list[str]) -> list[str]:
+    """A note for each set of sample names (of wells that are not blanks) or group names (as the
+    map writes them) that differ only in case or spacing ("Lysate A", "lysate a", "Lysate  A"):
+    they are kept apart, as written, and said so."""
+    notes = []
+    for col in ("sample", "group"):
+        seen: dict[str, list[str]] = {}
+        for k, name in m.cells(col):
+            if roles[k] != "blank" and name not in seen.get(key := " ".join(name.split())
+                                                             .casefold(), []):
+                seen.setdefault(key, []).append(name)
+        for spellings in (v for v in seen.values() if len(v) > 1):
+            notes.append(f"{col} names {' and '.join(repr(x) for x in spellings[:3])} differ only "
+                         "in case or spacing and are kept apart (separate replicates and "
+                         f"activities); write them alike in the plate map if they are one {col}")
+    return notes

@@ -128,3 +128,14 @@ def test_map_protein_and_dilution_without_volumes_are_said_to_be_unused(tmp_path
     doc = compute_rates(o).doc
     assert "specific_activity_U_per_mg" not in doc["results"][0]
     assert any("protein and dilution column(s) are not used" in w for w in doc["warnings"])
+
+
+def test_sample_names_that_differ_only_in_case_or_spacing_are_said_to_be_kept_apart(tmp_path):
+    names = ["Lysate A", "lysate a", "Lysate  A", "L2", "L2", "L2", "L3", "L3", "L3"]
+    layout = tmp_path / "names.csv"
+    layout.write_text("well,role,sample\n" + "".join(f"A{i},sample,{n}\n"
+                                                     for i, n in enumerate(names, 1))
+                      + "A10,blank,l2\nA11,blank,buffer\nA12,blank,buffer\n")
+    doc = _run(_plate(tmp_path), layout)
+    said = [w for w in doc["warnings"] if "differ only in case or spacing" in w]
+    assert len(said) == 1 and "'Lysate A' and 'lysate a' and 'Lysate  A'" in said[0], said
