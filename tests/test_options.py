@@ -241,7 +241,7 @@ def tables(tmp_path_factory):
         lines += [f"{name},{a:g},{a / 1000:g},{f * b:.5g},{2 * f * b:.5g},{0.02 * f * b:.4g}"
                   for a, b in zip(s, v, strict=True)]
     (d / "sat.csv").write_text("\n".join(lines) + "\n")
-    sat = SAT.read_text().replace("inhibitor_uM", "KB17 uM")
+    sat = SAT.read_text().replace("inhibitor_uM", "KB17 conc")
     (d / "inhib.csv").write_text(sat)
     (d / "temp.csv").write_text("T (C),k (1/s),k_se,k_alt (1/s),k_se_alt\n"
                                 "15,3.12e-4,7.8e-6,6.2e-4,1.0e-5\n25,8.0e-4,2.0e-5,1.6e-3,4e-5\n"
@@ -403,9 +403,9 @@ def test_saturation_bootstrap_and_inhibition_options_are_used(tables):
     assert d["settings"]["resamples"] == 300
     inhib = tables / "inhib.csv"
     assert _params(doc("saturation", inhib)).keys() <= {"Vmax", "Km", "S50", "n", "Ksi"}
-    named = _params(doc("saturation", inhib, "--inhibitor", "KB17 uM"))
+    named = _params(doc("saturation", inhib, "--inhibitor", "KB17 conc"))
     assert "Ki" in named
-    assert _params(doc("saturation", inhib, "--inhibitor", "KB17 uM", "--inhibitor-unit",
+    assert _params(doc("saturation", inhib, "--inhibitor", "KB17 conc", "--inhibitor-unit",
                        "mM"))["Ki"]["unit"] == "mM"
     ic = ["saturation", SAT, "--model", "ic50", "--select", "substrate_uM=120"]
     assert "Ki" not in _params(doc(*ic))
