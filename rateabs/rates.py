@@ -193,7 +193,7 @@ def _well_table(ts: TraceSet, layout, st: RateSettings, warnings: list):
     w["skip"] = [x if isinstance(x, tuple) else () for x in w["skip"]]
     _protein_sources(w, st, warnings)
     _dilution_sources(w, layout, st, warnings)
-    _window_sources(w, st, warnings)
+    _window_sources(ts, w, st, warnings)
     _skip_sources(ts, w, st)
     skipped = {n: "the plate map (exclude)" for n in w.index[w["exclude"].to_numpy()]}
     for n in st.skip_wells:
@@ -252,7 +252,8 @@ def _protein_sources(w: pd.DataFrame, st: RateSettings, warnings: list) -> None:
                             "activity (U/mL, U/mg) needs --total-volume and --sample-volume")
 
 
-def _window_sources(w: pd.DataFrame, st: RateSettings, warnings: list) -> None:
+def _window_sources(ts: TraceSet, w: pd.DataFrame, st: RateSettings,
+                    warnings: list) -> None:
     """Each well's window: --well-window, else the map's window column, else --window."""
     wins = list(w["window"])
     src = ["plate map" if x is not None else "" for x in wins]
@@ -268,6 +269,29 @@ def _window_sources(w: pd.DataFrame, st: RateSettings, warnings: list) -> None:
     plate = "--window" if st.window != "auto" else "automatic"
     w["window"] = [st.window if x is None else x for x in wins]
     w["window_source"] = [s or plate for s in src]
+    _check_windows(ts, w)
+
+
+def _check_windows(ts: TraceSet, w: pd.DataFrame) -> None:
+    """Refuse a set window that holds fewer than three reading times of its well (a line and
+    its SE need three): it lies outside the read, or was written in another unit."""
+    g = ts.grid()
+    bad = []
+    for name, spec, src in zip(w.index, w["window"], w["window_source"], strict=True):
+        if isinstance(spec, tuple):
+            times = g.times[g.names.index(name)]
+            times = times[np.isfinite(times)]
+            if np.count_nonzero((times >= spec[0]) & (times <= spec[1])) < 3:
+                bad.append((name, spec, src, times))
+    if bad:
+        name, spec, src, times = bad[0]
+        where = {"plate map": "the plate map's window column"}.get(src, src)
+        more = f" (and {len(bad) - 1} more well(s))" if len(bad) > 1 else ""
+        read = f"{times.min():g}-{times.max():g} s" if times.size else "no readings"
+        raise UsageError(f"{where}: the window {_win_text(spec)} of well {name}{more} holds "
+                         f"fewer than three of its readings (the read spans {read})",
+                         "give a window inside the read, with a unit if not seconds "
+                         "(e.g. 1-5 min), or auto")
 
 
 def _win_text(spec) -> str:

@@ -139,3 +139,19 @@ def test_sample_names_that_differ_only_in_case_or_spacing_are_said_to_be_kept_ap
     doc = _run(_plate(tmp_path), layout)
     said = [w for w in doc["warnings"] if "differ only in case or spacing" in w]
     assert len(said) == 1 and "'Lysate A' and 'lysate a' and 'Lysate  A'" in said[0], said
+
+
+def test_a_window_outside_the_read_is_refused_in_one_line(tmp_path):
+    # the read is 0-300 s; a map window 400-600 gave some wells a whole-curve slope and
+    # others none, each only flagged few-points
+    layout = _map(tmp_path, "window", ["400-600"] + [""] * 8)
+    with pytest.raises(UsageError, match="window 400-600 s of well A1 holds fewer than three"):
+        _run(_plate(tmp_path), layout)
+
+
+def test_a_window_in_minutes_inside_the_read_is_used(tmp_path):
+    # by hand: 1-4 min = 60-240 s, 19 readings 10 s apart
+    doc = _run(_plate(tmp_path), _map(tmp_path, "window", ["1-4 min"] + [""] * 8))
+    a1 = doc["results"][0]
+    assert (a1["window_start_s"], a1["window_end_s"], a1["n_points"]) == (60.0, 240.0, 19)
+    assert a1["rate_uM_per_min"] == pytest.approx(RATE_UM_PER_MIN, rel=0.03)
