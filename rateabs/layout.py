@@ -136,7 +136,7 @@ def read_layout(path: str) -> pd.DataFrame:
     out["window"] = _windows(m)
     out["skip"] = _skips(m)
     out.attrs["source"] = path
-    out.attrs["name_notes"] = name_variants(m, list(out["role"]))
+    out.attrs["notes"] = name_variants(m, list(out["role"])) + _enzyme_note(out)
     out.attrs["columns"] = sorted(c for c in ("dilution", "protein", "group", "window", "skip",
                                               "exclude", "enzyme")
                                   if c in df.columns or (c in ("protein", "enzyme")
@@ -182,6 +182,17 @@ def _enzyme(m: _MapCells) -> tuple[list[str], np.ndarray]:
         except UnitError:
             continue
     return text, molar
+
+
+def _enzyme_note(out: pd.DataFrame) -> list[str]:
+    """A note where enzyme cells are written but not as molar concentrations ("2 ug",
+    "0.5 ug/mL"): they are kept as text and give no v/[E]."""
+    text = [t for t, molar in zip(out["enzyme"], out["enzyme_M"], strict=True)
+            if t and not np.isfinite(molar)]
+    if not text:
+        return []
+    return [f"{len(text)} enzyme cell(s) of the plate map are not molar concentrations (e.g. "
+            f"{text[0]!r}) and give no v/[E]; write them in nM or uM (e.g. 10 nM) for turnover"]
 
 
 def _dilutions(m: _MapCells) -> np.ndarray:
@@ -301,7 +312,7 @@ def check_against(layout: pd.DataFrame, names: list[str],
         raise InputError(f"the plate map names well {missing[0]}{more}, which the data "
                          f"({data_path}) do not have", "fix the map or give the matching data "
                          "file", file=layout.attrs.get("source"))
-    notes += layout.attrs.get("name_notes", [])
+    notes += layout.attrs.get("notes", [])
     unmapped = [n for n in names if n not in layout.index]
     if unmapped:
         notes.append(f"{len(unmapped)} trace(s) are not in the plate map and are treated as "

@@ -155,3 +155,9 @@ def test_a_window_in_minutes_inside_the_read_is_used(tmp_path):
     a1 = doc["results"][0]
     assert (a1["window_start_s"], a1["window_end_s"], a1["n_points"]) == (60.0, 240.0, 19)
     assert a1["rate_uM_per_min"] == pytest.approx(RATE_UM_PER_MIN, rel=0.03)
+
+
+def test_enzyme_written_as_a_mass_is_said_to_give_no_turnover(tmp_path):
+    doc = _run(_plate(tmp_path), _map(tmp_path, "enzyme", ["0.5 ug/mL"] * 9))
+    assert doc["results"][0]["enzyme_nM"] is None
+    assert any("9 enzyme cell(s)" in w and "no v/[E]" in w for w in doc["warnings"])
