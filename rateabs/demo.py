@@ -122,17 +122,25 @@ def _pm(p, digits: int = 3) -> str:
     return fmt_pm(p.value, p.se, digits, unit_text(p.unit))
 
 
+def _activity_text(r) -> str:
+    """A sample's mean activity ± the SD over its wells, or ± its one well's SE."""
+    if r.n_used > 1:
+        return f"{r.sample}: {fmt_pm(r.activity_U_per_mL, r.activity_U_per_mL_sd, 3, 'U/mL')}"
+    return (f"{r.sample}: {fmt_pm(r.activity_U_per_mL, r.activity_U_per_mL_well_se, 3, 'U/mL')}"
+            " (one well, its SE)")
+
+
 def _key_lines(v: dict) -> dict:
     """The headline figure of each step that has one, for the terminal and the index page."""
     lines = {}
     if "2_plate_rates" in v:
-        t = v["2_plate_rates"].analysis.table
-        lysate = t[t["sample"].astype(str).str.startswith("lysate")]
-        zp = v["2_plate_rates"].analysis.zprime
+        a = v["2_plate_rates"].analysis
+        t, act, zp = a.table, a.activity, a.zprime
+        lysate = act[act["sample"].astype(str).str.startswith("lysate")]
         lines["2_plate_rates"] = (
             f"  plate: {len(t)} wells, Z′ = {zp['value']:.2f} ({zp['verdict']}); lysate "
-            "activities " + ", ".join(f"{g}: {d['activity_U_per_mL'].mean():.3g} U/mL"
-                                      for g, d in lysate.groupby("sample"))
+            "activities (mean ± SD) " + ", ".join(
+                _activity_text(r) for r in lysate.itertuples())
             + f"; {_flag_words(t)}")
     if "3_inhibition" in v:
         sat = v["3_inhibition"].analysis

@@ -270,3 +270,16 @@ def test_a_well_is_estimated_alike_beside_a_well_whose_first_readings_are_masked
     assert both.slope[0] == pytest.approx(alone.slope[0], rel=1e-9)
     assert both.t_start[0] == alone.t_start[0] == 0 and both.lag_s[0] == alone.lag_s[0]
     assert both.method[0] == alone.method[0]
+
+
+def test_a_flat_blank_is_said_to_show_no_change_never_to_speed_up():
+    """Flat blanks (no enzyme, 2-3 mA noise, seeded): the straight window is kept, and the
+    reason given is that the trace shows no change beyond its noise; the curve fit's reading of
+    that noise ("speeds up", "within n SE") is not offered as the reason (the sample plate's
+    blank A9 was said to speed up)."""
+    rng = np.random.default_rng(9)
+    y = 0.3 + rng.normal(0, 0.0025, (48, T.size))
+    w = find_windows(TraceSet.from_arrays([f"b{i}" for i in range(48)], T, y).grid())
+    assert set(w.method) == {"window"}
+    assert all(c.startswith("window: no change beyond the noise") for c in w.choice)
+    assert not any("speeds up" in c for c in w.choice)
