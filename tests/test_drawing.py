@@ -192,3 +192,38 @@ def test_the_loaded_heap_is_frozen_only_in_a_one_command_process(tmp_path):
         "from rateabs.cli import main\n"
         "main()\n", stderr=True)
     assert int(out.rsplit("frozen ", 1)[1]) > 10000
+
+
+def test_rate_figures_draw_in_a_process_without_pandas(tmp_path):
+    """The rates figures are drawn from plain arrays (plots.rate_data.RateDrawing), so that the
+    drawing process can start before the command loads pandas: a fresh interpreter that takes
+    in the pickled drawing data and draws every figure has not loaded pandas, and its files
+    equal those drawn here from the analysis, byte for byte."""
+    import pickle
+    import subprocess
+    import sys
+
+    from rateabs.options import RatesOptions
+    from rateabs.plots.rate_data import rate_drawing
+    from rateabs.views.rates import FIGURES, compute_rates, rate_figures
+
+    o = RatesOptions(PLATE[1], layout_file=PLATE[3], chromophore="NADH", well_volume="200 uL")
+    a = compute_rates(o).analysis
+    wells = list(a.needs_look)
+    data = tmp_path / "data.pickle"
+    data.write_bytes(pickle.dumps((rate_drawing(a, wells), wells)))
+    code = ("import pickle, sys\n"
+            "from pathlib import Path\n"
+            "from rateabs.views.rates import FIGURES, rate_figures\n"
+            f"d, wells = pickle.loads(Path({str(data)!r}).read_bytes())\n"
+            f"rate_figures(d, Path({str(tmp_path / 'there')!r}), 'rates', FIGURES, wells, 'p')\n"
+            "assert 'pandas' not in sys.modules, 'pandas was loaded'\n")
+    (tmp_path / "there").mkdir()
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    (tmp_path / "here").mkdir()
+    rate_figures(a, tmp_path / "here", "rates", FIGURES, wells, "p")
+    there = sorted(p.name for p in (tmp_path / "there").glob("*.png"))
+    assert len(there) == 4 and there == sorted(p.name for p in (tmp_path / "here").glob("*.png"))
+    for name in there:
+        assert (tmp_path / "here" / name).read_bytes() == (tmp_path / "there" / name).read_bytes()

@@ -15,6 +15,7 @@ PKG = Path(__file__).resolve().parents[1] / "rateabs"
 
 LAYER = {
     "errors": 0, "units": 0, "distributions": 0, "files": 0, "parallel": 0, "rules": 0, "batch": 0,
+    "wells": 0,
     "photometry": 1, "options": 1,
     "io": 2, "traces": 2, "layout": 3, "models": 3, "fitting": 4, "rates": 5, "slopes": 5,
     "saturation": 5, "ratelaws": 5, "completion": 5, "temperature": 5, "progress": 5, "inspecting": 5,

@@ -22,13 +22,10 @@ import re
 
 from ..errors import InputError
 from ..units import TIME_UNITS
+from ..wells import PLATES, well_position  # noqa: F401 - their home is rateabs.wells
 
 _KEY_VALUE = re.compile(r"^([^:=]{1,60}?)\s*[:=]\s*(.+)$")
 _NUMBER = re.compile(r"[-+]?\d+(?:[.,]\d+)?")
-_WELL = re.compile(r"^([A-Z]{1,2})0*([1-9]\d?)$")
-#: Standard microplates: wells -> (rows, columns).
-PLATES = {6: (2, 3), 12: (3, 4), 24: (4, 6), 48: (6, 8), 96: (8, 12), 384: (16, 24),
-          1536: (32, 48)}
 #: Header keys that name the plate format with a bare count (``Plate: 384``, ``Wells: 96``);
 #: any key with ``plate`` in it counts when its value says ``384 well`` or ``384-well``.
 _PLATE_KEYS = frozenset({"plate", "plate type", "plate format", "plate size", "microplate",
@@ -98,16 +95,6 @@ def reference_intensity(meta: dict[str, str]) -> tuple[float, str] | None:
         raise InputError(f"the metadata line '{key}: {meta[key][:40]}' gives no number for the "
                          "reference intensity I0", "write a number there, or give --i0")
     return float(num.group(0).replace(",", ".")), f"{key}: {meta[key]}"
-
-
-def well_position(name: str) -> tuple[int, int] | None:
-    """(row, column), both from 0, of a well name such as ``B7`` or ``AF48``; else None."""
-    m = _WELL.match(name.strip().upper())
-    if not m:
-        return None
-    letters, col = m.group(1), int(m.group(2))
-    row = ord(letters[-1]) - 65 + (26 * (ord(letters[0]) - 64) if len(letters) == 2 else 0)
-    return row, col - 1
 
 
 #: The plates a kinetic read is taken to be on when only the well names tell: a read of A1..B3

@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
+from .rate_data import RateDrawing, rate_drawing
 from .style import GRID, INK, PALETTE, RC, SHADE, house_style, save, text_marks
 
 LOOK = "#fbe3cf"          # background of a well that needs a look
@@ -29,7 +30,7 @@ FAST_PNG = 1              # zlib level of these PNGs: a third of the encoding ti
 def plate_positions(names: list[str], plate_format: int | None):
     """(rows, columns, row of each trace, column of each trace, row labels, column labels):
     plate geometry for well names, else a near-square grid in the traces' order."""
-    from ..io.metadata import PLATES, well_position
+    from ..wells import PLATES, well_position
 
     pos = [well_position(n) for n in names]
     if plate_format in PLATES and all(p is not None for p in pos):
@@ -125,20 +126,23 @@ def _joined(x, y, keep):
             np.hstack([np.where(keep, y, np.nan), gap]).ravel())
 
 
+def as_drawing(analysis, wells=()) -> RateDrawing:
+    """The figures' data (:class:`~rateabs.plots.rate_data.RateDrawing`): as given, or made
+    from a rates analysis (``wells``: those drawn on single-well pages)."""
+    return analysis if isinstance(analysis, RateDrawing) else rate_drawing(analysis, list(wells))
+
+
 def plate_overview(analysis, path, title: str = ""):
     """Every well's trace in plate geometry on one Axes: readings, the window (green), the
-    reported initial slope (orange line), masked readings (x), wells that need a look shaded."""
+    reported initial slope (orange line), masked readings (x), wells that need a look shaded.
+    ``analysis``: a rates analysis or its :class:`~rateabs.plots.rate_data.RateDrawing`."""
     from matplotlib.collections import LineCollection, PolyCollection
 
-
-    ts = analysis.traces
-    g = ts.grid()
-    t = analysis.table
-    setup = analysis.setup
-    fmt = setup.plate_format if setup is not None else None
-    left_out = list(setup.skipped_wells) if setup is not None else []
+    g = as_drawing(analysis)
+    t = g.table
+    left_out = g.left_out
     names = list(g.names) + left_out
-    nrow, ncol, rows, cols, rlab, clab = plate_positions(names, fmt)
+    nrow, ncol, rows, cols, rlab, clab = plate_positions(names, g.plate_format)
     cell_in = 1.0 if ncol <= 12 else (0.56 if ncol <= 24 else 0.34)
     n = len(g.names)
     ok = g.usable & np.isfinite(g.times)
@@ -150,8 +154,8 @@ def plate_overview(analysis, path, title: str = ""):
     c0, r0 = cols[:n, None].astype(float), rows[:n, None].astype(float)
     x = c0 + pad + (1 - 2 * pad) * (np.nan_to_num(g.times) - tmin) / tspan
     y = _cell_y(r0, np.nan_to_num(g.values), centre[:, None], span[:, None], band)
-    t0 = t["window_start_s"].to_numpy(float)[:, None]
-    t1 = t["window_end_s"].to_numpy(float)[:, None]
+    t0 = np.asarray(t["window_start_s"], float)[:, None]
+    t1 = np.asarray(t["window_end_s"], float)[:, None]
     with np.errstate(invalid="ignore"):
         inside = ok & (g.times >= t0) & (g.times <= t1)
     flagged = np.array([bool(f) for f in t["flags"]] + [False] * len(left_out))
@@ -166,7 +170,7 @@ def plate_overview(analysis, path, title: str = ""):
                                          facecolors=WINDOW, lw=0))
         ax.plot(*_joined(*_thin(x, y, ok, int(cell_in * 0.8 * RC["savefig.dpi"]))),
                 color=PALETTE[0], lw=lw)
-        ax.add_collection(LineCollection(_slope_lines(analysis, g, (rows[:n], cols[:n]), tmin,
+        ax.add_collection(LineCollection(_slope_lines(g, (rows[:n], cols[:n]), tmin,
                                                       tspan, (centre, span), pad, band),
                                          colors=LINE, linewidths=1.2 * lw))
         bad = ~g.usable & np.isfinite(g.times) & np.isfinite(g.values)
@@ -209,31 +213,29 @@ def _cell_y(r0, v, centre, span, band):
     return np.clip(y, r0 + top - 0.04, r0 + bottom + 0.005)
 
 
-def _slope_lines(analysis, g, cells, tmin, tspan, scale, pad, band):
+def _slope_lines(g: RateDrawing, cells, tmin, tspan, scale, pad, band):
     """The reported initial slope of each well as a line over its window, in cell units.
 
     A window's slope passes through the mean of the window's readings; a whole-curve estimate
     is drawn as the tangent at the first usable reading, from the curve's value there, over
     the first 35 % of the read."""
     r0, c0 = cells
-    t = analysis.table
-    slope = (t["slope_A_per_min"].to_numpy(float) + _blank_offset(analysis)) / 60.0
-    t0, t1 = t["window_start_s"].to_numpy(float), t["window_end_s"].to_numpy(float)
+    t = g.table
+    slope = (np.asarray(t["slope_A_per_min"], float) + g.blank_offsets()) / 60.0
+    t0, t1 = np.asarray(t["window_start_s"], float), np.asarray(t["window_end_s"], float)
     ok = g.usable & np.isfinite(g.times)
     times, values = np.where(ok, g.times, 0.0), np.where(ok, g.values, 0.0)
     with np.errstate(invalid="ignore", divide="ignore"):
         sel = ok & (g.times >= t0[:, None]) & (g.times <= t1[:, None])
         n_sel = sel.sum(axis=1)
         has_window = (np.isfinite(t0) & np.isfinite(t1) & (t1 > t0) & (n_sel > 0)
-                      & (t["method"].to_numpy() != "curve"))
+                      & (np.asarray(t["method"]) != "curve"))
         first = np.argmax(ok, axis=1)
-        k = np.arange(len(t))
+        k = np.arange(len(g.names))
         tm = np.where(has_window, (times * sel).sum(axis=1) / n_sel, times[k, first])
         ym = np.where(has_window, (values * sel).sum(axis=1) / n_sel, values[k, first])
-    curve = np.nonzero((t["method"].to_numpy() == "curve") & ok.any(axis=1))[0]
-    if curve.size:
-        at = analysis.windows.curve_values(curve, tm[curve, None])[:, 0]
-        ym[curve] = np.where(np.isfinite(at), at, ym[curve])
+    at = g.curve_start if g.curve_start is not None else np.full(len(g.names), np.nan)
+    ym = np.where(np.isfinite(at), at, ym)      # a whole-curve slope: from the curve's value
     ta = np.where(has_window, t0, tm)
     tb = np.where(has_window, t1, tm + 0.35 * tspan)
     keep = np.isfinite(slope) & ok.any(axis=1)
@@ -244,25 +246,16 @@ def _slope_lines(analysis, g, cells, tmin, tspan, scale, pad, band):
     return np.stack([xs, ys], axis=-1)
 
 
-def _blank_offset(analysis) -> np.ndarray:
-    """What the blank correction took off each well's slope (A/min), to draw the raw slope."""
-    b = analysis.blank_info
-    t = analysis.table
-    if b.get("mode") != "slope" or b.get("slope_A_per_min") is None:
-        return np.zeros(len(t))
-    return np.where(t["role"].to_numpy() == "blank", 0.0, b["slope_A_per_min"])
-
-
 def _cell_labels(ax, t, rows, cols, left_out) -> None:
     """Role and flags written small in each cell (96 wells or fewer)."""
     short = {"blank": "blank", "positive": "+ ctrl", "negative": "- ctrl", "standard": "std"}
     texts, colors = [], []
-    for rec in t[["role", "flags"]].itertuples(index=False):
-        text = short.get(rec.role, "")
-        if rec.flags:
-            text = (text + " " if text else "") + ",".join(rec.flags)
+    for role, flags in zip(t["role"], t["flags"], strict=True):
+        text = short.get(role, "")
+        if flags:
+            text = (text + " " if text else "") + ",".join(flags)
         texts.append(text)
-        colors.append(PALETTE[1] if rec.flags else "#666666")
+        colors.append(PALETTE[1] if flags else "#666666")
     n = len(texts)
     text_marks(ax, cols[:n] + 0.06, rows[:n] + 0.1, texts, size=5.2, ha="left", va="top",
                colors=colors)
@@ -275,10 +268,12 @@ def well_pages(analysis, out, wells: list[str], stem: str = "rates",
     """Pages of single wells, ``per_page`` to a page on a fixed grid: readings, masked readings
     (x), the window (shaded), the reported initial slope (orange line), the whole-curve fit
     (dotted) and the residuals of the slope line below (mAU), each well on its own scale with
-    its range written beside it. One Axes a page, drawn as collections."""
+    its range written beside it. One Axes a page, drawn as collections. ``analysis``: a rates
+    analysis or its :class:`~rateabs.plots.rate_data.RateDrawing` (made for these wells)."""
     files = []
+    d = as_drawing(analysis, wells)
     for page, start in enumerate(range(0, len(wells), per_page)):
-        files.append(_well_page(analysis, wells[start:start + per_page],
+        files.append(_well_page(d, wells[start:start + per_page],
                                 Path(out) / f"{stem}_wells_{page + 1}.png"))
     return files
 
@@ -306,19 +301,16 @@ class _Cells:
         return self.row + 1 - (band[0] + (band[1] - band[0]) * f)
 
 
-def _well_page(analysis, names: list[str], path: Path) -> Path:
+def _well_page(g: RateDrawing, names: list[str], path: Path) -> Path:
     from matplotlib.collections import LineCollection, PolyCollection
 
-    g = analysis.traces.grid()
-    table = analysis.table.set_index("trace")
     cols = 6 if len(names) > 12 else min(4, len(names))
     rows = math.ceil(len(names) / cols)
     fig_w, fig_h = cols * 2.3, rows * 2.1 + 0.45
     parts: dict[str, list] = {k: [] for k in ("dots", "grey", "bad", "res", "res_out", "shade",
                                               "line", "curve", "zero", "frame", "text")}
     for k, name in enumerate(names):
-        _draw_cell(parts, g, g.names.index(name), table.loc[name], analysis, k // cols,
-                   k % cols)
+        _draw_cell(parts, g, g.names.index(name), g.row(name), k // cols, k % cols)
     with house_style() as plt:
         fig = plt.figure(figsize=(fig_w, fig_h))
         ax = fig.add_axes((0, 0, 1, rows * 2.1 / fig_h))
@@ -362,7 +354,7 @@ def _page_texts(ax, texts: list) -> None:
         text_marks(ax, xs, ys, words, size=size, ha=ha, va=va, colors=color)
 
 
-def _draw_cell(parts: dict, g, i: int, rec, analysis, row: int, col: int) -> None:
+def _draw_cell(parts: dict, g: RateDrawing, i: int, rec: dict, row: int, col: int) -> None:
     """Add one well's pieces to the page's collections (see :func:`well_pages`)."""
     ok = g.usable[i]
     t, y = g.times[i], g.values[i]
@@ -385,7 +377,7 @@ def _draw_cell(parts: dict, g, i: int, rec, analysis, row: int, col: int) -> Non
     bad = seen & ~ok
     if bad.any():
         parts["bad"].append(np.column_stack([cell.x(t[bad]), cell.y(y[bad], lo, hi, main)]))
-    slope = (rec["slope_A_per_min"] + _blank_offset_one(analysis, rec)) / 60.0
+    slope = (rec["slope_A_per_min"] + (0.0 if rec["role"] == "blank" else g.blank_slope)) / 60.0
     res_txt = ""
     if np.isfinite(t0) and np.isfinite(t1) and inside.sum() >= 2 and np.isfinite(slope):
         parts["shade"].append(_box(cell, main, cell.x(t0), cell.x(t1)))
@@ -402,7 +394,7 @@ def _draw_cell(parts: dict, g, i: int, rec, analysis, row: int, col: int) -> Non
         res_txt = f"±{r_max:.2g}"
     parts["zero"].append(np.column_stack([cell.x([cell.t0, cell.t1]), [cell.row + 1 - sum(
         res_band) / 2] * 2]))
-    curve = _curve_line(analysis.windows, g, i)
+    curve = g.curve_lines.get(g.names[i])
     if curve is not None:
         parts["curve"].append(np.column_stack([cell.x(curve[0]), cell.y(curve[1], lo, hi,
                                                                         main)]))
@@ -438,37 +430,20 @@ def _cell_texts(texts: list, cell: _Cells, rec, name: str, yrange, res_txt: str)
                                                                         "va": "bottom"}))
 
 
-def _blank_offset_one(analysis, rec) -> float:
-    b = analysis.blank_info
-    if b.get("mode") != "slope" or b.get("slope_A_per_min") is None or rec["role"] == "blank":
-        return 0.0
-    return float(b["slope_A_per_min"])
-
-
-def _curve_line(w, g, i):
-    """The whole-curve fit of trace ``i`` as (times s, values), or None (no curve)."""
-    ok = g.usable[i]
-    if not np.isfinite(w.curve_slope[i]) or not ok.any():
-        return None
-    tt = np.linspace(float(np.nanmin(g.times[i][ok])), float(np.nanmax(g.times[i][ok])), 60)
-    return tt, w.curve_values(i, tt)
-
-
 def plate_heatmap(analysis, path):
     """Plate map of rates (or slopes); wells that need a look outlined. Numbers in the cells
     of a 96-well plate (or smaller); beyond that a colour bar only. None if not a plate."""
     from matplotlib.collections import PolyCollection
 
-    t = analysis.table
-    setup = analysis.setup
-    fmt = setup.plate_format if setup is not None else None
-    if not fmt or len(t) < 8:
+    d = as_drawing(analysis)
+    t, fmt = d.table, d.plate_format
+    if not fmt or len(d.names) < 8:
         return None
-    col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
+    col = d.rate_column
     unit = "µM/min" if col.startswith("rate") else "A/min"
     nrow, ncol, rows, cols, rlab, clab = plate_positions(list(t["trace"]), fmt)
     grid = np.full((nrow, ncol), np.nan)
-    vals = t[col].to_numpy(float)
+    vals = np.asarray(t[col], float)
     grid[rows, cols] = vals
     cell = 0.62 if ncol <= 12 else (0.36 if ncol <= 24 else 0.22)
     fig_w, fig_h = ncol * cell + 2.2, nrow * cell + 1.1
@@ -533,15 +508,15 @@ def _colour_bar(ax, im, shape: tuple[int, int], cell: float, label: str) -> None
 def replicate_plot(analysis, path, most: int = 60):
     """Each replicate group's wells as dots with mean ± SD of the wells kept; outliers ringed.
     None when the plate has more than ``most`` groups (the replicate table says it all)."""
-    reps = analysis.replicates
-    if reps.empty or len(reps) > most:
+    d = as_drawing(analysis)
+    reps = d.replicates
+    if not reps or len(reps["group"]) > most:
         return None
-    t = analysis.table.set_index("trace")
-    col = "rate_uM_per_min" if "rate_uM_per_min" in t.columns else "slope_A_per_min"
-    unit = reps["unit"].iloc[0].replace("uM", "µM")
-    n = len(reps)
-    value = t[col].to_dict()
-    outlier = {w for w, f in t["flags"].items() if "outlier" in f}
+    t, col = d.table, d.rate_column
+    unit = reps["unit"].replace("uM", "µM")
+    n = len(reps["group"])
+    value = dict(zip(t["trace"], np.asarray(t[col], float), strict=True))
+    outlier = {w for w, f in zip(t["trace"], t["flags"], strict=True) if "outlier" in f}
     ks, xs, ring = [], [], []
     for k, wells in enumerate(reps["wells"]):
         for w in wells:
@@ -557,7 +532,7 @@ def replicate_plot(analysis, path, most: int = 60):
         fig = plt.figure(figsize=(7.4, fig_h))
         ax = fig.add_axes((2.3 / 7.4, 0.55 / fig_h, 4.9 / 7.4, (fig_h - 0.95) / fig_h))
         ax.scatter(xs, ks, s=12, color=PALETTE[0], alpha=0.8, lw=0)
-        sd = reps["sd"].to_numpy(float)
+        sd = np.asarray(reps["sd"], float)
         ax.errorbar(reps["mean"], np.arange(n), xerr=np.where(np.isfinite(sd), sd, 0), fmt="|",
                     color=INK, ms=9, lw=1)
         if ring:

@@ -415,20 +415,23 @@ def rate_plots(view: View, out: str | Path, stem: str = "rates",
     """The plate at a glance, the rate map, the replicates and single-well pages, into ``out``
     (drawn in :data:`FIGURE_PARTS` on the ``pool``'s processes where there is one: see
     :mod:`rateabs.views.drawing`)."""
+    from ..plots.rate_data import rate_drawing
     from .drawing import draw_parts
 
     out, a = Path(out), view.analysis
     wells = detail_wells(a, well_pages)
+    data = rate_drawing(a, wells)       # plain arrays: the drawing process needs no pandas
     drawn: dict = {}
-    for part in draw_parts(pool, [(rate_figures, (a, out, stem, names, wells, title))
+    for part in draw_parts(pool, [(rate_figures, (data, out, stem, names, wells, title))
                                   for names in FIGURE_PARTS]):
         drawn.update(part)
     return [path for name in FIGURES for path in drawn[name]]
 
 
 def rate_figures(a, out: Path, stem: str, names, wells: list[str], title: str) -> dict:
-    """The named figures of :data:`FIGURES` (one part of :func:`rate_plots`): name -> paths
-    (none for a map or replicate plot the plate does not have)."""
+    """The named figures of :data:`FIGURES` (one part of :func:`rate_plots`) from the figures'
+    data ``a`` (:class:`~rateabs.plots.rate_data.RateDrawing`): name -> paths (none for a map
+    or replicate plot the plate does not have)."""
     from ..plots.rates import plate_heatmap, plate_overview, replicate_plot, well_pages
 
     draw = {"overview": lambda: [plate_overview(a, out / f"{stem}_plate_overview.png", title)],
@@ -507,8 +510,8 @@ def run_rates(o: RatesOptions, emit) -> View:
     from .drawing import drawing_pool, drawing_processes
 
     out = o.output
-    with drawing_pool(drawing_processes(o.where.jobs, out.plots and bool(out.out or out.report))
-                      ) as pool, lanes_allowed(o.where.jobs or os.cpu_count() or 1):
+    with drawing_pool(drawing_processes(o.where.jobs, out.plots and bool(out.out or out.report)),
+                      fork_first=True) as pool, lanes_allowed(o.where.jobs or os.cpu_count() or 1):
         view = compute_rates(o)
         title = Path(o.file).name
         deliver(o, emit, view, "rates",
