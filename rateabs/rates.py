@@ -115,7 +115,7 @@ def _plate_format(ts: TraceSet, st: RateSettings, warnings: list) -> tuple[int |
     """The stated --plate checked against the well names, else the format the reader took (the
     file header's when the names fit in it, else the names'); a header the names contradict is
     refused without --plate."""
-    from .io.metadata import plate_format
+    from .wells import plate_format
 
     info = ts.info
     names_fmt, names_src = info.get("plate_guess") or plate_format(ts.names)

@@ -227,3 +227,33 @@ def test_rate_figures_draw_in_a_process_without_pandas(tmp_path):
     assert len(there) == 4 and there == sorted(p.name for p in (tmp_path / "here").glob("*.png"))
     for name in there:
         assert (tmp_path / "here" / name).read_bytes() == (tmp_path / "there" / name).read_bytes()
+
+
+def test_inspect_figure_draws_in_a_process_without_pandas(tmp_path):
+    """``inspect`` hands its drawing process plain arrays (plots.inspect.TraceArrays): a fresh
+    interpreter draws the figure from them without loading pandas, byte for byte as the
+    TraceSet itself draws here."""
+    import pickle
+    import subprocess
+    import sys
+
+    from rateabs.io import read_traces
+    from rateabs.plots.inspect import TraceArrays
+    from rateabs.views.inspect import traces_picture
+
+    ts = read_traces(PLATE[1])
+    data = tmp_path / "data.pickle"
+    data.write_bytes(pickle.dumps(TraceArrays.of(ts)))
+    (tmp_path / "there").mkdir()
+    (tmp_path / "here").mkdir()
+    code = ("import pickle, sys\n"
+            "from pathlib import Path\n"
+            "from rateabs.views.inspect import traces_picture\n"
+            f"d = pickle.loads(Path({str(data)!r}).read_bytes())\n"
+            f"traces_picture(d, Path({str(tmp_path / 'there')!r}), 'p', [False] * 96)\n"
+            "assert 'pandas' not in sys.modules, 'pandas was loaded'\n")
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    traces_picture(ts, tmp_path / "here", "p", [False] * 96)
+    name = "inspect_traces.png"
+    assert (tmp_path / "here" / name).read_bytes() == (tmp_path / "there" / name).read_bytes()

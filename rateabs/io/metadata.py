@@ -22,7 +22,7 @@ import re
 
 from ..errors import InputError
 from ..units import TIME_UNITS
-from ..wells import PLATES, well_position  # noqa: F401 - their home is rateabs.wells
+from ..wells import PLATES, READ_PLATES, plate_format, well_position  # noqa: F401 - home
 
 _KEY_VALUE = re.compile(r"^([^:=]{1,60}?)\s*[:=]\s*(.+)$")
 _NUMBER = re.compile(r"[-+]?\d+(?:[.,]\d+)?")
@@ -95,31 +95,6 @@ def reference_intensity(meta: dict[str, str]) -> tuple[float, str] | None:
         raise InputError(f"the metadata line '{key}: {meta[key][:40]}' gives no number for the "
                          "reference intensity I0", "write a number there, or give --i0")
     return float(num.group(0).replace(",", ".")), f"{key}: {meta[key]}"
-
-
-#: The plates a kinetic read is taken to be on when only the well names tell: a read of A1..B3
-#: is part of a 96-well plate far more often than a whole 6-well one (common practice); a
-#: smaller plate is taken when a header line states it.
-READ_PLATES = (96, 384, 1536)
-
-
-def plate_format(names: list[str]) -> tuple[int | None, str | None]:
-    """The smallest plate of :data:`READ_PLATES` holding every trace name as a well, and the
-    evidence (which says when the names alone would fit a smaller plate)."""
-    pos = [well_position(n) for n in names]
-    if not names or any(p is None for p in pos):
-        return None, None
-    rows = max(p[0] for p in pos) + 1
-    cols = max(p[1] for p in pos) + 1
-    fits = [w for w, (r, c) in PLATES.items() if rows <= r and cols <= c]
-    wells = next((w for w in fits if w in READ_PLATES), None)
-    if wells is None:
-        return None, None
-    first = min(names, key=lambda n: well_position(n))
-    last = max(names, key=lambda n: well_position(n))
-    partial = f", the smallest of {'/'.join(map(str, READ_PLATES))} wells that holds them" if (
-        fits[0] != wells) else ""
-    return wells, f"well names {first}..{last}{partial}"
 
 
 def stated_plate(meta: dict[str, str]) -> tuple[int, str] | None:

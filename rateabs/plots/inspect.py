@@ -9,6 +9,7 @@ as a 96-well one.
 from __future__ import annotations
 
 import textwrap
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -16,6 +17,35 @@ from .style import GRID, INK, PALETTE, drawable, fixed_axes, house_style, save
 
 #: Up to this many traces are overlaid on one axis with a legend; more get a cell each.
 OVERLAY_MAX = 12
+
+
+@dataclass(frozen=True)
+class TraceArrays:
+    """A TraceSet's readings as plain arrays, with its plate format: what the figure draws, in
+    a form a drawing process takes in without pandas (so it can be forked before the command
+    loads pandas: :mod:`rateabs.views.drawing`). Drawn as the TraceSet itself."""
+
+    names: list[str]
+    times: np.ndarray
+    values: np.ndarray
+    usable: np.ndarray
+    plate_format: int | None = None
+
+    @classmethod
+    def of(cls, ts) -> TraceArrays:
+        """The arrays of a TraceSet."""
+        g = ts.grid()
+        return cls(list(g.names), np.asarray(g.times, float), np.asarray(g.values, float),
+                   np.asarray(g.usable, bool), ts.info.get("plate_format"))
+
+    def grid(self) -> TraceArrays:
+        """The arrays (as ``TraceSet.grid``)."""
+        return self
+
+    @property
+    def info(self) -> dict:
+        """The plate format (as ``TraceSet.info``)."""
+        return {"plate_format": self.plate_format}
 
 
 def _row_name(r: int) -> str:
@@ -31,7 +61,7 @@ def trace_cells(names: list[str], stated: int | None = None
     smallest standard plate that holds them; other names fill a near-square grid in reading
     order.
     """
-    from ..io.metadata import PLATES, plate_format, well_position
+    from ..wells import PLATES, plate_format, well_position
 
     wells, _ = plate_format(names)
     if wells is not None and stated in PLATES and stated >= wells:
@@ -135,7 +165,8 @@ def _overlay_picture(plt, g, scale, ylabel, title):
 
 
 def traces_overview(ts, path, title: str, ylabel: str, scale: float = 1.0, flagged=None):
-    """Every trace of a TraceSet in one picture, masked readings marked with x.
+    """Every trace of a TraceSet (or its :class:`TraceArrays`) in one picture, masked readings
+    marked with x.
 
     Up to :data:`OVERLAY_MAX` traces share one axis with a legend; more are drawn in cells, in
     plate geometry for well names, with ``flagged`` traces (a boolean per trace) shaded.

@@ -25,6 +25,7 @@ EMPTY_WELL = "#f6f6f6"    # background of any other well
 WINDOW = PALETTE[2]       # readings inside the window
 LINE = PALETTE[1]         # the reported initial slope
 FAST_PNG = 1              # zlib level of these PNGs: a third of the encoding time, files ~1.3x
+WELL_PAGE_SIZE = 24       # single wells to a page
 
 
 def plate_positions(names: list[str], plate_format: int | None):
@@ -264,7 +265,7 @@ def _cell_labels(ax, t, rows, cols, left_out) -> None:
 
 
 def well_pages(analysis, out, wells: list[str], stem: str = "rates",
-               per_page: int = 24) -> list[Path]:
+               per_page: int = WELL_PAGE_SIZE) -> list[Path]:
     """Pages of single wells, ``per_page`` to a page on a fixed grid: readings, masked readings
     (x), the window (shaded), the reported initial slope (orange line), the whole-curve fit
     (dotted) and the residuals of the slope line below (mAU), each well on its own scale with

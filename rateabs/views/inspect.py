@@ -39,7 +39,8 @@ def compute_inspect(o: InspectOptions) -> View:
     return View(doc, table, rows_to_csv(summary.results, [c for c, _ in COLUMNS]), summary)
 
 
-#: What ``inspect`` loads before a drawing process is forked (it needs no rate analysis).
+#: What ``inspect`` loads (after its drawing process is forked: the process draws plain arrays,
+#: :class:`rateabs.plots.inspect.TraceArrays`, and needs none of them).
 INSPECT_MODULES = ("pandas", "rateabs.io", "rateabs.inspecting")
 
 
@@ -49,13 +50,16 @@ def run_inspect(o: InspectOptions, emit) -> View:
 
     out = o.output
     with drawing_pool(drawing_processes(None, out.plots and bool(out.out or out.report),
-                                        parts=1), INSPECT_MODULES) as pool:
+                                        parts=1), INSPECT_MODULES, fork_first=True) as pool:
         view = compute_inspect(o)
 
         def plot(folder):
+            from ..plots.inspect import TraceArrays
+
             flagged = [bool(r["flags"]) for r in view.analysis.results]
-            return draw_parts(pool, [(traces_picture, (view.analysis.traces, Path(folder),
-                                                       Path(o.file).name, flagged))])
+            return draw_parts(pool, [(traces_picture, (TraceArrays.of(view.analysis.traces),
+                                                       Path(folder), Path(o.file).name,
+                                                       flagged))])
 
         deliver(o, emit, view, "inspect", plot)
     return view
