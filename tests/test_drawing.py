@@ -257,3 +257,16 @@ def test_inspect_figure_draws_in_a_process_without_pandas(tmp_path):
     traces_picture(ts, tmp_path / "here", "p", [False] * 96)
     name = "inspect_traces.png"
     assert (tmp_path / "here" / name).read_bytes() == (tmp_path / "there" / name).read_bytes()
+
+
+def test_figures_are_shared_out_so_the_slowest_lane_is_short():
+    """Every figure is drawn exactly once, in two lanes; on 1536 wells the overview (the
+    costliest figure there) has a lane to itself, and with many well pages the pages do."""
+    from rateabs.views.rates import FIGURES, figure_parts
+
+    for wells, pages in ((96, 1), (384, 0), (1536, 1), (96, 4)):
+        parts = figure_parts(wells, pages)
+        assert len(parts) == 2
+        assert sorted(f for p in parts for f in p) == sorted(FIGURES)
+    assert ("overview",) in figure_parts(1536, 1)
+    assert ("pages",) in figure_parts(96, 4)
