@@ -136,12 +136,34 @@ def read_layout(path: str) -> pd.DataFrame:
     out["window"] = _windows(m)
     out["skip"] = _skips(m)
     out.attrs["source"] = path
-    out.attrs["notes"] = name_variants(m, list(out["role"])) + _enzyme_note(out)
+    out.attrs["notes"] = (name_variants(m, list(out["role"])) + _enzyme_note(out)
+                          + _unread_columns(df))
     out.attrs["columns"] = sorted(c for c in ("dilution", "protein", "group", "window", "skip",
                                               "exclude", "enzyme")
                                   if c in df.columns or (c in ("protein", "enzyme")
                                                          and conc_column(df, c)))
     return out
+
+
+#: The columns a plate map may have (module docstring); concentration columns are matched by
+#: the start of their header (``substrate (mM)``).
+MAP_COLUMNS = ("well", "role", "sample", "substrate", "inhibitor", "standard", "enzyme",
+               "dilution", "protein", "group", "exclude", "window", "skip")
+#: Columns of free text that a map may carry for people, read by no one and said nothing of.
+_FREE_TEXT = ("note", "notes", "comment", "comments", "description", "remark", "remarks")
+
+
+def _unread_columns(df: pd.DataFrame) -> list[str]:
+    """A note naming the map's columns that are not read ('total protein (mg/mL)', 'Substrat'),
+    so that a value meant for the analysis is never left out in silence."""
+    known = {conc_column(df, c) or c for c in MAP_COLUMNS}
+    unread = [df.attrs["headers"].get(c, c) for c in df.columns
+              if c not in known and c not in _FREE_TEXT and not str(c).startswith("unnamed")]
+    if not unread:
+        return []
+    return [f"the plate map's column(s) {', '.join(repr(c) for c in unread)} are not read; the "
+            f"columns read are {', '.join(MAP_COLUMNS)} (units in the header, e.g. "
+            "'protein (mg/mL)'; see docs/formats.md)"]
 
 
 def _wells(m: _MapCells) -> list[str]:

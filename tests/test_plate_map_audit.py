@@ -161,3 +161,14 @@ def test_enzyme_written_as_a_mass_is_said_to_give_no_turnover(tmp_path):
     doc = _run(_plate(tmp_path), _map(tmp_path, "enzyme", ["0.5 ug/mL"] * 9))
     assert doc["results"][0]["enzyme_nM"] is None
     assert any("9 enzyme cell(s)" in w and "no v/[E]" in w for w in doc["warnings"])
+
+
+def test_a_map_column_that_is_not_read_is_named_in_the_warnings(tmp_path):
+    """A protein column headed 'total protein (mg/mL)' is none of the map's columns: U/mg is
+    not given, and the run says that column was not read (it said nothing); a 'notes' column
+    of free text is said nothing of."""
+    doc = _run(_plate(tmp_path), _map(tmp_path, "total protein (mg/mL)", ["0.8"] * 9))
+    said = [w for w in doc["warnings"] if "not read" in w]
+    assert len(said) == 1 and "'total protein (mg/mL)'" in said[0]
+    doc = _run(_plate(tmp_path), _map(tmp_path, "notes", ["thawed twice"] * 9, "m2.csv"))
+    assert not [w for w in doc["warnings"] if "not read" in w]
