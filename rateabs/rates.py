@@ -962,8 +962,20 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     a = RatesAnalysis(table, replicate_summary(table, value_col), z_prime(table, value_col),
                       s.windows, analysed, st, list(setup.warnings), blank_info, setup,
                       activity_summary(table), how)
-    a.warnings += _notes(a, value_col) + _substrate_note(table, g)
+    a.warnings += (_notes(a, value_col) + _substrate_note(table, g)
+                   + _unused_standards(table, st, "calibration" in blank_info))
     return a
+
+
+def _unused_standards(table: pd.DataFrame, st: RateSettings, calibrated: bool) -> list[str]:
+    """A note where the map has standard wells enough for a curve but the conversion took the
+    absorptivity given instead (``--calibrate auto`` with --epsilon or --chromophore)."""
+    std = table["role"].to_numpy() == "standard"
+    if calibrated or st.calibrate == "none" or std.sum() < 3 or not st.epsilon:
+        return []
+    return [f"the {int(std.sum())} standard wells are not used for the conversion: the "
+            f"absorptivity given ({st.epsilon:g} M^-1 cm^-1) is; --calibrate standards converts "
+            "with their curve instead"]
 
 
 def _substrate_note(table: pd.DataFrame, g: Grid) -> list[str]:

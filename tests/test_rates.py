@@ -248,6 +248,13 @@ def test_standard_curve_calibrates_without_epsilon(tmp_path):
     r = CliRunner().invoke(main, ["rates", str(data), "--layout", str(mp), "--calibrate",
                                   "none"])
     assert "rate (uM/min)" not in r.stdout
+    # with an absorptivity given, auto converts with it and says the standards went unused
+    # (18400 x 0.625 cm = 11500 per M, the standards' own slope, so the rate is the same)
+    r = CliRunner().invoke(main, ["rates", str(data), "--layout", str(mp), "--epsilon", "11500",
+                                  "--format", "json"])
+    doc = json.loads(r.stdout)
+    assert [w for w in doc["warnings"] if "standard wells are not used" in w]
+    assert "calibration" not in doc["settings"]["blank"]
 
 
 def test_no_curve_option(tmp_path):
