@@ -42,6 +42,7 @@ from .errors import InputError, UnitError, UsageError
 from .io import read_table
 from .rules import Window
 from .units import parse_concentration, parse_mass_concentration, quantity, unit_from_header
+from .wells import well_key
 
 ROLES = ("sample", "blank", "standard", "positive", "negative")
 #: Other words of the trade for the same roles (common practice).
@@ -301,19 +302,13 @@ def _fmt(m):
     return "-" if not np.isfinite(m) else f"{m * 1e6:g}uM"
 
 
-def _well_key(name: str) -> tuple[str, int] | None:
-    """(row letters, column number) of a well name such as A1, A01 or a001, else None."""
-    m = re.fullmatch(r"\s*([A-Za-z]{1,2})0*(\d{1,3})\s*", str(name))
-    return (m.group(1).upper(), int(m.group(2))) if m else None
-
-
 def match_wells(layout: pd.DataFrame, names: list[str]) -> tuple[pd.DataFrame, list[str]]:
     """The map with its well names written as the data writes them where they differ only in
     zero padding or case (A01 and A1 are one well), and a note saying so."""
-    data = {k: n for n in names if (k := _well_key(n)) is not None}
+    data = {k: n for n in names if (k := well_key(n)) is not None}
     taken = set(layout.index)
     renamed = {w: data[k] for w in layout.index if w not in set(names)
-               and (k := _well_key(w)) is not None and k in data and data[k] not in taken}
+               and (k := well_key(w)) is not None and k in data and data[k] not in taken}
     if not renamed:
         return layout, []
     out = layout.rename(index=renamed)

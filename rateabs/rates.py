@@ -197,11 +197,21 @@ def _well_table(ts: TraceSet, layout, st: RateSettings, warnings: list):
     _skip_sources(ts, w, st)
     skipped = {n: "the plate map (exclude)" for n in w.index[w["exclude"].to_numpy()]}
     for n in st.skip_wells:
-        if n not in w.index:
-            raise UsageError(f"--skip-well {n}: no such well in the data",
-                             f"use one of {', '.join(names[:12])}")
-        skipped[n] = "--skip-well"
+        skipped[_data_well(f"--skip-well {n}", n, list(w.index))] = "--skip-well"
     return w, skipped
+
+
+def _data_well(option: str, name: str, names: list[str]) -> str:
+    """The data's name of a well an option names (``a1`` and ``A01`` are the data's ``A1``:
+    :func:`rateabs.wells.same_well`); refused in one line when the data have no such well."""
+    from .wells import same_well
+
+    found = same_well(name, names)
+    if found is None:
+        raise UsageError(f"{option}: no such well in the data",
+                         f"use one of {', '.join(names[:12])}" + (" ..." if len(names) > 12
+                                                                  else ""))
+    return found
 
 
 def _dilution_sources(w: pd.DataFrame, layout, st: RateSettings, warnings: list) -> None:
@@ -258,9 +268,7 @@ def _window_sources(ts: TraceSet, w: pd.DataFrame, st: RateSettings,
     wins = list(w["window"])
     src = ["plate map" if x is not None else "" for x in wins]
     for name, spec in st.well_windows:
-        if name not in w.index:
-            raise UsageError(f"--well-window {name}: no such well in the data",
-                             f"use one of {', '.join(list(w.index)[:12])}")
+        name = _data_well(f"--well-window {name}", name, list(w.index))
         k = w.index.get_loc(name)
         if wins[k] is not None and wins[k] != spec:
             warnings.append(f"--well-window {name}={_win_text(spec)} beats the plate map's "
@@ -304,9 +312,7 @@ def _skip_sources(ts: TraceSet, w: pd.DataFrame, st: RateSettings) -> None:
     skips = {n: [(t, "plate map") for t in s or ()]
              for n, s in zip(w.index, w["skip"], strict=True)}
     for name, t in st.skip_readings:
-        if name not in w.index:
-            raise UsageError(f"--skip-reading {name}={t:g}: no such well in the data",
-                             f"use one of {', '.join(list(w.index)[:12])}")
+        name = _data_well(f"--skip-reading {name}={t:g}", name, list(w.index))
         skips[name].append((t, "--skip-reading"))
     for name, items in skips.items():
         if not items:

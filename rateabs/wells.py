@@ -46,3 +46,20 @@ def plate_format(names: list[str]) -> tuple[int | None, str | None]:
     partial = f", the smallest of {'/'.join(map(str, READ_PLATES))} wells that holds them" if (
         fits[0] != wells) else ""
     return wells, f"well names {first}..{last}{partial}"
+
+
+def well_key(name: str) -> tuple[str, int] | None:
+    """(row letters, column number) of a well name such as A1, A01 or a001, else None: names
+    with one key are one well, however padded or cased."""
+    m = re.fullmatch(r"\s*([A-Za-z]{1,2})0*(\d{1,3})\s*", str(name))
+    return (m.group(1).upper(), int(m.group(2))) if m else None
+
+
+def same_well(name: str, names) -> str | None:
+    """The one name of ``names`` that is ``name`` or the same well written otherwise (``a1``,
+    ``A01`` for ``A1``), else None."""
+    if name in names:
+        return name
+    key = well_key(name)
+    found = [n for n in names if key is not None and well_key(n) == key]
+    return found[0] if len(found) == 1 else None

@@ -219,6 +219,20 @@ def test_single_well_options_naming_nothing_are_refused(tmp_path, args, words):
     assert r.exit_code == 2 and words in r.stderr and len(r.stderr.strip().splitlines()) == 1
 
 
+def test_single_well_options_take_a_well_however_it_is_written(tmp_path):
+    """``a1``, ``A01`` and ``a2`` name the data's A1 and A2 (common practice: instruments write
+    A1 and A01 alike), as the plate map's wells already did; they were refused."""
+    data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "A2": 0.02, "A3": 0.01})
+    r = _cli(data, "--skip-well", "a1", "--well-window", "A02=0-200", "--skip-reading",
+             "a03=120", "--format", "json", "--no-plots")
+    assert r.exit_code == 0, r.stderr
+    doc = json.loads(r.stdout)
+    res = {x["trace"]: x for x in doc["results"]}
+    assert "A1" not in res
+    assert (res["A2"]["window_start_s"], res["A2"]["window_end_s"]) == (0, 200)
+    assert res["A3"]["skipped_s"] == [120.0]
+
+
 def test_dilution_given_where_the_map_leaves_nothing_to_fill_is_refused(tmp_path):
     data = _plate_csv(tmp_path / "d.csv", {"A1": 0.03, "A2": 0.02})
     mp = tmp_path / "map.csv"
