@@ -338,6 +338,12 @@ def _fix(x, places) -> str:
     return f"{x:g}" if places is None else f"{x:.{places}f}"
 
 
+#: What was done with the blanks, per blank mode, in words.
+_BLANK_WORDS = {"slope": "their mean slope subtracted from every other well",
+                "trace": "their mean trace subtracted, reading by reading, before the slopes",
+                "none": "nothing subtracted (--blank none)"}
+
+
 def rates_table(a) -> str:
     """Per-well table, replicates, activity, blanks, Z' and the meaning of each flag shown."""
     text = render_table(*well_rows(a))
@@ -350,7 +356,7 @@ def rates_table(a) -> str:
     if b.get("wells"):
         text += (f"\nblanks: {len(b['wells'])} wells, mean slope "
                  f"{fmt_pm(b.get('slope_A_per_min'), b.get('slope_A_per_min_se'), unit='A/min')}"
-                 f", subtracted as {b['mode']}\n")
+                 f"; {_BLANK_WORDS.get(b['mode'], b['mode'])}\n")
     if a.zprime:
         text += f"{zprime_words(a.zprime)}\n"
     shown = flags_shown(a)
