@@ -5,6 +5,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .curves import CURVED_CHI2
+
 #: The whole curve replaces the straight window when the two initial slopes differ by more
 #: than this many SEs of their difference (the window then carries curvature bias) ...
 CHOICE_Z = 2.0
@@ -56,7 +58,10 @@ def choose(estimator: str, win_b, win_se, win_weights, curves, eligible, late=No
     win_total = np.sqrt(win_se ** 2 + slow ** 2 + fast ** 2 + hidden ** 2
                         + np.where(has_c & flows, spread, 0.0) ** 2)
     se = np.where(use_c, curves.se, np.where(use_w, win_total, np.nan))
-    why = _reasons(estimator, method, has_w, ok_c, h, moving, has_c & ~eligible & flows,
+    speeds = has_c & ~eligible & flows
+    with np.errstate(invalid="ignore"):             # a speed-up the noise could not make
+        evident = (curves.line_rss - curves.rss) > CURVED_CHI2 * curves.sigma ** 2
+    why = _reasons(estimator, method, has_w, ok_c, h, moving, (speeds & evident, speeds & ~evident),
                    np.isfinite(win_se) & ~flows)
     return method, slope, se, why
 
@@ -76,7 +81,8 @@ def window_against_curve(win_b, win_weights, curves):
 
 def _reasons(estimator, method, has_w, has_c, h, moving, speeds, still) -> np.ndarray:
     """The choice in words, one short phrase per trace (a window slope within MOVING_Z SEs of
-    zero is said to show no change, whatever the curve fit made of its noise)."""
+    zero is said to show no change, whatever the curve fit made of its noise; ``speeds``: where
+    the curve speeds up evidently, and where only within the noise)."""
     off = np.char.mod("%.1f", np.round(h, 1))
     if estimator != "auto":
         base = np.where(method == "curve", "curve: asked for", "window: asked for")
@@ -85,13 +91,15 @@ def _reasons(estimator, method, has_w, has_c, h, moving, speeds, still) -> np.nd
             method == "curve",
             np.char.add(np.char.add("curve: the window slope is ", off),
                         " SE off the curve's initial slope"),
-            np.where(speeds, "window: the curve speeds up (its final slope counted in the SE)",
+            np.where(speeds[0], "window: the curve speeds up (its final slope counted in the SE)",
+            np.where(speeds[1], "window: straight within the noise (the curve fit bends up "
+                                "slightly; its final slope counted in the SE)",
             np.where(still, "window: no change beyond the noise (nothing to correct)",
                      np.where(~has_c, "window: no whole-curve fit",
                      np.where((h > CHOICE_Z) & ~moving,
                               "window: the trace is flat (no curvature to correct)",
                               np.char.add(np.char.add("window: within ", off),
-                                          " SE of the curve's initial slope"))))))
+                                          " SE of the curve's initial slope")))))))
     base = np.where((method == "curve") & ~has_w,
                     "curve: too few readings for a straight window", base)
     return np.where(method == "none", "no rate: too few usable readings", base)
