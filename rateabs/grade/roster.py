@@ -84,6 +84,31 @@ def read_roster(folder: str | Path, unit: tuple[str, str] | None = None) -> list
     return tasks
 
 
+#: File endings of runs a roster may name (what an instrument or a spreadsheet exports).
+RUN_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".xlsx")
+
+
+def unlisted_runs(folder: str | Path, files, skip=()) -> list[str]:
+    """Run-like files at the top of the class folder that none of the roster's ``files`` names
+    (a student left out of the roster, or a misspelt file name), sorted; ``roster.csv`` and the
+    paths in ``skip`` (the rubric, outputs written into the folder) are not runs.
+
+    >>> unlisted_runs("class", ["run_01.csv", "run_02.csv"])    # doctest: +SKIP
+    ['run_16.csv']
+    """
+    folder = Path(folder)
+    named = {(folder / f).resolve() for f in files if f}
+    named |= {Path(p).resolve() for p in skip}
+    out = []
+    for p in folder.iterdir():
+        if p.name.startswith(".") or p.name == ROSTER or not p.is_file() or \
+                p.suffix.lower() not in RUN_SUFFIXES:
+            continue
+        if p.resolve() not in named:
+            out.append(p.name)
+    return sorted(out)
+
+
 def _columns(header: list[str], roster: str) -> dict[str, str]:
     """The roster's known columns by their lower-case name; two spellings of one are refused."""
     cols: dict[str, str] = {}

@@ -1,0 +1,86 @@
+"""An instructor's audit of ``grade``: slips students really make, each planted in a class
+simulated here from known truth without rateabs.
+
+Truth: the first-order law A(t) = Ainf + (A0 - Ainf) exp(-k t) written in closed form with
+seeded noise; each student's honest k is their own least-squares fit with
+scipy.optimize.curve_fit (reference library); slips come from definitions: 60 s = 1 min
+(SI brochure, 9th edn, table 8), A = -log10 T (IUPAC Compendium, "absorbance"),
+1 M = 1000 mM = 10^6 uM, Beer–Lambert A = epsilon b c. The experiment (fading of an invented
+dye, "Tarn Violet", at 585 nm) and every name are invented.
+"""
+
+import json
+from pathlib import Path
+
+import numpy as np
+from click.testing import CliRunner
+from scipy.optimize import curve_fit
+
+from rateabs.cli import main
+
+K_TRUE = 1.2e-3                  # 1/s, the invented class reference
+T = np.arange(0, 1801, 20.0)     # s
+
+
+def decay(t, a0, ainf, k):
+    """A(t) = Ainf + (A0 - Ainf) exp(-k t)."""
+    return ainf + (a0 - ainf) * np.exp(-k * t)
+
+
+def own_k(t, y) -> float:
+    """A student's own k: scipy.optimize.curve_fit of the first-order law."""
+    p, _ = curve_fit(decay, t, y, p0=(y[0], y[-1], 3 / t[-1]), maxfev=20000)
+    return float(p[2])
+
+
+def readings(seed: int, k: float = K_TRUE, a0: float = 1.05) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    return decay(T, a0, 0.04, k) + rng.normal(0, 0.004, T.size)
+
+
+def write_run(path: Path, t, y, head: str = "time (s),A585") -> None:
+    path.write_text(head + "\n" + "".join(f"{a:g},{b:.4f}\n" for a, b in zip(t, y,
+                                                                              strict=True)),
+                    encoding="utf-8")
+
+
+def write_class(folder: Path, rows: list[tuple[str, str, str]], extra: str = "") -> Path:
+    """roster.csv from (student, file, reported) and a k rubric (1/s, reference K_TRUE, 5 %)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    (folder / "roster.csv").write_text("student,file,reported\n" + "".join(
+        f"{s},{f},{r}\n" for s, f, r in rows), encoding="utf-8")
+    (folder / "rubric.toml").write_text(
+        '[assignment]\ntitle = "Fading of Tarn Violet"\nquantity = "k"\nunit = "1/s"\n'
+        f"reference = {K_TRUE}\ntolerance_pct = 5\n{extra}", encoding="utf-8")
+    return folder
+
+
+def grade(folder: Path, *more: str) -> dict:
+    r = CliRunner().invoke(main, ["grade", str(folder), "--rubric", str(folder / "rubric.toml"),
+                                  "--format", "json", "--jobs", "1", *more])
+    assert r.exit_code == 0, r.output
+    return json.loads(r.stdout)
+
+
+def by_student(doc: dict) -> dict:
+    return {r["student"]: r for r in doc["results"]}
+
+
+def test_a_run_no_roster_row_names_is_a_warning_not_a_silent_skip(tmp_path):
+    # two honest runs in the roster, a third handed in by a student the roster left out
+    (tmp_path / "c").mkdir()
+    y = readings(1)
+    write_run(tmp_path / "c" / "r1.csv", T, y)
+    write_run(tmp_path / "c" / "r2.csv", T, readings(2))
+    write_run(tmp_path / "c" / "r3_forgotten.csv", T, readings(3))
+    (tmp_path / "c" / "notes.md").write_text("not a run")
+    folder = write_class(tmp_path / "c", [("王小明", "r1.csv", f"{own_k(T, y):.4g}"),
+                                          ("Σοφία Παπαδοπούλου", "r2.csv", "0.0012")])
+    out = tmp_path / "c" / "results"                      # outputs inside the class folder
+    for _ in range(2):                                    # a rerun does not count its outputs
+        doc = grade(folder, "--out", str(out))
+        hits = [w for w in doc["warnings"] if "named by no roster row" in w]
+        assert len(hits) == 1 and "r3_forgotten.csv" in hits[0]
+        assert "r1.csv" not in hits[0] and "notes.md" not in hits[0]
+    page = (out / "class_summary.html").read_text(encoding="utf-8")
+    assert "r3_forgotten.csv" in page
