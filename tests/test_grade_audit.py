@@ -84,3 +84,25 @@ def test_a_run_no_roster_row_names_is_a_warning_not_a_silent_skip(tmp_path):
         assert "r1.csv" not in hits[0] and "notes.md" not in hits[0]
     page = (out / "class_summary.html").read_text(encoding="utf-8")
     assert "r3_forgotten.csv" in page
+
+
+def test_how_a_reported_number_was_read_is_stated(tmp_path):
+    # one student writes a bare number (taken in the rubric's 1/s), another types it in 1/min
+    # (converted by 60 s = 1 min): both readings are assumptions the page and JSON state
+    (tmp_path / "c").mkdir()
+    y1, y2 = readings(4), readings(5)
+    write_run(tmp_path / "c" / "r1.csv", T, y1)
+    write_run(tmp_path / "c" / "r2.csv", T, y2)
+    k1, k2 = own_k(T, y1), own_k(T, y2)
+    folder = write_class(tmp_path / "c", [("Ada Ferreira", "r1.csv", f"{k1:.4g}"),
+                                          ("Kai Nakamura", "r2.csv", f"{k2 * 60:.4g} 1/min")])
+    doc = grade(folder, "--out", str(tmp_path / "out"))
+    rows = by_student(doc)
+    bare, typed = rows["Ada Ferreira"], rows["Kai Nakamura"]
+    assert f"your reported number '{k1:.4g}' names no unit: read in 1/s" in \
+        " ".join(bare["assumptions"])
+    said = " ".join(typed["assumptions"])
+    assert f"your reported '{k2 * 60:.4g} 1/min' was converted to" in said
+    assert abs(typed["reported"] / k2 - 1) < 1e-3 and typed["verdict"] == "agrees"
+    page = (tmp_path / "out" / typed["page"]).read_text(encoding="utf-8")
+    assert f"<td>you reported</td><td>&#x27;{k2 * 60:.4g} 1/min&#x27; (= " in page

@@ -178,6 +178,27 @@ def parse_reported(text: str, unit=None) -> tuple[float | None, str | None]:
     return x, None
 
 
+def plain_number(text: str) -> bool:
+    """Whether a reported cell is a bare number (no unit typed)."""
+    return bool(_NUMBER.match(text.strip()))
+
+
+def reported_reading(text: str, value: float | None, unit: str) -> str | None:
+    """How the grader read a reported cell, one sentence (None when it holds no number): a bare
+    number is taken in the rubric's ``unit``; a number typed with a unit is converted to it.
+
+    >>> reported_reading("0.07225 1/min", 0.0012041666, "1/s")
+    "your reported '0.07225 1/min' was converted to 0.001204 1/s, the unit graded"
+    """
+    if value is None:
+        return None
+    s = text.strip()
+    if plain_number(s):
+        return (f"your reported number {s!r} names no unit: read in {unit}, the unit the "
+                "rubric grades in")
+    return f"your reported {s!r} was converted to {value:.4g} {unit}, the unit graded"
+
+
 def _with_unit(s: str, number: str, typed: str, quantity: str, unit: str):
     """A reported number with its typed unit, in the rubric's unit."""
     from .rubric import parse_unit

@@ -20,7 +20,7 @@ import math
 import numpy as np
 
 from .diagnosis import TIME_WORDS, Context, judge
-from .roster import Task, rounding
+from .roster import Task, reported_reading, rounding
 from .rubric import NAMES, Rubric, parse_unit
 
 #: How far (in powers of 60) a bare time column's reading scales each quantity.
@@ -92,7 +92,8 @@ def assess(t: Task, analysis: dict | None, rubric: Rubric, plots: bool = True) -
                score=round(100 * sum(w[k] * parts[k] for k in parts) / sum(w.values()), 1),
                slip=verdict[0], verdict=verdict[1],
                diagnosis=[verdict[2]] + findings(v, facts, rubric, recorded_pt),
-               assumptions=assumptions(facts, rubric, reading, unit_note))
+               assumptions=assumptions(facts, rubric, reading, unit_note)
+               + [n for n in [reported_reading(t.reported_text, t.reported, rubric.unit)] if n])
     if plots:
         row["figure"] = figure(analysis["figure"], reading["times"], facts)
     return row

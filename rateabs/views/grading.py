@@ -58,6 +58,10 @@ def gradebook(results: list[dict]) -> list[dict]:
 
 
 def _you_reported(r: dict, rubric) -> str:
+    from ..grade.roster import plain_number
+
+    if r["reported"] is not None and not plain_number(r["reported_text"]):
+        return f"{r['reported_text'].strip()!r} (= {r['reported']:.4g} {rubric.unit})"
     if r["reported"] is not None:
         return f"{r['reported']:g} {rubric.unit}"
     return f"{r['reported_text']!r} (not a number)" if r["reported_text"] else "nothing"
