@@ -13,6 +13,7 @@ import json
 from pathlib import Path
 
 import numpy as np
+import pytest
 from click.testing import CliRunner
 from scipy.optimize import curve_fit
 
@@ -106,3 +107,43 @@ def test_how_a_reported_number_was_read_is_stated(tmp_path):
     assert abs(typed["reported"] / k2 - 1) < 1e-3 and typed["verdict"] == "agrees"
     page = (tmp_path / "out" / typed["page"]).read_text(encoding="utf-8")
     assert f"<td>you reported</td><td>&#x27;{k2 * 60:.4g} 1/min&#x27; (= " in page
+
+
+def test_a_run_far_from_the_reference_names_the_recording_slip_that_explains_it(tmp_path):
+    # minutes recorded under 'time (s)': every time 60 times too small, k 60 times too large
+    # (60 s = 1 min); transmittance T = 10^-A typed under an absorbance header (IUPAC
+    # "absorbance"); honest controls far from the reference: a warm bath (1.35 k) with a small
+    # absorbance change, a product forming (rising A) at 0.3 k; a sound run
+    c = tmp_path / "c"
+    c.mkdir()
+    y_min, y_t, y_ok = readings(11), readings(12), readings(13)
+    warm = decay(T, 0.5, 0.3, 1.35 * K_TRUE) + np.random.default_rng(14).normal(0, 0.002, T.size)
+    rising = decay(T, 0.05, 0.9, 0.3 * K_TRUE) + np.random.default_rng(15).normal(0, 0.004,
+                                                                                   T.size)
+    write_run(c / "minutes.csv", T / 60, y_min)
+    write_run(c / "t.csv", T, 10 ** -y_t, head="time (s),Absorbance")
+    write_run(c / "ok.csv", T, y_ok)
+    write_run(c / "warm.csv", T, warm)
+    write_run(c / "rising.csv", T, rising)
+    k_min = own_k(T / 60, y_min)                  # what the student's own fit of the file gives
+    k_t = own_k(T, 10 ** -y_t)
+    folder = write_class(c, [
+        ("Bram Vos", "minutes.csv", f"{k_min:.4g}"), ("Gus Halvorsen", "t.csv", f"{k_t:.4g}"),
+        ("Дмитрий Орлов", "ok.csv", f"{own_k(T, y_ok):.4g}"),
+        ("فاطمة الزهراء", "warm.csv", f"{own_k(T, warm):.4g}"),
+        ("अनन्या शर्मा", "rising.csv", f"{own_k(T, rising):.4g}")])
+    rows = by_student(grade(folder))
+    minutes = " ".join(rows["Bram Vos"]["diagnosis"])
+    assert abs(k_min / K_TRUE / 60 - 1) < 0.1                      # the planted factor is 60
+    assert "were minutes while it says seconds" in minutes
+    read_in_min = float(minutes.split("read in minutes they give ")[1].split()[0])
+    assert read_in_min == pytest.approx(own_k(T, y_min), rel=2e-3)
+    transmittance = " ".join(rows["Gus Halvorsen"]["diagnosis"])
+    assert "may be transmittance typed as absorbance" in transmittance
+    as_a = float(transmittance.split("read as A = -log10 T they give ")[1].split()[0])
+    assert as_a == pytest.approx(own_k(T, y_t), rel=2e-3)
+    for honest in ("Дмитрий Орлов", "فاطمة الزهراء", "अनन्या शर्मा"):
+        said = " ".join(rows[honest]["diagnosis"])
+        assert "transmittance" not in said and "minutes" not in said, (honest, said)
+        assert rows[honest]["verdict"] == "agrees"
+    assert "check the temperature" in " ".join(rows["فاطمة الزهراء"]["diagnosis"])
