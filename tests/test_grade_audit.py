@@ -147,3 +147,31 @@ def test_a_run_far_from_the_reference_names_the_recording_slip_that_explains_it(
         assert "transmittance" not in said and "minutes" not in said, (honest, said)
         assert rows[honest]["verdict"] == "agrees"
     assert "check the temperature" in " ".join(rows["فاطمة الزهراء"]["diagnosis"])
+
+
+def test_one_slip_is_named_over_two_that_give_nearly_the_same_factor(tmp_path):
+    # epsilon 9800 M^-1 cm^-1 (an invented yellow product at 450 nm, 1 cm): "not converted to
+    # concentration" is a factor epsilon b 1e-6 = 0.0098 per uM, within 2 % of "mM and a
+    # pathlength in mm" (1/1000 x 10 = 0.01); "mM" (1/1000) is within 2 % of "pathlength in mm
+    # and not converted" (0.1 x 0.0098). Each student made one slip (Beer–Lambert A = eps b c,
+    # 1 mM = 1000 uM, 10 mm = 1 cm); the product forms at a constant rate, so the own v0 is the
+    # straight-line slope (numpy.polyfit)
+    c = tmp_path / "v"
+    c.mkdir()
+    eps, t = 9800.0, np.arange(0, 181, 6.0)
+    rng = np.random.default_rng(99)
+    rows = []
+    for i, (name, slip) in enumerate([("Saoirse Ní Bhriain", 1e-3), ("Tomás Ibarra", 0.1),
+                                      ("Ulla Berg", eps * 1e-6), ("김지우", 1.0)]):
+        a = 0.06 + eps * 1e-6 * 4.0 * t / 60 + rng.normal(0, 0.0015, t.size)   # 4 uM/min
+        write_run(c / f"v{i}.csv", t, a, head="time (s),A450")
+        own = np.polyfit(t, a, 1)[0] * 60 / (eps * 1e-6)                      # uM/min
+        rows.append((name, f"v{i}.csv", f"{own * slip:.4g}"))
+    (c / "roster.csv").write_text("student,file,reported\n" + "".join(
+        f"{s},{f},{r}\n" for s, f, r in rows), encoding="utf-8")
+    (c / "rubric.toml").write_text(
+        '[assignment]\nquantity = "v0"\nunit = "uM/min"\nreference = 4.0\ntolerance_pct = 10\n'
+        'epsilon = "9800 M^-1 cm^-1"\npathlength = "1 cm"\n', encoding="utf-8")
+    got = {s: r["slip"] for s, r in by_student(grade(c)).items()}
+    assert got == {"Saoirse Ní Bhriain": "conc-unit", "Tomás Ibarra": "pathlength",
+                   "Ulla Berg": "not-converted", "김지우": None}
