@@ -175,3 +175,21 @@ def test_one_slip_is_named_over_two_that_give_nearly_the_same_factor(tmp_path):
     got = {s: r["slip"] for s, r in by_student(grade(c)).items()}
     assert got == {"Saoirse Ní Bhriain": "conc-unit", "Tomás Ibarra": "pathlength",
                    "Ulla Berg": "not-converted", "김지우": None}
+
+
+def test_readings_past_the_linear_range_are_counted_as_such(tmp_path):
+    # a run started at A = 2.9: the readings above A = 2 (the grader's linear limit, stated)
+    # are counted from the planted array itself and named as past the linear range, not as
+    # "over range or missing"
+    c = tmp_path / "c"
+    c.mkdir()
+    y = readings(21, a0=2.9)
+    write_run(c / "dark.csv", T, y)
+    folder = write_class(c, [("Carys Mwangi", "dark.csv", f"{own_k(T, y):.4g}")])
+    r = by_student(grade(folder))["Carys Mwangi"]
+    over = int((np.round(y, 4) > 2.0).sum())
+    assert over > 5
+    assert any(d.startswith(f"{over} reading(s) above A = 2, past the linear range")
+               for d in r["diagnosis"]), r["diagnosis"]
+    assert not any("unusable" in d for d in r["diagnosis"])
+    assert any("above A = 2, the linear limit the grader applies" in a for a in r["assumptions"])

@@ -107,12 +107,16 @@ def choose_trace(names: list[str], wanted: str | None) -> dict:
 def trace_readings(ts, facts: dict) -> tuple[np.ndarray, np.ndarray]:
     """The chosen trace's usable times and values; the readings' fingerprint and the number of
     readings left out go into ``facts``."""
+    from ..traces import FLAG_CODE
+
     g = ts.grid()
     i = g.names.index(facts["trace"])
     present = np.isfinite(g.times[i])
     ok = g.usable[i]
     facts["readings"] = fingerprint(g.times[i][present], g.values[i][present])
     facts["masked"] = int((present & ~ok).sum())
+    facts["past_linear"] = int((present & ~ok & (np.asarray(g.flags[i]) ==
+                                                 FLAG_CODE["past-linear"])).sum())
     facts["n_used"] = int(ok.sum())
     return np.asarray(g.times[i][ok], float), np.asarray(g.values[i][ok], float)
 

@@ -19,6 +19,7 @@ import math
 
 import numpy as np
 
+from ..options import DEFAULT_LINEAR_LIMIT as LINEAR_LIMIT
 from .diagnosis import TIME_WORDS, Context, judge
 from .roster import Task, reported_reading, rounding
 from .rubric import NAMES, Rubric, parse_unit
@@ -198,9 +199,14 @@ def findings(v: float, facts: dict, rubric: Rubric, recorded_pt: bool,
             "check the temperature, the concentrations and the blank of your run")
         out.append(f"your own data give {v:.4g} {rubric.unit}, {off:+.0f} % from the class "
                    f"reference {rubric.reference:g}: {why}")
-    if facts.get("masked"):
-        out.append(f"{facts['masked']} reading(s) were unusable (over range or missing) and were "
-                   "left out")
+    over = facts.get("past_linear", 0)
+    if over:
+        out.append(f"{over} reading(s) above A = {LINEAR_LIMIT:g}, past the linear range of a "
+                   "photometer, were left out: dilute the sample or use a shorter pathlength so "
+                   f"that the absorbance stays below {LINEAR_LIMIT:g}")
+    if facts.get("masked", 0) > over:
+        out.append(f"{facts['masked'] - over} reading(s) were unusable (missing or marked over "
+                   "range by the instrument) and were left out")
     flags = [f for f in facts.get("flags", []) if f not in ("past-linear", "overflow")]
     if flags:
         out.append(f"the initial rate carries the flag(s) {', '.join(flags)} (see the rates "
@@ -284,8 +290,8 @@ def assumptions(facts: dict, rubric: Rubric, reading: dict, unit_note: str | Non
         a, b = (w * x for w in facts["span_s"])
         out.append(f"first-order fit A = Ainf + (A0 - Ainf) exp(-k t) over {a:g}-{b:g} s, "
                    f"every usable reading{_origin(facts, x)}")
-    out.append(f"{facts['n_used']} readings used, {facts.get('masked', 0)} left out (over range "
-               "or missing)")
+    out.append(f"{facts['n_used']} readings used, {facts.get('masked', 0)} left out (missing, "
+               f"over range, or above A = {LINEAR_LIMIT:g}, the linear limit the grader applies)")
     return out + [f"the reader: {n}" for n in facts.get("reader_notes", [])]
 
 
