@@ -107,12 +107,16 @@ def choose_trace(names: list[str], wanted: str | None) -> dict:
 def trace_readings(ts, facts: dict) -> tuple[np.ndarray, np.ndarray]:
     """The chosen trace's usable times and values; the readings' fingerprint and the number of
     readings left out go into ``facts``."""
+    from ..traces import FLAG_CODE
+
     g = ts.grid()
     i = g.names.index(facts["trace"])
     present = np.isfinite(g.times[i])
     ok = g.usable[i]
     facts["readings"] = fingerprint(g.times[i][present], g.values[i][present])
     facts["masked"] = int((present & ~ok).sum())
+    facts["past_linear"] = int((present & ~ok & (np.asarray(g.flags[i]) ==
+                                                 FLAG_CODE["past-linear"])).sum())
     facts["n_used"] = int(ok.sum())
     return np.asarray(g.times[i][ok], float), np.asarray(g.values[i][ok], float)
 
@@ -183,6 +187,14 @@ def first_order(path: str, settings: dict) -> dict:
             alt = {"k": k_raw, "half_life": half_raw}
         except RateabsError:
             alt = {}
+    if facts["signal"] == "absorbance" and y.size and np.all((y > 0) & (y <= 1)):
+        # numbers between 0 and 1 may be transmittance typed as absorbance: what they give
+        # read as A = -log10 T (IUPAC, "absorbance"), for the grader to compare with the class
+        try:
+            k_t, half_t, _ = fit_first_order(t, -np.log10(y), facts["trace"])
+            facts["as_transmittance"] = {"k": k_t, "half_life": half_t}
+        except RateabsError:
+            pass
     facts.update(span_s=[float(t[0]), float(t[-1])], time_origin_s=t0, fit="first-order")
     figure = _lists({"x": t, "y": y, "fit_x": t, "fit_y": fitted, "resid_x": t,
                      "resid": y - fitted, "window": None, "kind": "time"})

@@ -17,7 +17,8 @@ The judgement, in log ratios (a factor is as far above 1 as its inverse is below
 * it is named only when the report is at least 6 s from agreement (an honest difference that
   large has odds below 1 in 10^8 under a normal spread, while the candidate's odds are e^16
   times better) and it is at least 20 times as likely as the next candidate
-  ((z2^2 - z1^2)/2 >= ln 20);
+  ((z2^2 - z1^2)/2 >= ln 20), two slips together counting as 100 times less likely a priori
+  than one (:data:`PAIR_PRIOR`);
 * anything else is reported as a difference of so many percent, cause not identified.
 """
 
@@ -36,6 +37,12 @@ LN2 = math.log(2.0)
 MATCH_Z = 2.0
 AWAY_S = 6.0
 ODDS = 20.0
+#: How much less likely, before the numbers are looked at, two slips together are than one
+#: (each slip is taken to be rarer than 1 report in 10: common-practice judgement). Where one
+#: slip and a pair give nearly the same factor (epsilon near 10^4 M^-1 cm^-1 makes "not
+#: converted to concentration" 0.0098 beside "mM and a pathlength in mm", 0.01), the one slip
+#: is named.
+PAIR_PRIOR = 100.0
 
 #: Families whose factors may combine into two slips at once.
 FACTOR_FAMILIES = ("time-unit", "log10", "conc-unit", "pathlength", "not-converted",
@@ -256,14 +263,18 @@ def judge(reported: float, c: Context, tolerance_pct: float, sigma: float) -> Ve
         return Verdict("agrees", None, f"your reported {name} agrees with your own data "
                        f"({_g(reported)} vs {_g(v)} {unit}, {100 * (x / v - 1):+.1f} %): "
                        "no slip found")
-    scored = sorted(((abs(math.log(x / k.value)) / math.hypot(s, k.spread), k)
-                     for k in candidates(c) if k.value > 0 and math.isfinite(k.value)),
-                    key=lambda p: p[0])
+    # each candidate with its z and its weight of evidence against it (z^2 / 2, plus the
+    # prior odds against two slips together), best first
+    scored = sorted(((z, k, z * z / 2 + (math.log(PAIR_PRIOR) if "+" in k.kind else 0.0))
+                     for z, k in ((abs(math.log(x / k.value)) / math.hypot(s, k.spread), k)
+                                  for k in candidates(c)
+                                  if k.value > 0 and math.isfinite(k.value))),
+                    key=lambda p: p[2])
     far = abs(math.log(x / v)) >= AWAY_S * s
     best = scored[0] if scored and scored[0][0] <= MATCH_Z and far else None
-    runner = scored[1][0] if best and len(scored) > 1 else math.inf
+    runner = scored[1][2] if best and len(scored) > 1 else math.inf
     sign = (_sign_text(c, reported) + "; besides, ") if negative else ""
-    if best and (runner ** 2 - best[0] ** 2) / 2 >= math.log(ODDS):
+    if best and runner - best[2] >= math.log(ODDS):
         k = best[1]
         slip = f"sign+{k.kind}" if negative else k.kind
         if k.factor:
@@ -274,7 +285,7 @@ def judge(reported: float, c: Context, tolerance_pct: float, sigma: float) -> Ve
         return Verdict("slip", slip, f"{sign}{k.what}: {told}; {k.fix}")
     both = ""
     if best:
-        close = [k.what for z, k in scored if z <= MATCH_Z][:2]
+        close = [k.what for z, k, _ in scored if z <= MATCH_Z][:2]
         both = f"; it could be either of: {close[0]}; or {close[1]}" if len(close) > 1 else ""
     return Verdict("sign" if negative else "unexplained", "sign" if negative else None,
                    f"{sign}a difference of {_difference(x / v)} between your reported {name} "

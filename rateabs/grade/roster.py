@@ -84,6 +84,31 @@ def read_roster(folder: str | Path, unit: tuple[str, str] | None = None) -> list
     return tasks
 
 
+#: File endings of runs a roster may name (what an instrument or a spreadsheet exports).
+RUN_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".xlsx")
+
+
+def unlisted_runs(folder: str | Path, files, skip=()) -> list[str]:
+    """Run-like files at the top of the class folder that none of the roster's ``files`` names
+    (a student left out of the roster, or a misspelt file name), sorted; ``roster.csv`` and the
+    paths in ``skip`` (the rubric, outputs written into the folder) are not runs.
+
+    >>> unlisted_runs("class", ["run_01.csv", "run_02.csv"])    # doctest: +SKIP
+    ['run_16.csv']
+    """
+    folder = Path(folder)
+    named = {(folder / f).resolve() for f in files if f}
+    named |= {Path(p).resolve() for p in skip}
+    out = []
+    for p in folder.iterdir():
+        if p.name.startswith(".") or p.name == ROSTER or not p.is_file() or \
+                p.suffix.lower() not in RUN_SUFFIXES:
+            continue
+        if p.resolve() not in named:
+            out.append(p.name)
+    return sorted(out)
+
+
 def _columns(header: list[str], roster: str) -> dict[str, str]:
     """The roster's known columns by their lower-case name; two spellings of one are refused."""
     cols: dict[str, str] = {}
@@ -151,6 +176,27 @@ def parse_reported(text: str, unit=None) -> tuple[float | None, str | None]:
     if not math.isfinite(x):
         return None, f"the reported value {s!r} is not a finite number"
     return x, None
+
+
+def plain_number(text: str) -> bool:
+    """Whether a reported cell is a bare number (no unit typed)."""
+    return bool(_NUMBER.match(text.strip()))
+
+
+def reported_reading(text: str, value: float | None, unit: str) -> str | None:
+    """How the grader read a reported cell, one sentence (None when it holds no number): a bare
+    number is taken in the rubric's ``unit``; a number typed with a unit is converted to it.
+
+    >>> reported_reading("0.07225 1/min", 0.0012041666, "1/s")
+    "your reported '0.07225 1/min' was converted to 0.001204 1/s, the unit graded"
+    """
+    if value is None:
+        return None
+    s = text.strip()
+    if plain_number(s):
+        return (f"your reported number {s!r} names no unit: read in {unit}, the unit the "
+                "rubric grades in")
+    return f"your reported {s!r} was converted to {value:.4g} {unit}, the unit graded"
 
 
 def _with_unit(s: str, number: str, typed: str, quantity: str, unit: str):

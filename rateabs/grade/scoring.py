@@ -19,8 +19,9 @@ import math
 
 import numpy as np
 
+from ..options import DEFAULT_LINEAR_LIMIT as LINEAR_LIMIT
 from .diagnosis import TIME_WORDS, Context, judge
-from .roster import Task, rounding
+from .roster import Task, reported_reading, rounding
 from .rubric import NAMES, Rubric, parse_unit
 
 #: How far (in powers of 60) a bare time column's reading scales each quantity.
@@ -91,8 +92,10 @@ def assess(t: Task, analysis: dict | None, rubric: Rubric, plots: bool = True) -
     row.update(value=v, value_se=se, status="graded", parts=parts,
                score=round(100 * sum(w[k] * parts[k] for k in parts) / sum(w.values()), 1),
                slip=verdict[0], verdict=verdict[1],
-               diagnosis=[verdict[2]] + findings(v, facts, rubric, recorded_pt),
-               assumptions=assumptions(facts, rubric, reading, unit_note))
+               diagnosis=[verdict[2]] + findings(v, facts, rubric, recorded_pt,
+                                                 scale * reading["factor"]),
+               assumptions=assumptions(facts, rubric, reading, unit_note)
+               + [n for n in [reported_reading(t.reported_text, t.reported, rubric.unit)] if n])
     if plots:
         row["figure"] = figure(analysis["figure"], reading["times"], facts)
     return row
@@ -180,9 +183,11 @@ def report_verdict(t: Task, ctx: Context, rubric: Rubric, sigma: float) -> tuple
     return v.slip, v.status, v.finding
 
 
-def findings(v: float, facts: dict, rubric: Rubric, recorded_pt: bool) -> list[str]:
-    """What else the grader found: %T recorded, far from the reference, readings left out,
-    flags of the initial rate."""
+def findings(v: float, facts: dict, rubric: Rubric, recorded_pt: bool,
+             scale: float = 1.0) -> list[str]:
+    """What else the grader found: %T recorded, far from the reference (with the recording slip
+    that explains it, where one does), readings left out, flags of the initial rate.
+    ``scale`` takes the analysis's base units to the rubric's."""
     out = []
     if recorded_pt:
         out.append("the readings in your file are percent transmittance (values 10-100) "
@@ -190,17 +195,65 @@ def findings(v: float, facts: dict, rubric: Rubric, recorded_pt: bool) -> list[s
                    "A = 2 - log10(%T)")
     if agreement(v, rubric.reference, rubric.tolerance_pct) < 1:
         off = 100 * (v / rubric.reference - 1)
+        why = recording_slip(v, facts, rubric, scale) or (
+            "check the temperature, the concentrations and the blank of your run")
         out.append(f"your own data give {v:.4g} {rubric.unit}, {off:+.0f} % from the class "
-                   f"reference {rubric.reference:g}: check the temperature, the concentrations "
-                   "and the blank of your run")
-    if facts.get("masked"):
-        out.append(f"{facts['masked']} reading(s) were unusable (over range or missing) and were "
-                   "left out")
+                   f"reference {rubric.reference:g}: {why}")
+    over = facts.get("past_linear", 0)
+    if over:
+        out.append(f"{over} reading(s) above A = {LINEAR_LIMIT:g}, past the linear range of a "
+                   "photometer, were left out: dilute the sample or use a shorter pathlength so "
+                   f"that the absorbance stays below {LINEAR_LIMIT:g}")
+    if facts.get("masked", 0) > over:
+        out.append(f"{facts['masked'] - over} reading(s) were unusable (missing or marked over "
+                   "range by the instrument) and were left out")
     flags = [f for f in facts.get("flags", []) if f not in ("past-linear", "overflow")]
     if flags:
         out.append(f"the initial rate carries the flag(s) {', '.join(flags)} (see the rates "
                    "flags in docs/formats.md)")
     return out
+
+
+def recording_slip(v: float, facts: dict, rubric: Rubric, scale: float) -> str | None:
+    """A slip in recording the run that puts the own value ``v`` far from the class reference
+    and near it once undone: a time column in minutes under a header saying seconds (or the
+    reverse; a rate is then 60 times off), or transmittance typed as absorbance. Named only
+    when the run as read is beyond five tolerances of the reference and undoing the slip
+    lands within them (a factor 60 is far beyond any honest spread); transmittance only where
+    reading the numbers as T moves the value by 3 times or more and into the tolerance."""
+    q, ref, tol = rubric.quantity, rubric.reference, rubric.tolerance_pct
+    if agreement(v, ref, tol) > 0:
+        return None
+    power = TIME_POWER.get(q)
+    stated = facts.get("time_source") in ("header", "rubric")
+    unit = facts.get("time_unit")
+    if power is not None and stated and unit in ("s", "min"):
+        other = "min" if unit == "s" else "s"
+        # times in `other` read as `unit`: every time is 60^(+-1) off, the value 60^(-+power)
+        f = 60.0 ** (-power if unit == "s" else power)
+        if agreement(v / f, ref, tol) > 0:
+            col = facts.get("time_column") or "time"
+            return (f"that is {_ratio(v / ref)} the reference, as if the numbers in your time "
+                    f"column {col!r} were {TIME_WORDS[other]} while it says "
+                    f"{TIME_WORDS[unit]} (read in {TIME_WORDS[other]} they give "
+                    f"{v / f:.4g} {rubric.unit}); check the unit your clock showed and write it "
+                    "in the header")
+    as_t = facts.get("as_transmittance", {}).get(q)
+    t_value = as_t[0] * scale if as_t and math.isfinite(as_t[0]) else math.nan
+    # read as T the value must move by a factor of 3 or more (more than any honest spread of a
+    # class) and land within the tolerance itself: absorbance that merely lies below 1 is not
+    # taken for transmittance by coincidence
+    if t_value > 0 and agreement(t_value, ref, tol) == 1 and abs(math.log(t_value / v)) >= \
+            math.log(3.0):
+        return (f"your readings all lie between 0 and 1 and may be transmittance typed as "
+                f"absorbance: read as A = -log10 T they give {t_value:.4g} {rubric.unit}, "
+                "within the tolerance of the reference; if your instrument showed T, record "
+                "absorbance or convert T to A before fitting")
+    return None
+
+
+def _ratio(r: float) -> str:
+    return f"{r:.3g} times" if r >= 1 else f"1/{1 / r:.3g} of"
 
 
 def assumptions(facts: dict, rubric: Rubric, reading: dict, unit_note: str | None) -> list[str]:
@@ -237,8 +290,8 @@ def assumptions(facts: dict, rubric: Rubric, reading: dict, unit_note: str | Non
         a, b = (w * x for w in facts["span_s"])
         out.append(f"first-order fit A = Ainf + (A0 - Ainf) exp(-k t) over {a:g}-{b:g} s, "
                    f"every usable reading{_origin(facts, x)}")
-    out.append(f"{facts['n_used']} readings used, {facts.get('masked', 0)} left out (over range "
-               "or missing)")
+    out.append(f"{facts['n_used']} readings used, {facts.get('masked', 0)} left out (missing, "
+               f"over range, or above A = {LINEAR_LIMIT:g}, the linear limit the grader applies)")
     return out + [f"the reader: {n}" for n in facts.get("reader_notes", [])]
 
 

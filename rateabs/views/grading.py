@@ -58,6 +58,10 @@ def gradebook(results: list[dict]) -> list[dict]:
 
 
 def _you_reported(r: dict, rubric) -> str:
+    from ..grade.roster import plain_number
+
+    if r["reported"] is not None and not plain_number(r["reported_text"]):
+        return f"{r['reported_text'].strip()!r} (= {r['reported']:.4g} {rubric.unit})"
     if r["reported"] is not None:
         return f"{r['reported']:g} {rubric.unit}"
     return f"{r['reported_text']!r} (not a number)" if r["reported_text"] else "nothing"
@@ -114,7 +118,7 @@ def verdict_words(r: dict) -> str:
         r["verdict"], r["verdict"] or "")
 
 
-def class_page(results: list[dict], rubric, png, today: str) -> str:
+def class_page(results: list[dict], rubric, png, today: str, unlisted=()) -> str:
     """The class summary: statistics, own and reported values, every student linked, the
     students who could not be graded, shared and late work, the rubric."""
     from ..report import esc, img, kv, notes, page, table
@@ -155,6 +159,8 @@ def class_page(results: list[dict], rubric, png, today: str) -> str:
     sections.append(("Students", body))
     if missing:
         sections.append(("Could not be graded", notes(missing)))
+    if unlisted:
+        sections.append(("Files no roster row names", notes(_unlisted_warning(list(unlisted)))))
     sections.append(("Rubric", kv(_rubric_facts(rubric))))
     return page(f"Class summary: {rubric.title}", f"{rubric.quantity} in {rubric.unit}, graded "
                 f"on {today}", sections, cautions=())
@@ -177,7 +183,7 @@ def _rubric_facts(rubric) -> list[tuple[str, object]]:
     return out
 
 
-def grade_pages(results: list[dict], rubric, out: Path, today: str, run) -> None:
+def grade_pages(results: list[dict], rubric, out: Path, today: str, run, unlisted=()) -> None:
     """Gradebook CSV, one feedback page per student and the class summary, into ``out``
     through the run's outputs (``run``, a :class:`~rateabs.files.RunOutputs`)."""
     from ..plots import class_summary_plot
@@ -191,7 +197,7 @@ def grade_pages(results: list[dict], rubric, out: Path, today: str, run) -> None
                     *pages])
     png = class_summary_plot(results, rubric, out / "class_summary.png") if any(
         r["value"] is not None for r in results) else None
-    run.write(out / "class_summary.html", class_page(results, rubric, png, today))
+    run.write(out / "class_summary.html", class_page(results, rubric, png, today, unlisted))
 
 
 def _text(public: list[dict], rubric) -> str:
@@ -205,8 +211,16 @@ def _text(public: list[dict], rubric) -> str:
                               f"{rubric.reference:g} {rubric.unit} ± {rubric.tolerance_pct:g} %")
 
 
-def _warnings(results: list[dict], rubric) -> list[str]:
-    out = []
+def _unlisted_warning(unlisted: list[str]) -> list[str]:
+    if not unlisted:
+        return []
+    return [f"{len(unlisted)} file(s) in the class folder are named by no roster row and were "
+            f"not graded: {', '.join(unlisted[:8])}" + (" ..." if len(unlisted) > 8 else "")
+            + "; add a roster row for each student who handed one in"]
+
+
+def _warnings(results: list[dict], rubric, unlisted=()) -> list[str]:
+    out = _unlisted_warning(list(unlisted))
     bad = [r["student"] for r in results if r["status"] != "graded"]
     if bad:
         out.append(f"{len(bad)} student(s) could not be graded: {', '.join(bad[:5])}"
@@ -222,6 +236,7 @@ def run_grade(o: GradeOptions, emit, progressbar=None) -> View:
     gradebook, write the pages."""
     from ..grade import AnalysisCache, check_jobs, grade_class, read_rubric
     from ..grade.cache import CACHE_FILE
+    from ..grade.roster import unlisted_runs
     from ..parallel import describe, open_executor
 
     rubric = read_rubric(o.rubric)
@@ -242,16 +257,19 @@ def run_grade(o: GradeOptions, emit, progressbar=None) -> View:
                 "score": "100 x sum(weight x part) / sum(weights); parts data, report, "
                          "reference (see docs/formats.md)"}
     public = [{k: v for k, v in r.items() if k not in PRIVATE} for r in results]
-    doc = document("grade", [o.folder, o.rubric], settings, public, _warnings(results, rubric))
+    planned = ["grade.json", "grade.csv", "gradebook.csv", "class_summary.html",
+               "class_summary.png", CACHE_FILE]
+    unlisted = unlisted_runs(o.folder, [r["file"] for r in results], [o.rubric] + (
+        [Path(o.out) / n for n in planned] if o.out else []))
+    doc = document("grade", [o.folder, o.rubric], settings, public,
+                   _warnings(results, rubric, unlisted))
     flat = [{k: r[k] for k in ("index", "student", "file", "value", "reported", "reference",
                                "unit", "score", "status", "slip", "late", "shared_with",
                                "diagnosis")} for r in public]
     view = View(doc, _text(public, rubric), rows_to_csv(flat, list(flat[0]), safe=True), results)
-    planned = ["grade.json", "grade.csv", "gradebook.csv", "class_summary.html",
-               "class_summary.png", CACHE_FILE]
     with run_outputs(o, "grade", planned) as run:
         if o.out:
-            grade_pages(results, rubric, Path(o.out), today, run)
+            grade_pages(results, rubric, Path(o.out), today, run, unlisted)
             run.write_in(CACHE_FILE, cache.dumps())
         emit(o.fmt, view.doc, view.table, view.csv, o.out, "grade")
     return view
