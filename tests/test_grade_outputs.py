@@ -271,3 +271,21 @@ def test_v0_feedback_draws_the_initial_rate_window(tmp_path):
     page = (tmp_path / "out" / doc["results"][0]["page"]).read_text()
     assert 'fill-opacity="0.10"' in page and "initial slope" in page and ">window<" in page
     assert "initial-rate window" in page
+
+
+def test_one_run_far_off_does_not_squeeze_the_class_picture(tmp_path):
+    """Own values of 1.0e-3 1/s with one run 60 times off (minutes under a seconds header):
+    the class picture's scale spans the class and the band (not 0.06), the far run drawn at the
+    edge with its ratio. By hand: the band 0.95e-3..1.05e-3, the class 0.98e-3..1.02e-3."""
+    from types import SimpleNamespace
+
+    from rateabs.plots import class_summary_plot
+    from rateabs.plots.grade import _summary_range
+
+    own = np.array([1.0e-3, 1.02e-3, 0.98e-3, 60e-3])
+    lo, hi = _summary_range(own, own.copy(), 1e-3, 0.05)
+    assert 0.9e-3 < lo < 0.98e-3 and 1.05e-3 < hi < 1.2e-3
+    rows = [{"value": v, "reported": v, "index": k + 1} for k, v in enumerate(own)]
+    rubric = SimpleNamespace(reference=1e-3, tolerance_pct=5.0, quantity="k", unit="1/s")
+    path = class_summary_plot(rows, rubric, tmp_path / "s.png")
+    assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"

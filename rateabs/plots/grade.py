@@ -23,8 +23,9 @@ MAX_DOTS = 600
 
 def class_summary_plot(results: list[dict], rubric, path):
     """One row per graded student (#roster number): the own value (filled) and the reported
-    value (open), the reference line and its tolerance band; a reported value far off the
-    scale, zero or negative is drawn at the edge as a triangle."""
+    value (open), the reference line and its tolerance band; a reported or own value far off
+    the scale (beyond a factor 3 of the class's median), zero or negative is drawn at the edge
+    as a triangle with its ratio, so that one run 60 times off does not squeeze the class."""
     rows = [r for r in results if r["value"] is not None]
     ref, tol = rubric.reference, rubric.tolerance_pct / 100
     own = np.array([r["value"] for r in rows], float)
@@ -40,21 +41,36 @@ def class_summary_plot(results: list[dict], rubric, path):
         ax.axvline(ref, color=PALETTE[2], lw=1.4)
         y = np.arange(n)
         inside = (rep >= lo) & (rep <= hi)
-        pairs = np.nonzero(inside)[0]
+        own_in = (own >= lo) & (own <= hi)
+        pairs = np.nonzero(inside & own_in)[0]
         gaps = np.full(pairs.size, np.nan)
         ax.plot(np.column_stack([own[pairs], rep[pairs], gaps]).ravel(),
                 np.column_stack([pairs, pairs, gaps]).ravel(), color=GRID, lw=1.0, zorder=1)
-        ax.plot(own, y, "o", ms=ms, color=PALETTE[0], label="own value (student's data)",
-                zorder=3)
+        ax.plot(own[own_in], y[own_in], "o", ms=ms, color=PALETTE[0],
+                label="own value (student's data)", zorder=3)
+        span = hi - lo
+        label = "own value, off the scale"
+        for side, at, mark in ((own < lo, lo + 0.04 * span, "<"), (own > hi, hi - 0.04 * span,
+                                                                     ">")):
+            if side.any():                          # beside a reported triangle at the edge
+                ax.plot(np.full(side.sum(), at), y[side], mark, ms=6, color=PALETTE[0],
+                        zorder=3, label=label)
+                label = "_nolegend_"
+        for k in np.nonzero(~own_in)[0] if n <= 80 else ():
+            ax.annotate(f"own ×{own[k] / ref:.3g} of the reference", (lo if own[k] < lo else hi,
+                                                                       k), fontsize=6.5,
+                        color=PALETTE[0], ha="left" if own[k] < lo else "right", va="top",
+                        xytext=(2 if own[k] < lo else -2, -2), textcoords="offset points")
         ax.plot(rep[inside], y[inside], "D", ms=ms, mfc="none", mec=PALETTE[1], mew=1.2,
                 label="reported", zorder=4)
         off = np.isfinite(rep) & ~inside
         left, right = off & (rep < lo), off & (rep > hi)
-        span = hi - lo
-        ax.plot(np.full(left.sum(), lo + 0.01 * span), y[left], "<", ms=6, color=PALETTE[1],
-                label="reported, off the scale", zorder=4)
-        ax.plot(np.full(right.sum(), hi - 0.01 * span), y[right], ">", ms=6, color=PALETTE[1],
-                label="_nolegend_" if left.any() else "reported, off the scale", zorder=4)
+        label = "reported, off the scale"
+        for side, at, mark in ((left, lo + 0.01 * span, "<"), (right, hi - 0.01 * span, ">")):
+            if side.any():
+                ax.plot(np.full(side.sum(), at), y[side], mark, ms=6, color=PALETTE[1],
+                        label=label, zorder=4)
+                label = "_nolegend_"
         for k in np.nonzero(off)[0] if n <= 80 else ():      # ratios where they can be read
             ratio = rep[k] / own[k] if own[k] else np.nan
             ax.annotate(f"×{ratio:.3g}", (lo if rep[k] < lo else hi, k), fontsize=6.5,
@@ -72,11 +88,11 @@ def class_summary_plot(results: list[dict], rubric, path):
 
 
 def _summary_range(own, rep, ref, tol) -> tuple[float, float]:
-    """The x range: own values, the band, and reported values within a factor 3 of the own
-    values' median (further ones are off the scale)."""
+    """The x range: the band, and own and reported values within a factor 3 of the own values'
+    median (further ones are off the scale)."""
     med = float(np.median(own)) if own.size else ref
-    keep = rep[np.isfinite(rep) & (rep > med / 3) & (rep < med * 3)]
-    vals = np.concatenate([own, keep, [ref * (1 - tol), ref * (1 + tol)]])
+    near = [v[np.isfinite(v) & (v > med / 3) & (v < med * 3)] for v in (own, rep)]
+    vals = np.concatenate([*near, [ref * (1 - tol), ref * (1 + tol)]])
     lo, hi = float(np.min(vals)), float(np.max(vals))
     pad = 0.08 * (hi - lo) or 0.1 * abs(hi) or 1.0
     return lo - pad, hi + pad
