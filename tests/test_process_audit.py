@@ -1,0 +1,64 @@
+"""``ratelaw`` and ``completion`` as a process chemist uses them, on runs of known truth.
+
+Every trace here is written from its closed-form solution, computed in this file (hand
+calculation of the textbook integrated laws, not rateabs's own models): first order
+A = Ainf + (A0 - Ainf) exp(-k t), time to conversion x t = -ln(1 - x) / k; zero order
+A = A0 - z t. Noise is seeded white noise of 3 mAU.
+"""
+
+import json
+import math
+
+import numpy as np
+from click.testing import CliRunner
+
+from rateabs.cli import main
+
+T = np.arange(0, 2700 + 1, 30.0)          # every 30 s for 45 min
+SD = 0.003
+
+
+def first(t, a0, ainf, k):
+    """Closed-form first order (hand calculation)."""
+    return ainf + (a0 - ainf) * np.exp(-k * np.asarray(t, float))
+
+
+def noisy(y, seed):
+    return y + np.random.default_rng(seed).normal(0, SD, np.size(y))
+
+
+def write(path, t, cols: dict, time_header="time (s)"):
+    lines = [",".join([time_header, *cols])]
+    lines += [",".join([f"{ti:g}"] + [f"{cols[c][i]:.5f}" for c in cols])
+              for i, ti in enumerate(t)]
+    path.write_text("\n".join(lines) + "\n")
+    return path
+
+
+def run(*args):
+    return CliRunner().invoke(main, [str(a) for a in args])
+
+
+def doc_of(res):
+    assert res.exit_code == 0, res.output
+    return json.loads(res.output)
+
+
+# 5 % conversion at 45 min: 1 - exp(-k 2700) = 0.05 (hand calculation)
+K_SHORT = -math.log(0.95) / T[-1]
+
+
+def test_forced_first_order_at_five_percent_gives_no_forecast_not_an_internal_error(tmp_path):
+    """A first-order run at 5 % conversion (truth k = 1.90e-5 1/s, t99 = ln 100 / k = 67 h)
+    with --order 1: the rate's interval reaches 0, and t* = -ln(1 - x)/k at k = 0 ended in
+    'internal error (ZeroDivisionError)'. Now: no headline forecast, and the conversion the
+    data hardly determine is stated with its interval ('covered 0 %' was said of a 5 % run)."""
+    f = write(tmp_path / "short.csv", T, {"A": noisy(first(T, 1.2, 0.1, K_SHORT), 5)})
+    res = run("completion", f, "--order", "1", "--format", "json")
+    d = doc_of(res)
+    r = d["results"][0]
+    assert r["t_target_s"]["value"] is None and not r["complete"]
+    covered = next(w for w in d["warnings"] if "the run has covered" in w)
+    lo, hi = r["conversion"]["ci_low"], r["conversion"]["ci_high"]
+    assert lo <= 0.05 <= hi                              # the truth, 5 %, inside
+    assert f"[{100 * lo:.0f}, {100 * hi:.0f}] %" in covered or "undetermined" in covered
