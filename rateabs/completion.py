@@ -86,6 +86,9 @@ FLAGS = {
                             "shown assumes a stable baseline",
     "drift_fitted": "a baseline drift was fitted: an instrument drift, or a reaction the law "
                     "does not quite describe; the forecast leans on the drift staying linear",
+    "order_not_determined": "order 0 was kept because orders 1 and 2 could not be fitted (a "
+                            "nearly straight trace): the forecast is the straight line's, and a "
+                            "slowing first- or second-order reaction would take longer",
 }
 
 
@@ -604,6 +607,10 @@ def _verdict(law, forecasts, target, t_now, charge, level) -> Completion:
         flags.append("not_identifiable")
     if tt is not None and not math.isfinite(tt.ci_high):
         flags.append("open_interval")
+    if "order_not_determined" in flags and tt is not None:
+        notes.append(f"the time to {100 * target:g} % is the straight line's (order 0): under "
+                     "order 1 or 2 the rate slows as the reactant is used and the target comes "
+                     "later, so read it as an earliest time, not a forecast")
     extrapolation = tt.value / t_now if tt is not None and t_now > 0 else None
     if extrapolation is not None and extrapolation > EXTRAPOLATION_LIMIT:
         flags.append("extrapolated")

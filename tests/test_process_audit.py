@@ -62,3 +62,30 @@ def test_forced_first_order_at_five_percent_gives_no_forecast_not_an_internal_er
     lo, hi = r["conversion"]["ci_low"], r["conversion"]["ci_high"]
     assert lo <= 0.05 <= hi                              # the truth, 5 %, inside
     assert f"[{100 * lo:.0f}, {100 * hi:.0f}] %" in covered or "undetermined" in covered
+
+
+def test_a_straight_trace_says_its_order_was_not_determined(tmp_path):
+    """The same 5 % first-order run with --order auto: orders 1 and 2 cannot be fitted, so
+    order 0 was printed with AICc weight 1 and no flag. With the charge (c0 110 uM x 1e4
+    M^-1 cm^-1 = 1.1 AU, the run's own full change) the straight line forecasts 99 % at about
+    14.5 h where the truth (first order) is ln 100 / k = 67.3 h: the number must carry the
+    flag and be called an earliest time, which the truth bears out."""
+    f = write(tmp_path / "short.csv", T, {"A": noisy(first(T, 1.2, 0.1, K_SHORT), 5)})
+    law = doc_of(run("ratelaw", f, "--format", "json", "--no-plots"))["results"][0]
+    assert law["order"] == "0" and "order_not_determined" in law["flags"]
+    d = doc_of(run("completion", f, "--c0", "110", "--epsilon", "1e4", "--format", "json"))
+    r = d["results"][0]
+    assert "order_not_determined" in r["flags"]
+    truth = math.log(100) / K_SHORT
+    assert r["t_target_s"]["ci_high"] < truth           # the line's time comes too early ...
+    assert any("earliest time" in w for w in d["warnings"])    # ... and it says so
+
+
+def test_a_curved_run_keeps_its_order_without_the_new_flag(tmp_path):
+    """A first-order run at 93 % (k = 1e-3 1/s, hand calculation 1 - exp(-2.7)) is fitted
+    as order 1 and is not flagged order_not_determined."""
+    f = write(tmp_path / "first.csv", T, {"A": noisy(first(T, 1.25, 0.08, 1e-3), 6)})
+    law = doc_of(run("ratelaw", f, "--format", "json", "--no-plots"))["results"][0]
+    assert law["order"] == "1" and "order_not_determined" not in law["flags"]
+    k = law["params"]["k"]
+    assert k["ci_low"] < 1e-3 < k["ci_high"]
