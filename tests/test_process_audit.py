@@ -89,3 +89,26 @@ def test_a_curved_run_keeps_its_order_without_the_new_flag(tmp_path):
     assert law["order"] == "1" and "order_not_determined" not in law["flags"]
     k = law["params"]["k"]
     assert k["ci_low"] < 1e-3 < k["ci_high"]
+
+
+def test_readings_left_out_of_the_fit_are_said_with_their_times(tmp_path):
+    """A first-order run (k = 1e-3 1/s) with an empty cell at 300 s, NaN at 330 s and an
+    overflow marker at 600 s: the fit uses the other 88 readings (k still within its interval
+    of the truth) and says which three it left out. ratelaw and completion dropped them in
+    silence (design: masked readings are flagged, never silently dropped)."""
+    y = noisy(first(T, 1.25, 0.08, 1e-3), 7)
+    rows = [f"{t:g},{a:.5f}" for t, a in zip(T, y, strict=True)]
+    rows[10], rows[11], rows[20] = "300,", "330,NaN", "600,OVER"
+    f = tmp_path / "gaps.csv"
+    f.write_text("time (s),A\n" + "\n".join(rows) + "\n")
+    for command in ("ratelaw", "completion"):
+        d = doc_of(run(command, f, "--format", "json", "--no-plots"))
+        r = d["results"][0]
+        assert r["readings_not_fitted"] == {"missing": 2, "overflow": 1}, command
+        said = [w for w in d["warnings"] if "not fitted" in w]
+        assert said == ["A: 3 readings not fitted: 1 overflow (at 600 s); 2 missing "
+                        "(at 300 s, 330 s)"], command
+    k = doc_of(run("ratelaw", f, "--format", "json", "--no-plots"))["results"][0]["params"]["k"]
+    assert k["ci_low"] < 1e-3 < k["ci_high"]
+    table = run("completion", f).output
+    assert "warning: A: 3 readings not fitted" in table

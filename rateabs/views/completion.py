@@ -15,6 +15,7 @@ from . import (
     origin_settings,
     rate_law_orders,
     read_for,
+    readings_left_out,
     run_outputs,
     time_settings,
     write_outputs,
@@ -115,13 +116,16 @@ def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
 
     results, warnings, done = [], list(ts.info.get("warnings", [])), {}
     for name, c, why in each_trace(o.file, ts, names, one):
+        left_out, said = readings_left_out(ts, name)
+        if said:
+            warnings.append(f"{name}: {said}")
         if c is None:
             results.append({"trace": name, "status": f"not assessed: {why}",
                             "complete": False})
             warnings.append(f"{name}: not assessed: {why}")
             continue
         done[name] = c
-        results.append({**c.to_dict(), "status": "ok"})
+        results.append({**c.to_dict(), "readings_not_fitted": left_out, "status": "ok"})
         warnings += [f"{name}: {n}" for n in c.notes]
     warnings.append(CAUTION)
     t0s = [c.law.t0 for c in done.values()]

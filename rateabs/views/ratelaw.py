@@ -15,6 +15,7 @@ from . import (
     origin_words,
     rate_law_orders,
     read_for,
+    readings_left_out,
     time_settings,
     time_words,
 )
@@ -163,13 +164,16 @@ def compute_ratelaw(o: RatelawOptions) -> View:
     ph = Photometry(**o.photometry_values())
     results, warnings, laws = [], list(ts.info.get("warnings", [])), {}
     for name, res, why in each_trace(o.file, ts, names, _fit_one(o, ph)):
+        left_out, said = readings_left_out(ts, name)
+        if said:
+            warnings.append(f"{name}: {said}")
         if res is None:
             results.append({"trace": name, "order": None, "params": {}, "half_life_s": None,
                             "status": f"not fitted: {why}", "flags": ["not_fitted"]})
             warnings.append(f"{name}: {why}")
             continue
         laws[name] = res[0]
-        results.append(_result(name, *res, ts))
+        results.append({**_result(name, *res, ts), "readings_not_fitted": left_out})
         warnings += [f"{name}: {n}" for n in res[0].notes + list(res[0].fit.notes)]
     series = _pseudo_series(o, laws, warnings) if o.excess else None
     t0s = [law.t0 for law in laws.values()]
