@@ -6,6 +6,8 @@ A = Ainf + (A0 - Ainf) exp(-k t), time to conversion x t = -ln(1 - x) / k; zero 
 A = A0 - z t. Noise is seeded white noise of 3 mAU.
 """
 
+import csv
+import io
 import json
 import math
 
@@ -112,3 +114,16 @@ def test_readings_left_out_of_the_fit_are_said_with_their_times(tmp_path):
     assert k["ci_low"] < 1e-3 < k["ci_high"]
     table = run("completion", f).output
     assert "warning: A: 3 readings not fitted" in table
+
+
+def test_guggenheim_k_is_shown_in_the_table_and_csv_not_only_json(tmp_path):
+    """--guggenheim was accepted and its k printed only into the JSON: the table and the CSV
+    a person reads did not show it. First-order run, truth k = 1e-3 1/s (hand calculation of
+    ln|A(t) - A(t + delta)| = const - k t), interval 10 min."""
+    f = write(tmp_path / "first.csv", T, {"A": noisy(first(T, 1.25, 0.08, 1e-3), 8)})
+    table = run("ratelaw", f, "--guggenheim", "10 min", "--no-plots")
+    assert table.exit_code == 0 and "A: Guggenheim (interval 600 s" in table.output
+    csv_text = run("ratelaw", f, "--guggenheim", "10 min", "--no-plots", "--format", "csv").output
+    row = next(csv.DictReader(io.StringIO(csv_text)))
+    assert float(row["guggenheim_delta_s"]) == 600
+    assert float(row["guggenheim_k_ci_low"]) < 1e-3 < float(row["guggenheim_k_ci_high"])

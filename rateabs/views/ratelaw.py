@@ -120,6 +120,12 @@ def _text(results, laws, series, head: list[str], warnings: list[str], level: fl
     for r in results:
         if r.get("status", "ok") != "ok":
             table += f"{r['trace']}: {r['status']}\n"
+        gg = r.get("guggenheim")
+        if gg:
+            table += (f"{r['trace']}: Guggenheim (interval {gg['delta_s']:g} s, "
+                      f"{gg['n_pairs']} pairs): k = {param_text(gg['k'])} 1/s "
+                      f"{interval_text(gg['k'])}, half-life = {param_text(gg['half_life_s'])} s "
+                      f"{interval_text(gg['half_life_s'])}\n")
     if series:
         k2, k0 = series["k2"], series["k0"]
         table += (f"\npseudo-first-order series ({series['n_runs']} runs): k2 = "
@@ -138,6 +144,12 @@ def _flat(r: dict, excess: dict) -> dict:
         hl.get("value"), hl.get("se"), hl.get("ci_low"), hl.get("ci_high"))
     if r.get("temperature_K") is not None:
         f["temperature_K"] = r["temperature_K"]
+    gg = r.get("guggenheim")
+    if gg:
+        f.update({"guggenheim_k": gg["k"]["value"], "guggenheim_k_se": gg["k"]["se"],
+                  "guggenheim_k_ci_low": gg["k"]["ci_low"],
+                  "guggenheim_k_ci_high": gg["k"]["ci_high"],
+                  "guggenheim_delta_s": gg["delta_s"]})
     if r["trace"] in excess:
         f["excess_M"] = excess[r["trace"]]
     f["flags"] = r.get("flags") or []
