@@ -127,3 +127,21 @@ def test_guggenheim_k_is_shown_in_the_table_and_csv_not_only_json(tmp_path):
     row = next(csv.DictReader(io.StringIO(csv_text)))
     assert float(row["guggenheim_delta_s"]) == 600
     assert float(row["guggenheim_k_ci_low"]) < 1e-3 < float(row["guggenheim_k_ci_high"])
+
+
+def test_completion_with_epsilon_shows_k_in_concentration_units(tmp_path):
+    """--epsilon alone is documented to give k in concentration units, but the table printed
+    k in 1/(AU s) only. Second order at equal concentrations, written from the closed form
+    [A] = c0 / (1 + k c0 t) (hand calculation) with k = 10 L/(mol s), c0 = 100 uM,
+    epsilon 1e4 L/(mol cm), 1 cm, 0.05 AU of background."""
+    c = 1e-4 / (1 + 10.0 * 1e-4 * T)
+    f = write(tmp_path / "second.csv", T, {"A": noisy(0.05 + 1e4 * c, 9)})
+    res = run("completion", f, "--epsilon", "1e4")
+    assert res.exit_code == 0, res.output
+    line = next(ln for ln in res.output.splitlines() if "k (concentration units)" in ln)
+    assert "L/(mol s)" in line
+    lo, hi = (float(x) for x in line.rsplit("[", 1)[1].rstrip("]").split(","))
+    assert lo < 10.0 < hi
+    row = next(csv.DictReader(io.StringIO(run("completion", f, "--epsilon", "1e4", "--format",
+                                              "csv").output)))
+    assert row["k_conc_unit"] == "L/(mol s)" and abs(float(row["k_conc"]) - 10) < 0.5

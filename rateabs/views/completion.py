@@ -50,6 +50,10 @@ def _describe(r: dict, info: dict) -> str:
                 if r["orders_not_told_apart"] else ""),
              f"  k = {param_text(k)} {k.get('unit', '')} "
              f"{interval_text(k)}"]
+    kc = r.get("k_conc")
+    if kc and kc.get("unit") != k.get("unit"):
+        lines.append(f"  k (concentration units) = {param_text(kc)} {kc.get('unit', '')} "
+                     f"{interval_text(kc)}")
     if r.get("drift_A_per_s") and r["drift_A_per_s"].get("value") is not None:
         d = r["drift_A_per_s"]
         per_min = {**d, "value": d["value"] * 6e4, "se": d["se"] * 6e4}
@@ -96,6 +100,9 @@ def _flat(r: dict) -> dict:
             "t_target_s_ci_high": t["ci_high"],
             "extrapolation_multiple": r["extrapolation_multiple"],
             "k": r["k"]["value"], "k_se": r["k"]["se"], "k_unit": r["k"]["unit"],
+            "k_conc": (r.get("k_conc") or {}).get("value"),
+            "k_conc_se": (r.get("k_conc") or {}).get("se"),
+            "k_conc_unit": (r.get("k_conc") or {}).get("unit"),
             "end_absorbance_A": r["end_absorbance"]["value"], "complete": r["complete"],
             "verdict": r["verdict"], "flags": r["flags"], "status": "ok"}
 
