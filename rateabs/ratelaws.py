@@ -389,6 +389,13 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
                      "show its curvature, so order 0 was kept for want of the others, not on "
                      "evidence against them; a first- or second-order reaction early in its "
                      "course looks the same (a longer run, or --order, decides)")
+    before = int(np.sum(t < 0))
+    if before:
+        notes.append(f"{before} reading{'s' if before > 1 else ''} lie{'' if before > 1 else 's'}"
+                     f" before the file's time zero (from {float(np.min(t)):g} s): "
+                     "fitted with the rest, but A0, the conversion and every time are counted "
+                     "from the file's zero, where the reaction is taken to start; if it started "
+                     "at the first reading, shift the times")
     law = RateLawResult(name, base, r, k_conc, half, c0, comp, fits, notes, chosen, plausible,
                         quality, drift_test, flags, t0)
     _explain(law)

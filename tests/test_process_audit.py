@@ -145,3 +145,19 @@ def test_completion_with_epsilon_shows_k_in_concentration_units(tmp_path):
     row = next(csv.DictReader(io.StringIO(run("completion", f, "--epsilon", "1e4", "--format",
                                               "csv").output)))
     assert row["k_conc_unit"] == "L/(mol s)" and abs(float(row["k_conc"]) - 10) < 0.5
+
+
+def test_readings_before_the_files_zero_are_said(tmp_path):
+    """Times from -300 s to 2400 s, the reaction (k = 1e-3 1/s) running from the first
+    reading: conversion counted from the file's zero is 1 - exp(-2.4) = 90.9 % (hand
+    calculation), from the first reading 1 - exp(-2.7) = 93.3 %. completion gives the first
+    and said nothing about the ten readings before zero; now it says where it counts from."""
+    y = noisy(first(T, 1.25, 0.08, 1e-3), 10)
+    f = write(tmp_path / "neg.csv", T - 300, {"A": y})
+    d = doc_of(run("completion", f, "--format", "json"))
+    conv = d["results"][0]["conversion"]
+    assert conv["ci_low"] - 0.005 < 1 - math.exp(-2.4) < conv["ci_high"] + 0.005
+    assert any("10 readings lie before the file's time zero (from -300 s)" in w
+               for w in d["warnings"])
+    law = doc_of(run("ratelaw", f, "--format", "json", "--no-plots"))
+    assert any("before the file's time zero" in w for w in law["warnings"])
