@@ -161,3 +161,17 @@ def test_readings_before_the_files_zero_are_said(tmp_path):
                for w in d["warnings"])
     law = doc_of(run("ratelaw", f, "--format", "json", "--no-plots"))
     assert any("before the file's time zero" in w for w in law["warnings"])
+
+
+def test_a_target_already_passed_is_said_to_be_passed(tmp_path):
+    """A first-order run at 99.9 % by 45 min (k = ln 1000 / 2700 s): 99 % was reached at
+    ln 100 / k = 30.0 min (hand calculation), 15 min before the last reading. The table said
+    '0.0 min after the last reading'."""
+    k = math.log(1000) / T[-1]
+    f = write(tmp_path / "done.csv", T, {"A": noisy(first(T, 1.2, 0.1, k), 11)})
+    res = run("completion", f)
+    line = next(ln for ln in res.output.splitlines() if "time to 99 %" in ln)
+    assert "passed 1" in line and "before the last reading" in line
+    assert "0.0 min after" not in line
+    t = doc_of(run("completion", f, "--format", "json"))["results"][0]["t_target_s"]
+    assert t["ci_low"] < math.log(100) / k < t["ci_high"]

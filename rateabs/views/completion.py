@@ -69,8 +69,10 @@ def _describe(r: dict, info: dict) -> str:
         rest = max(t["value"] - r["t_now_s"], 0) / 60
         when = (f"at {file_time_text(r['time_origin_s'] + t['value'], info)} in the file's "
                 "times; " if r["time_origin_s"] else "")
+        after = (f"{rest:.1f} min after the last reading" if t["value"] > r["t_now_s"] else
+                 f"passed {(r['t_now_s'] - t['value']) / 60:.1f} min before the last reading")
         lines.append(f"  time to {target}: {_minutes(t)} from the time origin ({when}"
-                     f"{rest:.1f} min after the last reading; "
+                     f"{after}; "
                      f"{r['extrapolation_multiple']:.1f} times the observed span)")
     else:
         lines.append(f"  time to {target}: no forecast: {r['no_forecast_because']}")
