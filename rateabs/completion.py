@@ -86,6 +86,9 @@ FLAGS = {
                             "shown assumes a stable baseline",
     "drift_fitted": "a baseline drift was fitted: an instrument drift, or a reaction the law "
                     "does not quite describe; the forecast leans on the drift staying linear",
+    "order_not_determined": "order 0 was kept because orders 1 and 2 could not be fitted (a "
+                            "nearly straight trace): the forecast is the straight line's, and a "
+                            "slowing first- or second-order reaction would take longer",
 }
 
 
@@ -256,10 +259,11 @@ def _shape(order: str):
 
 
 def _time_to(order: str, x: float):
-    """t*(theta) for target conversion x of the fitted change."""
+    """t*(theta) for target conversion x of the fitted change; infinite at a rate of zero (an
+    interval of the rate that reaches 0 leaves the time open above)."""
     if order == "1":
-        return lambda th: -math.log(1 - x) / th
-    return lambda th: x / ((1 - x) * th)
+        return lambda th: -math.log(1 - x) / th if th > 0 else math.inf
+    return lambda th: x / ((1 - x) * th) if th > 0 else math.inf
 
 
 def delta_se(r: FitResult, g) -> float:
@@ -603,6 +607,10 @@ def _verdict(law, forecasts, target, t_now, charge, level) -> Completion:
         flags.append("not_identifiable")
     if tt is not None and not math.isfinite(tt.ci_high):
         flags.append("open_interval")
+    if "order_not_determined" in flags and tt is not None:
+        notes.append(f"the time to {100 * target:g} % is the straight line's (order 0): under "
+                     "order 1 or 2 the rate slows as the reactant is used and the target comes "
+                     "later, so read it as an earliest time, not a forecast")
     extrapolation = tt.value / t_now if tt is not None and t_now > 0 else None
     if extrapolation is not None and extrapolation > EXTRAPOLATION_LIMIT:
         flags.append("extrapolated")
@@ -611,7 +619,11 @@ def _verdict(law, forecasts, target, t_now, charge, level) -> Completion:
     seen = conv if math.isfinite(conv.value) else basis_conv
     if seen is not None and math.isfinite(seen.value) and seen.value < LOW_CONVERSION:
         flags.append("low_conversion")
-        notes.append(f"the run has covered {100 * seen.value:.0f} % of its change: below "
+        band = (f" [{100 * seen.ci_low:.0f}, {100 * seen.ci_high:.0f}] %"
+                if math.isfinite(seen.ci_low) and math.isfinite(seen.ci_high) else "")
+        covered = (f"{100 * seen.value:.0f} %{band} of its change" if identifiable(seen) else
+                   "an undetermined part of its change (the data do not fix the end point)")
+        notes.append(f"the run has covered {covered}: below "
                      f"{100 * LOW_CONVERSION:g} % orders 1 and 2 are seldom told apart and the "
                      "end point is poorly known")
     if math.isfinite(end.ci_high) and end.ci_high < NEGATIVE_END:

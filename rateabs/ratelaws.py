@@ -372,6 +372,7 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     orders = ["0", "1", "2"] if order == "auto" else [order]
     fits, failed = _fit_candidates(t, y, orders, fix, drift, level, a0, b0)
     chosen, comp, plausible, drift_test = _choose(name, fits, failed, orders, drift)
+    untested = _untested_orders(comp, chosen)
     if ci != "asymptotic":        # intervals of the chosen model by the method asked for
         model = _model_named(chosen, a0, b0)
         f = {k: v for k, v in (fix or {}).items() if k in model.params}
@@ -381,10 +382,33 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     k_conc, half, c0, notes = _derived(r, base, ph, rising, level)
     quality = fit_quality(r, noise)
     flags = _flags(r, quality, plausible, notes, t, half)
+    if untested:
+        flags.append("order_not_determined")
+        notes.append(f"order{'s' if len(untested) > 1 else ''} {' and '.join(untested)} could "
+                     "not be fitted (not identifiable): the trace is too nearly straight to "
+                     "show its curvature, so order 0 was kept for want of the others, not on "
+                     "evidence against them; a first- or second-order reaction early in its "
+                     "course looks the same (a longer run, or --order, decides)")
+    before = int(np.sum(t < 0))
+    if before:
+        notes.append(f"{before} reading{'s' if before > 1 else ''} lie{'' if before > 1 else 's'}"
+                     f" before the file's time zero (from {float(np.min(t)):g} s): "
+                     "fitted with the rest, but A0, the conversion and every time are counted "
+                     "from the file's zero, where the reaction is taken to start; if it started "
+                     "at the first reading, shift the times")
     law = RateLawResult(name, base, r, k_conc, half, c0, comp, fits, notes, chosen, plausible,
                         quality, drift_test, flags, t0)
     _explain(law)
     return law
+
+
+def _untested_orders(comp: Comparison | None, chosen: str) -> list[str]:
+    """The curved orders (1, 2) that could not be fitted when the straight line (order 0) was
+    chosen by AICc: order 0 is their limit of no curvature, so their failure is no evidence
+    for it (a first-order run at 5 % conversion is as straight as a zero-order one)."""
+    if comp is None or chosen.split("+")[0] != "0":
+        return []
+    return [o for o in ("1", "2") if o in comp.failed]
 
 
 def _model_named(name: str, a0, b0) -> Model:
@@ -484,6 +508,8 @@ FLAGS = {
                              "best",
     "short_run": "the run covers less than one half-life",
     "drift_fitted": "a linear baseline drift was fitted with the rate law",
+    "order_not_determined": "order 0 was kept because orders 1 and 2 could not be fitted (a "
+                            "nearly straight trace), not on evidence against them",
 }
 
 

@@ -233,6 +233,32 @@ def each_trace(file: str, ts, names, fn) -> list[tuple]:
     return out
 
 
+def readings_left_out(ts, name: str) -> tuple[dict, str | None]:
+    """A trace's readings that were not fitted, by reading flag ({flag: count}), and a sentence
+    naming them with their times in the file's own times (None when every reading was used):
+    a masked reading is said, never dropped in silence."""
+    import numpy as np
+
+    from ..traces import FLAG_NAMES
+
+    g = ts.grid()
+    i = g.names.index(name)
+    real = np.isfinite(g.times[i]) & ~g.usable[i]
+    if not real.any():
+        return {}, None
+    codes = (g.flags[i] if g.flags is not None else np.full(g.times[i].shape, 2))[real]
+    times = g.times[i][real]
+    counts, parts = {}, []
+    for code in sorted(set(codes.tolist())):
+        flag = FLAG_NAMES[code] or "missing"
+        at = times[codes == code]
+        counts[flag] = int(at.size)
+        shown = ", ".join(file_time_text(float(t), ts.info) for t in at[:4])
+        parts.append(f"{at.size} {flag} (at {shown}{', ...' if at.size > 4 else ''})")
+    n = int(real.sum())
+    return counts, (f"{n} reading{'s' if n > 1 else ''} not fitted: {'; '.join(parts)}")
+
+
 def check_rate_law_fix(fix: dict, orders) -> None:
     """Refuse a --fix name that none of the rate laws to be fitted has."""
     from ..models import RATE_LAWS

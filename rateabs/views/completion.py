@@ -15,6 +15,7 @@ from . import (
     origin_settings,
     rate_law_orders,
     read_for,
+    readings_left_out,
     run_outputs,
     time_settings,
     write_outputs,
@@ -49,6 +50,10 @@ def _describe(r: dict, info: dict) -> str:
                 if r["orders_not_told_apart"] else ""),
              f"  k = {param_text(k)} {k.get('unit', '')} "
              f"{interval_text(k)}"]
+    kc = r.get("k_conc")
+    if kc and kc.get("unit") != k.get("unit"):
+        lines.append(f"  k (concentration units) = {param_text(kc)} {kc.get('unit', '')} "
+                     f"{interval_text(kc)}")
     if r.get("drift_A_per_s") and r["drift_A_per_s"].get("value") is not None:
         d = r["drift_A_per_s"]
         per_min = {**d, "value": d["value"] * 6e4, "se": d["se"] * 6e4}
@@ -64,8 +69,10 @@ def _describe(r: dict, info: dict) -> str:
         rest = max(t["value"] - r["t_now_s"], 0) / 60
         when = (f"at {file_time_text(r['time_origin_s'] + t['value'], info)} in the file's "
                 "times; " if r["time_origin_s"] else "")
+        after = (f"{rest:.1f} min after the last reading" if t["value"] > r["t_now_s"] else
+                 f"passed {(r['t_now_s'] - t['value']) / 60:.1f} min before the last reading")
         lines.append(f"  time to {target}: {_minutes(t)} from the time origin ({when}"
-                     f"{rest:.1f} min after the last reading; "
+                     f"{after}; "
                      f"{r['extrapolation_multiple']:.1f} times the observed span)")
     else:
         lines.append(f"  time to {target}: no forecast: {r['no_forecast_because']}")
@@ -95,6 +102,9 @@ def _flat(r: dict) -> dict:
             "t_target_s_ci_high": t["ci_high"],
             "extrapolation_multiple": r["extrapolation_multiple"],
             "k": r["k"]["value"], "k_se": r["k"]["se"], "k_unit": r["k"]["unit"],
+            "k_conc": (r.get("k_conc") or {}).get("value"),
+            "k_conc_se": (r.get("k_conc") or {}).get("se"),
+            "k_conc_unit": (r.get("k_conc") or {}).get("unit"),
             "end_absorbance_A": r["end_absorbance"]["value"], "complete": r["complete"],
             "verdict": r["verdict"], "flags": r["flags"], "status": "ok"}
 
@@ -115,13 +125,16 @@ def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
 
     results, warnings, done = [], list(ts.info.get("warnings", [])), {}
     for name, c, why in each_trace(o.file, ts, names, one):
+        left_out, said = readings_left_out(ts, name)
+        if said:
+            warnings.append(f"{name}: {said}")
         if c is None:
             results.append({"trace": name, "status": f"not assessed: {why}",
                             "complete": False})
             warnings.append(f"{name}: not assessed: {why}")
             continue
         done[name] = c
-        results.append({**c.to_dict(), "status": "ok"})
+        results.append({**c.to_dict(), "readings_not_fitted": left_out, "status": "ok"})
         warnings += [f"{name}: {n}" for n in c.notes]
     warnings.append(CAUTION)
     t0s = [c.law.t0 for c in done.values()]

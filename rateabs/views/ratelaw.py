@@ -15,6 +15,7 @@ from . import (
     origin_words,
     rate_law_orders,
     read_for,
+    readings_left_out,
     time_settings,
     time_words,
 )
@@ -119,6 +120,12 @@ def _text(results, laws, series, head: list[str], warnings: list[str], level: fl
     for r in results:
         if r.get("status", "ok") != "ok":
             table += f"{r['trace']}: {r['status']}\n"
+        gg = r.get("guggenheim")
+        if gg:
+            table += (f"{r['trace']}: Guggenheim (interval {gg['delta_s']:g} s, "
+                      f"{gg['n_pairs']} pairs): k = {param_text(gg['k'])} 1/s "
+                      f"{interval_text(gg['k'])}, half-life = {param_text(gg['half_life_s'])} s "
+                      f"{interval_text(gg['half_life_s'])}\n")
     if series:
         k2, k0 = series["k2"], series["k0"]
         table += (f"\npseudo-first-order series ({series['n_runs']} runs): k2 = "
@@ -137,6 +144,12 @@ def _flat(r: dict, excess: dict) -> dict:
         hl.get("value"), hl.get("se"), hl.get("ci_low"), hl.get("ci_high"))
     if r.get("temperature_K") is not None:
         f["temperature_K"] = r["temperature_K"]
+    gg = r.get("guggenheim")
+    if gg:
+        f.update({"guggenheim_k": gg["k"]["value"], "guggenheim_k_se": gg["k"]["se"],
+                  "guggenheim_k_ci_low": gg["k"]["ci_low"],
+                  "guggenheim_k_ci_high": gg["k"]["ci_high"],
+                  "guggenheim_delta_s": gg["delta_s"]})
     if r["trace"] in excess:
         f["excess_M"] = excess[r["trace"]]
     f["flags"] = r.get("flags") or []
@@ -163,13 +176,16 @@ def compute_ratelaw(o: RatelawOptions) -> View:
     ph = Photometry(**o.photometry_values())
     results, warnings, laws = [], list(ts.info.get("warnings", [])), {}
     for name, res, why in each_trace(o.file, ts, names, _fit_one(o, ph)):
+        left_out, said = readings_left_out(ts, name)
+        if said:
+            warnings.append(f"{name}: {said}")
         if res is None:
             results.append({"trace": name, "order": None, "params": {}, "half_life_s": None,
                             "status": f"not fitted: {why}", "flags": ["not_fitted"]})
             warnings.append(f"{name}: {why}")
             continue
         laws[name] = res[0]
-        results.append(_result(name, *res, ts))
+        results.append({**_result(name, *res, ts), "readings_not_fitted": left_out})
         warnings += [f"{name}: {n}" for n in res[0].notes + list(res[0].fit.notes)]
     series = _pseudo_series(o, laws, warnings) if o.excess else None
     t0s = [law.t0 for law in laws.values()]
