@@ -1026,8 +1026,10 @@ class Comparison:
         """The evidence as text."""
         lines = ["model                 k    AICc      dAICc   weight"]
         for r in self.rows:
-            lines.append(f"{r['model']:<20} {r['k']:>2} {r['aicc']:>9.3f} {r['delta_aicc']:>9.3f} "
-                         f"{r['weight']:>7.3f}{'  <- chosen' if r['model'] == self.chosen else ''}")
+            nums = (f"{r['aicc']:>9.3f} {r['delta_aicc']:>9.3f} {r['weight']:>7.3f}"
+                    if np.isfinite(r["weight"]) else f"{'-':>9} {'-':>9} {'-':>7}")
+            lines.append(f"{r['model']:<20} {r['k']:>2} {nums}"
+                         f"{'  <- chosen' if r['model'] == self.chosen else ''}")
         for t in self.ftests:
             lines.append(f"F-test {t['simpler']} within {t['general']}: F = {t['F']:.3g} "
                          f"({t['df1']}, {t['df2']} df), p = {fmt_p(t['p'])}")
@@ -1051,6 +1053,25 @@ def f_test(simple: FitResult, general: FitResult) -> dict:
             "df2": df2, "p": p}
 
 
+def _without_aicc(good: dict, ftests: list) -> tuple[list, str, str]:
+    """Rows, choice and reason when no candidate has a finite AICc: too few points, n <= k + 1
+    for every model (k counting the residual variance; Hurvich & Tsai 1989). Nothing ranks them,
+    so the model with the fewest parameters is kept and the reason says so (with the F-tests
+    against it, which need only one residual degree of freedom)."""
+    rows = [{"model": m, "k": r.n_free, "rss": r.rss, "aicc": r.aicc,
+             "delta_aicc": float("nan"), "weight": float("nan")} for m, r in good.items()]
+    rows.sort(key=lambda d: d["k"])
+    chosen = rows[0]["model"]
+    n = good[chosen].n
+    tests = "; ".join(f"F-test against {t['general']} p = {fmt_p(t['p'])}" for t in ftests
+                      if t["simpler"] == chosen and np.isfinite(t["p"]))
+    reason = (f"AICc is not defined for any candidate with only {n} points (it needs more than "
+              f"k + 1 points for k estimated quantities); not ranked by evidence: the model with "
+              f"the fewest parameters is kept" + (f" ({tests})" if tests else "")
+              + "; measure more concentrations to compare models")
+    return rows, chosen, reason
+
+
 def compare(results: dict, nested=(), failed: dict | None = None, alpha: float = 0.05) -> Comparison:
     """Rank fits by AICc and choose one.
 
@@ -1066,6 +1087,10 @@ def compare(results: dict, nested=(), failed: dict | None = None, alpha: float =
     if not good:
         raise FitError("no candidate model could be fitted",
                        "; ".join(f"{m}: {w}" for m, w in failed.items()) or "check the data")
+    ftests = [f_test(good[a], good[b]) for a, b in nested if a in good and b in good]
+    if not any(np.isfinite(r.aicc) for r in good.values()):
+        rows, chosen, reason = _without_aicc(good, ftests)
+        return Comparison(rows, ftests, chosen, reason, failed)
     best_aicc = min(r.aicc for r in good.values())
     raw = {m: math.exp(-0.5 * (r.aicc - best_aicc)) if np.isfinite(r.aicc) else 0.0
            for m, r in good.items()}
@@ -1073,7 +1098,6 @@ def compare(results: dict, nested=(), failed: dict | None = None, alpha: float =
     rows = sorted(({"model": m, "k": r.n_free, "rss": r.rss, "aicc": r.aicc,
                     "delta_aicc": r.aicc - best_aicc, "weight": raw[m] / tot}
                    for m, r in good.items()), key=lambda d: d["aicc"])
-    ftests = [f_test(good[a], good[b]) for a, b in nested if a in good and b in good]
     chosen = rows[0]["model"]
     reason = f"lowest AICc ({rows[0]['aicc']:.2f})"
     for _ in range(len(good)):

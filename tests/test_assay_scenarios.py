@@ -1,0 +1,41 @@
+"""Assay scenarios simulated from a known truth: what saturation and progress print about them.
+
+Every truth here is a simulation (seed beside it) of a rate law typed in tests/kinetics_truth.py
+or integrated there by solve_ivp; no number is taken from the package's own equations.
+"""
+
+import json
+
+import numpy as np
+from click.testing import CliRunner
+from kinetics_truth import mechanism_rates
+
+from rateabs.cli import main
+
+
+def _write(path, header, *cols):
+    path.write_text(header + "\n" + "".join(",".join(f"{c:.6g}" for c in row) + "\n"
+                                            for row in zip(*cols, strict=True)))
+    return str(path)
+
+
+def _saturation_json(path, *args):
+    r = CliRunner().invoke(main, ["saturation", path, "--no-plots", "--format", "json", *args])
+    assert r.exit_code == 0, r.output
+    return json.loads(r.stdout)
+
+
+def test_four_points_are_not_ranked_by_an_undefined_aicc(tmp_path):
+    """Four rates leave AICc undefined for every candidate (n - k - 1 <= 0; Hurvich & Tsai 1989,
+    Biometrika 76:297): the choice must say it was not made on AICc, not 'lowest AICc (inf)'.
+
+    Truth: Michaelis-Menten by solve_ivp, Vmax 10 uM/min, Km 50 uM; 2 % noise, seed 11."""
+    s = np.array([10, 40, 160, 640.0])
+    v = mechanism_rates(s, np.zeros(4), V=10.0, Km=50.0)
+    v = v * (1 + np.random.default_rng(11).normal(0, 0.02, 4))
+    doc = _saturation_json(_write(tmp_path / "four.csv", "substrate_uM,rate_uM_per_min", s, v))
+    chosen = next(r for r in doc["results"] if r["chosen"])
+    assert chosen["model"] == "mm"
+    reason = chosen["evidence"]["reason"]
+    assert "not defined" in reason and "inf" not in reason
+    assert all(r.get("akaike_weight") is None for r in doc["results"])
