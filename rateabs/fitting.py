@@ -255,7 +255,10 @@ class FitResult:
 
 
 def make_weights(y, weighting: str = "none", sd=None) -> np.ndarray:
-    """Weights that multiply residuals: 1, 1/|y| (relative) or 1/SD (given SDs)."""
+    """Weights that multiply residuals: 1, 1/|y| (relative) or 1/SD (given SDs).
+
+    :func:`fit` weighs ``relative`` by the fitted curve instead (:func:`_curve_weights`);
+    1/|y| serves callers that weigh by observed values on purpose."""
     y = np.asarray(y, dtype=float)
     OneOf(WEIGHTINGS).check(weighting, "weighting")
     if weighting == "none":
@@ -660,9 +663,17 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     if n <= len(free):
         raise FitError(f"not estimable: {n} points for {len(free)} free parameters of "
                        f"{model.name}", "measure more concentrations or fix a parameter")
-    w = make_weights(y, weighting, sd)
     start = {**model.guess(x, y), **(p0 or {}), **fix}
     bounds = bounds or {}
+    relative_notes: list = []
+    if weighting == "relative":
+        x, y, w, start, relative_notes = _curve_weights(model, x, y, start, fix, bounds)
+        n = y.size
+        if n <= len(free):
+            raise FitError(f"not estimable: {n} points with a non-zero rate for {len(free)} free "
+                           f"parameters of {model.name}", "measure more concentrations")
+    else:
+        w = make_weights(y, weighting, sd)
     scale_covar = weighting != "sd"
     res = _minimize(model, (x, y, w), start, fix, bounds)
     values = dict(res.values)
@@ -681,6 +692,7 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     elif ci == "bootstrap" and free:
         _bootstrap_into(u, bootstrap(model, x, y, w, values, free, fitted, n_boot=n_boot,
                                      resample=resample, seed=seed, bounds=bounds), free, level)
+    u.notes[:0] = relative_notes
     params = {nm: Param(nm, float(values[nm]), float(u.se[nm]), float(u.lows[nm]),
                         float(u.highs[nm]), u.method[nm],
                         unit_of(model.units.get(nm, "1"), units or {}), fixed=nm in fix)
@@ -693,6 +705,46 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
                      runs_p=runs_test(y - fitted), notes=tuple(u.notes), weighting=weighting,
                      resample=resample if ci == "bootstrap" else None, n_boot_ok=u.n_boot_ok,
                      func=model.func)
+
+
+def _curve_weights(model: Model, x, y, start: dict, fix: dict, bounds: dict,
+                   max_rounds: int = 30):
+    """Relative weighting by the fitted curve: weights 1/|f(x)|, iterated to a fixed point
+    (iteratively reweighted least squares for an error proportional to the mean; Carroll &
+    Ruppert 1988, *Transformation and Weighting in Regression*, ch. 2).
+
+    Weights from the observed values, 1/|y|, let a rate near zero by noise (a blank at [S] = 0,
+    a low rate that came out slightly negative) outweigh all others many times over. The first
+    round is unweighted. Readings where the fitted curve is zero ([S] = 0 under the
+    Michaelis–Menten family) have no relative error to weigh by and carry no information on
+    the parameters: they are left out, said in a note. Returns x, y, the weights, the start
+    for the final fit and the notes."""
+    w = np.ones_like(y)
+    values = dict(start)
+    for _ in range(max_rounds):
+        res = _minimize(model, (x, y, w), values, fix, bounds)
+        with np.errstate(all="ignore"):
+            f = np.abs(model.func(x, *res.values.values()))
+        top = float(np.max(f)) if f.size and np.all(np.isfinite(f)) else 0.0
+        if top <= 0:
+            raise FitError("relative weighting needs a fitted curve that is not zero everywhere",
+                           "use --weighting none")
+        new = np.where(f > 1e-9 * top, 1.0 / np.where(f > 0, f, 1.0), 0.0)
+        moved = max((abs(res.values[k] - values[k]) / max(abs(values[k]), 1e-300)
+                     for k in values), default=0.0)
+        values, w_old, w = res.values, w, new
+        if moved < 1e-9 and np.array_equal(w_old > 0, w > 0):
+            break
+    keep = w > 0
+    notes = []
+    if not keep.all():
+        notes.append(f"{int((~keep).sum())} reading(s) where the fitted curve is zero (e.g. "
+                     "[S] = 0) carry no weight under relative weighting and were left out")
+    # scaled to a geometric mean of 1: the weighted RSS is then on the rates' own scale and
+    # n ln(RSS/n) is the log-likelihood of y ~ N(f, sigma^2 f^2) (the sum of ln|f| cancels), so
+    # AICc and F-tests compare models that each weigh by their own curve
+    w = w[keep] / math.exp(float(np.mean(np.log(w[keep]))))
+    return x[..., keep], y[keep], w, values, notes
 
 
 def polish(model: Model, x, y, w, values: dict, free, tol: float, bounds: dict | None = None,

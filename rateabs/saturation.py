@@ -332,6 +332,7 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
     chosen = comp.chosen if comp is not None else candidates[0]
     if comp is None and not fits[chosen].success:
         warn.append(f"{chosen}: {fits[chosen].message}")
+    warn += [f"{chosen}: {note}" for note in fits[chosen].notes]
     derived, more = _derived(fits, chosen, data, level, enzyme_M,
                              {"mode": mode, "substrate": substrate, "km": km})
     cross = {}

@@ -39,3 +39,24 @@ def test_four_points_are_not_ranked_by_an_undefined_aicc(tmp_path):
     reason = chosen["evidence"]["reason"]
     assert "not defined" in reason and "inf" not in reason
     assert all(r.get("akaike_weight") is None for r in doc["results"])
+
+
+def test_relative_weighting_is_not_ruled_by_a_blank_near_zero(tmp_path):
+    """Relative weighting weighs by the fitted curve (Carroll & Ruppert 1988, Transformation and
+    Weighting in Regression): blanks at [S] = 0 whose rates are noise around zero (+-0.02) must
+    not outweigh the series (1/|v| gave one of them 50x the weight of the top rate).
+
+    Truth: Michaelis-Menten by solve_ivp, Vmax 1 uM/min, Km 50 uM, 5 % proportional noise,
+    seed 3; two blanks at [S] = 0 read 0.012 and -0.004 uM/min."""
+    s = np.repeat([5, 10, 20, 40, 80, 160, 320, 640.0], 2)
+    v = mechanism_rates(s, np.zeros(s.size), V=1.0, Km=50.0)
+    v = v * (1 + np.random.default_rng(3).normal(0, 0.05, s.size))
+    s, v = np.r_[0.0, 0.0, s], np.r_[0.012, -0.004, v]
+    doc = _saturation_json(_write(tmp_path / "blanks.csv", "substrate_uM,rate_uM_per_min", s, v),
+                           "--weighting", "relative")
+    chosen = next(r for r in doc["results"] if r["chosen"])
+    assert chosen["model"] == "mm" and chosen["n"] == 16
+    km, vm = chosen["params"]["Km"], chosen["params"]["Vmax"]
+    assert km["ci_low"] < 50 < km["ci_high"] and vm["ci_low"] < 1 < vm["ci_high"]
+    assert km["se"] / km["value"] < 0.15
+    assert any("left out" in w for w in doc["warnings"])

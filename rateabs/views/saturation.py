@@ -87,6 +87,17 @@ def _settings_json(o: SaturationOptions, data) -> dict:
     return settings
 
 
+def _residual_se(best, rate_unit: str) -> str:
+    """The residual SE in words: in the rate unit (no weights), as a fraction of the rate
+    (relative weighting) or in units of the given SDs (sd weighting)."""
+    if best.weighting == "relative":
+        rel = np.sqrt(np.sum((best.residuals / best.fitted) ** 2) / max(best.dof, 1))
+        return f"{100 * rel:.3g} % of the rate (relative weighting)"
+    if best.weighting == "sd":
+        return f"{best.sigma:.4g} x the given SDs"
+    return f"{best.sigma:.4g} {rate_unit}".rstrip()
+
+
 def _text(a, data, results, level: float) -> str:
     chosen = next(r for r in results if r.get("chosen"))
     prow = [{"param": k, **v} for k, v in chosen["params"].items()]
@@ -95,7 +106,7 @@ def _text(a, data, results, level: float) -> str:
                                 ("ci_high", f"{100 * level:g}% high"), ("unit", "unit"),
                                 ("ci_method", "interval")],
                          title=f"chosen model: {a.chosen}   ({chosen['equation']})")
-    table += (f"n = {data.v.size} points, residual SE = {a.best.sigma:.4g} {data.rate_unit}, "
+    table += (f"n = {a.best.n} points, residual SE = {_residual_se(a.best, data.rate_unit)}, "
               f"runs test p = {a.best.runs_p:.3g}\n")
     if a.comparison is not None:
         table += "\nevidence\n" + a.comparison.report() + "\n"
