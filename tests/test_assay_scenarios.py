@@ -60,3 +60,19 @@ def test_relative_weighting_is_not_ruled_by_a_blank_near_zero(tmp_path):
     assert km["ci_low"] < 50 < km["ci_high"] and vm["ci_low"] < 1 < vm["ci_high"]
     assert km["se"] / km["value"] < 0.15
     assert any("left out" in w for w in doc["warnings"])
+
+
+def test_direct_linear_plot_cross_checks_only_hyperbolas(tmp_path):
+    """The direct linear plot (Eisenthal & Cornish-Bowden 1974, Biochem. J. 139:715) estimates a
+    hyperbola's Km and Vmax; on a sigmoid set its medians were printed as a cross-check of the
+    Hill fit (Vmax -0.47, Km -41). Truth: Hill (1910) as typed in kinetics_truth, Vmax 10
+    uM/min, S50 50 uM, n 2.5; noise SD 0.2 uM/min, seed 12345."""
+    from kinetics_truth import v_hill
+
+    s = np.repeat([5, 10, 20, 30, 40, 50, 60, 80, 120, 200, 400.0], 2)
+    v = v_hill(s, 10.0, 50.0, 2.5) + np.random.default_rng(12345).normal(0, 0.2, s.size)
+    doc = _saturation_json(_write(tmp_path / "hill.csv", "substrate_uM,rate_uM_per_min", s, v))
+    chosen = next(r for r in doc["results"] if r["chosen"])
+    assert chosen["model"] == "hill"
+    assert chosen["params"]["n"]["ci_low"] < 2.5 < chosen["params"]["n"]["ci_high"]
+    assert "cross_check" not in chosen
