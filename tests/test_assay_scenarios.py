@@ -76,3 +76,27 @@ def test_direct_linear_plot_cross_checks_only_hyperbolas(tmp_path):
     assert chosen["model"] == "hill"
     assert chosen["params"]["n"]["ci_low"] < 2.5 < chosen["params"]["n"]["ci_high"]
     assert "cross_check" not in chosen
+
+
+def test_several_samples_in_one_table_are_not_pooled_silently(tmp_path):
+    """A rates table (as `rateabs rates` writes it) naming two samples: fitting them as one
+    series gives one Km for two enzymes, so the command must say so and name --each.
+
+    Truth: Michaelis-Menten by solve_ivp; enzyme 'pure' Vmax 10 uM/min, Km 50 uM; 'lysate'
+    Vmax 2 uM/min, Km 400 uM; 2 % noise, seed 8."""
+    s = np.array([10, 25, 50, 100, 200, 400, 800, 1600.0])
+    rng = np.random.default_rng(8)
+    v1 = mechanism_rates(s, np.zeros(8), V=10.0, Km=50.0) * (1 + rng.normal(0, 0.02, 8))
+    v2 = mechanism_rates(s, np.zeros(8), V=2.0, Km=400.0) * (1 + rng.normal(0, 0.02, 8))
+    f = tmp_path / "rates.csv"
+    f.write_text("trace,role,sample,substrate_uM,rate_uM_per_min\n" + "".join(
+        f"W{k},sample,{name},{a:g},{b:.5g}\n" for k, (name, a, b) in enumerate(
+            [("pure", a, b) for a, b in zip(s, v1, strict=True)]
+            + [("lysate", a, b) for a, b in zip(s, v2, strict=True)])))
+    doc = _saturation_json(str(f))
+    assert any("2 samples" in w and "--each sample" in w for w in doc["warnings"])
+    each = _saturation_json(str(f), "--each", "sample")
+    assert not any("samples" in w for w in each["warnings"])
+    km = {r["group"]: r["params"]["Km"] for r in each["results"]}
+    assert km["pure"]["ci_low"] < 50 < km["pure"]["ci_high"]
+    assert km["lysate"]["ci_low"] < 400 < km["lysate"]["ci_high"]
