@@ -100,3 +100,41 @@ def test_several_samples_in_one_table_are_not_pooled_silently(tmp_path):
     km = {r["group"]: r["params"]["Km"] for r in each["results"]}
     assert km["pure"]["ci_low"] < 50 < km["pure"]["ci_high"]
     assert km["lysate"]["ci_low"] < 400 < km["lysate"]["ci_high"]
+
+
+def _progress_file(path, s0s, enzymes, km, kcat_per_s, kd=0.0, seed=0):
+    """Product-absorbing progress curves (p-nitrophenolate, 18000 M^-1 cm^-1 at 405 nm, common
+    practice) by solve_ivp on dS/dt = -kcat [E] exp(-kd t) S / (Km + S); enzyme in nM, S in uM."""
+    from scipy.integrate import solve_ivp
+
+    rng = np.random.default_rng(seed)
+    t = np.arange(0, 1801, 20.0)
+    lines = ["curve,S0 (uM),enzyme (nM),time (s),A405"]
+    for k, (s0, e) in enumerate([(s0, e) for s0 in s0s for e in enzymes]):
+        v = kcat_per_s * e * 1e-3                                  # uM/s
+        sol = solve_ivp(lambda tt, y, v=v: [-v * np.exp(-kd * tt) * y[0] / (km + y[0])],
+                        (0, t[-1]), [s0], t_eval=t, rtol=1e-10, atol=1e-12)
+        a = 0.05 + 18000 * (s0 - sol.y[0]) * 1e-6 + rng.normal(0, 0.002, t.size)
+        lines += [f"c{k},{s0:g},{e:g},{tt:g},{aa:.5f}" for tt, aa in zip(t, a, strict=True)]
+    path.write_text("\n".join(lines) + "\n")
+    return str(path)
+
+
+def _progress_json(path, *args):
+    r = CliRunner().invoke(main, ["progress", path, "--s0-column", "S0 (uM)", "--chromophore",
+                                  "pnp", "--no-plots", "--format", "json", *args])
+    assert r.exit_code == 0, r.output
+    return json.loads(r.stdout)
+
+
+def test_vmax_per_enzyme_carries_the_enzyme_columns_unit(tmp_path):
+    """With --selwyn 'enzyme (nM)' Vmax is a rate per nM of enzyme, which is what the label must
+    say: 'per enzyme unit' reads as per U (1 U = 1 umol/min; IUB 1961/1964).
+
+    Truth: Km 60 uM, kcat 50 /s, so Vmax 3 uM/min per nM; enzyme 0.5 and 1 nM, seed 21."""
+    f = _progress_file(tmp_path / "pnp.csv", (20, 50, 100, 200), (0.5, 1.0), 60.0, 50.0, seed=21)
+    doc = _progress_json(f, "--selwyn", "enzyme (nM)")
+    vm = doc["results"][0]["params"]["Vmax"]
+    assert vm["unit"] == "uM/min per nM"
+    assert vm["ci_low"] < 3.0 < vm["ci_high"]
+    assert doc["results"][1]["enzyme_stable"] is True
