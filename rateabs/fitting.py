@@ -77,6 +77,16 @@ def fmt_p(p) -> str:
     return "< 1e-16" if p < 1e-16 else f"{p:.2g}"
 
 
+def p_is(p) -> str:
+    """'p = 0.82' or 'p < 1e-16' (never 'p = < 1e-16') for a sentence.
+
+    >>> p_is(0.8234), p_is(1e-30)
+    ('p = 0.82', 'p < 1e-16')
+    """
+    s = fmt_p(p)
+    return f"p {s}" if s.startswith("<") else f"p = {s}"
+
+
 def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
     """A value and its SE for a person, the value rounded to the SE's two significant digits:
     ``12.35 ± 0.46 uM``; ``digits`` significant digits without an SE; '-' when missing.
@@ -1084,7 +1094,7 @@ class Comparison:
                          f"{'  <- chosen' if r['model'] == self.chosen else ''}")
         for t in self.ftests:
             lines.append(f"F-test {t['simpler']} within {t['general']}: F = {t['F']:.3g} "
-                         f"({t['df1']}, {t['df2']} df), p = {fmt_p(t['p'])}")
+                         f"({t['df1']}, {t['df2']} df), {p_is(t['p'])}")
         for m, why in self.failed.items():
             lines.append(f"{m}: not estimable: {why}")
         lines.append(f"chosen: {self.chosen} ({self.reason})")
@@ -1115,7 +1125,7 @@ def _without_aicc(good: dict, ftests: list) -> tuple[list, str, str]:
     rows.sort(key=lambda d: d["k"])
     chosen = rows[0]["model"]
     n = good[chosen].n
-    tests = "; ".join(f"F-test against {t['general']} p = {fmt_p(t['p'])}" for t in ftests
+    tests = "; ".join(f"F-test against {t['general']} {p_is(t['p'])}" for t in ftests
                       if t["simpler"] == chosen and np.isfinite(t["p"]))
     reason = (f"AICc is not defined for any candidate with only {n} points (it needs more than "
               f"k + 1 points for k estimated quantities); not ranked by evidence: the model with "
@@ -1158,6 +1168,6 @@ def compare(results: dict, nested=(), failed: dict | None = None, alpha: float =
             break
         t = min(simpler, key=lambda t: good[t["simpler"]].aicc)
         reason = (f"{chosen} had the lowest AICc but its extra parameter is not supported "
-                  f"against {t['simpler']} (F-test p = {fmt_p(t['p'])}); the simpler model is kept")
+                  f"against {t['simpler']} (F-test {p_is(t['p'])}); the simpler model is kept")
         chosen = t["simpler"]
     return Comparison(rows, ftests, chosen, reason, failed)

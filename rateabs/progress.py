@@ -24,14 +24,9 @@ from scipy import special
 
 from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
-from .fitting import FitResult, Param, f_test, fit, fmt_p, line_slope
+from .fitting import FitResult, Param, f_test, fit, line_slope, p_is
 from .models import Model, time_origin
 from .units import concentration_factor
-
-
-def _p(p) -> str:
-    s = fmt_p(p)
-    return s if s.startswith("<") else f"= {s}"
 
 
 def lambertw_exp(z):
@@ -278,7 +273,7 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
         kp = r.params["Kp"]
         params["Kp"] = Param("Kp", kp.value, kp.se, kp.ci_low, kp.ci_high, kp.ci_method, "uM")
     if np.isfinite(r.runs_p) and r.runs_p < 0.01:
-        warnings.append(f"the residuals are not random (runs test p {_p(r.runs_p)}): the "
+        warnings.append(f"the residuals are not random (runs test {p_is(r.runs_p)}): the "
                         "integrated Michaelis–Menten model does not describe these curves well")
     sel = selwyn_test(c, r, product_inhibition, level) if selwyn else None
     if sel is not None and not sel["enzyme_stable"]:
@@ -318,13 +313,13 @@ def selwyn_test(c: Curves, base: FitResult, product_inhibition: bool, level: flo
     stable = not (significant and loss > 0.05)
     if stable:
         why = (f"the curves superimpose on enzyme x time: adding enzyme inactivation does not "
-               f"improve the fit (F-test p {_p(ft['p'])}); the enzyme is stable over the "
+               f"improve the fit (F-test {p_is(ft['p'])}); the enzyme is stable over the "
                f"{t_end / 60:.0f} min assay")
     else:
         half = math.log(2) / kd.value if kd.value > 0 else float("inf")
         why = (f"the curves do not superimpose on enzyme x time: the enzyme loses about "
                f"{100 * loss:.0f} % of its activity during the assay (inactivation half-life "
-               f"{half / 60:.1f} min, F-test p {_p(ft['p'])}); initial rates and progress-curve "
+               f"{half / 60:.1f} min, F-test {p_is(ft['p'])}); initial rates and progress-curve "
                "Km and Vmax are biased")
     tq = t_two_sided(level, max(r.dof, 1))
     return {"enzyme_stable": bool(stable), "reason": why, "f_test": ft,

@@ -138,3 +138,19 @@ def test_vmax_per_enzyme_carries_the_enzyme_columns_unit(tmp_path):
     assert vm["unit"] == "uM/min per nM"
     assert vm["ci_low"] < 3.0 < vm["ci_high"]
     assert doc["results"][1]["enzyme_stable"] is True
+
+
+def test_evidence_never_reads_p_equals_less_than(tmp_path):
+    """A p value below double precision reads 'p < 1e-16', not 'p = < 1e-16' (the evidence of
+    a substrate-inhibition set). Truth: Haldane (1930) as typed in kinetics_truth, Vmax 10
+    uM/min, Km 50 uM, Ksi 400 uM; noise SD 0.15 uM/min, seed 4."""
+    from kinetics_truth import v_substrate_inhibition
+
+    s = np.repeat([5, 10, 20, 40, 80, 160, 320, 640, 1280, 2560.0], 2)
+    v = v_substrate_inhibition(s, 10.0, 50.0, 400.0) + np.random.default_rng(4).normal(0, 0.15,
+                                                                                     s.size)
+    r = CliRunner().invoke(main, ["saturation", _write(tmp_path / "si.csv",
+                                  "substrate_uM,rate_uM_per_min", s, v), "--no-plots"])
+    assert r.exit_code == 0, r.output
+    assert "substrate-inhibition" in r.output and "p < 1e-16" in r.output
+    assert "= <" not in r.output
