@@ -77,6 +77,16 @@ def fmt_p(p) -> str:
     return "< 1e-16" if p < 1e-16 else f"{p:.2g}"
 
 
+def p_is(p) -> str:
+    """'p = 0.82' or 'p < 1e-16' (never 'p = < 1e-16') for a sentence.
+
+    >>> p_is(0.8234), p_is(1e-30)
+    ('p = 0.82', 'p < 1e-16')
+    """
+    s = fmt_p(p)
+    return f"p {s}" if s.startswith("<") else f"p = {s}"
+
+
 def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
     """A value and its SE for a person, the value rounded to the SE's two significant digits:
     ``12.35 ± 0.46 uM``; ``digits`` significant digits without an SE; '-' when missing.
@@ -255,7 +265,10 @@ class FitResult:
 
 
 def make_weights(y, weighting: str = "none", sd=None) -> np.ndarray:
-    """Weights that multiply residuals: 1, 1/|y| (relative) or 1/SD (given SDs)."""
+    """Weights that multiply residuals: 1, 1/|y| (relative) or 1/SD (given SDs).
+
+    :func:`fit` weighs ``relative`` by the fitted curve instead (:func:`_curve_weights`);
+    1/|y| serves callers that weigh by observed values on purpose."""
     y = np.asarray(y, dtype=float)
     OneOf(WEIGHTINGS).check(weighting, "weighting")
     if weighting == "none":
@@ -660,9 +673,17 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     if n <= len(free):
         raise FitError(f"not estimable: {n} points for {len(free)} free parameters of "
                        f"{model.name}", "measure more concentrations or fix a parameter")
-    w = make_weights(y, weighting, sd)
     start = {**model.guess(x, y), **(p0 or {}), **fix}
     bounds = bounds or {}
+    relative_notes: list = []
+    if weighting == "relative":
+        x, y, w, start, relative_notes = _curve_weights(model, x, y, start, fix, bounds)
+        n = y.size
+        if n <= len(free):
+            raise FitError(f"not estimable: {n} points with a non-zero rate for {len(free)} free "
+                           f"parameters of {model.name}", "measure more concentrations")
+    else:
+        w = make_weights(y, weighting, sd)
     scale_covar = weighting != "sd"
     res = _minimize(model, (x, y, w), start, fix, bounds)
     values = dict(res.values)
@@ -681,6 +702,7 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     elif ci == "bootstrap" and free:
         _bootstrap_into(u, bootstrap(model, x, y, w, values, free, fitted, n_boot=n_boot,
                                      resample=resample, seed=seed, bounds=bounds), free, level)
+    u.notes[:0] = relative_notes
     params = {nm: Param(nm, float(values[nm]), float(u.se[nm]), float(u.lows[nm]),
                         float(u.highs[nm]), u.method[nm],
                         unit_of(model.units.get(nm, "1"), units or {}), fixed=nm in fix)
@@ -693,6 +715,46 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
                      runs_p=runs_test(y - fitted), notes=tuple(u.notes), weighting=weighting,
                      resample=resample if ci == "bootstrap" else None, n_boot_ok=u.n_boot_ok,
                      func=model.func)
+
+
+def _curve_weights(model: Model, x, y, start: dict, fix: dict, bounds: dict,
+                   max_rounds: int = 30):
+    """Relative weighting by the fitted curve: weights 1/|f(x)|, iterated to a fixed point
+    (iteratively reweighted least squares for an error proportional to the mean; Carroll &
+    Ruppert 1988, *Transformation and Weighting in Regression*, ch. 2).
+
+    Weights from the observed values, 1/|y|, let a rate near zero by noise (a blank at [S] = 0,
+    a low rate that came out slightly negative) outweigh all others many times over. The first
+    round is unweighted. Readings where the fitted curve is zero ([S] = 0 under the
+    Michaelis–Menten family) have no relative error to weigh by and carry no information on
+    the parameters: they are left out, said in a note. Returns x, y, the weights, the start
+    for the final fit and the notes."""
+    w = np.ones_like(y)
+    values = dict(start)
+    for _ in range(max_rounds):
+        res = _minimize(model, (x, y, w), values, fix, bounds)
+        with np.errstate(all="ignore"):
+            f = np.abs(model.func(x, *res.values.values()))
+        top = float(np.max(f)) if f.size and np.all(np.isfinite(f)) else 0.0
+        if top <= 0:
+            raise FitError("relative weighting needs a fitted curve that is not zero everywhere",
+                           "use --weighting none")
+        new = np.where(f > 1e-9 * top, 1.0 / np.where(f > 0, f, 1.0), 0.0)
+        moved = max((abs(res.values[k] - values[k]) / max(abs(values[k]), 1e-300)
+                     for k in values), default=0.0)
+        values, w_old, w = res.values, w, new
+        if moved < 1e-9 and np.array_equal(w_old > 0, w > 0):
+            break
+    keep = w > 0
+    notes = []
+    if not keep.all():
+        notes.append(f"{int((~keep).sum())} reading(s) where the fitted curve is zero (e.g. "
+                     "[S] = 0) carry no weight under relative weighting and were left out")
+    # scaled to a geometric mean of 1: the weighted RSS is then on the rates' own scale and
+    # n ln(RSS/n) is the log-likelihood of y ~ N(f, sigma^2 f^2) (the sum of ln|f| cancels), so
+    # AICc and F-tests compare models that each weigh by their own curve
+    w = w[keep] / math.exp(float(np.mean(np.log(w[keep]))))
+    return x[..., keep], y[keep], w, values, notes
 
 
 def polish(model: Model, x, y, w, values: dict, free, tol: float, bounds: dict | None = None,
@@ -1026,11 +1088,13 @@ class Comparison:
         """The evidence as text."""
         lines = ["model                 k    AICc      dAICc   weight"]
         for r in self.rows:
-            lines.append(f"{r['model']:<20} {r['k']:>2} {r['aicc']:>9.3f} {r['delta_aicc']:>9.3f} "
-                         f"{r['weight']:>7.3f}{'  <- chosen' if r['model'] == self.chosen else ''}")
+            nums = (f"{r['aicc']:>9.3f} {r['delta_aicc']:>9.3f} {r['weight']:>7.3f}"
+                    if np.isfinite(r["weight"]) else f"{'-':>9} {'-':>9} {'-':>7}")
+            lines.append(f"{r['model']:<20} {r['k']:>2} {nums}"
+                         f"{'  <- chosen' if r['model'] == self.chosen else ''}")
         for t in self.ftests:
             lines.append(f"F-test {t['simpler']} within {t['general']}: F = {t['F']:.3g} "
-                         f"({t['df1']}, {t['df2']} df), p = {fmt_p(t['p'])}")
+                         f"({t['df1']}, {t['df2']} df), {p_is(t['p'])}")
         for m, why in self.failed.items():
             lines.append(f"{m}: not estimable: {why}")
         lines.append(f"chosen: {self.chosen} ({self.reason})")
@@ -1051,6 +1115,25 @@ def f_test(simple: FitResult, general: FitResult) -> dict:
             "df2": df2, "p": p}
 
 
+def _without_aicc(good: dict, ftests: list) -> tuple[list, str, str]:
+    """Rows, choice and reason when no candidate has a finite AICc: too few points, n <= k + 1
+    for every model (k counting the residual variance; Hurvich & Tsai 1989). Nothing ranks them,
+    so the model with the fewest parameters is kept and the reason says so (with the F-tests
+    against it, which need only one residual degree of freedom)."""
+    rows = [{"model": m, "k": r.n_free, "rss": r.rss, "aicc": r.aicc,
+             "delta_aicc": float("nan"), "weight": float("nan")} for m, r in good.items()]
+    rows.sort(key=lambda d: d["k"])
+    chosen = rows[0]["model"]
+    n = good[chosen].n
+    tests = "; ".join(f"F-test against {t['general']} {p_is(t['p'])}" for t in ftests
+                      if t["simpler"] == chosen and np.isfinite(t["p"]))
+    reason = (f"AICc is not defined for any candidate with only {n} points (it needs more than "
+              f"k + 1 points for k estimated quantities); not ranked by evidence: the model with "
+              f"the fewest parameters is kept" + (f" ({tests})" if tests else "")
+              + "; measure more concentrations to compare models")
+    return rows, chosen, reason
+
+
 def compare(results: dict, nested=(), failed: dict | None = None, alpha: float = 0.05) -> Comparison:
     """Rank fits by AICc and choose one.
 
@@ -1066,6 +1149,10 @@ def compare(results: dict, nested=(), failed: dict | None = None, alpha: float =
     if not good:
         raise FitError("no candidate model could be fitted",
                        "; ".join(f"{m}: {w}" for m, w in failed.items()) or "check the data")
+    ftests = [f_test(good[a], good[b]) for a, b in nested if a in good and b in good]
+    if not any(np.isfinite(r.aicc) for r in good.values()):
+        rows, chosen, reason = _without_aicc(good, ftests)
+        return Comparison(rows, ftests, chosen, reason, failed)
     best_aicc = min(r.aicc for r in good.values())
     raw = {m: math.exp(-0.5 * (r.aicc - best_aicc)) if np.isfinite(r.aicc) else 0.0
            for m, r in good.items()}
@@ -1073,7 +1160,6 @@ def compare(results: dict, nested=(), failed: dict | None = None, alpha: float =
     rows = sorted(({"model": m, "k": r.n_free, "rss": r.rss, "aicc": r.aicc,
                     "delta_aicc": r.aicc - best_aicc, "weight": raw[m] / tot}
                    for m, r in good.items()), key=lambda d: d["aicc"])
-    ftests = [f_test(good[a], good[b]) for a, b in nested if a in good and b in good]
     chosen = rows[0]["model"]
     reason = f"lowest AICc ({rows[0]['aicc']:.2f})"
     for _ in range(len(good)):
@@ -1082,6 +1168,6 @@ def compare(results: dict, nested=(), failed: dict | None = None, alpha: float =
             break
         t = min(simpler, key=lambda t: good[t["simpler"]].aicc)
         reason = (f"{chosen} had the lowest AICc but its extra parameter is not supported "
-                  f"against {t['simpler']} (F-test p = {fmt_p(t['p'])}); the simpler model is kept")
+                  f"against {t['simpler']} (F-test {p_is(t['p'])}); the simpler model is kept")
         chosen = t["simpler"]
     return Comparison(rows, ftests, chosen, reason, failed)

@@ -530,7 +530,8 @@ class SaturationOptions(Checked):
                      "asymptotic")
     level: float = _level()
     weighting: str = option("--weighting", OneOf(WEIGHTINGS, "relative"), "Residual weights: "
-                            "none, 1/|v| (relative) or 1/SD (sd, with --sd).", "none")
+                            "none, 1/|fitted v| (relative; readings where the curve is 0 left "
+                            "out) or 1/SD (sd, with --sd).", "none")
     fix: dict = _fix()
     enzyme: float | None = option("--enzyme", Quantity("concentration", "nM", POSITIVE,
                                                        "'1 nM'"),

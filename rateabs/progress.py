@@ -16,6 +16,7 @@ enzyme; here the test is a nested model comparison, adding first-order enzyme in
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -23,14 +24,9 @@ from scipy import special
 
 from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
-from .fitting import FitResult, Param, f_test, fit, fmt_p, line_slope
+from .fitting import FitResult, Param, f_test, fit, line_slope, p_is
 from .models import Model, time_origin
 from .units import concentration_factor
-
-
-def _p(p) -> str:
-    s = fmt_p(p)
-    return s if s.startswith("<") else f"= {s}"
 
 
 def lambertw_exp(z):
@@ -84,10 +80,17 @@ class Curves:
     enzyme: np.ndarray | None = None
     species: str = "product"       # which species absorbs (how p was made from absorbance)
     t0: np.ndarray | None = None   # s: each curve's time origin in the file's own times
+    enzyme_unit: str = ""          # unit of the enzyme amounts (e.g. nM), '' when not stated
+
+    def per_enzyme(self) -> str:
+        """How a rate per enzyme amount is labelled: 'per nM', or 'per enzyme amount' when the
+        amounts carry no unit (never 'per enzyme unit': 1 U is 1 umol/min)."""
+        return f"per {self.enzyme_unit}" if self.enzyme_unit else "per enzyme amount"
 
 
 def curves_from_absorbance(names, times, absorbance, s0_uM, enzyme=None, *, epsilon: float,
-                           pathlength_cm: float = 1.0, species: str = "product") -> Curves:
+                           pathlength_cm: float = 1.0, species: str = "product",
+                           enzyme_unit: str = "") -> Curves:
     """Progress curves from absorbance traces by Beer–Lambert, c = A / (epsilon b).
 
     The product formed (µM, plus a baseline the fit takes care of) is +A/(epsilon b) when the
@@ -104,7 +107,7 @@ def curves_from_absorbance(names, times, absorbance, s0_uM, enzyme=None, *, epsi
     return Curves(list(names), [t for t, _ in shifted],
                   [scale * np.asarray(a, float) for a in absorbance],
                   np.asarray(s0_uM, float), None if enzyme is None else np.asarray(enzyme, float),
-                  species, np.array([t0 for _, t0 in shifted]))
+                  species, np.array([t0 for _, t0 in shifted]), enzyme_unit)
 
 
 def in_unit(params: dict, unit: str) -> dict:
@@ -114,7 +117,7 @@ def in_unit(params: dict, unit: str) -> dict:
         return dict(params)
     f = 1e-6 / concentration_factor(unit)           # uM -> unit
     return {k: replace(p, value=p.value * f, se=p.se * f, ci_low=p.ci_low * f,
-                       ci_high=p.ci_high * f, unit=p.unit.replace("uM", unit))
+                       ci_high=p.ci_high * f, unit=re.sub(r"^uM", unit, p.unit))
             if "uM" in p.unit else p for k, p in params.items()}
 
 
@@ -126,7 +129,7 @@ def _stack(c: Curves):
     return np.vstack([t, idx, s0, e]), np.concatenate(c.p)
 
 
-def _model(n: int, product_inhibition: bool, decay: bool, has_enzyme: bool) -> Model:
+def _model(n: int, product_inhibition: bool, decay: bool, per_enzyme: str = "") -> Model:
     names = ["Km", "Vmax"] + (["Kp"] if product_inhibition else []) + (["kd"] if decay else [])
     names += [f"base_{i}" for i in range(n)]
 
@@ -152,7 +155,7 @@ def _model(n: int, product_inhibition: bool, decay: bool, has_enzyme: bool) -> M
         return (s0 - s) + base
 
     lower = {"Km": 1e-9, "Vmax": 0.0, "Kp": 1e-9, "kd": 0.0}
-    units = {"Km": "uM", "Vmax": "uM/s" + ("" if not has_enzyme else " per enzyme unit"),
+    units = {"Km": "uM", "Vmax": "uM/s" + (f" {per_enzyme}" if per_enzyme else ""),
              "Kp": "uM", "kd": "1/s"}
     units.update({f"base_{i}": "uM" for i in range(n)})
     return Model("integrated-mm", func, tuple(names), lambda x, y: {}, lower, {}, units,
@@ -243,7 +246,7 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
     x, y = _stack(c)
     n = len(c.t)
     has_e = c.enzyme is not None
-    model = _model(n, product_inhibition, False, has_e)
+    model = _model(n, product_inhibition, False, c.per_enzyme() if has_e else "")
     g = _guess(c, product_inhibition, False)
     r = fit(model, x, y, p0=g, ci=ci, level=level)
     warnings = []
@@ -262,7 +265,7 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
     if np.all(ratio > 10):
         warnings.append("every S0 is far above Km (above 10 Km): Km is poorly determined")
     scale = 60.0
-    unit_v = "uM/min" + (" per enzyme unit" if has_e else "")
+    unit_v = "uM/min" + (f" {c.per_enzyme()}" if has_e else "")
     params = {"Km": Param("Km", km.value, km.se, km.ci_low, km.ci_high, km.ci_method, "uM"),
               "Vmax": Param("Vmax", vm.value * scale, vm.se * scale, vm.ci_low * scale,
                             vm.ci_high * scale, vm.ci_method, unit_v)}
@@ -270,7 +273,7 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
         kp = r.params["Kp"]
         params["Kp"] = Param("Kp", kp.value, kp.se, kp.ci_low, kp.ci_high, kp.ci_method, "uM")
     if np.isfinite(r.runs_p) and r.runs_p < 0.01:
-        warnings.append(f"the residuals are not random (runs test p {_p(r.runs_p)}): the "
+        warnings.append(f"the residuals are not random (runs test {p_is(r.runs_p)}): the "
                         "integrated Michaelis–Menten model does not describe these curves well")
     sel = selwyn_test(c, r, product_inhibition, level) if selwyn else None
     if sel is not None and not sel["enzyme_stable"]:
@@ -298,7 +301,7 @@ def selwyn_test(c: Curves, base: FitResult, product_inhibition: bool, level: flo
                          "name the enzyme column with --selwyn COL")
     x, y = _stack(c)
     n = len(c.t)
-    model = _model(n, product_inhibition, True, True)
+    model = _model(n, product_inhibition, True, c.per_enzyme())
     g = base.values()
     g["kd"] = 1e-3 / max(float(np.max(x[0])), 1e-9)
     r = fit(model, x, y, p0=g, level=level)
@@ -310,13 +313,13 @@ def selwyn_test(c: Curves, base: FitResult, product_inhibition: bool, level: flo
     stable = not (significant and loss > 0.05)
     if stable:
         why = (f"the curves superimpose on enzyme x time: adding enzyme inactivation does not "
-               f"improve the fit (F-test p {_p(ft['p'])}); the enzyme is stable over the "
+               f"improve the fit (F-test {p_is(ft['p'])}); the enzyme is stable over the "
                f"{t_end / 60:.0f} min assay")
     else:
         half = math.log(2) / kd.value if kd.value > 0 else float("inf")
         why = (f"the curves do not superimpose on enzyme x time: the enzyme loses about "
                f"{100 * loss:.0f} % of its activity during the assay (inactivation half-life "
-               f"{half / 60:.1f} min, F-test p {_p(ft['p'])}); initial rates and progress-curve "
+               f"{half / 60:.1f} min, F-test {p_is(ft['p'])}); initial rates and progress-curve "
                "Km and Vmax are biased")
     tq = t_two_sided(level, max(r.dof, 1))
     return {"enzyme_stable": bool(stable), "reason": why, "f_test": ft,

@@ -285,14 +285,26 @@ def _derived(fits: dict, chosen: str, data: SaturationData, level: float, enzyme
 
 
 def _design_checks(data: SaturationData, best: FitResult, chosen: str) -> tuple[dict, list]:
-    """The direct-linear-plot cross-check and warnings about the range of [S] and the residuals."""
+    """The direct-linear-plot cross-check and warnings about the range of [S] and the residuals.
+
+    The direct linear plot estimates the Km and Vmax of a hyperbola, so it cross-checks the
+    Michaelis–Menten fit and the inhibition fits (on the rows at the lowest inhibitor level),
+    not a Hill or substrate-inhibition curve, whose medians mean nothing (a Hill set with
+    n = 2.5 gave Vmax -0.47 and Km -41 as its 'cross-check')."""
     has_i = data.i is not None
     cross, warn = {}, []
     base = data.i == np.min(data.i) if has_i else np.ones(data.s.size, bool)
-    if np.unique(data.s[base]).size >= 2:
+    hyperbolic = chosen == "mm" or chosen in INHIBITION_MODELS
+    if hyperbolic and np.unique(data.s[base]).size >= 2:
         vm, kmd = direct_linear_plot(data.s[base], data.v[base])
-        cross = {"method": "direct linear plot medians (Eisenthal & Cornish-Bowden 1974)",
-                 "Vmax": vm, "Km": kmd, "subset": "lowest inhibitor level" if has_i else "all"}
+        if vm > 0 and kmd > 0:
+            cross = {"method": "direct linear plot medians (Eisenthal & Cornish-Bowden 1974)",
+                     "Vmax": vm, "Km": kmd,
+                     "subset": "lowest inhibitor level" if has_i else "all"}
+        else:
+            warn.append(f"the direct linear plot gives Vmax = {vm:.3g}, Km = {kmd:.3g}: its "
+                        "medians are not positive, so the rates do not look hyperbolic and the "
+                        f"{chosen} fit has no cross-check")
     kname = "Km" if "Km" in best.params else ("S50" if "S50" in best.params else None)
     if kname:
         kval = best.params[kname].value
@@ -332,6 +344,7 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
     chosen = comp.chosen if comp is not None else candidates[0]
     if comp is None and not fits[chosen].success:
         warn.append(f"{chosen}: {fits[chosen].message}")
+    warn += [f"{chosen}: {note}" for note in fits[chosen].notes]
     derived, more = _derived(fits, chosen, data, level, enzyme_M,
                              {"mode": mode, "substrate": substrate, "km": km})
     cross = {}

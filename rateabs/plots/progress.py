@@ -74,8 +74,9 @@ def _selwyn_figure(plt, a):
             # model-free: product formed since the first reading
             ax.plot(c.enzyme[i] * c.t[i] / 60, (c.p[i] - c.p[i][0]) * f, "o", ms=2.5,
                     color=PALETTE[j % len(PALETTE)],
-                    label=f"E = {c.enzyme[i]:g} (S0 {s0 * f:.3g} {u})")
-    ax.set_xlabel("enzyme amount × time (enzyme unit × min)")
+                    label=f"E = {c.enzyme[i]:g}{' ' + unit_text(c.enzyme_unit) if c.enzyme_unit else ''}"
+                          f" (S0 {s0 * f:.3g} {u})")
+    ax.set_xlabel(f"enzyme amount × time ({unit_text(c.enzyme_unit) or 'amount'} × min)")
     ax.set_ylabel(f"product formed since the first reading ({u})")
     stable = (a.selwyn or {}).get("enzyme_stable")
     verdict = ("enzyme stable: the curves superimpose" if stable else

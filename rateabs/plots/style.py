@@ -151,8 +151,8 @@ _UNIT_TEXT = (("^-1", "⁻¹"), ("^-2", "⁻²"), ("^2", "²"), ("^3", "³"))
 def unit_text(unit: str) -> str:
     """A unit as a figure writes it: ``uM`` as ``µM``, ``M^-1 cm^-1`` as ``M⁻¹ cm⁻¹``.
 
-    >>> unit_text("uM/min per enzyme unit"), unit_text("M^-1 cm^-1")
-    ('µM/min per enzyme unit', 'M⁻¹ cm⁻¹')
+    >>> unit_text("uM/min per nM"), unit_text("M^-1 cm^-1")
+    ('µM/min per nM', 'M⁻¹ cm⁻¹')
     """
     words = []
     for w in str(unit).split(" "):

@@ -94,6 +94,13 @@ def _enzyme(o: ProgressOptions, meta, names) -> np.ndarray | None:
     return enzyme
 
 
+def _enzyme_unit(o: ProgressOptions) -> str:
+    """The unit the --selwyn column's header states ('enzyme (nM)' -> 'nM'), or ''."""
+    from ..units import unit_from_header
+
+    return unit_from_header(o.selwyn).replace("µ", "u") if o.selwyn else ""
+
+
 def _enzyme_warning(meta, names) -> list[str]:
     """One Vmax fitted to curves whose enzyme amounts differ is said out loud."""
     return [f"the curves differ in {col!r} but one Vmax was fitted to all; give --selwyn {col!r} "
@@ -117,7 +124,8 @@ def _curves(o: ProgressOptions):
     curves = curves_from_absorbance(
         names, [g.times[i][g.usable[i]] for i in rows], [g.values[i][g.usable[i]] for i in rows],
         _s0_uM(o, meta, names), _enzyme(o, meta, names), epsilon=o.epsilon_value(),
-        pathlength_cm=1.0 if o.pathlength is None else o.pathlength, species=o.species)
+        pathlength_cm=1.0 if o.pathlength is None else o.pathlength, species=o.species,
+        enzyme_unit=_enzyme_unit(o))
     return curves, meta, ts.info
 
 

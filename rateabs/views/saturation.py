@@ -73,6 +73,22 @@ def _bent_warning(df) -> list[str]:
             "`rateabs rates --slope-from curve`"]
 
 
+def _pooled_warning(df, o: SaturationOptions) -> list[str]:
+    """Rows of several samples fitted as one series, said out loud: a rates.csv names each
+    well's sample, and pooling a lysate's rates with the purified enzyme's gave one Km for
+    both (69 uM, where the enzyme alone gives 114 uM)."""
+    if "sample" not in df.columns or o.each == "sample":
+        return []
+    names = [n for n in dict.fromkeys(df["sample"].astype(str).str.strip())
+             if n and n.lower() not in ("nan", "none")]
+    if len(names) < 2:
+        return []
+    shown = ", ".join(names[:4]) + (" ..." if len(names) > 4 else "")
+    return [f"the rows come from {len(names)} samples ({shown}) and are fitted together as one "
+            "series; give --each sample to fit each sample on its own, or --select "
+            f"sample={names[0]} for one"]
+
+
 def _settings_json(o: SaturationOptions, data) -> dict:
     settings = {"model": o.model, "ci": o.ci, "level": o.level, "weighting": o.weighting,
                 "fixed": o.fix, "columns": data.columns, "conc_unit": data.conc_unit,
@@ -87,6 +103,17 @@ def _settings_json(o: SaturationOptions, data) -> dict:
     return settings
 
 
+def _residual_se(best, rate_unit: str) -> str:
+    """The residual SE in words: in the rate unit (no weights), as a fraction of the rate
+    (relative weighting) or in units of the given SDs (sd weighting)."""
+    if best.weighting == "relative":
+        rel = np.sqrt(np.sum((best.residuals / best.fitted) ** 2) / max(best.dof, 1))
+        return f"{100 * rel:.3g} % of the rate (relative weighting)"
+    if best.weighting == "sd":
+        return f"{best.sigma:.4g} x the given SDs"
+    return f"{best.sigma:.4g} {rate_unit}".rstrip()
+
+
 def _text(a, data, results, level: float) -> str:
     chosen = next(r for r in results if r.get("chosen"))
     prow = [{"param": k, **v} for k, v in chosen["params"].items()]
@@ -95,7 +122,7 @@ def _text(a, data, results, level: float) -> str:
                                 ("ci_high", f"{100 * level:g}% high"), ("unit", "unit"),
                                 ("ci_method", "interval")],
                          title=f"chosen model: {a.chosen}   ({chosen['equation']})")
-    table += (f"n = {data.v.size} points, residual SE = {a.best.sigma:.4g} {data.rate_unit}, "
+    table += (f"n = {a.best.n} points, residual SE = {_residual_se(a.best, data.rate_unit)}, "
               f"runs test p = {a.best.runs_p:.3g}\n")
     if a.comparison is not None:
         table += "\nevidence\n" + a.comparison.report() + "\n"
@@ -126,7 +153,7 @@ def fit_table(o: SaturationOptions, df) -> View:
     boot = o.bootstrap() if o.ci == "bootstrap" else {}
     a = analyse(data, model=o.model, ci=o.ci, level=o.level, weighting=o.weighting, fix=o.fix,
                 enzyme_M=o.enzyme, mode=o.mode, substrate=o.substrate, km=o.km, **boot)
-    a.warnings.extend(_bent_warning(df))
+    a.warnings.extend(_bent_warning(df) + _pooled_warning(df, o))
     results = results_json(a)
     doc = document("saturation", [o.file], _settings_json(o, data), results, a.warnings)
     flat = [flatten_params({"model": r["model"], "chosen": r["chosen"], "aicc": r.get("aicc"),

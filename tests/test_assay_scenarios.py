@@ -1,0 +1,156 @@
+"""Assay scenarios simulated from a known truth: what saturation and progress print about them.
+
+Every truth here is a simulation (seed beside it) of a rate law typed in tests/kinetics_truth.py
+or integrated there by solve_ivp; no number is taken from the package's own equations.
+"""
+
+import json
+
+import numpy as np
+from click.testing import CliRunner
+from kinetics_truth import mechanism_rates
+
+from rateabs.cli import main
+
+
+def _write(path, header, *cols):
+    path.write_text(header + "\n" + "".join(",".join(f"{c:.6g}" for c in row) + "\n"
+                                            for row in zip(*cols, strict=True)))
+    return str(path)
+
+
+def _saturation_json(path, *args):
+    r = CliRunner().invoke(main, ["saturation", path, "--no-plots", "--format", "json", *args])
+    assert r.exit_code == 0, r.output
+    return json.loads(r.stdout)
+
+
+def test_four_points_are_not_ranked_by_an_undefined_aicc(tmp_path):
+    """Four rates leave AICc undefined for every candidate (n - k - 1 <= 0; Hurvich & Tsai 1989,
+    Biometrika 76:297): the choice must say it was not made on AICc, not 'lowest AICc (inf)'.
+
+    Truth: Michaelis-Menten by solve_ivp, Vmax 10 uM/min, Km 50 uM; 2 % noise, seed 11."""
+    s = np.array([10, 40, 160, 640.0])
+    v = mechanism_rates(s, np.zeros(4), V=10.0, Km=50.0)
+    v = v * (1 + np.random.default_rng(11).normal(0, 0.02, 4))
+    doc = _saturation_json(_write(tmp_path / "four.csv", "substrate_uM,rate_uM_per_min", s, v))
+    chosen = next(r for r in doc["results"] if r["chosen"])
+    assert chosen["model"] == "mm"
+    reason = chosen["evidence"]["reason"]
+    assert "not defined" in reason and "inf" not in reason
+    assert all(r.get("akaike_weight") is None for r in doc["results"])
+
+
+def test_relative_weighting_is_not_ruled_by_a_blank_near_zero(tmp_path):
+    """Relative weighting weighs by the fitted curve (Carroll & Ruppert 1988, Transformation and
+    Weighting in Regression): blanks at [S] = 0 whose rates are noise around zero (+-0.02) must
+    not outweigh the series (1/|v| gave one of them 50x the weight of the top rate).
+
+    Truth: Michaelis-Menten by solve_ivp, Vmax 1 uM/min, Km 50 uM, 5 % proportional noise,
+    seed 3; two blanks at [S] = 0 read 0.012 and -0.004 uM/min."""
+    s = np.repeat([5, 10, 20, 40, 80, 160, 320, 640.0], 2)
+    v = mechanism_rates(s, np.zeros(s.size), V=1.0, Km=50.0)
+    v = v * (1 + np.random.default_rng(3).normal(0, 0.05, s.size))
+    s, v = np.r_[0.0, 0.0, s], np.r_[0.012, -0.004, v]
+    doc = _saturation_json(_write(tmp_path / "blanks.csv", "substrate_uM,rate_uM_per_min", s, v),
+                           "--weighting", "relative")
+    chosen = next(r for r in doc["results"] if r["chosen"])
+    assert chosen["model"] == "mm" and chosen["n"] == 16
+    km, vm = chosen["params"]["Km"], chosen["params"]["Vmax"]
+    assert km["ci_low"] < 50 < km["ci_high"] and vm["ci_low"] < 1 < vm["ci_high"]
+    assert km["se"] / km["value"] < 0.15
+    assert any("left out" in w for w in doc["warnings"])
+
+
+def test_direct_linear_plot_cross_checks_only_hyperbolas(tmp_path):
+    """The direct linear plot (Eisenthal & Cornish-Bowden 1974, Biochem. J. 139:715) estimates a
+    hyperbola's Km and Vmax; on a sigmoid set its medians were printed as a cross-check of the
+    Hill fit (Vmax -0.47, Km -41). Truth: Hill (1910) as typed in kinetics_truth, Vmax 10
+    uM/min, S50 50 uM, n 2.5; noise SD 0.2 uM/min, seed 12345."""
+    from kinetics_truth import v_hill
+
+    s = np.repeat([5, 10, 20, 30, 40, 50, 60, 80, 120, 200, 400.0], 2)
+    v = v_hill(s, 10.0, 50.0, 2.5) + np.random.default_rng(12345).normal(0, 0.2, s.size)
+    doc = _saturation_json(_write(tmp_path / "hill.csv", "substrate_uM,rate_uM_per_min", s, v))
+    chosen = next(r for r in doc["results"] if r["chosen"])
+    assert chosen["model"] == "hill"
+    assert chosen["params"]["n"]["ci_low"] < 2.5 < chosen["params"]["n"]["ci_high"]
+    assert "cross_check" not in chosen
+
+
+def test_several_samples_in_one_table_are_not_pooled_silently(tmp_path):
+    """A rates table (as `rateabs rates` writes it) naming two samples: fitting them as one
+    series gives one Km for two enzymes, so the command must say so and name --each.
+
+    Truth: Michaelis-Menten by solve_ivp; enzyme 'pure' Vmax 10 uM/min, Km 50 uM; 'lysate'
+    Vmax 2 uM/min, Km 400 uM; 2 % noise, seed 8."""
+    s = np.array([10, 25, 50, 100, 200, 400, 800, 1600.0])
+    rng = np.random.default_rng(8)
+    v1 = mechanism_rates(s, np.zeros(8), V=10.0, Km=50.0) * (1 + rng.normal(0, 0.02, 8))
+    v2 = mechanism_rates(s, np.zeros(8), V=2.0, Km=400.0) * (1 + rng.normal(0, 0.02, 8))
+    f = tmp_path / "rates.csv"
+    f.write_text("trace,role,sample,substrate_uM,rate_uM_per_min\n" + "".join(
+        f"W{k},sample,{name},{a:g},{b:.5g}\n" for k, (name, a, b) in enumerate(
+            [("pure", a, b) for a, b in zip(s, v1, strict=True)]
+            + [("lysate", a, b) for a, b in zip(s, v2, strict=True)])))
+    doc = _saturation_json(str(f))
+    assert any("2 samples" in w and "--each sample" in w for w in doc["warnings"])
+    each = _saturation_json(str(f), "--each", "sample")
+    assert not any("samples" in w for w in each["warnings"])
+    km = {r["group"]: r["params"]["Km"] for r in each["results"]}
+    assert km["pure"]["ci_low"] < 50 < km["pure"]["ci_high"]
+    assert km["lysate"]["ci_low"] < 400 < km["lysate"]["ci_high"]
+
+
+def _progress_file(path, s0s, enzymes, km, kcat_per_s, kd=0.0, seed=0):
+    """Product-absorbing progress curves (p-nitrophenolate, 18000 M^-1 cm^-1 at 405 nm, common
+    practice) by solve_ivp on dS/dt = -kcat [E] exp(-kd t) S / (Km + S); enzyme in nM, S in uM."""
+    from scipy.integrate import solve_ivp
+
+    rng = np.random.default_rng(seed)
+    t = np.arange(0, 1801, 20.0)
+    lines = ["curve,S0 (uM),enzyme (nM),time (s),A405"]
+    for k, (s0, e) in enumerate([(s0, e) for s0 in s0s for e in enzymes]):
+        v = kcat_per_s * e * 1e-3                                  # uM/s
+        sol = solve_ivp(lambda tt, y, v=v: [-v * np.exp(-kd * tt) * y[0] / (km + y[0])],
+                        (0, t[-1]), [s0], t_eval=t, rtol=1e-10, atol=1e-12)
+        a = 0.05 + 18000 * (s0 - sol.y[0]) * 1e-6 + rng.normal(0, 0.002, t.size)
+        lines += [f"c{k},{s0:g},{e:g},{tt:g},{aa:.5f}" for tt, aa in zip(t, a, strict=True)]
+    path.write_text("\n".join(lines) + "\n")
+    return str(path)
+
+
+def _progress_json(path, *args):
+    r = CliRunner().invoke(main, ["progress", path, "--s0-column", "S0 (uM)", "--chromophore",
+                                  "pnp", "--no-plots", "--format", "json", *args])
+    assert r.exit_code == 0, r.output
+    return json.loads(r.stdout)
+
+
+def test_vmax_per_enzyme_carries_the_enzyme_columns_unit(tmp_path):
+    """With --selwyn 'enzyme (nM)' Vmax is a rate per nM of enzyme, which is what the label must
+    say: 'per enzyme unit' reads as per U (1 U = 1 umol/min; IUB 1961/1964).
+
+    Truth: Km 60 uM, kcat 50 /s, so Vmax 3 uM/min per nM; enzyme 0.5 and 1 nM, seed 21."""
+    f = _progress_file(tmp_path / "pnp.csv", (20, 50, 100, 200), (0.5, 1.0), 60.0, 50.0, seed=21)
+    doc = _progress_json(f, "--selwyn", "enzyme (nM)")
+    vm = doc["results"][0]["params"]["Vmax"]
+    assert vm["unit"] == "uM/min per nM"
+    assert vm["ci_low"] < 3.0 < vm["ci_high"]
+    assert doc["results"][1]["enzyme_stable"] is True
+
+
+def test_evidence_never_reads_p_equals_less_than(tmp_path):
+    """A p value below double precision reads 'p < 1e-16', not 'p = < 1e-16' (the evidence of
+    a substrate-inhibition set). Truth: Haldane (1930) as typed in kinetics_truth, Vmax 10
+    uM/min, Km 50 uM, Ksi 400 uM; noise SD 0.15 uM/min, seed 4."""
+    from kinetics_truth import v_substrate_inhibition
+
+    s = np.repeat([5, 10, 20, 40, 80, 160, 320, 640, 1280, 2560.0], 2)
+    v = v_substrate_inhibition(s, 10.0, 50.0, 400.0) + np.random.default_rng(4).normal(0, 0.15,
+                                                                                     s.size)
+    r = CliRunner().invoke(main, ["saturation", _write(tmp_path / "si.csv",
+                                  "substrate_uM,rate_uM_per_min", s, v), "--no-plots"])
+    assert r.exit_code == 0, r.output
+    assert "substrate-inhibition" in r.output and "p < 1e-16" in r.output
+    assert "= <" not in r.output
