@@ -591,3 +591,38 @@ def test_wide_columns_taken_at_once_equal_column_by_column(tmp_path, rows):
     for a, b in ((fast.values, slow.values), (fast.usable, slow.usable), (fast.times, slow.times)):
         assert np.array_equal(a, b, equal_nan=True)
     assert np.array_equal(fast.flags, slow.flags)
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.lists(st.floats(0.0, 3.0), min_size=3, max_size=8),
+       st.sampled_from(["mAU", "mOD", "mAbs"]), st.sampled_from(["(", "["]),
+       st.sampled_from([(".", ","), (",", ";")]))
+def test_readings_in_milli_absorbance_after_the_well_name_are_absorbance(tmp_path, a, unit,
+                                                                         bracket, style):
+    """Trace headers 'A1 (mAU)' and 'B2 (mAU)': the readings are milli-absorbance (1 mAU =
+    0.001 AU, common practice), read as absorbance, the names are the wells A1 and B2 again,
+    and the run says what it did; they were refused as |A| > 10."""
+    decimal, delimiter = style
+    close = ")" if bracket == "(" else "]"
+    names = [f"A1 {bracket}{unit}{close}", f"B2 {bracket}{unit}{close}"]
+    milli = np.array([a, a[::-1]]) * 1000
+    p = tmp_path / "m.csv"
+    p.write_text(write_table(names, np.arange(len(a)) * 30.0, milli, decimal=decimal,
+                             delimiter=delimiter))
+    ts = read_traces(p)
+    assert list(ts.names) == ["A1", "B2"] and ts.info["plate_format"] == 96
+    np.testing.assert_allclose(ts.grid().values, np.array([a, a[::-1]]), atol=1e-6)
+    assert any(f"({unit})" in w and "divided by 1000" in w for w in ts.info["warnings"])
+
+
+def test_a_unit_after_every_name_names_the_signal_and_is_taken_off(tmp_path):
+    # published: IUPAC "absorbance", A = -log10 T; 50 %T -> 0.30103
+    p = tmp_path / "t.csv"
+    p.write_text("Time (s),A1 (%T),A2 (%T)\n0,50,10\n30,50,10\n60,50,10\n")
+    ts = read_traces(p)
+    assert list(ts.names) == ["A1", "A2"] and ts.info["signal_kind"] == "percent"
+    np.testing.assert_allclose(ts.grid().values[:, 0], [0.30103, 1.0], atol=1e-5)
+    # names that do not all carry a unit are left as they are
+    q = tmp_path / "q.csv"
+    q.write_text("Time (s),sample (A),blank\n0,0.5,0.1\n30,0.6,0.1\n60,0.7,0.1\n")
+    assert list(read_traces(q).names) == ["sample (A)", "blank"]

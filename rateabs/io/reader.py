@@ -16,7 +16,14 @@ from .headers import temperature_unit
 from .locate import locate
 from .metadata import choose_plate, file_facts, plate_format, preamble, stated_plate
 from .parsed import Parsed
-from .signal import SIGNAL_KINDS, check_magnitude, decide_kind, plausibility, to_absorbance
+from .signal import (
+    SIGNAL_KINDS,
+    check_magnitude,
+    decide_kind,
+    plausibility,
+    to_absorbance,
+    unit_in_names,
+)
 from .sniffing import sniff_decimal
 from .source import Source
 from .times import MIN_TIME_POINTS
@@ -75,6 +82,9 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
                          "export one column (or row) of readings per well or sample")
     meta = preamble(src.head, top, src.delimiter)
     kind, kind_source = decide_kind(signal, parsed.header_words, meta)
+    unit_notes = _name_unit(parsed, signal)
+    if unit_notes:
+        kind, kind_source = unit_notes[0]
     warnings, looks_like = plausibility(kind, parsed.values, signal is not None)
     conv = to_absorbance(kind, parsed.names, parsed.values, parsed.flags, meta, i0)
     check_magnitude(conv.values, conv.names, looks_like)
@@ -99,11 +109,34 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
         metadata=meta, metadata_facts=said, set_aside=parsed.set_aside,
         extra_columns=parsed.extra, dropped_rows=log.summary(), few_readings=few,
         file_ends_mid_line=not src.terminated, **{k: v for k, v in conv.facts.items()},
-        warnings=(src.notes + parsed.time.warnings + parsed.notes + warnings + log.warnings()
+        warnings=(src.notes + parsed.time.warnings + parsed.notes + unit_notes[1:] + warnings
+                  + log.warnings()
                   + _few_warning(few) + ([plate[2]] if plate[2] else [])),
     )
     _trace_meta(ts, parsed, facts)
     return ts
+
+
+def _name_unit(parsed: Parsed, signal: str | None) -> list:
+    """Where every trace name carries a signal unit in brackets (``A1 (mAU)``): the names
+    without it (so that they are wells again), the readings on the kind's own scale (mAU
+    divided by 1000) and, first in the list, the kind and where it was learnt; then a note of
+    what was done. --signal, where given, decides the kind and the unit only renames."""
+    found = unit_in_names(parsed.names)
+    if found is None:
+        return []
+    parsed.names = found.names
+    said = f"the unit '({found.unit})' after every trace name"
+    if signal is not None and signal != found.kind:
+        return [(signal, "option"), f"--signal {signal} is used, though {said} names "
+                f"{found.kind}; the unit was taken off the names only"]
+    if found.factor != 1.0:
+        parsed.values = parsed.values * found.factor
+    scaled = (f": the readings were divided by {1 / found.factor:g} to {found.kind}"
+              if found.factor != 1.0 else "")
+    return [(found.kind, f"header unit '{found.unit}'"),
+            f"{said} was read as {found.kind}{scaled}; the names are used without it "
+            f"({parsed.names[0]}, ...)"]
 
 
 #: Steps and a stated read interval agree when within this share of the interval.

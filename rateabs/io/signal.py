@@ -42,6 +42,48 @@ def decide_kind(option: str | None, header_words: str, meta: dict[str, str]) -> 
     return "absorbance", "assumed"
 
 
+#: A signal unit written after every trace's name, in brackets: ``A1 (mAU)``, ``B2 [OD]``,
+#: ``tube 3 (%T)``.
+_NAME_UNIT = re.compile(r"^(?P<name>.*\S)\s*[(\[]\s*(?P<unit>m?AU|m?OD|m?Abs|A|%T|T)\s*[)\]]$",
+                        re.IGNORECASE)
+#: Each such unit: the signal kind it names and the factor to that kind's own scale
+#: (milli-absorbance, mAU or mOD, is a thousandth of absorbance: common practice).
+_UNIT_KINDS = {"au": ("absorbance", 1.0), "od": ("absorbance", 1.0), "abs": ("absorbance", 1.0),
+               "a": ("absorbance", 1.0), "mau": ("absorbance", 1e-3),
+               "mod": ("absorbance", 1e-3), "mabs": ("absorbance", 1e-3),
+               "%t": ("percent", 1.0), "t": ("transmittance", 1.0)}
+
+
+@dataclass(frozen=True)
+class NameUnit:
+    """A signal unit written after every trace name: the names without it, the unit as
+    written, the signal kind it names and the factor to that kind's scale."""
+
+    names: list[str]
+    unit: str
+    kind: str
+    factor: float
+
+
+def unit_in_names(names: list[str]) -> NameUnit | None:
+    """The signal unit every trace name carries in brackets (``A1 (mAU)``, ``A2 (mAU)``), or
+    None when not every name carries one, or not the same one (a name such as ``sample (A)``
+    alone is kept as it is).
+
+    >>> unit_in_names(["A1 (mAU)", "A2 (mAU)"])
+    NameUnit(names=['A1', 'A2'], unit='mAU', kind='absorbance', factor=0.001)
+    """
+    found = [_NAME_UNIT.match(n.strip()) for n in names]
+    if not names or not all(found):
+        return None
+    units = {m.group("unit").lower() for m in found}
+    bare = [m.group("name") for m in found]
+    if len(units) != 1 or len(set(bare)) != len(bare):
+        return None
+    kind, factor = _UNIT_KINDS[units.pop()]
+    return NameUnit(bare, found[0].group("unit"), kind, factor)
+
+
 def sample(values: np.ndarray) -> np.ndarray:
     """About a million finite readings at most, evenly spread over the times of every trace."""
     v = values[:, ::max(1, values.size // _SAMPLE)]       # a view: no copy of the readings
