@@ -626,3 +626,13 @@ def test_a_unit_after_every_name_names_the_signal_and_is_taken_off(tmp_path):
     q = tmp_path / "q.csv"
     q.write_text("Time (s),sample (A),blank\n0,0.5,0.1\n30,0.6,0.1\n60,0.7,0.1\n")
     assert list(read_traces(q).names) == ["sample (A)", "blank"]
+
+
+def test_a_long_table_whose_readings_column_says_mau_is_read_as_absorbance(tmp_path):
+    # 1 mAU = 0.001 AU (common practice)
+    p = tmp_path / "l.csv"
+    p.write_text("well,time (s),absorbance (mAU)\nA1,0,350\nA1,30,360\nA1,60,370\n"
+                 "A2,0,340\nA2,30,341\nA2,60,342\n")
+    ts = read_traces(p)
+    np.testing.assert_allclose(ts.grid().values, [[0.35, 0.36, 0.37], [0.34, 0.341, 0.342]])
+    assert any("readings' column" in w and "divided by 1000" in w for w in ts.info["warnings"])

@@ -22,6 +22,7 @@ from .signal import (
     decide_kind,
     plausibility,
     to_absorbance,
+    unit_in_header,
     unit_in_names,
 )
 from .sniffing import sniff_decimal
@@ -123,10 +124,13 @@ def _name_unit(parsed: Parsed, signal: str | None) -> list:
     divided by 1000) and, first in the list, the kind and where it was learnt; then a note of
     what was done. --signal, where given, decides the kind and the unit only renames."""
     found = unit_in_names(parsed.names)
+    said = f"the unit '({found.unit})' after every trace name" if found else ""
+    if found is None and parsed.layout.startswith("long"):
+        found = unit_in_header(parsed.header_words)
+        said = f"the unit '({found.unit})' of the readings' column" if found else ""
     if found is None:
         return []
-    parsed.names = found.names
-    said = f"the unit '({found.unit})' after every trace name"
+    parsed.names = found.names or parsed.names
     if signal is not None and signal != found.kind:
         return [(signal, "option"), f"--signal {signal} is used, though {said} names "
                 f"{found.kind}; the unit was taken off the names only"]
@@ -134,9 +138,10 @@ def _name_unit(parsed: Parsed, signal: str | None) -> list:
         parsed.values = parsed.values * found.factor
     scaled = (f": the readings were divided by {1 / found.factor:g} to {found.kind}"
               if found.factor != 1.0 else "")
+    renamed = (f"; the names are used without it ({parsed.names[0]}, ...)" if found.names
+               else "")
     return [(found.kind, f"header unit '{found.unit}'"),
-            f"{said} was read as {found.kind}{scaled}; the names are used without it "
-            f"({parsed.names[0]}, ...)"]
+            f"{said} was read as {found.kind}{scaled}{renamed}"]
 
 
 #: Steps and a stated read interval agree when within this share of the interval.

@@ -84,6 +84,16 @@ def unit_in_names(names: list[str]) -> NameUnit | None:
     return NameUnit(bare, found[0].group("unit"), kind, factor)
 
 
+def unit_in_header(header: str) -> NameUnit | None:
+    """The signal unit in brackets at the end of the one column of readings of a long table
+    (``absorbance (mAU)``), or None; no names change."""
+    m = _NAME_UNIT.match(header.strip())
+    if m is None:
+        return None
+    kind, factor = _UNIT_KINDS[m.group("unit").lower()]
+    return NameUnit([], m.group("unit"), kind, factor)
+
+
 def sample(values: np.ndarray) -> np.ndarray:
     """About a million finite readings at most, evenly spread over the times of every trace."""
     v = values[:, ::max(1, values.size // _SAMPLE)]       # a view: no copy of the readings
