@@ -342,10 +342,12 @@ def test_a_forced_window_keeps_its_depletion_flag():
     t, z, rel = _sample_series("window")
     flagged = t["flags"].map(lambda f: "over-10pct" in f)
     # flagged where the window's possible shortfall (about half the substrate it used) exceeds
-    # twice its SE: 10 of the 64 here, every well off the truth by over 5 % and 3 SE among them
+    # twice its SE: 17 of the 64 here, every well off the truth by over 5 % and 3 SE among them
+    # (10 before the window's SE counted its shortfall by the posterior of
+    # rateabs.slopes.choice.shortfall_ms, which left two wells 3.6 and 3.7 SE low; none now)
     assert flagged.sum() >= 8 and set(t.loc[flagged, "method"]) == {"window"}
     off = ((np.abs(z) > 3) & (np.abs(rel) > 0.05))
-    assert off.any() and flagged.to_numpy()[off].all()
+    assert flagged.to_numpy()[off].all()
     # the straight windows read low (depletion), and their SE says they may (the curvature the
     # whole curve cannot rule out is counted in it): low on average, yet mostly within 3 SE
     assert rel[flagged.to_numpy()].mean() < -0.03 and z.mean() < -0.3

@@ -163,10 +163,12 @@ def test_a_slight_settling_baseline_that_moves_the_rate_is_flagged_more_often(se
     often too slight to be evident, yet moves the rate by more than 5 % and 3 SE. At least 60 %
     of those wells carry a flag (about half did before a decaying offset that only possibly
     fits better, but moves the rate by over 3 SE, counted for ``start``: 14 of 28 and 12 of 23
-    here, now 18 and 17), and the same wells without the settling carry almost none."""
+    here, then 18 and 17; since the window's SE counts the shortfall the noise may hide,
+    rateabs.slopes.choice.shortfall_ms, fewer wells are that far off: 14 of 22 and 15 of 19),
+    and the same wells without the settling carry almost none."""
     grid, w, look = _settling_plate(seed, 160, (0.01, 0.3), (0.5, 2), 0.002, (0.003, 0.01))
     flagged = np.array([bool(f) for f in w.flags])
-    assert look.sum() >= 20
+    assert look.sum() >= 15
     assert (look & flagged).sum() >= 0.6 * look.sum()
     assert sum(bool(f) for f in find_windows(grid).flags) <= 0.03 * 160
 
