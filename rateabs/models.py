@@ -31,9 +31,10 @@ class Model:
     units: dict = field(default_factory=dict)   # name -> unit kind
     equation: str = ""
     source: str = ""
-    #: Parameters measured from an arbitrary zero (absorbance levels, a baseline drift): their
-    #: size relative to their SE means nothing, so the engine's "poorly determined" rule (SE
-    #: over 10 times the value) passes them by.
+    #: Parameters measured from an arbitrary zero (absorbance levels, a baseline drift), or whose
+    #: zero is a limit the data may well sit at (1/Km = 0: Km infinite, rates first order in
+    #: [S]): their size relative to their SE means nothing, so the engine's "poorly determined"
+    #: rule (SE over 10 times the value) passes them by.
     offsets: tuple = ()
 
     def __call__(self, x, *params):
@@ -104,6 +105,15 @@ def mm(s, Vmax, Km):
     return Vmax * s / (Km + s)
 
 
+def mm_specificity(s, specificity, inv_km):
+    """Michaelis–Menten written with Vmax/Km and 1/Km: v = (Vmax/Km) S / (1 + S/Km).
+
+    The same curve as :func:`mm` for finite Km; 1/Km = 0 is the straight line through the origin
+    that rates far below Km follow, where Km and Vmax run off together and only their ratio is
+    determined."""
+    return specificity * s / (1 + inv_km * s)
+
+
 def hill(s, Vmax, S50, n):
     """Hill (1910): v = Vmax S^n / (S50^n + S^n); S50 is the substrate giving half of Vmax."""
     sn = np.power(np.maximum(s, 0.0), n)
@@ -151,6 +161,12 @@ def logistic4(i, v_free, v_floor, IC50, n):
 def _guess_mm(x, y):
     vmax, km = _mm_start(np.asarray(x, float), np.asarray(y, float))
     return {"Vmax": vmax, "Km": km}
+
+
+def _guess_specificity(x, y):
+    s, v = np.asarray(x, float), np.asarray(y, float)
+    vmax, km = _mm_start(s, v)
+    return {"Vmax/Km": vmax / km, "1/Km": 1 / km}
 
 
 def _guess_hill(x, y):
@@ -238,6 +254,13 @@ SATURATION = {
                   "v = v_floor + (v_free - v_floor) / (1 + (I/IC50)^n)",
                   "four-parameter logistic, e.g. DeLean, Munson & Rodbard (1978)"),
 }
+
+#: Michaelis–Menten in Vmax/Km and 1/Km, fitted beside ``mm`` for the specificity constant (not
+#: a candidate of its own: the same curves). Unit kinds: ``spec`` is set by the caller.
+MM_SPECIFICITY = Model("mm", mm_specificity, ("Vmax/Km", "1/Km"), _guess_specificity,
+                       {"Vmax/Km": 0, "1/Km": 0}, {}, {"Vmax/Km": "spec", "1/Km": "1/x"},
+                       "v = (Vmax/Km) S / (1 + S/Km)", "Michaelis & Menten (1913)",
+                       offsets=("1/Km",))
 
 #: Models of one variable (substrate) and of two (substrate, inhibitor).
 SUBSTRATE_MODELS = ("mm", "hill", "substrate-inhibition")

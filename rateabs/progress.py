@@ -24,7 +24,7 @@ from scipy import special
 
 from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
-from .fitting import FitResult, Param, f_test, fit, line_slope, p_is
+from .fitting import FitResult, Param, f_test, fit, fmt_pm, line_slope, p_is
 from .models import Model, time_origin
 from .units import concentration_factor
 
@@ -51,20 +51,38 @@ def substrate_left(t, s0, km, vmax, kp=None):
     if kp is None:
         return km * lambertw_exp(np.log(s0 / km) + (s0 - vmax * t) / km)
     kp = np.broadcast_to(np.asarray(kp, float), t.shape)
-    a = 1 - km / kp
-    b = km * (1 + s0 / kp)
+    return _substrate_ab(t, s0, 1 - km / kp, km * (1 + s0 / kp), vmax)
+
+
+def substrate_left_specificity(t, s0, k, inv_km, kp=None):
+    """[S](t) of the integrated Michaelis–Menten equation written with the specificity constant
+    k = Vmax/Km and 1/Km: ln(S0/S) + (S0 - S)/Km = k t (the equation of
+    :func:`substrate_left` divided by Km). 1/Km = 0 is the first-order limit S0 exp(-k t), so the
+    form holds where S0 is far below Km and Km itself runs off; with product inhibition
+    (1/Km - 1/Kp)(S0 - S) + (1 + S0/Kp) ln(S0/S) = k t."""
+    t, s0, k, inv_km = np.broadcast_arrays(*(np.asarray(v, float) for v in (t, s0, k, inv_km)))
+    if kp is None:
+        return _substrate_ab(t, s0, inv_km, np.ones_like(t), k)
+    kp = np.broadcast_to(np.asarray(kp, float), t.shape)
+    return _substrate_ab(t, s0, inv_km - 1 / kp, 1 + s0 / kp, k)
+
+
+def _substrate_ab(t, s0, a, b, v):
+    """S solving a (S0 - S) + b ln(S0/S) = v t: S = (b/a) W((a S0/b) exp((a S0 - v t)/b)),
+    principal branch for either sign of a; S0 exp(-v t/b) where a S0/b vanishes."""
     out = np.empty_like(t)
-    zero = np.abs(a) < 1e-12
-    out[zero] = s0[zero] * np.exp(-vmax[zero] * t[zero] / b[zero])
-    pos = (a > 0) & ~zero
+    with np.errstate(all="ignore"):
+        z = a * s0 / b
+    zero = np.abs(z) < 1e-12
+    out[zero] = s0[zero] * np.exp(-v[zero] * t[zero] / b[zero])
+    pos = (z > 0) & ~zero
     if pos.any():
-        out[pos] = (b[pos] / a[pos]) * lambertw_exp(np.log(a[pos] * s0[pos] / b[pos])
-                                                    + (a[pos] * s0[pos] - vmax[pos] * t[pos])
+        out[pos] = (b[pos] / a[pos]) * lambertw_exp(np.log(z[pos])
+                                                    + (a[pos] * s0[pos] - v[pos] * t[pos])
                                                     / b[pos])
-    neg = (a < 0) & ~zero
+    neg = (z < 0) & ~zero
     if neg.any():
-        arg = (a[neg] * s0[neg] / b[neg]) * np.exp((a[neg] * s0[neg] - vmax[neg] * t[neg])
-                                                    / b[neg])
+        arg = z[neg] * np.exp((a[neg] * s0[neg] - v[neg] * t[neg]) / b[neg])
         out[neg] = (b[neg] / a[neg]) * special.lambertw(arg).real
     return out
 
@@ -129,12 +147,16 @@ def _stack(c: Curves):
     return np.vstack([t, idx, s0, e]), np.concatenate(c.p)
 
 
-def _model(n: int, product_inhibition: bool, decay: bool, per_enzyme: str = "") -> Model:
-    names = ["Km", "Vmax"] + (["Kp"] if product_inhibition else []) + (["kd"] if decay else [])
+def _model(n: int, product_inhibition: bool, decay: bool, per_enzyme: str = "",
+           specificity: bool = False) -> Model:
+    """The global model: Km and Vmax (or, with ``specificity``, Vmax/Km and 1/Km: the same
+    curves, written so that the first-order limit 1/Km = 0 is a value and not a run-off), an
+    optional Kp and kd, and one baseline per curve."""
+    first = ["Vmax/Km", "1/Km"] if specificity else ["Km", "Vmax"]
+    names = first + (["Kp"] if product_inhibition else []) + (["kd"] if decay else [])
     names += [f"base_{i}" for i in range(n)]
 
     def func(x, *p):
-        km, vm = p[0], p[1]
         j = 2
         kp = None
         if product_inhibition:
@@ -151,15 +173,21 @@ def _model(n: int, product_inhibition: bool, decay: bool, per_enzyme: str = "") 
         kdt = np.asarray(kd) * t
         with np.errstate(all="ignore"):
             tau = np.where(np.abs(kdt) < 1e-9, t, -np.expm1(-kdt) / np.where(kd == 0, 1, kd))
-        s = substrate_left(tau, s0, km, vm * e, kp)
+        if specificity:
+            s = substrate_left_specificity(tau, s0, p[0] * e, p[1], kp)
+        else:
+            s = substrate_left(tau, s0, p[0], p[1] * e, kp)
         return (s0 - s) + base
 
-    lower = {"Km": 1e-9, "Vmax": 0.0, "Kp": 1e-9, "kd": 0.0}
-    units = {"Km": "uM", "Vmax": "uM/s" + (f" {per_enzyme}" if per_enzyme else ""),
+    per = f" {per_enzyme}" if per_enzyme else ""
+    lower = {"Km": 1e-9, "Vmax": 0.0, "Vmax/Km": 0.0, "1/Km": 0.0, "Kp": 1e-9, "kd": 0.0}
+    units = {"Km": "uM", "Vmax": "uM/s" + per, "Vmax/Km": "1/s" + per, "1/Km": "1/uM",
              "Kp": "uM", "kd": "1/s"}
     units.update({f"base_{i}": "uM" for i in range(n)})
+    equation = ("ln(S0/S) + (S0 - S)/Km = (Vmax/Km) t" if specificity else
+                "Km ln(S0/S) + (S0 - S) = Vmax t")
     return Model("integrated-mm", func, tuple(names), lambda x, y: {}, lower, {}, units,
-                 "Km ln(S0/S) + (S0 - S) = Vmax t", "Schnell & Mendoza (1997)")
+                 equation, "Schnell & Mendoza (1997)", offsets=("1/Km",) if specificity else ())
 
 
 def _guess(c: Curves, product_inhibition: bool, decay: bool):
@@ -250,25 +278,23 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
     g = _guess(c, product_inhibition, False)
     r = fit(model, x, y, p0=g, ci=ci, level=level)
     warnings = []
-    if not r.success:
-        warnings.append(f"integrated Michaelis–Menten fit not reliable: {r.message}")
-    km = r.params["Km"]
-    vm = r.params["Vmax"]
     conv = np.array([(p[-1] - p[0] + 0.0) / s0 for p, s0 in zip(c.p, c.s0, strict=True)])
     conv = np.clip(conv + np.array([_initial_product(r, i, c) for i in range(n)]) / c.s0, 0, 1)
     if np.max(conv) < 0.3:
         warnings.append(f"the curves reach at most {100 * np.max(conv):.0f} % conversion: too "
                         "little curvature for Km to be identifiable; run the assay longer")
-    ratio = c.s0 / km.value
-    if np.all(ratio < 0.1):
-        warnings.append("every S0 is far below Km (below 0.1 Km): only Vmax/Km is determined")
-    if np.all(ratio > 10):
+    spec = specificity_fit(c, r, product_inhibition, ci=ci, level=level)
+    params = _constants(r, spec, c, level)
+    if params["Km"].ci_method == NOT_IDENTIFIABLE:      # says why the fit in Km fails
+        warnings.insert(0, _first_order_warning(params, c, level, unit))
+    elif not r.success:
+        warnings.insert(0, f"integrated Michaelis–Menten fit not reliable: {r.message}")
+    elif np.all(c.s0 < 0.1 * params["Km"].value):
+        warnings.append("every S0 is far below Km (below 0.1 Km): Km and Vmax rest on the "
+                        "slight curvature of nearly first-order curves; Vmax/Km is the "
+                        "better determined constant")
+    elif np.all(c.s0 > 10 * params["Km"].value):
         warnings.append("every S0 is far above Km (above 10 Km): Km is poorly determined")
-    scale = 60.0
-    unit_v = "uM/min" + (f" {c.per_enzyme()}" if has_e else "")
-    params = {"Km": Param("Km", km.value, km.se, km.ci_low, km.ci_high, km.ci_method, "uM"),
-              "Vmax": Param("Vmax", vm.value * scale, vm.se * scale, vm.ci_low * scale,
-                            vm.ci_high * scale, vm.ci_method, unit_v)}
     if product_inhibition:
         kp = r.params["Kp"]
         params["Kp"] = Param("Kp", kp.value, kp.se, kp.ci_low, kp.ci_high, kp.ci_method, "uM")
@@ -280,6 +306,88 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
         warnings.append("the enzyme is not stable during the assay (Selwyn's test): Km and Vmax "
                         "from this fit are biased; shorten the assay or stabilise the enzyme")
     return ProgressAnalysis(r, in_unit(params, unit), c, sel, warnings, conv)
+
+
+#: The ``ci_method`` of a constant the data do not determine (value, SE and the missing bound
+#: null in the JSON; as in ``ratelaw``).
+NOT_IDENTIFIABLE = "not identifiable"
+
+
+def specificity_fit(c: Curves, base: FitResult, product_inhibition: bool, decay: bool = False, *,
+                    ci: str = "asymptotic", level: float = 0.95) -> FitResult:
+    """The global fit written in Vmax/Km and 1/Km (:func:`substrate_left_specificity`), started
+    from ``base`` (the fit in Km and Vmax, with or without inactivation ``decay``).
+
+    The same curves as ``base`` where Km is finite, so the same optimum; where S0 lies far
+    below Km the Km-Vmax fit runs off along a ridge (Km and Vmax grow together, their ratio
+    fixed), while here 1/Km settles at or near 0 and Vmax/Km keeps a finite SE and interval.
+    """
+    x, y = _stack(c)
+    has_e = c.enzyme is not None
+    model = _model(len(c.t), product_inhibition, decay, c.per_enzyme() if has_e else "",
+                   specificity=True)
+    g = base.values()
+    km, vm = g.pop("Km"), g.pop("Vmax")
+    starts = [{"Vmax/Km": vm / km, "1/Km": 1 / km, **g}]
+    if not base.success:                    # the run-off start and the first-order limit
+        starts.append({**starts[0], "1/Km": 0.0})
+    fits = [fit(model, x, y, p0=p0, ci=ci, level=level) for p0 in starts]
+    return min(fits, key=lambda f: f.rss)
+
+
+def _constants(r: FitResult, spec: FitResult, c: Curves, level: float, scale: float = 60.0
+               ) -> dict:
+    """Km, Vmax, Vmax/Km (per min) and, with enzyme amounts in a molar unit, kcat and kcat/Km,
+    from the fit ``r`` in Km and Vmax and the same fit in Vmax/Km and 1/Km (``spec``).
+
+    Km counts as determined when the interval of 1/Km excludes 0 (the first-order limit,
+    Km infinite); otherwise Km and Vmax are not identifiable (null values, ci_method
+    :data:`NOT_IDENTIFIABLE`) and Km keeps the lower bound 1/(upper bound of 1/Km). Vmax/Km is
+    a fitted parameter of ``spec``, so its SE and interval (asymptotic or profile) are the
+    engine's own, not a delta-method propagation through a ridge."""
+    has_e = c.enzyme is not None
+    per = f" {c.per_enzyme()}" if has_e else ""
+    km, vm = r.params["Km"], r.params["Vmax"]
+    vk, inv = spec.params["Vmax/Km"], spec.params["1/Km"]
+    known = bool(np.isfinite(inv.ci_low) and inv.ci_low > 0)
+    if known:
+        out = {"Km": Param("Km", km.value, km.se, km.ci_low, km.ci_high, km.ci_method, "uM"),
+               "Vmax": Param("Vmax", vm.value * scale, vm.se * scale, vm.ci_low * scale,
+                             vm.ci_high * scale, vm.ci_method, f"uM/min{per}")}
+    else:
+        low = 1 / inv.ci_high if np.isfinite(inv.ci_high) and inv.ci_high > 0 else math.nan
+        out = {"Km": Param("Km", math.nan, math.nan, low, math.inf, NOT_IDENTIFIABLE, "uM"),
+               "Vmax": Param("Vmax", math.nan, math.nan, math.nan, math.nan, NOT_IDENTIFIABLE,
+                             f"uM/min{per}")}
+    out["Vmax/Km"] = Param("Vmax/Km", vk.value * scale, vk.se * scale, vk.ci_low * scale,
+                           vk.ci_high * scale, vk.ci_method, f"1/min{per}")
+    try:
+        e_molar = concentration_factor(c.enzyme_unit) if has_e and c.enzyme_unit else None
+    except UsageError:
+        e_molar = None
+    if e_molar:
+        if known:
+            f = 1e-6 / e_molar                         # uM/s per (enzyme unit) -> 1/s
+            out["kcat"] = Param("kcat", vm.value * f, vm.se * f, vm.ci_low * f, vm.ci_high * f,
+                                vm.ci_method, "1/s")
+        f = 1 / e_molar                                # 1/s per (enzyme unit) -> 1/(M s)
+        out["kcat/Km"] = Param("kcat/Km", vk.value * f, vk.se * f, vk.ci_low * f,
+                               vk.ci_high * f, vk.ci_method, "M^-1 s^-1")
+    return out
+
+
+def _first_order_warning(params: dict, c: Curves, level: float, unit: str) -> str:
+    """Why Km and Vmax are not given, what is, and what would measure them."""
+    f = 1e-6 / concentration_factor(unit)            # uM -> unit
+    low = params["Km"].ci_low
+    where = (f"at {100 * level:g} % Km lies above {low * f:.3g} {unit}"
+             if np.isfinite(low) else "Km could be any value above the S0 range")
+    vk = params["Vmax/Km"]
+    return (f"Km and Vmax are not identifiable: the curves cannot be told from first-order loss "
+            f"of the substrate, as when S0 is far below Km (S0 up to {np.max(c.s0) * f:.3g} "
+            f"{unit}; {where}); only Vmax/Km is determined, "
+            f"{fmt_pm(vk.value, vk.se, unit=vk.unit)}. To measure Km and Vmax, start curves at "
+            "S0 up to Km or above")
 
 
 def _initial_product(r: FitResult, i: int, c: Curves) -> float:

@@ -22,9 +22,16 @@ import pandas as pd
 
 from .distributions import normal_quantile, t_two_sided
 from .errors import FitError, InputError, UsageError
-from .fitting import Comparison, FitResult, Param, compare, fit
+from .fitting import Comparison, FitResult, Param, compare, fit, fmt_pm
 from .io import number_column, pick_column
-from .models import INHIBITION_MODELS, NESTED, SATURATION, SUBSTRATE_MODELS, direct_linear_plot
+from .models import (
+    INHIBITION_MODELS,
+    MM_SPECIFICITY,
+    NESTED,
+    SATURATION,
+    SUBSTRATE_MODELS,
+    direct_linear_plot,
+)
 from .options import MODELS
 from .units import concentration_factor, rate_unit_factors, same_unit, unit_from_header
 
@@ -120,6 +127,8 @@ class SaturationAnalysis:
     cross_check: dict
     warnings: list = field(default_factory=list)
     data: SaturationData | None = None
+    #: model -> {"Km": lower bound} where Km and Vmax are not identifiable (only Vmax/Km is)
+    unresolved: dict = field(default_factory=dict)
 
     @property
     def best(self) -> FitResult:
@@ -166,6 +175,69 @@ def _kcat(result: FitResult, enzyme_M: float, rate_unit: str, conc_unit: str, le
             out["kcat/Km"] = Param("kcat/Km", val, se, val - tq * se, val + tq * se,
                                    "delta-method", "M^-1 s^-1")
     return out, None
+
+
+def specificity_unit(rate_unit: str, conc_unit: str) -> tuple[float, str]:
+    """The factor and unit of Vmax/Km from the rate and concentration units: 1/time where both
+    are molar (uM/min over uM: 1/min; mM/min over uM: x 1000), else 'RATE per CONC'."""
+    f = rate_unit_factors(rate_unit)
+    try:
+        kf = concentration_factor(conc_unit) if conc_unit else None
+    except UsageError:
+        kf = None
+    if f is not None and kf:
+        return f[0] / kf, f"1/{rate_unit.split('/')[-1].strip()}"
+    if rate_unit and conc_unit:
+        return 1.0, f"{rate_unit} per {conc_unit}"
+    return 1.0, ""
+
+
+def _specificity(fits: dict, x, data: SaturationData, fix: dict | None, fit_kw: dict
+                 ) -> FitResult | None:
+    """Michaelis–Menten refitted in Vmax/Km and 1/Km (:data:`MM_SPECIFICITY`, same weighting
+    and intervals), started from the fit in Vmax and Km; None without an mm fit or with Vmax or
+    Km fixed."""
+    r = fits.get("mm")
+    if r is None or set(fix or {}) & {"Vmax", "Km"}:
+        return None
+    km, vm = r.value("Km"), r.value("Vmax")
+    start = {"Vmax/Km": vm / km, "1/Km": 1 / km}
+    factor, unit = specificity_unit(data.rate_unit, data.conc_unit)
+    kw = {k: v for k, v in fit_kw.items() if k not in ("weighting", "units")}
+    try:
+        spec = fit(MM_SPECIFICITY, x, data.v, weighting=fit_kw["weighting"], sd=data.sd,
+                   p0=start, units={**fit_kw["units"], "spec": unit}, **kw)
+    except FitError:
+        return None
+    return spec
+
+
+def _specificity_params(spec: FitResult, data: SaturationData, enzyme_M) -> dict:
+    """Vmax/Km in its unit (:func:`specificity_unit`) and, with the enzyme concentration and
+    molar units, kcat/Km in M^-1 s^-1, both scaled from the fitted Vmax/Km."""
+    vk = spec.params["Vmax/Km"]
+
+    def scaled(name, f, unit):
+        return Param(name, vk.value * f, vk.se * f, vk.ci_low * f, vk.ci_high * f,
+                     vk.ci_method, unit)
+
+    factor, unit = specificity_unit(data.rate_unit, data.conc_unit)
+    out = {"Vmax/Km": scaled("Vmax/Km", factor, unit)}
+    rf = rate_unit_factors(data.rate_unit)
+    if enzyme_M is not None and rf is not None and unit.startswith("1/"):
+        out["kcat/Km"] = scaled("kcat/Km", factor / rf[1] / enzyme_M, "M^-1 s^-1")
+    return out
+
+
+def _unresolved(r: FitResult, spec: FitResult | None) -> dict | None:
+    """{"Km": lower bound} when the interval of 1/Km reaches 0 (Km may be infinite: the rates
+    rise in proportion to [S] within the noise), else None."""
+    if spec is None or not spec.success:
+        return None
+    inv = spec.params["1/Km"]
+    if np.isfinite(inv.ci_low) and inv.ci_low > 0:
+        return None
+    return {"Km": 1 / inv.ci_high if np.isfinite(inv.ci_high) and inv.ci_high > 0 else math.nan}
 
 
 def cheng_prusoff(ic50: Param, mode: str, s: float, km: float) -> Param:
@@ -264,17 +336,21 @@ def _mixed_alpha(r: FitResult, level: float) -> Param:
     return Param("alpha", a, a * rel, a / spread, a * spread, "delta-method (log scale)", "")
 
 
-def _derived(fits: dict, chosen: str, data: SaturationData, level: float, enzyme_M, cp: dict
-             ) -> tuple[dict, list]:
-    """kcat and kcat/Km, the mixed model's alpha and the Cheng–Prusoff Ki, per fit."""
+def _derived(fits: dict, chosen: str, data: SaturationData, level: float, enzyme_M, cp: dict,
+             spec: FitResult | None = None) -> tuple[dict, list]:
+    """kcat and kcat/Km, Vmax/Km of the Michaelis–Menten fit (from ``spec``, the fit in
+    Vmax/Km and 1/Km: its own SE and interval), the mixed model's alpha and the
+    Cheng–Prusoff Ki, per fit."""
     derived, warn = {}, []
     for name, r in fits.items():
-        d = {}
+        d = _specificity_params(spec, data, None) if name == "mm" and spec is not None else {}
         if enzyme_M is not None and name != "ic50":
             kc, why = _kcat(r, enzyme_M, data.rate_unit, data.conc_unit, level)
             d.update(kc)
             if why and name == chosen:
                 warn.append(why)
+            if name == "mm" and spec is not None:     # kcat/Km from the fitted Vmax/Km
+                d.update(_specificity_params(spec, data, enzyme_M))
         if name == "mixed":
             d["alpha"] = _mixed_alpha(r, level)
         if name == "ic50" and cp.get("mode") and cp.get("substrate") is not None and (
@@ -337,21 +413,61 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
     _check_fix_names(fix, candidates)
     if np.all(data.v == 0):
         raise FitError("every rate is zero", "check the rate column and the blank subtraction")
-    fits, failed = _fit_candidates(candidates, x, data, fix, {
-        "weighting": weighting, "ci": ci, "level": level, "n_boot": n_boot,
-        "resample": resample, "seed": seed, "units": units})
+    fit_kw = {"weighting": weighting, "ci": ci, "level": level, "n_boot": n_boot,
+              "resample": resample, "seed": seed, "units": units}
+    fits, failed = _fit_candidates(candidates, x, data, fix, fit_kw)
+    spec = _specificity(fits, x, data, fix, fit_kw)
+    unresolved = {}
+    hit = _unresolved(fits["mm"], spec) if spec is not None else None
+    if hit is not None:
+        # the curve is determined (its RSS, its F-tests); only Km and Vmax apart are not
+        unresolved["mm"] = hit
+        fits["mm"] = replace(fits["mm"], success=True, message="converged; Km and Vmax are not "
+                             "identifiable, only Vmax/Km", notes=tuple(
+                                 n for n in fits["mm"].notes
+                                 if not any(w in n for w in ("Km", "Vmax", "covariance"))))
     comp = compare(fits, NESTED, failed) if len(candidates) > 1 else None
     chosen = comp.chosen if comp is not None else candidates[0]
     if comp is None and not fits[chosen].success:
         warn.append(f"{chosen}: {fits[chosen].message}")
     warn += [f"{chosen}: {note}" for note in fits[chosen].notes]
     derived, more = _derived(fits, chosen, data, level, enzyme_M,
-                             {"mode": mode, "substrate": substrate, "km": km})
+                             {"mode": mode, "substrate": substrate, "km": km}, spec)
     cross = {}
-    if model != "ic50":
+    if chosen in unresolved:
+        more.append(_first_order_warning(data, unresolved[chosen], derived[chosen]["Vmax/Km"],
+                                         level))
+    elif model != "ic50":
         cross, checks = _design_checks(data, fits[chosen], chosen)
         more += checks
-    return SaturationAnalysis(fits, comp, chosen, derived, cross, warn + more, data)
+    return SaturationAnalysis(fits, comp, chosen, derived, cross, warn + more, data, unresolved)
+
+
+def _first_order_warning(data: SaturationData, hit: dict, vk: Param, level: float) -> str:
+    """Why Km and Vmax are not given for rates that rise in proportion to [S]."""
+    u = data.conc_unit
+    where = (f"at {100 * level:g} % Km lies above {hit['Km']:.3g} {u}".rstrip()
+             if np.isfinite(hit["Km"]) else "Km could be any value above the range of [S]")
+    return (f"Km and Vmax are not identifiable: the rates rise in proportion to [S] within the "
+            f"noise, as they do far below Km (highest [S] {np.max(data.s):.3g} {u}".rstrip()
+            + f"; {where}); only Vmax/Km is determined, "
+            f"{fmt_pm(vk.value, vk.se, unit=vk.unit)}. To measure Km and Vmax, extend [S] to "
+            "Km or above")
+
+
+#: The ``ci_method`` of a constant the data do not determine (value, SE and the missing bound
+#: null; as in ``ratelaw`` and ``progress``).
+NOT_IDENTIFIABLE = "not identifiable"
+
+
+def _mask(params: dict, hit: dict) -> None:
+    """Km, Vmax and kcat of a fit whose Km is not identifiable: null value, SE and upper bound,
+    ci_method :data:`NOT_IDENTIFIABLE`; Km keeps its lower bound."""
+    for k in ("Km", "Vmax", "kcat"):
+        if k in params:
+            low = hit.get(k)
+            params[k].update(value=None, se=None, ci_high=None, ci_method=NOT_IDENTIFIABLE,
+                             ci_low=low if low is not None and np.isfinite(low) else None)
 
 
 def results_json(a: SaturationAnalysis) -> list[dict]:
@@ -361,8 +477,10 @@ def results_json(a: SaturationAnalysis) -> list[dict]:
     for name, r in a.fits.items():
         d = r.to_dict()
         d["params"].update({k: p.to_dict() for k, p in a.derived.get(name, {}).items()})
+        if name in a.unresolved:
+            _mask(d["params"], a.unresolved[name])
         d["chosen"] = name == a.chosen
-        d["status"] = "ok" if r.success else r.message
+        d["status"] = ("ok" if name not in a.unresolved else r.message) if r.success else r.message
         d["equation"] = SATURATION[name].equation
         if name in rows:
             d["delta_aicc"] = rows[name]["delta_aicc"]

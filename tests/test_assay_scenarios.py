@@ -7,6 +7,7 @@ or integrated there by solve_ivp; no number is taken from the package's own equa
 import json
 
 import numpy as np
+import pytest
 from click.testing import CliRunner
 from kinetics_truth import mechanism_rates
 
@@ -102,9 +103,10 @@ def test_several_samples_in_one_table_are_not_pooled_silently(tmp_path):
     assert km["lysate"]["ci_low"] < 400 < km["lysate"]["ci_high"]
 
 
-def _progress_file(path, s0s, enzymes, km, kcat_per_s, kd=0.0, seed=0):
+def _progress_file(path, s0s, enzymes, km, kcat_per_s, kd=0.0, seed=0, noise=0.002):
     """Product-absorbing progress curves (p-nitrophenolate, 18000 M^-1 cm^-1 at 405 nm, common
-    practice) by solve_ivp on dS/dt = -kcat [E] exp(-kd t) S / (Km + S); enzyme in nM, S in uM."""
+    practice) by solve_ivp on dS/dt = -kcat [E] exp(-kd t) S / (Km + S); enzyme in nM, S in uM;
+    absorbance noise SD ``noise``."""
     from scipy.integrate import solve_ivp
 
     rng = np.random.default_rng(seed)
@@ -114,7 +116,7 @@ def _progress_file(path, s0s, enzymes, km, kcat_per_s, kd=0.0, seed=0):
         v = kcat_per_s * e * 1e-3                                  # uM/s
         sol = solve_ivp(lambda tt, y, v=v: [-v * np.exp(-kd * tt) * y[0] / (km + y[0])],
                         (0, t[-1]), [s0], t_eval=t, rtol=1e-10, atol=1e-12)
-        a = 0.05 + 18000 * (s0 - sol.y[0]) * 1e-6 + rng.normal(0, 0.002, t.size)
+        a = 0.05 + 18000 * (s0 - sol.y[0]) * 1e-6 + rng.normal(0, noise, t.size)
         lines += [f"c{k},{s0:g},{e:g},{tt:g},{aa:.5f}" for tt, aa in zip(t, a, strict=True)]
     path.write_text("\n".join(lines) + "\n")
     return str(path)
@@ -154,3 +156,65 @@ def test_evidence_never_reads_p_equals_less_than(tmp_path):
     assert r.exit_code == 0, r.output
     assert "substrate-inhibition" in r.output and "p < 1e-16" in r.output
     assert "= <" not in r.output
+
+
+def test_progress_far_below_km_reports_vmax_over_km_not_a_runaway_km(tmp_path):
+    """S0 of 20-60 uM against Km 600 uM: the curves are first order in S within the noise, so
+    only Vmax/Km is determined. The fit in Km and Vmax ran off along the ridge (Km 7.4e5 uM,
+    Vmax 3467 uM/min printed as numbers) and Vmax/Km was never shown.
+
+    Truth: solve_ivp (_progress_file), Km 600 uM, kcat 50 /s at 1 nM, so Vmax 3 uM/min and
+    Vmax/Km 0.005 /min; noise SD 0.01 AU, seed 4."""
+    f = _progress_file(tmp_path / "low.csv", (20, 40, 60), (1.0,), 600.0, 50.0, seed=4,
+                       noise=0.01)
+    doc = _progress_json(f)
+    p = doc["results"][0]["params"]
+    for name in ("Km", "Vmax"):
+        assert p[name]["value"] is None and p[name]["ci_method"] == "not identifiable"
+    assert p["Km"]["ci_low"] < 600 and p["Km"]["ci_high"] is None      # a lower bound only
+    vk = p["Vmax/Km"]
+    assert vk["unit"] == "1/min" and vk["ci_low"] < 0.005 < vk["ci_high"]
+    assert vk["se"] < 0.15 * vk["value"]
+    assert any("only Vmax/Km is determined" in w for w in doc["warnings"])
+    r = CliRunner().invoke(main, ["progress", f, "--s0-column", "S0 (uM)", "--chromophore", "pnp",
+                                  "--no-plots"])
+    assert "e+05" not in r.output and "Vmax/Km" in r.output and "not identifiable" in r.output
+
+
+def test_progress_kcat_over_km_with_enzyme_amounts(tmp_path):
+    """With enzyme amounts in nM (--selwyn 'enzyme (nM)') the specificity constant is also
+    kcat/Km in M^-1 s^-1. Truth: solve_ivp (_progress_file), Km 60 uM, kcat 50 /s: kcat/Km
+    8.333e5 M^-1 s^-1, Vmax/Km 0.05 /min per nM; enzyme 0.5 and 1 nM, seed 21."""
+    f = _progress_file(tmp_path / "pnp.csv", (20, 50, 100, 200), (0.5, 1.0), 60.0, 50.0, seed=21)
+    p = _progress_json(f, "--selwyn", "enzyme (nM)")["results"][0]["params"]
+    assert p["kcat/Km"]["unit"] == "M^-1 s^-1"
+    assert p["kcat/Km"]["ci_low"] < 50 / 60e-6 < p["kcat/Km"]["ci_high"]
+    assert p["kcat"]["ci_low"] < 50 < p["kcat"]["ci_high"] and p["kcat"]["unit"] == "1/s"
+    assert p["Vmax/Km"]["unit"] == "1/min per nM"
+    assert p["Vmax/Km"]["value"] == pytest.approx(p["Vmax"]["value"] / p["Km"]["value"],
+                                                  rel=1e-6)
+
+
+def test_saturation_far_below_km_reports_vmax_over_km(tmp_path):
+    """Rates at [S] 5-60 uM against Km 600 uM rise in proportion to [S]: Km and Vmax are not
+    identifiable, Vmax/Km (and kcat/Km) are. Every candidate's covariance was singular and the
+    command ended with 'no candidate model could be fitted'.
+
+    Truth: Michaelis-Menten by solve_ivp (mechanism_rates), Vmax 10 uM/min at 1 nM, Km 600 uM:
+    Vmax/Km 0.016667 /min, kcat/Km = (10/60 uM/s / 1 nM) / 600 uM = 2.778e5 M^-1 s^-1; noise SD
+    0.05 uM/min, seed 4."""
+    s = np.repeat([5, 10, 20, 30, 40, 60.0], 2)
+    v = mechanism_rates(s, np.zeros(s.size), V=10.0, Km=600.0)
+    v = v + np.random.default_rng(4).normal(0, 0.05, s.size)
+    doc = _saturation_json(_write(tmp_path / "low.csv", "substrate_uM,rate_uM_per_min", s, v),
+                           "--enzyme", "1 nM")
+    chosen = next(r for r in doc["results"] if r["chosen"])
+    p = chosen["params"]
+    assert chosen["model"] == "mm"
+    for name in ("Km", "Vmax", "kcat"):
+        assert p[name]["value"] is None and p[name]["ci_method"] == "not identifiable"
+    assert p["Km"]["ci_low"] < 600
+    assert p["Vmax/Km"]["unit"] == "1/min"
+    assert p["Vmax/Km"]["ci_low"] < 10 / 600 < p["Vmax/Km"]["ci_high"]
+    assert p["kcat/Km"]["ci_low"] < (10 / 60 / 1e-3) / 600e-6 < p["kcat/Km"]["ci_high"]
+    assert any("only Vmax/Km is determined" in w for w in doc["warnings"])

@@ -111,6 +111,8 @@ def test_cli_sample_set(tmp_path):
     # simulated truth (sample_runs/generate.py): Km 60 uM, Vmax 3 uM/min per nM
     assert p["Km"]["ci_low"] < 60 < p["Km"]["ci_high"] and p["Km"]["unit"] == "uM"
     assert p["Vmax"]["ci_low"] < 3 < p["Vmax"]["ci_high"]
+    # kcat = 3 uM/min per nM = 50 /s; kcat/Km = 50 / 60e-6 M = 8.333e5 M^-1 s^-1
+    assert p["kcat/Km"]["ci_low"] < 50 / 60e-6 < p["kcat/Km"]["ci_high"]
     assert doc["results"][1]["enzyme_stable"] is True
     assert (tmp_path / "progress_fit.png").exists() and (tmp_path / "progress_selwyn.png").exists()
 

@@ -262,3 +262,23 @@ def test_failed_candidate_reported_and_auto_goes_on():
 def test_fit_error_when_nothing_fits():
     with pytest.raises(FitError):
         analyse(_data([1, 2], [1, 2]), model="mm")
+
+
+def test_puromycin_vmax_over_km_against_scipy(tmp_path):
+    # reference library: scipy.optimize.curve_fit of v = k S / (1 + a S) (k = Vmax/Km,
+    # a = 1/Km) to the published puromycin data (Treloar 1974, Bates & Watts 1988); its k
+    # agrees with the published Vmax/Km, 212.68/0.06412 = 3317
+    from scipy.optimize import curve_fit
+
+    f = tmp_path / "puromycin.csv"
+    f.write_text(PURO)
+    r = CliRunner().invoke(main, ["saturation", str(f), "--model", "mm", "--format", "json"])
+    vk = json.loads(r.stdout)["results"][0]["params"]["Vmax/Km"]
+    rows = [line.split(",") for line in PURO.splitlines()[1:]]
+    s, v = (np.array([float(x[j]) for x in rows]) for j in (0, 1))
+    (k, _), cov = curve_fit(lambda s, k, a: k * s / (1 + a * s), s, v, p0=[3000, 15],
+                            xtol=1e-14, ftol=1e-14, gtol=1e-14)
+    assert vk["value"] == pytest.approx(k, rel=1e-6)
+    assert vk["value"] == pytest.approx(212.68 / 0.06412, rel=1e-3)
+    assert vk["se"] == pytest.approx(np.sqrt(cov[0, 0]), rel=1e-4)
+    assert vk["unit"] == "counts/min^2 per ppm"

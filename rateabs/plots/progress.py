@@ -23,6 +23,18 @@ def _report_unit(a) -> tuple[str, float]:
     return unit, 1e-6 / concentration_factor(unit)
 
 
+def _constants_line(params: dict) -> str:
+    """Km, Vmax and Vmax/Km for a title; a Km the curves bound only from below reads 'not
+    identifiable (> X)' and Vmax 'not identifiable'."""
+    km, vm, vk = params["Km"], params["Vmax"], params["Vmax/Km"]
+    ratio = f"Vmax/Km = {fmt_pm(vk.value, vk.se, unit=unit_text(vk.unit))}"
+    if not np.isfinite(km.value):
+        low = f" (> {km.ci_low:.3g} {unit_text(km.unit)})" if np.isfinite(km.ci_low) else ""
+        return f"{ratio};  Km not identifiable{low}, Vmax not identifiable"
+    return (f"Km = {fmt_pm(km.value, km.se, unit=unit_text(km.unit))},  "
+            f"Vmax = {fmt_pm(vm.value, vm.se, unit=unit_text(vm.unit))},  {ratio}")
+
+
 def _fit_figure(plt, a):
     """Curves (product formed since the fitted baseline), the global fit and the residuals."""
     c, r = a.curves, a.fit
@@ -48,11 +60,8 @@ def _fit_figure(plt, a):
     axr.set_ylabel(f"residual ({u})")
     moved = c.t0 is not None and bool(np.any(c.t0 != 0))
     axr.set_xlabel("time since the first usable reading (min)" if moved else "time (min)")
-    km, vm = a.params["Km"], a.params["Vmax"]
-    ax.set_title("integrated Michaelis–Menten, one global fit\n"
-                 f"Km = {fmt_pm(km.value, km.se, unit=unit_text(km.unit))},  "
-                 f"Vmax = {fmt_pm(vm.value, vm.se, unit=unit_text(vm.unit))}", fontsize=9.5,
-                 loc="left")
+    ax.set_title("integrated Michaelis–Menten, one global fit\n" + _constants_line(a.params),
+                 fontsize=9.5, loc="left")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0, fontsize=7.5)
     return fig
 

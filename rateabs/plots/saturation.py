@@ -31,6 +31,36 @@ def _curve_x(s, log=False):
     return np.geomspace(lo, hi, 200) if log else np.linspace(0, hi, 200)
 
 
+def _param_lines(analysis) -> list[str]:
+    """The chosen fit's parameters and Vmax/Km, value ± SE; Km and Vmax of a fit whose Km is
+    not identifiable read 'not identifiable' (Km with its lower bound)."""
+    best = analysis.best
+    hit = getattr(analysis, "unresolved", {}).get(best.model)
+    lines = []
+    for p in best.params.values():
+        if hit is not None and p.name in ("Km", "Vmax"):
+            low = hit.get(p.name)
+            lines.append(f"{p.name} not identifiable" + (
+                f" (> {low:.3g} {unit_text(p.unit)})" if low is not None and np.isfinite(low)
+                else ""))
+        else:
+            lines.append(_value_line(p))
+    vk = analysis.derived.get(best.model, {}).get("Vmax/Km")
+    if vk is not None:
+        lines.append(_value_line(vk))
+    return lines
+
+
+def _value_line(p, width: int = 34) -> str:
+    """'name = value ± SE unit', the unit on a line of its own where the whole is wider than
+    the room beside the axes ('counts/min² per ppm')."""
+    unit = unit_text(p.unit)
+    line = f"{p.name} = {fmt_pm(p.value, p.se)}"
+    if not unit:
+        return line
+    return f"{line} {unit}" if len(line) + len(unit) < width else f"{line}\n    {unit}"
+
+
 def saturation_fit(analysis, path, title: str = "rate vs substrate"):
     """Data (per inhibitor level), the chosen fit and residuals underneath; the legend and the
     parameters beside the axes, off the data."""
@@ -68,8 +98,7 @@ def saturation_fit(analysis, path, title: str = "rate vs substrate"):
         ax.set_ylabel(f"rate ({yu})")
         ax.set_title(f"{drawable(title)}: {best.model} fit (chosen)", loc="left")
         ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
-        txt = "\n".join(f"{p.name} = {fmt_pm(p.value, p.se, unit=unit_text(p.unit))}"
-                        for p in best.params.values())
+        txt = "\n".join(_param_lines(analysis))
         ax.annotate(txt, xy=(1.02, 0.0), xycoords="axes fraction", ha="left", va="bottom",
                     fontsize=8, bbox={"boxstyle": "round", "fc": "white", "ec": GRID})
         return save(fig, path, tight=False)

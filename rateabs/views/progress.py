@@ -144,6 +144,14 @@ def _result(a, c) -> dict:
             "notes": list(a.fit.notes)}
 
 
+def _param_rows(params: dict) -> list[dict]:
+    """Table rows of parameters; an upper bound that is open (a Km the curves bound only from
+    below) reads 'open'."""
+    return [{"p": k, "v": p.value, "se": p.se, "lo": p.ci_low,
+             "hi": "open" if p.ci_high == np.inf and np.isfinite(p.ci_low) else p.ci_high,
+             "u": p.unit, "m": p.ci_method} for k, p in params.items()]
+
+
 def _settings_json(o: ProgressOptions) -> dict:
     return {"epsilon": o.epsilon_value(), "pathlength_cm": o.pathlength or 1.0,
             "absorbing_species": o.species, "concentration_unit": _unit(o),
@@ -184,10 +192,9 @@ def compute_progress(o: ProgressOptions) -> View:
     t0s = curves.t0 if curves.t0 is not None else [0.0]
     doc = document("progress", [o.file], {**_settings_json(o), **time_settings(info),
                                           **origin_settings(info, t0s)}, results, a.warnings)
-    rows = [{"p": k, "v": p.value, "se": p.se, "lo": p.ci_low, "hi": p.ci_high, "u": p.unit,
-             "m": p.ci_method} for k, p in a.params.items()]
-    flat = [{"parameter": r["p"], "value": r["v"], "se": r["se"], "ci_low": r["lo"],
-             "ci_high": r["hi"], "unit": r["u"]} for r in rows]
+    rows = _param_rows(a.params)
+    flat = [{"parameter": k, **{f: d[f] for f in ("value", "se", "ci_low", "ci_high", "unit")}}
+            for k, d in res["params"].items()]
     text = (f"time: {time_words(info)}\ntime origin: {origin_words(info, t0s)}\n\n"
             + _text(a, res, rows, o.level))
     return View(doc, text, rows_to_csv(flat, list(flat[0])), a)

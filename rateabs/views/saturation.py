@@ -116,7 +116,8 @@ def _residual_se(best, rate_unit: str) -> str:
 
 def _text(a, data, results, level: float) -> str:
     chosen = next(r for r in results if r.get("chosen"))
-    prow = [{"param": k, **v} for k, v in chosen["params"].items()]
+    prow = [{"param": k, **v, "ci_high": "open" if v.get("ci_high") is None and (
+        v.get("ci_low") is not None) else v.get("ci_high")} for k, v in chosen["params"].items()]
     table = render_table(prow, [("param", "parameter"), ("value", "value"), ("se", "SE"),
                                 ("ci_low", f"{100 * level:g}% low"),
                                 ("ci_high", f"{100 * level:g}% high"), ("unit", "unit"),
