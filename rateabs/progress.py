@@ -22,7 +22,6 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy import special
 
-from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
 from .fitting import FitResult, Param, f_test, fit, fmt_pm, line_slope, p_is
 from .models import Model, time_origin
@@ -238,7 +237,8 @@ def check_direction(c: Curves) -> None:
 
 @dataclass
 class ProgressAnalysis:
-    """The global fit, Selwyn's verdict and the warnings."""
+    """The global fit, Selwyn's verdict, the constants corrected for enzyme inactivation where
+    the enzyme is not stable, and the warnings."""
 
     fit: FitResult
     params: dict
@@ -246,6 +246,8 @@ class ProgressAnalysis:
     selwyn: dict | None
     warnings: list = field(default_factory=list)
     conversion: np.ndarray | None = None
+    decay_fit: FitResult | None = None     # the fit with first-order inactivation (Selwyn)
+    corrected: dict | None = None          # its constants, when the enzyme is not stable
 
 
 def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptotic",
@@ -301,11 +303,29 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
     if np.isfinite(r.runs_p) and r.runs_p < 0.01:
         warnings.append(f"the residuals are not random (runs test {p_is(r.runs_p)}): the "
                         "integrated Michaelis–Menten model does not describe these curves well")
-    sel = selwyn_test(c, r, product_inhibition, level) if selwyn else None
+    sel, decay, corrected = None, None, None
+    if selwyn:
+        sel, decay = selwyn_test(c, r, product_inhibition, level, ci=ci)
     if sel is not None and not sel["enzyme_stable"]:
-        warnings.append("the enzyme is not stable during the assay (Selwyn's test): Km and Vmax "
-                        "from this fit are biased; shorten the assay or stabilise the enzyme")
-    return ProgressAnalysis(r, in_unit(params, unit), c, sel, warnings, conv)
+        corrected = corrected_constants(c, decay, product_inhibition, ci=ci, level=level,
+                                        unit=unit)
+        warnings.append(_unstable_warning(corrected))
+    return ProgressAnalysis(r, in_unit(params, unit), c, sel, warnings, conv, decay, corrected)
+
+
+def _unstable_warning(corrected: dict) -> str:
+    """The enzyme decays: which constants are biased and which are corrected."""
+    def said(name):
+        p = corrected[name]
+        if p.ci_method == NOT_IDENTIFIABLE:
+            return f"{name} not identifiable"
+        return f"{name} = {fmt_pm(p.value, p.se, unit=p.unit)}"
+
+    return ("the enzyme is not stable during the assay (Selwyn's test): Km and Vmax of the fit "
+            "that assumes a stable enzyme are biased; corrected for first-order inactivation "
+            f"(at time zero): {said('Km')}, {said('Vmax')}, enzyme half-life "
+            f"{fmt_pm(corrected['enzyme half-life'].value, corrected['enzyme half-life'].se)} "
+            "min. A shorter assay or a stabilised enzyme avoids the correction")
 
 
 #: The ``ci_method`` of a constant the data do not determine (value, SE and the missing bound
@@ -402,8 +422,11 @@ def _initial_product(r: FitResult, i: int, c: Curves) -> float:
 
 
 def selwyn_test(c: Curves, base: FitResult, product_inhibition: bool, level: float = 0.95,
-                alpha: float = 0.05) -> dict:
-    """Selwyn's test as a nested comparison: is first-order enzyme inactivation needed?"""
+                alpha: float = 0.05, ci: str = "asymptotic") -> tuple[dict, FitResult]:
+    """Selwyn's test as a nested comparison: is first-order enzyme inactivation needed?
+
+    Returns the verdict (JSON-ready) and the fit with inactivation (Km and Vmax at time zero,
+    kd), intervals by ``ci``."""
     if c.enzyme is None or np.unique(c.enzyme).size < 2:
         raise UsageError("Selwyn's test needs curves at two or more enzyme amounts",
                          "name the enzyme column with --selwyn COL")
@@ -412,7 +435,7 @@ def selwyn_test(c: Curves, base: FitResult, product_inhibition: bool, level: flo
     model = _model(n, product_inhibition, True, c.per_enzyme())
     g = base.values()
     g["kd"] = 1e-3 / max(float(np.max(x[0])), 1e-9)
-    r = fit(model, x, y, p0=g, level=level)
+    r = fit(model, x, y, p0=g, level=level, ci=ci)
     ft = f_test(base, r)
     kd = r.params["kd"]
     t_end = float(np.max(x[0]))
@@ -428,11 +451,35 @@ def selwyn_test(c: Curves, base: FitResult, product_inhibition: bool, level: flo
         why = (f"the curves do not superimpose on enzyme x time: the enzyme loses about "
                f"{100 * loss:.0f} % of its activity during the assay (inactivation half-life "
                f"{half / 60:.1f} min, F-test {p_is(ft['p'])}); initial rates and progress-curve "
-               "Km and Vmax are biased")
-    tq = t_two_sided(level, max(r.dof, 1))
-    return {"enzyme_stable": bool(stable), "reason": why, "f_test": ft,
-            "kd": Param("kd", kd.value, kd.se, max(kd.value - tq * kd.se, 0.0),
-                        kd.value + tq * kd.se, kd.ci_method, "1/s").to_dict(),
-            "activity_lost_fraction": loss, "aicc_stable": base.aicc, "aicc_decay": r.aicc,
-            "method": "Selwyn (1965) overlay, tested by a nested fit with first-order "
-                      "inactivation"}
+               "Km and Vmax that assume a stable enzyme are biased")
+    return ({"enzyme_stable": bool(stable), "reason": why, "f_test": ft,
+             "kd": _kd_param(kd).to_dict(),
+             "activity_lost_fraction": loss, "aicc_stable": base.aicc, "aicc_decay": r.aicc,
+             "method": "Selwyn (1965) overlay, tested by a nested fit with first-order "
+                       "inactivation"}, r)
+
+
+def _kd_param(kd: Param) -> Param:
+    """kd (1/s) with its interval kept at or above 0 (a rate of loss cannot be negative)."""
+    return Param("kd", kd.value, kd.se, max(kd.ci_low, 0.0), kd.ci_high, kd.ci_method, "1/s")
+
+
+def corrected_constants(c: Curves, decay: FitResult, product_inhibition: bool, *,
+                        ci: str = "asymptotic", level: float = 0.95, unit: str = "uM") -> dict:
+    """Km, Vmax (at time zero: the enzyme's initial activity), Vmax/Km, kcat and kcat/Km (with
+    molar enzyme amounts), Kp, kd and the enzyme's half-life ln 2 / kd (min; its interval kd's
+    mapped, open above when kd's reaches 0), from the fit with first-order inactivation."""
+    spec = specificity_fit(c, decay, product_inhibition, decay=True, ci=ci, level=level)
+    out = _constants(decay, spec, c, level)
+    if product_inhibition:
+        kp = decay.params["Kp"]
+        out["Kp"] = Param("Kp", kp.value, kp.se, kp.ci_low, kp.ci_high, kp.ci_method, "uM")
+    kd = _kd_param(decay.params["kd"])
+    out["kd"] = kd
+    ln2 = math.log(2) / 60                                       # -> min
+    out["enzyme half-life"] = Param(
+        "enzyme half-life", ln2 / kd.value if kd.value > 0 else math.inf,
+        ln2 * kd.se / kd.value ** 2 if kd.value > 0 else math.nan,
+        ln2 / kd.ci_high if kd.ci_high > 0 else math.inf,
+        ln2 / kd.ci_low if kd.ci_low > 0 else math.inf, kd.ci_method, "min")
+    return in_unit(out, unit)

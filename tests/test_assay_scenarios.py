@@ -218,3 +218,31 @@ def test_saturation_far_below_km_reports_vmax_over_km(tmp_path):
     assert p["Vmax/Km"]["ci_low"] < 10 / 600 < p["Vmax/Km"]["ci_high"]
     assert p["kcat/Km"]["ci_low"] < (10 / 60 / 1e-3) / 600e-6 < p["kcat/Km"]["ci_high"]
     assert any("only Vmax/Km is determined" in w for w in doc["warnings"])
+
+
+def test_unstable_enzyme_reports_the_constants_corrected_for_inactivation(tmp_path):
+    """When Selwyn's test (Selwyn 1965, Biochim. Biophys. Acta 105:193) finds the enzyme losing
+    activity, the fit with first-order inactivation gives Km and Vmax at time zero; they must be
+    reported (with kd and the enzyme's half-life) and marked as the ones to use, the stable-
+    enzyme fit as biased. Only the biased Vmax (about 1.3 against 3) was shown.
+
+    Truth: solve_ivp (_progress_file) with activity e^(-kd t): Km 60 uM, kcat 50 /s (Vmax 3
+    uM/min per nM), kd 1.2e-3 /s, so the half-life ln 2 / kd = 9.627 min; enzyme 0.5, 1, 2 nM,
+    seed 5."""
+    f = _progress_file(tmp_path / "decay.csv", (20, 50, 100, 200), (0.5, 1.0, 2.0), 60.0, 50.0,
+                       kd=1.2e-3, seed=5)
+    doc = _progress_json(f, "--selwyn", "enzyme (nM)")
+    stable_fit, selwyn, corrected = doc["results"]
+    assert selwyn["enzyme_stable"] is False
+    assert stable_fit["chosen"] is False and "biased" in stable_fit["enzyme"]
+    assert corrected["chosen"] is True and corrected["model"] == "integrated-mm+inactivation"
+    p = corrected["params"]
+    truth = {"Km": 60.0, "Vmax": 3.0, "kcat": 50.0, "kd": 1.2e-3,
+             "enzyme half-life": np.log(2) / 1.2e-3 / 60, "kcat/Km": 50 / 60e-6}
+    for name, value in truth.items():
+        assert p[name]["ci_low"] < value < p[name]["ci_high"], (name, p[name])
+    assert p["enzyme half-life"]["unit"] == "min" and p["kd"]["unit"] == "1/s"
+    assert not stable_fit["params"]["Vmax"]["ci_low"] < 3.0 < stable_fit["params"]["Vmax"]["ci_high"]
+    r = CliRunner().invoke(main, ["progress", f, "--s0-column", "S0 (uM)", "--chromophore", "pnp",
+                                  "--selwyn", "enzyme (nM)", "--no-plots"])
+    assert "corrected for enzyme inactivation" in r.output and "BIASED" in r.output

@@ -23,21 +23,27 @@ def _report_unit(a) -> tuple[str, float]:
     return unit, 1e-6 / concentration_factor(unit)
 
 
-def _constants_line(params: dict) -> str:
-    """Km, Vmax and Vmax/Km for a title; a Km the curves bound only from below reads 'not
-    identifiable (> X)' and Vmax 'not identifiable'."""
+def _constants_line(params: dict, ratio: bool = True) -> str:
+    """Km, Vmax and (with ``ratio``) Vmax/Km for a title; a Km the curves bound only from below
+    reads 'not identifiable (> X)' and Vmax 'not identifiable', Vmax/Km then always shown."""
     km, vm, vk = params["Km"], params["Vmax"], params["Vmax/Km"]
-    ratio = f"Vmax/Km = {fmt_pm(vk.value, vk.se, unit=unit_text(vk.unit))}"
+    spec = f"Vmax/Km = {fmt_pm(vk.value, vk.se, unit=unit_text(vk.unit))}"
     if not np.isfinite(km.value):
         low = f" (> {km.ci_low:.3g} {unit_text(km.unit)})" if np.isfinite(km.ci_low) else ""
-        return f"{ratio};  Km not identifiable{low}, Vmax not identifiable"
+        return f"{spec};  Km not identifiable{low}, Vmax not identifiable"
     return (f"Km = {fmt_pm(km.value, km.se, unit=unit_text(km.unit))},  "
-            f"Vmax = {fmt_pm(vm.value, vm.se, unit=unit_text(vm.unit))},  {ratio}")
+            f"Vmax = {fmt_pm(vm.value, vm.se, unit=unit_text(vm.unit))}"
+            + (f",  {spec}" if ratio else ""))
 
 
 def _fit_figure(plt, a):
-    """Curves (product formed since the fitted baseline), the global fit and the residuals."""
-    c, r = a.curves, a.fit
+    """Curves (product formed since the fitted baseline), the global fit and the residuals.
+
+    Where Selwyn's test finds the enzyme not stable the fit drawn is the one corrected for
+    inactivation (its constants in the title), the fit that assumes a stable enzyme dashed."""
+    c = a.curves
+    corrected = a.corrected is not None and a.decay_fit is not None
+    r = a.decay_fit if corrected else a.fit
     unit, f = _report_unit(a)
     u = unit_text(unit)
     fig, (ax, axr) = fixed_axes(plt, (8.6, 5.6), 2, 1, margins=(0.8, LEGEND_ROOM, 0.55, 0.6),
@@ -54,14 +60,24 @@ def _fit_figure(plt, a):
             lab += f", E {c.enzyme[i]:g}"
         ax.plot(t, (p - base) * f, "o", ms=2.2, color=col, alpha=0.7, label=lab)
         ax.plot(t, (r.fitted[k] - base) * f, color=col, lw=1.3)
+        if corrected:
+            ax.plot(t, (a.fit.fitted[k] - base) * f, color=col, lw=0.9, ls="--")
         axr.plot(t, (p - r.fitted[k]) * f, ".", ms=2.5, color=col)
     axr.axhline(0, color=INK, lw=0.7)
     ax.set_ylabel(f"product formed ({u})")
     axr.set_ylabel(f"residual ({u})")
     moved = c.t0 is not None and bool(np.any(c.t0 != 0))
     axr.set_xlabel("time since the first usable reading (min)" if moved else "time (min)")
-    ax.set_title("integrated Michaelis–Menten, one global fit\n" + _constants_line(a.params),
-                 fontsize=9.5, loc="left")
+    if corrected:
+        ax.plot([], [], color=INK, lw=1.3, label="fit with enzyme inactivation")
+        ax.plot([], [], color=INK, lw=0.9, ls="--", label="fit assuming a stable\nenzyme (biased)")
+        half = a.corrected["enzyme half-life"]
+        title = ("integrated Michaelis–Menten with first-order enzyme inactivation, one global "
+                 f"fit\n{_constants_line(a.corrected, ratio=False)},  enzyme half-life "
+                 f"{fmt_pm(half.value, half.se, unit='min')}")
+    else:
+        title = "integrated Michaelis–Menten, one global fit\n" + _constants_line(a.params)
+    ax.set_title(title, fontsize=9.5, loc="left")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0, fontsize=7.5)
     return fig
 

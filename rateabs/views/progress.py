@@ -132,8 +132,12 @@ def _curves(o: ProgressOptions):
 def _result(a, c) -> dict:
     enzyme = c.enzyme if c.enzyme is not None else [None] * len(c.names)
     origins = c.t0 if c.t0 is not None else [0.0] * len(c.names)
-    return {"model": "integrated-mm" + ("+product-inhibition" if "Kp" in a.params else ""),
+    return {"model": _model_name(a.params),
             "params": {k: p.to_dict() for k, p in a.params.items()},
+            "chosen": a.corrected is None,
+            "enzyme": ("assumed stable" if not a.selwyn else "assumed stable; "
+                       + ("biased: Selwyn's test finds the enzyme not stable" if a.corrected
+                          else "Selwyn's test finds it stable")),
             "n_curves": len(c.names), "n": a.fit.n, "aicc": a.fit.aicc,
             "sigma_uM": a.fit.sigma, "runs_test_p": a.fit.runs_p,
             "curves": [{"trace": n, "S0_uM": float(s), "conversion": float(cv),
@@ -142,6 +146,24 @@ def _result(a, c) -> dict:
                                                   strict=True)],
             "equation": "S = Km W((S0/Km) exp((S0 - Vmax t)/Km)) (Schnell & Mendoza 1997)",
             "notes": list(a.fit.notes)}
+
+
+def _model_name(params: dict, decay: bool = False) -> str:
+    return ("integrated-mm" + ("+product-inhibition" if "Kp" in params else "")
+            + ("+inactivation" if decay else ""))
+
+
+def _corrected_result(a) -> dict:
+    """The fit with first-order enzyme inactivation, when Selwyn's test finds the enzyme not
+    stable: the constants to use (``chosen``)."""
+    r = a.decay_fit
+    return {"model": _model_name(a.corrected, decay=True),
+            "params": {k: p.to_dict() for k, p in a.corrected.items()},
+            "chosen": True,
+            "enzyme": "loses activity at first order, e^(-kd t); Km and Vmax at time zero",
+            "n": r.n, "aicc": r.aicc, "sigma_uM": r.sigma, "runs_test_p": r.runs_p,
+            "equation": "Km ln(S0/S) + (S0 - S) = Vmax (1 - exp(-kd t))/kd",
+            "notes": list(r.notes)}
 
 
 def _param_rows(params: dict) -> list[dict]:
@@ -160,12 +182,17 @@ def _settings_json(o: ProgressOptions) -> dict:
             "selwyn_column": o.selwyn}
 
 
+def _params_table(rows, level: float, title: str) -> str:
+    return render_table(rows, [("p", "parameter"), ("v", "value"), ("se", "SE"),
+                               ("lo", f"{100 * level:g}% low"), ("hi", f"{100 * level:g}% high"),
+                               ("u", "unit"), ("m", "interval")], title=title)
+
+
 def _text(a, res, rows, level: float) -> str:
-    table = render_table(rows, [("p", "parameter"), ("v", "value"), ("se", "SE"),
-                                ("lo", f"{100 * level:g}% low"), ("hi", f"{100 * level:g}% high"),
-                                ("u", "unit"), ("m", "interval")],
-                         title=f"integrated Michaelis-Menten, global fit of {res['n_curves']} "
-                               "curves")
+    title = f"integrated Michaelis-Menten, global fit of {res['n_curves']} curves"
+    if a.corrected:
+        title += ", enzyme assumed stable (BIASED here: see Selwyn's test below)"
+    table = _params_table(rows, level, title)
     table += "\n" + render_table(res["curves"], [("trace", "curve"), ("S0_uM", "S0 (uM)"),
                                                  ("enzyme", "enzyme"),
                                                  ("conversion", "conversion reached")])
@@ -174,6 +201,11 @@ def _text(a, res, rows, level: float) -> str:
         verdict = ("the enzyme is stable: the curves superimpose" if s["enzyme_stable"] else
                    "the enzyme is not stable: the curves do not superimpose")
         table += f"\nSelwyn's test: {verdict}\n  {s['reason']}\n"
+    if a.corrected:
+        table += "\n" + _params_table(
+            _param_rows(a.corrected), level,
+            "corrected for enzyme inactivation (activity e^(-kd t)): Km and Vmax at time zero, "
+            "the constants to report")
     return table
 
 
@@ -189,12 +221,15 @@ def compute_progress(o: ProgressOptions) -> View:
         a.warnings.extend(_enzyme_warning(meta, curves.names))
     res = _result(a, curves)
     results = [res] + ([{"test": "selwyn", **a.selwyn}] if a.selwyn else [])
+    if a.corrected:
+        results.append(_corrected_result(a))
     t0s = curves.t0 if curves.t0 is not None else [0.0]
     doc = document("progress", [o.file], {**_settings_json(o), **time_settings(info),
                                           **origin_settings(info, t0s)}, results, a.warnings)
     rows = _param_rows(a.params)
-    flat = [{"parameter": k, **{f: d[f] for f in ("value", "se", "ci_low", "ci_high", "unit")}}
-            for k, d in res["params"].items()]
+    flat = [{"parameter": k, **{f: d[f] for f in ("value", "se", "ci_low", "ci_high", "unit")},
+             "model": r["model"]}
+            for r in results if "params" in r for k, d in r["params"].items()]
     text = (f"time: {time_words(info)}\ntime origin: {origin_words(info, t0s)}\n\n"
             + _text(a, res, rows, o.level))
     return View(doc, text, rows_to_csv(flat, list(flat[0])), a)
