@@ -300,17 +300,51 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
     if product_inhibition:
         kp = r.params["Kp"]
         params["Kp"] = Param("Kp", kp.value, kp.se, kp.ci_low, kp.ci_high, kp.ci_method, "uM")
-    if np.isfinite(r.runs_p) and r.runs_p < 0.01:
-        warnings.append(f"the residuals are not random (runs test {p_is(r.runs_p)}): the "
-                        "integrated Michaelis–Menten model does not describe these curves well")
     sel, decay, corrected = None, None, None
     if selwyn:
         sel, decay = selwyn_test(c, r, product_inhibition, level, ci=ci)
     if sel is not None and not sel["enzyme_stable"]:
         corrected = corrected_constants(c, decay, product_inhibition, ci=ci, level=level,
                                         unit=unit)
+    if np.isfinite(r.runs_p) and r.runs_p < RUNS_ALPHA:
+        warnings.append(_runs_warning(r, decay if corrected else None, product_inhibition,
+                                      sel is not None))
+    if corrected:
         warnings.append(_unstable_warning(corrected))
     return ProgressAnalysis(r, in_unit(params, unit), c, sel, warnings, conv, decay, corrected)
+
+
+#: Below this p of the runs test the residuals of a fit count as not random.
+RUNS_ALPHA = 0.01
+
+
+def _runs_warning(r: FitResult, decay: FitResult | None, product_inhibition: bool,
+                  selwyn_run: bool) -> str:
+    """Residuals in runs: the likely causes, each with the option that tests it (the options
+    already given, and a cause Selwyn's test has ruled out, are not named again)."""
+    head = (f"the residuals are not random (runs test {p_is(r.runs_p)}): the integrated "
+            "Michaelis–Menten model"
+            + (" with product inhibition" if product_inhibition else "")
+            + " does not describe these curves well")
+    causes = []
+    if decay is not None:
+        left = (f"its residuals are random (runs test {p_is(decay.runs_p)})"
+                if not (np.isfinite(decay.runs_p) and decay.runs_p < RUNS_ALPHA) else
+                f"its residuals are not random either (runs test {p_is(decay.runs_p)})")
+        causes.append("loss of enzyme activity, which Selwyn's test found: the fit corrected "
+                      f"for it is reported and {left}")
+    if not product_inhibition:
+        causes.append("inhibition by the product, which slows the curves more than substrate "
+                      "depletion does: test it with --product-inhibition (fits a competitive "
+                      "product-inhibition constant Kp)")
+    if not selwyn_run:
+        causes.append("loss of enzyme activity during the assay: test it with --selwyn COL "
+                      "(Selwyn's test, on curves at two or more enzyme amounts given in column "
+                      "COL)")
+    causes.append("a wrong S0, molar absorptivity or pathlength, a drifting baseline or "
+                  "readings past the linear range of the instrument: check those")
+    return head + "; likely causes: " + "; ".join(
+        f"({k}) {cause}" for k, cause in enumerate(causes, start=1))
 
 
 def _unstable_warning(corrected: dict) -> str:
