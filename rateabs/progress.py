@@ -286,7 +286,7 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
         warnings.append(f"the curves reach at most {100 * np.max(conv):.0f} % conversion: too "
                         "little curvature for Km to be identifiable; run the assay longer")
     spec = specificity_fit(c, r, product_inhibition, ci=ci, level=level)
-    params = _constants(r, spec, c, level)
+    params = _constants(r, spec, c, level, km_infinite_p(c, spec, product_inhibition))
     if params["Km"].ci_method == NOT_IDENTIFIABLE:      # says why the fit in Km fails
         warnings.insert(0, _first_order_warning(params, c, level, unit))
     elif not r.success:
@@ -389,21 +389,38 @@ def specificity_fit(c: Curves, base: FitResult, product_inhibition: bool, decay:
     return min(fits, key=lambda f: f.rss)
 
 
-def _constants(r: FitResult, spec: FitResult, c: Curves, level: float, scale: float = 60.0
-               ) -> dict:
+def km_infinite_p(c: Curves, spec: FitResult, product_inhibition: bool, decay: bool = False
+                  ) -> float:
+    """p of the F-test of Km infinite (1/Km = 0: first-order loss of S, the same model with 1/Km
+    held at 0) against the fit ``spec`` in Vmax/Km and 1/Km: the profile-likelihood criterion
+    at 1/Km = 0 (Bates & Watts 1988), exact where the linearised interval of 1/Km is not. NaN
+    when it cannot be computed."""
+    x, y = _stack(c)
+    model = _model(len(c.t), product_inhibition, decay,
+                   c.per_enzyme() if c.enzyme is not None else "", specificity=True)
+    try:
+        first = fit(model, x, y, p0=spec.values(), fix={"1/Km": 0.0})
+    except AnalysisError:
+        return math.nan
+    return float(f_test(first, spec)["p"])
+
+
+def _constants(r: FitResult, spec: FitResult, c: Curves, level: float, p_infinite: float,
+               scale: float = 60.0) -> dict:
     """Km, Vmax, Vmax/Km (per min) and, with enzyme amounts in a molar unit, kcat and kcat/Km,
     from the fit ``r`` in Km and Vmax and the same fit in Vmax/Km and 1/Km (``spec``).
 
-    Km counts as determined when the interval of 1/Km excludes 0 (the first-order limit,
-    Km infinite); otherwise Km and Vmax are not identifiable (null values, ci_method
-    :data:`NOT_IDENTIFIABLE`) and Km keeps the lower bound 1/(upper bound of 1/Km). Vmax/Km is
-    a fitted parameter of ``spec``, so its SE and interval (asymptotic or profile) are the
-    engine's own, not a delta-method propagation through a ridge."""
+    Km counts as determined unless the curves cannot reject Km infinite (first-order loss of S)
+    at the ``level``: ``p_infinite`` (:func:`km_infinite_p`) at or above 1 - level. Then Km and
+    Vmax are not identifiable (null values, ci_method :data:`NOT_IDENTIFIABLE`) and Km keeps
+    the lower bound 1/(upper bound of 1/Km). Vmax/Km is a fitted parameter of ``spec``, so its
+    SE and interval (asymptotic or profile) are the engine's own, not a delta-method
+    propagation through a ridge."""
     has_e = c.enzyme is not None
     per = f" {c.per_enzyme()}" if has_e else ""
     km, vm = r.params["Km"], r.params["Vmax"]
     vk, inv = spec.params["Vmax/Km"], spec.params["1/Km"]
-    known = bool(np.isfinite(inv.ci_low) and inv.ci_low > 0)
+    known = not p_infinite >= 1 - level             # a NaN p says nothing: Km stands
     if known:
         out = {"Km": Param("Km", km.value, km.se, km.ci_low, km.ci_high, km.ci_method, "uM"),
                "Vmax": Param("Vmax", vm.value * scale, vm.se * scale, vm.ci_low * scale,
@@ -504,7 +521,8 @@ def corrected_constants(c: Curves, decay: FitResult, product_inhibition: bool, *
     molar enzyme amounts), Kp, kd and the enzyme's half-life ln 2 / kd (min; its interval kd's
     mapped, open above when kd's reaches 0), from the fit with first-order inactivation."""
     spec = specificity_fit(c, decay, product_inhibition, decay=True, ci=ci, level=level)
-    out = _constants(decay, spec, c, level)
+    out = _constants(decay, spec, c, level,
+                     km_infinite_p(c, spec, product_inhibition, decay=True))
     if product_inhibition:
         kp = decay.params["Kp"]
         out["Kp"] = Param("Kp", kp.value, kp.se, kp.ci_low, kp.ci_high, kp.ci_method, "uM")

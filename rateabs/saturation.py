@@ -22,7 +22,15 @@ import pandas as pd
 
 from .distributions import normal_quantile, t_two_sided
 from .errors import FitError, InputError, UsageError
-from .fitting import Comparison, FitResult, Param, compare, fit, fmt_pm
+from .fitting import (
+    Comparison,
+    FitResult,
+    Param,
+    compare,
+    f_test,
+    fit,
+    fmt_pm,
+)
 from .io import number_column, pick_column
 from .models import (
     INHIBITION_MODELS,
@@ -229,15 +237,23 @@ def _specificity_params(spec: FitResult, data: SaturationData, enzyme_M) -> dict
     return out
 
 
-def _unresolved(r: FitResult, spec: FitResult | None) -> dict | None:
-    """{"Km": lower bound} when the interval of 1/Km reaches 0 (Km may be infinite: the rates
-    rise in proportion to [S] within the noise), else None."""
+def _unresolved(spec: FitResult | None, x, data: SaturationData, fit_kw: dict) -> dict | None:
+    """{"Km": lower bound} when the rates cannot reject Km infinite (a straight line through
+    the origin, v = (Vmax/Km) S: the same model with 1/Km held at 0) by the F-test at the level
+    of the intervals, the profile-likelihood criterion at 1/Km = 0 (Bates & Watts 1988); else
+    None. The lower bound of Km is 1/(upper bound of 1/Km)."""
     if spec is None or not spec.success:
         return None
-    inv = spec.params["1/Km"]
-    if np.isfinite(inv.ci_low) and inv.ci_low > 0:
+    kw = {k: v for k, v in fit_kw.items() if k not in ("weighting", "units", "ci")}
+    try:
+        line = fit(MM_SPECIFICITY, x, data.v, weighting=fit_kw["weighting"], sd=data.sd,
+                   p0=spec.values(), fix={"1/Km": 0.0}, **kw)
+    except FitError:
         return None
-    return {"Km": 1 / inv.ci_high if np.isfinite(inv.ci_high) and inv.ci_high > 0 else math.nan}
+    if not f_test(line, spec)["p"] >= 1 - fit_kw["level"]:
+        return None
+    hi = spec.params["1/Km"].ci_high
+    return {"Km": 1 / hi if np.isfinite(hi) and hi > 0 else math.nan}
 
 
 def cheng_prusoff(ic50: Param, mode: str, s: float, km: float) -> Param:
@@ -418,7 +434,7 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
     fits, failed = _fit_candidates(candidates, x, data, fix, fit_kw)
     spec = _specificity(fits, x, data, fix, fit_kw)
     unresolved = {}
-    hit = _unresolved(fits["mm"], spec) if spec is not None else None
+    hit = _unresolved(spec, x, data, fit_kw)
     if hit is not None:
         # the curve is determined (its RSS, its F-tests); only Km and Vmax apart are not
         unresolved["mm"] = hit

@@ -402,7 +402,7 @@ def test_saturation_bootstrap_and_inhibition_options_are_used(tables):
     d = doc(*boot, "--resamples", "300")
     assert d["settings"]["resamples"] == 300
     inhib = tables / "inhib.csv"
-    assert _params(doc("saturation", inhib)).keys() <= {"Vmax", "Km", "S50", "n", "Ksi"}
+    assert _params(doc("saturation", inhib)).keys() <= {"Vmax", "Km", "S50", "n", "Ksi", "Vmax/Km"}
     named = _params(doc("saturation", inhib, "--inhibitor", "KB17 conc"))
     assert "Ki" in named
     assert _params(doc("saturation", inhib, "--inhibitor", "KB17 conc", "--inhibitor-unit",
