@@ -620,12 +620,18 @@ def _asymptotic(model, res, values, free, cov, dof, level, success, message) -> 
                         {nm: "asymptotic" for nm in model.params}, notes, success, message)
 
 
-def _profile_into(u: _Uncertainty, found: dict) -> None:
+def _profile_into(u: _Uncertainty, found: dict, limits: dict) -> None:
     for nm, (lo, hi, why) in found.items():
         if why:
             u.notes.append(f"profile interval of {nm}: {why}; asymptotic interval shown")
-        else:
-            u.lows[nm], u.highs[nm], u.method[nm] = lo, hi, "profile"
+            continue
+        u.lows[nm], u.highs[nm], u.method[nm] = lo, hi, "profile"
+        for side, end, limit in (("below", lo, limits[nm][0]), ("above", hi, limits[nm][1])):
+            if end == limit:
+                reach = (f"reaches {nm}'s limit {limit:g}" if np.isfinite(limit) else
+                         f"open {side}")
+                u.notes.append(f"profile interval of {nm}: {reach} (the data do not bound "
+                               f"{nm} {side} at this level)")
 
 
 def _bootstrap_into(u: _Uncertainty, boot: Bootstrap, free, level: float) -> None:
@@ -698,7 +704,8 @@ def fit(model: Model, x, y, *, weighting: str = "none", sd=None, fix: dict | Non
     u = _asymptotic(model, res, values, free, cov, dof, level, success,
                     "converged" if success else str(res.message))
     if ci == "profile" and free and u.success:
-        _profile_into(u, _profile(model, (x, y, w), values, free, level, dof, bounds, u.se))
+        _profile_into(u, _profile(model, (x, y, w), values, free, level, dof, bounds, u.se),
+                      res.limits)
     elif ci == "bootstrap" and free:
         _bootstrap_into(u, bootstrap(model, x, y, w, values, free, fitted, n_boot=n_boot,
                                      resample=resample, seed=seed, bounds=bounds), free, level)
@@ -828,6 +835,36 @@ def _covariance(model, x, w, values, free, scale, richardson: bool = False):
     return cov if np.all(np.isfinite(cov)) and np.all(np.diag(cov) >= 0) else None
 
 
+def past_limits(model: Model, r: FitResult) -> dict:
+    """The free parameters whose asymptotic interval reaches past a finite limit of ``model``
+    (a Ki interval from -0.44 for a Ki that is above 0): {name: the limit crossed}.
+
+    A symmetric interval that crosses a limit misstates a parameter the data bound poorly; the
+    profile interval (``ci="profile"``) keeps to the limit and is open where the data give no
+    bound. Offsets (:attr:`Model.offsets`) are passed by: their zero means nothing."""
+    out = {}
+    for nm, p in r.params.items():
+        if p.fixed or p.ci_method != "asymptotic" or nm in model.offsets:
+            continue
+        lo, hi = model.lower.get(nm, -np.inf), model.upper.get(nm, np.inf)
+        if np.isfinite(lo) and p.ci_low < lo:
+            out[nm] = lo
+        elif np.isfinite(hi) and p.ci_high > hi:
+            out[nm] = hi
+    return out
+
+
+def past_limit_text(p: Param, limit: float, remedy: str) -> str:
+    """The warning for :func:`past_limits`: the interval, the limit it crosses, and ``remedy``
+    (what gives a better interval); a positivity floor (0 < limit < 1e-6) reads as 0."""
+    shown = 0.0 if 0 < limit < 1e-6 else limit
+    side = "below" if p.ci_low < limit else "above"
+    return (f"the asymptotic interval of {p.name}, "
+            f"{fmt_interval(p.ci_low, p.ci_high, se=p.se)} {p.unit}".rstrip()
+            + f", reaches {side} {shown:g}, where {p.name} cannot be: the data bound {p.name} "
+            f"poorly and a symmetric interval misstates it; {remedy}")
+
+
 def line_slope(x, y) -> tuple[float, float]:
     """Least-squares slope of y on x and its SE on n - 2 degrees of freedom (as
     ``scipy.stats.linregress``); x must take two values or more.
@@ -870,7 +907,10 @@ def _profile(model: Model, data: tuple, values: dict, free, level: float, dof: i
     Analysis and Its Applications*, section 6.1; the criterion of lmfit's ``conf_interval``).
     Each side is bracketed by steps that double from one SE and closed by Brent's method; a
     side that does not close within the parameter's bounds (or :data:`PROFILE_REACH_SE` SEs) is
-    open. ``data`` is (x, y, w). Returns {name: (low, high, why-not or None)}."""
+    open: it runs to the parameter's limit (infinite without one), so that a Ki bounded below
+    but not above reads [1.9, inf) rather than the asymptotic [-3.7, 16]. Where neither side
+    closes the profile says nothing and the reason is given instead. ``data`` is (x, y, w).
+    Returns {name: (low, high, why-not or None)}."""
     from scipy.optimize import brentq
 
     names = list(model.params)
@@ -883,16 +923,20 @@ def _profile(model: Model, data: tuple, values: dict, free, level: float, dof: i
         def excess(v, refit=refit):
             return (refit(v) / best - 1) * max(dof, 1) - crit
 
+        lims = _limits(model, bounds, nm)
         try:
-            sides = [_profile_side(excess, values[nm], sign, _step(values[nm], se[nm]),
-                                   _limits(model, bounds, nm), brentq) for sign in (-1, 1)]
+            sides = [_profile_side(excess, values[nm], sign, _step(values[nm], se[nm]), lims,
+                                   brentq) for sign in (-1, 1)]
         except (ValueError, ArithmeticError) as exc:
             out[nm] = (None, None, f"the search failed ({type(exc).__name__})")
             continue
         lo, hi = sides
-        out[nm] = (lo, hi, None if lo is not None and hi is not None else
-                   "the profile does not close at this level (the data do not bound the "
-                   "parameter)")
+        if lo is None and hi is None:
+            out[nm] = (None, None, "the profile does not close at this level on either side "
+                       "(the data do not bound the parameter)")
+            continue
+        # one side closes: the other runs to the parameter's limit, or stays open
+        out[nm] = (lims[0] if lo is None else lo, lims[1] if hi is None else hi, None)
     return out
 
 

@@ -23,7 +23,17 @@ import numpy as np
 from scipy import special
 
 from .errors import AnalysisError, UsageError
-from .fitting import FitResult, Param, f_test, fit, fmt_pm, line_slope, p_is
+from .fitting import (
+    FitResult,
+    Param,
+    f_test,
+    fit,
+    fmt_pm,
+    line_slope,
+    p_is,
+    past_limit_text,
+    past_limits,
+)
 from .models import Model, time_origin
 from .units import concentration_factor
 
@@ -311,7 +321,27 @@ def analyse(c: Curves, *, product_inhibition: bool = False, ci: str = "asymptoti
                                       sel is not None))
     if corrected:
         warnings.append(_unstable_warning(corrected))
-    return ProgressAnalysis(r, in_unit(params, unit), c, sel, warnings, conv, decay, corrected)
+    shown = in_unit(params, unit)
+    warnings += _limit_warnings(model, r, shown)
+    warnings += _limit_warnings(_model(n, product_inhibition, False, c.per_enzyme() if has_e
+                                       else "", specificity=True), spec, shown)
+    if corrected:
+        warnings += _limit_warnings(_model(n, product_inhibition, True, c.per_enzyme()), decay,
+                                    corrected, "corrected for inactivation: ")
+    return ProgressAnalysis(r, shown, c, sel, warnings, conv, decay, corrected)
+
+
+#: What gives a better interval than an asymptotic one that crosses a parameter's limit.
+PROFILE_REMEDY = ("give --ci profile for an interval that keeps to the limit (open where the "
+                  "data give no bound)")
+
+
+def _limit_warnings(model: Model, r: FitResult, shown: dict, label: str = "") -> list[str]:
+    """An asymptotic interval of Km, Vmax, Kp or kd reaching below 0, said with the interval
+    as the table shows it (its unit) and what to do (:func:`rateabs.fitting.past_limits`)."""
+    return [label + past_limit_text(shown[nm], limit, PROFILE_REMEDY)
+            for nm, limit in past_limits(model, r).items()
+            if nm in shown and shown[nm].ci_method == "asymptotic"]
 
 
 #: Below this p of the runs test the residuals of a fit count as not random.

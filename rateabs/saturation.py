@@ -30,6 +30,8 @@ from .fitting import (
     f_test,
     fit,
     fmt_pm,
+    past_limit_text,
+    past_limits,
 )
 from .io import number_column, pick_column
 from .models import (
@@ -44,6 +46,10 @@ from .options import MODELS
 from .units import concentration_factor, rate_unit_factors, same_unit, unit_from_header
 
 MODEL_CHOICES = MODELS          # the --model choices (rateabs.options)
+
+#: What gives a better interval than an asymptotic one that crosses a parameter's limit.
+PROFILE_REMEDY = ("give --ci profile for an interval that keeps to the limit (open where the "
+                  "data give no bound)")
 
 _CONC = re.compile(r"^(s|\[s\]|s0|substrate|conc|concentration|x)([\s_(\[]|$)", re.I)
 _RATE = re.compile(r"^(v|v0|vi|rate|velocity|activity|initial[\s_]rate|y)([\s_(\[]|$)", re.I)
@@ -447,8 +453,13 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
     if comp is None and not fits[chosen].success:
         warn.append(f"{chosen}: {fits[chosen].message}")
     warn += [f"{chosen}: {note}" for note in fits[chosen].notes]
+    if chosen not in unresolved:                  # else Km and Vmax are not shown as numbers
+        warn += [f"{chosen}: " + past_limit_text(fits[chosen].params[nm], limit, PROFILE_REMEDY)
+                 for nm, limit in past_limits(SATURATION[chosen], fits[chosen]).items()]
     derived, more = _derived(fits, chosen, data, level, enzyme_M,
                              {"mode": mode, "substrate": substrate, "km": km}, spec)
+    if chosen == "mm" and spec is not None and "Vmax/Km" in past_limits(MM_SPECIFICITY, spec):
+        more.append("mm: " + past_limit_text(derived["mm"]["Vmax/Km"], 0.0, PROFILE_REMEDY))
     cross = {}
     if chosen in unresolved:
         more.append(_first_order_warning(data, unresolved[chosen], derived[chosen]["Vmax/Km"],

@@ -303,3 +303,27 @@ def test_noisy_but_saturating_rates_keep_their_km(tmp_path):
     km = doc["results"][0]["params"]["Km"]
     assert km["value"] is not None and km["ci_method"] == "asymptotic"
     assert not any("only Vmax/Km" in w for w in doc["warnings"])
+
+
+def test_asymptotic_interval_below_zero_is_said_and_profile_keeps_to_zero(tmp_path):
+    """A weak competitive inhibitor: the asymptotic interval of Ki ran below 0 ([-3.7, 16.3])
+    without a word. The command must say so and point to --ci profile, whose interval keeps
+    above 0 and is open above (the data give no upper bound; it fell back to the asymptotic
+    interval before).
+
+    Truth: competitive inhibition by solve_ivp (mechanism_rates), Vmax 10 uM/min, Km 50 uM,
+    Ki 5 uM, [I] 0, 0.5, 1 uM; 5 % noise, seed 2."""
+    s = np.tile([10, 20, 50, 100, 200, 500.0], 3)
+    i = np.repeat([0, 0.5, 1.0], 6)
+    v = mechanism_rates(s, i, V=10.0, Km=50.0, Kic=5.0)
+    v = v * (1 + np.random.default_rng(2).normal(0, 0.05, s.size))
+    f = _write(tmp_path / "weak.csv", "substrate_uM,inhibitor_uM,rate_uM_per_min", s, i, v)
+    doc = _saturation_json(f, "--model", "competitive")
+    ki = doc["results"][0]["params"]["Ki"]
+    assert ki["ci_low"] < 0 < 5 < ki["ci_high"]
+    said = [w for w in doc["warnings"] if "interval of Ki" in w]
+    assert len(said) == 1 and "below 0" in said[0] and "--ci profile" in said[0]
+    prof = _saturation_json(f, "--model", "competitive", "--ci", "profile")
+    ki = prof["results"][0]["params"]["Ki"]
+    assert ki["ci_method"] == "profile" and 0 < ki["ci_low"] < 5 and ki["ci_high"] is None
+    assert not any("interval of Ki" in w and "below 0" in w for w in prof["warnings"])

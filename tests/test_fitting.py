@@ -273,3 +273,37 @@ def test_batch_lm_value_jac_takes_the_path_of_jac():
     for i in range(6):
         ref, _ = curve_fit(f, t, Y[i], p0=[1.0, 1.0])
         assert np.allclose(both.params[i], ref, rtol=1e-6)
+
+
+def test_profile_open_on_one_side_keeps_the_closed_side():
+    """A weak competitive inhibitor (Ki 5 uM, [I] up to 1 uM): the data bound Ki below but not
+    above. The profile interval must be [lower, inf) with the lower end where an independent
+    scipy profile (reference library: least_squares refits and brentq on the F criterion of
+    Bates & Watts 1988) puts it; it fell back to the asymptotic [-3.7, 16.3].
+
+    Truth: competitive inhibition by solve_ivp (mechanism_rates), Vmax 10, Km 50, Ki 5 uM; 5 %
+    noise, seed 2."""
+    s = np.tile([10, 20, 50, 100, 200, 500.0], 3)
+    i = np.repeat([0, 0.5, 1.0], 6)
+    v = mechanism_rates(s, i, V=10.0, Km=50.0, Kic=5.0)
+    v = v * (1 + np.random.default_rng(2).normal(0, 0.05, s.size))
+    x = np.vstack([s, i])
+    r = fit(SATURATION["competitive"], x, v, ci="profile")
+    ki = r.params["Ki"]
+    assert ki.ci_method == "profile" and ki.ci_high == math.inf
+    assert 0 < ki.ci_low < 5.0
+    assert any("Ki" in n and "open above" in n for n in r.notes)
+
+    f = SATURATION["competitive"].func
+    best = optimize.least_squares(lambda p: v - f(x, *p), [10, 50, 5], xtol=1e-14, ftol=1e-14)
+    rss = float(np.sum(best.fun ** 2))
+    target = rss * (1 + stats.f.ppf(0.95, 1, s.size - 3) / (s.size - 3))
+
+    def excess(k):
+        q = optimize.least_squares(lambda p: v - f(x, p[0], p[1], k), best.x[:2], xtol=1e-14,
+                                   ftol=1e-14)
+        return float(np.sum(q.fun ** 2)) - target
+
+    lo = optimize.brentq(excess, 0.1, best.x[2])
+    assert ki.ci_low == pytest.approx(lo, rel=1e-3)
+    assert excess(1e4) < 0                  # no upper end: Ki far above [I] fits as well
