@@ -369,7 +369,7 @@ def _derived(fits: dict, chosen: str, data: SaturationData, level: float, enzyme
         if enzyme_M is not None and name != "ic50":
             kc, why = _kcat(r, enzyme_M, data.rate_unit, data.conc_unit, level)
             d.update(kc)
-            if why and name == chosen:
+            if why and name == chosen and data.rate_unit:   # no unit at all: said already
                 warn.append(why)
             if name == "mm" and spec is not None:     # kcat/Km from the fitted Vmax/Km
                 d.update(_specificity_params(spec, data, enzyme_M))
@@ -433,6 +433,7 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
         warn = [f"{data.dropped} row(s) without a rate, a concentration or an inhibitor level "
                 "were left out"] + warn
     _check_fix_names(fix, candidates)
+    warn += _unit_warnings(data, model)
     if np.all(data.v == 0):
         raise FitError("every rate is zero", "check the rate column and the blank subtraction")
     fit_kw = {"weighting": weighting, "ci": ci, "level": level, "n_boot": n_boot,
@@ -468,6 +469,28 @@ def analyse(data: SaturationData, *, model: str = "auto", ci: str = "asymptotic"
         cross, checks = _design_checks(data, fits[chosen], chosen)
         more += checks
     return SaturationAnalysis(fits, comp, chosen, derived, cross, warn + more, data, unresolved)
+
+
+def _unit_warnings(data: SaturationData, model: str) -> list[str]:
+    """A column whose unit neither its header nor an option states is said, with what it
+    leaves unitless: the numbers are fitted as they stand, but Km, Vmax and the rest carry no
+    unit and kcat cannot be formed."""
+    cols = data.columns
+    out = []
+    if data.s is not None and not data.conc_unit and model != "ic50":
+        out.append(f"the concentration column {cols.get('conc')!r} states no unit and "
+                   "--conc-unit was not given: Km (S50, Ksi) is in the column's own unit, shown "
+                   "without one; name it in the header ('substrate (uM)') or give --conc-unit")
+    if not data.rate_unit:
+        out.append(f"the rate column {cols.get('rate')!r} states no unit and --rate-unit was "
+                   "not given: Vmax is in the column's own unit, shown without one, and kcat "
+                   "cannot be formed; name it in the header ('rate (uM/min)') or give "
+                   "--rate-unit")
+    if data.i is not None and not data.inhib_unit:
+        out.append(f"the inhibitor column {cols.get('inhibitor')!r} states no unit and "
+                   "--inhibitor-unit was not given: Ki (IC50) is in the column's own unit, shown "
+                   "without one; name it in the header or give --inhibitor-unit")
+    return out
 
 
 def _first_order_warning(data: SaturationData, hit: dict, vk: Param, level: float) -> str:

@@ -152,3 +152,20 @@ def test_units_follow_s0_and_enzyme_warning(tmp_path):
                                   "--s0-column", "S0 (uM)", "--chromophore", "pnp", "--format",
                                   "json"])
     assert any("--selwyn" in w for w in json.loads(r.stdout)["warnings"])
+
+
+def test_columns_without_a_unit_are_said(tmp_path):
+    # an S0 column without a unit is read as uM, an enzyme column without a molar unit gives no
+    # kcat: both must be said (they were silent). Same sample set (solve_ivp, Km 60 uM), the
+    # units taken off the headers
+    f = tmp_path / "bare.csv"
+    f.write_text((SAMPLES / "progress_kbap_405nm.csv").read_text()
+                 .replace("S0 (uM)", "S0").replace("enzyme (nM)", "enzyme"))
+    r = CliRunner().invoke(main, ["progress", str(f), "--s0-column", "S0", "--chromophore", "pnp",
+                                  "--selwyn", "enzyme", "--format", "json"])
+    doc = json.loads(r.stdout)
+    assert any("'S0' states no unit" in w and "uM" in w for w in doc["warnings"])
+    assert any("'enzyme' states no unit" in w and "kcat" in w for w in doc["warnings"])
+    assert "kcat" not in doc["results"][0]["params"]
+    assert doc["results"][0]["params"]["Km"]["ci_low"] < 60 < doc["results"][0]["params"]["Km"][
+        "ci_high"]

@@ -282,3 +282,22 @@ def test_puromycin_vmax_over_km_against_scipy(tmp_path):
     assert vk["value"] == pytest.approx(212.68 / 0.06412, rel=1e-3)
     assert vk["se"] == pytest.approx(np.sqrt(cov[0, 0]), rel=1e-4)
     assert vk["unit"] == "counts/min^2 per ppm"
+
+
+def test_columns_without_a_unit_are_said(tmp_path):
+    # headers 'S' and 'v' state no unit and no option gives one: the fit runs on the numbers as
+    # they stand, but Km and Vmax print without a unit, which must be said (only the refused
+    # kcat was). Michaelis-Menten rates (Vmax 10, Km 50) by hand calculation, common practice
+    f = tmp_path / "bare.csv"
+    f.write_text("S,v\n" + "".join(f"{a:g},{10 * a / (50 + a):.4f}\n"
+                                   for a in (5, 10, 20, 50, 100, 200, 400)))
+    r = CliRunner().invoke(main, ["saturation", str(f), "--model", "mm", "--enzyme", "1 nM",
+                                  "--format", "json"])
+    warnings = json.loads(r.stdout)["warnings"]
+    assert any("'S' states no unit" in w and "--conc-unit" in w for w in warnings)
+    assert any("'v' states no unit" in w and "--rate-unit" in w for w in warnings)
+    assert sum("kcat" in w for w in warnings) == 1          # said once, not twice
+    named = tmp_path / "named.csv"
+    named.write_text(f.read_text().replace("S,v", "S (uM),v (uM/min)"))
+    r = CliRunner().invoke(main, ["saturation", str(named), "--model", "mm", "--format", "json"])
+    assert not any("states no unit" in w for w in json.loads(r.stdout)["warnings"])

@@ -101,6 +101,30 @@ def _enzyme_unit(o: ProgressOptions) -> str:
     return unit_from_header(o.selwyn).replace("µ", "u") if o.selwyn else ""
 
 
+def _unit_warnings(o: ProgressOptions, curves) -> list[str]:
+    """A unit that neither a header nor an option states, said with what was assumed or left
+    out: an S0 column without one is read as uM; an enzyme column without a molar unit gives
+    Vmax per enzyme amount and no kcat."""
+    from ..units import concentration_factor, unit_from_header
+
+    out = []
+    if o.s0 is None and o.s0_column and not unit_from_header(o.s0_column):
+        out.append(f"the S0 column {o.s0_column!r} states no unit: its numbers are taken as uM; "
+                   "name the unit in the header ('S0 (mM)') if they are not")
+    if curves.enzyme is not None:
+        try:
+            molar = bool(curves.enzyme_unit) and concentration_factor(curves.enzyme_unit) > 0
+        except UsageError:
+            molar = False
+        if not molar:
+            said = (f"states {curves.enzyme_unit}, not a molar concentration"
+                    if curves.enzyme_unit else "states no unit")
+            out.append(f"the enzyme column {o.selwyn!r} {said}: Vmax is per "
+                       f"{curves.enzyme_unit or 'enzyme amount'} and kcat, kcat/Km are not "
+                       "given; name a molar unit in the header ('enzyme (nM)') for them")
+    return out
+
+
 def _enzyme_warning(meta, names) -> list[str]:
     """One Vmax fitted to curves whose enzyme amounts differ is said out loud."""
     return [f"the curves differ in {col!r} but one Vmax was fitted to all; give --selwyn {col!r} "
@@ -216,7 +240,7 @@ def compute_progress(o: ProgressOptions) -> View:
     curves, meta, info = _curves(o)
     a = analyse(curves, product_inhibition=o.product_inhibition, ci=o.ci, level=o.level,
                 selwyn=curves.enzyme is not None, unit=_unit(o))
-    a.warnings[:0] = list(info.get("warnings", []))               # the reader's first
+    a.warnings[:0] = list(info.get("warnings", [])) + _unit_warnings(o, curves)  # reader's first
     if curves.enzyme is None:
         a.warnings.extend(_enzyme_warning(meta, curves.names))
     res = _result(a, curves)

@@ -129,8 +129,8 @@ def _text(a, data, results, level: float) -> str:
         table += "\nevidence\n" + a.comparison.report() + "\n"
     if a.cross_check:
         cc = a.cross_check
-        table += (f"\ncross-check, {cc['method']}: Vmax = {cc['Vmax']:.4g} {data.rate_unit}, "
-                  f"Km = {cc['Km']:.4g} {data.conc_unit}\n")
+        table += (f"\ncross-check, {cc['method']}: Vmax = {cc['Vmax']:.4g} {data.rate_unit}"
+                  .rstrip() + f", Km = {cc['Km']:.4g} {data.conc_unit}".rstrip() + "\n")
     return table
 
 
