@@ -284,6 +284,31 @@ def test_puromycin_vmax_over_km_against_scipy(tmp_path):
     assert vk["unit"] == "counts/min^2 per ppm"
 
 
+def test_lineweaver_burk_axis_ends_with_the_data_and_the_line(tmp_path, monkeypatch):
+    # the 1/v axis ran to about twice the highest point (the line was drawn past the panel's
+    # right edge, to 1/[S] = 2/[S]min, and the axis followed it); it must end near the highest
+    # point or the line's end at the edge, by hand calculation 1/v = (Km x + 1)/Vmax at
+    # x = 1.1/[S]min. Truth: Michaelis-Menten by solve_ivp (mechanism_rates), Vmax 10, Km 50,
+    # 1 % noise, seed 9
+    import rateabs.plots.saturation as ps
+
+    s = np.array([5, 10, 20, 50, 100, 200, 400.0])
+    v = mechanism_rates(s, np.zeros(7), V=10.0, Km=50.0)
+    v = v * (1 + np.random.default_rng(9).normal(0, 0.01, 7))
+    a = analyse(_data(s, v), model="mm")
+    seen = {}
+    monkeypatch.setattr(ps, "save", lambda fig, path, tight=True: seen.setdefault("fig", fig))
+    ps.linearised(a, tmp_path / "lin.png")
+    lb, eh, hw = seen["fig"].axes[:3]
+    vm, km = a.best.value("Vmax"), a.best.value("Km")
+    x_end = 1.1 / s.min()
+    highest = max(np.max(1 / v), (km * x_end + 1) / vm)
+    assert lb.get_xlim() == pytest.approx((0, x_end))
+    assert highest <= lb.get_ylim()[1] <= 1.1 * highest
+    # Eadie-Hofstee: the line meets the v axis at Vmax, inside the panel
+    assert eh.get_ylim()[1] >= vm
+
+
 def test_columns_without_a_unit_are_said(tmp_path):
     # headers 'S' and 'v' state no unit and no option gives one: the fit runs on the numbers as
     # they stand, but Km and Vmax print without a unit, which must be said (only the refused

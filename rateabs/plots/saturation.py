@@ -108,36 +108,48 @@ def linearised(analysis, path):
     """Lineweaver–Burk, Eadie–Hofstee and Hanes–Woolf views, with the nonlinear fit carried on.
 
     For inspection only: the estimates come from the nonlinear fit, never from these lines.
+    Each panel spans the data (x from 0, where the lines meet their intercept on the y axis:
+    1/Vmax, Vmax, Km/Vmax for Michaelis–Menten); the lines are drawn over that span only, so
+    no axis runs on for a part of a line that is not shown.
     """
     d = analysis.data
     best = analysis.best
     vals = list(best.values().values())
     xu, yu = unit_text(d.conc_unit or "conc."), unit_text(d.rate_unit or "rate")
+    pos = (d.s > 0) & (d.v > 0)
+    s_min = float(np.min(d.s[pos])) if pos.any() else 1.0
+    s_max = float(np.max(d.s[pos])) if pos.any() else 1.0
+    spans = [1.1 / s_min, 1.1 * float(np.max(d.v[pos] / d.s[pos])) if pos.any() else 1.0,
+             1.1 * s_max]
+    # [S] along each line: 1/[S] over (0, span], v/[S] from near [S] = 0 to far above the
+    # data (cut at the span below), [S] over (0, span]
+    grids = [1 / np.linspace(spans[0] * 1e-3, spans[0], 300),
+             np.geomspace(s_min * 1e-3, s_max * 1e3, 600),
+             np.linspace(spans[2] * 1e-3, spans[2], 300)]
+    tops = [0.0, 0.0, 0.0]
     with house_style() as plt:
         fig, axes = fixed_axes(plt, (11.5, 4.2), 1, 3, margins=(0.75, 0.2, 0.55, 0.95),
                                wspace=0.32)
-        xc = _curve_x(d.s, log=True)
         for k, (lv, sel) in enumerate(_level_groups(d)):
             col = PALETTE[k % len(PALETTE)]
             s, v = d.s[sel], d.v[sel]
             ok = (s > 0) & (v > 0)
-            vc = best.func(_model_x(best, xc, lv), *vals)
             lab = None if lv is None else f"[I] = {lv:g} {unit_text(d.inhib_unit or '')}"
-            axes[0].plot(1 / s[ok], 1 / v[ok], "o", color=col, label=lab)
-            axes[0].plot(1 / xc, 1 / vc, color=col, lw=1.2)
-            axes[1].plot(v[ok] / s[ok], v[ok], "o", color=col)
-            axes[1].plot(vc / xc, vc, color=col, lw=1.2)
-            axes[2].plot(s[ok], s[ok] / v[ok], "o", color=col)
-            axes[2].plot(xc, xc / vc, color=col, lw=1.2)
+            points = [(1 / s[ok], 1 / v[ok]), (v[ok] / s[ok], v[ok]), (s[ok], s[ok] / v[ok])]
+            for j, (ax, (xd, yd), sc) in enumerate(zip(axes, points, grids, strict=True)):
+                with np.errstate(all="ignore"):
+                    vc = best.func(_model_x(best, sc, lv), *vals)
+                    xl, yl = [(1 / sc, 1 / vc), (vc / sc, vc), (sc, sc / vc)][j]
+                seen = np.isfinite(xl) & np.isfinite(yl) & (xl >= 0) & (xl <= spans[j])
+                ax.plot(xd, yd, "o", color=col, label=lab if j == 0 else None)
+                ax.plot(xl[seen], yl[seen], color=col, lw=1.2)
+                tops[j] = max([tops[j], *yd[xd <= spans[j]], *yl[seen]])
         axes[0].set(xlabel=f"1/[S] (1/{xu})", ylabel=f"1/v (1/({yu}))", title="Lineweaver–Burk")
         axes[1].set(xlabel=f"v/[S] (({yu})/{xu})", ylabel=f"v ({yu})", title="Eadie–Hofstee")
         axes[2].set(xlabel=f"[S] ({xu})", ylabel=f"[S]/v ({xu}/({yu}))", title="Hanes–Woolf")
-        s_max = np.max(d.s[d.s > 0]) if np.any(d.s > 0) else 1
-        axes[0].set_xlim(0, 1.1 / np.min(d.s[d.s > 0]) if np.any(d.s > 0) else 1)
-        axes[2].set_xlim(0, s_max * 1.1)
-        axes[0].set_ylim(bottom=0)
-        axes[1].set_xlim(left=0)
-        axes[2].set_ylim(bottom=0)
+        for ax, span, top in zip(axes, spans, tops, strict=True):
+            ax.set_xlim(0, span)
+            ax.set_ylim(0, top * 1.05 if top > 0 else 1)
         if d.i is not None:
             fig.legend(*axes[0].get_legend_handles_labels(), loc="upper left", ncol=8,
                        bbox_to_anchor=(0.75 / 11.5, 1 - 0.28 / 4.2), borderaxespad=0,
