@@ -130,6 +130,15 @@ def _activity_text(r) -> str:
             " (one well, its SE)")
 
 
+def _corrected_words(a) -> str:
+    """The constants at time zero of an enzyme that decays, where the run corrected them."""
+    c = a.corrected
+    if not c or "Km" not in c or "enzyme half-life" not in c:
+        return ""
+    return (f", corrected to time zero: Km = {_pm(c['Km'])}, Vmax = {_pm(c['Vmax'])}, enzyme "
+            f"half-life {_pm(c['enzyme half-life'])}")
+
+
 def _key_lines(v: dict) -> dict:
     """The headline figure of each step that has one, for the terminal and the index page."""
     lines = {}
@@ -153,7 +162,8 @@ def _key_lines(v: dict) -> dict:
         lines["4_progress"] = (
             f"  progress curves: Km = {_pm(pp['Km'])}, Vmax = {_pm(pp['Vmax'])}; Selwyn's test: "
             f"{_selwyn_words(v['4_progress'].analysis.selwyn)}; on the decaying enzyme: "
-            f"{_selwyn_words(v['5_progress_unstable'].analysis.selwyn)}")
+            f"{_selwyn_words(v['5_progress_unstable'].analysis.selwyn)}"
+            + _corrected_words(v["5_progress_unstable"].analysis))
     lines.update(_process_lines(v))
     if "9_class" in v:
         scores = sorted(r["score"] for r in v["9_class"].analysis)
