@@ -294,13 +294,17 @@ def rate_parameter(r: FitResult, order: str, level: float) -> Param:
     t, w = r.x, r.weights
     cols = {"A0": lambda f: f, "Ainf": lambda f: 1 - f, "drift": lambda f: t}
     free = [nm for nm in cols if nm in r.params and not r.params[nm].fixed]
-    y = r.y - sum(r.params[nm].value * cols[nm](shape(theta, t)) for nm in cols
-                  if nm in r.params and r.params[nm].fixed)
+    held = {nm: r.params[nm].value for nm in cols if nm in r.params and r.params[nm].fixed}
     if not free or not theta > 0:
         return Param(name, theta, se, math.nan, math.nan, "not identifiable", "1/s")
+
+    def offset(th):                # the held parameters' part, which moves with the rate
+        f = shape(th, t)
+        return sum((v * cols[nm](f) for nm, v in held.items()), np.zeros_like(t))
+
     lo, hi = separable_profile(lambda th: np.column_stack([cols[nm](shape(th, t))
                                                            for nm in free]),
-                               y, theta, r.dof, level, w)
+                               r.y, theta, r.dof, level, w, offset=offset)
     return Param(name, theta, se, lo, hi, "profile", "1/s")
 
 

@@ -1004,11 +1004,13 @@ def _profile_side(excess, value: float, sign: int, step: float, lims: tuple, bre
 
 
 def separable_profile(basis, y, theta_hat: float, dof: int, level: float = 0.95, w=None,
-                      span: float = 1e8) -> tuple[float, float]:
+                      span: float = 1e8, offset=None) -> tuple[float, float]:
     """Profile-likelihood interval of the one nonlinear parameter ``theta`` (> 0) of a model
-    that is linear in all its other parameters, y = B(theta) c.
+    that is linear in all its other parameters, y = B(theta) c (+ offset(theta)).
 
-    ``basis(theta)`` gives the design matrix B (n x m). At each theta the linear parameters are
+    ``basis(theta)`` gives the design matrix B (n x m); ``offset(theta)``, where given, the part
+    of the model that no free linear parameter scales (a fixed parameter's term), which moves
+    with theta and is taken off y at each theta. At each theta the linear parameters are
     projected out by least squares (variable projection, Golub & Pereyra 1973, SIAM J. Numer.
     Anal. 10:413), so the profile is exact and costs one small least-squares solve per point.
     The interval holds the theta with (RSS(theta)/RSS_min - 1) dof <= F(level; 1, dof), the
@@ -1022,9 +1024,10 @@ def separable_profile(basis, y, theta_hat: float, dof: int, level: float = 0.95,
     w = np.ones_like(y) if w is None else np.asarray(w, dtype=float)
 
     def rss(theta):
+        yt = y if offset is None else y - offset(theta)
         B = basis(theta) * w[:, None]
-        c = np.linalg.lstsq(B, y * w, rcond=None)[0]
-        r = y * w - B @ c
+        c = np.linalg.lstsq(B, yt * w, rcond=None)[0]
+        r = yt * w - B @ c
         return float(r @ r)
 
     best = rss(theta_hat)

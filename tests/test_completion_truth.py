@@ -251,6 +251,34 @@ def test_separable_profile_equals_lmfit_profile():
     assert lo == pytest.approx(k.ci_low, rel=1e-4) and hi == pytest.approx(k.ci_high, rel=1e-4)
 
 
+def test_separable_profile_with_a_held_end_point_equals_a_scipy_profile():
+    """With Ainf held (--fix Ainf, or the end point an expected end absorbance gives) the
+    forecast's profile interval of k took the held term at the fitted k only, so the profile
+    was off the true one (0.00039932 against 0.00039925 1/s at the lower end). Reference: the
+    profile computed here with scipy alone (brentq on the F criterion, A0 by least squares at
+    each k; Bates & Watts 1988)."""
+    from scipy.optimize import brentq
+
+    from rateabs.completion import rate_parameter
+
+    t = np.arange(0, 2700 + 1, 30.0)
+    y = 0.06 + np.exp(-4e-4 * t) + np.random.default_rng(1).normal(0, 0.003, t.size)
+
+    def rss(k):                         # A = 0.06 + (A0 - 0.06) exp(-k t), A0 by least squares
+        f = np.exp(-k * t)
+        c = np.dot(f, y - 0.06) / np.dot(f, f)
+        r = y - 0.06 - c * f
+        return float(r @ r)
+
+    r = fit(RATE_LAWS["1"], t, y, fix={"Ainf": 0.06})
+    k_hat, dof = r.value("k"), r.dof
+    crit = stats.f.ppf(0.95, 1, dof)
+    excess = lambda k: (rss(k) / rss(k_hat) - 1) * dof - crit          # noqa: E731
+    lo, hi = brentq(excess, k_hat / 2, k_hat), brentq(excess, k_hat, 2 * k_hat)
+    p = rate_parameter(r, "1", 0.95)
+    assert p.ci_low == pytest.approx(lo, rel=1e-7) and p.ci_high == pytest.approx(hi, rel=1e-7)
+
+
 def test_no_reversed_or_bare_impossible_numbers():
     # a zero-order fall: |k| interval and half-life interval in order, never [2260, 2244]
     k = Param("k", -2e-4, 1e-5, -2.2e-4, -1.8e-4, "asymptotic", "AU/s")
