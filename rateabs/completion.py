@@ -47,7 +47,15 @@ import numpy as np
 from .distributions import t_two_sided
 from .errors import UsageError
 from .fitting import FitResult, Param, fd_step, fmt_pm, separable_profile
-from .ratelaws import Photometry, RateLawResult, fit_trace, identifiable, map_param, shown
+from .ratelaws import (
+    Photometry,
+    RateLawResult,
+    fit_trace,
+    identifiable,
+    map_param,
+    shown,
+    tied_to_charge,
+)
 
 CAUTION = ("A predicted end point is no process-safety assessment: runaway, sampling and mixing "
            "hazards follow the site's own rules.")
@@ -289,12 +297,20 @@ def rate_parameter(r: FitResult, order: str, level: float) -> Param:
     name = "k" if order == "1" else "q"
     if r.params["k"].fixed:
         return Param(name, theta, 0.0, theta, theta, "fixed", "1/s", fixed=True)
-    se = delta_se(r, lambda p: p["k"] if order == "1" else p["k"] * abs(p["A0"] - p["Ainf"]))
     shape = _shape(order)
     t, w = r.x, r.weights
     cols = {"A0": lambda f: f, "Ainf": lambda f: 1 - f, "drift": lambda f: t}
-    free = [nm for nm in cols if nm in r.params and not r.params[nm].fixed]
-    held = {nm: r.params[nm].value for nm in cols if nm in r.params and r.params[nm].fixed}
+    if tied_to_charge(r) and not r.params["Ainf"].fixed:
+        # Ainf = A0 + d: A = A0 + d (1 - f), linear in A0 with the charge's part d (1 - f)
+        d = r.value("Ainf") - r.value("A0")
+        se = delta_se(r, lambda p: p["k"] if order == "1" else p["k"] * abs(d))
+        cols = {"A0": lambda f: np.ones_like(f), "Ainf": lambda f: d * (1 - f)}
+        free, held = ["A0"], {"Ainf": 1.0}
+    else:
+        se = delta_se(r, lambda p: p["k"] if order == "1" else
+                      p["k"] * abs(p["A0"] - p["Ainf"]))
+        free = [nm for nm in cols if nm in r.params and not r.params[nm].fixed]
+        held = {nm: r.params[nm].value for nm in cols if nm in r.params and r.params[nm].fixed}
     if not free or not theta > 0:
         return Param(name, theta, se, math.nan, math.nan, "not identifiable", "1/s")
 
@@ -338,11 +354,12 @@ def forecast_curve(r: FitResult, order: str, target: float, t_now: float, level:
     baseline drift the readings cannot show (:func:`drift_shift`)."""
     rate = rate_parameter(r, order, level)
     shift = None
-    if allow_drift and "drift" not in r.params and math.isfinite(rate.ci_low):
+    tied = tied_to_charge(r)
+    if allow_drift and not tied and "drift" not in r.params and math.isfinite(rate.ci_low):
         shift = drift_shift(r, order)
         rate = widened(rate, shift, r.dof, level)
     conv = map_param(rate, lambda th: 1 - float(_shape(order)(th, t_now)), "conversion", FRACTION)
-    ratio = _ratio_to_charge(r, charge) if charge else None
+    ratio = _ratio_to_charge(r, charge) if charge and not tied else None
     fc = Forecast(r.model, order, 0.0, rate, conv, None, end_vs_charge=ratio)
     if not identifiable(r.params["k"]) or not math.isfinite(rate.ci_low):
         fc.why = "the rate constant is not identifiable from these data"
@@ -449,7 +466,7 @@ def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "aut
         raise UsageError("completion forecasts need order 0, 1, 2 or auto",
                          "use --order auto, 0, 1 or 2")
     law = fit_trace(t, y, name, order=order, photometry=photometry, fix=fix, ci="asymptotic",
-                    level=level, drift=drift)
+                    level=level, drift=drift, end_absorbance=end_absorbance)
     t_now = float(np.max(law.fit.x))             # counted from the time origin
     rising = law.fit.value("A0") < law.fit.predict(t_now)
     charge = charge_of(photometry, end_absorbance, bool(rising))
@@ -476,14 +493,15 @@ def _forecasts(law: RateLawResult, target: float, t_now: float, level: float,
     cannot forecast (not identifiable, typically at low conversion, where a drift and the
     reaction look alike) the forecast assumes a stable baseline and is flagged
     ``drift_not_told_apart``."""
-    order_weight = {row["model"]: row["weight"] for row in law.comparison.rows} if (
-        law.comparison) else {law.model.split("+")[0]: 1.0}
+    order_weight = {row["model"].split("+")[0]: row["weight"] for row in
+                    law.comparison.rows} if law.comparison else {law.model.split("+")[0]: 1.0}
     forecasts, notes, flags = [], [], []
     for m in law.plausible:
         o = m.split("+")[0]
         pair = [law.fits[m]] + ([law.fits[x] for x in (o, f"{o}+drift") if x != m
                                  and x in law.fits and law.fits[x].success]
-                                if drift == "auto" and o != "0" else [])
+                                if drift == "auto" and o != "0"
+                                and not tied_to_charge(law.fits[m]) else [])
         rel = _relative_weights(pair)
         made = {}
         for r in sorted(pair, key=lambda r: "drift" not in r.params):   # the drift model first

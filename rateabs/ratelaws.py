@@ -14,7 +14,7 @@ t½ = 1 / (k [A]0) (any physical chemistry text, e.g. Atkins).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import partial
 
 import numpy as np
@@ -197,6 +197,87 @@ def with_drift(model: Model) -> Model:
                  model.offsets + ("drift",))
 
 
+#: Suffix of an order fitted with its end point held where the charge puts it (``1+charge``).
+AT_CHARGE = "+charge"
+
+
+def known_end(ph: Photometry, end_absorbance: float | None, rising: bool) -> tuple | None:
+    """The end point the charge gives: ("change", d), Ainf = A0 + d with d = |Δε| b c0 signed
+    the way the trace moves, or ("level", E), Ainf = E for an expected end absorbance; None
+    without the charge."""
+    if end_absorbance is not None:
+        return ("level", float(end_absorbance))
+    deps = ph.delta_eps(rising)
+    if ph.c0_M is None or not deps:
+        return None
+    d = deps * ph.pathlength_cm * ph.c0_M
+    return ("change", d if rising else -d)
+
+
+def at_charge(order: str, end: tuple) -> Model:
+    """Order 1 or 2 with its end absorbance fixed by the charge (:func:`known_end`): free A0 and
+    k only. A trace too straight to show its own end point leaves Ainf and k undetermined
+    together; with the end known the curvature left to fit is k's alone."""
+    base = RATE_LAWS[order]
+    kind, v = end
+
+    def func(t, A0, k):
+        return base.func(t, A0, A0 + v if kind == "change" else v, k)
+
+    def guess(t, y):
+        from scipy.optimize import minimize_scalar
+
+        slope, a0 = np.polyfit(t, y, 1)
+        d = abs(v) if kind == "change" else abs(a0 - v)
+        d = d if d > 0 else 1.0
+        k0 = max(abs(slope), 1e-12) / (d if order == "1" else d * d)
+
+        def rss(u):
+            with np.errstate(all="ignore"):
+                r = y - func(t, a0, math.exp(u))
+            out = float(r @ r)
+            return out if math.isfinite(out) else 1e300
+
+        u0 = math.log(k0)
+        u = minimize_scalar(rss, bounds=(u0 - 7, u0 + 7), method="bounded").x
+        return {"A0": float(a0), "k": math.exp(u)}
+
+    units = {"A0": "AU", "k": base.units["k"]}
+    how = (f"Ainf = A0 {'+' if v >= 0 else '-'} {abs(v):.4g} AU (the charge)"
+           if kind == "change" else f"Ainf = {v:g} AU (the expected end absorbance)")
+    return Model(f"{order}{AT_CHARGE}", func, ("A0", "k"), guess, {"k": 0.0}, {}, units,
+                 f"{base.equation}, {how}", base.source, ("A0",))
+
+
+def fit_at_charge(order: str, t, y, end: tuple, fix: dict | None = None,
+                  ci: str = "asymptotic", level: float = 0.95) -> FitResult:
+    """Fit :func:`at_charge` with the shared engine; the result carries Ainf as well (derived:
+    A0's value and interval moved by the charge, or the given end absorbance, fixed), and a
+    model function of (A0, Ainf, k) that takes Ainf from A0, so every user of a rate-law fit
+    reads it as it reads a free one."""
+    model = at_charge(order, end)
+    r = fit(model, t, y, fix={k: v for k, v in (fix or {}).items() if k in model.params},
+            ci=ci, level=level)
+    kind, v = end
+    a0 = r.params["A0"]
+    if kind == "change":
+        ainf = Param("Ainf", a0.value + v, a0.se, a0.ci_low + v, a0.ci_high + v,
+                     "A0 plus the charge", "AU")
+    else:
+        ainf = Param("Ainf", v, 0.0, v, v, "given", "AU", fixed=True)
+    base = RATE_LAWS[order].func
+
+    def func(t, A0, Ainf, k):
+        return base(t, A0, A0 + v if kind == "change" else v, k)
+
+    return replace(r, params={"A0": a0, "Ainf": ainf, "k": r.params["k"]}, func=func)
+
+
+def tied_to_charge(r: FitResult) -> bool:
+    """Whether a fit's end point is held by the charge (:func:`fit_at_charge`)."""
+    return r.model.endswith(AT_CHARGE)
+
+
 def overshoot(t, y, sigma: float) -> tuple[str, float] | None:
     """("rises then falls" or "falls then rises", time of the turn) when the trace passes
     through an interior extreme beyond both of its ends, by more than 6 noise SDs of a moving
@@ -304,6 +385,9 @@ def _with_drift_if_supported(fits: dict, o: str, drift: str) -> tuple[str, dict 
     """The model of order ``o`` to use: with the drift term where the F-test supports it
     (``auto``) or always (``on``); and the drift test."""
     plain, drifted = fits.get(o), fits.get(f"{o}+drift")
+    tied = fits.get(o + AT_CHARGE)
+    if tied is not None and tied.success and not (plain is not None and plain.success):
+        return tied.model, None
     if drifted is None or not drifted.success:
         return o, None
     if plain is None or drift == "on":
@@ -322,6 +406,11 @@ def _choose(name, fits, failed, orders, drift):
         base = {o: fits.get(f"{o}+drift", fits.get(o)) for o in orders}
     else:
         base = {o: fits.get(o) for o in orders}
+    for o in orders:                 # an order fitted only with its end held by the charge
+        tied = fits.get(o + AT_CHARGE)
+        if tied is not None and tied.success and not (base.get(o) is not None
+                                                      and base[o].success):
+            base[o] = tied
     base = {o: r for o, r in base.items() if r is not None}
     if not base:
         raise AnalysisError(f"no rate law could be fitted to trace {name}",
@@ -336,7 +425,8 @@ def _choose(name, fits, failed, orders, drift):
             f"AICc is undefined for order {' and '.join(undefined)} (n - k - 1 <= 0)",
             "measure more readings, fix a parameter (e.g. --fix Ainf=0), or choose --order")
     comp = compare({r.model: r for r in base.values()}, (),
-                   {o: w for o, w in failed.items() if "+" not in o})
+                   {o: w for o, w in failed.items() if "+" not in o
+                    and not (o in base and tied_to_charge(base[o]))})
     plausible_orders = [row["model"].split("+")[0] for row in comp.rows
                         if row["delta_aicc"] <= EVIDENCE_DELTA]
     chosen_order = comp.chosen.split("+")[0]
@@ -351,7 +441,7 @@ def _choose(name, fits, failed, orders, drift):
 def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Photometry = None,
               fix: dict | None = None, ci: str = "profile", level: float = 0.95,
               expect: str = "any", a0: float | None = None, b0: float | None = None,
-              drift: str = "off") -> RateLawResult:
+              drift: str = "off", end_absorbance: float | None = None) -> RateLawResult:
     """Fit one trace's integrated rate law (or every order, for ``auto``, chosen by AICc).
 
     ``drift`` adds a linear baseline drift to orders 1 and 2 when the F-test supports it
@@ -360,6 +450,11 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     short, flat, moves against ``expect``, or rises then falls; and an ``auto`` choice the data
     cannot make because AICc is undefined (too few readings). Times are counted from the
     origin :func:`rateabs.models.time_origin` sets (its file time is ``law.t0``).
+
+    With the charge (``photometry`` with c0 and an epsilon, or ``end_absorbance``) an ``auto``
+    choice in which orders 1 and 2 cannot be fitted with a free end point (a trace too straight
+    to show it) fits them with the end point the charge gives (:func:`fit_at_charge`), so that
+    the orders are compared on the evidence.
     """
     if order not in ORDERS:
         raise UsageError(f"unknown order {order!r}", f"use one of {', '.join(ORDERS)}")
@@ -371,24 +466,37 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     rising, noise = _check_trace(t, y, name, expect)
     orders = ["0", "1", "2"] if order == "auto" else [order]
     fits, failed = _fit_candidates(t, y, orders, fix, drift, level, a0, b0)
+    end = known_end(ph, end_absorbance, rising)
+    tied = _fit_tied_orders(t, y, fits, failed, end, fix, level) if (
+        order == "auto" and end is not None) else []
     chosen, comp, plausible, drift_test = _choose(name, fits, failed, orders, drift)
     untested = _untested_orders(comp, chosen)
     if ci != "asymptotic":        # intervals of the chosen model by the method asked for
-        model = _model_named(chosen, a0, b0)
-        f = {k: v for k, v in (fix or {}).items() if k in model.params}
-        fits[chosen] = fit(model, t, y, fix=f, ci=ci, level=level)
+        if chosen.endswith(AT_CHARGE):
+            fits[chosen] = fit_at_charge(chosen.split("+")[0], t, y, end, fix, ci, level)
+        else:
+            model = _model_named(chosen, a0, b0)
+            f = {k: v for k, v in (fix or {}).items() if k in model.params}
+            fits[chosen] = fit(model, t, y, fix=f, ci=ci, level=level)
     r = fits[chosen]
     base = chosen.split("+")[0]
     k_conc, half, c0, notes = _derived(r, base, ph, rising, level)
     quality = fit_quality(r, noise)
     flags = _flags(r, quality, plausible, notes, t, half)
+    if tied:
+        notes.append(f"order{'s' if len(tied) > 1 else ''} {' and '.join(tied)} could not be "
+                     "fitted with a free end point (the trace is too nearly straight to show "
+                     f"it); the charge gives the end point ({_end_words(end)}), so "
+                     f"{'they were' if len(tied) > 1 else 'it was'} fitted with the end held "
+                     f"there ({', '.join(o + AT_CHARGE for o in tied)}) and the orders compared "
+                     "on the evidence")
     if untested:
         flags.append("order_not_determined")
         notes.append(f"order{'s' if len(untested) > 1 else ''} {' and '.join(untested)} could "
                      "not be fitted (not identifiable): the trace is too nearly straight to "
                      "show its curvature, so order 0 was kept for want of the others, not on "
                      "evidence against them; a first- or second-order reaction early in its "
-                     "course looks the same (a longer run, or --order, decides)")
+                     "course looks the same (a longer run, the charge, or --order decides)")
     before = int(np.sum(t < 0))
     if before:
         notes.append(f"{before} reading{'s' if before > 1 else ''} lie{'' if before > 1 else 's'}"
@@ -400,6 +508,33 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
                         quality, drift_test, flags, t0)
     _explain(law)
     return law
+
+
+def _end_words(end: tuple) -> str:
+    kind, v = end
+    return (f"Ainf = A0 {'+' if v >= 0 else '-'} {abs(v):.4g} AU" if kind == "change"
+            else f"Ainf = {v:g} AU")
+
+
+def _fit_tied_orders(t, y, fits, failed, end, fix, level) -> list[str]:
+    """Orders 1 and 2 that could not be fitted with a free end point, fitted with the end the
+    charge gives (into ``fits``, or their failure into ``failed``); the orders so fitted."""
+    if "Ainf" in (fix or {}):
+        return []
+    done = []
+    for o in ("1", "2"):
+        plain = fits.get(o)
+        if plain is not None and plain.success:
+            continue
+        try:
+            r = fit_at_charge(o, t, y, end, fix, "asymptotic", level)
+        except AnalysisError as exc:
+            failed[o + AT_CHARGE] = exc.problem
+            continue
+        fits[r.model] = r
+        if r.success:
+            done.append(o)
+    return done
 
 
 def _untested_orders(comp: Comparison | None, chosen: str) -> list[str]:

@@ -67,20 +67,26 @@ def test_forced_first_order_at_five_percent_gives_no_forecast_not_an_internal_er
 
 
 def test_a_straight_trace_says_its_order_was_not_determined(tmp_path):
-    """The same 5 % first-order run with --order auto: orders 1 and 2 cannot be fitted, so
-    order 0 was printed with AICc weight 1 and no flag. With the charge (c0 110 uM x 1e4
-    M^-1 cm^-1 = 1.1 AU, the run's own full change) the straight line forecasts 99 % at about
-    14.5 h where the truth (first order) is ln 100 / k = 67.3 h: the number must carry the
-    flag and be called an earliest time, which the truth bears out."""
+    """The same 5 % first-order run with --order auto: orders 1 and 2 cannot be fitted with a
+    free end point, so order 0 was printed with AICc weight 1 and no flag; without the charge
+    it carries order_not_determined. With the charge (c0 110 uM x 1e4 M^-1 cm^-1 = 1.1 AU, the
+    run's own full change) the end point is known, so orders 1 and 2 are fitted with it held
+    there and compared on the evidence: the straight line alone forecast 99 % at about 14.5 h,
+    an earliest time, where the truth (first order) is ln 100 / k = 67.3 h (hand calculation);
+    now the headline interval spans the orders that carry weight, the truth inside it, and
+    the first-order forecast covers the truth by itself."""
     f = write(tmp_path / "short.csv", T, {"A": noisy(first(T, 1.2, 0.1, K_SHORT), 5)})
     law = doc_of(run("ratelaw", f, "--format", "json", "--no-plots"))["results"][0]
     assert law["order"] == "0" and "order_not_determined" in law["flags"]
+    bare = doc_of(run("completion", f, "--format", "json"))["results"][0]
+    assert "order_not_determined" in bare["flags"]
     d = doc_of(run("completion", f, "--c0", "110", "--epsilon", "1e4", "--format", "json"))
     r = d["results"][0]
-    assert "order_not_determined" in r["flags"]
+    assert "order_not_determined" not in r["flags"] and "orders_not_told_apart" in r["flags"]
     truth = math.log(100) / K_SHORT
-    assert r["t_target_s"]["ci_high"] < truth           # the line's time comes too early ...
-    assert any("earliest time" in w for w in d["warnings"])    # ... and it says so
+    assert r["t_target_s"]["ci_low"] < truth < r["t_target_s"]["ci_high"]
+    one = next(x for x in r["forecasts"] if x["model"] == "1+charge")["t_target_s"]
+    assert one["ci_low"] < truth < one["ci_high"]
 
 
 def test_a_curved_run_keeps_its_order_without_the_new_flag(tmp_path):
@@ -175,3 +181,34 @@ def test_a_target_already_passed_is_said_to_be_passed(tmp_path):
     assert "0.0 min after" not in line
     t = doc_of(run("completion", f, "--format", "json"))["results"][0]["t_target_s"]
     assert t["ci_low"] < math.log(100) / k < t["ci_high"]
+
+
+# --------------------------------------------------------------------------- zero order, charge
+
+T60 = np.arange(0, 3600 + 1, 30.0)        # every 30 s for an hour
+
+
+def test_zero_order_with_the_charge_compares_the_orders_on_evidence(tmp_path):
+    """A true zero-order run, 67 % of a 100 uM charge used in an hour (hand calculation:
+    A = 1.06 - 0.67 t / 3600 AU with epsilon 1e4, 1 cm), got order_not_determined because
+    orders 1 and 2 could not be fitted; with the charge their end point is known
+    (A0 - 1 AU), so they are fitted with it and lose on the evidence. The time to 99 % covers
+    0.99 / 0.67 x 3600 s = 5319 s."""
+    y = noisy(1.06 - 0.67 * T60 / 3600, 15)
+    f = write(tmp_path / "zero.csv", T60, {"A": y})
+    charge = ("--c0", "100", "--epsilon", "1e4")
+    law = doc_of(run("ratelaw", f, *charge, "--format", "json", "--no-plots"))["results"][0]
+    assert law["order"] == "0" and "order_not_determined" not in law["flags"]
+    rows = {x["model"]: x for x in law["evidence"]["aicc_table"]}
+    assert set(rows) == {"0", "1+charge", "2+charge"}
+    assert rows["1+charge"]["delta_aicc"] > 10 and rows["2+charge"]["delta_aicc"] > 10
+    d = doc_of(run("completion", f, *charge, "--format", "json"))
+    c = d["results"][0]
+    assert "order_not_determined" not in c["flags"] and c["model"] == "0"
+    assert c["t_target_s"]["ci_low"] < 0.99 / 0.67 * 3600 < c["t_target_s"]["ci_high"]
+    assert not any("earliest time" in w for w in d["warnings"])
+    assert any("fitted with the end held there (1+charge, 2+charge)" in w
+               for w in d["warnings"])
+    # without the charge nothing gives the end point: the flag stays
+    bare = doc_of(run("ratelaw", f, "--format", "json", "--no-plots"))["results"][0]
+    assert "order_not_determined" in bare["flags"]
