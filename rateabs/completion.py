@@ -97,6 +97,9 @@ FLAGS = {
     "order_not_determined": "order 0 was kept because orders 1 and 2 could not be fitted (a "
                             "nearly straight trace): the forecast is the straight line's, and a "
                             "slowing first- or second-order reaction would take longer",
+    "delayed_start": "the trace stays flat before the reaction starts (an induction period): "
+                     "the fit, its conversion and times count from the wrong moment; refit "
+                     "with --fit-from",
 }
 
 
@@ -450,13 +453,15 @@ def forecast_line(r: FitResult, target: float, t_now: float, charge: Charge | No
 
 def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "auto",
            level: float = 0.95, photometry: Photometry | None = None, fix=None,
-           end_absorbance: float | None = None, drift: str = "auto") -> Completion:
+           end_absorbance: float | None = None, drift: str = "auto",
+           fit_from: float | None = None) -> Completion:
     """Fit the trace and forecast the time to ``target`` conversion (a fraction, 0-1).
 
     ``order`` is ``auto`` (chosen by evidence, as ``ratelaw`` does), "0", "1" or "2";
     ``photometry`` with ``c0_M`` and an epsilon, or ``end_absorbance``, gives the charge.
     Times (the last reading, the forecast) are counted from the origin
-    :func:`rateabs.models.time_origin` sets, ``law.t0`` in the file's own times; the reaction is
+    :func:`rateabs.models.time_origin` sets, or from ``fit_from`` (s, the file's own times;
+    the readings before it are not fitted), ``law.t0`` in the file's own times; the reaction is
     taken to stand at conversion 0 there.
     """
     if not 0 < target < 1:
@@ -466,7 +471,7 @@ def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "aut
         raise UsageError("completion forecasts need order 0, 1, 2 or auto",
                          "use --order auto, 0, 1 or 2")
     law = fit_trace(t, y, name, order=order, photometry=photometry, fix=fix, ci="asymptotic",
-                    level=level, drift=drift, end_absorbance=end_absorbance)
+                    level=level, drift=drift, end_absorbance=end_absorbance, fit_from=fit_from)
     t_now = float(np.max(law.fit.x))             # counted from the time origin
     rising = law.fit.value("A0") < law.fit.predict(t_now)
     charge = charge_of(photometry, end_absorbance, bool(rising))
@@ -701,10 +706,13 @@ def _charge_flags(main: Forecast, r: FitResult, flags, notes, charge) -> None:
 
 def _call(forecasts, flags, quality: dict, target, c_conv) -> tuple[bool, str]:
     """The complete / not complete call and the verdict in words."""
-    blockers = [f for f in ("misfit", "stall", "charge_mismatch", "end_below_zero",
-                            "not_identifiable", "no_end_point") if f in flags]
+    blockers = [f for f in ("delayed_start", "misfit", "stall",
+                            "charge_mismatch", "end_below_zero", "not_identifiable",
+                            "no_end_point") if f in flags]
     if blockers:
         reasons = {"misfit": "the rate law does not fit the trace",
+                   "delayed_start": "the reaction starts late (an induction period): refit "
+                                    "with --fit-from",
                    "stall": "the reaction stalls short of the charge",
                    "charge_mismatch": "the change does not match the charge",
                    "end_below_zero": "the end point is not physical",

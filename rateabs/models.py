@@ -406,6 +406,40 @@ def guess_decay(t, y, order, drift: bool = False):
     return {**out, "drift": float(c[2])} if drift else out
 
 
+def delayed(model: Model) -> Model:
+    """``model`` starting late: A = A0 until the delay ``td`` (s), then the law in t - td.
+
+    An induction period (an initiator or catalyst that must first form, a reagent added late,
+    a cell not yet at temperature) leaves the trace flat for a while; the law then runs in the
+    time since ``td``. The start is the best of a grid of delays (the readings' own times up to
+    two thirds of the run), each with the law's own guess for the readings after it."""
+    base = model.func
+
+    def func(t, *p):
+        return base(np.maximum(t - p[-1], 0.0), *p[:-1])
+
+    def guess(t, y):
+        t, y = np.asarray(t, float), np.asarray(y, float)
+        best = None
+        limit = t[0] + 2 * (t[-1] - t[0]) / 3
+        for td in np.unique(t[(t >= t[0]) & (t <= limit)])[:: max(1, t.size // 40)]:
+            after = t >= td
+            if after.sum() < 4:
+                continue
+            g = model.guess(t[after] - td, y[after])
+            with np.errstate(all="ignore"):
+                r = y - func(t, *[g[nm] for nm in model.params], td)
+            rss = float(r @ r)
+            if np.isfinite(rss) and (best is None or rss < best[0]):
+                best = (rss, {**g, "td": float(td)})
+        return best[1] if best else {**model.guess(t, y), "td": 0.0}
+
+    return Model(f"{model.name} delayed", func, model.params + ("td",), guess,
+                 {**model.lower, "td": 0.0}, dict(model.upper), {**model.units, "td": "s"},
+                 f"{model.equation}, with t - td for t > td and A = A0 before",
+                 model.source, model.offsets)
+
+
 RATE_LAWS = {
     "0": Model("0", order0, ("A0", "k"), _guess_order0, {}, {}, {"A0": "AU", "k": "AU/s"},
                "A = A0 + k t", "Atkins, Physical Chemistry", ("A0",)),

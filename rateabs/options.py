@@ -656,6 +656,17 @@ def _drift():
                   "law: auto (fitted where an F-test supports it), on or off.", "auto")
 
 
+#: --fit-from: a time in the file's own times (before its zero too, where readings lie there).
+FIT_FROM = Quantity("time", "s", Number(), "'10 min'")
+
+
+def _fit_from():
+    return option("--fit-from", FIT_FROM, "Fit from this time on (the file's own times; a bare "
+                  "number is s), e.g. after an induction period: the readings before it are "
+                  "not fitted, and A0, the conversion and every time are counted from it. "
+                  "Refused when it leaves too few readings.")
+
+
 def _photometry_values(o) -> dict:
     """epsilon, epsilon_product, pathlength_cm and c0_M of a rate-law command's settings."""
     from .photometry import resolve_epsilon
@@ -712,6 +723,7 @@ class RatelawOptions(Checked):
     excess: str | None = option("--excess", Text("file name", "excess.csv"), "CSV trace,conc of "
                                 "a pseudo-first-order series: k2 from kobs vs [excess].")
     drift: str = _drift()
+    fit_from: float | None = _fit_from()
     output: OutputOptions = part(OutputOptions)
 
     def check_together(self) -> None:
@@ -772,6 +784,7 @@ class CompletionOptions(Checked):
     end_absorbance: float | None = option("--end-absorbance", Number(
         -1, 10, unit="absorbance, AU", example="0.06"), "The charge as the absorbance expected "
         "at full conversion (instead of --c0 with an epsilon).")
+    fit_from: float | None = _fit_from()
     output: OutputOptions = part(OutputOptions)
 
     def check_together(self) -> None:

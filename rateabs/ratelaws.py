@@ -22,7 +22,15 @@ import numpy as np
 from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, f_test, fd_step, fit, fmt_p, fmt_pm
-from .models import LINE, RATE_LAWS, Model, guess_decay, mixed2, time_origin
+from .models import (
+    LINE,
+    RATE_LAWS,
+    Model,
+    delayed,
+    guess_decay,
+    mixed2,
+    time_origin,
+)
 from .options import DRIFT_CHOICES, ORDERS
 from .slopes import noise_sigma
 from .traces import Grid
@@ -82,8 +90,10 @@ class RateLawResult:
     one means the data do not tell the orders apart. ``quality`` is the fit-quality gate
     (:func:`fit_quality`); ``flags`` are short words, ``notes`` sentences for a person.
     The fit counts time from ``t0`` (s in the file's own times): the file's zero, or the first
-    usable reading where that lies far from it (:func:`rateabs.models.time_origin`); A0 is
-    the absorbance at that origin.
+    usable reading where that lies far from it (:func:`rateabs.models.time_origin`), or
+    ``fit_from`` where the user gave one (the readings before it are not fitted); A0 is the
+    absorbance at that origin. ``shape`` is a delayed start the data show
+    (:func:`other_shape`), else None.
     """
 
     trace: str
@@ -101,6 +111,8 @@ class RateLawResult:
     drift_test: dict | None = None
     flags: list = field(default_factory=list)
     t0: float = 0.0
+    shape: dict | None = None
+    fit_from: float | None = None
 
     @property
     def drift(self) -> Param | None:
@@ -118,7 +130,8 @@ class RateLawResult:
              "runs_test_p": self.fit.runs_p, "quality": self.quality,
              "orders_not_told_apart": list(self.plausible) if len(self.plausible) > 1 else [],
              "drift_test": self.drift_test, "flags": list(self.flags),
-             "time_origin_s": self.t0, "notes": self.notes + list(self.fit.notes)}
+             "time_origin_s": self.t0, "notes": self.notes + list(self.fit.notes),
+             "other_shape": self.shape, "fit_from_s": self.fit_from}
         if self.comparison is not None:
             d["evidence"] = self.comparison.to_dict()
         return d
@@ -441,7 +454,8 @@ def _choose(name, fits, failed, orders, drift):
 def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Photometry = None,
               fix: dict | None = None, ci: str = "profile", level: float = 0.95,
               expect: str = "any", a0: float | None = None, b0: float | None = None,
-              drift: str = "off", end_absorbance: float | None = None) -> RateLawResult:
+              drift: str = "off", end_absorbance: float | None = None,
+              fit_from: float | None = None) -> RateLawResult:
     """Fit one trace's integrated rate law (or every order, for ``auto``, chosen by AICc).
 
     ``drift`` adds a linear baseline drift to orders 1 and 2 when the F-test supports it
@@ -449,20 +463,28 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     that callers such as ``grade`` keep the plain laws). Refuses (AnalysisError) a trace that is too
     short, flat, moves against ``expect``, or rises then falls; and an ``auto`` choice the data
     cannot make because AICc is undefined (too few readings). Times are counted from the
-    origin :func:`rateabs.models.time_origin` sets (its file time is ``law.t0``).
+    origin :func:`rateabs.models.time_origin` sets (its file time is ``law.t0``), or from
+    ``fit_from`` (s, in the file's own times) where given: the readings before it are left out
+    and the reaction is taken to start there (an induction period; :func:`start_at`).
 
     With the charge (``photometry`` with c0 and an epsilon, or ``end_absorbance``) an ``auto``
     choice in which orders 1 and 2 cannot be fitted with a free end point (a trace too straight
     to show it) fits them with the end point the charge gives (:func:`fit_at_charge`), so that
-    the orders are compared on the evidence.
+    the orders are compared on the evidence. A chosen law that fails the fit-quality gate, or
+    needs a drift term, is checked against a delayed start (:func:`other_shape`).
     """
     if order not in ORDERS:
         raise UsageError(f"unknown order {order!r}", f"use one of {', '.join(ORDERS)}")
     if drift not in DRIFT_CHOICES:
         raise UsageError(f"unknown drift choice {drift!r}", f"use one of {', '.join(DRIFT_CHOICES)}")
     ph = photometry or Photometry()
-    t, t0 = time_origin(t)
-    y = np.asarray(y, float)
+    notes = []
+    if fit_from is None:
+        t, t0 = time_origin(t)
+        y = np.asarray(y, float)
+    else:
+        t, y, t0, said = start_at(t, y, fit_from, name, order)
+        notes.append(said)
     rising, noise = _check_trace(t, y, name, expect)
     orders = ["0", "1", "2"] if order == "auto" else [order]
     fits, failed = _fit_candidates(t, y, orders, fix, drift, level, a0, b0)
@@ -480,7 +502,8 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
             fits[chosen] = fit(model, t, y, fix=f, ci=ci, level=level)
     r = fits[chosen]
     base = chosen.split("+")[0]
-    k_conc, half, c0, notes = _derived(r, base, ph, rising, level)
+    k_conc, half, c0, more = _derived(r, base, ph, rising, level)
+    notes += more
     quality = fit_quality(r, noise)
     flags = _flags(r, quality, plausible, notes, t, half)
     if tied:
@@ -503,11 +526,46 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
                      f" before the file's time zero (from {float(np.min(t)):g} s): "
                      "fitted with the rest, but A0, the conversion and every time are counted "
                      "from the file's zero, where the reaction is taken to start; if it started "
-                     "at the first reading, shift the times")
+                     "elsewhere, give that time with --fit-from")
     law = RateLawResult(name, base, r, k_conc, half, c0, comp, fits, notes, chosen, plausible,
-                        quality, drift_test, flags, t0)
+                        quality, drift_test, flags, t0, fit_from=fit_from)
+    if base in ("0", "1", "2") and (not quality["fits"] or "drift" in r.params):
+        law.shape = other_shape(t, y, law, fit_from is not None)
+        _shape_notes(law)
     _explain(law)
     return law
+
+
+#: Fewest readings a fit from --fit-from keeps: a rate law's four (given order), six where the
+#: orders are compared (AICc needs n > k + 1 with k = 4 for orders 1 and 2).
+FIT_FROM_MIN = {"auto": 6}
+
+
+def start_at(t, y, start: float, name: str, order: str = "auto"):
+    """The readings from ``start`` (s, the file's own times) on, with times counted from it:
+    (t, y, start, a sentence saying so). Refused (UsageError, naming --fit-from) when
+    ``start`` lies before the first reading or leaves too few readings after it."""
+    t = np.asarray(t, float)
+    y = np.asarray(y, float)
+    need = FIT_FROM_MIN.get(order, 4)
+    if t.size and start < float(np.min(t)):
+        raise UsageError(f"--fit-from {start:g} s lies before the first reading of trace {name} "
+                         f"({float(np.min(t)):g} s in the file's times)",
+                         "give a time within the run, in the file's own times")
+    keep = t >= start
+    if int(keep.sum()) < need:
+        raise UsageError(f"--fit-from {start:g} s leaves {int(keep.sum())} reading"
+                         f"{'' if keep.sum() == 1 else 's'} of trace {name} (the last at "
+                         f"{float(np.max(t)):g} s); a rate law needs at least {need}"
+                         + (" to compare orders" if order == "auto" else ""),
+                         "give an earlier time")
+    dropped = int((~keep).sum())
+    said = (f"fitted from --fit-from {start:g} s: the reaction is taken to start there; A0, the "
+            "conversion and every time are counted from it"
+            + (f" ({dropped} earlier reading{'s' if dropped > 1 else ''}, "
+               f"{float(np.min(t[~keep])):g} to {float(np.max(t[~keep])):g} s, not fitted)"
+               if dropped else ""))
+    return t[keep] - start, y[keep], float(start), said
 
 
 def _end_words(end: tuple) -> str:
@@ -535,6 +593,71 @@ def _fit_tied_orders(t, y, fits, failed, end, fix, level) -> list[str]:
         if r.success:
             done.append(o)
     return done
+
+
+#: A delayed start is said when its law beats every plain candidate by more than
+#: this ΔAICc (:data:`EVIDENCE_DELTA`: the plain laws then have essentially no support).
+SHAPE_DELTA = EVIDENCE_DELTA
+
+
+def other_shape(t, y, law: RateLawResult, started: bool) -> dict | None:
+    """A delayed start, where the data show one: the chosen law fails the quality gate or
+    needs a drift term, and the chosen order's law flat at A0 until a delay td
+    (:func:`rateabs.models.delayed`) fits far better (ΔAICc over :data:`SHAPE_DELTA` below
+    every plain candidate fitted), with at least two readings flat before td. Not when
+    ``started``: --fit-from already set the start.
+
+    Returns {"kind", "model", "delta_aicc", "params" (JSON objects), ...} or None."""
+    plain = [r for r in law.fits.values() if r.success and math.isfinite(r.aicc)]
+    if not plain:
+        return None
+    best = min(r.aicc for r in plain)
+    found = []
+    if not started:
+        model = delayed(RATE_LAWS[law.order])
+        try:
+            r = fit(model, t, y, ci="asymptotic", level=law.fit.level)
+        except AnalysisError:
+            r = None
+        td = r.params["td"] if r is not None else None
+        if (r is not None and r.success and math.isfinite(r.aicc) and best - r.aicc > SHAPE_DELTA
+                and int(np.sum(t < td.value)) >= 2):
+            found.append(("delay", r, {"td_s": td}))
+    if not found:
+        return None
+    kind, r, extra = min(found, key=lambda f: f[1].aicc)
+    return {"kind": kind, "model": r.model, "equation": _SHAPE_EQUATIONS[kind],
+            "delta_aicc": best - r.aicc, "quality": fit_quality(r, law.quality["noise_A"]),
+            "params": {k: shown(p) for k, p in r.params.items()},
+            **{k: shown(p) for k, p in extra.items()}, "_fit": r}
+
+
+_SHAPE_EQUATIONS = {"delay": "A = A0 until td, then the law in t - td"}
+
+
+def _shape_notes(law: RateLawResult) -> None:
+    """The flag and the note of a delayed start (:func:`other_shape`)."""
+    sh = law.shape
+    if sh is None:
+        return
+    r = sh.pop("_fit")
+    k = r.params["k"]
+    if sh["kind"] == "delay":
+        td = r.params["td"]
+        law.flags.append("delayed_start")
+        law.notes.append(
+            f"DELAYED START: the trace stays flat until about {td.value:.0f} s "
+            f"[{td.ci_low:.0f}, {td.ci_high:.0f}] (an induction period, or a late start) and "
+            f"then follows order {law.order}: the delayed law fits far better (ΔAICc "
+            f"{sh['delta_aicc']:.0f}; k = {fmt_pm(k.value, k.se, unit=k.unit)}). The fit "
+            f"above counts from {law.t0:g} s, so its k, conversion and times are not the "
+            f"reaction's: refit with --fit-from {_round_time(td.value)} s to count from the "
+            "start")
+
+
+def _round_time(x: float) -> str:
+    """A time in s to two significant figures for an option a person types."""
+    return f"{float(f'{x:.2g}'):g}" if x >= 10 else f"{x:.1f}"
 
 
 def _untested_orders(comp: Comparison | None, chosen: str) -> list[str]:
@@ -645,6 +768,8 @@ FLAGS = {
     "drift_fitted": "a linear baseline drift was fitted with the rate law",
     "order_not_determined": "order 0 was kept because orders 1 and 2 could not be fitted (a "
                             "nearly straight trace), not on evidence against them",
+    "delayed_start": "the trace stays flat before the reaction starts (an induction period): "
+                     "a delayed law fits far better; refit with --fit-from",
 }
 
 

@@ -452,6 +452,8 @@ def test_ratelaw_options_are_used():
     assert series["pseudo_first_order"]["n_runs"] == 5
     assert doc(*fast, "--drift", "on")["results"][0]["model"] == "1+drift" != plain["model"]
     assert base["model"] == plain["model"]
+    late = doc(*fast, "--fit-from", "5 min")["results"][0]
+    assert late["time_origin_s"] == 300 and late["n"] < plain["n"]
 
 
 def test_completion_options_are_used():
@@ -486,6 +488,8 @@ def test_completion_options_are_used():
     drift = doc("completion", PROBE, "--drift", "on")["results"][0]
     assert drift["model"] == "1+drift" and base["results"][0]["model"] == "1"
     assert doc("completion", PROBE, "--drift", "off")["settings"]["drift"] == "off"
+    late = doc("completion", PROBE, "--fit-from", "5 min")["results"][0]
+    assert late["time_origin_s"] == 300 and late["t_now_s"] == r0["t_now_s"] - 300
 
 
 def test_temperature_options_are_used(tables):
@@ -584,10 +588,11 @@ USED = {
                           "--resample", "--seed", "--select", "--each"},
     "RatelawOptions": {"--level", "--fix", "--trace", "--epsilon", "--chromophore",
                        "--epsilon-product", "--pathlength", "--c0", "--order", "--a0", "--b0",
-                       "--ci", "--expect", "--guggenheim", "--excess", "--drift"},
+                       "--ci", "--expect", "--guggenheim", "--excess", "--drift", "--fit-from"},
     "CompletionOptions": {"--level", "--fix", "--trace", "--target", "--order", "--follow",
                           "--max-updates", "--c0", "--epsilon", "--epsilon-product",
-                          "--chromophore", "--pathlength", "--end-absorbance", "--drift"},
+                          "--chromophore", "--pathlength", "--end-absorbance", "--drift",
+                          "--fit-from"},
     "TemperatureOptions": {"--temp-column", "--k-column", "--se-column", "--temp-unit", "--at",
                            "--level"},
     "ProgressOptions": {"--s0", "--s0-column", "--layout", "--epsilon", "--chromophore",

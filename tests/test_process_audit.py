@@ -183,9 +183,83 @@ def test_a_target_already_passed_is_said_to_be_passed(tmp_path):
     assert t["ci_low"] < math.log(100) / k < t["ci_high"]
 
 
-# --------------------------------------------------------------------------- zero order, charge
+# --------------------------------------------------------------------------- induction period
 
 T60 = np.arange(0, 3600 + 1, 30.0)        # every 30 s for an hour
+DELAY, K_LATE = 600.0, 2e-3
+
+
+def late_first(t):
+    """Nothing for 600 s, then first order k = 2e-3 1/s from 1.06 to 0.06 AU (hand calculation
+    of the closed form in the time since the start, A = 0.06 + exp(-k (t - 600)))."""
+    return 0.06 + np.exp(-K_LATE * np.clip(np.asarray(t, float) - DELAY, 0, None))
+
+
+def test_an_induction_period_is_named_with_the_option_that_starts_the_fit_later(tmp_path):
+    """The run was flagged misfit (k 8.5e-4 against a true 2e-3 1/s, 134 % of the charge
+    converted) and nothing named the delay: now it is flagged delayed_start, the note gives the
+    start (the truth, 600 s, inside its interval), the delayed law's k and the option."""
+    f = write(tmp_path / "late.csv", T60, {"A": noisy(late_first(T60), 12)})
+    d = doc_of(run("ratelaw", f, "--format", "json", "--no-plots"))
+    r = d["results"][0]
+    assert "delayed_start" in r["flags"]
+    td = r["other_shape"]["td_s"]
+    assert td["ci_low"] - 30 < DELAY < td["ci_high"] + 30     # within a reading interval
+    said = next(w for w in d["warnings"] if "DELAYED START" in w)
+    assert "--fit-from 600 s" in said
+    k = r["other_shape"]["params"]["k"]
+    assert k["ci_low"] < K_LATE < k["ci_high"]
+    c = doc_of(run("completion", f, "--format", "json"))["results"][0]
+    assert "delayed_start" in c["flags"] and not c["complete"] and "--fit-from" in c["verdict"]
+
+
+def test_fit_from_counts_conversion_and_times_from_the_given_start(tmp_path):
+    """--fit-from 10 min: the 20 readings before it are not fitted; k covers 2e-3 1/s; with the
+    charge (100 uM x 1e4 M^-1 cm^-1 = 1 AU, hand calculation) the conversion at the last
+    reading covers 1 - exp(-k 3000 s) = 99.75 % and the time to 99 % covers ln 100 / k =
+    2303 s, both counted from the start, which the header, settings and results say."""
+    f = write(tmp_path / "late.csv", T60, {"A": noisy(late_first(T60), 16)})
+    law = doc_of(run("ratelaw", f, "--fit-from", "10 min", "--format", "json", "--no-plots"))
+    r = law["results"][0]
+    assert r["time_origin_s"] == 600 and r["fit_from_s"] == 600 and r["n"] == 101
+    assert r["params"]["k"]["ci_low"] < K_LATE < r["params"]["k"]["ci_high"]
+    assert "delayed_start" not in r["flags"] and "misfit" not in r["flags"]
+    assert law["settings"]["fit_from_s"] == 600
+    assert any("20 earlier readings, 0 to 570 s, not fitted" in w for w in law["warnings"])
+    args = ("completion", f, "--fit-from", "600", "--c0", "100", "--epsilon", "1e4")
+    c = doc_of(run(*args, "--format", "json"))["results"][0]
+    conv, tt = c["conversion"], c["t_target_s"]
+    assert conv["ci_low"] < 1 - math.exp(-K_LATE * 3000) < conv["ci_high"]
+    assert tt["ci_low"] < math.log(100) / K_LATE < tt["ci_high"]
+    assert c["t_now_s"] == 3000 and c["time_origin_s"] == 600
+    table = run(*args).output
+    assert "time origin: --fit-from 600 s in the file" in table
+    assert "at 2" in table and "s in the file's times" in table
+
+
+def test_fit_from_is_refused_where_it_cannot_be_used(tmp_path):
+    """One line, exit 2, the option named: too few readings left (4 where comparing orders
+    needs 6: AICc with k = 4 needs n > 5, Hurvich & Tsai 1989), a time before the first
+    reading, a value that is not a time (refused by the settings object)."""
+    import pytest
+
+    from rateabs.errors import UsageError
+    from rateabs.options import CompletionOptions
+
+    f = write(tmp_path / "late.csv", T60, {"A": noisy(late_first(T60), 14)})
+    for value, words in (("3500", "leaves 4 readings"), ("-60", "before the first reading")):
+        for command in ("ratelaw", "completion"):
+            res = run(command, f, "--fit-from", value, "--no-plots")
+            assert res.exit_code == 2, res.output
+            err = res.stderr.strip()
+            assert len(err.splitlines()) == 1 and "--fit-from" in err and words in err
+            assert "late.csv" in err and "Traceback" not in res.output
+    with pytest.raises(UsageError, match="--fit-from"):
+        CompletionOptions(str(f), fit_from="ten minutes")
+    assert CompletionOptions(str(f), fit_from="10 min").fit_from == 600
+
+
+# --------------------------------------------------------------------------- zero order, charge
 
 
 def test_zero_order_with_the_charge_compares_the_orders_on_evidence(tmp_path):

@@ -8,9 +8,28 @@ from ..fitting import fmt_pm
 from .style import GRID, INK, PALETTE, SHADE, house_style, legend_below, save
 
 
-def time_label(t0: float) -> str:
-    """The time axis of a rate-law figure, times as fitted (rateabs.models.time_origin)."""
-    return "time (min)" if t0 == 0 else "time since the first usable reading (min)"
+def time_label(law) -> str:
+    """The time axis of a rate-law figure, times as fitted (rateabs.models.time_origin, or
+    --fit-from)."""
+    if law.fit_from is not None:
+        return f"time since --fit-from {law.fit_from:g} s (min)"
+    return "time (min)" if law.t0 == 0 else "time since the first usable reading (min)"
+
+
+def _readings(g, i, law):
+    """A trace's usable readings with times as fitted, split into those fitted and those before
+    --fit-from (not fitted): (t, y, t_before, y_before)."""
+    ok = g.usable[i]
+    t, y = g.times[i][ok] - law.t0, g.values[i][ok]
+    before = t < 0 if law.fit_from is not None else np.zeros(t.shape, bool)
+    return t[~before], y[~before], t[before], y[before]
+
+
+def _not_fitted(ax, tb, yb) -> None:
+    """Readings before --fit-from, hollow and grey: shown, not fitted."""
+    if tb.size:
+        ax.plot(tb / 60, yb, "o", ms=3, mfc="none", color=GRID, label="before --fit-from "
+                "(not fitted)")
 
 
 def _params_line(law) -> str:
@@ -40,8 +59,7 @@ def ratelaw_plots(analysis, out):
     files = []
     for name, law in laws.items():
         i = g.names.index(name)
-        ok = g.usable[i]
-        t, y = g.times[i][ok] - law.t0, g.values[i][ok]      # as fitted: from the time origin
+        t, y, tb, yb = _readings(g, i, law)             # as fitted: from the time origin
         r = law.fit
         vals = r.values()
         with house_style() as plt:
@@ -56,6 +74,7 @@ def ratelaw_plots(analysis, out):
             axl = fig.add_subplot(gs[:, 1])
             tc = np.linspace(0, t.max(), 300)
             ax.plot(t / 60, y, "o", ms=3, color=PALETTE[0], label="readings")
+            _not_fitted(ax, tb, yb)
             ax.plot(tc / 60, r.func(tc, *vals.values()), color=PALETTE[1],
                     label=f"order {law.model} fit")
             ax.set_ylabel("absorbance (AU)")
@@ -65,7 +84,7 @@ def ratelaw_plots(analysis, out):
             ax.tick_params(labelbottom=False)
             axr.plot(t / 60, (y - r.fitted) * 1e3, "o", ms=2.5, color=PALETTE[0])
             axr.axhline(0, color=INK, lw=0.7)
-            axr.set_xlabel(time_label(law.t0))
+            axr.set_xlabel(time_label(law))
             axr.set_ylabel("residual (mAU)")
             _linearised(axl, law, t, y, tc)
             files.append(save(fig, out / f"ratelaw_{safe_filename(name)}.png"))
@@ -94,7 +113,7 @@ def _linearised(axl, law, t, y, tc) -> None:
         axl.plot(t / 60, y, "o", ms=3, color=PALETTE[0])
         axl.plot(tc / 60, r.func(tc, *vals.values()), color=PALETTE[1])
         axl.set_ylabel("absorbance (AU)")
-    axl.set_xlabel(time_label(law.t0))
+    axl.set_xlabel(time_label(law))
     axl.set_title(f"linearised view of order {law.order}\n(inspection only"
                   + ("; drift removed)" if "drift" in vals else ")"), fontsize=9.5)
 
@@ -116,13 +135,13 @@ def completion_plot(c, ts, path):
     The legend and the verdict sit outside the axes."""
     g = ts.grid()
     i = g.names.index(c.trace)
-    ok = g.usable[i]
-    t, y = g.times[i][ok] - c.law.t0, g.values[i][ok]    # as fitted: from the time origin
+    t, y, tb, yb = _readings(g, i, c.law)             # as fitted: from the time origin
     horizon = _horizon(c, t)
     tc = np.linspace(0, horizon, 400)
     with house_style() as plt:
         fig, ax = plt.subplots(figsize=(7.6, 5.2))
         ax.plot(t / 60, y, "o", ms=3, color=PALETTE[0], label="readings")
+        _not_fitted(ax, tb, yb)
         for n, f in enumerate(c.forecasts):
             r = c.law.fits[f.model]
             vals = r.values()
@@ -140,7 +159,7 @@ def completion_plot(c, ts, path):
         if c.charge is not None:
             _charge_marks(ax, c)
         ax.axvline(c.t_now / 60, color=GRID, lw=1)
-        ax.set_xlabel(time_label(c.law.t0))
+        ax.set_xlabel(time_label(c.law))
         ax.set_ylabel("absorbance (AU)")
         verdict = c.verdict.split(":")[0].lower()
         conv = c.conversion

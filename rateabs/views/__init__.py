@@ -226,6 +226,8 @@ def each_trace(file: str, ts, names, fn) -> list[tuple]:
         ok = g.usable[i]
         try:
             out.append((name, fn(name, g.times[i][ok], g.values[i][ok]), None))
+        except UsageError as exc:            # an option this trace cannot take (--fit-from)
+            raise exc.located(file) from None
         except AnalysisError as exc:
             if len(names) == 1:
                 raise exc.located(file) from None

@@ -20,7 +20,13 @@ from . import (
     time_settings,
     write_outputs,
 )
-from .ratelaw import interval_text, param_text, reader_lines, warning_block
+from .ratelaw import (
+    fit_from_settings,
+    interval_text,
+    param_text,
+    reader_lines,
+    warning_block,
+)
 
 
 def _minutes(p: dict | None) -> str:
@@ -121,7 +127,8 @@ def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
 
     def one(name, t, y):
         return assess(t, y, name, target=o.target / 100, order=o.order, level=o.level,
-                      fix=o.fix, photometry=ph, end_absorbance=o.end_absorbance, drift=o.drift)
+                      fix=o.fix, photometry=ph, end_absorbance=o.end_absorbance, drift=o.drift,
+                      fit_from=o.fit_from)
 
     results, warnings, done = [], list(ts.info.get("warnings", [])), {}
     for name, c, why in each_trace(o.file, ts, names, one):
@@ -142,7 +149,7 @@ def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
                 "fixed": o.fix, "c0_M": ph.c0_M, "epsilon": ph.epsilon,
                 "epsilon_product": ph.epsilon_product, "pathlength_cm": ph.pathlength_cm,
                 "end_absorbance": o.end_absorbance, **time_settings(ts.info),
-                **origin_settings(ts.info, t0s),
+                **origin_settings(ts.info, t0s), **fit_from_settings(ts.info, o.fit_from),
                 "columns_set_aside": ts.info.get("set_aside") or {},
                 "interval": "profile-likelihood interval of the rate mapped through t(rate); "
                             "the envelope of every order that carries weight",
@@ -151,7 +158,7 @@ def compute_completion(o: CompletionOptions, partial: bool = False) -> View:
                         "charge too when it is given), the fit passes the quality gate and the "
                         "end point neither stalls short of the charge nor lies below zero"}
     doc = document("completion", [o.file], settings, results, warnings)
-    head = [f"completion: {o.file}", *reader_lines(ts, t0s),
+    head = [f"completion: {o.file}", *reader_lines(ts, t0s, o.fit_from),
             f"target: {o.target:g} % conversion "
             + ("of the charge" if ph.c0_M is not None or o.end_absorbance is not None
                else "of the fitted change (no charge given)")

@@ -21,19 +21,39 @@ from . import (
 )
 
 
-def reader_lines(ts, t0s=()) -> list[str]:
+def reader_lines(ts, t0s=(), fit_from: float | None = None) -> list[str]:
     """What the reader decided, for the head of a table: the time column and its unit, where
-    times are counted from (``t0s``: each fitted trace's first usable reading, s in the file),
-    and every column it set aside (never read as a trace)."""
+    times are counted from (``t0s``: each fitted trace's first usable reading, s in the file;
+    or ``fit_from``, the --fit-from time), and every column it set aside (never read as a
+    trace)."""
     info = ts.info
     lines = [f"time: {time_words(info)}"]
-    if len(t0s):
+    if fit_from is not None:
+        lines.append(f"time origin: {fit_from_words(info, fit_from)}")
+    elif len(t0s):
         lines.append(f"time origin: {origin_words(info, t0s)}")
     aside = info.get("set_aside") or {}
     if aside:
         lines.append("columns set aside (not traces): " + ", ".join(
             f"{col!r} ({role})" for col, role in aside.items()))
     return lines
+
+
+def fit_from_words(info: dict, fit_from: float) -> str:
+    """Where times are counted from with --fit-from, in words."""
+    from . import file_time_text
+
+    return (f"--fit-from {file_time_text(fit_from, info)} in the file: the readings before it "
+            "are not fitted, and A0, the conversion and every time are counted from it (the "
+            "reaction's start as given)")
+
+
+def fit_from_settings(info: dict, fit_from: float | None) -> dict:
+    """The settings entries of a --fit-from run (time origin in s and in words)."""
+    if fit_from is None:
+        return {"fit_from_s": None}
+    return {"fit_from_s": fit_from, "times_counted_from": "--fit-from",
+            "time_origin_s": fit_from, "time_origin_in_words": fit_from_words(info, fit_from)}
 
 
 def warning_block(warnings: list[str]) -> str:
@@ -65,10 +85,13 @@ def _fit_one(o: RatelawOptions, ph):
 
     def one(name, t, y):
         law = fit_trace(t, y, name, order=o.order, photometry=ph, fix=o.fix, ci=o.ci,
-                        level=o.level, expect=o.expect, a0=o.a0, b0=o.b0, drift=o.drift)
+                        level=o.level, expect=o.expect, a0=o.a0, b0=o.b0, drift=o.drift,
+                        fit_from=o.fit_from)
         gg = None
         if o.guggenheim is not None:
-            gg = guggenheim(t, y, None if o.guggenheim == 0 else o.guggenheim, level=o.level)
+            keep = t >= o.fit_from if o.fit_from is not None else slice(None)
+            gg = guggenheim(t[keep], y[keep], None if o.guggenheim == 0 else o.guggenheim,
+                            level=o.level)
         return law, gg
 
     return one
@@ -193,13 +216,14 @@ def compute_ratelaw(o: RatelawOptions) -> View:
                 "epsilon": ph.epsilon, "epsilon_product": ph.epsilon_product,
                 "pathlength_cm": ph.pathlength_cm, "c0_M": ph.c0_M, "fixed": o.fix,
                 **time_settings(ts.info), **origin_settings(ts.info, t0s),
+                **fit_from_settings(ts.info, o.fit_from),
                 "columns_set_aside": ts.info.get("set_aside") or {}, "expect": o.expect,
                 "guggenheim_delta_s": o.guggenheim, "pseudo_first_order": series}
     doc = document("ratelaw", [o.file], settings, results, warnings)
     excess = dict(zip(series["traces"], series["conc_M"], strict=True)) if series else {}
     flat = [_flat(r, excess) for r in results] + ([_series_row(series)] if series else [])
     cols = list(dict.fromkeys(k for f in flat for k in f))
-    head = [f"ratelaw: {o.file}", *reader_lines(ts, t0s),
+    head = [f"ratelaw: {o.file}", *reader_lines(ts, t0s, o.fit_from),
             "order: " + ("chosen by evidence (AICc over orders 0, 1, 2)" if o.order == "auto"
                          else f"{o.order} (given)") + f"; baseline drift: {o.drift}"]
     return View(doc, _text(results, laws, series, head, doc["warnings"], o.level),
