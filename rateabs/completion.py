@@ -100,6 +100,9 @@ FLAGS = {
     "delayed_start": "the trace stays flat before the reaction starts (an induction period): "
                      "the fit, its conversion and times count from the wrong moment; refit "
                      "with --fit-from",
+    "stall_suspected": "without the charge, the shape of the trace says the reaction levels "
+                       "off short of its end (a law whose rate constant decays fits far "
+                       "better): the end point reached is not completion",
 }
 
 
@@ -475,6 +478,9 @@ def assess(t, y, name: str = "trace", *, target: float = 0.99, order: str = "aut
     t_now = float(np.max(law.fit.x))             # counted from the time origin
     rising = law.fit.value("A0") < law.fit.predict(t_now)
     charge = charge_of(photometry, end_absorbance, bool(rising))
+    if charge is not None and "stall_suspected" in law.flags:     # the charge decides
+        law.flags.remove("stall_suspected")
+        law.notes[:] = [n for n in law.notes if not n.startswith("STALL SUSPECTED")]
     forecasts, notes, flags = _forecasts(law, target, t_now, level, charge, drift)
     if charge is not None:
         forecasts, set_aside = _consistent_with_charge(forecasts, law.model)
@@ -706,13 +712,16 @@ def _charge_flags(main: Forecast, r: FitResult, flags, notes, charge) -> None:
 
 def _call(forecasts, flags, quality: dict, target, c_conv) -> tuple[bool, str]:
     """The complete / not complete call and the verdict in words."""
-    blockers = [f for f in ("delayed_start", "misfit", "stall",
+    blockers = [f for f in ("delayed_start", "stall_suspected", "misfit", "stall",
                             "charge_mismatch", "end_below_zero", "not_identifiable",
                             "no_end_point") if f in flags]
     if blockers:
         reasons = {"misfit": "the rate law does not fit the trace",
                    "delayed_start": "the reaction starts late (an induction period): refit "
                                     "with --fit-from",
+                   "stall_suspected": "the trace levels off as a stalled reaction does, short "
+                                      "of its end; without the charge (--c0 with --epsilon, or "
+                                      "--end-absorbance) completion is not shown",
                    "stall": "the reaction stalls short of the charge",
                    "charge_mismatch": "the change does not match the charge",
                    "end_below_zero": "the end point is not physical",

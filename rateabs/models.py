@@ -440,6 +440,43 @@ def delayed(model: Model) -> Model:
                  model.source, model.offsets)
 
 
+def decaying_first_order(t, A0, Aend, k, kd):
+    """First order whose rate constant decays at first order, k exp(-kd t) (a catalyst or an
+    enzyme that dies as it works): ln([A]/[A]0) = -(k/kd)(1 - exp(-kd t)), so the reaction
+    levels off at the fraction 1 - exp(-k/kd) of the change towards ``Aend`` (integrated by
+    hand from d ln[A]/dt = -k exp(-kd t); common practice)."""
+    with np.errstate(all="ignore"):
+        kd_safe = np.where(kd > 0, kd, 1.0)
+        a = np.where(kd > 0, k * -np.expm1(-kd_safe * t) / kd_safe, k * t)
+    return Aend + (A0 - Aend) * np.exp(-a)
+
+
+def _guess_decaying(t, y):
+    """Start of :func:`decaying_first_order`: the first-order guess read as a stall that
+    levels off at one of a few fractions of its change (the best of them by RSS)."""
+    g = guess_decay(t, y, 1)
+    best = None
+    for frac in (0.95, 0.8, 0.6, 0.4, 0.2):
+        alpha = -np.log(1 - frac)
+        for scale in (0.5, 1.0):
+            kd = g["k"] * scale
+            p = {"A0": g["A0"], "Aend": g["A0"] - (g["A0"] - g["Ainf"]) / frac,
+                 "k": alpha * kd, "kd": kd}
+            r = y - decaying_first_order(t, **p)
+            rss = float(r @ r)
+            if np.isfinite(rss) and (best is None or rss < best[0]):
+                best = (rss, p)
+    return best[1] if best else {"A0": g["A0"], "Aend": g["Ainf"], "k": g["k"], "kd": 0.0}
+
+
+#: First order with a rate constant that decays (a reaction that stalls short of its charge).
+DECAYING_FIRST_ORDER = Model(
+    "1 stalling", decaying_first_order, ("A0", "Aend", "k", "kd"), _guess_decaying,
+    {"k": 0.0, "kd": 0.0}, {}, {"A0": "AU", "Aend": "AU", "k": "1/s", "kd": "1/s"},
+    "A = Aend + (A0 - Aend) exp(-(k/kd)(1 - exp(-kd t)))", "common practice",
+    ("A0", "Aend"))
+
+
 RATE_LAWS = {
     "0": Model("0", order0, ("A0", "k"), _guess_order0, {}, {}, {"A0": "AU", "k": "AU/s"},
                "A = A0 + k t", "Atkins, Physical Chemistry", ("A0",)),

@@ -23,6 +23,7 @@ from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
 from .fitting import Comparison, FitResult, Param, compare, f_test, fd_step, fit, fmt_p, fmt_pm
 from .models import (
+    DECAYING_FIRST_ORDER,
     LINE,
     RATE_LAWS,
     Model,
@@ -92,7 +93,7 @@ class RateLawResult:
     The fit counts time from ``t0`` (s in the file's own times): the file's zero, or the first
     usable reading where that lies far from it (:func:`rateabs.models.time_origin`), or
     ``fit_from`` where the user gave one (the readings before it are not fitted); A0 is the
-    absorbance at that origin. ``shape`` is a delayed start the data show
+    absorbance at that origin. ``shape`` is a delayed start or a stall the data show
     (:func:`other_shape`), else None.
     """
 
@@ -471,7 +472,8 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     choice in which orders 1 and 2 cannot be fitted with a free end point (a trace too straight
     to show it) fits them with the end point the charge gives (:func:`fit_at_charge`), so that
     the orders are compared on the evidence. A chosen law that fails the fit-quality gate, or
-    needs a drift term, is checked against a delayed start (:func:`other_shape`).
+    needs a drift term, is checked against a delayed start and a stalling reaction
+    (:func:`other_shape`).
     """
     if order not in ORDERS:
         raise UsageError(f"unknown order {order!r}", f"use one of {', '.join(ORDERS)}")
@@ -595,17 +597,25 @@ def _fit_tied_orders(t, y, fits, failed, end, fix, level) -> list[str]:
     return done
 
 
-#: A delayed start is said when its law beats every plain candidate by more than
+#: A delayed start or a stall is said when its law beats every plain candidate by more than
 #: this ΔAICc (:data:`EVIDENCE_DELTA`: the plain laws then have essentially no support).
 SHAPE_DELTA = EVIDENCE_DELTA
+#: A stall is said when the upper bound of the fraction of its change the stalling law levels
+#: off at lies below this.
+STALL_BELOW = 0.95
 
 
 def other_shape(t, y, law: RateLawResult, started: bool) -> dict | None:
-    """A delayed start, where the data show one: the chosen law fails the quality gate or
-    needs a drift term, and the chosen order's law flat at A0 until a delay td
-    (:func:`rateabs.models.delayed`) fits far better (ΔAICc over :data:`SHAPE_DELTA` below
-    every plain candidate fitted), with at least two readings flat before td. Not when
-    ``started``: --fit-from already set the start.
+    """A delayed start or a stall, where the data show one: the chosen law fails the quality
+    gate or needs a drift term, and a law of that shape fits far better (ΔAICc over
+    :data:`SHAPE_DELTA` below every plain candidate fitted).
+
+    * delayed start: the chosen order's law, flat at A0 until a delay td
+      (:func:`rateabs.models.delayed`); said when td leaves at least two readings flat before
+      it (not when ``started``: --fit-from already set the start);
+    * stall: first order with a rate constant that decays at first order
+      (:data:`rateabs.models.DECAYING_FIRST_ORDER`), said when the fraction of its change it
+      levels off at is below :data:`STALL_BELOW` at the upper bound.
 
     Returns {"kind", "model", "delta_aicc", "params" (JSON objects), ...} or None."""
     plain = [r for r in law.fits.values() if r.success and math.isfinite(r.aicc)]
@@ -623,6 +633,14 @@ def other_shape(t, y, law: RateLawResult, started: bool) -> dict | None:
         if (r is not None and r.success and math.isfinite(r.aicc) and best - r.aicc > SHAPE_DELTA
                 and int(np.sum(t < td.value)) >= 2):
             found.append(("delay", r, {"td_s": td}))
+    try:
+        r = fit(DECAYING_FIRST_ORDER, t, y, ci="asymptotic", level=law.fit.level)
+    except AnalysisError:
+        r = None
+    if r is not None and r.success and math.isfinite(r.aicc) and best - r.aicc > SHAPE_DELTA:
+        level = _stall_level(r)
+        if level.ci_high < STALL_BELOW:
+            found.append(("stall", r, {"levels_off_at": level}))
     if not found:
         return None
     kind, r, extra = min(found, key=lambda f: f[1].aicc)
@@ -632,11 +650,27 @@ def other_shape(t, y, law: RateLawResult, started: bool) -> dict | None:
             **{k: shown(p) for k, p in extra.items()}, "_fit": r}
 
 
-_SHAPE_EQUATIONS = {"delay": "A = A0 until td, then the law in t - td"}
+_SHAPE_EQUATIONS = {"delay": "A = A0 until td, then the law in t - td",
+                    "stall": DECAYING_FIRST_ORDER.equation}
+
+
+def _stall_level(r: FitResult) -> Param:
+    """The fraction of its change a stalling law levels off at, 1 - exp(-k/kd), with its
+    delta-method SE and t interval."""
+    from .completion import delta_se
+
+    def g(p):
+        return -math.expm1(-p["k"] / p["kd"]) if p["kd"] > 0 else 1.0
+
+    v = g(r.values())
+    se = delta_se(r, g)
+    tq = t_two_sided(r.level, max(r.dof, 1))
+    return Param("levels_off_at", v, se, max(v - tq * se, 0.0), min(v + tq * se, 1.0),
+                 "asymptotic", "fraction of its change")
 
 
 def _shape_notes(law: RateLawResult) -> None:
-    """The flag and the note of a delayed start (:func:`other_shape`)."""
+    """The flag and the note of a delayed start or a stall (:func:`other_shape`)."""
     sh = law.shape
     if sh is None:
         return
@@ -653,6 +687,20 @@ def _shape_notes(law: RateLawResult) -> None:
             f"above counts from {law.t0:g} s, so its k, conversion and times are not the "
             f"reaction's: refit with --fit-from {_round_time(td.value)} s to count from the "
             "start")
+    else:
+        lv = sh["levels_off_at"]
+        law.flags.append("stall_suspected")
+        drift = law.drift
+        why = (f" (the drift of {fmt_pm(drift.value * 6e4, drift.se * 6e4)} mAU/min fitted with "
+               f"order {law.order} most likely stands for that difference, not for the "
+               "baseline)" if drift is not None else "")
+        law.notes.append(
+            f"STALL SUSPECTED: the trace does not approach its end as order {law.order} "
+            f"does{why}: a first-order law whose rate constant decays (a dying catalyst or "
+            f"enzyme) fits far better (ΔAICc {sh['delta_aicc']:.0f}) and levels off at "
+            f"{100 * lv['value']:.0f} % [{100 * lv['ci_low']:.0f}, {100 * lv['ci_high']:.0f}] "
+            "of the change it set out on. The end point reached is then not the reaction's "
+            "end: give the charge (--c0 with --epsilon, or --end-absorbance) to test it")
 
 
 def _round_time(x: float) -> str:
@@ -770,6 +818,8 @@ FLAGS = {
                             "nearly straight trace), not on evidence against them",
     "delayed_start": "the trace stays flat before the reaction starts (an induction period): "
                      "a delayed law fits far better; refit with --fit-from",
+    "stall_suspected": "the trace levels off faster than the law allows: a law whose rate "
+                       "constant decays (a reaction that stops short) fits far better",
 }
 
 
