@@ -45,7 +45,11 @@ _KSE = re.compile(r"^(k_se|se|sd|k_sd|sigma|k_per_s_se|err|error)([\s_(\[]|$)", 
 
 @dataclass
 class TemperatureAnalysis:
-    """Arrhenius and Eyring parameters and the straight-line fits behind them."""
+    """Arrhenius and Eyring parameters and the straight-line fits behind them.
+
+    ``params``: Ea (kJ/mol), lnA (the intercept of ln k against 1/T, A in ``k_unit``: its SE
+    and interval are the ones the fit gives, symmetric on this scale), A (the same interval
+    mapped by exp, asymmetric), dH (kJ/mol) and dS (J/(mol K))."""
 
     T: np.ndarray
     k: np.ndarray
@@ -311,6 +315,8 @@ def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s") -> T
     es, ei = ey.params["slope"], ey.params["intercept"]
     params = {
         "Ea": scaled(s, -R / 1000, "Ea", "kJ/mol"),
+        "lnA": Param("lnA", a.value, a.se, a.ci_low, a.ci_high, a.ci_method,
+                     f"ln of A in {k_unit}"),
         "A": scaled(a, 1, "A", k_unit, exp=True),
         "dH": scaled(es, -R / 1000, "dH", "kJ/mol"),
         "dS": scaled(ei, R, "dS", "J/(mol K)", offset=-R * math.log(KB / H)),

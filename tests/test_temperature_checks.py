@@ -344,3 +344,38 @@ def test_a_workbook_sheet_is_chosen_said_and_refused_for_a_csv(tmp_path):
     (tmp_path / "t.csv").write_text("T (C),k (1/s)\n20,0.001\n30,0.002\n40,0.004\n")
     r = run(main, ["temperature", str(tmp_path / "t.csv"), "--sheet", "x"])
     assert r.exit_code == 2 and "--sheet applies to .xlsx workbooks only" in r.output
+
+
+# --------------------------------------------------------------------------- a physical chemist's
+# audit: truth from Arrhenius' and Eyring's equations with CODATA constants (scipy.constants),
+# references by scipy.stats.linregress and numpy.polyfit (reference library)
+
+
+def test_ln_a_is_given_with_the_intercepts_se_and_interval(tmp_path, monkeypatch):
+    """Only A was printed, as '2.36e+10 ± 4.2e+09', an SE that means little for a quantity
+    whose interval is exp of a symmetric one. ln A (the intercept) is now given with its SE and
+    interval, equal to scipy.stats.linregress's intercept and intercept_stderr (t interval,
+    scipy.stats.t); A keeps the mapped interval without a ±; the figure's title gives ln A."""
+    from scipy import stats
+
+    from rateabs.options import TemperatureOptions
+    from rateabs.plots.laws import arrhenius_plot
+    from rateabs.views.temperature import compute_temperature
+
+    t_c, t_k, k, *_ = _eyring_truth()
+    f = _write(tmp_path / "k.csv", "T (C),k (1/s)", zip(t_c, k, strict=True))
+    lnA = _doc(f)["results"][0]["params"]["lnA"]
+    ref = stats.linregress(1 / t_k, np.log(k))
+    half = stats.t.ppf(0.975, t_k.size - 2) * ref.intercept_stderr
+    assert lnA["value"] == pytest.approx(ref.intercept, rel=1e-9)
+    assert lnA["se"] == pytest.approx(ref.intercept_stderr, rel=1e-6)
+    assert lnA["ci_low"] == pytest.approx(ref.intercept - half, rel=1e-6)
+    assert lnA["ci_high"] == pytest.approx(ref.intercept + half, rel=1e-6)
+    table = run("temperature", f, "--no-plots").stdout
+    row = next(ln for ln in table.splitlines() if ln.startswith("ln A "))
+    assert f"{ref.intercept:.2f}" in row and "ln of A in 1/s" in row
+    a_row = next(ln for ln in table.splitlines() if ln.startswith("A "))
+    assert "±" not in a_row and "(see ln A)" in a_row
+    figs = _captured(monkeypatch)
+    arrhenius_plot(compute_temperature(TemperatureOptions(str(f))).analysis, tmp_path / "a.png")
+    assert "ln A = " in figs[0].axes[0].get_title()

@@ -271,7 +271,8 @@ def arrhenius_plot(a, path, predictions=()):
             ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, fontsize=7.5)
         p = a.params
         axes[0].set_title(f"Arrhenius: Ea = {fmt_pm(p['Ea'].value, p['Ea'].se)} kJ/mol\n"
-                          f"A = {fmt_pm(p['A'].value, p['A'].se)} {p['A'].unit}", fontsize=9.5)
+                          f"ln A = {fmt_pm(p['lnA'].value, p['lnA'].se)} "
+                          f"(A in {p['A'].unit})", fontsize=9.5)
         axes[1].set_title(f"Eyring: ΔH‡ = {fmt_pm(p['dH'].value, p['dH'].se)} kJ/mol\n"
                           f"ΔS‡ = {fmt_pm(p['dS'].value, p['dS'].se)} J/(mol K)", fontsize=9.5)
         return save(fig, path)

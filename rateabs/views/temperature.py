@@ -17,6 +17,7 @@ SOURCES = {"header": "from the header", "--temp-unit": "from --temp-unit",
 
 def _results(a, preds) -> list[dict]:
     results = [{"model": "arrhenius", "params": {"Ea": a.params["Ea"].to_dict(),
+                                                  "lnA": a.params["lnA"].to_dict(),
                                                   "A": a.params["A"].to_dict()},
                 "equation": "ln k = ln A - Ea/(R T)", "sigma_lnk": a.arrhenius.sigma},
                {"model": "eyring", "params": {"dH": a.params["dH"].to_dict(),
@@ -25,6 +26,21 @@ def _results(a, preds) -> list[dict]:
     if preds:
         results.append({"model": "prediction", "predictions": preds})
     return results
+
+
+#: Row labels of the table.
+LABELS = {"lnA": "ln A", "dH": "dH‡", "dS": "dS‡"}
+
+
+def _row(name: str, p) -> dict:
+    """One table row: the value rounded to its SE, the interval likewise; A, whose interval is
+    ln A's mapped by exp (asymmetric), without a ± (its SE means little on a log scale)."""
+    from ..fitting import fmt_interval
+
+    lo, hi = fmt_interval(p.ci_low, p.ci_high, se=None if name == "A" else p.se)[1:-1].split(
+        ", ")
+    value = f"{p.value:.4g} (see ln A)" if name == "A" else fmt_pm(p.value, p.se)
+    return {"p": LABELS.get(name, name), "v": value, "lo": lo, "hi": hi, "u": p.unit}
 
 
 def _prediction_line(pr: dict) -> str:
@@ -99,8 +115,7 @@ def compute_temperature(o: TemperatureOptions) -> View:
                 "weighting": a.arrhenius.weighting, "level": o.level,
                 "constants": "scipy.constants (CODATA)"}
     doc = document("temperature", [o.file], settings, _results(a, preds), warnings)
-    rows = [{"p": n, "v": fmt_pm(p.value, p.se), "lo": p.ci_low, "hi": p.ci_high, "u": p.unit}
-            for n, p in a.params.items()]
+    rows = [_row(n, p) for n, p in a.params.items()]
     head = [f"temperature: {o.file}", _columns_line(cols, kunit, a.arrhenius.weighting)]
     if cols["not_used"]:
         head.append("columns not used: " + ", ".join(repr(c) for c in cols["not_used"]))
