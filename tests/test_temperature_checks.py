@@ -379,3 +379,31 @@ def test_ln_a_is_given_with_the_intercepts_se_and_interval(tmp_path, monkeypatch
     figs = _captured(monkeypatch)
     arrhenius_plot(compute_temperature(TemperatureOptions(str(f))).analysis, tmp_path / "a.png")
     assert "ln A = " in figs[0].axes[0].get_title()
+
+
+def test_eyring_states_its_assumptions_and_the_standard_state_of_a_second_order_k(
+        tmp_path, monkeypatch):
+    """A second-order k makes dS depend on the standard-state concentration (k = (kB T/h)
+    (c°)^-1 exp(dS/R) exp(-dH/(R T)), c° = 1 mol/L; Eyring 1935): the head of the table and
+    the settings now state it with the transmission coefficient, and the Eyring figure's axis
+    carries k's unit (it read ln((k/T) / (1/(s K))) for k in M^-1 s^-1)."""
+    from rateabs.options import TemperatureOptions
+    from rateabs.plots.laws import arrhenius_plot
+    from rateabs.views.temperature import compute_temperature
+
+    t_c, t_k, k, *_ = _eyring_truth()
+    second = _write(tmp_path / "k2.csv", "T (C),k (L mol^-1 s^-1)", zip(t_c, k, strict=True))
+    first = _write(tmp_path / "k1.csv", "T (C),k (1/s)", zip(t_c, k, strict=True))
+    d2, d1 = _doc(second), _doc(first)
+    _assert_params(d2, _reference(t_k, k))          # the same numbers, M^-1 s^-1 as a number
+    assert d2["settings"]["eyring"] == {"transmission_coefficient": 1.0,
+                                        "standard_state_mol_per_L": 1.0}
+    assert d2["results"][1]["standard_state_mol_per_L"] == 1.0
+    assert d1["settings"]["eyring"]["standard_state_mol_per_L"] is None
+    head2 = run("temperature", second, "--no-plots").stdout.splitlines()[2]
+    assert "transmission coefficient 1" in head2 and "c° = 1 mol/L" in head2
+    assert "c°" not in run("temperature", first, "--no-plots").stdout
+    figs = _captured(monkeypatch)
+    arrhenius_plot(compute_temperature(TemperatureOptions(str(second))).analysis,
+                   tmp_path / "a.png")
+    assert figs[0].axes[1].get_ylabel() == "ln((k/T) / (M^-1 s^-1 K^-1))"

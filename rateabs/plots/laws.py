@@ -249,7 +249,8 @@ def arrhenius_plot(a, path, predictions=()):
         lo, hi = min(x.min(), *px) if px.size else x.min(), max(x.max(), *px) if px.size else (
             x.max())
         for ax, r, y, lab in ((axes[0], a.arrhenius, np.log(a.k), f"ln(k / ({a.k_unit}))"),
-                              (axes[1], a.eyring, np.log(a.k / a.T), "ln((k/T) / (1/(s K)))")):
+                              (axes[1], a.eyring, np.log(a.k / a.T),
+                               f"ln((k/T) / ({a.k_unit} K^-1))")):
             xs = np.linspace(lo - 0.02 * (hi - lo), hi + 0.02 * (hi - lo), 100)
             v = r.values()
             fit_y = v["intercept"] + v["slope"] * xs / 1000

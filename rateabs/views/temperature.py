@@ -15,6 +15,29 @@ SOURCES = {"header": "from the header", "--temp-unit": "from --temp-unit",
            "values": "from the values"}
 
 
+#: The unit a second-order k is analysed in (rateabs.temperature.K_UNITS[2]).
+SECOND_ORDER = "M^-1 s^-1"
+
+
+def eyring_terms(k_unit: str) -> dict:
+    """What Eyring's dS rests on besides the data: the transmission coefficient (1) and, for a
+    second-order k, the standard-state concentration its unit carries (k = (kB T/h) (c°)^-1
+    exp(dS/R) exp(-dH/(R T)) with c° = 1 mol/L: k in M^-1 s^-1 then enters as a number)."""
+    second = k_unit == SECOND_ORDER
+    return {"transmission_coefficient": 1.0,
+            "standard_state_mol_per_L": 1.0 if second else None}
+
+
+def eyring_words(k_unit: str) -> str:
+    """The head line that states Eyring's assumptions (:func:`eyring_terms`)."""
+    text = ("Eyring: k = (kB T/h) exp(dS‡/R) exp(-dH‡/(R T)), transmission coefficient 1, "
+            "kB, h and R from CODATA (scipy.constants)")
+    if k_unit == SECOND_ORDER:
+        text += ("; k is second order (M^-1 s^-1), so dS‡ refers to the standard state "
+                 "c° = 1 mol/L (another standard state shifts dS‡ by R ln c°)")
+    return text
+
+
 def _results(a, preds) -> list[dict]:
     results = [{"model": "arrhenius", "params": {"Ea": a.params["Ea"].to_dict(),
                                                   "lnA": a.params["lnA"].to_dict(),
@@ -22,7 +45,8 @@ def _results(a, preds) -> list[dict]:
                 "equation": "ln k = ln A - Ea/(R T)", "sigma_lnk": a.arrhenius.sigma},
                {"model": "eyring", "params": {"dH": a.params["dH"].to_dict(),
                                                "dS": a.params["dS"].to_dict()},
-                "equation": "ln(k/T) = ln(kB/h) + dS/R - dH/(R T)", "sigma_lnk": a.eyring.sigma}]
+                "equation": "ln(k/T) = ln(kB/h) + dS/R - dH/(R T)", "sigma_lnk": a.eyring.sigma,
+                **eyring_terms(a.k_unit)}]
     if preds:
         results.append({"model": "prediction", "predictions": preds})
     return results
@@ -113,10 +137,11 @@ def compute_temperature(o: TemperatureOptions) -> View:
     settings = {"columns": cols, "n": int(T.size), "n_temperatures": int(np.unique(T).size),
                 "T_range_K": [float(T.min()), float(T.max())], "k_unit": kunit,
                 "weighting": a.arrhenius.weighting, "level": o.level,
-                "constants": "scipy.constants (CODATA)"}
+                "constants": "scipy.constants (CODATA)", "eyring": eyring_terms(kunit)}
     doc = document("temperature", [o.file], settings, _results(a, preds), warnings)
     rows = [_row(n, p) for n, p in a.params.items()]
-    head = [f"temperature: {o.file}", _columns_line(cols, kunit, a.arrhenius.weighting)]
+    head = [f"temperature: {o.file}", _columns_line(cols, kunit, a.arrhenius.weighting),
+            eyring_words(kunit)]
     if cols["not_used"]:
         head.append("columns not used: " + ", ".join(repr(c) for c in cols["not_used"]))
     flat = [{"parameter": n, "value": p.value, "se": p.se, "ci_low": p.ci_low,
