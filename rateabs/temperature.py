@@ -31,6 +31,7 @@ from .units import (
     TEMPERATURE_NAMES,
     celsius_to_kelvin,
     fahrenheit_to_kelvin,
+    rate_constant_order,
     rate_constant_unit,
 )
 
@@ -38,8 +39,8 @@ R = constants.R
 KB = constants.k
 H = constants.h
 
-_T = re.compile(r"^(t|temp|temperature|t_k|t_c|theta)([\s_(\[]|$)", re.I)
-_K = re.compile(r"^(k|kobs|k_obs|rate[\s_]?constant|k_per_s)([\s_(\[]|$)", re.I)
+_T = re.compile(r"^(t|temp|temperature|t_k|t_c|theta|θ)([\s_(\[/]|$)", re.I)
+_K = re.compile(r"^(k|kobs|k_obs|rate[\s_]?constant|k_per_s)([\s_(\[/]|$)", re.I)
 _KSE = re.compile(r"^(k_se|se|sd|k_sd|sigma|k_per_s_se|err|error)([\s_(\[]|$)", re.I)
 
 
@@ -149,7 +150,13 @@ _K_NAME = re.compile(r"^\s*(k|kobs|k_obs|rate[\s_]?constant)[\s_,:]*", re.I)
 
 def _stated_unit(header: str, bare: bool) -> str | None:
     """The unit a header states: in brackets, or (``bare``) what follows the name of k when it
-    reads as 'per ...' or '1/...'; None when it states none."""
+    reads as 'per ...' or '1/...'; or, in the quantity-calculus form 'k/s-1' or 'k / (L mol-1
+    s-1)' (the quantity divided by its unit, IUPAC Green Book, section 1.3), what follows the
+    slash where that is itself a rate-constant unit; None when it states none."""
+    qc = re.match(r"^\s*[^\s/(\[]+\s*/\s*\(?\s*(?P<u>[^()]+?)\s*\)?\s*$", header)
+    if qc and (rate_constant_unit(qc.group("u")) or rate_constant_order(qc.group("u"))
+               is not None):
+        return qc.group("u")
     m = re.search(r"[(\[]\s*(.+?)\s*[)\]]\s*$", header)
     if m:
         return m.group(1)
@@ -172,6 +179,14 @@ def k_unit_of(k_header: str, se_header: str | None, path: str = "table") -> dict
                     "not depend on it, A and dS do); put it in the header, e.g. 'k (1/min)'"]}
     got = rate_constant_unit(said)
     if got is None:
+        other = rate_constant_order(said)
+        if other is not None:
+            raise InputError(f"the header {k_header!r} names {said!r}, the unit of a "
+                             f"{'zero' if other == 0 else 'third'}-order rate constant; "
+                             "Arrhenius and Eyring here take first-order k (1/s, 1/min ...) or "
+                             "second-order k (M^-1 s^-1, L mol^-1 s^-1 ...)",
+                             "give k of a first- or second-order law, in 1/s or M^-1 s^-1",
+                             file=path, column=k_header)
         raise InputError(f"the header {k_header!r} names the unit {said!r}, which is not a "
                          "rate-constant unit", "write it as e.g. 'k (1/s)', 'k (1/min)' or "
                          "'k (M^-1 s^-1)'", file=path, column=k_header)

@@ -378,12 +378,35 @@ def _per_molar(m: re.Match) -> float | None:
         return None
 
 
+#: Superscript characters as headers write powers (s⁻¹, dm³, 10⁻³).
+_SUPERSCRIPT = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹⁻⁺", "0123456789-+")
+#: A power of ten in front of a unit ("10^-3 s^-1", "1e-3 s^-1"): the values are in units of
+#: that multiple (quantity calculus, IUPAC Green Book, section 1.3).
+_POWER_OF_TEN = re.compile(r"(?:10\s*\^\s*\(?\s*(?P<e>[-+]?\d+)\s*\)?|1e(?P<f>[-+]?\d+))\s*(?:x\s*)?")
+
+
+def _normal_unit(unit: str) -> str:
+    """A unit written the ways tables write it, in one spelling: superscripts and the minus
+    sign (U+2212) as ASCII powers, dm3 as L and cm3 as mL, 'per' as '/', single spaces."""
+    u = unit.strip().replace("−", "-").replace("·", " ").replace("*", " ").replace("_", " ")
+    u = re.sub(r"([⁻⁺]?[⁰¹²³⁴⁵⁶⁷⁸⁹]+)", lambda m: "^" + m.group(1).translate(_SUPERSCRIPT), u)
+    u = re.sub(r"\bdm\s*\^?\s*3\b", "L", u)
+    u = re.sub(r"\bcm\s*\^?\s*3\b", "mL", u)
+    u = re.sub(r"^per\s+", "/", re.sub(r"\s+per\s+", "/", u))
+    return re.sub(r"\s+", " ", u)
+
+
 def rate_constant_unit(unit: str) -> tuple[int, float] | None:
     """(order, factor) of a rate-constant unit: ``1/min`` -> (1, 1/60) turns k into 1/s;
-    ``mM^-1 s^-1`` -> (2, 1000) turns k into M^-1 s^-1. None for anything else."""
-    u = unit.strip().replace("⁻¹", "^-1").replace("·", " ").replace("*", " ").replace("_", " ")
-    u = re.sub(r"^per\s+", "/", re.sub(r"\s+per\s+", "/", u))
-    u = re.sub(r"\s+", " ", u)
+    ``mM^-1 s^-1`` -> (2, 1000) turns k into M^-1 s^-1; ``dm3 mol-1 s-1`` is L mol^-1 s^-1;
+    ``10^-3 s^-1`` -> (1, 0.001). None for anything else (:func:`rate_constant_order` tells
+    zero- and third-order units apart for a message)."""
+    u = _normal_unit(unit)
+    scale = 1.0
+    p = _POWER_OF_TEN.match(u)
+    if p and p.end() < len(u):
+        scale = 10.0 ** int(p.group("e") or p.group("f"))
+        u = u[p.end():]
     for order, pattern in _RATE_CONSTANT:
         m = pattern.fullmatch(u)
         if not m:
@@ -391,5 +414,29 @@ def rate_constant_unit(unit: str) -> tuple[int, float] | None:
         seconds = time_factor(m.group("t"))
         per_molar = _per_molar(m) if order == 2 else 1.0
         if seconds is not None and per_molar is not None:
-            return order, per_molar / seconds
+            return order, scale * per_molar / seconds
+    return None
+
+
+#: Zero-order (a concentration per time) and third-order (M^-2 per time) rate-constant units.
+_OTHER_ORDER = (
+    (0, re.compile(rf"[kmuµμnp]?M\s*(?:/\s*(?P<t>[a-z]+)|\s+(?P<u>[a-z]+){_INV})", re.I)),
+    (0, re.compile(rf"[kmuµμnp]?mol\s*(?:/\s*L|\s*L{_INV})\s*(?:/\s*(?P<t>[a-z]+)|"
+                   rf"\s+(?P<u>[a-z]+){_INV})", re.I)),
+    (0, re.compile(r"[kmuµμnp]?mol\s*/\s*\(\s*L\s+(?P<t>[a-z]+)\s*\)", re.I)),
+    (3, re.compile(rf"[kmuµμnp]?M\s*(?:\^\s*)?-\s*2\s+(?P<t>[a-z]+){_INV}", re.I)),
+    (3, re.compile(r"(?:1\s*)?/\s*\(\s*[kmuµμnp]?M\s*\^?\s*2\s+(?P<t>[a-z]+)\s*\)", re.I)),
+    (3, re.compile(rf"L\s*\^?\s*2\s+[kmuµμnp]?mol\s*\^?\s*-\s*2\s+(?P<t>[a-z]+){_INV}",
+                   re.I)),
+)
+
+
+def rate_constant_order(unit: str) -> int | None:
+    """0 or 3 for a zero-order (M/s, mol L^-1 s^-1) or third-order (M^-2 s^-1) rate-constant
+    unit, else None (first and second order: :func:`rate_constant_unit`)."""
+    u = _normal_unit(unit)
+    for order, pattern in _OTHER_ORDER:
+        m = pattern.fullmatch(u)
+        if m and time_factor(m.groupdict().get("t") or m.groupdict().get("u") or "") is not None:
+            return order
     return None

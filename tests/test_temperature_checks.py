@@ -407,3 +407,35 @@ def test_eyring_states_its_assumptions_and_the_standard_state_of_a_second_order_
     arrhenius_plot(compute_temperature(TemperatureOptions(str(second))).analysis,
                    tmp_path / "a.png")
     assert figs[0].axes[1].get_ylabel() == "ln((k/T) / (M^-1 s^-1 K^-1))"
+
+
+@pytest.mark.parametrize("t_header,k_header,in_kelvin,to_base", [
+    ("T/K", "k/s-1", True, 1.0),                       # quantity calculus (IUPAC Green Book)
+    ("θ/°C", "k/min-1", False, 1 / 60),
+    ("T (K)", "k (dm3 mol-1 s-1)", True, 1.0),         # 1 dm3 = 1 L
+    ("T (K)", "k (cm3 mol-1 s-1)", True, 1e-3),        # 1 cm3 = 1 mL
+    ("T (K)", "k (M−1 s−1)", True, 1.0),               # U+2212, the minus sign
+    ("T (K)", "k (10^-3 s^-1)", True, 1e-3),           # values in units of 10^-3 s^-1
+    ("T (K)", "k (10⁻³ s⁻¹)", True, 1e-3)])
+def test_table_headers_as_physical_chemists_write_them_are_read(tmp_path, t_header, k_header,
+                                                                 in_kelvin, to_base):
+    """'T/K' and 'θ/°C' found no temperature column; 'k/s-1', 'dm3 mol-1 s-1', 'M−1 s−1' and
+    'k (10^-3 s^-1)' were refused as 'not a rate-constant unit'. Each now gives the numbers
+    numpy.polyfit gives for k in 1/s or M^-1 s^-1 (hand conversion: to_base)."""
+    t_c, t_k, k, *_ = _eyring_truth()
+    temps = t_k if in_kelvin else t_c
+    f = _write(tmp_path / "q.csv", f"{t_header},{k_header}", zip(temps, k / to_base,
+                                                                  strict=True))
+    _assert_params(_doc(f), _reference(t_k, k))
+
+
+@pytest.mark.parametrize("unit,order", [("M/s", "zero"), ("mol L^-1 min^-1", "zero"),
+                                        ("M^-2 s^-1", "third")])
+def test_a_zero_or_third_order_k_is_refused_as_such(tmp_path, unit, order):
+    """'k (M/s)' was refused as 'not a rate-constant unit', which it is; the line now says
+    which order its unit belongs to and what the command takes."""
+    t_c, _, k, *_ = _eyring_truth()
+    r = run("temperature", _write(tmp_path / "z.csv", f"T (C),k ({unit})",
+                                  zip(t_c, k, strict=True)))
+    assert r.exit_code == 3 and len(r.stderr.strip().splitlines()) == 1
+    assert f"the unit of a {order}-order rate constant" in r.stderr and "M^-1 s^-1" in r.stderr
