@@ -22,7 +22,7 @@ from scipy import constants
 
 from .distributions import t_two_sided
 from .errors import AnalysisError, InputError, UsageError
-from .fitting import FitResult, Param, fit
+from .fitting import FitResult, Param, fit, fmt_pm
 from .io import number_column, pick_column
 from .io.headers import temperature_unit
 from .models import LINE
@@ -60,6 +60,7 @@ class TemperatureAnalysis:
     params: dict
     k_unit: str
     warnings: list
+    checks: dict | None = None
 
     def extrapolation(self, T_K: float) -> dict:
         """Where T lies against the measured range: inside or not, how far beyond it (K) and
@@ -128,10 +129,11 @@ def read_temperature_table(df: pd.DataFrame, *, temp_col=None, k_col=None, se_co
     se = None if se is None else se * k_read["se_factor"]
     notes = notes + k_read["notes"]
     unused = [str(c) for c in df.columns if c not in (tc, kc, sc)]
-    return T_K, k, se, {"temperature": tc, "k": kc, "se": sc, "temp_unit": unit,
-                        "temp_unit_source": source, "k_unit_read": k_read["read"],
-                        "k_unit_source": k_read["source"], "k_factor": k_read["factor"],
-                        "not_used": unused, "notes": notes}, k_read["unit"]
+    read = {"temperature": tc, "k": kc, "se": sc, "temp_unit": unit,
+            "temp_unit_source": source, "k_unit_read": k_read["read"],
+            "k_unit_source": k_read["source"], "k_factor": k_read["factor"],
+            "not_used": unused, "notes": notes, "rows": [int(x) for x in lines]}
+    return T_K, k, se, read, k_read["unit"]
 
 
 def bad_se(se) -> np.ndarray:
@@ -285,8 +287,41 @@ def _temperature_unit(T, header: str, given: str | None, path: str) -> tuple[str
                             "--temp-unit F for degrees Fahrenheit)"]
 
 
-def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s") -> TemperatureAnalysis:
-    """Arrhenius (Ea, A) and Eyring (dH, dS) from rate constants at several temperatures."""
+#: One rate constant is said to lie off the line (a warning on a straight plot once in a
+#: hundred) when its externally studentized residual exceeds the Bonferroni limit
+#: t(1 - OUTLIER_ALPHA / (2 n), n - 3) (Cook & Weisberg 1982, Residuals and Influence in
+#: Regression, section 2.2).
+OUTLIER_ALPHA = 0.01
+def off_the_line(r: FitResult, alpha: float = OUTLIER_ALPHA) -> dict | None:
+    """The point farthest off a straight-line fit by its externally studentized residual,
+    where that exceeds the Bonferroni limit: {"index", "t", "limit"}; else None (and None with
+    fewer than 4 points: no degree of freedom is left once a point is set aside)."""
+    from .distributions import t_quantile
+
+    n = r.n
+    if n < 4:
+        return None
+    X = np.column_stack([np.ones(n), r.x]) * r.weights[:, None]
+    e = (r.y - r.fitted) * r.weights
+    h = np.einsum("ij,jk,ik->i", X, np.linalg.pinv(X.T @ X), X)
+    sse = float(e @ e)
+    dof = n - 3
+    with np.errstate(all="ignore"):
+        t = e * np.sqrt(dof / np.maximum(sse * (1 - h) - e * e, 1e-300))
+    i = int(np.argmax(np.abs(t)))
+    limit = float(t_quantile(1 - alpha / (2 * n), dof))
+    if not abs(t[i]) > limit:
+        return None
+    return {"index": i, "t": float(t[i]), "limit": limit}
+
+
+def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s",
+            rows=None) -> TemperatureAnalysis:
+    """Arrhenius (Ea, A) and Eyring (dH, dS) from rate constants at several temperatures.
+
+    The Arrhenius line is checked (``checks``, with a warning for each finding): one rate
+    constant far off it (:func:`off_the_line`). ``rows`` are the points' rows in the file, for
+    the warnings."""
     T_K = np.asarray(T_K, float)
     k = np.asarray(k, float)
     if T_K.size < 3 or np.unique(T_K).size < 3:
@@ -326,6 +361,7 @@ def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s") -> T
         lo, hi = sorted((f * p.ci_low + offset, f * p.ci_high + offset))
         return Param(name, f * p.value + offset, abs(f) * p.se, lo, hi, p.ci_method, unit)
 
+    checks = _check_line(T_K, k, arr, sd, level, rows, warnings)
     s, a = arr.params["slope"], arr.params["intercept"]
     es, ei = ey.params["slope"], ey.params["intercept"]
     params = {
@@ -336,4 +372,30 @@ def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s") -> T
         "dH": scaled(es, -R / 1000, "dH", "kJ/mol"),
         "dS": scaled(ei, R, "dS", "J/(mol K)", offset=-R * math.log(KB / H)),
     }
-    return TemperatureAnalysis(T_K, k, k_se, arr, ey, params, k_unit, warnings)
+    return TemperatureAnalysis(T_K, k, k_se, arr, ey, params, k_unit, warnings, checks)
+
+
+def _check_line(T_K, k, arr: FitResult, sd, level, rows, warnings: list) -> dict:
+    """The Arrhenius line's checks and their warnings (:func:`analyse`)."""
+    rows = list(rows) if rows is not None else [i + 1 for i in range(T_K.size)]
+    where = "row" if rows != [i + 1 for i in range(T_K.size)] else "point"
+    checks = {"outlier": None}
+    ea = -R * arr.value("slope") / 1000
+    out = off_the_line(arr)
+    if out is not None:
+        i = out["index"]
+        keep = np.arange(T_K.size) != i
+        rest = fit(LINE, 1 / T_K[keep], np.log(k[keep]), weighting=arr.weighting,
+                   sd=None if sd is None else sd[keep], level=level)
+        ea_rest = -R * rest.params["slope"].value / 1000
+        ratio = math.exp(arr.y[i] - float(rest.predict(np.array([arr.x[i]]))[0]))
+        checks["outlier"] = {**out, "row": rows[i], "T_K": float(T_K[i]),
+                             "k_over_line": ratio, "Ea_without_kJ_per_mol": ea_rest}
+        warnings.append(
+            f"{where} {rows[i]} ({T_K[i] - 273.15:.1f} C) lies off the Arrhenius line: its k is "
+            f"{ratio:.2g} times the line through the others (studentized residual "
+            f"{out['t']:.1f}, Bonferroni "
+            f"limit {out['limit']:.1f}); without it Ea = "
+            f"{fmt_pm(ea_rest, rest.params['slope'].se * R / 1000)} kJ/mol against "
+            f"{ea:.4g} with it. Check that run; it is kept in the fit above")
+    return checks

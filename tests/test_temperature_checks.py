@@ -439,3 +439,24 @@ def test_a_zero_or_third_order_k_is_refused_as_such(tmp_path, unit, order):
                                   zip(t_c, k, strict=True)))
     assert r.exit_code == 3 and len(r.stderr.strip().splitlines()) == 1
     assert f"the unit of a {order}-order rate constant" in r.stderr and "M^-1 s^-1" in r.stderr
+
+
+def test_one_rate_constant_off_the_line_is_named_with_ea_without_it(tmp_path):
+    """One k three times too large (row 5, 30 C) moved Ea without a word. Now the warning names
+    the row, the factor (3.0 against the line through the others) and Ea without it, equal to
+    numpy.polyfit of the other five; the fit itself keeps every point. A straight set is not
+    flagged."""
+    t_c, t_k, k, *_ = _eyring_truth()
+    bad = k.copy()
+    bad[3] *= 3
+    d = _doc(_write(tmp_path / "o.csv", "T (C),k (1/s)", zip(t_c, bad, strict=True)))
+    out = d["results"][0]["checks"]["outlier"]
+    keep = np.arange(t_c.size) != 3
+    ref = _reference(t_k[keep], k[keep])["Ea"]
+    assert out["row"] == 5 and out["Ea_without_kJ_per_mol"] == pytest.approx(ref, rel=1e-6)
+    assert out["k_over_line"] == pytest.approx(3.0, rel=0.1)
+    said = next(w for w in d["warnings"] if "lies off the Arrhenius line" in w)
+    assert said.startswith("row 5 (30.0 C)") and "it is kept in the fit" in said
+    _assert_params(d, _reference(t_k, bad))
+    clean = _doc(_write(tmp_path / "c.csv", "T (C),k (1/s)", zip(t_c, k, strict=True)))
+    assert clean["results"][0]["checks"]["outlier"] is None

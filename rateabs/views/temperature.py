@@ -42,7 +42,8 @@ def _results(a, preds) -> list[dict]:
     results = [{"model": "arrhenius", "params": {"Ea": a.params["Ea"].to_dict(),
                                                   "lnA": a.params["lnA"].to_dict(),
                                                   "A": a.params["A"].to_dict()},
-                "equation": "ln k = ln A - Ea/(R T)", "sigma_lnk": a.arrhenius.sigma},
+                "equation": "ln k = ln A - Ea/(R T)", "sigma_lnk": a.arrhenius.sigma,
+                "checks": a.checks},
                {"model": "eyring", "params": {"dH": a.params["dH"].to_dict(),
                                                "dS": a.params["dS"].to_dict()},
                 "equation": "ln(k/T) = ln(kB/h) + dS/R - dH/(R T)", "sigma_lnk": a.eyring.sigma,
@@ -120,7 +121,7 @@ def compute_temperature(o: TemperatureOptions) -> View:
     T, k, se, cols, kunit = read_temperature_table(df, temp_col=o.temp_column,
                                                    k_col=o.k_column, se_col=o.se_column,
                                                    temp_unit=o.temp_unit)
-    a = analyse(T, k, se, level=o.level, k_unit=kunit)
+    a = analyse(T, k, se, level=o.level, k_unit=kunit, rows=cols.pop("rows"))
     warnings = list(df.attrs["notes"]) + list(cols["notes"]) + list(a.warnings)
     preds = []
     for tk in o.at:
