@@ -25,7 +25,7 @@ from .errors import AnalysisError, InputError, UsageError
 from .fitting import FitResult, Param, fit, fmt_pm
 from .io import number_column, pick_column
 from .io.headers import temperature_unit
-from .models import LINE
+from .models import LINE, Model
 from .units import (
     FAHRENHEIT_RULE,
     TEMPERATURE_NAMES,
@@ -287,11 +287,53 @@ def _temperature_unit(T, header: str, given: str | None, path: str) -> tuple[str
                             "--temp-unit F for degrees Fahrenheit)"]
 
 
+#: A curved Arrhenius plot is said when the extra-sum-of-squares F-test supports a term in
+#: (1/T)^2 at this level (a strict level: a warning on a straight plot once in a hundred).
+CURVATURE_ALPHA = 0.01
 #: One rate constant is said to lie off the line (a warning on a straight plot once in a
 #: hundred) when its externally studentized residual exceeds the Bonferroni limit
 #: t(1 - OUTLIER_ALPHA / (2 n), n - 3) (Cook & Weisberg 1982, Residuals and Influence in
 #: Regression, section 2.2).
 OUTLIER_ALPHA = 0.01
+def _quadratic(x, a, b, c):
+    """a + b u + c u^2 in u, the standardised 1/T (the F-test does not depend on the scale)."""
+    return a + b * x + c * x * x
+
+
+QUADRATIC = Model("arrhenius+curvature", _quadratic, ("a", "b", "c"),
+                  lambda x, y: dict(zip(("c", "b", "a"), np.polyfit(x, y, 2), strict=True)))
+
+
+def curvature(T_K, k, sd=None, level: float = 0.95) -> dict | None:
+    """The F-test of a term in (1/T)^2 in ln k against the straight Arrhenius line (weights as
+    the line's), and Ea from the straight lines through the lower and the upper half of the
+    temperatures (the ceil(n/2) lowest and highest, at least 3 each), which show how Ea moves
+    without a model of the curve; None with fewer than 5 distinct temperatures (the test would
+    have no more than one degree of freedom)."""
+    from .fitting import f_test
+
+    T_K = np.asarray(T_K, float)
+    if np.unique(T_K).size < 5:
+        return None
+    x = 1.0 / T_K
+    u = (x - float(np.mean(x))) / float(np.std(x))
+    y = np.log(k)
+    weighting = "sd" if sd is not None else "none"
+    line = fit(LINE, u, y, weighting=weighting, sd=sd, level=level)
+    quad = fit(QUADRATIC, u, y, weighting=weighting, sd=sd, level=level)
+    test = f_test(line, quad)
+    order = np.argsort(T_K)
+    half = max(3, -(-T_K.size // 2))
+    ends = {}
+    for name, idx in (("lower", order[:half]), ("upper", order[-half:])):
+        r = fit(LINE, x[idx], y[idx], weighting=weighting, sd=None if sd is None else sd[idx],
+                level=level)
+        ends[name] = {"Ea_kJ_per_mol": -R * r.value("slope") / 1000,
+                      "se": R * r.params["slope"].se / 1000,
+                      "T_K": [float(T_K[idx].min()), float(T_K[idx].max())]}
+    return {"F": test["F"], "p": test["p"], "df": [test["df1"], test["df2"]], **ends}
+
+
 def off_the_line(r: FitResult, alpha: float = OUTLIER_ALPHA) -> dict | None:
     """The point farthest off a straight-line fit by its externally studentized residual,
     where that exceeds the Bonferroni limit: {"index", "t", "limit"}; else None (and None with
@@ -320,8 +362,8 @@ def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s",
     """Arrhenius (Ea, A) and Eyring (dH, dS) from rate constants at several temperatures.
 
     The Arrhenius line is checked (``checks``, with a warning for each finding): one rate
-    constant far off it (:func:`off_the_line`). ``rows`` are the points' rows in the file, for
-    the warnings."""
+    constant far off it (:func:`off_the_line`) and a curved plot (:func:`curvature`). ``rows``
+    are the points' rows in the file, for the warnings."""
     T_K = np.asarray(T_K, float)
     k = np.asarray(k, float)
     if T_K.size < 3 or np.unique(T_K).size < 3:
@@ -375,11 +417,19 @@ def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s",
     return TemperatureAnalysis(T_K, k, k_se, arr, ey, params, k_unit, warnings, checks)
 
 
+def _celsius_span(end: dict) -> str:
+    """'0-40 C' for a stretch of temperatures given in K."""
+    lo, hi = end["T_K"]
+    return f"{lo - 273.15:.0f}-{hi - 273.15:.0f} C"
+
+
 def _check_line(T_K, k, arr: FitResult, sd, level, rows, warnings: list) -> dict:
     """The Arrhenius line's checks and their warnings (:func:`analyse`)."""
+    from .fitting import p_is
+
     rows = list(rows) if rows is not None else [i + 1 for i in range(T_K.size)]
     where = "row" if rows != [i + 1 for i in range(T_K.size)] else "point"
-    checks = {"outlier": None}
+    checks = {"outlier": None, "curvature": None}
     ea = -R * arr.value("slope") / 1000
     out = off_the_line(arr)
     if out is not None:
@@ -398,4 +448,17 @@ def _check_line(T_K, k, arr: FitResult, sd, level, rows, warnings: list) -> dict
             f"limit {out['limit']:.1f}); without it Ea = "
             f"{fmt_pm(ea_rest, rest.params['slope'].se * R / 1000)} kJ/mol against "
             f"{ea:.4g} with it. Check that run; it is kept in the fit above")
+    cv = curvature(T_K, k, sd, level)
+    if cv is not None:
+        checks["curvature"] = cv
+        if math.isfinite(cv["p"]) and cv["p"] < CURVATURE_ALPHA:
+            lo, hi = cv["lower"], cv["upper"]
+            warnings.append(
+                f"the Arrhenius plot is curved (F-test of a (1/T)^2 term: {p_is(cv['p'])}): Ea "
+                f"is {fmt_pm(lo['Ea_kJ_per_mol'], lo['se'])} kJ/mol over {_celsius_span(lo)} and "
+                f"{fmt_pm(hi['Ea_kJ_per_mol'], hi['se'])} over {_celsius_span(hi)}, so one Ea "
+                "and A "
+                f"({ea:.3g} kJ/mol over all) describe neither end: two paths, a change of "
+                "mechanism or of the rate-limiting step, or a heat capacity of activation (or "
+                "one point off the line)")
     return checks

@@ -460,3 +460,27 @@ def test_one_rate_constant_off_the_line_is_named_with_ea_without_it(tmp_path):
     _assert_params(d, _reference(t_k, bad))
     clean = _doc(_write(tmp_path / "c.csv", "T (C),k (1/s)", zip(t_c, k, strict=True)))
     assert clean["results"][0]["checks"]["outlier"] is None
+
+
+def test_a_curved_arrhenius_plot_is_said_with_ea_at_each_end(tmp_path):
+    """Two parallel paths, k = A1 exp(-Ea1/RT) + A2 exp(-Ea2/RT) with 40 and 120 kJ/mol at
+    0-90 C (hand calculation; the apparent Ea rises from about 40 to 118 kJ/mol), gave one Ea,
+    71 kJ/mol, without a word. The F-test of a (1/T)^2 term now finds the curve, and Ea over
+    the lower and the upper half of the temperatures equals numpy.polyfit of those halves. A
+    straight set is not called curved."""
+    from scipy.constants import R
+
+    t_k = np.linspace(0, 90, 10) + 273.15
+    k = 1e4 * np.exp(-40e3 / (R * t_k)) + 1e17 * np.exp(-120e3 / (R * t_k))
+    k = k * np.exp(np.random.default_rng(3).normal(0, 0.01, t_k.size))
+    d = _doc(_write(tmp_path / "c.csv", "T (K),k (1/s)", zip(t_k, k, strict=True)))
+    cv = d["results"][0]["checks"]["curvature"]
+    assert cv["p"] < 1e-3
+    for half, idx in (("lower", slice(0, 5)), ("upper", slice(5, 10))):
+        ref = -np.polyfit(1 / t_k[idx], np.log(k[idx]), 1)[0] * R / 1000
+        assert cv[half]["Ea_kJ_per_mol"] == pytest.approx(ref, rel=1e-6)
+    assert cv["lower"]["Ea_kJ_per_mol"] < 60 < 90 < cv["upper"]["Ea_kJ_per_mol"]
+    assert any("the Arrhenius plot is curved" in w for w in d["warnings"])
+    t_c, t_k6, k6, *_ = _eyring_truth()
+    straight = _doc(_write(tmp_path / "s.csv", "T (C),k (1/s)", zip(t_c, k6, strict=True)))
+    assert not any("curved" in w for w in straight["warnings"])
