@@ -295,6 +295,11 @@ CURVATURE_ALPHA = 0.01
 #: t(1 - OUTLIER_ALPHA / (2 n), n - 3) (Cook & Weisberg 1982, Residuals and Influence in
 #: Regression, section 2.2).
 OUTLIER_ALPHA = 0.01
+#: Temperatures spanning less than this (K) are said to be a narrow range: ln A and dS are
+#: then read far beyond the data, at 1/T = 0 (common practice asks for 20-30 K or more).
+NARROW_SPAN_K = 20.0
+
+
 def _quadratic(x, a, b, c):
     """a + b u + c u^2 in u, the standardised 1/T (the F-test does not depend on the scale)."""
     return a + b * x + c * x * x
@@ -362,8 +367,9 @@ def analyse(T_K, k, k_se=None, *, level: float = 0.95, k_unit: str = "1/s",
     """Arrhenius (Ea, A) and Eyring (dH, dS) from rate constants at several temperatures.
 
     The Arrhenius line is checked (``checks``, with a warning for each finding): one rate
-    constant far off it (:func:`off_the_line`) and a curved plot (:func:`curvature`). ``rows``
-    are the points' rows in the file, for the warnings."""
+    constant far off it (:func:`off_the_line`), a curved plot (:func:`curvature`) and a narrow
+    temperature range (:data:`NARROW_SPAN_K`). ``rows`` are the points' rows in the file, for
+    the warnings."""
     T_K = np.asarray(T_K, float)
     k = np.asarray(k, float)
     if T_K.size < 3 or np.unique(T_K).size < 3:
@@ -429,7 +435,7 @@ def _check_line(T_K, k, arr: FitResult, sd, level, rows, warnings: list) -> dict
 
     rows = list(rows) if rows is not None else [i + 1 for i in range(T_K.size)]
     where = "row" if rows != [i + 1 for i in range(T_K.size)] else "point"
-    checks = {"outlier": None, "curvature": None}
+    checks = {"span_K": float(T_K.max() - T_K.min()), "outlier": None, "curvature": None}
     ea = -R * arr.value("slope") / 1000
     out = off_the_line(arr)
     if out is not None:
@@ -461,4 +467,12 @@ def _check_line(T_K, k, arr: FitResult, sd, level, rows, warnings: list) -> dict
                 f"({ea:.3g} kJ/mol over all) describe neither end: two paths, a change of "
                 "mechanism or of the rate-limiting step, or a heat capacity of activation (or "
                 "one point off the line)")
+    if checks["span_K"] < NARROW_SPAN_K:
+        x = 1 / T_K
+        far = float(np.mean(x) / (x.max() - x.min()))
+        warnings.append(
+            f"the temperatures span only {checks['span_K']:.3g} K: Ea rests on a short stretch "
+            f"of 1/T, and ln A and dS are read at 1/T = 0, {far:.3g} times that stretch beyond "
+            f"the data (their intervals say how little that fixes them); common practice asks "
+            f"for {NARROW_SPAN_K:g}-30 K or more")
     return checks

@@ -484,3 +484,21 @@ def test_a_curved_arrhenius_plot_is_said_with_ea_at_each_end(tmp_path):
     t_c, t_k6, k6, *_ = _eyring_truth()
     straight = _doc(_write(tmp_path / "s.csv", "T (C),k (1/s)", zip(t_c, k6, strict=True)))
     assert not any("curved" in w for w in straight["warnings"])
+
+
+def test_a_narrow_temperature_range_is_said(tmp_path):
+    """24-26 C: Ea 79 ± 8 kJ/mol and A over nine decades were printed without a word. The
+    warning gives the span (2 K) and how far beyond the data ln A is read: mean(1/T) /
+    span(1/T) = 149 (hand calculation); a 25 K span is not flagged."""
+    from scipy.constants import R
+
+    t_k = np.array([24.0, 24.5, 25, 25.5, 26]) + 273.15
+    k = 3e10 * np.exp(-75e3 / (R * t_k)) * np.exp(np.random.default_rng(4).normal(0, .03, 5))
+    d = _doc(_write(tmp_path / "n.csv", "T (K),k (1/s)", zip(t_k, k, strict=True)))
+    said = next(w for w in d["warnings"] if "temperatures span only" in w)
+    far = np.mean(1 / t_k) / (1 / t_k.min() - 1 / t_k.max())
+    assert "only 2 K" in said and f"{far:.3g} times" in said
+    assert d["results"][0]["checks"]["span_K"] == pytest.approx(2.0)
+    t_c, _, k6, *_ = _eyring_truth()
+    wide = _doc(_write(tmp_path / "w.csv", "T (C),k (1/s)", zip(t_c, k6, strict=True)))
+    assert not any("span only" in w for w in wide["warnings"])
