@@ -508,6 +508,20 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
     notes += more
     quality = fit_quality(r, noise)
     flags = _flags(r, quality, plausible, notes, t, half)
+    notes += _order_notes(tied, untested, end, flags) + _before_zero_note(t)
+    law = RateLawResult(name, base, r, k_conc, half, c0, comp, fits, notes, chosen, plausible,
+                        quality, drift_test, flags, t0, fit_from=fit_from)
+    if base in ("0", "1", "2") and (not quality["fits"] or "drift" in r.params):
+        law.shape = other_shape(t, y, law, fit_from is not None)
+        _shape_notes(law)
+    _explain(law)
+    return law
+
+
+def _order_notes(tied: list, untested: list, end, flags: list) -> list[str]:
+    """Notes on orders fitted with the end point the charge gives (``tied``) and on orders
+    that could not be fitted at all (``untested``: flagged ``order_not_determined``)."""
+    notes = []
     if tied:
         notes.append(f"order{'s' if len(tied) > 1 else ''} {' and '.join(tied)} could not be "
                      "fitted with a free end point (the trace is too nearly straight to show "
@@ -522,20 +536,19 @@ def fit_trace(t, y, name: str = "trace", *, order: str = "auto", photometry: Pho
                      "show its curvature, so order 0 was kept for want of the others, not on "
                      "evidence against them; a first- or second-order reaction early in its "
                      "course looks the same (a longer run, the charge, or --order decides)")
+    return notes
+
+
+def _before_zero_note(t) -> list[str]:
+    """A note where readings lie before the file's time zero."""
     before = int(np.sum(t < 0))
-    if before:
-        notes.append(f"{before} reading{'s' if before > 1 else ''} lie{'' if before > 1 else 's'}"
-                     f" before the file's time zero (from {float(np.min(t)):g} s): "
-                     "fitted with the rest, but A0, the conversion and every time are counted "
-                     "from the file's zero, where the reaction is taken to start; if it started "
-                     "elsewhere, give that time with --fit-from")
-    law = RateLawResult(name, base, r, k_conc, half, c0, comp, fits, notes, chosen, plausible,
-                        quality, drift_test, flags, t0, fit_from=fit_from)
-    if base in ("0", "1", "2") and (not quality["fits"] or "drift" in r.params):
-        law.shape = other_shape(t, y, law, fit_from is not None)
-        _shape_notes(law)
-    _explain(law)
-    return law
+    if not before:
+        return []
+    return [f"{before} reading{'s' if before > 1 else ''} lie{'' if before > 1 else 's'}"
+            f" before the file's time zero (from {float(np.min(t)):g} s): "
+            "fitted with the rest, but A0, the conversion and every time are counted "
+            "from the file's zero, where the reaction is taken to start; if it started "
+            "elsewhere, give that time with --fit-from"]
 
 
 #: Fewest readings a fit from --fit-from keeps: a rate law's four (given order), six where the
