@@ -167,13 +167,13 @@ def test_a_stall_without_the_charge_is_said_from_the_shape_of_the_trace():
 def test_no_stall_is_suspected_of_a_finished_run_or_a_drifting_baseline():
     """A finished first-order run without the charge still reads 'END POINT REACHED,
     COMPLETION NOT SHOWN'; first order at 95 % with a true 3 mAU/min baseline drift (the drift
-    term fitted in every run) is never called a stall nor a delayed start (seeds 50-54)."""
+    term fitted in every run) is never called a stall nor a delayed start (seeds 50-52)."""
     t = np.arange(0, 4 * 3600, 60.0)
     done = assess(t, noisy(absorbance(first_order(t, 8e-4)), 25), target=0.95)
     assert done.claim == "end point reached" and "stall_suspected" not in done.flags
     assert done.verdict.startswith("END POINT REACHED, COMPLETION NOT SHOWN")
     k = _k("1", 0.95)
-    for seed in range(50, 55):
+    for seed in range(50, 53):
         c = assess(T, noisy(absorbance(first_order(T, k), drift=3e-3 / 60, t=T), seed),
                    target=0.99)
         assert c.law.drift is not None
@@ -232,14 +232,15 @@ def test_a_strong_drift_is_fitted_by_evidence_and_the_forecast_covers_the_truth(
 def test_a_drift_the_f_test_misses_still_leaves_the_truth_inside_the_interval():
     """1 mAU/min of baseline drift (45 mAU over the run, noise 4 mAU): the F-test catches it in
     fewer than half the runs, and a forecast chosen by that test alone covered the truth in only
-    8 of these 20 runs (those where it caught the drift). The drift model carries AICc weight in
-    every run, so its forecast enters the headline interval. Accept down to the 0.1 % binomial quantile of
-    20 runs at 95 % (scipy.stats.binom)."""
+    8 of 20 such runs (those where it caught the drift). The drift model carries AICc weight in
+    every run, so its forecast enters the headline interval. Twelve seeded runs (the test misses
+    the drift in 6); accept down to the 0.1 % binomial quantile of 12 runs at 95 %
+    (scipy.stats.binom)."""
     k = _k("1", 0.88)
     truth_t, drift = time_to("1", 0.99, k), 1e-3 / 60
     clean = absorbance(first_order(T, k), drift=drift, t=T)
     hits = missed_by_test = k_hits = 0
-    for seed in range(3000, 3020):
+    for seed in range(3000, 3012):
         c = assess(T, noisy(clean, seed), target=0.99)
         assert [f.model for f in c.forecasts][:2] in (["1", "1+drift"], ["1+drift", "1"])
         missed_by_test += c.model == "1"
@@ -247,8 +248,8 @@ def test_a_drift_the_f_test_misses_still_leaves_the_truth_inside_the_interval():
         k_hits += c.k.ci_low <= k <= c.k.ci_high
         plain = next(f for f in c.forecasts if f.model == "1").t_target
         assert c.t_target.ci_low <= plain.ci_low and plain.ci_high <= c.t_target.ci_high
-    bound = stats.binom.ppf(0.001, 20, 0.95)
-    assert missed_by_test >= 5                       # the case the drift term alone left wrong
+    bound = stats.binom.ppf(0.001, 12, 0.95)
+    assert missed_by_test >= 3                       # the case the drift term alone left wrong
     assert hits >= bound and k_hits >= bound
 
 
