@@ -6,19 +6,18 @@ from __future__ import annotations
 
 import re
 
-_WELL = re.compile(r"^([A-Z]{1,2})0*([1-9]\d?)$")
-
 #: Standard microplates: wells -> (rows, columns) (common practice).
 PLATES = {6: (2, 3), 12: (3, 4), 24: (4, 6), 48: (6, 8), 96: (8, 12), 384: (16, 24),
           1536: (32, 48)}
 
 
 def well_position(name: str) -> tuple[int, int] | None:
-    """(row, column), both from 0, of a well name such as ``B7`` or ``AF48``; else None."""
-    m = _WELL.match(name.strip().upper())
-    if not m:
+    """(row, column), both from 0, of a well name such as ``B7``, ``b07`` or ``AF48`` (columns 1
+    to 99; :func:`well_key`); else None."""
+    key = well_key(name)
+    if key is None or not 1 <= key[1] <= 99:
         return None
-    letters, col = m.group(1), int(m.group(2))
+    letters, col = key
     row = ord(letters[-1]) - 65 + (26 * (ord(letters[0]) - 64) if len(letters) == 2 else 0)
     return row, col - 1
 
