@@ -32,7 +32,7 @@ from ..parallel import in_lanes, lanes
 from ..traces import Grid
 from . import windows as wn
 from .choice import choose
-from .curves import CURVED_CHI2, Curves, fit_curves, merge, progress, slope_at
+from .curves import Curves, fit_curves, merge, progress, slope_at
 from .flags import TRACE_FLAGS, flag_words, noisy, trace_marks
 from .prepare import (
     Clock,
@@ -326,8 +326,7 @@ def _start_after_lag(prep: Prepared, lag, mp: int) -> np.ndarray:
 def _end(prep: Prepared, curves: Curves, start, mp: int) -> np.ndarray:
     """The window's last reading: the trace's last, unless it evidently slows."""
     with np.errstate(all="ignore"):
-        curved = ((curves.line_rss - curves.rss) > CURVED_CHI2 * curves.sigma ** 2) & (
-            curves.params[:, 2] > 0)
+        curved = curves.evidently_curved & (curves.params[:, 2] > 0)
     end = prep.last.copy()
     if curved.any():
         rows = np.nonzero(curved)[0]

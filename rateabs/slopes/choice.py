@@ -7,8 +7,6 @@ import math
 
 import numpy as np
 
-from .curves import CURVED_CHI2
-
 #: The whole curve replaces the straight window when the two initial slopes differ by more
 #: than this many SEs of their difference (the window then carries curvature bias) ...
 CHOICE_Z = 2.0
@@ -82,8 +80,7 @@ def choose(estimator: str, win_b, win_se, win_weights, curves, eligible, late=No
     slope = np.where(use_c, v, np.where(use_w, win_b, np.nan))
     se = np.where(use_c, curves.se, np.where(use_w, win_total, np.nan))
     speeds = has_c & ~eligible & flows
-    with np.errstate(invalid="ignore"):             # a speed-up the noise could not make
-        evident = (curves.line_rss - curves.rss) > CURVED_CHI2 * curves.sigma ** 2
+    evident = curves.evidently_curved               # a speed-up the noise could not make
     why = _reasons(estimator, method, has_w, ok_c, h, moving, (speeds & evident, speeds & ~evident),
                    np.isfinite(win_se) & ~flows)
     return method, slope, se, why

@@ -518,6 +518,13 @@ class Curves:
         return np.hypot(self.sigma * np.sqrt(np.sum(self.v_weights ** 2, axis=1)),
                         self.spread)
 
+    @property
+    def evidently_curved(self) -> np.ndarray:
+        """Where the curve fits better than the straight line by more than the noise could
+        make it (RSS lower by :data:`CURVED_CHI2` noise variances)."""
+        with np.errstate(invalid="ignore"):
+            return (self.line_rss - self.rss) > CURVED_CHI2 * self.sigma ** 2
+
 
 def _store(out: dict, fit: MemberFit, spread=0.0) -> None:
     for key, value in (("member", fit.member), ("params", fit.params), ("rss", fit.rss),

@@ -136,7 +136,7 @@ def trace_marks(prep, curves, win, method, rate, min_points: int, fixed: bool) -
         np.where(method == "curve", curves.dof, win.line.n - 2), prep.sigma))
     with np.errstate(all="ignore"):
         speeds = ((curves.member == "exp") & (curves.params[:, 2] < 0) & (method != "none")
-                  & ((curves.line_rss - curves.rss) > CURVED_CHI2 * curves.sigma ** 2))
+                  & curves.evidently_curved)
     start = (_start(prep, curves, method) | _offset(prep, curves, method, *rate)
              | _steep_window(curves, win, method))
     against = lag & _starts_against(prep, rate[0])
