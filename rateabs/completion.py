@@ -46,7 +46,7 @@ import numpy as np
 
 from .distributions import t_two_sided
 from .errors import UsageError
-from .fitting import FitResult, Param, fd_step, fmt_pm, separable_profile
+from .fitting import NOT_IDENTIFIABLE, FitResult, Param, fd_step, fmt_pm, separable_profile
 from .ratelaws import (
     Photometry,
     RateLawResult,
@@ -318,7 +318,7 @@ def rate_parameter(r: FitResult, order: str, level: float) -> Param:
         free = [nm for nm in cols if nm in r.params and not r.params[nm].fixed]
         held = {nm: r.params[nm].value for nm in cols if nm in r.params and r.params[nm].fixed}
     if not free or not theta > 0:
-        return Param(name, theta, se, math.nan, math.nan, "not identifiable", "1/s")
+        return Param(name, theta, se, math.nan, math.nan, NOT_IDENTIFIABLE, "1/s")
 
     def offset(th):                # the held parameters' part, which moves with the rate
         f = shape(th, t)

@@ -1148,6 +1148,23 @@ class Comparison:
         return "\n".join(lines)
 
 
+#: The ``ci_method`` of a constant the data do not determine (its value, SE and missing bound
+#: null in the JSON): one word for every command.
+NOT_IDENTIFIABLE = "not identifiable"
+
+
+def held_p(model: Model, x, y, general: FitResult, held: dict, **kw) -> float:
+    """p of the F-test of the fit ``general`` against the same ``model`` with the parameters
+    ``held`` fixed at the values given (the profile-likelihood criterion at that point, Bates &
+    Watts 1988), started from ``general``; NaN where the held fit fails. ``kw`` goes to
+    :func:`fit` (weighting, SDs, bounds...)."""
+    try:
+        simple = fit(model, x, y, p0=general.values(), fix=held, **kw)
+    except FitError:
+        return math.nan
+    return float(f_test(simple, general)["p"])
+
+
 def f_test(simple: FitResult, general: FitResult) -> dict:
     """Extra-sum-of-squares F-test of a simpler model nested in a more general one."""
     df1 = general.n_free - simple.n_free

@@ -24,11 +24,13 @@ from scipy import special
 
 from .errors import AnalysisError, UsageError
 from .fitting import (
+    NOT_IDENTIFIABLE,
     FitResult,
     Param,
     f_test,
     fit,
     fmt_pm,
+    held_p,
     line_slope,
     p_is,
     past_limit_text,
@@ -392,11 +394,6 @@ def _unstable_warning(corrected: dict) -> str:
             "min. A shorter assay or a stabilised enzyme avoids the correction")
 
 
-#: The ``ci_method`` of a constant the data do not determine (value, SE and the missing bound
-#: null in the JSON; as in ``ratelaw``).
-NOT_IDENTIFIABLE = "not identifiable"
-
-
 def specificity_fit(c: Curves, base: FitResult, product_inhibition: bool, decay: bool = False, *,
                     ci: str = "asymptotic", level: float = 0.95) -> FitResult:
     """The global fit written in Vmax/Km and 1/Km (:func:`substrate_left_specificity`), started
@@ -428,11 +425,7 @@ def km_infinite_p(c: Curves, spec: FitResult, product_inhibition: bool, decay: b
     x, y = _stack(c)
     model = _model(len(c.t), product_inhibition, decay,
                    c.per_enzyme() if c.enzyme is not None else "", specificity=True)
-    try:
-        first = fit(model, x, y, p0=spec.values(), fix={"1/Km": 0.0})
-    except AnalysisError:
-        return math.nan
-    return float(f_test(first, spec)["p"])
+    return held_p(model, x, y, spec, {"1/Km": 0.0})
 
 
 def _constants(r: FitResult, spec: FitResult, c: Curves, level: float, p_infinite: float,

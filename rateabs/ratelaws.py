@@ -21,7 +21,18 @@ import numpy as np
 
 from .distributions import t_two_sided
 from .errors import AnalysisError, UsageError
-from .fitting import Comparison, FitResult, Param, compare, f_test, fd_step, fit, fmt_p, fmt_pm
+from .fitting import (
+    NOT_IDENTIFIABLE,
+    Comparison,
+    FitResult,
+    Param,
+    compare,
+    f_test,
+    fd_step,
+    fit,
+    fmt_p,
+    fmt_pm,
+)
 from .models import (
     DECAYING_FIRST_ORDER,
     LINE,
@@ -161,7 +172,7 @@ def shown(p: Param) -> dict:
     uncertainty); reversed or non-finite bounds become null."""
     d = p.to_dict()
     if not identifiable(p):
-        d.update(value=None, se=None, ci_low=None, ci_high=None, ci_method="not identifiable")
+        d.update(value=None, se=None, ci_low=None, ci_high=None, ci_method=NOT_IDENTIFIABLE)
     elif d["ci_low"] is not None and d["ci_high"] is not None and d["ci_low"] > d["ci_high"]:
         d.update(ci_low=None, ci_high=None)
     return d

@@ -23,13 +23,14 @@ import pandas as pd
 from .distributions import normal_quantile, t_two_sided
 from .errors import FitError, InputError, UsageError
 from .fitting import (
+    NOT_IDENTIFIABLE,
     Comparison,
     FitResult,
     Param,
     compare,
-    f_test,
     fit,
     fmt_pm,
+    held_p,
     past_limit_text,
     past_limits,
 )
@@ -251,12 +252,9 @@ def _unresolved(spec: FitResult | None, x, data: SaturationData, fit_kw: dict) -
     if spec is None or not spec.success:
         return None
     kw = {k: v for k, v in fit_kw.items() if k not in ("weighting", "units", "ci")}
-    try:
-        line = fit(MM_SPECIFICITY, x, data.v, weighting=fit_kw["weighting"], sd=data.sd,
-                   p0=spec.values(), fix={"1/Km": 0.0}, **kw)
-    except FitError:
-        return None
-    if not f_test(line, spec)["p"] >= 1 - fit_kw["level"]:
+    p = held_p(MM_SPECIFICITY, x, data.v, spec, {"1/Km": 0.0}, weighting=fit_kw["weighting"],
+               sd=data.sd, **kw)
+    if not p >= 1 - fit_kw["level"]:           # a NaN p (the held fit failed) says nothing
         return None
     hi = spec.params["1/Km"].ci_high
     return {"Km": 1 / hi if np.isfinite(hi) and hi > 0 else math.nan}
@@ -503,11 +501,6 @@ def _first_order_warning(data: SaturationData, hit: dict, vk: Param, level: floa
             + f"; {where}); only Vmax/Km is determined, "
             f"{fmt_pm(vk.value, vk.se, unit=vk.unit)}. To measure Km and Vmax, extend [S] to "
             "Km or above")
-
-
-#: The ``ci_method`` of a constant the data do not determine (value, SE and the missing bound
-#: null; as in ``ratelaw`` and ``progress``).
-NOT_IDENTIFIABLE = "not identifiable"
 
 
 def _mask(params: dict, hit: dict) -> None:

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from ..errors import UsageError
-from ..fitting import fmt_interval, fmt_pm
+from ..fitting import NOT_IDENTIFIABLE, fmt_interval, fmt_pm
 from ..options import RatelawOptions
 from ..output import document, flatten_params, render_table, rows_to_csv
 from . import (
@@ -65,14 +65,14 @@ def param_text(p: dict | None, unit: bool = False) -> str:
     """A JSON parameter object for a person: value ± SE, 'not identifiable', or '-'."""
     if not p:
         return "-"
-    if p.get("ci_method") == "not identifiable":
-        return "not identifiable"
+    if p.get("ci_method") == NOT_IDENTIFIABLE:
+        return NOT_IDENTIFIABLE
     return fmt_pm(p.get("value"), p.get("se"), unit=p.get("unit", "") if unit else "")
 
 
 def interval_text(p: dict | None) -> str:
     """The interval of a JSON parameter object ('open' above for an unbounded upper end)."""
-    if not p or p.get("ci_method") == "not identifiable":
+    if not p or p.get("ci_method") == NOT_IDENTIFIABLE:
         return "-"
     if p.get("ci_low") is not None and p.get("ci_high") is None and p.get("value") is not None:
         return f"[{p['ci_low']:.4g}, open]"
