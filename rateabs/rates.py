@@ -47,6 +47,12 @@ PLATE_FLAGS = {
                   "window reported (forced by --slope-from window, or no whole-curve estimate "
                   "that follows the depletion), so its slope may fall short of the initial rate "
                   "by more than twice its SE (by up to about half the fraction used)",
+    "too-fast": "the initial rate is faster than the rest of the read allows: with the map's "
+                "substrate, no Michaelis–Menten depletion slows a reaction from that rate to "
+                "the slope after the first fifth of the read (depletion keeps at least 1 - f "
+                "of the rate, f the fraction used over the read); the start is steeper than "
+                "the reaction (a settling baseline, mixing) or the reaction slows for another "
+                "reason (product inhibition, enzyme loss): look at the first readings",
 }
 
 #: Every per-well flag with its meaning (trace-level from slopes, plate-level from here).
@@ -656,7 +662,67 @@ def plate_flags(t: pd.DataFrame, s: TraceSlopes, g: Grid, direction: float,
         }
         short = depletion_shortfall(used_in_window(t, s)) * np.abs(slope)
         masks["over-10pct"] = depleted(t, s) & (short > SHORTFALL_SE * se)
+    masks["too-fast"] = faster_than_substrate(t, g)
     return masks
+
+
+#: ``too-fast`` leaves out this fraction of the read (a settling start) for the late slope ...
+LATE_FROM = 0.2
+#: ... and marks a rate above the most that slope allows (late slope / (1 - f)) by more than
+#: this many SEs of the difference and by 5 %. Calibrated on benchmarks/flag_calibration.py
+#: with a map: it marks 32 / 72 / 70 / 81 wells of seeds 0-19 / 20-59 / 60-99 / 100-139, 84 /
+#: 86 / 91 / 84 % of them off the truth (most of them settling baselines in the reaction's
+#: direction, read 14-68 % high, six of them unflagged before on seeds 60-99); 2.0 marked
+#: 46-97 wells at 67-74 % and brought the good wells flagged to 9.9 % on seeds 60-99.
+TOO_FAST_Z = 2.5
+
+
+def faster_than_substrate(t: pd.DataFrame, g: Grid) -> np.ndarray:
+    """Sample wells whose reported rate exceeds what the late readings allow under substrate
+    depletion. Where Michaelis–Menten kinetics slow a reaction by using substrate alone, the
+    rate at any time up to the end keeps at least the fraction 1 - f of the initial rate
+    (v/v0 = (S/S0)(Km + S0)/(Km + S) >= S/S0; f, the fraction of the map's [S]0 used by the
+    end, from :func:`product_formed`, an overestimate that widens the bound), so the straight
+    line through the readings after the first LATE_FROM of the read, whose slope is a mean of
+    the rates over them, is at least (1 - f) v0. A rate above that bound by TOO_FAST_Z SEs (its
+    own and the late slope's from the well's noise) and 5 % started faster than the reaction
+    that follows. Not for wells with a lag (their start is slow) or a doubted substrate."""
+    n = len(t)
+    if "rate_uM_per_min" not in t.columns or "substrate_uM" not in t.columns:
+        return np.zeros(n, dtype=bool)
+    made, _ = product_formed(t, g)
+    s0 = t["substrate_uM"].to_numpy(float)
+    slope = np.abs(t["slope_A_per_min"].to_numpy(float))
+    se = t["slope_A_per_min_se"].to_numpy(float)
+    late, late_se = _late_slopes(g, t["noise_A"].to_numpy(float))
+    with np.errstate(all="ignore"), quiet_numpy():
+        keep = 1.0 - made / s0
+        bound = np.abs(late) / keep
+        diff = slope - bound
+        sd = np.hypot(se, late_se / keep)
+        doubted = t["substrate_doubted"].to_numpy(bool) if "substrate_doubted" in t.columns \
+            else np.zeros(n, dtype=bool)
+        return ((t["role"].to_numpy() == "sample") & (s0 > 0) & ~doubted & (keep > 0.05)
+                & ~(np.nan_to_num(t["lag_s"].to_numpy(float)) > 0) & np.isfinite(diff)
+                & (diff > TOO_FAST_Z * sd) & (diff > 0.05 * slope))
+
+
+def _late_slopes(g: Grid, sigma) -> tuple[np.ndarray, np.ndarray]:
+    """Per trace, the least-squares slope (A/min) of the usable readings after the first
+    LATE_FROM of the read, and its SE from the noise SD ``sigma`` (NaN with fewer than 3)."""
+    times = np.broadcast_to(g.times, g.values.shape)
+    t_use = np.where(g.usable, times, np.nan)
+    with np.errstate(all="ignore"), quiet_numpy():
+        t0, t1 = np.nanmin(t_use, axis=1), np.nanmax(t_use, axis=1)
+        w = (g.usable & (times >= (t0 + LATE_FROM * (t1 - t0))[:, None])).astype(float)
+        k = w.sum(axis=1)
+        tm = (w * np.nan_to_num(times)).sum(axis=1) / k
+        dt = np.where(w > 0, times - tm[:, None], 0.0)
+        sxx = (dt ** 2).sum(axis=1)
+        ym = (w * np.nan_to_num(g.values)).sum(axis=1) / k
+        b = (dt * np.where(w > 0, g.values - ym[:, None], 0.0)).sum(axis=1) / sxx
+        ok = (k >= 3) & (sxx > 0)
+        return np.where(ok, b * 60, np.nan), np.where(ok, sigma / np.sqrt(sxx) * 60, np.nan)
 
 
 def _masked_start(g: Grid) -> np.ndarray:

@@ -109,13 +109,15 @@ def depletion_words(st, table) -> str:
         return "followed by the whole curve (the estimator is set to curve)"
     if st.slope_from == "window":
         return ("straight windows that used over 10 % of the map's [S]0 are flagged over-10pct "
-                "and kept (the estimator is set to window)" if checkable else
+                "and kept (the estimator is set to window); rates faster than the late readings "
+                "allow under depletion are flagged too-fast" if checkable else
                 "not weighed: the estimator is set to window and no substrate concentration "
                 "and absorptivity are given for the samples")
     if checkable:
         return ("straight windows that used over 10 % of the map's [S]0 are replaced by the "
                 "whole curve's initial slope, or kept where that is evidently shallower and "
-                "flagged over-10pct where they may read low by over twice their SE")
+                "flagged over-10pct where they may read low by over twice their SE; rates faster "
+                "than the late readings allow under depletion are flagged too-fast")
     return ("judged from the trace's bend alone, as no substrate concentration and "
             "absorptivity are given for the samples; a map's substrate column with "
             "--chromophore or --epsilon lets it be weighed against [S]0")
