@@ -991,6 +991,8 @@ class RatesAnalysis:
     setup: PlateSetup | None = None
     activity: pd.DataFrame = field(default_factory=pd.DataFrame)
     outlier_method: str = ""
+    #: The moment times are counted from, in the file's own seconds (:func:`plate_origin`).
+    time_origin_s: float = 0.0
 
     @property
     def needs_look(self) -> list[str]:
@@ -1007,6 +1009,7 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     roles, concentrations, dilutions, replicate groups and per-well windows or skips.
     """
     st = settings or RateSettings()
+    ts, t0 = plate_origin(ts)
     setup = plate_setup(ts, layout, st)
     source = layout.attrs.get("source") if layout is not None else None
     used = skip_and_mask(ts, setup, st)
@@ -1033,10 +1036,33 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     table["flags"] = [a + b for a, b in zip(s.trace_flags, plate, strict=True)]
     a = RatesAnalysis(table, replicate_summary(table, value_col), z_prime(table, value_col),
                       s.windows, analysed, st, list(setup.warnings), blank_info, setup,
-                      activity_summary(table), how)
+                      activity_summary(table), how, t0)
     a.warnings += (_notes(a, value_col) + _substrate_note(table, g)
                    + _unused_standards(table, st, "calibration" in blank_info))
     return a
+
+
+def plate_origin(ts: TraceSet) -> tuple[TraceSet, float]:
+    """The traces with times counted from the origin every command uses
+    (:func:`rateabs.models.time_origin`: the file's zero, or the plate's first usable reading
+    where that zero lies more than the read's span before it, as a clock's midnight does), and
+    that origin in the file's seconds. Windows, skipped readings and the map's windows are then
+    given, and reported, in the same times: 0-120 s is the first two minutes of the read
+    whether the file counts from zero or from midnight."""
+    from .models import time_origin
+
+    g = ts.grid()
+    times = np.broadcast_to(g.times, g.values.shape)
+    used = times[g.usable & np.isfinite(times)]
+    _, t0 = time_origin(used)
+    if not t0:
+        return ts, 0.0
+    if g.times.ndim == 2 and g.times.strides[0] == 0:       # one row of times, shared
+        shifted = np.broadcast_to(g.times[0] - t0, g.times.shape)
+    else:
+        shifted = np.array(g.times, dtype=float) - t0
+        shifted.flags.writeable = False
+    return replace(ts, readings=replace(g, times=shifted)), t0
 
 
 def _unused_standards(table: pd.DataFrame, st: RateSettings, calibrated: bool) -> list[str]:

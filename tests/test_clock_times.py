@@ -226,3 +226,44 @@ def test_a_clock_of_the_time_of_day_passing_midnight_is_counted_on(tmp_path):
     rows[5], rows[6] = rows[6], rows[5]                      # backwards by 30 s: refused
     p.write_text("time,A\n" + "\n".join(rows) + "\n")
     assert cli("ratelaw", p, "--no-plots").exit_code != 0
+
+
+def _afternoon_plate(path, start_s=14 * 3600 + 5 * 60):
+    """Two wells read every 20 s for 10 min from a wall clock (14:05:00 by default), rising
+    0.012 and 0.0006 A/min, seeded noise; the same readings with times from zero are returned
+    for comparison."""
+    rng = np.random.default_rng(4)
+    t = np.arange(0, 601, 20)
+    a1 = np.round(0.1 + 0.012 / 60 * t + rng.normal(0, 1e-3, t.size), 5)      # as written
+    a2 = np.round(0.1 + 0.0006 / 60 * t + rng.normal(0, 1e-3, t.size), 5)
+    clock = [f"{(start_s + s) // 3600}:{(start_s + s) % 3600 // 60:02d}:{(start_s + s) % 60:02d}"
+             for s in t]
+    path.write_text("Time,A1,A2\n" + "".join(f"{c},{x:.5f},{y:.5f}\n"
+                                               for c, x, y in zip(clock, a1, a2, strict=True)))
+    return t, a1, a2
+
+
+def test_rates_on_a_wall_clock_count_from_the_first_reading_and_say_so(tmp_path):
+    t, a1, _ = _afternoon_plate(tmp_path / "clock.csv")
+    doc = rates_doc(tmp_path / "clock.csv", "--window", "60-300", "--skip-reading", "A1=120")
+    s = doc["settings"]
+    assert s["time_origin_s"] == 14 * 3600 + 5 * 60               # 14:05:00 in s of the day
+    assert "14:05:00" in s["time_origin_in_words"]
+    a = doc["results"][0]
+    # the window is the read's 60-300 s, reported so, and reading 120 s of A1 is left out:
+    # the slope is the least-squares line of those readings (numpy.polyfit)
+    assert (a["window_start_s"], a["window_end_s"]) == (60, 300)
+    keep = (t >= 60) & (t <= 300) & (t != 120)
+    assert a["n_points"] == keep.sum() == 12
+    assert a["slope_A_per_min"] == pytest.approx(np.polyfit(t[keep] / 60, a1[keep], 1)[0],
+                                                 rel=1e-9)
+    text = cli("rates", tmp_path / "clock.csv", "--no-plots").stdout
+    assert "# time origin: times counted from the first usable reading, 14:05:00" in text
+    assert "0-600" in text and "50700" not in text.split("# time origin")[1].split("\n", 1)[1]
+
+
+def test_rates_from_a_files_own_zero_say_nothing_of_an_origin(tmp_path):
+    t, a1, a2 = _afternoon_plate(tmp_path / "clock.csv", start_s=0)
+    doc = rates_doc(tmp_path / "clock.csv")
+    assert doc["settings"]["time_origin_s"] == 0
+    assert "time origin" not in cli("rates", tmp_path / "clock.csv", "--no-plots").stdout

@@ -15,7 +15,7 @@ import numpy as np
 from ..fitting import fmt_pm
 from ..options import WELL_PAGE_CAP, RatesOptions
 from ..output import document, render_table, rows_to_csv, write_text
-from . import View, deliver, read_for, time_settings, time_words
+from . import View, deliver, origin_settings, origin_words, read_for, time_settings, time_words
 
 RATE_FIELDS = ["trace", "role", "sample", "group", "method", "choice", "slope_A_per_min",
                "slope_A_per_min_se", "rate_uM_per_min", "rate_uM_per_min_se",
@@ -176,6 +176,8 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
     blanks = a.blank_info.get("wells", [])
     lines = [f"rates of {Path(o.file).name}: {len(t)} wells analysed",
              f"time unit: {time_words(info)}",
+             *([f"time origin: {origin_words(info, [a.time_origin_s])}"]
+               if a.time_origin_s else []),
              f"plate: {fmt}",
              f"pathlength: {s.pathlength_cm:.4g} cm, {s.pathlength_source}",
              f"conversion: {_epsilon_words(o, a)}",
@@ -201,7 +203,7 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
     """The ``settings`` of the JSON document: every assumption with its source."""
     s, st, t = a.setup, a.settings, a.table
     return {
-        **time_settings(info),
+        **time_settings(info), **origin_settings(info, [a.time_origin_s]),
         "plate_format": s.plate_format, "plate_format_source": s.plate_source,
         "pathlength_cm": s.pathlength_cm, "pathlength_source": s.pathlength_source,
         "epsilon_M_per_cm": st.epsilon, "epsilon_se": st.epsilon_se,
