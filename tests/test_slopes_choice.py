@@ -254,6 +254,10 @@ def test_flag_calibration_on_seeded_plates():
     assert cal.n_bad >= 10
     assert cal.good_flagged <= 0.10
     assert cal.bad_flagged >= 0.90
+    # too-fast, the rate the map's substrate says the late readings cannot follow, points at
+    # wells that are off: 12 of its 14 here (86 %; 84-91 % over seeds 0-139 in the benchmark)
+    count, precision, _ = cal.per_flag["too-fast"]
+    assert count >= 5 and precision >= 0.7
 
 
 def test_a_well_is_estimated_alike_beside_a_well_whose_first_readings_are_masked():
