@@ -769,8 +769,17 @@ def replicate_outliers(values, ses, keys) -> tuple[np.ndarray, np.ndarray, str]:
 
 
 def _pooled_cv(x, se, groups) -> float | None:
-    """The plate's relative replicate scatter beyond the wells' own SEs (robust: from the
-    median absolute deviation), or None with fewer than POOL_MIN_GROUPS usable groups."""
+    """The plate's relative replicate scatter beyond the wells' own SEs, or None with fewer
+    than POOL_MIN_GROUPS usable groups.
+
+    Each well's relative deviation from its group's mean, e = (x - m) / |m| sqrt(n / (n - 1)),
+    has variance r^2 + cv^2 with r = SE / |m| its own share. cv is the (clipped)
+    maximum-likelihood value over all wells (:func:`_ml_cv2`), then again without the wells more than
+    :data:`Z_OUTLIER` from their group at that cv, until no well moves. Each well counts by
+    its own precision, so a plate whose slow wells have large SEs does not hide the scatter
+    of its precise ones (a median of relative deviations less a median r^2 did: cv came out 0
+    and the precise wells' ordinary pipetting scatter read as outliers).
+    """
     e, r2 = [], []
     for gr in groups:
         m = x[gr].mean()
@@ -781,9 +790,39 @@ def _pooled_cv(x, se, groups) -> float | None:
         r2.append((se[gr] / abs(m)) ** 2)
     if len(e) < POOL_MIN_GROUPS:
         return None
-    e_all = np.concatenate(e)
-    sd = 1.4826 * np.median(np.abs(e_all - np.median(e_all)))
-    return math.sqrt(max(0.0, sd**2 - float(np.nanmedian(np.concatenate(r2)))))
+    e2, r2 = np.concatenate(e) ** 2, np.nan_to_num(np.concatenate(r2))
+    keep = np.ones(e2.size, dtype=bool)
+    c2 = _ml_cv2(e2, r2)
+    for _ in range(10):               # from all wells, set the clear outliers aside and refit
+        now = e2 / np.maximum(r2 + c2, 1e-300) <= Z_OUTLIER**2
+        if np.array_equal(now, keep) or now.sum() < 2 * POOL_MIN_GROUPS:
+            break
+        keep = now
+        c2 = _ml_cv2(e2[keep], r2[keep])
+    return math.sqrt(c2)
+
+
+#: Huber's clip of a well's squared z in :func:`_ml_cv2` (z = 2.5), and the mean of a clipped
+#: chi-square(1), E[min(X, 6.25)] = F3(6.25) + 6.25 (1 - F1(6.25)), that keeps it unbiased.
+HUBER_Z2, HUBER_MEAN = 6.25, 0.977560
+
+
+def _ml_cv2(e2, r2) -> float:
+    """The cv^2 of deviations e with variances v = r^2 + cv^2: the root of
+    sum (min(e^2 / v, 6.25) - 0.9776) / v = 0, the maximum-likelihood equation with each
+    well's squared z clipped (Huber 1964) so that an outlier moves it little; each well counts
+    by its own precision. 0 when the wells' own SEs already explain the scatter."""
+    def score(c2: float) -> float:
+        v = np.maximum(r2 + c2, 1e-300)
+        return float(np.sum((np.minimum(e2 / v, HUBER_Z2) - HUBER_MEAN) / v))
+
+    if score(0.0) <= 0:
+        return 0.0
+    lo, hi = 0.0, float(e2.max()) + 1e-12
+    for _ in range(60):                           # the score changes sign once: bisect
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if score(mid) > 0 else (lo, mid)
+    return 0.5 * (lo + hi)
 
 
 def _z_test(x, se, gr, cv, z, out) -> None:
