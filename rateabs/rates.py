@@ -375,25 +375,43 @@ def skip_and_mask(ts: TraceSet, setup: PlateSetup, st: RateSettings) -> TraceSet
 def estimate_slopes(ts: TraceSet, setup: PlateSetup, st: RateSettings,
                     blank_mode: str) -> tuple[TraceSlopes, TraceSet]:
     """Every trace's slope, one vectorised pass per distinct window (stage 2), and the blank
-    level (:func:`blank_level`); with the blank mode ``trace`` the time-matched mean of the
-    blanks kept is subtracted and the slopes found again."""
+    level (:func:`blank_level`). The blank is taken out of the traces before their slopes are
+    found again: with the blank mode ``trace`` the time-matched mean of the blanks kept, with
+    ``slope`` the blanks' mean drift (level x time) from every well but the blanks. A whole-
+    curve fit to a trace that still drifts reads the drift as part of the reaction's bend: a
+    drift against the assay's direction made slow wells read a third low, many SEs off, when
+    the blank slope was subtracted from their curves' initial slopes afterwards."""
     wells = setup.wells.loc[ts.names]
     roles, specs = wells["role"].to_numpy(), list(wells["window"])
     g = ts.grid()
     win = _windows_by_spec(g, specs, st)
     rep = _reported(win)
     raw_slope, raw_se = rep[0] * 60, rep[1] * 60
-    blank = blank_level(raw_slope, raw_se, roles == "blank")
+    blank = blank_level(*_straight_slopes(win, rep), roles == "blank")
     analysed = ts
     if blank_mode == "trace":
         analysed = _blank_trace_subtract(ts, [n for n, k in zip(ts.names, blank["kept"],
                                                                  strict=True) if k])
+    elif blank_mode == "slope" and "level" in blank:
+        drift = np.where((roles == "blank")[:, None], 0.0, blank["level"] / 60 * g.times)
+        analysed = ts.with_values(g.values - drift)
+    if analysed is not ts:
         g = analysed.grid()
         win = _windows_by_spec(g, specs, st)
         rep = _reported(win)
     t0, t1 = window_times(g, win)
     return TraceSlopes(win, rep[0] * 60, rep[1] * 60, rep[2], rep[3], rep[4], raw_slope,
                        raw_se, t0, t1, blank), analysed
+
+
+def _straight_slopes(win: Windows, rep) -> tuple[np.ndarray, np.ndarray]:
+    """Each trace's straight-line slope over its window and that line's own SE (A/min), the
+    reported ones where a trace has none: a blank's drift is a straight line, and the
+    reported SE of a straight trace may carry the whole-curve fit's doubt about a bend, which
+    weighted evenly drifting blanks unevenly and widened every well's SE."""
+    ws, wse = np.asarray(win.window_slope, float), np.asarray(win.window_slope_se, float)
+    ok = np.isfinite(ws) & np.isfinite(wse) & (wse > 0)
+    return np.where(ok, ws, rep[0]) * 60, np.where(ok, wse, rep[1]) * 60
 
 
 def _blank_trace_subtract(ts: TraceSet, blanks: list[str]) -> TraceSet:
@@ -539,10 +557,10 @@ def blank_correction(s: TraceSlopes, is_blank: np.ndarray, mode: str, names: lis
         return slope, se, info
     info.update(slope_A_per_min=b["level"], slope_A_per_min_se=b["se"],
                 left_out=[n for n, o in zip(names, b["left_out"], strict=True) if o],
-                how="mean of the blanks' slopes weighted by 1/SE^2, blanks more than "
-                    f"{Z_OUTLIER} z from the others left out")
-    if mode == "slope":
-        slope = np.where(is_blank, slope, slope - b["level"])
+                how="mean of the blanks' straight-line slopes weighted by 1/SE^2, blanks more "
+                    f"than {Z_OUTLIER} z from the others left out; taken out of every other "
+                    "trace as a straight drift before its slope was found")
+    if mode == "slope":                 # the drift was taken out of the traces (stage 2)
         se = np.where(is_blank, se, np.hypot(se, b["se"]))
     return slope, se, info
 
