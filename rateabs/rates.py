@@ -890,16 +890,51 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
 # --------------------------------------------------------------------------- 6. activity
 
 
+#: Flags that do not doubt a well's own rate in a mean: ``blank-drift`` marks a blank (its
+#: drift is the plate's business), and ``outlier`` is judged against the group itself.
+NOT_DOUBTING = ("blank-drift", "outlier")
+
+
+def _set_aside(grp: pd.DataFrame, values: np.ndarray) -> tuple[np.ndarray, list[str]]:
+    """Which wells of a group go into its mean, and why each other one does not: wells without
+    a value, replicate outliers (unless every well is one: two that disagree are both kept),
+    and wells that need a look for another reason (a flag says their own rate may be wrong),
+    unless that would leave none, when they are kept and said to be."""
+    flags = list(grp["flags"])
+    outl = np.array(["outlier" in f for f in flags])
+    if outl.all():
+        outl[:] = False
+    doubt = [[w for w in f if w not in NOT_DOUBTING] for f in flags]
+    ok = np.isfinite(values)
+    use = ok & ~outl & ~np.array([bool(d) for d in doubt])
+    kept_doubted = not use.any()
+    if kept_doubted:
+        use = ok & ~outl
+    why = []
+    for w, v, f, d, o, z in zip(grp["trace"], values, flags, doubt, outl, grp["replicate_z"],
+                                strict=True):
+        if not np.isfinite(v):
+            why.append(f"{w}: no rate ({', '.join(f) or 'no estimate'})")
+        elif o:
+            why.append(f"{w}: replicate outlier (|z| = {z:.1f})")
+        elif d and not kept_doubted:
+            why.append(f"{w}: needs a look ({', '.join(d)})")
+        elif d:
+            why.append(f"{w}: needs a look ({', '.join(d)}), kept: every well of the group does")
+    return use, why
+
+
 def replicate_summary(table: pd.DataFrame, value_col: str) -> pd.DataFrame:
-    """Mean, SD, CV and n per replicate group and dilution, outliers left out of the mean."""
+    """Mean, SD, CV and n per replicate group and dilution; outliers and wells that need a
+    look left out of the mean with the reason (:func:`_set_aside`)."""
     d = table[~table["role"].isin(["blank", "standard"])
               & np.isfinite(table[value_col].astype(float))]
     if d.empty or d["replicate_key"].nunique() == len(d):
         return pd.DataFrame()                       # no replicates on this plate
     rows = []
     for _, grp in d.groupby("replicate_key", sort=False):
-        kept = grp[~grp["flags"].apply(lambda f: "outlier" in f)]
-        kept = kept if len(kept) else grp
+        use, why = _set_aside(grp, grp[value_col].to_numpy(float))
+        kept = grp[use]
         v = kept[value_col].to_numpy(float)
         sd = float(np.std(v, ddof=1)) if v.size > 1 else np.nan
         rows.append({"group": grp["group"].iloc[0], "role": grp["role"].iloc[0],
@@ -911,19 +946,15 @@ def replicate_summary(table: pd.DataFrame, value_col: str) -> pd.DataFrame:
                      "sem": sd / math.sqrt(v.size) if v.size > 1 else np.nan,
                      "cv_pct": 100 * sd / abs(v.mean()) if v.mean() else np.nan,
                      "unit": value_col.split("_", 1)[1].replace("_per_", "/"),
-                     "wells": list(grp["trace"]), "left_out": _left_out(grp, kept)})
+                     "wells": list(grp["trace"]), "left_out": why})
     reps = pd.DataFrame(rows)
     return reps if (reps["n"] > 1).any() else pd.DataFrame()
 
 
-def _left_out(grp: pd.DataFrame, kept: pd.DataFrame) -> list[str]:
-    return [f"{r['trace']}: replicate outlier (|z| = {r['replicate_z']:.1f})"
-            for _, r in grp.iterrows() if r["trace"] not in set(kept["trace"])]
-
-
 def activity_summary(table: pd.DataFrame) -> pd.DataFrame:
     """Per sample and condition (substrate, inhibitor): mean activity ± SD over replicates and
-    dilutions, outliers and wells without a rate left out with the reason, and the
+    dilutions, outliers, wells that need a look and wells without a rate left out with the
+    reason (:func:`_set_aside`), and the
     dilution-linearity check (activity regressed on log2 dilution; stage 6)."""
     if "activity_U_per_mL" not in table.columns:
         return pd.DataFrame()
@@ -933,14 +964,7 @@ def activity_summary(table: pd.DataFrame) -> pd.DataFrame:
     for (name, s_uM, i_uM), grp in d.groupby([keys, d["substrate_uM"].fillna(-1),
                                               d["inhibitor_uM"].fillna(-1)], sort=False):
         act = grp["activity_U_per_mL"].to_numpy(float)
-        outl = grp["flags"].apply(lambda f: "outlier" in f).to_numpy()
-        if outl.all():
-            outl[:] = False                          # two that disagree: both kept, both flagged
-        use = np.isfinite(act) & ~outl
-        why = [f"{w}: no rate ({', '.join(f) or 'no estimate'})" for w, a, f in
-               zip(grp["trace"], act, grp["flags"], strict=True) if not np.isfinite(a)]
-        why += [f"{w}: replicate outlier (|z| = {z:.1f})" for w, z, o in
-                zip(grp["trace"], grp["replicate_z"], outl, strict=True) if o]
+        use, why = _set_aside(grp, act)
         row = {"sample": name, "substrate_uM": None if s_uM < 0 else s_uM,
                "inhibitor_uM": None if i_uM < 0 else i_uM, "n_wells": len(grp),
                "n_used": int(use.sum()), "wells": list(grp["trace"]),

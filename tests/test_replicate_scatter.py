@@ -49,3 +49,55 @@ def test_the_clipped_chi_square_mean_matches_scipy():
     from rateabs.rates import HUBER_MEAN, HUBER_Z2
     assert HUBER_MEAN == pytest.approx(chi2.cdf(HUBER_Z2, 3) + HUBER_Z2 * chi2.sf(HUBER_Z2, 1),
                                        abs=1e-6)
+
+
+def _settling_group(tmp_path, settles):
+    """Wells of one sample (same [S]0, 3 % used over the read, S0 = Km/5): well k's baseline
+    settles by settles[k] A in the reaction's direction over the first minutes; true rate in
+    uM/min (solve_ivp, tests/kinetics_truth.py)."""
+    from kinetics_truth import mm_progress
+
+    from rateabs.layout import read_layout
+    from rateabs.options import RateSettings
+    from rateabs.rates import analyse_plate
+    from rateabs.traces import TraceSet
+
+    times, eps, kappa, used = np.arange(0.0, 601.0, 10.0), 6220.0, 5.0, 0.03
+    u = (used - kappa * np.log1p(-used)) / times[-1]                  # V/S0, 1/s
+    change = 0.1 / used                                               # A for the whole S0
+    rng = np.random.default_rng(5)
+    ys = [0.1 + change * mm_progress(times, u, kappa) + s * np.exp(-times / 40.0)
+          + rng.normal(0, 0.001, times.size) for s in settles]
+    names = [f"A{k + 1}" for k in range(len(settles))]
+    s0 = change / eps * 1e6
+    (tmp_path / "m.csv").write_text("well,role,sample,substrate (uM)\n" + "".join(
+        f"{n},sample,L1,{s0:.6g}\n" for n in names))
+    a = analyse_plate(TraceSet.from_arrays(names, times, np.array(ys)),
+                      read_layout(str(tmp_path / "m.csv")),
+                      RateSettings(epsilon=eps, pathlength_cm=1.0, total_volume_L=200e-6,
+                                   sample_volume_L=20e-6))
+    return a, s0 * u / (1 + kappa) * 60
+
+
+def test_a_well_that_needs_a_look_is_left_out_of_its_samples_mean_with_the_reason(tmp_path):
+    # duplicates (too few for a replicate-outlier test): a baseline settling by 0.02 A in the
+    # reaction's direction lifts one well's rate by a fifth and it is flagged; the sample's
+    # mean was the two wells' (+10 %) and is now the sound one's, with the reason shown
+    a, truth = _settling_group(tmp_path, [0.0, -0.02])
+    t = a.table.set_index("trace")
+    assert t.loc["A2", "flags"] and t.loc["A2", "rate_uM_per_min"] > 1.1 * truth
+    assert "outlier" not in t.loc["A2", "flags"]
+    act = a.activity.iloc[0]
+    assert act["n_used"] == 1 and act["left_out"][0].startswith("A2: needs a look (")
+    assert act["activity_U_per_mL"] == t.loc["A1", "activity_U_per_mL"]
+    # U/mL = uM/min x 200 uL / 20 uL / 1000 (1 U = 1 umol/min, NC-IUB 1979)
+    assert act["activity_U_per_mL"] == pytest.approx(truth * 1e-3 * 10, rel=0.05)
+    rep = a.replicates.iloc[0]
+    assert rep["n_used"] == 1 and rep["left_out"] == list(act["left_out"])
+
+
+def test_when_every_well_needs_a_look_they_are_kept_and_it_is_said(tmp_path):
+    a, _ = _settling_group(tmp_path, [-0.03, -0.03, -0.03])
+    act = a.activity.iloc[0]
+    assert act["n_used"] == 3
+    assert all(x.endswith("kept: every well of the group does") for x in act["left_out"])

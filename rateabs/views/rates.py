@@ -284,7 +284,7 @@ def well_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
 
 
 def replicate_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
-    """The replicate table: mean ± SD of the wells kept, CV, outliers left out."""
+    """The replicate table: mean ± SD of the wells kept, CV, the wells left out and why."""
     reps = a.replicates
     if reps.empty:
         return [], []
@@ -351,7 +351,8 @@ _BLANK_WORDS = {"slope": "their mean slope subtracted from every other well",
 def rates_table(a) -> str:
     """Per-well table, replicates, activity, blanks, Z' and the meaning of each flag shown."""
     text = render_table(*well_rows(a))
-    for title, (rows, cols) in (("replicates (outliers left out of the mean)", replicate_rows(a)),
+    for title, (rows, cols) in (("replicates (outliers and wells that need a look left out of "
+                                 "the mean)", replicate_rows(a)),
                                 ("activity per sample, over replicates and dilutions",
                                  activity_rows(a))):
         if rows:
