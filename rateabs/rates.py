@@ -38,8 +38,6 @@ PLATE_FLAGS = {
                "few groups have replicates to pool); with two replicates both are flagged, as "
                "either may be wrong",
     "reversed": "the signal moves opposite to the plate's assay direction",
-    "blank-drift": "a blank well changes significantly over the read, so the blank correction "
-                   "moves every rate",
     "masked-start": "the first readings were masked (over range, past the linear limit, missing "
                     "or skipped), so the slope starts later than the reaction: with depletion "
                     "it reads low",
@@ -669,13 +667,9 @@ def plate_flags(t: pd.DataFrame, s: TraceSlopes, g: Grid, direction: float,
     slope, se = t["slope_A_per_min"].to_numpy(float), t["slope_A_per_min_se"].to_numpy(float)
     sample_like = np.isin(roles, ["sample", "positive"])
     with np.errstate(all="ignore"), quiet_numpy():
-        med = np.nanmedian(np.abs(slope[sample_like])) if sample_like.any() else np.nan
-        blank_sig = np.abs(s.raw_slope) > 3 * s.raw_se
         masks = {
             "reversed": sample_like & np.isfinite(slope) & (slope * direction < 0)
                         & (np.abs(slope) > 3 * se),
-            "blank-drift": (roles == "blank") & np.nan_to_num(blank_sig).astype(bool)
-                           & (~np.isfinite(med) | (np.abs(s.raw_slope) > 0.05 * med)),
             "masked-start": _masked_start(g),
         }
         short = depletion_shortfall(used_in_window(t, s)) * np.abs(slope)
@@ -895,9 +889,9 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
 # --------------------------------------------------------------------------- 6. activity
 
 
-#: Flags that do not doubt a well's own rate in a mean: ``blank-drift`` marks a blank (its
-#: drift is the plate's business), and ``outlier`` is judged against the group itself.
-NOT_DOUBTING = ("blank-drift", "outlier")
+#: Flags that do not doubt a well's own rate in a mean: ``outlier`` is judged against the
+#: group itself.
+NOT_DOUBTING = ("outlier",)
 
 
 def _set_aside(grp: pd.DataFrame, values: np.ndarray) -> tuple[np.ndarray, list[str]]:
@@ -1125,9 +1119,41 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     a = RatesAnalysis(table, replicate_summary(table, value_col), z_prime(table, value_col),
                       s.windows, analysed, st, list(setup.warnings), blank_info, setup,
                       activity_summary(table), how, t0)
-    a.warnings += (_notes(a, value_col) + _substrate_note(table, g)
+    a.warnings += (_notes(a, value_col) + blank_drift(table, blank_info)
+                   + _substrate_note(table, g)
                    + _unused_standards(table, st, "calibration" in blank_info))
     return a
+
+
+#: The blanks' drift is said where it is significant (over 3 SE) and over this fraction of
+#: the median sample rate: every rate then rests on the blank correction. It is the plate's,
+#: not a blank's: a blank that drifts unlike the others is left out as a replicate outlier.
+BLANK_DRIFT_SHARE = 0.05
+
+
+def blank_drift(table: pd.DataFrame, blank_info: dict) -> list[str]:
+    """One line on the blanks' drift where it matters (:data:`BLANK_DRIFT_SHARE`); its share
+    of the median sample rate goes into ``blank_info``."""
+    level, se = blank_info.get("slope_A_per_min"), blank_info.get("slope_A_per_min_se")
+    if level is None:
+        return []
+    sample_like = table["role"].isin(["sample", "positive"]).to_numpy()
+    rates = np.abs(table["slope_A_per_min"].to_numpy(float)[sample_like])
+    with quiet_numpy():
+        med = float(np.nanmedian(rates)) if rates.size else np.nan
+    share = abs(level) / med if med > 0 else np.nan
+    blank_info["drift_share_of_median_rate"] = None if np.isnan(share) else round(share, 4)
+    if not (abs(level) > 3 * se and not share <= BLANK_DRIFT_SHARE):
+        return []
+    from .fitting import fmt_pm
+
+    size = fmt_pm(level, se, unit="A/min") + (f", {share:.0%} of the median sample rate"
+                                               if np.isfinite(share) else "")
+    if blank_info["mode"] == "none":
+        return [f"the blanks drift by {size}, and nothing was subtracted (--blank none): every "
+                "rate carries that drift"]
+    return [f"the blanks drift by {size}; it was taken out of every well, so every rate rests "
+            "on the blanks holding all that the samples hold but the enzyme"]
 
 
 def plate_origin(ts: TraceSet) -> tuple[TraceSet, float]:
