@@ -894,7 +894,8 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
 NOT_DOUBTING = ("outlier",)
 
 
-def _set_aside(grp: pd.DataFrame, values: np.ndarray) -> tuple[np.ndarray, list[str]]:
+def _set_aside(grp: pd.DataFrame, values: np.ndarray,
+               stat: str = "|z|") -> tuple[np.ndarray, list[str]]:
     """Which wells of a group go into its mean, and why each other one does not: wells without
     a value, replicate outliers (unless every well is one: two that disagree are both kept),
     and wells that need a look for another reason (a flag says their own rate may be wrong),
@@ -915,7 +916,7 @@ def _set_aside(grp: pd.DataFrame, values: np.ndarray) -> tuple[np.ndarray, list[
         if not np.isfinite(v):
             why.append(f"{w}: no rate ({', '.join(f) or 'no estimate'})")
         elif o:
-            why.append(f"{w}: replicate outlier (|z| = {z:.1f})")
+            why.append(f"{w}: replicate outlier ({stat} = {z:.1f})")
         elif d and not kept_doubted:
             why.append(f"{w}: needs a look ({', '.join(d)})")
         elif d:
@@ -923,7 +924,7 @@ def _set_aside(grp: pd.DataFrame, values: np.ndarray) -> tuple[np.ndarray, list[
     return use, why
 
 
-def replicate_summary(table: pd.DataFrame, value_col: str) -> pd.DataFrame:
+def replicate_summary(table: pd.DataFrame, value_col: str, stat: str = "|z|") -> pd.DataFrame:
     """Mean, SD, CV and n per replicate group and dilution; outliers and wells that need a
     look left out of the mean with the reason (:func:`_set_aside`)."""
     d = table[~table["role"].isin(["blank", "standard"])
@@ -932,7 +933,7 @@ def replicate_summary(table: pd.DataFrame, value_col: str) -> pd.DataFrame:
         return pd.DataFrame()                       # no replicates on this plate
     rows = []
     for _, grp in d.groupby("replicate_key", sort=False):
-        use, why = _set_aside(grp, grp[value_col].to_numpy(float))
+        use, why = _set_aside(grp, grp[value_col].to_numpy(float), stat)
         kept = grp[use]
         v = kept[value_col].to_numpy(float)
         sd = float(np.std(v, ddof=1)) if v.size > 1 else np.nan
@@ -950,7 +951,7 @@ def replicate_summary(table: pd.DataFrame, value_col: str) -> pd.DataFrame:
     return reps if (reps["n"] > 1).any() else pd.DataFrame()
 
 
-def activity_summary(table: pd.DataFrame) -> pd.DataFrame:
+def activity_summary(table: pd.DataFrame, stat: str = "|z|") -> pd.DataFrame:
     """Per sample and condition (substrate, inhibitor): mean activity ± SD over replicates and
     dilutions, outliers, wells that need a look and wells without a rate left out with the
     reason (:func:`_set_aside`), and the
@@ -963,7 +964,7 @@ def activity_summary(table: pd.DataFrame) -> pd.DataFrame:
     for (name, s_uM, i_uM), grp in d.groupby([keys, d["substrate_uM"].fillna(-1),
                                               d["inhibitor_uM"].fillna(-1)], sort=False):
         act = grp["activity_U_per_mL"].to_numpy(float)
-        use, why = _set_aside(grp, act)
+        use, why = _set_aside(grp, act, stat)
         row = {"sample": name, "substrate_uM": None if s_uM < 0 else s_uM,
                "inhibitor_uM": None if i_uM < 0 else i_uM, "n_wells": len(grp),
                "n_used": int(use.sum()), "wells": list(grp["trace"]),
@@ -1116,9 +1117,10 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     table["replicate_z"] = z
     plate = _flag_lists({k: masks[k] for k in PLATE_FLAGS if k in masks}, len(table))
     table["flags"] = [a + b for a, b in zip(s.trace_flags, plate, strict=True)]
-    a = RatesAnalysis(table, replicate_summary(table, value_col), z_prime(table, value_col),
+    stat = "Grubbs G" if how.startswith("Grubbs") else "|z|"
+    a = RatesAnalysis(table, replicate_summary(table, value_col, stat), z_prime(table, value_col),
                       s.windows, analysed, st, list(setup.warnings), blank_info, setup,
-                      activity_summary(table), how, t0)
+                      activity_summary(table, stat), how, t0)
     a.warnings += (_notes(a, value_col) + blank_drift(table, blank_info)
                    + _substrate_note(table, g)
                    + _unused_standards(table, st, "calibration" in blank_info))

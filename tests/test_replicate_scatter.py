@@ -101,3 +101,10 @@ def test_when_every_well_needs_a_look_they_are_kept_and_it_is_said(tmp_path):
     act = a.activity.iloc[0]
     assert act["n_used"] == 3
     assert all(x.endswith("kept: every well of the group does") for x in act["left_out"])
+
+
+def test_a_grubbs_outlier_is_named_with_grubbs_g_not_a_z(tmp_path):
+    # one group (too few to pool): Grubbs (1969) decides, and the reason gives his G
+    a, _ = _settling_group(tmp_path, [0.0, 0.0, 0.0, -0.02])
+    assert a.outlier_method.startswith("Grubbs")
+    assert a.activity.iloc[0]["left_out"][0].startswith("A4: replicate outlier (Grubbs G = ")
