@@ -21,9 +21,9 @@ COLUMNS = ("trace", "role", "method", "flags", "window_start_s", "window_end_s",
 
 @dataclass(frozen=True)
 class RateDrawing:
-    """The readings (one row per well, as the analysis's grid), the table's columns the figures
-    need, the plate, the blank slope subtracted, the whole-curve fit where it is drawn, and the
-    replicate groups.
+    """The readings (one row per well, as the analysis's grid: any blank already taken out),
+    the table's columns the figures need, the plate, the blank mode, the whole-curve fit where
+    it is drawn, and the replicate groups.
 
     ``curve_start`` is, for wells whose slope comes from the whole curve, the curve's value at
     the first usable reading (NaN elsewhere); ``curve_lines`` maps a well to its fitted curve
@@ -36,7 +36,7 @@ class RateDrawing:
     table: dict[str, np.ndarray | list]
     plate_format: int | None = None
     left_out: list[str] = field(default_factory=list)
-    blank_slope: float = 0.0
+    blank_mode: str = ""
     curve_start: np.ndarray | None = None
     curve_lines: dict[str, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
     replicates: dict[str, list] | None = None
@@ -52,10 +52,6 @@ class RateDrawing:
         k = self.names.index(name)
         return {c: v[k] for c, v in self.table.items()}
 
-    def blank_offsets(self) -> np.ndarray:
-        """What the blank correction took off each well's slope (A/min), to draw the raw
-        slope: the blank slope on every well but the blanks."""
-        return np.where(self.table["role"] == "blank", 0.0, self.blank_slope)
 
 
 def rate_drawing(analysis, wells: list[str] = ()) -> RateDrawing:
@@ -68,14 +64,12 @@ def rate_drawing(analysis, wells: list[str] = ()) -> RateDrawing:
                  else np.array([str(x) for x in t[c]])) for c in cols if c != "flags"}
     table["flags"] = [tuple(f) for f in t["flags"]]
     setup = analysis.setup
-    b = analysis.blank_info or {}
-    blank = (float(b["slope_A_per_min"]) if b.get("mode") == "slope"
-             and b.get("slope_A_per_min") is not None else 0.0)
     return RateDrawing(
         names=list(g.names), times=np.asarray(g.times, float), values=np.asarray(g.values, float),
         usable=np.asarray(g.usable, bool), table=table,
         plate_format=setup.plate_format if setup is not None else None,
-        left_out=list(setup.skipped_wells) if setup is not None else [], blank_slope=blank,
+        left_out=list(setup.skipped_wells) if setup is not None else [],
+        blank_mode=(analysis.blank_info or {}).get("mode", ""),
         curve_start=_curve_start(analysis.windows, g, table["method"]),
         curve_lines={n: line for n in wells if (line := _curve_line(analysis.windows, g, n))},
         replicates=_replicates(analysis.replicates))

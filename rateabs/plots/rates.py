@@ -30,16 +30,21 @@ WELL_PAGE_SIZE = 24       # single wells to a page
 
 def plate_positions(names: list[str], plate_format: int | None):
     """(rows, columns, row of each trace, column of each trace, row labels, column labels):
-    plate geometry for well names, else a near-square grid in the traces' order."""
+    plate geometry for well names, cut to the rows and columns the wells span (28 wells of a
+    384-well plate drawn as tiny cells in one corner of an empty plate could not be read),
+    else a near-square grid in the traces' order."""
     from ..wells import PLATES, well_position
 
     pos = [well_position(n) for n in names]
-    if plate_format in PLATES and all(p is not None for p in pos):
-        nrow, ncol = PLATES[plate_format]
+    if plate_format in PLATES and all(p is not None for p in pos) and pos:
         rows = np.array([p[0] for p in pos])
         cols = np.array([p[1] for p in pos])
-        letters = [chr(65 + r) if r < 26 else "A" + chr(65 + r - 26) for r in range(nrow)]
-        return nrow, ncol, rows, cols, letters, [str(c + 1) for c in range(ncol)]
+        r0, c0 = int(rows.min()), int(cols.min())
+        nrow, ncol = int(rows.max()) - r0 + 1, int(cols.max()) - c0 + 1
+        letters = [chr(65 + r) if r < 26 else "A" + chr(65 + r - 26)
+                   for r in range(r0, r0 + nrow)]
+        return nrow, ncol, rows - r0, cols - c0, letters, [str(c + 1)
+                                                           for c in range(c0, c0 + ncol)]
     n = max(len(names), 1)
     ncol = max(1, math.ceil(math.sqrt(n * 1.5)))
     nrow = math.ceil(n / ncol)
@@ -161,6 +166,12 @@ def plate_overview(analysis, path, title: str = ""):
         inside = ok & (g.times >= t0) & (g.times <= t1)
     flagged = np.array([bool(f) for f in t["flags"]] + [False] * len(left_out))
     fig_w, fig_h = ncol * cell_in + 1.2, nrow * cell_in + 1.3
+    n_look = int(flagged.sum())
+    heading, extra = _wrapped(
+        (f"{title}: " if title else "") + f"{n} wells, time left to right, each well scaled to "
+        f"its own change; green bar: window, orange line: initial slope; shaded: needs a look "
+        f"({n_look})" + (f"; grey: left out ({len(left_out)})" if left_out else ""), fig_w, 0.6)
+    fig_h += extra
     with house_style() as plt:
         fig = plt.figure(figsize=(fig_w, fig_h))
         ax = fig.add_axes((0.6 / fig_w, 0.5 / fig_h, ncol * cell_in / fig_w,
@@ -183,11 +194,7 @@ def plate_overview(analysis, path, title: str = ""):
         ax.set_ylim(nrow, 0)
         ax.set_axis_off()
         _plate_labels(ax, rlab, clab, 7 if ncol <= 24 else 5)
-        n_look = int(flagged.sum())
-        _fig_title(fig, (f"{title}: " if title else "") + f"{n} wells, time left to right, each "
-                   f"well scaled to its own change; green bar: window, orange line: initial "
-                   f"slope; shaded: needs a look ({n_look})" + (f"; grey: left out ({len(left_out)})"
-                                                          if left_out else ""), 0.6, fig_h - 0.5)
+        _fig_title(fig, heading, 0.6, fig_h - 0.5 - extra)
         return save(fig, path, tight=False, compress_level=FAST_PNG)
 
 
@@ -198,6 +205,15 @@ def _plate_labels(ax, rlab: list[str], clab: list[str], size: float) -> None:
                ha="right")
     text_marks(ax, np.arange(len(clab)) + 0.5, np.full(len(clab), len(rlab) + 0.08), clab,
                size=size, va="top")
+
+
+def _wrapped(text: str, fig_w: float, left_in: float) -> tuple[str, float]:
+    """A title wrapped to the figure's width (9 pt: about 14.5 characters an inch) and the
+    height its extra lines need (in)."""
+    import textwrap
+
+    lines = textwrap.wrap(text, max(20, int((fig_w - left_in - 0.2) * 14.5)))
+    return "\n".join(lines), 0.16 * (len(lines) - 1)
 
 
 def _fig_title(fig, text: str, left_in: float, bottom_in: float) -> None:
@@ -222,7 +238,7 @@ def _slope_lines(g: RateDrawing, cells, tmin, tspan, scale, pad, band):
     the first 35 % of the read."""
     r0, c0 = cells
     t = g.table
-    slope = (np.asarray(t["slope_A_per_min"], float) + g.blank_offsets()) / 60.0
+    slope = np.asarray(t["slope_A_per_min"], float) / 60.0       # on the traces as analysed
     t0, t1 = np.asarray(t["window_start_s"], float), np.asarray(t["window_end_s"], float)
     ok = g.usable & np.isfinite(g.times)
     times, values = np.where(ok, g.times, 0.0), np.where(ok, g.values, 0.0)
@@ -307,14 +323,18 @@ def _well_page(g: RateDrawing, names: list[str], path: Path) -> Path:
 
     cols = 6 if len(names) > 12 else min(4, len(names))
     rows = math.ceil(len(names) / cols)
-    fig_w, fig_h = cols * 2.3, rows * 2.1 + 0.45
+    fig_w = max(cols * 2.3, 4.6)                  # room for the legend above one or two wells
+    legend = textwrap.fill("readings (dots; x masked), window (shaded), initial slope (orange), "
+                           "whole-curve fit (dotted); below: residuals from the slope line (mAU)",
+                           int(fig_w * 13))
+    fig_h = rows * 2.1 + 0.15 + 0.14 * (legend.count("\n") + 1)
     parts: dict[str, list] = {k: [] for k in ("dots", "grey", "bad", "res", "res_out", "shade",
                                               "line", "curve", "zero", "frame", "text")}
     for k, name in enumerate(names):
         _draw_cell(parts, g, g.names.index(name), g.row(name), k // cols, k % cols)
     with house_style() as plt:
         fig = plt.figure(figsize=(fig_w, fig_h))
-        ax = fig.add_axes((0, 0, 1, rows * 2.1 / fig_h))
+        ax = fig.add_axes((0, 0, cols * 2.3 / fig_w, rows * 2.1 / fig_h))
         ax.set_axis_off()
         ax.set_xlim(0, cols)
         ax.set_ylim(rows, 0)
@@ -332,10 +352,8 @@ def _well_page(g: RateDrawing, names: list[str], path: Path) -> Path:
                 ax.scatter(xy[:, 0], xy[:, 1], s=size, c=colour, marker=marker, lw=0.6 if
                            marker == "x" else 0)
         _page_texts(ax, parts["text"])
-        legend = ("readings (dots; x masked), window (shaded), initial slope (orange), "
-                  "whole-curve fit (dotted); below: residuals from the slope line (mAU)")
-        fig.text(0.5, 1 - 0.06 / fig_h, textwrap.fill(legend, int(fig_w * 13)), ha="center",
-                 va="top", fontsize=8.5 if fig_w > 9 else 7.5)
+        fig.text(0.5, 1 - 0.06 / fig_h, legend, ha="center", va="top",
+                 fontsize=8.5 if fig_w > 9 else 7.5)
         return save(fig, path, tight=False, compress_level=FAST_PNG)
 
 
@@ -378,7 +396,7 @@ def _draw_cell(parts: dict, g: RateDrawing, i: int, rec: dict, row: int, col: in
     bad = seen & ~ok
     if bad.any():
         parts["bad"].append(np.column_stack([cell.x(t[bad]), cell.y(y[bad], lo, hi, main)]))
-    slope = (rec["slope_A_per_min"] + (0.0 if rec["role"] == "blank" else g.blank_slope)) / 60.0
+    slope = rec["slope_A_per_min"] / 60.0                        # on the traces as analysed
     res_txt = ""
     if np.isfinite(t0) and np.isfinite(t1) and inside.sum() >= 2 and np.isfinite(slope):
         parts["shade"].append(_box(cell, main, cell.x(t0), cell.x(t1)))
@@ -448,6 +466,11 @@ def plate_heatmap(analysis, path):
     grid[rows, cols] = vals
     cell = 0.62 if ncol <= 12 else (0.36 if ncol <= 24 else 0.22)
     fig_w, fig_h = ncol * cell + 2.2, nrow * cell + 1.1
+    blanks = (" (blank wells: their own slope; it was taken out of the others)"
+              if d.blank_mode == "slope" and (t["role"] == "blank").any() else "")
+    heading, extra = _wrapped(f"{col.split('_')[0]} per well ({unit}){blanks}; orange outline: "
+                              "needs a look", fig_w, 0.5)
+    fig_h += extra
     with house_style() as plt:
         fig = plt.figure(figsize=(fig_w, fig_h))
         ax = fig.add_axes((0.5 / fig_w, 0.35 / fig_h, ncol * cell / fig_w, nrow * cell / fig_h))
@@ -471,8 +494,7 @@ def plate_heatmap(analysis, path):
         ax.set_axis_off()
         _plate_labels(ax, rlab, clab, 7 if ncol <= 24 else 5)
         _colour_bar(ax, im, (nrow, ncol), cell, f"{col.split('_')[0]} ({unit})")
-        _fig_title(fig, f"{col.split('_')[0]} per well ({unit}); orange outline: needs a look",
-                   0.5, 0.35 + nrow * cell)
+        _fig_title(fig, heading, 0.5, 0.35 + nrow * cell)
         return save(fig, path, tight=False, compress_level=FAST_PNG)
 
 
