@@ -138,7 +138,7 @@ def read_layout(path: str) -> pd.DataFrame:
     out["skip"] = _skips(m)
     out.attrs["source"] = path
     out.attrs["notes"] = (name_variants(m, list(out["role"])) + _enzyme_note(out)
-                          + _unread_columns(df))
+                          + _unread_columns(df, path))
     out.attrs["columns"] = sorted(c for c in ("dilution", "protein", "group", "window", "skip",
                                               "exclude", "enzyme")
                                   if c in df.columns or (c in ("protein", "enzyme")
@@ -150,21 +150,62 @@ def read_layout(path: str) -> pd.DataFrame:
 #: the start of their header (``substrate (mM)``).
 MAP_COLUMNS = ("well", "role", "sample", "substrate", "inhibitor", "standard", "enzyme",
                "dilution", "protein", "group", "exclude", "window", "skip")
+#: The columns matched by the start of their header; the others only by their exact name.
+_BY_STEM = ("substrate", "inhibitor", "standard", "enzyme", "protein")
 #: Columns of free text that a map may carry for people, read by no one and said nothing of.
 _FREE_TEXT = ("note", "notes", "comment", "comments", "description", "remark", "remarks")
 
 
-def _unread_columns(df: pd.DataFrame) -> list[str]:
-    """A note naming the map's columns that are not read ('total protein (mg/mL)', 'Substrat'),
-    so that a value meant for the analysis is never left out in silence."""
-    known = {conc_column(df, c) or c for c in MAP_COLUMNS}
-    unread = [df.attrs["headers"].get(c, c) for c in df.columns
+#: Map columns whose values change the numbers, not just add one: a look-alike of one of these
+#: (``dilutoin``, ``dilution factor``, ``substrat_uM``) where the map lacks it stops the run, as
+#: its values would otherwise be left out in silence (a lysate's U/mL 8x low, six substrate
+#: levels averaged into one activity). A look-alike of another column is named in a warning.
+_MUST_READ = ("sample", "substrate", "inhibitor", "standard", "dilution")
+
+
+def _looks_like(header: str) -> str | None:
+    """The map column a header not read most likely means: a word of it (units in brackets
+    left out) that is a map column's name, or within a typing slip of one (difflib ratio 0.8:
+    ``dilutoin``, ``substrat``), else None."""
+    import difflib
+
+    words = re.findall(r"[a-z]{4,}", re.sub(r"[(\[].*?[)\]]", " ", header.lower()))
+    for w in words:
+        if w in MAP_COLUMNS:
+            return w
+    for w in words:
+        close = difflib.get_close_matches(w, MAP_COLUMNS, n=1, cutoff=0.8)
+        if close:
+            return close[0]
+    return None
+
+
+def _unread_columns(df: pd.DataFrame, path: str) -> list[str]:
+    """A note naming the map's columns that are not read ('total protein (mg/mL)'), with the
+    column each most likely means, so that a value meant for the analysis is never left out in
+    silence; a look-alike of a column of :data:`_MUST_READ` that the map lacks stops the run."""
+    known = {(conc_column(df, c) if c in _BY_STEM else None) or c for c in MAP_COLUMNS}
+    unread = [c for c in df.columns
               if c not in known and c not in _FREE_TEXT and not str(c).startswith("unnamed")]
     if not unread:
         return []
-    return [f"the plate map's column(s) {', '.join(repr(c) for c in unread)} are not read; the "
-            f"columns read are {', '.join(MAP_COLUMNS)} (units in the header, e.g. "
-            "'protein (mg/mL)'; see docs/formats.md)"]
+    have = {c for c in MAP_COLUMNS if c in df.columns or (c in _BY_STEM and conc_column(df, c))}
+    said = []
+    for c in unread:
+        header, like = df.attrs["headers"].get(c, c), _looks_like(c)
+        if like in _MUST_READ and like not in have:
+            raise InputError(
+                f"the plate map's column {header!r} looks like {like!r}, which the map does not "
+                "have, and is not read: its values would be left out of every number",
+                f"rename it {like!r} (a unit in the header, e.g. '{like} (uM)', where it has "
+                "one), or 'note' if it is not meant for the analysis", file=path,
+                row=df.attrs.get("header_line"), column=header)
+        hint = ("" if not like else f" (beside the {like!r} column, which is read)"
+                if like in have else f" (meant as {like!r}? rename it so)")
+        said.append(f"{header!r}{hint}")
+    return [f"the plate map's column(s) {', '.join(said)} are not read; the columns read are "
+            f"{', '.join(MAP_COLUMNS)} (units in the header, e.g. 'protein (mg/mL)'; see "
+            "docs/formats.md)"]
 
 
 def _wells(m: _MapCells) -> list[str]:

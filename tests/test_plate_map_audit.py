@@ -169,6 +169,41 @@ def test_a_map_column_that_is_not_read_is_named_in_the_warnings(tmp_path):
     of free text is said nothing of."""
     doc = _run(_plate(tmp_path), _map(tmp_path, "total protein (mg/mL)", ["0.8"] * 9))
     said = [w for w in doc["warnings"] if "not read" in w]
-    assert len(said) == 1 and "'total protein (mg/mL)'" in said[0]
+    assert len(said) == 1 and "'total protein (mg/mL)' (meant as 'protein'? rename it so)" in said[0]
     doc = _run(_plate(tmp_path), _map(tmp_path, "notes", ["thawed twice"] * 9, "m2.csv"))
     assert not [w for w in doc["warnings"] if "not read" in w]
+
+
+@pytest.mark.parametrize("header,means", [("dilutoin", "dilution"), ("dilution factor", "dilution"),
+                                          ("Dilution (x)", "dilution"),
+                                          ("substrat_uM", "substrate")])
+def test_a_look_alike_of_a_column_that_changes_the_numbers_stops_the_run(tmp_path, header, means):
+    # a trial map's 'dilutoin' column was named among the columns not read and the run went on
+    # undiluted: a lysate's U/mL came out 8x low with exit 0. Now one line names the column,
+    # what it looks like and what to type, and the CLI exits non-zero with no traceback.
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    mp = _map(tmp_path, header, ["8"] * 9)
+    with pytest.raises(InputError, match=f"looks like '{means}'"):
+        read_layout(str(mp))
+    r = CliRunner().invoke(main, ["rates", str(_plate(tmp_path)), "--layout", str(mp),
+                                  "--chromophore", "NADH", "--no-plots"])
+    assert r.exit_code != 0 and r.exception is None or isinstance(r.exception, SystemExit)
+    line = [x for x in r.output.splitlines() if "looks like" in x]
+    assert len(line) == 1 and f"rename it '{means}'" in line[0] and "Traceback" not in r.output
+
+
+def test_a_look_alike_beside_the_real_column_is_only_named(tmp_path):
+    # 'dilution' is there and read; 'dilution note' beside it is a person's note
+    mp = tmp_path / "m.csv"
+    mp.write_text("well,role,sample,dilution,dilution note\n" + "".join(
+        f"A{i},sample,L1,8,thawed\n" for i in range(1, 10)) + "".join(
+        f"A{i},blank,buffer,,\n" for i in (10, 11, 12)))
+    doc = _run(_plate(tmp_path), mp)
+    said = [w for w in doc["warnings"] if "not read" in w]
+    assert "'dilution note' (beside the 'dilution' column, which is read)" in said[0]
+    # U/mL = 8.039 uM/min x 200 uL / 20 uL x 8 / 1000 (by hand; 1 U = 1 umol/min)
+    act = doc["settings"]["activity"][0]["activity_U_per_mL"]
+    assert act == pytest.approx(RATE_UM_PER_MIN * 10 * 8 / 1000, rel=0.03)
