@@ -146,17 +146,23 @@ def test_masked_first_readings_move_neither_window_nor_picture(plate, view):
         assert res[w]["rate_uM_per_min"] == pytest.approx(plate.v0[w], rel=0.03)
 
 
-def test_minutes_in_a_bare_time_column_are_said_out_loud(plate):
+def test_minutes_in_a_bare_time_column_of_a_plate_are_refused_as_seconds(plate):
+    # 384 wells stepping by a fraction of a second cannot be seconds (common practice: a plate
+    # reader takes seconds to read a plate once). Read as seconds with a warning, every rate
+    # came out 60x high with exit 0; now one line says what to type.
     r = _cli(plate.data, "--layout", plate.layout, *ACTIVITY_ARGS, "--dilution", "10",
              "--no-plots")
-    assert r.exit_code == 0, r.output
-    assert ("# time unit: s (assumed: column 'Time' names no unit; give --time-unit if it is "
-            "not seconds)") in r.stdout
-    assert "looks like minutes" in r.stderr and "--time-unit min" in r.stderr
+    assert r.exit_code == 3 and "Traceback" not in r.output
+    line = r.stderr.strip()
+    assert len(line.splitlines()) == 1 and "look like minutes" in line
+    assert "--time-unit min" in line and "--time-unit s" in line
+    r = _cli(plate.data, "--layout", plate.layout, *ACTIVITY_ARGS, "--dilution", "10",
+             "--no-plots", "--time-unit", "s")                   # the user may insist
+    assert r.exit_code == 0 and "# time unit: s (given by --time-unit)" in r.stdout
 
 
 def test_the_stated_plate_must_fit_the_well_names(plate):
-    r = _cli(plate.data, "--plate", "96")
+    r = _cli(plate.data, "--plate", "96", "--time-unit", "min")
     assert r.exit_code == 2
     line = r.stderr.strip()
     assert "--plate 96" in line and "384-well" in line and len(line.splitlines()) == 1

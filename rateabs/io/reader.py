@@ -91,6 +91,7 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
     check_magnitude(conv.values, conv.names, looks_like)
     facts, said = file_facts(meta)
     times = interval_check(parsed, facts.get("read_interval_s"))
+    refuse_plate_minutes(parsed, times, len(conv.names))
     ts = TraceSet.from_arrays(conv.names, times, conv.values, flags=conv.flags)
     few = _few_readings(conv.names, ts.grid().usable)
     guess = parsed.plate if parsed.plate[0] else plate_format(conv.names)
@@ -142,6 +143,29 @@ def _name_unit(parsed: Parsed, signal: str | None) -> list:
                else "")
     return [(found.kind, f"header unit '{found.unit}'"),
             f"{said} was read as {found.kind}{scaled}{renamed}"]
+
+
+#: A bare time column that looks like minutes (:func:`~rateabs.io.times.looks_like_minutes`)
+#: is refused as seconds where this many traces or more share it: a plate reader takes seconds,
+#: not tenths of one, to read a plate's wells once (common practice), so a plate cannot step
+#: by 0.25 s. A trial file in minutes, read as seconds with only a warning, gave every rate
+#: 60x high with exit 0. A few cuvettes keep the warning.
+PLATE_TRACES = 8
+
+
+def refuse_plate_minutes(parsed: Parsed, times: np.ndarray, n_traces: int) -> None:
+    """Stop where a plate's bare time column, read as seconds, looks like minutes."""
+    tu = parsed.time
+    if tu.source != "assumed" or tu.looks_like != "min" or n_traces < PLATE_TRACES:
+        return
+    finite = times[np.isfinite(times)]
+    step = float(np.median(np.diff(finite)))
+    raise InputError(
+        f"the time column {tu.label!r} names no unit, and read as seconds its {finite.size} "
+        f"readings of {n_traces} wells would be {step:g} s apart: no plate reader reads a plate "
+        "that fast, so they look like minutes",
+        "give --time-unit min (or --time-unit s if they are seconds), or name the unit in the "
+        "header, e.g. 'Time (min)'", column=tu.label)
 
 
 #: Steps and a stated read interval agree when within this share of the interval.
