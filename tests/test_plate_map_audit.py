@@ -207,3 +207,24 @@ def test_a_look_alike_beside_the_real_column_is_only_named(tmp_path):
     # U/mL = 8.039 uM/min x 200 uL / 20 uL x 8 / 1000 (by hand; 1 U = 1 umol/min)
     act = doc["settings"]["activity"][0]["activity_U_per_mL"]
     assert act == pytest.approx(RATE_UM_PER_MIN * 10 * 8 / 1000, rel=0.03)
+
+
+def test_wells_whose_dilution_cell_is_empty_are_named(tmp_path):
+    # four empty dilution cells take --dilution (here 2): the header names them, the JSON
+    # lists every source's wells; U/mL by hand: 8.039 uM/min x 10 x dilution / 1000
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    mp = _map(tmp_path, "dilution", ["8"] * 5 + [""] * 4)
+    r = CliRunner().invoke(main, ["rates", str(_plate(tmp_path)), "--layout", str(mp),
+                                  "--chromophore", "NADH", "--pathlength", "1 cm",
+                                  "--total-volume", "200 uL", "--sample-volume", "20 uL",
+                                  "--dilution", "2", "--no-plots"])
+    head = [x for x in r.stdout.splitlines() if x.startswith("# activity:")][0]
+    assert "plate map 5 wells" in head and "(A6, A7, A8, A9)" in head, head
+    doc = _run(_plate(tmp_path), mp, dilution=2)
+    wells = doc["settings"]["dilution"]["wells"]
+    assert sorted(sum(wells.values(), [])) == sorted(f"A{i}" for i in range(1, 10))
+    assert [w for k, v in wells.items() if k != "plate map" for w in v] == ["A6", "A7", "A8",
+                                                                            "A9"]

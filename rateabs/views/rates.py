@@ -141,6 +141,22 @@ def _counts(values) -> str:
     return ", ".join(f"{k} {n}" for k, n in out.items())
 
 
+def _dilution_words(t) -> str:
+    """Where each sample well's dilution came from, with the wells named for every source but
+    the commonest (a map whose dilution cells are empty in four wells says which four)."""
+    src = t.loc[t["role"] != "blank", ["trace", "dilution_source"]]
+    by = src.groupby("dilution_source", sort=False)["trace"].apply(list)
+    common = by.map(len).idxmax() if len(by) else None
+    return ", ".join(f"{k} {len(v)} wells" + (f" ({_list(v)})" if k != common else "")
+                     for k, v in by.items())
+
+
+def _dilution_wells(t) -> dict:
+    """The sample wells of every dilution source (JSON)."""
+    src = t.loc[t["role"] != "blank", ["trace", "dilution_source"]]
+    return {str(k): list(v) for k, v in src.groupby("dilution_source", sort=False)["trace"]}
+
+
 def _protein_counts(wells) -> list[str]:
     """Where each well's protein concentration came from (the map, --protein), wells with one."""
     return [x for x in wells.loc[wells["role"] != "blank", "protein_source"] if x]
@@ -189,8 +205,7 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
     if st.total_volume_L:
         protein = _protein_counts(s.wells)
         lines.append(f"activity: {st.total_volume_L * 1e6:g} uL reaction, "
-                     f"{st.sample_volume_L * 1e6:g} uL sample; dilution: "
-                     + _counts(t.loc[t["role"] != "blank", "dilution_source"]) + " wells"
+                     f"{st.sample_volume_L * 1e6:g} uL sample; dilution: " + _dilution_words(t)
                      + (f"; protein: {_counts(protein)} wells" if protein else ""))
     lines += [f"set for single wells: {x}" for x in overrides(a)]
     look = a.needs_look
@@ -212,7 +227,7 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
         "protein_mg_per_mL": st.protein_mg_per_mL,
         "protein_wells_by_source": _source_counts(_protein_counts(s.wells)),
         "dilution": {"option": st.dilution, "wells_by_source": _source_counts(
-            t.loc[t["role"] != "blank", "dilution_source"])},
+            t.loc[t["role"] != "blank", "dilution_source"]), "wells": _dilution_wells(t)},
         "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"])},
         "substrate_depletion": depletion_words(st, t),
         "window": st.window if st.window == "auto" else list(st.window),
