@@ -228,3 +228,29 @@ def test_wells_whose_dilution_cell_is_empty_are_named(tmp_path):
     assert sorted(sum(wells.values(), [])) == sorted(f"A{i}" for i in range(1, 10))
     assert [w for k, v in wells.items() if k != "plate map" for w in v] == ["A6", "A7", "A8",
                                                                             "A9"]
+
+
+def test_readings_in_milli_absorbance_are_said_in_the_header_and_settings(tmp_path):
+    # the same plate written in mAU (1 mAU = 0.001 A, common practice) under names 'A1 (mAU)':
+    # the rates are the same, and the rescaling is a header line, not only a warning
+    import json
+
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    src = _plate(tmp_path).read_text().splitlines()
+    head = ",".join([src[0].split(",")[0]] + [f"{w} (mAU)" for w in src[0].split(",")[1:]])
+    rows = [",".join([r.split(",")[0]] + [f"{1000 * float(x):.2f}" for x in r.split(",")[1:]])
+            for r in src[1:]]
+    data = tmp_path / "mau.csv"
+    data.write_text("\n".join([head, *rows]) + "\n")
+    args = ["rates", str(data), "--layout", str(_map(tmp_path, "note", ["-"] * 9)),
+            "--chromophore", "NADH", "--pathlength", "1 cm", "--no-plots"]
+    r = CliRunner().invoke(main, args)
+    line = [x for x in r.stdout.splitlines() if x.startswith("# signal:")][0]
+    assert "(mAU)" in line and "divided by 1000" in line
+    doc = json.loads(CliRunner().invoke(main, [*args, "--format", "json"]).stdout)
+    assert "divided by 1000" in doc["settings"]["signal_in_words"]
+    rate = [x["rate_uM_per_min"] for x in doc["results"] if x["trace"] == "A1"][0]
+    assert rate == pytest.approx(RATE_UM_PER_MIN, rel=0.03)   # by hand: 0.050 A/min / 6220

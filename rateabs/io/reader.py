@@ -105,6 +105,7 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
         clock_reading=parsed.time.reading, clock_reading_source=parsed.time.reading_source,
         clock_reading_why=parsed.time.reading_why or None,
         time_looks_like=parsed.time.looks_like, signal_kind=kind, signal_source=kind_source,
+        signal_unit_note=unit_notes[1] if len(unit_notes) > 1 else None,
         looks_like=looks_like, plate_format=plate[0], plate_format_source=plate[1],
         plate_guess=list(guess) if guess[0] else None,
         plate_stated=list(stated) if stated else None,

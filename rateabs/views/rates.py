@@ -141,6 +141,12 @@ def _counts(values) -> str:
     return ", ".join(f"{k} {n}" for k, n in out.items())
 
 
+def _signal_words(info: dict) -> str:
+    """What the readings were taken to be, and any rescaling on reading (mAU to absorbance)."""
+    note = info.get("signal_unit_note")
+    return note or f"{info.get('signal_kind')} ({info.get('signal_source')})"
+
+
 def _dilution_words(t) -> str:
     """Where each sample well's dilution came from, with the wells named for every source but
     the commonest (a map whose dilution cells are empty in four wells says which four)."""
@@ -194,6 +200,7 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
              f"time unit: {time_words(info)}",
              *([f"time origin: {origin_words(info, [a.time_origin_s])}"]
                if a.time_origin_s else []),
+             f"signal: {_signal_words(info)}",
              f"plate: {fmt}",
              f"pathlength: {s.pathlength_cm:.4g} cm, {s.pathlength_source}",
              f"conversion: {_epsilon_words(o, a)}",
@@ -235,6 +242,7 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
         "linear_limit": st.linear_limit, "noisy_rel_se": st.noisy_rel_se,
         "curve_fit": st.curve, "calibrate": st.calibrate, "katal": st.katal,
         "layout": o.layout_file, "signal_kind": info.get("signal_kind"),
+        "signal_source": info.get("signal_source"), "signal_in_words": _signal_words(info),
         "overrides": overrides(a), "outlier_test": a.outlier_method,
         "needs_look": a.needs_look, "replicates": a.replicates.to_dict("records"),
         "activity": a.activity.to_dict("records"), "z_prime": a.zprime,
