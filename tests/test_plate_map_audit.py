@@ -254,3 +254,20 @@ def test_readings_in_milli_absorbance_are_said_in_the_header_and_settings(tmp_pa
     assert "divided by 1000" in doc["settings"]["signal_in_words"]
     rate = [x["rate_uM_per_min"] for x in doc["results"] if x["trace"] == "A1"][0]
     assert rate == pytest.approx(RATE_UM_PER_MIN, rel=0.03)   # by hand: 0.050 A/min / 6220
+
+
+def test_the_header_names_the_whole_curve_model_behind_curve_rates():
+    # the sample plate's curved wells: 'curve' is said to be a whole-curve fit, and which one
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    from pathlib import Path
+
+    runs = Path(__file__).resolve().parents[1] / "sample_runs"
+    r = CliRunner().invoke(main, ["rates", str(runs / "plate_kbdh_340nm.csv"), "--layout",
+                                  str(runs / "plate_kbdh_map.csv"), "--chromophore", "NADH",
+                                  "--no-plots"])
+    line = [x for x in r.stdout.splitlines() if x.startswith("# initial slope:")][0]
+    assert "curve = initial slope of a whole-curve fit: " in line
+    assert any(w in line for w in ("exponential approach", "Michaelis–Menten form", "lag"))

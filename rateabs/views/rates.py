@@ -92,6 +92,27 @@ def _epsilon_words(o: RatesOptions, a) -> str:
     return f"{st.epsilon:g}{se} M^-1 cm^-1 ({src})"
 
 
+#: The whole-curve family's members (rateabs.slopes.curves) in words.
+CURVE_MODEL_WORDS = {
+    "line": "a straight line", "exp": "an exponential approach (the integrated "
+    "Michaelis–Menten form far below Km)", "mm": "the integrated Michaelis–Menten form",
+    "lag": "a straight line after a first-order lag",
+    "lag-exp": "an exponential approach after a first-order lag"}
+
+
+def curve_model_words(a) -> str:
+    """Which whole-curve models gave the wells whose slope is a curve's, counted."""
+    method = np.asarray(a.table["method"]).astype(str)
+    models = np.asarray(a.windows.curve_model).astype(str)[method == "curve"]
+    if not models.size:
+        return ""
+    out: dict = {}
+    for m in models:
+        out[m] = out.get(m, 0) + 1
+    return "; curve = initial slope of a whole-curve fit: " + ", ".join(
+        f"{CURVE_MODEL_WORDS.get(m, m)} {n}" for m, n in out.items())
+
+
 def _estimator_words(st, table) -> str:
     """The estimator, and how many wells it moved to the curve for the map's substrate."""
     from ..rates import DEPLETED_CHOICE
@@ -207,7 +228,8 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
              f"blanks: {_list(blanks)} ({a.blank_info['mode']} subtracted)" if blanks else
              "blanks: none marked, nothing subtracted",
              f"assay direction: the signal goes {a.blank_info.get('direction')}",
-             f"initial slope: {_counts(t['method'])} ({_estimator_words(st, t)})",
+             f"initial slope: {_counts(t['method'])} ({_estimator_words(st, t)})"
+             + curve_model_words(a),
              f"substrate depletion: {depletion_words(st, t)}"]
     if st.total_volume_L:
         protein = _protein_counts(s.wells)
@@ -235,7 +257,8 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
         "protein_wells_by_source": _source_counts(_protein_counts(s.wells)),
         "dilution": {"option": st.dilution, "wells_by_source": _source_counts(
             t.loc[t["role"] != "blank", "dilution_source"]), "wells": _dilution_wells(t)},
-        "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"])},
+        "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"]),
+                      "curve_models": curve_model_words(a).partition(": ")[2] or None},
         "substrate_depletion": depletion_words(st, t),
         "window": st.window if st.window == "auto" else list(st.window),
         "min_points": st.min_points, "blank": a.blank_info,
