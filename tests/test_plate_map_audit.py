@@ -258,11 +258,11 @@ def test_readings_in_milli_absorbance_are_said_in_the_header_and_settings(tmp_pa
 
 def test_the_header_names_the_whole_curve_model_behind_curve_rates():
     # the sample plate's curved wells: 'curve' is said to be a whole-curve fit, and which one
+    from pathlib import Path
+
     from click.testing import CliRunner
 
     from rateabs.cli import main
-
-    from pathlib import Path
 
     runs = Path(__file__).resolve().parents[1] / "sample_runs"
     r = CliRunner().invoke(main, ["rates", str(runs / "plate_kbdh_340nm.csv"), "--layout",
