@@ -18,11 +18,18 @@ from . import __version__
 from .files import write_atomic
 
 
+def _short(x: float) -> float | None:
+    """A finite float to 15 significant digits (119.99999999999999 from 0.12 mM in uM, or
+    0.00019999999999999998 L from 200 uL, is 120 and 0.0002), else None."""
+    return float(f"{x:.15g}") if math.isfinite(x) else None
+
+
 def _clean(obj):
-    """JSON-safe copy: NaN/inf become null, numpy scalars become Python numbers."""
+    """JSON-safe copy: NaN/inf become null, numpy scalars become Python numbers, floats keep
+    15 significant digits (:func:`_short`)."""
     kind = type(obj)
     if kind is float:                       # the common cases first, by their exact type
-        return obj if math.isfinite(obj) else None
+        return _short(obj)
     if kind is str or kind is int or kind is bool or obj is None:
         return obj
     if isinstance(obj, dict):
@@ -35,7 +42,7 @@ def _clean(obj):
         except (ValueError, AttributeError):
             return str(obj)
     if isinstance(obj, float):
-        return obj if math.isfinite(obj) else None
+        return _short(obj)
     if isinstance(obj, (str, int, bool)) or obj is None:
         return obj
     return str(obj)

@@ -271,3 +271,14 @@ def test_the_header_names_the_whole_curve_model_behind_curve_rates():
     line = [x for x in r.stdout.splitlines() if x.startswith("# initial slope:")][0]
     assert "curve = initial slope of a whole-curve fit: " in line
     assert any(w in line for w in ("exponential approach", "Michaelis–Menten form", "lag"))
+
+
+def test_unit_conversions_do_not_leave_binary_noise_in_the_json(tmp_path):
+    # 200 uL is 0.0002 L and 0.12 mM is 120 uM (SI prefixes): not 0.00019999999999999998
+    # and 119.99999999999999 as the floats' last bits wrote them
+    from rateabs.output import to_json
+
+    mp = _map(tmp_path, "substrate (mM)", ["0.12"] * 9)
+    text = to_json(_run(_plate(tmp_path), mp))
+    assert '"total_volume_L": 0.0002,' in text and '"substrate_uM": 120.0' in text
+    assert "99999999" not in text and "00000000001" not in text
