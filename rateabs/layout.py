@@ -288,7 +288,10 @@ def _protein(m: _MapCells) -> np.ndarray:
 def _groups(m: _MapCells, out: pd.DataFrame) -> list[str]:
     """The map's group where its cell is filled, else the default: sample + substrate +
     inhibitor for samples, the role for controls and blanks."""
-    default = [f"{s or r}|S={_fmt(sub)}|I={_fmt(inh)}" if r == "sample" else r
+    has_s, has_i = bool(np.isfinite(out["substrate_M"]).any()), bool(
+        np.isfinite(out["inhibitor_M"]).any())      # a map without a column names no part of it
+    default = [f"{s or r}" + (f"|S={_fmt(sub)}" if has_s else "")
+               + (f"|I={_fmt(inh)}" if has_i else "") if r == "sample" else r
                for s, r, sub, inh in zip(out["sample"], out["role"], out["substrate_M"],
                                          out["inhibitor_M"], strict=True)]
     given = dict(m.cells("group"))

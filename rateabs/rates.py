@@ -1000,7 +1000,10 @@ def dilution_trend(dilution: np.ndarray, activity: np.ndarray) -> dict:
     pct, lo, hi = slope * scale, (slope - half) * scale, (slope + half) * scale
     bad = p < 0.05 and abs(pct) >= 100 * TREND_LIMIT
     bound = max(abs(lo), abs(hi))
-    head = f"{pct:+.1f} % [{lo:+.1f}, {hi:+.1f}] per two-fold dilution, p = {p:.2g}"
+    def pm(x: float) -> str:                      # no "-0.0"
+        return f"{x:+.1f}" if round(x, 1) else "+0.0"
+
+    head = f"{pm(pct)} % [{pm(lo)}, {pm(hi)}] per two-fold dilution, p = {p:.2g}"
     if bad:
         words = ": activity trends with dilution"
     elif bound <= 100 * FLAT_LIMIT:

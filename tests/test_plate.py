@@ -134,7 +134,7 @@ def test_every_assumption_is_stated_with_its_source(plate, view):
 def test_a_partly_filled_group_column_keeps_the_default_groups(view):
     reps = {r["group"]: r for r in view.doc["settings"]["replicates"]}
     assert reps["L01 at 1:5"]["n"] == 8                     # the map's own group
-    assert reps["L02|S=500uM|I=-"]["n"] == 8                # empty cells: sample + [S] + [I]
+    assert reps["L02|S=500uM"]["n"] == 8          # empty cells: sample + [S] (no [I] column)
     assert not any(g[0] in "ABCDEFGHIJKLMNOP" and g[1:].isdigit() for g in reps)
 
 
