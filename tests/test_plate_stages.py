@@ -197,7 +197,7 @@ def test_map_cells_give_windows_skips_dilutions_and_groups(tmp_path):
                   "A2,sample,X,,,,120; 140\nA3,sample,X,10,mine,,\nA4,blank,buffer,,,,\n")
     lay = read_layout(str(mp))
     assert lay.loc["A1", "window"] == (60.0, 300.0) and lay.loc["A2", "skip"] == (120.0, 140.0)
-    assert np.isnan(lay.loc["A2", "dilution"]) and lay.loc["A2", "group"] == "X"       # no substrate or inhibitor column
+    assert np.isnan(lay.loc["A2", "dilution"]) and lay.loc["A2", "group"] == "X"   # no [S], [I] columns
     assert lay.loc["A3", "group"] == "mine"
     r = _cli(data, "--layout", mp, "--epsilon", "6220", "--total-volume", "200 uL",
              "--sample-volume", "20 uL", "--dilution", "5", "--well-window", "A1=0-200",
