@@ -340,8 +340,9 @@ def _protein():
 
 
 def _noisy_limit():
-    return option("--noisy-limit", NOISY_LIMIT, "Relative SE of a slope above which it is "
-                  "flagged noisy.", 0.10)
+    return option("--noisy-limit", NOISY_LIMIT, "SE, relative to the larger of the rate and "
+                  "the plate's typical rate, above which a well whose readings are far noisier "
+                  "than the plate's usual is flagged noisy (any well at ten times it).", 0.10)
 
 
 def _well_volume():

@@ -22,10 +22,17 @@ from .fitting import fmt_interval, fmt_pm
 
 CAUTIONS = (
     "rateabs results are for research and teaching and are not for clinical diagnosis.",
-    "A predicted completion time is no process-safety assessment: runaway, sampling and mixing "
-    "hazards follow the site's own rules.",
     "Handle reagents under the local safety rules and licensed practice.",
 )
+#: Said only on the pages of commands that forecast how far a reaction has gone.
+FORECAST_CAUTION = ("A predicted completion time is no process-safety assessment: runaway, "
+                    "sampling and mixing hazards follow the site's own rules.")
+FORECASTING = ("completion", "ratelaw")
+
+
+def cautions_for(command: str) -> tuple[str, ...]:
+    """The cautions of a command's page: the forecast one only where there is a forecast."""
+    return CAUTIONS[:1] + ((FORECAST_CAUTION,) if command in FORECASTING else ()) + CAUTIONS[1:]
 
 STYLE = """
 :root { --ink:#1f2328; --muted:#5b6470; --line:#d8dde3; --accent:#0b5f8a; --warm:#b34700;
@@ -531,4 +538,4 @@ def document_page(doc: dict, pictures: list[Path | tuple], title: str | None = N
     heading = TITLES.get(cmd, f"rateabs {cmd}")
     first = Path(doc["inputs"][0]).name if doc["inputs"] else ""
     return page(title or (f"{heading} — {first}" if first else heading),
-                f"rateabs {cmd} {' '.join(doc['inputs'])}", sections)
+                f"rateabs {cmd} {' '.join(doc['inputs'])}", sections, cautions_for(cmd))

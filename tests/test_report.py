@@ -132,3 +132,13 @@ def test_inspect_draws_every_trace_in_plate_geometry(tmp_path):
     a = traces_overview(_plate(8, 12, 0.0), tmp_path / "a.png", "t", "absorbance (AU)")
     b = traces_overview(_plate(8, 12, 1e-4), tmp_path / "b.png", "t", "absorbance (AU)")
     assert a.read_bytes() != b.read_bytes()
+
+
+def test_a_page_carries_the_forecast_caution_only_where_it_forecasts():
+    # the rates page is no place for a process-safety word about predicted completion times
+    from rateabs.report import cautions_for
+
+    assert not any("process-safety" in c for c in cautions_for("rates"))
+    assert any("process-safety" in c for c in cautions_for("completion"))
+    assert all(any("clinical diagnosis" in c for c in cautions_for(cmd))
+               for cmd in ("rates", "completion", "saturation"))
