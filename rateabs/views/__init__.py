@@ -137,10 +137,12 @@ def origin_words(info: dict, t0s) -> str:
         return "times counted from the file's own zero (as in the file)"
     first, last = file_time_text(moved[0], info), file_time_text(moved[-1], info)
     clock = (info.get("time_unit") or "s") == "clock"
-    why = "the file's zero lies more than the run's span before it"
+    why = ("the file's times run on a clock whose zero lies long before the read (more than "
+           "the read's own length)")
     if len(t0s) == 1:
         where = f"{first} ({moved[0]:g} s in the file)" if clock else f"{first} in the file"
-        return f"times counted from the first usable reading, {where}: {why}"
+        return (f"times counted from the first usable reading, {where}, as {why}; windows and "
+                "times given or shown are from there")
     span = first if len(moved) == 1 else f"{first} to {last}"
     return (f"times counted from the file's own zero, or from a trace's first usable reading "
             f"({span} in the file) where {why}")
