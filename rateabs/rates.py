@@ -165,7 +165,9 @@ def _pathlength(ts: TraceSet, st: RateSettings, fmt, fmt_source: str,
             raise UsageError(f"--well-volume: {exc.problem}", exc.fix) from None
         how = fmt_source if fmt else "assumed: the traces are not named as wells"
         source = (f"--well-volume {st.well_volume_L * 1e6:g} uL in a {wells}-well plate "
-                  f"({how}), typical well geometry")
+                  f"({how}), typical well geometry: not measured, and a real well's meniscus and "
+                  "shape may move it by several per cent, and every rate with it (measure it, or "
+                  "give --pathlength, for absolute rates)")
     elif file_b:
         return float(file_b), f"the file header ('{file_line}')"
     else:
