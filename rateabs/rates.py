@@ -347,8 +347,6 @@ class TraceSlopes:
     method: np.ndarray
     choice: np.ndarray
     trace_flags: list
-    raw_slope: np.ndarray          # of the traces before any blank trace was subtracted
-    raw_se: np.ndarray
     window_start_s: np.ndarray
     window_end_s: np.ndarray
     blank: dict
@@ -386,7 +384,6 @@ def estimate_slopes(ts: TraceSet, setup: PlateSetup, st: RateSettings,
     g = ts.grid()
     win = _windows_by_spec(g, specs, st)
     rep = _reported(win)
-    raw_slope, raw_se = rep[0] * 60, rep[1] * 60
     blank = blank_level(*_straight_slopes(win, rep), roles == "blank")
     analysed = ts
     if blank_mode == "trace":
@@ -400,8 +397,8 @@ def estimate_slopes(ts: TraceSet, setup: PlateSetup, st: RateSettings,
         win = _windows_by_spec(g, specs, st)
         rep = _reported(win)
     t0, t1 = window_times(g, win)
-    return TraceSlopes(win, rep[0] * 60, rep[1] * 60, rep[2], rep[3], rep[4], raw_slope,
-                       raw_se, t0, t1, blank), analysed
+    return TraceSlopes(win, rep[0] * 60, rep[1] * 60, rep[2], rep[3], rep[4], t0, t1,
+                       blank), analysed
 
 
 def _straight_slopes(win: Windows, rep) -> tuple[np.ndarray, np.ndarray]:
@@ -793,8 +790,8 @@ def _pooled_cv(x, se, groups) -> float | None:
 
     Each well's relative deviation from its group's mean, e = (x - m) / |m| sqrt(n / (n - 1)),
     has variance r^2 + cv^2 with r = SE / |m| its own share. cv is the (clipped)
-    maximum-likelihood value over all wells (:func:`_ml_cv2`), then again without the wells more than
-    :data:`Z_OUTLIER` from their group at that cv, until no well moves. Each well counts by
+    maximum-likelihood value over all wells (:func:`_ml_cv2`), then again without the wells
+    more than :data:`Z_OUTLIER` from their group at that cv, until no well moves. Each well counts by
     its own precision, so a plate whose slow wells have large SEs does not hide the scatter
     of its precise ones (a median of relative deviations less a median r^2 did: cv came out 0
     and the precise wells' ordinary pipetting scatter read as outliers).
@@ -1002,6 +999,7 @@ def dilution_trend(dilution: np.ndarray, activity: np.ndarray) -> dict:
     pct, lo, hi = slope * scale, (slope - half) * scale, (slope + half) * scale
     bad = p < 0.05 and abs(pct) >= 100 * TREND_LIMIT
     bound = max(abs(lo), abs(hi))
+
     def pm(x: float) -> str:                      # no "-0.0"
         return f"{x:+.1f}" if round(x, 1) else "+0.0"
 

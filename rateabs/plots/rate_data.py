@@ -53,7 +53,6 @@ class RateDrawing:
         return {c: v[k] for c, v in self.table.items()}
 
 
-
 def rate_drawing(analysis, wells: list[str] = ()) -> RateDrawing:
     """The figures' data from a rates analysis; ``wells`` are those drawn on single-well pages
     (their whole-curve fits are evaluated here)."""
