@@ -100,17 +100,17 @@ CURVE_MODEL_WORDS = {
     "lag-exp": "an exponential approach after a first-order lag"}
 
 
-def curve_model_words(a) -> str:
-    """Which whole-curve models gave the wells whose slope is a curve's, counted."""
+def curve_models(a) -> dict:
+    """How many of the wells whose slope is a curve's each whole-curve model gave."""
     method = np.asarray(a.table["method"]).astype(str)
-    models = np.asarray(a.windows.curve_model).astype(str)[method == "curve"]
-    if not models.size:
-        return ""
-    out: dict = {}
-    for m in models:
-        out[m] = out.get(m, 0) + 1
-    return "; curve = initial slope of a whole-curve fit: " + ", ".join(
-        f"{CURVE_MODEL_WORDS.get(m, m)} {n}" for m, n in out.items())
+    return _source_counts(np.asarray(a.windows.curve_model).astype(str)[method == "curve"])
+
+
+def curve_model_words(a) -> str:
+    """:func:`curve_models` in words, for the header's initial-slope line."""
+    models = curve_models(a)
+    return ("; curve = initial slope of a whole-curve fit: " + ", ".join(
+        f"{CURVE_MODEL_WORDS.get(m, m)} {n}" for m, n in models.items())) if models else ""
 
 
 def _estimator_words(st, table) -> str:
@@ -168,20 +168,19 @@ def _signal_words(info: dict) -> str:
     return note or f"{info.get('signal_kind')} ({info.get('signal_source')})"
 
 
+def _dilution_wells(t) -> dict:
+    """The sample wells of every dilution source."""
+    src = t.loc[t["role"] != "blank", ["trace", "dilution_source"]]
+    return {str(k): list(v) for k, v in src.groupby("dilution_source", sort=False)["trace"]}
+
+
 def _dilution_words(t) -> str:
     """Where each sample well's dilution came from, with the wells named for every source but
     the commonest (a map whose dilution cells are empty in four wells says which four)."""
-    src = t.loc[t["role"] != "blank", ["trace", "dilution_source"]]
-    by = src.groupby("dilution_source", sort=False)["trace"].apply(list)
-    common = by.map(len).idxmax() if len(by) else None
+    by = _dilution_wells(t)
+    common = max(by, key=lambda k: len(by[k])) if by else None
     return ", ".join(f"{k} {len(v)} wells" + (f" ({_list(v)})" if k != common else "")
                      for k, v in by.items())
-
-
-def _dilution_wells(t) -> dict:
-    """The sample wells of every dilution source (JSON)."""
-    src = t.loc[t["role"] != "blank", ["trace", "dilution_source"]]
-    return {str(k): list(v) for k, v in src.groupby("dilution_source", sort=False)["trace"]}
 
 
 def _protein_counts(wells) -> list[str]:
@@ -258,7 +257,7 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
         "dilution": {"option": st.dilution, "wells_by_source": _source_counts(
             t.loc[t["role"] != "blank", "dilution_source"]), "wells": _dilution_wells(t)},
         "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"]),
-                      "curve_models": curve_model_words(a).partition(": ")[2] or None},
+                      "curve_models": curve_models(a)},
         "substrate_depletion": depletion_words(st, t),
         "window": st.window if st.window == "auto" else list(st.window),
         "min_points": st.min_points, "blank": a.blank_info,
@@ -389,7 +388,8 @@ def _fix(x, places) -> str:
 
 
 #: What was done with the blanks, per blank mode, in words.
-_BLANK_WORDS = {"slope": "their mean slope subtracted from every other well",
+_BLANK_WORDS = {"slope": "their mean drift taken out of every other well before its slope "
+                         "was found",
                 "trace": "their mean trace subtracted, reading by reading, before the slopes",
                 "none": "nothing subtracted (--blank none)"}
 
