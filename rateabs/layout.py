@@ -161,6 +161,10 @@ _FREE_TEXT = ("note", "notes", "comment", "comments", "description", "remark", "
 #: its values would otherwise be left out in silence (a lysate's U/mL 8x low, six substrate
 #: levels averaged into one activity). A look-alike of another column is named in a warning.
 _MUST_READ = ("sample", "substrate", "inhibitor", "standard", "dilution")
+#: Words that make a look-alike a person's note ('dilution note', 'substrate lot'): named in the
+#: warning, never a stop.
+_NOTE_WORDS = {"note", "notes", "comment", "comments", "remark", "remarks", "description",
+               "lot", "batch", "supplier"}
 
 
 def _looks_like(header: str) -> str | None:
@@ -193,13 +197,14 @@ def _unread_columns(df: pd.DataFrame, path: str) -> list[str]:
     said = []
     for c in unread:
         header, like = df.attrs["headers"].get(c, c), _looks_like(c)
-        if like in _MUST_READ and like not in have:
+        if like in _MUST_READ and like not in have and not _NOTE_WORDS & set(
+                re.findall(r"[a-z]+", c)):
+            unit = f" with its unit, e.g. '{like} (uM)'" if like in _BY_STEM else ""
             raise InputError(
                 f"the plate map's column {header!r} looks like {like!r}, which the map does not "
                 "have, and is not read: its values would be left out of every number",
-                f"rename it {like!r} (a unit in the header, e.g. '{like} (uM)', where it has "
-                "one), or 'note' if it is not meant for the analysis", file=path,
-                row=df.attrs.get("header_line"), column=header)
+                f"rename it {like!r}{unit}, or 'note' if it is not meant for the analysis",
+                file=path, row=df.attrs.get("header_line"), column=header)
         hint = ("" if not like else f" (beside the {like!r} column, which is read)"
                 if like in have else f" (meant as {like!r}? rename it so)")
         said.append(f"{header!r}{hint}")
