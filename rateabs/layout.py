@@ -197,16 +197,17 @@ def _unread_columns(df: pd.DataFrame, path: str) -> list[str]:
     said = []
     for c in unread:
         header, like = df.attrs["headers"].get(c, c), _looks_like(c)
-        if like in _MUST_READ and like not in have and not _NOTE_WORDS & set(
-                re.findall(r"[a-z]+", c)):
+        note = bool(_NOTE_WORDS & set(re.findall(r"[a-z]+", c)))
+        if like in _MUST_READ and like not in have and not note:
             unit = f" with its unit, e.g. '{like} (uM)'" if like in _BY_STEM else ""
             raise InputError(
                 f"the plate map's column {header!r} looks like {like!r}, which the map does not "
                 "have, and is not read: its values would be left out of every number",
                 f"rename it {like!r}{unit}, or 'note' if it is not meant for the analysis",
                 file=path, row=df.attrs.get("header_line"), column=header)
-        hint = ("" if not like else f" (beside the {like!r} column, which is read)"
-                if like in have else f" (meant as {like!r}? rename it so)")
+        hint = ("" if not like or note and like not in have
+                else f" (beside the {like!r} column, which is read)" if like in have
+                else f" (meant as {like!r}? rename it so)")
         said.append(f"{header!r}{hint}")
     return [f"the plate map's column(s) {', '.join(said)} are not read; the columns read are "
             f"{', '.join(MAP_COLUMNS)} (units in the header, e.g. 'protein (mg/mL)'; see "
