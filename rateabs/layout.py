@@ -163,8 +163,7 @@ _FREE_TEXT = ("note", "notes", "comment", "comments", "description", "remark", "
 _MUST_READ = ("sample", "substrate", "inhibitor", "standard", "dilution")
 #: Words that make a look-alike a person's note ('dilution note', 'substrate lot'): named in the
 #: warning, never a stop.
-_NOTE_WORDS = {"note", "notes", "comment", "comments", "remark", "remarks", "description",
-               "lot", "batch", "supplier"}
+_NOTE_WORDS = set(_FREE_TEXT) | {"lot", "batch", "supplier"}
 
 
 def _looks_like(header: str) -> str | None:
@@ -188,12 +187,13 @@ def _unread_columns(df: pd.DataFrame, path: str) -> list[str]:
     """A note naming the map's columns that are not read ('total protein (mg/mL)'), with the
     column each most likely means, so that a value meant for the analysis is never left out in
     silence; a look-alike of a column of :data:`_MUST_READ` that the map lacks stops the run."""
-    known = {(conc_column(df, c) if c in _BY_STEM else None) or c for c in MAP_COLUMNS}
+    read = {c: (conc_column(df, c) if c in _BY_STEM else None) or c for c in MAP_COLUMNS}
+    known = set(read.values())
     unread = [c for c in df.columns
               if c not in known and c not in _FREE_TEXT and not str(c).startswith("unnamed")]
     if not unread:
         return []
-    have = {c for c in MAP_COLUMNS if c in df.columns or (c in _BY_STEM and conc_column(df, c))}
+    have = {c for c, col in read.items() if col in df.columns}
     said = []
     for c in unread:
         header, like = df.attrs["headers"].get(c, c), _looks_like(c)
