@@ -41,7 +41,13 @@ import pandas as pd
 from .errors import InputError, UnitError, UsageError
 from .io import read_table
 from .rules import Window
-from .units import parse_concentration, parse_mass_concentration, quantity, unit_from_header
+from .units import (
+    parse_concentration,
+    parse_mass_concentration,
+    quantity,
+    strip_header_unit,
+    unit_from_header,
+)
 from .wells import well_key
 
 ROLES = ("sample", "blank", "standard", "positive", "negative")
@@ -53,11 +59,31 @@ _NO = ("no", "n", "false", "0", "-")
 
 
 def conc_column(df, stem: str):
-    """The column whose header starts with ``stem`` (substrate, inhibitor, enzyme...), or None."""
+    """The column that names ``stem`` (substrate, inhibitor, enzyme...) with at most a unit and
+    a word for concentration after it (``substrate``, ``substrate (mM)``, ``substrate_uM``,
+    ``Substrate conc (uM)``), or None. A header that only starts with the stem
+    (``standard deviation``, ``inhibitor name``, ``substrate lot``) is not that column: it is
+    left to the look-alike rules of :func:`_unread_columns`, never read as concentrations."""
+    written = df.attrs.get("headers", {})         # units are read in the case they were given
     for c in df.columns:
-        if re.match(rf"^{stem}([\s_(\[]|$)", str(c), re.I):
+        if names_quantity(written.get(c, str(c)), stem):
             return c
     return None
+
+
+#: Words a header may put between a quantity's name and its unit ('substrate conc (uM)').
+_CONC_WORDS = ("", "conc", "conc.", "concentration", "final", "final conc", "final conc.",
+               "final concentration")
+
+
+def names_quantity(header: str, stem: str) -> bool:
+    """Whether ``header`` is ``stem`` followed by nothing but a unit and a word for
+    concentration (:data:`_CONC_WORDS`), in any case."""
+    h = header.strip()
+    if not re.match(rf"^{re.escape(stem)}([\s_(\[]|$)", h, re.I):
+        return False
+    rest = strip_header_unit(h)[len(stem):]
+    return re.sub(r"[\s_]+", " ", rest).strip().lower() in _CONC_WORDS
 
 
 def header_unit(df, col: str | None) -> str:
@@ -147,10 +173,11 @@ def read_layout(path: str) -> pd.DataFrame:
 
 
 #: The columns a plate map may have (module docstring); concentration columns are matched by
-#: the start of their header (``substrate (mM)``).
+#: their name with a unit after it (``substrate (mM)``).
 MAP_COLUMNS = ("well", "role", "sample", "substrate", "inhibitor", "standard", "enzyme",
                "dilution", "protein", "group", "exclude", "window", "skip")
-#: The columns matched by the start of their header; the others only by their exact name.
+#: The columns matched by their name with a unit after it (:func:`names_quantity`); the others
+#: only by their exact name.
 _BY_STEM = ("substrate", "inhibitor", "standard", "enzyme", "protein")
 #: Columns of free text that a map may carry for people, read by no one and said nothing of.
 _FREE_TEXT = ("note", "notes", "comment", "comments", "description", "remark", "remarks")
@@ -161,9 +188,19 @@ _FREE_TEXT = ("note", "notes", "comment", "comments", "description", "remark", "
 #: its values would otherwise be left out in silence (a lysate's U/mL 8x low, six substrate
 #: levels averaged into one activity). A look-alike of another column is named in a warning.
 _MUST_READ = ("sample", "substrate", "inhibitor", "standard", "dilution")
-#: Words that make a look-alike a person's note ('dilution note', 'substrate lot'): named in the
-#: warning, never a stop.
-_NOTE_WORDS = set(_FREE_TEXT) | {"lot", "batch", "supplier"}
+#: Words of an identifier: a note beside a concentration ('inhibitor name'), but the sample
+#: column itself under another header ('Sample ID', 'sample name').
+_IDENTIFIERS = {"name", "id", "label", "code"}
+#: Words that make a look-alike a person's note ('dilution note', 'substrate lot', 'inhibitor
+#: name', 'standard deviation'): named in the warning, and a stop only where it is a note
+#: (:data:`_FREE_TEXT`) of a column the map lacks whose cells are all numbers ('dilution note'
+#: holding 1, 4, 10 is a dilution under another name). Identifiers (lot, name, id...) never stop.
+_NOTE_WORDS = set(_FREE_TEXT) | {"lot", "batch", "supplier", "vendor", "source", "name", "id",
+                                 "type", "deviation", "dev", "sd", "error", "catalog", "cas"} | _IDENTIFIERS
+#: Short forms of map columns that a typing-slip match cannot reach (common practice).
+_SHORT_FORMS = {"diln": "dilution", "dil": "dilution", "subs": "substrate", "subst": "substrate",
+                "inhib": "inhibitor", "inh": "inhibitor", "std": "standard", "prot": "protein",
+                "enz": "enzyme", "grp": "group"}
 
 
 def _looks_like(header: str) -> str | None:
@@ -172,10 +209,11 @@ def _looks_like(header: str) -> str | None:
     ``dilutoin``, ``substrat``), else None."""
     import difflib
 
-    words = re.findall(r"[a-z]{4,}", re.sub(r"[(\[].*?[)\]]", " ", header.lower()))
-    for w in words:
-        if w in MAP_COLUMNS:
-            return w
+    every = re.findall(r"[a-z]+", re.sub(r"[(\[].*?[)\]]", " ", header.lower()))
+    for w in every:
+        if w in MAP_COLUMNS or w in _SHORT_FORMS:
+            return _SHORT_FORMS.get(w, w)
+    words = [w for w in every if len(w) >= 4]
     for w in words:
         close = difflib.get_close_matches(w, MAP_COLUMNS, n=1, cutoff=0.8)
         if close:
@@ -197,8 +235,11 @@ def _unread_columns(df: pd.DataFrame, path: str) -> list[str]:
     said = []
     for c in unread:
         header, like = df.attrs["headers"].get(c, c), _looks_like(c)
-        note = bool(_NOTE_WORDS & set(re.findall(r"[a-z]+", c)))
-        if like in _MUST_READ and like not in have and not note:
+        words = set(re.findall(r"[a-z]+", c))
+        note = bool(_NOTE_WORDS & words) and not (like == "sample" and words & _IDENTIFIERS)
+        numbers = (note and not (_NOTE_WORDS - set(_FREE_TEXT)) & words
+                   and _all_numbers(df[c]))
+        if like in _MUST_READ and like not in have and (not note or numbers):
             unit = f" with its unit, e.g. '{like} (uM)'" if like in _BY_STEM else ""
             raise InputError(
                 f"the plate map's column {header!r} looks like {like!r}, which the map does not "
@@ -212,6 +253,15 @@ def _unread_columns(df: pd.DataFrame, path: str) -> list[str]:
     return [f"the plate map's column(s) {', '.join(said)} are not read; the columns read are "
             f"{', '.join(MAP_COLUMNS)} (units in the header, e.g. 'protein (mg/mL)'; see "
             "docs/formats.md)"]
+
+
+def _all_numbers(cells) -> bool:
+    """Whether a column has cells and every non-empty one is a number ('4', '1:10' is not)."""
+    text = [str(x).strip() for x in cells if str(x).strip()]
+    try:
+        return bool(text) and all(np.isfinite(float(x)) for x in text)
+    except ValueError:
+        return False
 
 
 def _wells(m: _MapCells) -> list[str]:

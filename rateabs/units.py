@@ -334,15 +334,26 @@ def same_unit(a: str, b: str) -> bool:
 
 def unit_from_header(header: str) -> str:
     """Unit named in a column header: ``"[S] (mM)"`` -> ``mM``; ``rate_uM_per_min`` -> ``uM/min``."""
+    m = _header_unit_match(header.strip())
+    if m is None:
+        return ""
+    return m.group(1).replace(" per ", "/").replace("_per_", "/")
+
+
+def strip_header_unit(header: str) -> str:
+    """The header without the unit :func:`unit_from_header` reads from it (``substrate (mM)``
+    -> ``substrate``), as written."""
     h = header.strip()
-    m = re.search(r"[(\[]\s*([^)\]]+?)\s*[)\]]\s*$", h)
-    if m:
-        return m.group(1).replace(" per ", "/")
-    m = re.search(r"_((?:[munpµk]?M|A|AU|ppm|nmol|umol)(?:_per_(?:s|min|h))?)$", h)
-    if m:
-        return m.group(1).replace("_per_", "/")
-    m = re.search(_TRAILING_CONCENTRATION, h)         # "substrate mM", "protein_ug_per_mL"
-    return m.group(1).replace("_per_", "/") if m else ""
+    m = _header_unit_match(h)
+    return h[:m.start()].rstrip() if m else h
+
+
+def _header_unit_match(h: str):
+    """The match of the unit at the end of header ``h`` (bracketed, ``_uM`` or after a space),
+    or None; group 1 is the unit as written."""
+    return (re.search(r"[(\[]\s*([^)\]]+?)\s*[)\]]\s*$", h)
+            or re.search(r"_((?:[munpµk]?M|A|AU|ppm|nmol|umol)(?:_per_(?:s|min|h))?)$", h)
+            or re.search(_TRAILING_CONCENTRATION, h))      # "substrate mM", "protein_ug_per_mL"
 
 
 #: A concentration unit at the end of a header after a space or underscore, without brackets:

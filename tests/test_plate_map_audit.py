@@ -290,3 +290,93 @@ def test_unit_conversions_do_not_leave_binary_noise_in_the_json(tmp_path):
     text = to_json(_run(_plate(tmp_path), mp))
     assert '"total_volume_L": 0.0002,' in text and '"substrate_uM": 120.0' in text
     assert "99999999" not in text and "00000000001" not in text
+
+
+def _standards_plate(folder):
+    """Six sample wells rising 0.03 A/min and six NADH standards 0-160 uM at 0.05 + c x 6220e-6 A
+    (1 cm): the standard curve gives 0.03 / 6220e-6 = 4.823 uM/min (by hand; Horecker &
+    Kornberg 1948 for NADH 6220 M^-1 cm^-1)."""
+    t = np.arange(0, 601, 15.0)
+    conc = [0, 20, 40, 80, 120, 160]
+    traces = {f"A{i}": 0.1 + 0.03 * t / 60 for i in range(1, 7)}
+    traces |= {f"A{i + 7}": 0.05 + c * 6220e-6 + 0 * t for i, c in enumerate(conc)}
+    rows = ["Time (s)," + ",".join(traces)]
+    rows += [f"{x:g}," + ",".join(f"{v[k]:.6f}" for v in traces.values()) for k, x in enumerate(t)]
+    path = folder / "std_plate.csv"
+    path.write_text("\n".join(rows) + "\n")
+    return path, conc
+
+
+@pytest.mark.parametrize("order", ["sd first", "sd after"])
+def test_a_header_that_only_starts_like_a_concentration_column_is_not_read_as_one(tmp_path,
+                                                                                  order):
+    # a map with 'standard deviation' before 'standard (uM)' took the SDs (0.5) as the standard
+    # concentrations: rates 44x low with exit 0. Only a header that is the name with a unit (or
+    # 'conc') is the concentration column; the other is named as not read.
+    plate, conc = _standards_plate(tmp_path)
+    head = (["standard deviation", "standard (uM)"] if order == "sd first"
+            else ["standard (uM)", "standard deviation"])
+    lines = ["well,role,sample," + ",".join(head)]
+    lines += [f"A{i},sample,X,," if order == "sd first" else f"A{i},sample,X,,0.5"
+              for i in range(1, 7)]
+    lines += [f"A{i + 7},standard,NADH,0.5,{c}" if order == "sd first"
+              else f"A{i + 7},standard,NADH,{c},0.5" for i, c in enumerate(conc)]
+    mp = tmp_path / "map.csv"
+    mp.write_text("\n".join(lines) + "\n")
+    lay = read_layout(str(mp))
+    np.testing.assert_allclose(lay.loc[[f"A{i}" for i in range(7, 13)], "standard_M"],
+                               np.array(conc) * 1e-6)
+    doc = compute_rates(RatesOptions.build(file=str(plate), layout_file=str(mp),
+                                           plots=False)).doc
+    rates = [r["rate_uM_per_min"] for r in doc["results"] if r["role"] == "sample"]
+    np.testing.assert_allclose(rates, 0.03 / 6220e-6, rtol=0.005)
+    said = [w for w in doc["warnings"] if "not read" in w]
+    assert len(said) == 1 and "'standard deviation' (beside the 'standard' column" in said[0]
+
+
+@pytest.mark.parametrize("header,cells", [("inhibitor name", "EDTA"), ("substrate lot", "L24-03"),
+                                          ("enzyme name", "KbX"), ("standard deviation", "0.5")])
+def test_an_identifier_or_sd_beside_no_concentration_column_is_only_named(tmp_path, header,
+                                                                          cells):
+    # 'inhibitor name' with no inhibitor column stopped with "cannot read concentration": it is
+    # not a concentration column, and a name, lot or SD is a note, not a lost value
+    doc = _run(_plate(tmp_path), _map(tmp_path, header, [cells] * 9))
+    said = [w for w in doc["warnings"] if "not read" in w]
+    assert len(said) == 1 and f"'{header}'" in said[0] and "rename it so" not in said[0]
+    np.testing.assert_allclose([r["rate_uM_per_min"] for r in doc["results"]
+                                if r["role"] == "sample"], RATE_UM_PER_MIN, rtol=0.03)
+
+
+@pytest.mark.parametrize("header,cells", [("dilution note", ["4"] * 5 + ["10"] * 4),
+                                          ("diln", ["4"] * 9), ("Sample ID", ["L1"] * 9)])
+def test_a_look_alike_holding_the_values_of_a_missing_column_stops_the_run(tmp_path, header,
+                                                                           cells):
+    # 'dilution note' or 'diln' holding 4 and 10 with no dilution column was only named:
+    # activities 4x and 10x low with exit 0. Numbers in a note-like column of a column the map
+    # lacks, a short form ('diln') and a sample column under another name stop the run.
+    mp = _map(tmp_path, header, cells)
+    if header == "Sample ID":                       # a map whose sample names are only there
+        mp.write_text(mp.read_text().replace("well,role,sample,", "well,role,kind,"))
+    with pytest.raises(InputError, match="rename it"):
+        read_layout(str(mp))
+
+
+@pytest.mark.parametrize("header,stem", [
+    ("substrate", "substrate"), ("Substrate (mM)", "substrate"), ("substrate_uM", "substrate"),
+    ("substrate mM", "substrate"), ("Substrate conc (uM)", "substrate"),
+    ("inhibitor final concentration [nM]", "inhibitor"), ("protein_ug_per_mL", "protein"),
+    ("enzyme (nM)", "enzyme")])
+def test_a_quantity_with_its_unit_and_conc_is_its_column(header, stem):
+    from rateabs.layout import names_quantity
+
+    assert names_quantity(header, stem)
+
+
+@pytest.mark.parametrize("header,stem", [
+    ("standard deviation", "standard"), ("inhibitor name", "inhibitor"),
+    ("substrate lot", "substrate"), ("substrates used (uM)", "substrate"),
+    ("enzyme supplier", "enzyme"), ("protein assay", "protein")])
+def test_a_header_that_only_starts_with_a_quantity_is_not_its_column(header, stem):
+    from rateabs.layout import names_quantity
+
+    assert not names_quantity(header, stem)
