@@ -108,3 +108,64 @@ def test_a_grubbs_outlier_is_named_with_grubbs_g_not_a_z(tmp_path):
     a, _ = _settling_group(tmp_path, [0.0, 0.0, 0.0, -0.02])
     assert a.outlier_method.startswith("Grubbs")
     assert a.activity.iloc[0]["left_out"][0].startswith("A4: replicate outlier (Grubbs G = ")
+
+
+def _four_triplicates(heavy: float, bubble: bool):
+    """Four samples in triplicate, straight traces read every 15 s for 10 min (0.5 mA noise),
+    true slopes 0.020, 0.020, 0.030, 0.025 A/min; A2 pipetted ``heavy`` times the enzyme, and
+    with ``bubble`` a 0.25 A spike over three readings of A5 (a well flagged for its shape)."""
+    from rateabs.layout import read_layout
+    from rateabs.options import RateSettings
+    from rateabs.rates import analyse_plate
+    from rateabs.traces import TraceSet
+
+    t = np.arange(0.0, 601.0, 15.0)
+    rng = np.random.default_rng(11)
+    slopes = np.repeat([0.020, 0.020, 0.030, 0.025], 3)
+    slopes[1] *= heavy
+    ys = 0.2 + slopes[:, None] * t / 60 + rng.normal(0, 5e-4, (12, t.size))
+    if bubble:
+        ys[4] += 0.25 * np.exp(-(((t - 300) / 20) ** 2))
+    names = [f"A{k + 1}" for k in range(12)]
+    import tempfile
+    with tempfile.TemporaryDirectory() as d:
+        path = Path(d) / "m.csv"
+        path.write_text("well,role,sample\n" + "".join(
+            f"{n},sample,S{k // 3 + 1}\n" for k, n in enumerate(names)))
+        lay = read_layout(str(path))
+    return analyse_plate(TraceSet.from_arrays(names, t, ys), lay,
+                         RateSettings(epsilon=6220.0, pathlength_cm=1.0))
+
+
+def test_a_heavy_well_is_an_outlier_when_another_group_has_a_doubted_well():
+    # four triplicates, A5 flagged for a bubble: the three deviations of A2's triplicate
+    # outweighed the clipped scatter fit (cv 9.6 %), A2 pipetted 40 % heavy stood 3.4 z out,
+    # unflagged, and S1's mean came out +13 %. Truth: 0.020 A/min / 6220 M^-1 cm^-1 x 1 cm
+    # = 3.215 uM/min (by hand; NADH epsilon, Horecker & Kornberg 1948).
+    a = _four_triplicates(1.4, bubble=True)
+    t = a.table.set_index("trace")
+    assert t.loc["A5", "flags"] and "outlier" not in t.loc["A5", "flags"]
+    assert a.outlier_method.startswith("pooled")
+    assert [w for w in t.index if "outlier" in t.loc[w, "flags"]] == ["A2"]
+    s1 = a.replicates.set_index("sample").loc["S1"]
+    assert s1["mean"] == pytest.approx(0.020 / 6220 * 1e6, rel=0.01)
+
+
+def test_no_outlier_among_four_sound_triplicates_with_a_doubted_well():
+    a = _four_triplicates(1.0, bubble=True)
+    assert not [f for f in a.table["flags"] if "outlier" in f]
+
+
+def test_grubbs_does_not_flag_a_well_within_its_own_ses_of_two_that_coincide():
+    # Grubbs's G sees only the spread within the group: for n = 3 G cannot exceed
+    # (n - 1) / sqrt(n) = 1.1547, and the 5 % critical value is 1.153 (Grubbs 1969 table), so
+    # of three wells, two that nearly coincide make the third an outlier at any distance.
+    # With SEs of 0.01, 1.0016 is 0.16 SE from the others: not an outlier; 1.2 is 20 SE out.
+    from rateabs.rates import grubbs_outlier, replicate_outliers
+
+    x = np.array([1.0, 1.00001, 1.0016])
+    assert grubbs_outlier(x) == 2
+    _, out, method = replicate_outliers(x, np.full(3, 0.01), ["a"] * 3)
+    assert method.startswith("Grubbs") and not out.any()
+    _, out, _ = replicate_outliers(np.array([1.0, 1.00001, 1.2]), np.full(3, 0.01), ["a"] * 3)
+    assert list(out) == [False, False, True]
