@@ -238,6 +238,26 @@ def test_wells_whose_dilution_cell_is_empty_are_named(tmp_path):
                                                                             "A9"]
 
 
+def test_wells_left_undiluted_by_default_are_named_even_where_they_are_most(tmp_path):
+    # five empty dilution cells and no --dilution: the five are taken as undiluted (the map's
+    # rule), the commonest source here, and still named in the header and listed in the JSON
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    mp = _map(tmp_path, "dilution", ["8"] * 4 + [""] * 5)
+    r = CliRunner().invoke(main, ["rates", str(_plate(tmp_path)), "--layout", str(mp),
+                                  "--chromophore", "NADH", "--pathlength", "1 cm",
+                                  "--total-volume", "200 uL", "--sample-volume", "20 uL",
+                                  "--no-plots"])
+    head = [x for x in r.stdout.splitlines() if x.startswith("# activity:")][0]
+    assert "default (undiluted) 5 wells (A5, A6, A7, A8, A9)" in head, head
+    assert "plate map 4 wells (A1, A2, A3, A4)" in head, head
+    doc = _run(_plate(tmp_path), mp)
+    assert doc["settings"]["dilution"]["wells"]["default (undiluted)"] == [
+        "A5", "A6", "A7", "A8", "A9"]
+
+
 def test_readings_in_milli_absorbance_are_said_in_the_header_and_settings(tmp_path):
     # the same plate written in mAU (1 mAU = 0.001 A, common practice) under names 'A1 (mAU)':
     # the rates are the same, and the rescaling is a header line, not only a warning

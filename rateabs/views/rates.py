@@ -175,12 +175,13 @@ def _dilution_wells(t) -> dict:
 
 
 def _dilution_words(t) -> str:
-    """Where each sample well's dilution came from, with the wells named for every source but
-    the commonest (a map whose dilution cells are empty in four wells says which four)."""
+    """Where each sample well's dilution came from, with the wells named (the first few and
+    the count where there are many) for every source but the map where it is the commonest: a
+    map whose dilution cells are empty in four wells says which four, ties or not."""
     by = _dilution_wells(t)
     common = max(by, key=lambda k: len(by[k])) if by else None
-    return ", ".join(f"{k} {len(v)} wells" + (f" ({_list(v)})" if k != common else "")
-                     for k, v in by.items())
+    return ", ".join(f"{k} {len(v)} wells" + ("" if k == common == "plate map" else
+                                              f" ({_list(v)})") for k, v in by.items())
 
 
 def _protein_counts(wells) -> list[str]:
