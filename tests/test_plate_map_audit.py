@@ -280,8 +280,33 @@ def test_readings_in_milli_absorbance_are_said_in_the_header_and_settings(tmp_pa
     assert "(mAU)" in line and "divided by 1000" in line
     doc = json.loads(CliRunner().invoke(main, [*args, "--format", "json"]).stdout)
     assert "divided by 1000" in doc["settings"]["signal_in_words"]
+    assert doc["settings"]["signal_unit_as_read"] == "mAU"
+    assert doc["settings"]["signal_factor_applied"] == 0.001       # 1 mAU = 0.001 A
     rate = [x["rate_uM_per_min"] for x in doc["results"] if x["trace"] == "A1"][0]
     assert rate == pytest.approx(RATE_UM_PER_MIN, rel=0.03)   # by hand: 0.050 A/min / 6220
+
+
+def test_a_map_column_in_mM_is_said_once_to_be_reported_in_uM(tmp_path):
+    # 0.12 mM is 120 uM (SI prefixes): the conversion is one header line and one settings
+    # entry; a column already in uM needs no word
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    data = _plate(tmp_path)
+    mp = _map(tmp_path, "substrate (mM)", ["0.12"] * 9)
+    r = CliRunner().invoke(main, ["rates", str(data), "--layout", str(mp), "--chromophore",
+                                  "NADH", "--pathlength", "1 cm", "--no-plots"])
+    lines = [x for x in r.stdout.splitlines() if x.startswith("# plate map units:")]
+    assert lines == ["# plate map units: substrate (mM) read in mM and reported in uM "
+                     "(x 1000)"], r.stdout
+    doc = _run(data, mp)
+    assert doc["settings"]["map_units"] == [{"column": "substrate (mM)", "unit_as_read": "mM",
+                                             "reported_in": "uM",
+                                             "factor": pytest.approx(1000.0)}]
+    assert doc["results"][0]["substrate_uM"] == pytest.approx(120.0)
+    plain = _run(data, _map(tmp_path, "substrate_uM", ["120"] * 9, name="um.csv"))
+    assert plain["settings"]["map_units"] == []
 
 
 def test_the_header_names_the_whole_curve_model_behind_curve_rates():

@@ -47,9 +47,10 @@ def compute_rates(o: RatesOptions) -> View:
     warnings += _assumed_pathlength(a)
     warnings += a.warnings
     results = [_result(rec) for rec in a.table.to_dict("records")]
+    units = map_units(layout)
     doc = document("rates", [o.file] + ([o.layout_file] if o.layout_file else []),
-                   settings_json(o, a, ts.info), results, warnings)
-    head = "\n".join(header_lines(o, a, ts.info)) + "\n\n"
+                   settings_json(o, a, ts.info, units), results, warnings)
+    head = "\n".join(header_lines(o, a, ts.info, units)) + "\n\n"
     csv_cols = [f for f in RATE_FIELDS if any(f in r for r in results)]
     return View(doc, head + rates_table(a), rows_to_csv([_csv_row(r) for r in results],
                                                         csv_cols), a)
@@ -162,6 +163,35 @@ def _counts(values) -> str:
     return ", ".join(f"{k} {n}" for k, n in out.items())
 
 
+#: The unit each concentration column of a plate map is reported in (``substrate_uM``, ...).
+MAP_REPORTED_UNITS = {"substrate": "uM", "inhibitor": "uM", "standard": "uM", "enzyme": "nM",
+                      "protein": "mg/mL"}
+
+
+def map_units(layout) -> list[dict]:
+    """The plate map's concentration columns whose header names a unit other than the one
+    they are reported in (``substrate (mM)`` read in mM, reported in uM), with the factor from
+    the one to the other."""
+    from ..units import parse_concentration, parse_mass_concentration
+
+    out = []
+    for stem, (header, unit) in (layout.attrs.get("units", {}) if layout is not None
+                                 else {}).items():
+        shown = MAP_REPORTED_UNITS[stem]
+        if not unit or unit == shown:
+            continue
+        parse = parse_mass_concentration if stem == "protein" else parse_concentration
+        out.append({"column": header, "unit_as_read": unit, "reported_in": shown,
+                    "factor": parse(f"1 {unit}") / parse(f"1 {shown}")})
+    return out
+
+
+def _map_unit_words(units: list[dict]) -> str:
+    """:func:`map_units` in words, for the header's plate-map line."""
+    return "; ".join(f"{u['column']} read in {u['unit_as_read']} and reported in "
+                     f"{u['reported_in']} (x {u['factor']:.12g})" for u in units)
+
+
 def _signal_words(info: dict) -> str:
     """What the readings were taken to be, and any rescaling on reading (mAU to absorbance)."""
     note = info.get("signal_unit_note")
@@ -211,8 +241,9 @@ def overrides(a) -> list[str]:
     return lines
 
 
-def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
-    """The assumptions of the run, one ``#`` line each, above the table."""
+def header_lines(o: RatesOptions, a, info: dict, units: list[dict] = ()) -> list[str]:
+    """The assumptions of the run, one ``#`` line each, above the table (``units``: the plate
+    map's unit conversions, :func:`map_units`)."""
     s, st, t = a.setup, a.settings, a.table
     fmt = f"{s.plate_format}-well plate ({s.plate_source})" if s.plate_format else (
         "not a plate: traces are not named as wells")
@@ -222,6 +253,7 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
              *([f"time origin: {origin_words(info, [a.time_origin_s])}"]
                if a.time_origin_s else []),
              f"signal: {_signal_words(info)}",
+             *([f"plate map units: {_map_unit_words(units)}"] if units else []),
              f"plate: {fmt}",
              f"pathlength: {s.pathlength_cm:.4g} cm, {s.pathlength_source}",
              f"conversion: {_epsilon_words(o, a)}",
@@ -243,8 +275,9 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
     return [f"# {x}" for x in lines]
 
 
-def settings_json(o: RatesOptions, a, info: dict) -> dict:
-    """The ``settings`` of the JSON document: every assumption with its source."""
+def settings_json(o: RatesOptions, a, info: dict, units: list[dict] = ()) -> dict:
+    """The ``settings`` of the JSON document: every assumption with its source (``units``: the
+    plate map's unit conversions, :func:`map_units`)."""
     s, st, t = a.setup, a.settings, a.table
     return {
         **time_settings(info), **origin_settings(info, [a.time_origin_s]),
@@ -266,6 +299,8 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
         "curve_fit": st.curve, "calibrate": st.calibrate, "katal": st.katal,
         "layout": o.layout_file, "signal_kind": info.get("signal_kind"),
         "signal_source": info.get("signal_source"), "signal_in_words": _signal_words(info),
+        "signal_unit_as_read": info.get("signal_unit_as_read"),
+        "signal_factor_applied": info.get("signal_factor", 1.0), "map_units": list(units),
         "overrides": overrides(a), "outlier_test": a.outlier_method,
         "needs_look": a.needs_look, "replicates": a.replicates.to_dict("records"),
         "activity": a.activity.to_dict("records"), "z_prime": a.zprime,
@@ -537,7 +572,9 @@ def report_page(view: View, pictures: list[Path], o: RatesOptions) -> str:
                  + rp.img(pics.get(f"{stem}_plate.png"), "rate per well")),
                 ("Inputs", rp.inputs_table(o)), ("Settings", rp.settings_table(o)),
                 ("What was assumed", rp.kv([(line[2:].split(":")[0], line[2:].split(":", 1)[1])
-                                            for line in header_lines(o, a, a.traces.info)[1:]
+                                            for line in header_lines(
+                                                o, a, a.traces.info,
+                                                doc["settings"]["map_units"])[1:]
                                             if ":" in line]))]
     for title, (rows, cols) in (("Activity per sample", activity_rows(a)),
                                 ("Replicates", replicate_rows(a))):
