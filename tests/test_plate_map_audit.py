@@ -310,7 +310,9 @@ def test_a_map_column_in_mM_is_said_once_to_be_reported_in_uM(tmp_path):
 
 
 def test_the_header_names_the_whole_curve_model_behind_curve_rates():
-    # the sample plate's curved wells: 'curve' is said to be a whole-curve fit, and which one
+    # the sample plate's curved wells: 'curve' is said to be a whole-curve fit, and which one,
+    # in the header and (code and words) in the settings
+    import json
     from pathlib import Path
 
     from click.testing import CliRunner
@@ -324,6 +326,12 @@ def test_the_header_names_the_whole_curve_model_behind_curve_rates():
     line = [x for x in r.stdout.splitlines() if x.startswith("# initial slope:")][0]
     assert "curve = initial slope of a whole-curve fit: " in line
     assert any(w in line for w in ("exponential approach", "Michaelis–Menten form", "lag"))
+    est = json.loads(CliRunner().invoke(main, ["rates", str(runs / "plate_kbdh_340nm.csv"),
+                                               "--layout", str(runs / "plate_kbdh_map.csv"),
+                                               "--chromophore", "NADH", "--no-plots",
+                                               "--format", "json"]).stdout)["settings"]["estimator"]
+    assert set(est["curve_models_in_words"]) == set(est["curve_models"]) != set()
+    assert all(w in line for w in est["curve_models_in_words"].values())
 
 
 def test_unit_conversions_do_not_leave_binary_noise_in_the_json(tmp_path):

@@ -291,7 +291,8 @@ def settings_json(o: RatesOptions, a, info: dict, units: list[dict] = ()) -> dic
         "dilution": {"option": st.dilution, "wells_by_source": _source_counts(
             t.loc[t["role"] != "blank", "dilution_source"]), "wells": _dilution_wells(t)},
         "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"]),
-                      "curve_models": curve_models(a)},
+                      "curve_models": curve_models(a), "curve_models_in_words": {
+                          m: CURVE_MODEL_WORDS.get(m, m) for m in curve_models(a)}},
         "substrate_depletion": depletion_words(st, t),
         "window": st.window if st.window == "auto" else list(st.window),
         "min_points": st.min_points, "blank": a.blank_info,
