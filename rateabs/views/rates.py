@@ -262,6 +262,7 @@ def header_lines(o: RatesOptions, a, info: dict, units: list[dict] = ()) -> list
              f"assay direction: the signal goes {a.blank_info.get('direction')}",
              f"initial slope: {_counts(t['method'])} ({_estimator_words(st, t)})"
              + curve_model_words(a),
+             *([f"lag: {lag_words(a)}"] if lag_words(a) else []),
              f"substrate depletion: {depletion_words(st, t)}"]
     if st.total_volume_L:
         protein = _protein_counts(s.wells)
@@ -294,6 +295,8 @@ def settings_json(o: RatesOptions, a, info: dict, units: list[dict] = ()) -> dic
                       "curve_models": curve_models(a), "curve_models_in_words": {
                           m: CURVE_MODEL_WORDS.get(m, m) for m in curve_models(a)}},
         "substrate_depletion": depletion_words(st, t),
+        "lag": {"wells": [n for n, x in zip(t["trace"], t["lag_s"], strict=True) if x > 0],
+                "in_words": lag_words(a) or None},
         "window": st.window if st.window == "auto" else list(st.window),
         "min_points": st.min_points, "blank": a.blank_info,
         "linear_limit": st.linear_limit, "noisy_rel_se": st.noisy_rel_se,
@@ -332,26 +335,76 @@ def _activity_flags() -> dict:
 # --------------------------------------------------------------------------- tables
 
 
-def _window_cell(r: dict) -> str:
+def _lag_text(lag) -> str:
+    """A fitted lag time in words, to two significant digits (the fit gives it no SE), or ""."""
+    if lag is None or not np.isfinite(lag) or lag <= 0:
+        return ""
+    return f"lag ~{float(f'{lag:.2g}'):g} s"
+
+
+def _window_cell(r: dict, curve_span) -> str:
+    """The span of readings the well's rate came from: its straight window (``set`` where it
+    was given for the well, ``after lag`` where a fitted lag moved its start), or, for a rate
+    from the whole curve, the readings the curve was fitted to (with the lag it fitted)."""
+    lag = _lag_text(r.get("lag_s"))
+    if r["method"] == "curve" and np.isfinite(curve_span[0]):
+        return (f"{curve_span[0]:g}-{curve_span[1]:g} whole trace"
+                + (f", {lag}" if lag else ""))
     if not np.isfinite(r["window_start_s"]):
         return "-"
     text = f"{r['window_start_s']:g}-{r['window_end_s']:g}"
-    return text + (" set" if r["window_source"] in ("--well-window", "plate map") else "")
+    if r["window_source"] in ("--well-window", "plate map"):
+        return text + " set"
+    return text + (f" after {lag}" if lag and r["window_source"] == "automatic" else "")
+
+
+def curve_spans(a) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The readings each well's whole-curve fit used: the times (s) of its first and last
+    usable readings and how many it used (spikes set aside), as the fit takes them."""
+    g = a.traces.grid()
+    times = np.broadcast_to(g.times, g.values.shape)
+    ok = g.usable & np.isfinite(times)
+    has = ok.any(axis=1)
+    with np.errstate(invalid="ignore"):
+        first = np.where(has, np.min(np.where(ok, times, np.inf), axis=1), np.nan)
+        last = np.where(has, np.max(np.where(ok, times, -np.inf), axis=1), np.nan)
+    return first, last, ok.sum(axis=1) - np.asarray(a.windows.spikes, int)
+
+
+def lag_words(a) -> str:
+    """The wells whose whole-curve fit found a lag, with its size, and what their rate and
+    window then are; "" where none has one."""
+    lag = np.asarray(a.table["lag_s"], float)
+    with np.errstate(invalid="ignore"):
+        has = np.isfinite(lag) & (lag > 0)
+    if not has.any():
+        return ""
+    names = list(np.asarray(a.table["trace"])[has])
+    lo, hi = (float(f"{x:.2g}") for x in (lag[has].min(), lag[has].max()))
+    size = f"about {lo:g} s" if lo == hi else f"about {lo:g}-{hi:g} s"
+    return (f"{len(names)} well(s) start slowly ({_list(names)}; lag {size}): each rate is "
+            "the fully active enzyme's after the lag, from the whole curve with the lag fitted, "
+            "or from a straight window that starts three lag times in (the enzyme 95 % active)")
 
 
 def well_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
-    """The per-well table for a person: value ± SE rounded to the SE, units in the headers."""
+    """The per-well table for a person: value ± SE rounded to the SE, units in the headers;
+    the window and n are the span and number of readings the rate came from (the whole curve
+    for a rate from its fit)."""
     t = a.table
+    first, last, used = curve_spans(a)
     opt = [("rate", "rate_uM_per_min", "rate (uM/min)"),
            ("act", "activity_U_per_mL", "activity (U/mL)"),
            ("kat", "activity_nkat_per_mL", "activity (nkat/mL)"),
            ("spec", "specific_activity_U_per_mg", "specific (U/mg)"),
            ("turn", "turnover_per_s", "v/[E] (1/s)")]
     rows = []
-    for r in t.to_dict("records"):
+    for k, r in enumerate(t.to_dict("records")):
+        curve = r["method"] == "curve" and np.isfinite(first[k])
         row = {"trace": r["trace"], "role": r["role"], "sample": r["sample"] or "-",
                "slope": fmt_pm(r["slope_A_per_min"], r["slope_A_per_min_se"]),
-               "window": _window_cell(r), "n": r["n_points"], "how": r["method"],
+               "window": _window_cell(r, (first[k], last[k])),
+               "n": int(used[k]) if curve else r["n_points"], "how": r["method"],
                "flags": ",".join(r["flags"]) or "-"}
         for key, col, _ in opt:
             if col in r:
