@@ -343,3 +343,26 @@ def test_unit_conversions_do_not_leave_binary_noise_in_the_json(tmp_path):
     text = to_json(_run(_plate(tmp_path), mp))
     assert '"total_volume_L": 0.0002,' in text and '"substrate_uM": 120.0' in text
     assert "99999999" not in text and "00000000001" not in text
+
+
+def test_unit_conversions_do_not_leave_binary_noise_in_the_csv(tmp_path):
+    # 0.07 mM is 70 uM (SI prefixes): the CSV writes 70.0, not 70.00000000000001
+    from rateabs.options import RatesOptions
+
+    mp = _map(tmp_path, "substrate (mM)", ["0.07"] * 9)
+    o = RatesOptions.build(file=str(_plate(tmp_path)), layout_file=str(mp), chromophore="NADH",
+                           pathlength="1 cm", plots=False)
+    lines = compute_rates(o).csv.splitlines()
+    col = lines[0].split(",").index("substrate_uM")
+    assert [row.split(",")[col] for row in lines[1:10]] == ["70.0"] * 9
+
+
+def test_a_flat_dilution_check_has_no_negative_zero():
+    # activity falling by a millionth over an eightfold dilution: a trend of -0.00001 % per
+    # two-fold dilution, written +0.0 % (a rounded zero has no sign)
+    from rateabs.rates import dilution_trend
+
+    d = np.array([1.0, 2, 4, 8, 1, 2, 4, 8])
+    act = np.array([1.0, 1.0, 1.0, 1.0 - 1e-6] * 2)
+    text = dilution_trend(d, act)["dilution_check"]
+    assert text.startswith("+0.0 % [") and "-0.0" not in text, text
