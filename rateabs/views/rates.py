@@ -647,7 +647,7 @@ def report_page(view: View, pictures: list[Path], o: RatesOptions) -> str:
     if doc["warnings"]:
         sections.append(("Warnings", rp.notes(doc["warnings"])))
     return rp.page(f"Initial rates: {Path(o.file).name}", f"rates of {', '.join(doc['inputs'])}",
-                   sections)
+                   sections, rp.cautions_for("rates"))
 
 
 def _well_section(a, doc, rp) -> str:
