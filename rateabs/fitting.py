@@ -103,6 +103,8 @@ def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
     '1235 ± 12'
     >>> fmt_pm(49.999999999999972, 6.8e-14)            # noise-free data: digits capped
     '50.00000000 ± 6.8e-14'
+    >>> fmt_pm(-0.004, 0.1), fmt_pm(-1e-05, 0.01)      # zero at the SE's place: no sign
+    ('0.00 ± 0.10', '0.000 ± 0.010')
     """
     v, e = finite_or_none(value), finite_or_none(se)
     if v is None:
@@ -110,6 +112,8 @@ def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
     if e is None or e <= 0:
         return _with_unit(f"{v:.{digits}g}", unit)
     last = math.floor(math.log10(e)) - 1              # place of the SE's second digit
+    if abs(v) < 0.5 * 10.0 ** last:                    # rounds to zero there: "0.00", not "-0.00"
+        v = 0.0
     lead = math.floor(math.log10(abs(v))) if v else last + 1
     capped = lead - last >= MAX_SIGNIFICANT           # finer than the arithmetic carries
     if capped:

@@ -28,7 +28,8 @@ A plate map is a CSV (or TSV/.xlsx) with one row per well. Columns (case-insensi
 =============  ==============================================================================
 
 Lines starting with ``#`` are comments. ``read_layout`` records in ``attrs["columns"]`` which
-optional columns the map has, so that the analysis can say where each value came from.
+optional columns the map has, so that the analysis can say where each value came from, and in
+``attrs["units"]`` each concentration column's header and the unit it names, as written.
 """
 
 from __future__ import annotations
@@ -163,6 +164,9 @@ def read_layout(path: str) -> pd.DataFrame:
     out["window"] = _windows(m)
     out["skip"] = _skips(m)
     out.attrs["source"] = path
+    out.attrs["units"] = {stem: (headers.get(col, col), header_unit(df, col))
+                          for stem in ("substrate", "inhibitor", "standard", "enzyme", "protein")
+                          if (col := conc_column(df, stem))}
     out.attrs["notes"] = (name_variants(m, list(out["role"])) + _enzyme_note(out)
                           + _unread_columns(df, path))
     out.attrs["columns"] = sorted(c for c in ("dilution", "protein", "group", "window", "skip",

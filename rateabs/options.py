@@ -340,9 +340,10 @@ def _protein():
 
 
 def _noisy_limit():
-    return option("--noisy-limit", NOISY_LIMIT, "SE, relative to the larger of the rate and "
-                  "the plate's typical rate, above which a well whose readings are far noisier "
-                  "than the plate's usual is flagged noisy (any well at ten times it).", 0.10)
+    return option("--noisy-limit", NOISY_LIMIT, "Flag a well noisy where its rate's SE is over "
+                  "this fraction of the larger of its rate and the plate's typical rate and its "
+                  "readings are far noisier than the plate's usual (three times its median "
+                  "noise), or over ten times this fraction whatever the noise.", 0.10)
 
 
 def _well_volume():

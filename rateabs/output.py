@@ -196,14 +196,15 @@ def rows_to_csv(rows: Sequence[dict], columns: Sequence[str], safe: bool = False
 
 
 def _csv_cell(v):
-    """A value as :func:`rows_to_csv` writes it: lists joined with ';', a float by its repr
-    (empty when not finite), None empty."""
+    """A value as :func:`rows_to_csv` writes it: lists joined with ';', a float by the repr of
+    its 15 significant digits (:func:`_short`: 70 uM, not 70.00000000000001 from 0.07 mM;
+    empty when not finite), None empty."""
     if type(v) is str:
         return v
     if isinstance(v, (list, tuple)):
         return ";".join(str(x) for x in v)
     if isinstance(v, float):
-        return "" if not math.isfinite(v) else repr(float(v))
+        return "" if not math.isfinite(v) else repr(_short(float(v)))
     return "" if v is None else v
 
 

@@ -28,11 +28,18 @@ CAUTIONS = (
 FORECAST_CAUTION = ("A predicted completion time is no process-safety assessment: runaway, "
                     "sampling and mixing hazards follow the site's own rules.")
 FORECASTING = ("completion", "ratelaw")
+#: Said on the pages of initial rates: what a fitted rate rests on.
+RATES_CAUTION = ("Each initial rate is fitted to the readings of its well: before you report "
+                 "one, look at the wells that need a look and at the window or curve it came "
+                 "from.")
 
 
 def cautions_for(command: str) -> tuple[str, ...]:
-    """The cautions of a command's page: the forecast one only where there is a forecast."""
-    return CAUTIONS[:1] + ((FORECAST_CAUTION,) if command in FORECASTING else ()) + CAUTIONS[1:]
+    """The cautions of a command's page: the forecast one only where there is a forecast, the
+    fitting one on the pages of initial rates."""
+    own = ((FORECAST_CAUTION,) if command in FORECASTING else ()) + (
+        (RATES_CAUTION,) if command == "rates" else ())
+    return CAUTIONS[:1] + own + CAUTIONS[1:]
 
 STYLE = """
 :root { --ink:#1f2328; --muted:#5b6470; --line:#d8dde3; --accent:#0b5f8a; --warm:#b34700;

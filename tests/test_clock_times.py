@@ -258,7 +258,9 @@ def test_rates_on_a_wall_clock_count_from_the_first_reading_and_say_so(tmp_path)
     assert a["slope_A_per_min"] == pytest.approx(np.polyfit(t[keep] / 60, a1[keep], 1)[0],
                                                  rel=1e-9)
     text = cli("rates", tmp_path / "clock.csv", "--no-plots").stdout
-    assert "# time origin: times counted from the first usable reading, 14:05:00" in text
+    assert ("# time origin: times counted from the first usable reading, 14:05:00 on the "
+            "file's clock, not from the clock's zero long before it; windows and times shown "
+            "are seconds from there\n") in text                  # in plain words, in one line
     assert "0-600" in text and "50700" not in text.split("# time origin")[1].split("\n", 1)[1]
 
 

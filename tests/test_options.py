@@ -173,6 +173,26 @@ def test_an_error_says_what_to_type_instead():
     assert "360 uL" in r.stderr and "96-well" in r.stderr
 
 
+def test_the_noisy_limit_help_says_the_rule_the_flag_follows():
+    # rateabs/slopes/flags.py: noisy where SE > limit x max(|rate|, typical) and the noise is
+    # over NOISE_EXCESS (3) times the plate's median, or SE > NOISY_HOPELESS (10) x that
+    from dataclasses import fields
+
+    from rateabs.slopes import flags
+
+    help_text = {f.metadata.get("flag"): f.metadata.get("help")
+                 for f in fields(opts.RatesOptions)}["--noisy-limit"]
+    assert help_text in " ".join(run("rates", "--help").stdout.split())
+    assert flags.NOISE_EXCESS == 3 and flags.NOISY_HOPELESS == 10
+    for words in ("larger of its rate and the plate's typical rate", "three times its median "
+                  "noise", "ten times this fraction whatever the noise"):
+        assert words in help_text, words
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "formats.md").read_text()
+    bullet = [x for x in doc.splitlines() if x.startswith("* `noisy`")][0]
+    assert "larger of the rate and the plate's typical rate" in bullet
+    assert "three times its median noise" in bullet and "ten times" in bullet
+
+
 def test_the_settings_objects_check_with_the_same_rules():
     with pytest.raises(UsageError, match="--direction 'Up' is not one of auto, up, down"):
         opts.RateSettings(direction="Up")

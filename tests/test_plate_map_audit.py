@@ -238,6 +238,26 @@ def test_wells_whose_dilution_cell_is_empty_are_named(tmp_path):
                                                                             "A9"]
 
 
+def test_wells_left_undiluted_by_default_are_named_even_where_they_are_most(tmp_path):
+    # five empty dilution cells and no --dilution: the five are taken as undiluted (the map's
+    # rule), the commonest source here, and still named in the header and listed in the JSON
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    mp = _map(tmp_path, "dilution", ["8"] * 4 + [""] * 5)
+    r = CliRunner().invoke(main, ["rates", str(_plate(tmp_path)), "--layout", str(mp),
+                                  "--chromophore", "NADH", "--pathlength", "1 cm",
+                                  "--total-volume", "200 uL", "--sample-volume", "20 uL",
+                                  "--no-plots"])
+    head = [x for x in r.stdout.splitlines() if x.startswith("# activity:")][0]
+    assert "default (undiluted) 5 wells (A5, A6, A7, A8, A9)" in head, head
+    assert "plate map 4 wells (A1, A2, A3, A4)" in head, head
+    doc = _run(_plate(tmp_path), mp)
+    assert doc["settings"]["dilution"]["wells"]["default (undiluted)"] == [
+        "A5", "A6", "A7", "A8", "A9"]
+
+
 def test_readings_in_milli_absorbance_are_said_in_the_header_and_settings(tmp_path):
     # the same plate written in mAU (1 mAU = 0.001 A, common practice) under names 'A1 (mAU)':
     # the rates are the same, and the rescaling is a header line, not only a warning
@@ -260,12 +280,39 @@ def test_readings_in_milli_absorbance_are_said_in_the_header_and_settings(tmp_pa
     assert "(mAU)" in line and "divided by 1000" in line
     doc = json.loads(CliRunner().invoke(main, [*args, "--format", "json"]).stdout)
     assert "divided by 1000" in doc["settings"]["signal_in_words"]
+    assert doc["settings"]["signal_unit_as_read"] == "mAU"
+    assert doc["settings"]["signal_factor_applied"] == 0.001       # 1 mAU = 0.001 A
     rate = [x["rate_uM_per_min"] for x in doc["results"] if x["trace"] == "A1"][0]
     assert rate == pytest.approx(RATE_UM_PER_MIN, rel=0.03)   # by hand: 0.050 A/min / 6220
 
 
+def test_a_map_column_in_mM_is_said_once_to_be_reported_in_uM(tmp_path):
+    # 0.12 mM is 120 uM (SI prefixes): the conversion is one header line and one settings
+    # entry; a column already in uM needs no word
+    from click.testing import CliRunner
+
+    from rateabs.cli import main
+
+    data = _plate(tmp_path)
+    mp = _map(tmp_path, "substrate (mM)", ["0.12"] * 9)
+    r = CliRunner().invoke(main, ["rates", str(data), "--layout", str(mp), "--chromophore",
+                                  "NADH", "--pathlength", "1 cm", "--no-plots"])
+    lines = [x for x in r.stdout.splitlines() if x.startswith("# plate map units:")]
+    assert lines == ["# plate map units: substrate (mM) read in mM and reported in uM "
+                     "(x 1000)"], r.stdout
+    doc = _run(data, mp)
+    assert doc["settings"]["map_units"] == [{"column": "substrate (mM)", "unit_as_read": "mM",
+                                             "reported_in": "uM",
+                                             "factor": pytest.approx(1000.0)}]
+    assert doc["results"][0]["substrate_uM"] == pytest.approx(120.0)
+    plain = _run(data, _map(tmp_path, "substrate_uM", ["120"] * 9, name="um.csv"))
+    assert plain["settings"]["map_units"] == []
+
+
 def test_the_header_names_the_whole_curve_model_behind_curve_rates():
-    # the sample plate's curved wells: 'curve' is said to be a whole-curve fit, and which one
+    # the sample plate's curved wells: 'curve' is said to be a whole-curve fit, and which one,
+    # in the header and (code and words) in the settings
+    import json
     from pathlib import Path
 
     from click.testing import CliRunner
@@ -279,6 +326,12 @@ def test_the_header_names_the_whole_curve_model_behind_curve_rates():
     line = [x for x in r.stdout.splitlines() if x.startswith("# initial slope:")][0]
     assert "curve = initial slope of a whole-curve fit: " in line
     assert any(w in line for w in ("exponential approach", "Michaelis–Menten form", "lag"))
+    est = json.loads(CliRunner().invoke(main, ["rates", str(runs / "plate_kbdh_340nm.csv"),
+                                               "--layout", str(runs / "plate_kbdh_map.csv"),
+                                               "--chromophore", "NADH", "--no-plots",
+                                               "--format", "json"]).stdout)["settings"]["estimator"]
+    assert set(est["curve_models_in_words"]) == set(est["curve_models"]) != set()
+    assert all(w in line for w in est["curve_models_in_words"].values())
 
 
 def test_unit_conversions_do_not_leave_binary_noise_in_the_json(tmp_path):
@@ -380,3 +433,26 @@ def test_a_header_that_only_starts_with_a_quantity_is_not_its_column(header, ste
     from rateabs.layout import names_quantity
 
     assert not names_quantity(header, stem)
+
+
+def test_unit_conversions_do_not_leave_binary_noise_in_the_csv(tmp_path):
+    # 0.07 mM is 70 uM (SI prefixes): the CSV writes 70.0, not 70.00000000000001
+    from rateabs.options import RatesOptions
+
+    mp = _map(tmp_path, "substrate (mM)", ["0.07"] * 9)
+    o = RatesOptions.build(file=str(_plate(tmp_path)), layout_file=str(mp), chromophore="NADH",
+                           pathlength="1 cm", plots=False)
+    lines = compute_rates(o).csv.splitlines()
+    col = lines[0].split(",").index("substrate_uM")
+    assert [row.split(",")[col] for row in lines[1:10]] == ["70.0"] * 9
+
+
+def test_a_flat_dilution_check_has_no_negative_zero():
+    # activity falling by a millionth over an eightfold dilution: a trend of -0.00001 % per
+    # two-fold dilution, written +0.0 % (a rounded zero has no sign)
+    from rateabs.rates import dilution_trend
+
+    d = np.array([1.0, 2, 4, 8, 1, 2, 4, 8])
+    act = np.array([1.0, 1.0, 1.0, 1.0 - 1e-6] * 2)
+    text = dilution_trend(d, act)["dilution_check"]
+    assert text.startswith("+0.0 % [") and "-0.0" not in text, text

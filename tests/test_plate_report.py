@@ -52,6 +52,11 @@ def test_the_report_reads_like_a_lab_report(sample_run):
     assert not re.search(r"\d\.\d{9,}", text)
     assert 'download="rates.csv" href="data:text/csv;base64,' in page
     assert page.count("data:image/png;base64,") >= 4          # overview, map, replicates, wells
+    # the page's cautions are a rates page's: not for diagnosis, the fitted rate's own, the
+    # local rules; nothing of a completion forecast
+    cautions = text.split("Cautions", 1)[1]
+    assert "not for clinical diagnosis" in cautions and "local safety rules" in cautions
+    assert "initial rate is fitted" in cautions and "completion" not in cautions
 
 
 def test_the_figures_of_a_96_well_plate(sample_run):

@@ -53,6 +53,49 @@ def test_lag_phase_found_and_skipped():
     assert np.median(np.abs(w.slope / truth - 1)) < 0.08
 
 
+def _lag_plate(path, tau=90.0, seed=5):
+    """A1-A4 switching on with a first-order lag of time constant ``tau``, y = 1 - b (t - tau
+    (1 - e^(-t/tau))) (Frieden 1970, J. Biol. Chem. 245:5788), A5-A8 straight from the start;
+    b = 0.03 A/min, 37 reads 20 s apart, 1 mA seeded noise."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(37) * 20.0
+    lag = 1.0 - 0.03 / 60 * (t - tau * (1 - np.exp(-t / tau)))
+    rows = ["Time (s)," + ",".join(f"A{i}" for i in range(1, 9))]
+    straight = 1.0 - 0.03 / 60 * t
+    rows += [f"{x:g}," + ",".join(f"{(lag if i < 4 else straight)[k] + rng.normal(0, 1e-3):.5f}"
+                                  for i in range(8)) for k, x in enumerate(t)]
+    path.write_text("\n".join(rows) + "\n")
+    return path
+
+
+def test_a_lag_is_said_where_it_moves_the_window_or_gives_the_rate(tmp_path):
+    # the wells with a lag: the header names them with the lag's size, the window cell gives
+    # the span the rate came from (the whole trace for a whole-curve rate, a window starting
+    # three lag time constants in otherwise) and the lag; the rate is the fully active one
+    # (0.03 A/min, as simulated)
+    data = _lag_plate(tmp_path / "lag.csv")
+    r = _run([str(data), "--no-plots"])
+    assert r.exit_code == 0, r.output
+    head = [x for x in r.stdout.splitlines() if x.startswith("# lag:")]
+    assert len(head) == 1 and "4 well(s) start slowly (A1, A2, A3, A4; lag about" in head[0]
+    rows = {x.split()[0]: x for x in r.stdout.splitlines() if x[:1] == "A" and x[1:2].isdigit()}
+    doc = json.loads(_run([str(data), "--no-plots", "--format", "json"]).stdout)
+    res = {x["trace"]: x for x in doc["results"]}
+    assert doc["settings"]["lag"]["wells"] == ["A1", "A2", "A3", "A4"]
+    for w in ("A1", "A2", "A3", "A4"):
+        assert res[w]["lag_s"] == pytest.approx(90, rel=0.3)
+        assert abs(res[w]["slope_A_per_min"]) == pytest.approx(0.03, rel=0.05)
+        # the whole curve was fitted to every reading, 0-720 s, 37 of them: not to the
+        # straight window after the lag that window_start_s and window_end_s still hold
+        assert res[w]["method"] == "curve" and res[w]["window_start_s"] > 0
+        assert "0-720 whole trace, lag ~" in rows[w] and " 37 " in rows[w], rows[w]
+    assert "lag" not in rows["A5"] and "whole trace" not in rows["A5"]
+    forced = _run([str(data), "--no-plots", "--slope-from", "window"])
+    cell = [x for x in forced.stdout.splitlines() if x.startswith("A1 ")][0]
+    start = float(cell.split(" after lag")[0].split()[-1].split("-")[0])
+    assert start >= 3 * 0.7 * 90 and "-720 after lag ~" in cell, cell
+
+
 def test_depletion_curvature_found_and_curve_estimate_close():
     ts, truth = simulate("depletion", 100, 13)
     w = find_windows(ts.grid())

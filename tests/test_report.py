@@ -142,3 +142,5 @@ def test_a_page_carries_the_forecast_caution_only_where_it_forecasts():
     assert any("process-safety" in c for c in cautions_for("completion"))
     assert all(any("clinical diagnosis" in c for c in cautions_for(cmd))
                for cmd in ("rates", "completion", "saturation"))
+    assert any("initial rate is fitted" in c for c in cautions_for("rates"))
+    assert not any("initial rate is fitted" in c for c in cautions_for("completion"))

@@ -97,7 +97,7 @@ def test_ratelaw_same_k_and_half_life_whatever_the_clock(tmp_path):
                                                            abs=1e-6)
         assert r["time_origin_s"] == OFFSETS[label]
         assert doc["settings"]["time_origin_s"] == OFFSETS[label]
-    assert "09:00:00 (32400 s in the file)" in docs["clock 09:00:00"]["settings"][
+    assert "09:00:00 on the file's clock" in docs["clock 09:00:00"]["settings"][
         "time_origin_in_words"]
     assert "12000 s in the file" in docs["12000 s"]["settings"]["time_origin_in_words"]
     assert "file's own zero" in docs["zero"]["settings"]["time_origin_in_words"]
@@ -115,8 +115,8 @@ def test_ratelaw_table_states_the_origin(tmp_path):
     p = write_run(tmp_path / "c.csv", 32400.0, decay(), "clock")
     r = CliRunner().invoke(main, ["ratelaw", str(p), "--no-plots"])
     assert r.exit_code == 0, r.output
-    assert ("time origin: times counted from the first usable reading, 09:00:00 (32400 s in "
-            "the file)") in r.output
+    assert ("time origin: times counted from the first usable reading, 09:00:00 on the file's "
+            "clock, not from the clock's zero long before it") in r.output
 
 
 def test_completion_same_forecast_counted_from_the_first_reading(tmp_path):

@@ -83,7 +83,7 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
                          "export one column (or row) of readings per well or sample")
     meta = preamble(src.head, top, src.delimiter)
     kind, kind_source = decide_kind(signal, parsed.header_words, meta)
-    unit_notes = _name_unit(parsed, signal)
+    unit_notes, scale = _name_unit(parsed, signal)
     if unit_notes:
         kind, kind_source = unit_notes[0]
     warnings, looks_like = plausibility(kind, parsed.values, signal is not None)
@@ -105,7 +105,7 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
         clock_reading=parsed.time.reading, clock_reading_source=parsed.time.reading_source,
         clock_reading_why=parsed.time.reading_why or None,
         time_looks_like=parsed.time.looks_like, signal_kind=kind, signal_source=kind_source,
-        signal_unit_note=unit_notes[1] if len(unit_notes) > 1 else None,
+        signal_unit_note=unit_notes[1] if len(unit_notes) > 1 else None, **scale,
         looks_like=looks_like, plate_format=plate[0], plate_format_source=plate[1],
         plate_guess=list(guess) if guess[0] else None,
         plate_stated=list(stated) if stated else None,
@@ -120,30 +120,35 @@ def _read(src: Source, time_unit, signal, i0, partial) -> TraceSet:
     return ts
 
 
-def _name_unit(parsed: Parsed, signal: str | None) -> list:
+def _name_unit(parsed: Parsed, signal: str | None) -> tuple[list, dict]:
     """Where every trace name carries a signal unit in brackets (``A1 (mAU)``): the names
     without it (so that they are wells again), the readings on the kind's own scale (mAU
     divided by 1000) and, first in the list, the kind and where it was learnt; then a note of
-    what was done. --signal, where given, decides the kind and the unit only renames."""
+    what was done; beside the list, the unit as written and the factor the readings were
+    multiplied by (``signal_unit_as_read``, ``signal_factor``). --signal, where given, decides
+    the kind and the unit only renames."""
+    scale = {"signal_unit_as_read": None, "signal_factor": 1.0}
     found = unit_in_names(parsed.names)
     said = f"the unit '({found.unit})' after every trace name" if found else ""
     if found is None and parsed.layout.startswith("long"):
         found = unit_in_header(parsed.header_words)
         said = f"the unit '({found.unit})' of the readings' column" if found else ""
     if found is None:
-        return []
+        return [], scale
     parsed.names = found.names or parsed.names
+    scale["signal_unit_as_read"] = found.unit
     if signal is not None and signal != found.kind:
         return [(signal, "option"), f"--signal {signal} is used, though {said} names "
-                f"{found.kind}; the unit was taken off the names only"]
+                f"{found.kind}; the unit was taken off the names only"], scale
     if found.factor != 1.0:
         parsed.values = parsed.values * found.factor
+        scale["signal_factor"] = found.factor
     scaled = (f": the readings were divided by {1 / found.factor:g} to {found.kind}"
               if found.factor != 1.0 else "")
     renamed = (f"; the names are used without it ({parsed.names[0]}, ...)" if found.names
                else "")
     return [(found.kind, f"header unit '{found.unit}'"),
-            f"{said} was read as {found.kind}{scaled}{renamed}"]
+            f"{said} was read as {found.kind}{scaled}{renamed}"], scale
 
 
 #: A bare time column that looks like minutes (:func:`~rateabs.io.times.looks_like_minutes`)

@@ -128,24 +128,25 @@ def file_time_text(seconds: float, info: dict) -> str:
 
 
 def origin_words(info: dict, t0s) -> str:
-    """Where times are counted from (:func:`rateabs.models.time_origin`), with that moment in
-    the file's own times: 'times counted from the first usable reading, 09:00:00 (32400 s in
-    the file), ...', or from the file's own zero."""
+    """Where times are counted from (:func:`rateabs.models.time_origin`), in plain words with
+    that moment in the file's own times: 'times counted from the first usable reading,
+    09:00:00 on the file's clock, not from the clock's zero long before it; windows and times
+    shown are seconds from there', or from the file's own zero."""
     t0s = sorted({float(t) for t in t0s})
     moved = [t for t in t0s if t != 0]
     if not moved:
         return "times counted from the file's own zero (as in the file)"
     first, last = file_time_text(moved[0], info), file_time_text(moved[-1], info)
     clock = (info.get("time_unit") or "s") == "clock"
-    why = ("the file's times run on a clock whose zero lies long before the read (more than "
-           "the read's own length)")
+    where, zero = (("on the file's clock", "the clock's zero") if clock else
+                   ("in the file's time column", "that column's zero"))
     if len(t0s) == 1:
-        where = f"{first} ({moved[0]:g} s in the file)" if clock else f"{first} in the file"
-        return (f"times counted from the first usable reading, {where}, as {why}; windows and "
-                "times given or shown are from there")
+        return (f"times counted from the first usable reading, {first} {where}, not from "
+                f"{zero} long before it; windows and times shown are seconds from there")
     span = first if len(moved) == 1 else f"{first} to {last}"
-    return (f"times counted from the file's own zero, or from a trace's first usable reading "
-            f"({span} in the file) where {why}")
+    return (f"times counted from the file's own zero, or, for a trace whose first usable reading "
+            f"lies long after it ({span} {where}), from that reading; times shown are seconds "
+            "from there")
 
 
 def origin_settings(info: dict, t0s) -> dict:

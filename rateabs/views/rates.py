@@ -47,9 +47,10 @@ def compute_rates(o: RatesOptions) -> View:
     warnings += _assumed_pathlength(a)
     warnings += a.warnings
     results = [_result(rec) for rec in a.table.to_dict("records")]
+    units = map_units(layout)
     doc = document("rates", [o.file] + ([o.layout_file] if o.layout_file else []),
-                   settings_json(o, a, ts.info), results, warnings)
-    head = "\n".join(header_lines(o, a, ts.info)) + "\n\n"
+                   settings_json(o, a, ts.info, units), results, warnings)
+    head = "\n".join(header_lines(o, a, ts.info, units)) + "\n\n"
     csv_cols = [f for f in RATE_FIELDS if any(f in r for r in results)]
     return View(doc, head + rates_table(a), rows_to_csv([_csv_row(r) for r in results],
                                                         csv_cols), a)
@@ -162,6 +163,35 @@ def _counts(values) -> str:
     return ", ".join(f"{k} {n}" for k, n in out.items())
 
 
+#: The unit each concentration column of a plate map is reported in (``substrate_uM``, ...).
+MAP_REPORTED_UNITS = {"substrate": "uM", "inhibitor": "uM", "standard": "uM", "enzyme": "nM",
+                      "protein": "mg/mL"}
+
+
+def map_units(layout) -> list[dict]:
+    """The plate map's concentration columns whose header names a unit other than the one
+    they are reported in (``substrate (mM)`` read in mM, reported in uM), with the factor from
+    the one to the other."""
+    from ..units import parse_concentration, parse_mass_concentration
+
+    out = []
+    for stem, (header, unit) in (layout.attrs.get("units", {}) if layout is not None
+                                 else {}).items():
+        shown = MAP_REPORTED_UNITS[stem]
+        if not unit or unit == shown:
+            continue
+        parse = parse_mass_concentration if stem == "protein" else parse_concentration
+        out.append({"column": header, "unit_as_read": unit, "reported_in": shown,
+                    "factor": parse(f"1 {unit}") / parse(f"1 {shown}")})
+    return out
+
+
+def _map_unit_words(units: list[dict]) -> str:
+    """:func:`map_units` in words, for the header's plate-map line."""
+    return "; ".join(f"{u['column']} read in {u['unit_as_read']} and reported in "
+                     f"{u['reported_in']} (x {u['factor']:.12g})" for u in units)
+
+
 def _signal_words(info: dict) -> str:
     """What the readings were taken to be, and any rescaling on reading (mAU to absorbance)."""
     note = info.get("signal_unit_note")
@@ -175,12 +205,13 @@ def _dilution_wells(t) -> dict:
 
 
 def _dilution_words(t) -> str:
-    """Where each sample well's dilution came from, with the wells named for every source but
-    the commonest (a map whose dilution cells are empty in four wells says which four)."""
+    """Where each sample well's dilution came from, with the wells named (the first few and
+    the count where there are many) for every source but the map where it is the commonest: a
+    map whose dilution cells are empty in four wells says which four, ties or not."""
     by = _dilution_wells(t)
     common = max(by, key=lambda k: len(by[k])) if by else None
-    return ", ".join(f"{k} {len(v)} wells" + (f" ({_list(v)})" if k != common else "")
-                     for k, v in by.items())
+    return ", ".join(f"{k} {len(v)} wells" + ("" if k == common == "plate map" else
+                                              f" ({_list(v)})") for k, v in by.items())
 
 
 def _protein_counts(wells) -> list[str]:
@@ -210,8 +241,9 @@ def overrides(a) -> list[str]:
     return lines
 
 
-def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
-    """The assumptions of the run, one ``#`` line each, above the table."""
+def header_lines(o: RatesOptions, a, info: dict, units: list[dict] = ()) -> list[str]:
+    """The assumptions of the run, one ``#`` line each, above the table (``units``: the plate
+    map's unit conversions, :func:`map_units`)."""
     s, st, t = a.setup, a.settings, a.table
     fmt = f"{s.plate_format}-well plate ({s.plate_source})" if s.plate_format else (
         "not a plate: traces are not named as wells")
@@ -221,6 +253,7 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
              *([f"time origin: {origin_words(info, [a.time_origin_s])}"]
                if a.time_origin_s else []),
              f"signal: {_signal_words(info)}",
+             *([f"plate map units: {_map_unit_words(units)}"] if units else []),
              f"plate: {fmt}",
              f"pathlength: {s.pathlength_cm:.4g} cm, {s.pathlength_source}",
              f"conversion: {_epsilon_words(o, a)}",
@@ -229,6 +262,7 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
              f"assay direction: the signal goes {a.blank_info.get('direction')}",
              f"initial slope: {_counts(t['method'])} ({_estimator_words(st, t)})"
              + curve_model_words(a),
+             *([f"lag: {lag_words(a)}"] if lag_words(a) else []),
              f"substrate depletion: {depletion_words(st, t)}"]
     if st.total_volume_L:
         protein = _protein_counts(s.wells)
@@ -242,8 +276,9 @@ def header_lines(o: RatesOptions, a, info: dict) -> list[str]:
     return [f"# {x}" for x in lines]
 
 
-def settings_json(o: RatesOptions, a, info: dict) -> dict:
-    """The ``settings`` of the JSON document: every assumption with its source."""
+def settings_json(o: RatesOptions, a, info: dict, units: list[dict] = ()) -> dict:
+    """The ``settings`` of the JSON document: every assumption with its source (``units``: the
+    plate map's unit conversions, :func:`map_units`)."""
     s, st, t = a.setup, a.settings, a.table
     return {
         **time_settings(info), **origin_settings(info, [a.time_origin_s]),
@@ -257,14 +292,19 @@ def settings_json(o: RatesOptions, a, info: dict) -> dict:
         "dilution": {"option": st.dilution, "wells_by_source": _source_counts(
             t.loc[t["role"] != "blank", "dilution_source"]), "wells": _dilution_wells(t)},
         "estimator": {"asked": st.slope_from, "used": _source_counts(t["method"]),
-                      "curve_models": curve_models(a)},
+                      "curve_models": curve_models(a), "curve_models_in_words": {
+                          m: CURVE_MODEL_WORDS.get(m, m) for m in curve_models(a)}},
         "substrate_depletion": depletion_words(st, t),
+        "lag": {"wells": [n for n, x in zip(t["trace"], t["lag_s"], strict=True) if x > 0],
+                "in_words": lag_words(a) or None},
         "window": st.window if st.window == "auto" else list(st.window),
         "min_points": st.min_points, "blank": a.blank_info,
         "linear_limit": st.linear_limit, "noisy_rel_se": st.noisy_rel_se,
         "curve_fit": st.curve, "calibrate": st.calibrate, "katal": st.katal,
         "layout": o.layout_file, "signal_kind": info.get("signal_kind"),
         "signal_source": info.get("signal_source"), "signal_in_words": _signal_words(info),
+        "signal_unit_as_read": info.get("signal_unit_as_read"),
+        "signal_factor_applied": info.get("signal_factor", 1.0), "map_units": list(units),
         "overrides": overrides(a), "outlier_test": a.outlier_method,
         "needs_look": a.needs_look, "replicates": a.replicates.to_dict("records"),
         "activity": a.activity.to_dict("records"), "z_prime": a.zprime,
@@ -295,26 +335,76 @@ def _activity_flags() -> dict:
 # --------------------------------------------------------------------------- tables
 
 
-def _window_cell(r: dict) -> str:
+def _lag_text(lag) -> str:
+    """A fitted lag time in words, to two significant digits (the fit gives it no SE), or ""."""
+    if lag is None or not np.isfinite(lag) or lag <= 0:
+        return ""
+    return f"lag ~{float(f'{lag:.2g}'):g} s"
+
+
+def _window_cell(r: dict, curve_span) -> str:
+    """The span of readings the well's rate came from: its straight window (``set`` where it
+    was given for the well, ``after lag`` where a fitted lag moved its start), or, for a rate
+    from the whole curve, the readings the curve was fitted to (with the lag it fitted)."""
+    lag = _lag_text(r.get("lag_s"))
+    if r["method"] == "curve" and np.isfinite(curve_span[0]):
+        return (f"{curve_span[0]:g}-{curve_span[1]:g} whole trace"
+                + (f", {lag}" if lag else ""))
     if not np.isfinite(r["window_start_s"]):
         return "-"
     text = f"{r['window_start_s']:g}-{r['window_end_s']:g}"
-    return text + (" set" if r["window_source"] in ("--well-window", "plate map") else "")
+    if r["window_source"] in ("--well-window", "plate map"):
+        return text + " set"
+    return text + (f" after {lag}" if lag and r["window_source"] == "automatic" else "")
+
+
+def curve_spans(a) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The readings each well's whole-curve fit used: the times (s) of its first and last
+    usable readings and how many it used (spikes set aside), as the fit takes them."""
+    g = a.traces.grid()
+    times = np.broadcast_to(g.times, g.values.shape)
+    ok = g.usable & np.isfinite(times)
+    has = ok.any(axis=1)
+    with np.errstate(invalid="ignore"):
+        first = np.where(has, np.min(np.where(ok, times, np.inf), axis=1), np.nan)
+        last = np.where(has, np.max(np.where(ok, times, -np.inf), axis=1), np.nan)
+    return first, last, ok.sum(axis=1) - np.asarray(a.windows.spikes, int)
+
+
+def lag_words(a) -> str:
+    """The wells whose whole-curve fit found a lag, with its size, and what their rate and
+    window then are; "" where none has one."""
+    lag = np.asarray(a.table["lag_s"], float)
+    with np.errstate(invalid="ignore"):
+        has = np.isfinite(lag) & (lag > 0)
+    if not has.any():
+        return ""
+    names = list(np.asarray(a.table["trace"])[has])
+    lo, hi = (float(f"{x:.2g}") for x in (lag[has].min(), lag[has].max()))
+    size = f"about {lo:g} s" if lo == hi else f"about {lo:g}-{hi:g} s"
+    return (f"{len(names)} well(s) start slowly ({_list(names)}; lag {size}): each rate is "
+            "the fully active enzyme's after the lag, from the whole curve with the lag fitted, "
+            "or from a straight window that starts three lag times in (the enzyme 95 % active)")
 
 
 def well_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
-    """The per-well table for a person: value ± SE rounded to the SE, units in the headers."""
+    """The per-well table for a person: value ± SE rounded to the SE, units in the headers;
+    the window and n are the span and number of readings the rate came from (the whole curve
+    for a rate from its fit)."""
     t = a.table
+    first, last, used = curve_spans(a)
     opt = [("rate", "rate_uM_per_min", "rate (uM/min)"),
            ("act", "activity_U_per_mL", "activity (U/mL)"),
            ("kat", "activity_nkat_per_mL", "activity (nkat/mL)"),
            ("spec", "specific_activity_U_per_mg", "specific (U/mg)"),
            ("turn", "turnover_per_s", "v/[E] (1/s)")]
     rows = []
-    for r in t.to_dict("records"):
+    for k, r in enumerate(t.to_dict("records")):
+        curve = r["method"] == "curve" and np.isfinite(first[k])
         row = {"trace": r["trace"], "role": r["role"], "sample": r["sample"] or "-",
                "slope": fmt_pm(r["slope_A_per_min"], r["slope_A_per_min_se"]),
-               "window": _window_cell(r), "n": r["n_points"], "how": r["method"],
+               "window": _window_cell(r, (first[k], last[k])),
+               "n": int(used[k]) if curve else r["n_points"], "how": r["method"],
                "flags": ",".join(r["flags"]) or "-"}
         for key, col, _ in opt:
             if col in r:
@@ -536,7 +626,9 @@ def report_page(view: View, pictures: list[Path], o: RatesOptions) -> str:
                  + rp.img(pics.get(f"{stem}_plate.png"), "rate per well")),
                 ("Inputs", rp.inputs_table(o)), ("Settings", rp.settings_table(o)),
                 ("What was assumed", rp.kv([(line[2:].split(":")[0], line[2:].split(":", 1)[1])
-                                            for line in header_lines(o, a, a.traces.info)[1:]
+                                            for line in header_lines(
+                                                o, a, a.traces.info,
+                                                doc["settings"]["map_units"])[1:]
                                             if ":" in line]))]
     for title, (rows, cols) in (("Activity per sample", activity_rows(a)),
                                 ("Replicates", replicate_rows(a))):
@@ -555,7 +647,7 @@ def report_page(view: View, pictures: list[Path], o: RatesOptions) -> str:
     if doc["warnings"]:
         sections.append(("Warnings", rp.notes(doc["warnings"])))
     return rp.page(f"Initial rates: {Path(o.file).name}", f"rates of {', '.join(doc['inputs'])}",
-                   sections)
+                   sections, rp.cautions_for("rates"))
 
 
 def _well_section(a, doc, rp) -> str:
