@@ -105,6 +105,8 @@ def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
     '50.00000000 ± 6.8e-14'
     >>> fmt_pm(-0.004, 0.1), fmt_pm(-1e-05, 0.01)      # zero at the SE's place: no sign
     ('0.00 ± 0.10', '0.000 ± 0.010')
+    >>> fmt_pm(4e-05, 1.6e-04), fmt_pm(0.0, 1e-4)      # within its SE of zero: same places
+    ('0.00004 ± 0.00016', '0.00000 ± 0.00010')
     """
     v, e = finite_or_none(value), finite_or_none(se)
     if v is None:
@@ -118,7 +120,7 @@ def fmt_pm(value, se=None, digits: int = 4, unit: str = "") -> str:
     capped = lead - last >= MAX_SIGNIFICANT           # finer than the arithmetic carries
     if capped:
         last = lead - MAX_SIGNIFICANT + 1
-    if 1e-3 <= abs(v) < 1e6 or (v == 0 and 1e-3 <= e < 1e6):
+    if 1e-3 <= abs(v) < 1e6 or (abs(v) <= e and 1e-6 <= e < 1e6):  # within its SE of 0: fixed
         dec = max(0, -last)
         text = f"{v:.{dec}f} ± " + (f"{e:.1e}" if capped else f"{e:.{dec}f}")
     else:
