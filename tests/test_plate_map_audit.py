@@ -456,3 +456,38 @@ def test_a_flat_dilution_check_has_no_negative_zero():
     act = np.array([1.0, 1.0, 1.0, 1.0 - 1e-6] * 2)
     text = dilution_trend(d, act)["dilution_check"]
     assert text.startswith("+0.0 % [") and "-0.0" not in text, text
+
+
+_UNITS = ["M", "mM", "uM", "nM", "pM", "µM", "mg/mL", "ug/mL"]
+_STYLES = ["{s} ({u})", "{s} [{u}]", "{s}_{u}", "{s} {u}", "{s} conc ({u})",
+           "{s} concentration [{u}]", "{s}"]
+
+
+@pytest.mark.parametrize("stem", ["substrate", "inhibitor", "standard", "enzyme", "protein"])
+def test_every_way_of_writing_a_quantity_with_its_unit_is_its_column(stem):
+    # property over the ways a map writes a concentration header (common practice: brackets,
+    # underscore or space before the unit): the column is found and its unit read as written
+    from hypothesis import given
+    from hypothesis import strategies as st
+
+    from rateabs.layout import names_quantity
+    from rateabs.units import unit_from_header
+
+    @given(st.sampled_from(_STYLES), st.sampled_from(_UNITS), st.booleans())
+    def check(style, unit, upper):
+        if stem != "protein" and "/" in unit or style.endswith("_{u}") and "/" in unit:
+            return                               # mass units are the protein column's
+        header = style.format(s=stem.capitalize() if upper else stem, u=unit)
+        assert names_quantity(header, stem), header
+        if "{u}" in style:
+            assert unit_from_header(header) == unit, header
+
+    @given(st.text(alphabet="abcdefghijklmnopqrstuvwxyz", min_size=2, max_size=10),
+           st.sampled_from(_UNITS))
+    def other_word(word, unit):
+        if word in ("conc", "concentration", "final"):
+            return
+        assert not names_quantity(f"{stem} {word} ({unit})", stem)
+
+    check()
+    other_word()
