@@ -169,3 +169,35 @@ def test_grubbs_does_not_flag_a_well_within_its_own_ses_of_two_that_coincide():
     assert method.startswith("Grubbs") and not out.any()
     _, out, _ = replicate_outliers(np.array([1.0, 1.00001, 1.2]), np.full(3, 0.01), ["a"] * 3)
     assert list(out) == [False, False, True]
+
+
+def test_the_replicate_picture_crosses_the_wells_left_out_for_a_flag(tmp_path, monkeypatch):
+    # A5 (bubble) is left out of S2's mean; the picture drew it as an ordinary dot beside a
+    # bar that did not include it. Now it is a cross, and the title says what a cross means.
+    import matplotlib.axes
+
+    from rateabs.plots.rates import replicate_plot
+
+    a = _four_triplicates(1.0, bubble=True)
+    marks, titles = [], []
+    real_scatter = matplotlib.axes.Axes.scatter
+
+    def scatter(self, x, y, *args, **kw):
+        marks.append((kw.get("marker", "o"), list(np.atleast_1d(x))))
+        return real_scatter(self, x, y, *args, **kw)
+
+    monkeypatch.setattr(matplotlib.axes.Axes, "scatter", scatter)
+    import matplotlib.figure
+
+    real_text = matplotlib.figure.Figure.text
+    monkeypatch.setattr(matplotlib.figure.Figure, "text",
+                        lambda self, x, y, s, *ar, **kw: titles.append(s) or real_text(
+                            self, x, y, s, *ar, **kw))
+    assert replicate_plot(a, tmp_path / "r.png").exists()
+    from rateabs.plots.rates import as_drawing
+
+    a5 = float(a.table.set_index("trace").loc["A5", as_drawing(a).rate_column])
+    crosses = [x for m, xs in marks if m == "x" for x in xs]
+    dots = [x for m, xs in marks if m == "o" for x in xs]
+    assert crosses == [pytest.approx(a5)] and a5 not in dots
+    assert any("left out for a flag (x)" in t for t in titles)

@@ -98,11 +98,12 @@ def _curve_line(w, g, name: str):
 
 
 def _replicates(reps) -> dict[str, list] | None:
-    """The replicate groups as lists: group, dilution, wells, mean, sd and the unit."""
+    """The replicate groups as lists: group, dilution, wells, mean, sd, the wells left out of
+    each mean with the reason, and the unit."""
     if reps is None or reps.empty:
         return None
     return {"group": [str(x) for x in reps["group"]],
             "dilution": [float(x) for x in reps["dilution"]],
             "wells": [list(x) for x in reps["wells"]],
             "mean": reps["mean"].to_numpy(float), "sd": reps["sd"].to_numpy(float),
-            "unit": str(reps["unit"].iloc[0])}
+            "left_out": [list(x) for x in reps["left_out"]], "unit": str(reps["unit"].iloc[0])}

@@ -529,7 +529,8 @@ def _colour_bar(ax, im, shape: tuple[int, int], cell: float, label: str) -> None
 
 
 def replicate_plot(analysis, path, most: int = 60):
-    """Each replicate group's wells as dots with mean ± SD of the wells kept; outliers ringed.
+    """Each replicate group's wells as dots with mean ± SD of the wells kept; outliers ringed,
+    wells left out of the mean because they need a look (another flag) drawn as crosses.
     None when the plate has more than ``most`` groups (the replicate table says it all)."""
     d = as_drawing(analysis)
     reps = d.replicates
@@ -540,9 +541,14 @@ def replicate_plot(analysis, path, most: int = 60):
     n = len(reps["group"])
     value = dict(zip(t["trace"], np.asarray(t[col], float), strict=True))
     outlier = {w for w, f in zip(t["trace"], t["flags"], strict=True) if "outlier" in f}
-    ks, xs, ring = [], [], []
+    doubted = {why.split(":")[0] for whys in reps.get("left_out", []) for why in whys
+               if "needs a look" in why and "kept" not in why}
+    ks, xs, ring, cross = [], [], [], []
     for k, wells in enumerate(reps["wells"]):
         for w in wells:
+            if w in doubted:
+                cross.append((value[w], k))
+                continue
             ks.append(k)
             xs.append(value[w])
             if w in outlier:
@@ -561,6 +567,9 @@ def replicate_plot(analysis, path, most: int = 60):
         if ring:
             rx, ry = zip(*ring, strict=True)
             ax.scatter(rx, ry, s=55, facecolors="none", edgecolors=PALETTE[1], lw=1.2)
+        if cross:
+            cx, cy = zip(*cross, strict=True)
+            ax.scatter(cx, cy, s=22, marker="x", color=PALETTE[1], lw=1.0)
         ax.set_yticks([])
         ax.grid(False, axis="y")
         ax.hlines(np.arange(n), 0, 1, transform=ax.get_yaxis_transform(), colors=GRID,
@@ -569,6 +578,7 @@ def replicate_plot(analysis, path, most: int = 60):
                    transform=ax.get_yaxis_transform())     # cheaper than tick labels
         ax.set_ylim(n - 0.5, -0.5)
         ax.set_xlabel(f"{col.split('_')[0]} ({unit})")
-        _fig_title(fig, "replicates: wells (dots), mean ± SD of the wells kept (bars), "
-                   "outliers (ringed)", 0.3, fig_h - 0.4)
+        _fig_title(fig, "replicates: wells (dots), mean ± SD of wells kept (bars), outliers "
+                   "(ringed)" + (", left out for a flag (x)" if cross else ""), 0.3,
+                   fig_h - 0.4)
         return save(fig, path, tight=False, compress_level=FAST_PNG)
