@@ -10,7 +10,7 @@ A plate map is a CSV (or TSV/.xlsx) with one row per well. Columns (case-insensi
                ``unknown`` means sample, ``positive control``/``negative control`` the controls
 ``sample``     sample name (free text)
 ``substrate``  substrate concentration; unit in the header (``substrate_uM``, ``substrate mM``,
-               ``substrate (mM)``) or in the cell (``50 uM``); bare numbers are µM
+               ``substrate (mM)``, ``[S] (mM)``) or in the cell (``50 uM``); bare numbers are µM
 ``inhibitor``  inhibitor concentration, same rules
 ``standard``   known concentration of the absorbing species in a ``standard`` well (a standard
                curve calibrates absorbance when no epsilon is given)
@@ -77,10 +77,22 @@ _CONC_WORDS = ("", "conc", "conc.", "concentration", "final", "final conc", "fin
                "final concentration")
 
 
+#: The symbols the trade writes for a concentration column (common practice: [S] for the
+#: substrate, [I] the inhibitor, [E] the enzyme; a 0 for "initial").
+_SYMBOLS = {"substrate": ("[s]", "[s]0", "[s]₀", "s0", "[s0]"),
+            "inhibitor": ("[i]", "[i]0", "[i]₀", "i0", "[i0]"),
+            "enzyme": ("[e]", "[e]0", "[e]₀", "e0", "[e0]", "[e]t", "[e]total")}
+
+
 def names_quantity(header: str, stem: str) -> bool:
     """Whether ``header`` is ``stem`` followed by nothing but a unit and a word for
-    concentration (:data:`_CONC_WORDS`), in any case."""
-    h = header.strip()
+    concentration (:data:`_CONC_WORDS`), in any case, or the quantity's symbol with at most a
+    unit (``[S] (mM)``, :data:`_SYMBOLS`)."""
+    h, symbols = header.strip(), _SYMBOLS.get(stem, ())
+    if _bare_symbol(h):                             # '[S]': its brackets are not a unit
+        return _bare_symbol(h) in symbols
+    if strip_header_unit(h).strip().lower() in symbols:
+        return True
     if not re.match(rf"^{re.escape(stem)}([\s_(\[]|$)", h, re.I):
         return False
     rest = strip_header_unit(h)[len(stem):]
@@ -89,8 +101,18 @@ def names_quantity(header: str, stem: str) -> bool:
 
 def header_unit(df, col: str | None) -> str:
     """The unit a map column's header names as written (``enzyme (uM)``, ``substrate_mM``: the
-    columns are matched in lower case, their units read in the case they were given), or ""."""
-    return unit_from_header(df.attrs.get("headers", {}).get(col, col)) if col else ""
+    columns are matched in lower case, their units read in the case they were given), or ""
+    (a bare symbol such as ``[S]`` names none)."""
+    if not col:
+        return ""
+    header = df.attrs.get("headers", {}).get(col, col)
+    return "" if _bare_symbol(header) else unit_from_header(header)
+
+
+def _bare_symbol(header: str) -> str:
+    """The header in lower case where it is a quantity's symbol alone (``[S]``), else ""."""
+    h = header.strip().lower()
+    return h if any(h in symbols for symbols in _SYMBOLS.values()) else ""
 
 
 def parse_conc_cells(df, col: str, path: str, lines) -> np.ndarray:

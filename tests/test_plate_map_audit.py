@@ -491,3 +491,20 @@ def test_every_way_of_writing_a_quantity_with_its_unit_is_its_column(stem):
 
     check()
     other_word()
+
+
+@pytest.mark.parametrize("header,factor", [("[S] (mM)", 1e-3), ("[S]", 1e-6), ("[S]0 (uM)", 1e-6),
+                                           ("S0_mM", 1e-3)])
+def test_a_substrate_column_headed_by_its_symbol_is_read(tmp_path, header, factor):
+    # '[S] (mM)' (common practice for the substrate concentration) was not read: the wells'
+    # substrate levels were lost and the default groups merged them. Bare numbers are uM.
+    lay = read_layout(str(_map(tmp_path, header, ["0.5"] * 9)))
+    np.testing.assert_allclose(lay["substrate_M"].iloc[:9], 0.5 * factor)
+    assert not [n for n in lay.attrs["notes"] if "not read" in n]
+
+
+def test_an_inhibitor_symbol_is_not_the_substrate():
+    from rateabs.layout import names_quantity
+
+    assert names_quantity("[I] (nM)", "inhibitor") and not names_quantity("[I] (nM)", "substrate")
+    assert names_quantity("[E]0 (nM)", "enzyme") and not names_quantity("[S]", "enzyme")
