@@ -265,6 +265,14 @@ def _unread_columns(df: pd.DataFrame, path: str) -> list[str]:
         note = bool(_NOTE_WORDS & words) and not (like == "sample" and words & _IDENTIFIERS)
         numbers = (note and not (_NOTE_WORDS - set(_FREE_TEXT)) & words
                    and _all_numbers(df[c]))
+        if _per_well_volumes(c, df[c]):
+            raise InputError(
+                f"the plate map's column {header!r} gives the wells different volumes, and "
+                "volumes are not read from the map: every activity would use the one "
+                "--total-volume and --sample-volume",
+                "analyse the wells of each volume on their own (a map per volume, with the "
+                "options for it), or remove the column if it is only a record",
+                file=path, row=df.attrs.get("header_line"), column=header)
         if like in _MUST_READ and like not in have and (not note or numbers):
             unit = f" with its unit, e.g. '{like} (uM)'" if like in _BY_STEM else ""
             raise InputError(
@@ -279,6 +287,14 @@ def _unread_columns(df: pd.DataFrame, path: str) -> list[str]:
     return [f"the plate map's column(s) {', '.join(said)} are not read; the columns read are "
             f"{', '.join(MAP_COLUMNS)} (units in the header, e.g. 'protein (mg/mL)'; see "
             "docs/formats.md)"]
+
+
+def _per_well_volumes(column: str, cells) -> bool:
+    """Whether an unread column headed with 'volume' (or 'vol') holds numbers that differ
+    between wells: volumes that change the activity well by well, which the map cannot carry."""
+    if not {"volume", "vol"} & set(re.findall(r"[a-z]+", column)) or not _all_numbers(cells):
+        return False
+    return len({float(x) for x in (str(c).strip() for c in cells) if x}) > 1
 
 
 def _all_numbers(cells) -> bool:

@@ -508,3 +508,12 @@ def test_an_inhibitor_symbol_is_not_the_substrate():
 
     assert names_quantity("[I] (nM)", "inhibitor") and not names_quantity("[I] (nM)", "substrate")
     assert names_quantity("[E]0 (nM)", "enzyme") and not names_quantity("[S]", "enzyme")
+
+
+def test_sample_volumes_that_differ_between_wells_stop_the_run(tmp_path):
+    # a map's 'sample volume (uL)' of 10 and 20 was only named as not read: every activity used
+    # the one --sample-volume, so the 10 uL wells' U/mL came out half what they are
+    with pytest.raises(InputError, match="different volumes"):
+        read_layout(str(_map(tmp_path, "sample volume (uL)", ["10"] * 4 + ["20"] * 5)))
+    lay = read_layout(str(_map(tmp_path, "sample volume (uL)", ["20"] * 9, "same.csv")))
+    assert any("'sample volume (uL)'" in n for n in lay.attrs["notes"])   # named, as before
