@@ -221,12 +221,12 @@ _IDENTIFIERS = {"name", "id", "label", "code"}
 #: name', 'standard deviation'): named in the warning, and a stop only where it is a note
 #: (:data:`_FREE_TEXT`) of a column the map lacks whose cells are all numbers ('dilution note'
 #: holding 1, 4, 10 is a dilution under another name). Identifiers (lot, name, id...) never stop.
-_NOTE_WORDS = set(_FREE_TEXT) | {"lot", "batch", "supplier", "vendor", "source", "name", "id",
-                                 "type", "deviation", "dev", "sd", "error", "catalog", "cas"} | _IDENTIFIERS
+_NOTE_WORDS = set(_FREE_TEXT) | {"lot", "batch", "supplier", "vendor", "source", "type",
+                                 "deviation", "dev", "sd", "error", "catalog", "cas"} | _IDENTIFIERS
 #: Short forms of map columns that a typing-slip match cannot reach (common practice).
-_SHORT_FORMS = {"diln": "dilution", "dil": "dilution", "subs": "substrate", "subst": "substrate",
-                "inhib": "inhibitor", "inh": "inhibitor", "std": "standard", "prot": "protein",
-                "enz": "enzyme", "grp": "group"}
+_SHORT_FORMS = {"diln": "dilution", "dil": "dilution", "df": "dilution", "subs": "substrate",
+                "subst": "substrate", "inhib": "inhibitor", "inh": "inhibitor", "std": "standard",
+                "prot": "protein", "enz": "enzyme", "grp": "group"}
 
 
 def _looks_like(header: str) -> str | None:

@@ -274,3 +274,19 @@ def test_a_partly_filled_plate_is_taken_as_96_wells_and_says_so(tmp_path):
     assert s["plate_format"] == 96
     assert "smallest of 96/384/1536" in s["plate_format_source"]
     assert s["pathlength_cm"] == pytest.approx(0.625, rel=1e-3)
+
+
+@pytest.mark.parametrize("step_min", [1 / 3, 1.0])
+def test_a_plate_in_minutes_with_20_s_or_1_min_reads_is_refused_as_seconds(tmp_path, step_min):
+    # an audit's 15-well plate in minutes (0, 0.3333, ... and 0, 1, 2, ...) under a bare 'Time'
+    # header was read as seconds with only a general warning: every rate 60x high, exit 0
+    t = np.arange(0, 10.001, step_min)
+    rows = ["Time," + ",".join(f"A{k}" for k in range(1, 16))]
+    rows += [f"{x:.4f}," + ",".join(f"{1 - 0.01 * k * x:.5f}" for k in range(1, 16)) for x in t]
+    data = tmp_path / "plate_min.csv"
+    data.write_text("\n".join(rows) + "\n")
+    r = _cli(data, "--no-plots")
+    assert r.exit_code == 3 and "look like minutes" in r.stderr and "Traceback" not in r.output
+    r = _cli(data, "--no-plots", "--time-unit", "min", "--format", "json")
+    slopes = [x["slope_A_per_min"] for x in json.loads(r.stdout)["results"]]
+    np.testing.assert_allclose(slopes, [-0.01 * k for k in range(1, 16)], rtol=1e-4)

@@ -401,7 +401,8 @@ def test_an_identifier_or_sd_beside_no_concentration_column_is_only_named(tmp_pa
 
 
 @pytest.mark.parametrize("header,cells", [("dilution note", ["4"] * 5 + ["10"] * 4),
-                                          ("diln", ["4"] * 9), ("Sample ID", ["L1"] * 9)])
+                                          ("diln", ["4"] * 9), ("DF", ["2"] * 9),
+                                          ("Sample ID", ["L1"] * 9)])
 def test_a_look_alike_holding_the_values_of_a_missing_column_stops_the_run(tmp_path, header,
                                                                            cells):
     # 'dilution note' or 'diln' holding 4 and 10 with no dilution column was only named:

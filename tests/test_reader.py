@@ -394,7 +394,7 @@ def test_info_records_format_plate_and_sources(tmp_path):
     p = tmp_path / "p.csv"
     wells = [f"{r}{c}" for r in "ABCD" for c in range(1, 7)]
     p.write_bytes(("Zeit;" + ";".join(wells) + "\n" + "".join(
-        f"{k};" + ";".join(f"0,{10 + k}" for _ in wells) + "\n" for k in range(4))
+        f"{30 * k};" + ";".join(f"0,{10 + k}" for _ in wells) + "\n" for k in range(4))
                    ).encode("latin-1"))
     info = read_traces(p).info
     assert (info["format"], info["delimiter"], info["decimal"], info["encoding"]) == (

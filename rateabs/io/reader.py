@@ -157,15 +157,25 @@ def _name_unit(parsed: Parsed, signal: str | None) -> tuple[list, dict]:
 #: by 0.25 s. A trial file in minutes, read as seconds with only a warning, gave every rate
 #: 60x high with exit 0. A few cuvettes keep the warning.
 PLATE_TRACES = 8
+#: ... and so is any bare time column of a plate that steps by a second or less and ends within
+#: a minute (0, 0.3333, 0.6667, ... or 0, 1, 2, ... 10): read as seconds, a whole kinetic read
+#: of a plate in under a minute, at a second a read. An audit's plate in minutes with 20-s
+#: reads (0.3333-min steps) and one with 1-min steps were read as seconds, 60x high.
+PLATE_FASTEST_STEP_S, PLATE_SHORTEST_READ_S = 1.0, 60.0
 
 
 def refuse_plate_minutes(parsed: Parsed, times: np.ndarray, n_traces: int) -> None:
     """Stop where a plate's bare time column, read as seconds, looks like minutes."""
     tu = parsed.time
-    if tu.source != "assumed" or tu.looks_like != "min" or n_traces < PLATE_TRACES:
+    if tu.source != "assumed" or n_traces < PLATE_TRACES:
         return
     finite = times[np.isfinite(times)]
+    if finite.size < 3:
+        return
     step = float(np.median(np.diff(finite)))
+    fast = 0 < step <= PLATE_FASTEST_STEP_S and finite[-1] - finite[0] < PLATE_SHORTEST_READ_S
+    if tu.looks_like != "min" and not fast:
+        return
     raise InputError(
         f"the time column {tu.label!r} names no unit, and read as seconds its {finite.size} "
         f"readings of {n_traces} wells would be {step:g} s apart: no plate reader reads a plate "
