@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, fields, replace
+from typing import NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -60,6 +61,10 @@ ACTIVITY_FLAGS = {
     "dilution-trend": "the activity changes with the dilution (p < 0.05 and 5 % or more per "
                       "two-fold dilution): the mean over dilutions is not one activity; use the "
                       "dilutions where it is flat",
+    "wells-disagree": "wells kept in the mean are replicate outliers of each other: they differ "
+                      "beyond the plate's replicate scatter and none can be told right (two "
+                      "duplicates apart, or the last two of a group); the mean is not to be "
+                      "trusted: repeat the sample",
 }
 
 Z_OUTLIER = 3.5            # |z| above which a replicate is flagged
@@ -530,10 +535,10 @@ def blank_level(slope: np.ndarray, se: np.ndarray, is_blank: np.ndarray) -> dict
     if idx.size == 0:
         return out
     s_floor = np.maximum(se[idx], 1e-6 * max(float(np.max(se[idx])), 1e-12))
-    z = np.full(slope.size, np.nan)
-    flag = np.zeros(slope.size, dtype=bool)
+    t = _untested(slope.size)
     if idx.size >= 3:
-        _z_test(slope, np.where(is_blank, np.maximum(se, 1e-12), 0.0), idx, 0.0, z, flag)
+        _z_test(slope, np.where(is_blank, np.maximum(se, 1e-12), 0.0), idx, 0.0, t)
+    flag = t.out
     use = idx[~flag[idx]]
     w = 1 / np.maximum(se[use], s_floor.min()) ** 2
     level = float(np.sum(w * slope[use]) / np.sum(w))
@@ -744,23 +749,37 @@ def _masked_start(g: Grid) -> np.ndarray:
     return before.any(axis=1) & g.usable.any(axis=1)
 
 
-def replicate_outliers(values, ses, keys, doubted=None) -> tuple[np.ndarray, np.ndarray, str]:
-    """Per well, |z| against its replicates and whether it is an outlier (stage 5).
+class ReplicateTest(NamedTuple):
+    """The replicate-outlier test of every well (:func:`replicate_outliers`)."""
+
+    z: np.ndarray           # the well's statistic against its replicates (``stat`` says which)
+    out: np.ndarray         # flagged ``outlier``
+    set_aside: np.ndarray   # left out of its group's mean (an outlier the others agree against)
+    stat: np.ndarray        # "|z|" or "Grubbs G" per well ("" where not tested)
+    method: str
+
+
+def replicate_outliers(values, ses, keys, doubted=None) -> ReplicateTest:
+    """Per well, its statistic against its replicates and whether it is an outlier (stage 5).
 
     Replicates are wells with the same key. Where :data:`POOL_MIN_GROUPS` or more groups have
     replicates, each well is compared with the mean of the others in its group using the
-    plate's pooled relative scatter together with the wells' own SEs:
+    plate's pooled relative scatter cv (:func:`_pooled_cv`) together with the wells' own SEs:
     z = (x - m) / sqrt(s_x^2 + s_m^2), s^2 = SE^2 + (cv m)^2; the worst well with |z| above
-    :data:`Z_OUTLIER` is set aside and the test repeated while three or more remain (with two,
-    both are flagged when they disagree). Otherwise Grubbs's test (Grubbs 1969) runs within
-    each group of three or more, and |z| is Grubbs's G; a well it names is flagged only if it
-    also stands :data:`Z_OUTLIER` from the others by the wells' own SEs. Wells ``doubted`` (flagged for their
-    own shape) are tested but leave the plate's scatter to the others: a plate of nine
-    triplicates with a settling start and a bubble among them had its scatter put at 10 %, and a
-    well pipetted 40 % heavy then stood only 3.2 z out (1.3 % and far out without them).
-    Returns (|z|, outlier, method).
+    :data:`Z_OUTLIER` is set aside and the test repeated while three or more remain; where the
+    last two disagree both are flagged and kept, as neither can be told right (a heavy well
+    set aside first is still left out of the mean: with both of the last two flagged too, the
+    mean had kept it). Wells ``doubted`` (flagged for their own shape) are tested but leave the
+    plate's scatter to the others.
+
+    With fewer groups the scatter cannot be estimated: groups of five or more take Grubbs's
+    test (Grubbs 1969, two-sided 5 %; a well it names is flagged only if it also stands
+    :data:`Z_OUTLIER` from the others by their own SEs), smaller ones the z test against an
+    assumed scatter of :data:`ASSUMED_CV` (Grubbs's test cannot name the odd one of three
+    unless the other two coincide, and takes no duplicates: a duplicate 40 % heavy went
+    unflagged and its sample's mean was 20 % high).
     """
-    x, se = np.asarray(values, float), np.asarray(ses, float)
+    x, se = np.asarray(values, float), np.nan_to_num(np.asarray(ses, float))
     keys = np.asarray(keys, dtype=object)
     members: dict = {}
     for i in np.nonzero(np.isfinite(x))[0]:
@@ -769,20 +788,41 @@ def replicate_outliers(values, ses, keys, doubted=None) -> tuple[np.ndarray, np.
     groups = [np.array(m) for m in members.values() if len(m) >= 2]
     sound = np.ones(x.size, bool) if doubted is None else ~np.asarray(doubted, bool)
     cv = _pooled_cv(x, se, [g[sound[g]] for g in groups if sound[g].sum() >= 2])
-    z = np.full(x.size, np.nan)
-    out = np.zeros(x.size, dtype=bool)
+    t = _untested(x.size)
     for gr in groups:
-        if cv is not None:
-            _z_test(x, np.nan_to_num(se), gr, cv, z, out)
-        elif gr.size >= 3:
-            k = grubbs_outlier(x[gr])
-            sd = np.std(x[gr], ddof=1)
-            z[gr] = np.abs(x[gr] - x[gr].mean()) / sd if sd > 0 else 0.0
-            if k is not None and _beyond_own_ses(x, np.nan_to_num(se), gr, gr[k]):
-                out[gr[k]] = True
+        if cv is None and gr.size >= GRUBBS_FROM:
+            _grubbs_test(x, se, gr, t)
+        else:
+            _z_test(x, se, gr, ASSUMED_CV if cv is None else cv, t)
     method = ("pooled replicate scatter (z)" if cv is not None else
-              "Grubbs (1969) within each group of three or more")
-    return z, out, method
+              f"too few groups to pool the replicate scatter: z against an assumed "
+              f"{100 * ASSUMED_CV:.0f} % scatter, Grubbs (1969) in groups of {GRUBBS_FROM} or more")
+    return t._replace(method=method)
+
+
+def _untested(n: int) -> ReplicateTest:
+    """A :class:`ReplicateTest` of ``n`` wells before any is tested."""
+    return ReplicateTest(np.full(n, np.nan), np.zeros(n, bool), np.zeros(n, bool),
+                         np.full(n, "", dtype=object), "")
+
+
+#: Replicate groups of this many wells or more take Grubbs's test where the plate's scatter
+#: cannot be pooled; smaller ones the z test against :data:`ASSUMED_CV`.
+GRUBBS_FROM = 5
+#: The replicate scatter assumed where too few groups pool it: a few per cent is the
+#: pipetting scatter of a well-run plate (common practice); 5 % leaves a triplicate's well
+#: unflagged up to about 21 % off its replicates and a duplicate pair up to about 25 % apart.
+ASSUMED_CV = 0.05
+
+
+def _grubbs_test(x, se, gr, t: ReplicateTest) -> None:
+    """Grubbs's test within one group (see :func:`replicate_outliers`); fills ``t``."""
+    k = grubbs_outlier(x[gr])
+    sd = np.std(x[gr], ddof=1)
+    t.z[gr] = np.abs(x[gr] - x[gr].mean()) / sd if sd > 0 else 0.0
+    t.stat[gr] = "Grubbs G"
+    if k is not None and _beyond_own_ses(x, se, gr, gr[k]):
+        t.out[gr[k]] = t.set_aside[gr[k]] = True
 
 
 def _pooled_cv(x, se, groups) -> float | None:
@@ -791,52 +831,79 @@ def _pooled_cv(x, se, groups) -> float | None:
 
     Each well's relative deviation from its group's mean, e = (x - m) / |m| sqrt(n / (n - 1)),
     has variance r^2 + cv^2 with r = SE / |m| its own share. cv is the (clipped)
-    maximum-likelihood value over all wells (:func:`_ml_cv2`), then again without the wells
-    more than :data:`Z_OUTLIER` from their group at that cv, until no well moves. Each well counts by
-    its own precision, so a plate whose slow wells have large SEs does not hide the scatter
-    of its precise ones (a median of relative deviations less a median r^2 did: cv came out 0
-    and the precise wells' ordinary pipetting scatter read as outliers). The first cv is the
-    median of the groups' own (:func:`_median_group_cv2`): one heavy well moves all three
-    deviations of its triplicate, and on a plate of four triplicates, one with a doubted well,
-    those three of eleven outweighed the clipped fit (cv 9.6 % instead of 0.2 %, and a well
-    pipetted 40 % heavy stood 3.4 z out, unflagged).
+    maximum-likelihood value over the wells (:func:`_ml_cv2`) that the z test at the current
+    cv keeps (:func:`_z_test`: outliers set aside, their group's mean taken again without
+    them), until no well moves. Each well counts by its own precision, so a plate whose slow
+    wells have large SEs does not hide the scatter of its precise ones (a median of relative
+    deviations less a median r^2 did: cv came out 0 and the precise wells' ordinary pipetting
+    scatter read as outliers). The first cv is the median of the groups' own
+    (:func:`_median_group_cv2`): one heavy well moves all three deviations of its triplicate,
+    and on a plate of four triplicates those three of eleven outweighed the clipped fit (cv
+    9.6 % instead of 0.2 %, and a well pipetted 40 % heavy stood 3.4 z out, unflagged); the
+    group's mean is taken again without a well set aside, as the two left beside a heavy one
+    otherwise carry its deviation into the fit (cv 10.8 %, a 40 % heavy well at 2.8 z).
     """
-    e, r2 = [], []
+    usable = []
     for gr in groups:
         m = x[gr].mean()
-        if not (abs(m) > 0 and abs(m) > 5 * np.nanmedian(se[gr])):
-            continue                              # near zero: relative scatter means nothing
-        n = gr.size
+        if abs(m) > 0 and abs(m) > 5 * np.nanmedian(se[gr]):
+            usable.append(gr)                     # near zero: relative scatter means nothing
+    if len(usable) < POOL_MIN_GROUPS:
+        return None
+    kept = usable
+    c2 = _median_group_cv2(*_deviations(x, se, kept))
+    for _ in range(10):               # set the outliers aside at this cv and refit on the rest
+        now = []
+        for gr in usable:
+            t = _untested(x.size)
+            _z_test(x, se, gr, math.sqrt(c2), t)
+            if (~t.out[gr]).sum() >= 2:
+                now.append(gr[~t.out[gr]])
+        if sum(g.size for g in now) < 2 * POOL_MIN_GROUPS:
+            break
+        same = len(now) == len(kept) and all(np.array_equal(a, b) for a, b in zip(now, kept,
+                                                                                   strict=True))
+        kept = now
+        e, r2 = _deviations(x, se, kept)
+        c2 = _ml_cv2(np.concatenate(e) ** 2, np.nan_to_num(np.concatenate(r2)))
+        if same:
+            break
+    return math.sqrt(c2)
+
+
+def _deviations(x, se, groups) -> tuple[list[np.ndarray], list[np.ndarray]]:
+    """Per group, its wells' relative deviations e from the group's mean (scaled to the
+    variance of one well) and their own relative variances r^2 (:func:`_pooled_cv`)."""
+    e, r2 = [], []
+    for gr in groups:
+        m, n = x[gr].mean(), gr.size
         e.append((x[gr] - m) / abs(m) * math.sqrt(n / (n - 1)))
         r2.append((se[gr] / abs(m)) ** 2)
-    if len(e) < POOL_MIN_GROUPS:
-        return None
-    c2 = _median_group_cv2(e, r2)
-    e2, r2 = np.concatenate(e) ** 2, np.nan_to_num(np.concatenate(r2))
-    keep = np.ones(e2.size, dtype=bool)
-    for _ in range(10):               # from all wells, set the clear outliers aside and refit
-        now = e2 / np.maximum(r2 + c2, 1e-300) <= Z_OUTLIER**2
-        if np.array_equal(now, keep) or now.sum() < 2 * POOL_MIN_GROUPS:
-            break
-        keep = now
-        c2 = _ml_cv2(e2[keep], r2[keep])
-    return math.sqrt(c2)
+    return e, r2
 
 
 def _median_group_cv2(e: list[np.ndarray], r2: list[np.ndarray]) -> float:
     """A start for cv^2 that one bad group cannot move: the median over groups of each group's
-    scatter beyond its wells' own SEs, at least 0. A group of n has mean(e^2) = v chi2(n - 1) /
-    (n - 1), so each is divided by the median of that (0.455 for pairs, 0.693 for triplicates)
-    to make the median of the groups' values unbiased (a bare median put the scatter of twelve
-    pairs at half its size, and half the wells were then called outliers)."""
+    scatter beyond its wells' own SEs (at least 0), each group weighted by what it can tell of
+    cv^2, 1 / (r^2 + c0)^2 with c0 the clipped fit over every well (:func:`_ml_cv2`), so that
+    groups of imprecise wells, whose own SEs hide any scatter, do not set it to 0 (an
+    unweighted median did, and the precise wells' ordinary scatter then read as outliers). A
+    group of n has mean(e^2) = v chi2(n - 1) / (n - 1), so each is divided by the median of
+    that (0.455 for pairs, 0.693 for triplicates) to make the median unbiased (a bare median
+    put the scatter of twelve pairs at half its size)."""
     from .distributions import chi2_quantile
 
-    per_group = []
+    r2 = [np.nan_to_num(b) for b in r2]
+    c0 = _ml_cv2(np.concatenate(e) ** 2, np.concatenate(r2))
+    per_group, weight = [], []
     for a, b in zip(e, r2, strict=True):
         dof = a.size - 1
         med = float(chi2_quantile(0.5, dof)) / dof
-        per_group.append(np.mean(a ** 2) / med - np.mean(np.nan_to_num(b)))
-    return max(0.0, float(np.median(per_group)))
+        per_group.append(np.mean(a ** 2) / med - np.mean(b))
+        weight.append(1.0 / max(float(np.mean(b)) + c0, 1e-300) ** 2)
+    order = np.argsort(per_group)
+    cum = np.cumsum(np.asarray(weight)[order])
+    return max(0.0, float(np.asarray(per_group)[order][np.searchsorted(cum, cum[-1] / 2)]))
 
 
 #: Huber's clip of a well's squared z in :func:`_ml_cv2` (z = 2.5), and the mean of a clipped
@@ -862,25 +929,32 @@ def _ml_cv2(e2, r2) -> float:
     return 0.5 * (lo + hi)
 
 
-def _z_test(x, se, gr, cv, z, out) -> None:
-    """Iterative z test of one group (see :func:`replicate_outliers`); fills z and out."""
+def _z_test(x, se, gr, cv, t: ReplicateTest) -> None:
+    """Iterative z test of one group (see :func:`replicate_outliers`); fills ``t``. Each well
+    is judged against the others still kept, their mean weighted by each one's precision (a
+    well with a spike and a wide SE once pulled that mean and hid a heavy well beside it)."""
     keep = list(gr)
+    t.stat[gr] = "|z|"
     while len(keep) >= 2:
         zs = []
         for i in keep:
             others = [j for j in keep if j != i]
-            m = x[others].mean()
-            s_i2 = se[i] ** 2 + (cv * m) ** 2
-            s_m2 = sum(se[j] ** 2 + (cv * m) ** 2 for j in others) / len(others) ** 2
+            scale = (cv * x[others].mean()) ** 2
+            s2 = se[others] ** 2 + scale
+            if np.all(s2 > 0):                    # the others' mean, each by its precision
+                m, s_m2 = float(np.sum(x[others] / s2) / np.sum(1 / s2)), 1 / np.sum(1 / s2)
+            else:
+                m, s_m2 = float(x[others].mean()), float(np.sum(s2)) / len(others) ** 2
+            s_i2 = se[i] ** 2 + scale
             zs.append(abs(x[i] - m) / math.sqrt(s_i2 + s_m2) if s_i2 + s_m2 > 0 else 0.0)
-        z[keep] = zs
+        t.z[keep] = zs
         worst = int(np.argmax(zs))
         if zs[worst] <= Z_OUTLIER:
             return
         if len(keep) == 2:
-            out[keep] = True
+            t.out[keep] = True                    # the last two disagree: both, neither set aside
             return
-        out[keep[worst]] = True
+        t.out[keep[worst]] = t.set_aside[keep[worst]] = True
         keep.pop(worst)
 
 
@@ -924,16 +998,19 @@ def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
 NOT_DOUBTING = ("outlier",)
 
 
-def _set_aside(grp: pd.DataFrame, values: np.ndarray,
-               stat: str = "|z|") -> tuple[np.ndarray, list[str]]:
+def _set_aside(grp: pd.DataFrame, values: np.ndarray) -> tuple[np.ndarray, list[str]]:
     """Which wells of a group go into its mean, and why each other one does not: wells without
-    a value, replicate outliers (unless every well is one: two that disagree are both kept),
-    and wells that need a look for another reason (a flag says their own rate may be wrong),
-    unless that would leave none, when they are kept and said to be."""
+    a value, replicate outliers set aside by the test (``replicate_set_aside``; outliers that
+    disagree with each other and none else are kept, and said to be), and wells that need a
+    look for another reason (a flag says their own rate may be wrong), unless that would leave
+    none, when they are kept and said to be."""
     flags = list(grp["flags"])
-    outl = np.array(["outlier" in f for f in flags])
+    flagged = np.array(["outlier" in f for f in flags])
+    outl = (grp["replicate_set_aside"].to_numpy(bool) if "replicate_set_aside" in grp.columns
+            else flagged)
     if outl.all():
         outl[:] = False
+    stats = grp["replicate_stat"] if "replicate_stat" in grp.columns else ["|z|"] * len(grp)
     doubt = [[w for w in f if w not in NOT_DOUBTING] for f in flags]
     ok = np.isfinite(values)
     use = ok & ~outl & ~np.array([bool(d) for d in doubt])
@@ -941,20 +1018,28 @@ def _set_aside(grp: pd.DataFrame, values: np.ndarray,
     if kept_doubted:
         use = ok & ~outl
     why = []
-    for w, v, f, d, o, z in zip(grp["trace"], values, flags, doubt, outl, grp["replicate_z"],
-                                strict=True):
+    for w, v, f, d, o, z, st, fl, u in zip(grp["trace"], values, flags, doubt, outl,
+                                           grp["replicate_z"], stats, flagged, use, strict=True):
         if not np.isfinite(v):
             why.append(f"{w}: no rate ({', '.join(f) or 'no estimate'})")
         elif o:
-            why.append(f"{w}: replicate outlier ({stat} = {z:.1f})")
+            why.append(f"{w}: replicate outlier ({st} = {z:.2f})")
         elif d and not kept_doubted:
             why.append(f"{w}: needs a look ({', '.join(d)})")
         elif d:
             why.append(f"{w}: needs a look ({', '.join(d)}), kept: every well of the group does")
+        elif fl and u:
+            why.append(f"{w}: replicate outlier ({st} = {z:.2f}), kept: it and the wells it "
+                       "disagrees with cannot be told apart")
     return use, why
 
 
-def replicate_summary(table: pd.DataFrame, value_col: str, stat: str = "|z|") -> pd.DataFrame:
+def wells_disagree(grp: pd.DataFrame, use: np.ndarray) -> bool:
+    """Whether wells kept in a mean are replicate outliers (of each other)."""
+    return bool(np.any(use & np.array(["outlier" in f for f in grp["flags"]])))
+
+
+def replicate_summary(table: pd.DataFrame, value_col: str) -> pd.DataFrame:
     """Mean, SD, CV and n per replicate group and dilution; outliers and wells that need a
     look left out of the mean with the reason (:func:`_set_aside`)."""
     d = table[~table["role"].isin(["blank", "standard"])
@@ -963,7 +1048,7 @@ def replicate_summary(table: pd.DataFrame, value_col: str, stat: str = "|z|") ->
         return pd.DataFrame()                       # no replicates on this plate
     rows = []
     for _, grp in d.groupby("replicate_key", sort=False):
-        use, why = _set_aside(grp, grp[value_col].to_numpy(float), stat)
+        use, why = _set_aside(grp, grp[value_col].to_numpy(float))
         kept = grp[use]
         v = kept[value_col].to_numpy(float)
         sd = float(np.std(v, ddof=1)) if v.size > 1 else np.nan
@@ -981,7 +1066,7 @@ def replicate_summary(table: pd.DataFrame, value_col: str, stat: str = "|z|") ->
     return reps if (reps["n"] > 1).any() else pd.DataFrame()
 
 
-def activity_summary(table: pd.DataFrame, stat: str = "|z|") -> pd.DataFrame:
+def activity_summary(table: pd.DataFrame) -> pd.DataFrame:
     """Per sample and condition (substrate, inhibitor): mean activity ± SD over replicates and
     dilutions, outliers, wells that need a look and wells without a rate left out with the
     reason (:func:`_set_aside`), and the
@@ -994,7 +1079,7 @@ def activity_summary(table: pd.DataFrame, stat: str = "|z|") -> pd.DataFrame:
     for (name, s_uM, i_uM), grp in d.groupby([keys, d["substrate_uM"].fillna(-1),
                                               d["inhibitor_uM"].fillna(-1)], sort=False):
         act = grp["activity_U_per_mL"].to_numpy(float)
-        use, why = _set_aside(grp, act, stat)
+        use, why = _set_aside(grp, act)
         row = {"sample": name, "substrate_uM": None if s_uM < 0 else s_uM,
                "inhibitor_uM": None if i_uM < 0 else i_uM, "n_wells": len(grp),
                "n_used": int(use.sum()), "wells": list(grp["trace"]),
@@ -1010,6 +1095,8 @@ def activity_summary(table: pd.DataFrame, stat: str = "|z|") -> pd.DataFrame:
                 row[f"{col}_well_se"] = (float(np.median(e[np.isfinite(e)]))
                                          if np.isfinite(e).any() else None)
         row.update(dilution_trend(grp["dilution"].to_numpy(float)[use], act[use]))
+        if wells_disagree(grp, use):
+            row["flags"] = row["flags"] + ["wells-disagree"]
         rows.append(row)
     return pd.DataFrame(rows)
 
@@ -1144,17 +1231,18 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     masks = plate_flags(table, s, g, direction, blank_info)
     doubted = np.array([bool(f) for f in s.trace_flags]) | np.any(
         [m for k, m in masks.items() if k not in NOT_DOUBTING], axis=0)
-    z, outlier, how = replicate_outliers(
+    rep = replicate_outliers(
         np.where(table["role"].isin(["blank", "standard"]), np.nan, table[value_col]),
         table[value_col + "_se"], table["replicate_key"], doubted)
-    masks["outlier"] = outlier | s.blank["left_out"]
-    table["replicate_z"] = z
+    masks["outlier"] = rep.out | s.blank["left_out"]
+    table["replicate_z"] = rep.z
+    table["replicate_stat"] = rep.stat
+    table["replicate_set_aside"] = rep.set_aside
     plate = _flag_lists({k: masks[k] for k in PLATE_FLAGS if k in masks}, len(table))
     table["flags"] = [a + b for a, b in zip(s.trace_flags, plate, strict=True)]
-    stat = "Grubbs G" if how.startswith("Grubbs") else "|z|"
-    a = RatesAnalysis(table, replicate_summary(table, value_col, stat), z_prime(table, value_col),
+    a = RatesAnalysis(table, replicate_summary(table, value_col), z_prime(table, value_col),
                       s.windows, analysed, st, list(setup.warnings), blank_info, setup,
-                      activity_summary(table, stat), how, t0)
+                      activity_summary(table), rep.method, t0)
     a.warnings += (_notes(a, value_col) + blank_drift(table, blank_info)
                    + _substrate_note(table, g)
                    + _unused_standards(table, st, "calibration" in blank_info))

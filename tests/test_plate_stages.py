@@ -98,7 +98,7 @@ def test_duplicates_that_disagree_are_both_flagged():
     x = means * (1 + rng.normal(0, 0.02, means.size))
     x[-1] *= 1.4
     keys = np.repeat(np.arange(12), 2)
-    z, out, how = replicate_outliers(x, np.full(x.size, 0.01), keys)
+    z, out, _, _, how = replicate_outliers(x, np.full(x.size, 0.01), keys)
     assert how.startswith("pooled") and list(np.nonzero(out)[0]) == [22, 23]
     assert min(z[22], z[23]) > 3.5 and np.nanmax(z[:22]) < 3.5
 
@@ -111,10 +111,10 @@ def test_a_well_at_four_and_a_half_z_is_flagged_and_clean_groups_are_not():
     se = 0.01 * means
     x = means + rng.normal(0, 1, means.size) * se          # scatter = their own SE only
     keys = np.repeat(np.arange(n_groups), n)
-    z, out, _ = replicate_outliers(x, se, keys)
+    z, out, *_ = replicate_outliers(x, se, keys)
     assert out.sum() <= 1                                    # P(|z| > 3.5) ~ 5e-4 a well
     x[5] = means[5] + 4.5 * se[5] * np.sqrt(1 + 1 / 3)       # 4.5 z from the mean of 3 others
-    z, out, _ = replicate_outliers(x, se, keys)
+    z, out, *_ = replicate_outliers(x, se, keys)
     assert out[5] and z[5] == pytest.approx(4.5, abs=1.2)
 
 
@@ -134,7 +134,7 @@ def test_wells_flagged_for_their_shape_leave_the_plates_scatter_to_the_others():
     doubted = np.zeros(x.size, bool)
     doubted[[9, 26]] = True
     keys = np.repeat(np.arange(9), 3)
-    z, out, how = replicate_outliers(x, se, keys, doubted)
+    z, out, _, _, how = replicate_outliers(x, se, keys, doubted)
     assert replicate_outliers(x, se, keys)[1][17]
     assert how.startswith("pooled") and out[17] and z[17] > 6
     assert not out[np.setdiff1d(np.arange(27), [17, 26])].any()
@@ -143,8 +143,8 @@ def test_wells_flagged_for_their_shape_leave_the_plates_scatter_to_the_others():
 def test_without_enough_groups_to_pool_grubbs_decides():
     # published: Grubbs (1969) two-sided 5 % critical value for n = 5 is 1.715 (Table 1)
     x = np.array([10.0, 10.1, 9.9, 10.05, 12.0])
-    z, out, how = replicate_outliers(x, np.full(5, 0.05), np.zeros(5))
-    assert how.startswith("Grubbs") and out[4] and z[4] > 1.715
+    z, out, _, _, how = replicate_outliers(x, np.full(5, 0.05), np.zeros(5))
+    assert "Grubbs (1969) in groups of 5" in how and out[4] and z[4] > 1.715
 
 
 # --------------------------------------------------------------------------- blanks
