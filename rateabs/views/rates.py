@@ -23,7 +23,8 @@ RATE_FIELDS = ["trace", "role", "sample", "group", "method", "choice", "slope_A_
                "activity_nkat_per_mL_se", "specific_activity_U_per_mg",
                "specific_activity_U_per_mg_se", "turnover_per_s", "turnover_per_s_se",
                "window_start_s", "window_end_s", "window_source", "n_points", "r2", "lag_s",
-               "window_end_reason", "curve_slope_A_per_min", "curve_slope_A_per_min_se",
+               "window_end_reason", "curve_model", "curve_slope_A_per_min",
+               "curve_slope_A_per_min_se",
                "noise_A", "substrate_uM", "inhibitor_uM", "enzyme_nM", "dilution",
                "dilution_source", "replicate_z", "masked_readings", "skipped_s", "flags"]
 
