@@ -35,9 +35,10 @@ from .traces import Grid, TraceSet
 #: Plate-level flags (rates.py), each "this number may be wrong, because ...".
 PLATE_FLAGS = {
     "outlier": "the rate is more than 3.5 z from its replicates (against the plate's pooled "
-               "replicate scatter and the well's own SE; Grubbs 1969 within the group where too "
-               "few groups have replicates to pool); with two replicates both are flagged, as "
-               "either may be wrong",
+               "replicate scatter and the wells' own SEs; where too few groups pool it, against "
+               "an assumed 5 % scatter, or by Grubbs 1969 in groups of five or more): set aside "
+               "from the mean where the others agree; where the last two (or two duplicates) "
+               "disagree both are flagged and kept, as either may be wrong",
     "reversed": "the signal moves opposite to the plate's assay direction",
     "masked-start": "the first readings were masked (over range, past the linear limit, missing "
                     "or skipped), so the slope starts later than the reaction: with depletion "
@@ -1512,8 +1513,13 @@ def _notes(a: RatesAnalysis, value_col: str) -> list[str]:
     elif zp and zp.get("value") is not None and zp["value"] < 0.5:
         notes.append(f"Z' = {zp['value']:.2f} is below 0.5: the controls do not separate well")
     if not a.activity.empty:
-        trend = [r["sample"] for _, r in a.activity.iterrows() if r["flags"]]
-        if trend:
-            notes.append(f"the activity of {', '.join(map(str, trend[:5]))} trends with the "
-                         "dilution: its mean over dilutions is not one activity")
+        flagged = {f: [r["sample"] for _, r in a.activity.iterrows() if f in r["flags"]]
+                   for f in ACTIVITY_FLAGS}
+        if flagged["dilution-trend"]:
+            notes.append(f"the activity of {', '.join(map(str, flagged['dilution-trend'][:5]))} "
+                         "trends with the dilution: its mean over dilutions is not one activity")
+        if flagged["wells-disagree"]:
+            notes.append(f"the wells of {', '.join(map(str, flagged['wells-disagree'][:5]))} "
+                         "disagree and none can be told right (replicate outliers of each other, "
+                         "kept): the mean activity is not to be trusted; repeat the sample")
     return notes

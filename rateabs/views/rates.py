@@ -448,7 +448,7 @@ def activity_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
                "i": _fix(r["inhibitor_uM"], None), "dil": ", ".join(_dil(d) for d in
                                                                     r["dilutions"]) or "-",
                "n": f"{r['n_used']}/{r['n_wells']}", "check": r["dilution_check"],
-               "out": "; ".join(r["left_out"]) or "-"}
+               "flags": ",".join(r["flags"]) or "-", "out": "; ".join(r["left_out"]) or "-"}
         for key, col, _ in opt:
             if col in r:
                 row[key] = fmt_pm(r[col], _spread(r.get(f"{col}_sd"), r.get(f"{col}_well_se")))
@@ -457,7 +457,9 @@ def activity_rows(a) -> tuple[list[dict], list[tuple[str, str]]]:
             ("n", "n used")]
     cols += [(key, f"{head} mean ± SD*") for key, col, head in opt if col in act.columns
              and act[col].notna().any()]
-    cols += [("check", "dilution linearity"), ("out", "left out")]
+    cols += [("check", "dilution linearity")]
+    cols += [("flags", "flags")] if any(r["flags"] for r in act.to_dict("records")) else []
+    cols += [("out", "left out")]
     return rows, cols
 
 
