@@ -518,3 +518,20 @@ def test_sample_volumes_that_differ_between_wells_stop_the_run(tmp_path):
         read_layout(str(_map(tmp_path, "sample volume (uL)", ["10"] * 4 + ["20"] * 5)))
     lay = read_layout(str(_map(tmp_path, "sample volume (uL)", ["20"] * 9, "same.csv")))
     assert any("'sample volume (uL)'" in n for n in lay.attrs["notes"])   # named, as before
+
+
+def test_a_window_set_in_the_map_is_the_number_even_where_the_map_says_it_depleted(tmp_path):
+    # an audit's map window 60-600 (set to skip a settling start) on wells that used over 10 %
+    # of the map's [S]0 was reported as the whole curve's initial slope, fitted to 0-600, under
+    # a header naming the window. The set window is the number now (over-10pct where it may
+    # read low).
+    mp = tmp_path / "m.csv"
+    mp.write_text("well,role,sample,substrate (uM),window\n" + "".join(
+        f"A{i},sample,L1,100,{'60-300' if i <= 4 else ''}\n" for i in range(1, 10)) + "".join(
+        f"A{i},blank,buffer,,\n" for i in (10, 11, 12)))
+    doc = _run(_plate(tmp_path), mp)
+    res = {r["trace"]: r for r in doc["results"]}
+    for w in ("A1", "A2", "A3", "A4"):
+        assert res[w]["method"] == "window" and res[w]["window_source"] == "plate map"
+        assert (res[w]["window_start_s"], res[w]["window_end_s"]) == (60.0, 300.0)
+        assert res[w]["rate_uM_per_min"] == pytest.approx(RATE_UM_PER_MIN, rel=0.03)
