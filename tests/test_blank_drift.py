@@ -76,3 +76,34 @@ def test_the_blank_level_is_the_blanks_straight_line_slope(tmp_path):
     assert a.blank_info["slope_A_per_min_se"] == pytest.approx(1 / np.sqrt(np.sum(1 / ses**2)),
                                                           rel=0.5)
     assert a.blank_info["slope_A_per_min"] == pytest.approx(0.002, abs=3 * a.blank_info["slope_A_per_min_se"])
+
+
+def _blank_plate(tmp_path, blank_slopes, blank_substrate="150"):
+    """Four sample wells falling 0.030 A/min (NADH, [S] 150 uM) and blanks at ``blank_slopes``
+    (A/min), 0.5 mA noise, read every 15 s for 10 min."""
+    t = np.arange(0.0, 601.0, 15.0)
+    slopes = [-0.030] * 4 + list(blank_slopes)
+    rng = np.random.default_rng(3)
+    ys = 1.2 + np.array(slopes)[:, None] * t / 60 + rng.normal(0, 5e-4, (len(slopes), t.size))
+    names = [f"A{k + 1}" for k in range(len(slopes))]
+    (tmp_path / "m.csv").write_text("well,role,sample,substrate (uM)\n" + "".join(
+        f"{n},{'sample' if k < 4 else 'blank'},{'L1' if k < 4 else 'buffer'},"
+        f"{150 if k < 4 else blank_substrate}\n" for k, n in enumerate(names)))
+    return analyse_plate(TraceSet.from_arrays(names, t, ys), read_layout(str(tmp_path / "m.csv")),
+                         RateSettings(epsilon=6220.0, pathlength_cm=1.0))
+
+
+def test_two_blanks_that_disagree_are_said_to(tmp_path):
+    # an audit's two blanks at +0.003 and -0.020 A/min: their mean was subtracted and every
+    # rate moved by a third, with no word; two blanks cannot show which is right
+    a = _blank_plate(tmp_path, [0.003, -0.020])
+    assert any("the two blanks disagree (A5" in w for w in a.warnings)
+    a = _blank_plate(tmp_path, [0.0, 0.0])
+    assert not any("blanks disagree" in w for w in a.warnings)
+
+
+def test_blanks_without_the_samples_substrate_are_said_to_be(tmp_path):
+    a = _blank_plate(tmp_path, [0.0, 0.0], blank_substrate="0")
+    assert any("the blanks hold 0 uM substrate and the samples 150 uM" in w for w in a.warnings)
+    a = _blank_plate(tmp_path, [0.0, 0.0])
+    assert not any("blanks hold" in w for w in a.warnings)
