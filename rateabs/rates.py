@@ -659,7 +659,38 @@ def standard_curve(ts: TraceSet, wells: pd.DataFrame, st: RateSettings,
     return {"slope_A_per_M": m.value, "slope_se": m.se, "intercept_A": r.value("intercept"),
             "n_standards": len(std), "sigma_A": r.sigma,
             "epsilon_equivalent_M_per_cm": m.value / pathlength_cm,
-            "method": "straight line of mean standard absorbance vs concentration"}
+            "method": "straight line of mean standard absorbance vs concentration",
+            "bend": standard_bend(c, mean_a)}
+
+
+#: A standard curve bends where a parabola's curvature is significant (p < 0.01) and the slope
+#: changes by more than this share of the straight line's over the standards' range.
+STANDARD_BEND = 0.05
+
+
+def standard_bend(c: np.ndarray, a: np.ndarray) -> str | None:
+    """Words for a standard curve that is not straight, else None: the slopes of a parabola
+    through the standards at their lowest and highest concentration, against the straight
+    line's. One straight line through standards that flatten at the top (a detector past its
+    linear range) put an audit's rates 24 % high, with no word."""
+    from .distributions import t_two_sided_p
+
+    ok = np.isfinite(c) & np.isfinite(a)
+    c, a = c[ok], a[ok]
+    if np.unique(c).size < 4:
+        return None
+    coef, cov = np.polyfit(c, a, 2, cov=True)
+    lin = np.polyfit(c, a, 1)[0]
+    se2 = math.sqrt(cov[0, 0]) if cov[0, 0] > 0 else 0.0
+    p = float(t_two_sided_p(coef[0] / se2, c.size - 3)) if se2 > 0 else (0.0 if coef[0] else 1.0)
+    lo, hi = (2 * coef[0] * x + coef[1] for x in (c.min(), c.max()))
+    change = (hi - lo) / lin if lin else 0.0
+    if p >= 0.01 or abs(change) <= STANDARD_BEND:
+        return None
+    return (f"the standard curve bends: its slope is {lo / lin:.0%} of the straight line's at "
+            f"the lowest standard and {hi / lin:.0%} at the highest (parabola, p = {p:.2g}); "
+            "the conversion from one straight line is off wherever the samples lie: keep the "
+            "standards within the straight part")
 
 
 # --------------------------------------------------------------------------- 5. flags
@@ -1244,7 +1275,9 @@ def analyse_plate(ts: TraceSet, layout: pd.DataFrame | None = None,
     a = RatesAnalysis(table, replicate_summary(table, value_col), z_prime(table, value_col),
                       s.windows, analysed, st, list(setup.warnings), blank_info, setup,
                       activity_summary(table), rep.method, t0)
+    bend = (blank_info.get("calibration") or {}).get("bend")
     a.warnings += (_notes(a, value_col) + blank_drift(table, blank_info) + blank_doubts(table)
+                   + ([bend] if bend else [])
                    + _substrate_note(table, g)
                    + _unused_standards(table, st, "calibration" in blank_info))
     return a
