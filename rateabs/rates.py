@@ -1156,6 +1156,10 @@ def dilution_trend(dilution: np.ndarray, activity: np.ndarray) -> dict:
     head = f"{pm(pct)} % [{pm(lo)}, {pm(hi)}] per two-fold dilution, p = {p:.2g}"
     if bad:
         words = ": activity trends with dilution"
+    elif p < 0.05:
+        words = (f": a small trend, real (p < 0.05) but under {100 * TREND_LIMIT:.0f} % per "
+                 "two-fold dilution; the most concentrated dilution may read low (depletion) "
+                 "or high")
     elif bound <= 100 * FLAT_LIMIT:
         words = f": flat (no trend beyond ±{bound:.0f} %)"
     else:

@@ -186,6 +186,11 @@ def test_dilution_trend_is_scipy_linregress_on_log2_dilution():
     assert "flat" not in few["dilution_check"].split(":")[-1].replace("call it flat", "")
     assert dilution_trend(np.full(4, 5.0), act[:4])["dilution_check"] == (
         "not tested (one dilution)")
+    # a real trend under 5 % per two-fold dilution (an audit's +2.6 % [+1.9, +3.4], p = 7e-05)
+    # was called flat: it is named as a small trend now, unflagged
+    small = dilution_trend(d, np.repeat([1.0, 1.03, 1.06, 1.09], 3) * np.tile([1, 1.002, 0.998], 4))
+    assert small["flags"] == [] and small["dilution_trend_p"] < 0.05
+    assert ": a small trend, real" in small["dilution_check"]
 
 
 # --------------------------------------------------------------------------- map and overrides
