@@ -1591,6 +1591,14 @@ def _notes(a: RatesAnalysis, value_col: str) -> list[str]:
         notes.append(f"{len(look)} of {len(a.table)} wells need a look ({what}); each flag's "
                      "meaning is listed with the results")
     zp = a.zprime
+    n_pos, n_neg = ((a.table["role"] == r).sum() for r in ("positive", "negative"))
+    if zp is None and (n_pos or n_neg):
+        notes.append(f"no Z': it needs two or more positive and two or more negative controls "
+                     f"(the map has {n_pos} positive, {n_neg} negative)")
+    elif zp and min(zp["n_positive"], zp["n_negative"]) < 4:
+        notes.append(f"Z' = {zp['value']:.2f} rests on {zp['n_positive']} positive and "
+                     f"{zp['n_negative']} negative controls: with so few SDs it is a rough "
+                     "figure (common practice: eight or more of each)")
     if zp and zp["verdict"].startswith("controls reversed"):
         notes.append(f"Z' = {zp['value']:.2f} but the {zp['verdict']}")
     elif zp and zp.get("value") is not None and zp["value"] < 0.5:

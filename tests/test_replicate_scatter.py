@@ -268,3 +268,24 @@ def test_a_sample_whose_kept_wells_disagree_carries_the_activity_flag():
     assert "wells-disagree" in ACTIVITY_FLAGS
     assert any("wells of S1 disagree" in w for w in a.warnings)
     assert not any("trends with the dilution" in w for w in a.warnings)
+
+
+def test_a_plate_with_controls_of_one_kind_says_why_it_has_no_z_prime(tmp_path):
+    # only positives: no Z' and, before, no line saying why
+    import tempfile
+
+    from rateabs.layout import read_layout
+    from rateabs.options import RateSettings
+    from rateabs.rates import analyse_plate
+    from rateabs.traces import TraceSet
+
+    t = np.arange(0.0, 601.0, 15.0)
+    ys = 0.2 + 0.02 * t / 60 + np.random.default_rng(2).normal(0, 5e-4, (4, t.size))
+    with tempfile.TemporaryDirectory() as d:
+        path = Path(d) / "m.csv"
+        path.write_text("well,role,sample\n" + "".join(f"A{k},positive,full\n"
+                                                       for k in range(1, 5)))
+        a = analyse_plate(TraceSet.from_arrays([f"A{k}" for k in range(1, 5)], t, ys),
+                          read_layout(str(path)), RateSettings())
+    assert a.zprime is None
+    assert any("no Z'" in w and "4 positive, 0 negative" in w for w in a.warnings)
