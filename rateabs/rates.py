@@ -885,9 +885,8 @@ def _pooled_cv(x, se, groups) -> float | None:
     kept = usable
     c2 = _median_group_cv2(*_deviations(x, se, kept))
     for _ in range(10):               # set the outliers aside at this cv and refit on the rest
-        now = []
+        now, t = [], _untested(x.size)                # the groups share no well: one record
         for gr in usable:
-            t = _untested(x.size)
             _z_test(x, se, gr, math.sqrt(c2), t)
             if (~t.out[gr]).sum() >= 2:
                 now.append(gr[~t.out[gr]])
@@ -971,14 +970,7 @@ def _z_test(x, se, gr, cv, t: ReplicateTest) -> None:
         zs = []
         for i in keep:
             others = [j for j in keep if j != i]
-            scale = (cv * x[others].mean()) ** 2
-            s2 = se[others] ** 2 + scale
-            if np.all(s2 > 0):                    # the others' mean, each by its precision
-                m, s_m2 = float(np.sum(x[others] / s2) / np.sum(1 / s2)), 1 / np.sum(1 / s2)
-            else:
-                m, s_m2 = float(x[others].mean()), float(np.sum(s2)) / len(others) ** 2
-            s_i2 = se[i] ** 2 + scale
-            zs.append(abs(x[i] - m) / math.sqrt(s_i2 + s_m2) if s_i2 + s_m2 > 0 else 0.0)
+            zs.append(_z_against(x, se, i, others, cv))
         t.z[keep] = zs
         worst = int(np.argmax(zs))
         if zs[worst] <= Z_OUTLIER:
@@ -990,14 +982,29 @@ def _z_test(x, se, gr, cv, t: ReplicateTest) -> None:
         keep.pop(worst)
 
 
+def _z_against(x, se, i, others, cv) -> float:
+    """|z| of well ``i`` against the mean of ``others``, each weighted by its precision, with
+    variances SE^2 + (cv m)^2 (m the others' plain mean); 0 where nothing varies."""
+    scale = (cv * x[others].mean()) ** 2
+    s2 = se[others] ** 2 + scale
+    if np.all(s2 > 0):                            # the others' mean, each by its precision
+        m, s_m2 = float(np.sum(x[others] / s2) / np.sum(1 / s2)), 1 / np.sum(1 / s2)
+    else:
+        m, s_m2 = float(x[others].mean()), float(np.sum(s2)) / len(others) ** 2
+    s_i2 = se[i] ** 2 + scale
+    return abs(x[i] - m) / math.sqrt(s_i2 + s_m2) if s_i2 + s_m2 > 0 else 0.0
+
+
 def _beyond_own_ses(x, se, gr, i) -> bool:
-    """Whether well ``i`` stands more than :data:`Z_OUTLIER` from the mean of the rest of its
-    group ``gr`` by the wells' own SEs. Grubbs's test sees only the spread within the group: of
-    three wells, two that nearly coincide make the third an outlier however close it is (one
-    0.16 SE from the others was flagged)."""
+    """Whether well ``i`` stands more than :data:`Z_OUTLIER` from the rest of its group ``gr``
+    by the wells' own SEs (:func:`_z_against` with no scatter, or any distance where they have
+    none). Grubbs's test sees only the spread within the group: of three wells, two that
+    nearly coincide make the third an outlier however close it is (one 0.16 SE from the others
+    was flagged)."""
     others = [j for j in gr if j != i]
-    s2 = se[i] ** 2 + float(np.sum(se[others] ** 2)) / len(others) ** 2
-    return s2 <= 0 or abs(x[i] - x[others].mean()) > Z_OUTLIER * math.sqrt(s2)
+    if se[i] <= 0 and np.all(se[others] <= 0):
+        return True
+    return _z_against(x, se, i, others, 0.0) > Z_OUTLIER
 
 
 def grubbs_outlier(x: np.ndarray, alpha: float = 0.05) -> int | None:
@@ -1038,11 +1045,9 @@ def _set_aside(grp: pd.DataFrame, values: np.ndarray) -> tuple[np.ndarray, list[
     none, when they are kept and said to be."""
     flags = list(grp["flags"])
     flagged = np.array(["outlier" in f for f in flags])
-    outl = (grp["replicate_set_aside"].to_numpy(bool) if "replicate_set_aside" in grp.columns
-            else flagged)
+    outl = grp["replicate_set_aside"].to_numpy(bool).copy()
     if outl.all():
         outl[:] = False
-    stats = grp["replicate_stat"] if "replicate_stat" in grp.columns else ["|z|"] * len(grp)
     doubt = [[w for w in f if w not in NOT_DOUBTING] for f in flags]
     ok = np.isfinite(values)
     use = ok & ~outl & ~np.array([bool(d) for d in doubt])
@@ -1051,7 +1056,8 @@ def _set_aside(grp: pd.DataFrame, values: np.ndarray) -> tuple[np.ndarray, list[
         use = ok & ~outl
     why = []
     for w, v, f, d, o, z, st, fl, u in zip(grp["trace"], values, flags, doubt, outl,
-                                           grp["replicate_z"], stats, flagged, use, strict=True):
+                                           grp["replicate_z"], grp["replicate_stat"], flagged,
+                                           use, strict=True):
         if not np.isfinite(v):
             why.append(f"{w}: no rate ({', '.join(f) or 'no estimate'})")
         elif o:
