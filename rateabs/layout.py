@@ -91,12 +91,12 @@ def names_quantity(header: str, stem: str) -> bool:
     h, symbols = header.strip(), _SYMBOLS.get(stem, ())
     if _bare_symbol(h):                             # '[S]': its brackets are not a unit
         return _bare_symbol(h) in symbols
-    if strip_header_unit(h).strip().lower() in symbols:
+    name = strip_header_unit(h)
+    if name.strip().lower() in symbols:
         return True
     if not re.match(rf"^{re.escape(stem)}([\s_(\[]|$)", h, re.I):
         return False
-    rest = strip_header_unit(h)[len(stem):]
-    return re.sub(r"[\s_]+", " ", rest).strip().lower() in _CONC_WORDS
+    return re.sub(r"[\s_]+", " ", name[len(stem):]).strip().lower() in _CONC_WORDS
 
 
 def header_unit(df, col: str | None) -> str:
@@ -187,8 +187,7 @@ def read_layout(path: str) -> pd.DataFrame:
     out["skip"] = _skips(m)
     out.attrs["source"] = path
     out.attrs["units"] = {stem: (headers.get(col, col), header_unit(df, col))
-                          for stem in ("substrate", "inhibitor", "standard", "enzyme", "protein")
-                          if (col := conc_column(df, stem))}
+                          for stem in _BY_STEM if (col := conc_column(df, stem))}
     out.attrs["notes"] = (name_variants(m, list(out["role"])) + _enzyme_note(out)
                           + _unread_columns(df, path))
     out.attrs["columns"] = sorted(c for c in ("dilution", "protein", "group", "window", "skip",
